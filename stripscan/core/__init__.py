@@ -1,0 +1,1 @@
+"""Pure computational core: numpy, scipy and scikit-image only (no Qt, no sqlite)."""
