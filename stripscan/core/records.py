@@ -356,6 +356,9 @@ class CurveFigures:
     iso_speed : float or None
         S = 1 mGy / K_S at net density 1.00 (ISO 9236-1), when air kerma per
         step was supplied.
+    relative_speed_percent : float or None
+        Speed relative to a reference speed point, percent faster (+) or
+        slower (-), when a reference was given.
     settings : dict
         The targets used (net densities, mid-density target, rule...).
     notes : tuple of str
@@ -377,6 +380,7 @@ class CurveFigures:
     dd_high_step: int | None
     dd_low_step: int | None
     iso_speed: float | None = None
+    relative_speed_percent: float | None = None
     settings: dict[str, Any] = field(default_factory=dict)
     notes: tuple[str, ...] = ()
 

@@ -1,0 +1,641 @@
+"""Scanner calibration against a reference step tablet, and direct mode.
+
+A flatbed scanner's signal is not light transmitted in a densitometer's
+sense: its sensor is not quite linear, stray light (flare) lifts dense
+areas, and the lamp is uneven.  Scanning a step tablet with certified
+densities under the same settings gives pairs (signal, density); a monotone
+piecewise-cubic (PCHIP) curve through them, in log10 signal, maps any later
+signal to density.
+
+The map is only trusted between the tablet's lightest step and the densest
+step that the scanner still tells apart from its neighbour with an error
+within the accuracy goal (±0.02 OD, the usual expectation of a QC
+densitometer, common practice).  Outside that range a density is still
+computed, by a straight line in log signal, but it is flagged and never
+used silently.
+
+Per-step residuals are leave-one-out: each interior step is predicted from
+a curve fitted without it.  A curve through all points has zero residual
+by construction, so that figure would say nothing.
+"""
+
+from __future__ import annotations
+
+import csv
+import datetime as _dt
+import hashlib
+import io
+import json
+import math
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Sequence
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+
+from .records import StepReading, clean_float
+
+__all__ = [
+    "CalibrationError",
+    "Certificate",
+    "Calibration",
+    "DirectMode",
+    "LateralCorrection",
+    "read_certificate",
+    "parse_certificate",
+    "fit_calibration",
+    "load_calibration",
+    "save_calibration",
+    "fit_lateral",
+    "flat_field",
+    "ACCURACY_GOAL",
+]
+
+#: Accuracy expected of a film-QC densitometer, OD (common practice).
+ACCURACY_GOAL = 0.02
+
+_FORMAT = "stripscan-calibration"
+_FORMAT_VERSION = 1
+
+
+class CalibrationError(ValueError):
+    """A certificate, tablet scan or calibration file cannot be used."""
+
+
+@dataclass(frozen=True)
+class Certificate:
+    """Certified densities of a reference step tablet.
+
+    Attributes
+    ----------
+    steps : tuple of int
+        1, 2, ..., N.
+    densities : tuple of float
+        Certified diffuse transmission density of each step, increasing.
+    uncertainties : tuple of float or None
+        Expanded or standard uncertainty per step as the certificate gives.
+    source : str
+        File the certificate came from.
+    """
+
+    steps: tuple[int, ...]
+    densities: tuple[float, ...]
+    uncertainties: tuple[float, ...] | None = None
+    source: str = ""
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "steps": list(self.steps),
+            "densities": list(self.densities),
+            "uncertainties": list(self.uncertainties) if self.uncertainties else None,
+            "source": self.source,
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "Certificate":
+        unc = data.get("uncertainties")
+        return cls(tuple(data["steps"]), tuple(data["densities"]), tuple(unc) if unc else None, data.get("source", ""))
+
+
+def parse_certificate(text: str, *, source: str = "<certificate>") -> Certificate:
+    """Parse our certificate CSV.
+
+    Format: one row per step, ``step,density`` (optionally a third column
+    ``uncertainty``).  A header row naming the columns, blank lines and
+    lines starting with ``#`` are allowed.  Steps must run 1..N with no gap
+    or repeat; densities must be numbers that increase with the step.
+
+    Raises
+    ------
+    CalibrationError
+        Naming the source and the line at fault.
+    """
+    rows: dict[int, tuple[float, float | None]] = {}
+    has_unc = None
+    reader = csv.reader(io.StringIO(text))
+    for lineno, row in enumerate(reader, start=1):
+        cells = [c.strip() for c in row]
+        if not cells or all(not c for c in cells) or cells[0].startswith("#"):
+            continue
+        if not rows and cells[0].lower() in ("step", "steps", "step number"):
+            continue
+        if len(cells) < 2:
+            raise CalibrationError(f"{source}, line {lineno}: expected 'step,density', got {','.join(cells)!r}")
+        try:
+            step_value = float(cells[0])
+        except ValueError:
+            raise CalibrationError(f"{source}, line {lineno}: step {cells[0]!r} is not a number") from None
+        if step_value != int(step_value) or step_value < 1:
+            raise CalibrationError(f"{source}, line {lineno}: step {cells[0]!r} is not a whole number from 1")
+        step = int(step_value)
+        try:
+            density = float(cells[1])
+        except ValueError:
+            raise CalibrationError(f"{source}, line {lineno}: density {cells[1]!r} is not a number") from None
+        if not math.isfinite(density) or not -0.1 <= density <= 8.0:
+            raise CalibrationError(f"{source}, line {lineno}: density {cells[1]!r} is not a plausible optical density")
+        unc = None
+        if len(cells) > 2 and cells[2]:
+            try:
+                unc = float(cells[2])
+            except ValueError:
+                raise CalibrationError(f"{source}, line {lineno}: uncertainty {cells[2]!r} is not a number") from None
+        if step in rows:
+            raise CalibrationError(f"{source}, line {lineno}: step {step} is listed twice")
+        rows[step] = (density, unc)
+        has_unc = (unc is not None) if has_unc is None else (has_unc and unc is not None)
+    if len(rows) < 3:
+        raise CalibrationError(f"{source}: a certificate needs at least 3 steps, found {len(rows)}")
+    steps = sorted(rows)
+    missing = sorted(set(range(1, steps[-1] + 1)) - set(steps))
+    if missing:
+        raise CalibrationError(f"{source}: steps {', '.join(map(str, missing))} are missing (steps must run 1..N)")
+    densities = [rows[s][0] for s in steps]
+    for prev, step in zip(steps, steps[1:]):
+        if not rows[step][0] > rows[prev][0]:
+            raise CalibrationError(
+                f"{source}: densities must increase with the step; step {step} ({rows[step][0]:g}) "
+                f"is not denser than step {prev} ({rows[prev][0]:g})"
+            )
+    uncertainties = tuple(rows[s][1] for s in steps) if has_unc else None  # type: ignore[misc]
+    return Certificate(tuple(steps), tuple(densities), uncertainties, source)
+
+
+def read_certificate(path: str | os.PathLike[str]) -> Certificate:
+    """Read a certificate CSV file, see :func:`parse_certificate`."""
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise CalibrationError(f"{path}: no such certificate file") from None
+    except UnicodeDecodeError:
+        raise CalibrationError(f"{path}: not a text file (expected CSV 'step,density')") from None
+    except OSError as exc:
+        raise CalibrationError(f"{path}: cannot be read ({exc.strerror})") from None
+    return parse_certificate(text, source=str(path))
+
+
+@dataclass(frozen=True)
+class LateralCorrection:
+    """Across-carriage response of the scanner, OD(x) = c0 + c * x**2.
+
+    ``x`` is the offset from the scanner's midline in mm along ``axis``
+    (``"col"`` for the image's columns).  A flatbed's lamp and optics
+    read a little denser away from the midline (Schoenfeld et al., Phys Med
+    Biol 2016).  The calibration already holds the response at the tablet's
+    place, so only the difference between the two places is corrected.
+
+    Attributes
+    ----------
+    c_per_mm2 : float
+        Curvature, OD per mm^2.
+    midline_px : float
+        Midline position along ``axis``, full-resolution pixels.
+    axis : str
+        ``"col"`` or ``"row"``.
+    """
+
+    c_per_mm2: float
+    midline_px: float
+    axis: str = "col"
+
+    def offset_od(self, position_rc: tuple[float, float], reference_rc: tuple[float, float], pixel_mm: float) -> float:
+        """Extra density read at ``position_rc`` compared with ``reference_rc``."""
+        index = 1 if self.axis == "col" else 0
+        x = (position_rc[index] - self.midline_px) * pixel_mm
+        x_ref = (reference_rc[index] - self.midline_px) * pixel_mm
+        return self.c_per_mm2 * (x * x - x_ref * x_ref)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"c_per_mm2": self.c_per_mm2, "midline_px": self.midline_px, "axis": self.axis}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "LateralCorrection":
+        return cls(float(data["c_per_mm2"]), float(data["midline_px"]), str(data.get("axis", "col")))
+
+
+def fit_lateral(
+    blank: np.ndarray, *, pixel_mm: float, axis: str = "col", midline_px: float | None = None
+) -> LateralCorrection:
+    """Fit OD(x) = c0 + c x**2 to a uniform scan (open platen or uniform film).
+
+    Parameters
+    ----------
+    blank : ndarray, shape (rows, cols)
+        Linear signal of a uniform scan.
+    pixel_mm : float
+        Pixel pitch, mm.
+    axis : {"col", "row"}
+        Across-carriage axis of the image.
+    midline_px : float, optional
+        Scanner midline; the image centre along ``axis`` by default.
+    """
+    if axis not in ("col", "row"):
+        raise ValueError("axis must be 'col' or 'row'")
+    profile = np.median(blank, axis=0 if axis == "col" else 1).astype(np.float64)
+    if np.any(profile <= 0):
+        raise CalibrationError("the uniform scan has dark columns; cannot fit a lateral response")
+    od = -np.log10(profile)
+    mid = (len(profile) - 1) / 2.0 if midline_px is None else float(midline_px)
+    x = (np.arange(len(profile)) - mid) * pixel_mm
+    design = np.column_stack((np.ones_like(x), x * x))
+    (c0, c), *_ = np.linalg.lstsq(design, od, rcond=None)
+    return LateralCorrection(float(c), mid, axis)
+
+
+def flat_field(signal: np.ndarray, blank: np.ndarray, *, sigma_px: float = 8.0) -> np.ndarray:
+    """Divide a scan by a smoothed, normalised blank-platen scan of the same size.
+
+    Corrects lamp and sensor unevenness pixel by pixel; the blank is smoothed
+    so that its noise is not printed onto the scan.
+    """
+    from scipy.ndimage import gaussian_filter
+
+    if blank.shape != signal.shape:
+        raise CalibrationError(
+            f"the flat-field scan is {blank.shape[1]} x {blank.shape[0]} pixels but the scan is "
+            f"{signal.shape[1]} x {signal.shape[0]}; scan both with the same area and resolution"
+        )
+    smooth = gaussian_filter(blank.astype(np.float32), sigma_px)
+    level = float(np.median(smooth))
+    if level <= 0:
+        raise CalibrationError("the flat-field scan is dark; scan the open platen")
+    gain = np.clip(smooth / level, 0.05, None)
+    return (signal / gain).astype(np.float32)
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """A fitted signal-to-density map with its provenance.
+
+    Attributes
+    ----------
+    log_signal : tuple of float
+        Knots: log10 of the tablet steps' signals, increasing.
+    od : tuple of float
+        Certified densities at the knots (decreasing).
+    valid_od : tuple of float
+        (lowest, highest) density read within the accuracy goal.
+    covered_od : tuple of float
+        (lowest, highest) certified density used in the fit.
+    residuals : tuple of (float or None)
+        Leave-one-out residual per used step (predicted - certified); None
+        for the two end steps.
+    excluded_steps : tuple of int
+        Certificate steps not used (saturated or not distinguishable).
+    rms_residual : float or None
+    certificate : Certificate
+    readings : tuple of dict
+        Tablet step readings (signal, sd, pixels) as read.
+    scan_sha256, scan_path : str
+        The tablet scan.
+    created : str
+        ISO date-time (UTC) of the fit.
+    bits, channel, decoding : as the tablet scan was loaded
+    dpi : float or None
+    tablet_center_rc : tuple of float
+        Where the tablet lay, for the lateral correction.
+    lateral : LateralCorrection or None
+    flat_field_sha256 : str or None
+    note : str
+    """
+
+    log_signal: tuple[float, ...]
+    od: tuple[float, ...]
+    valid_od: tuple[float, float]
+    covered_od: tuple[float, float]
+    residuals: tuple[float | None, ...]
+    excluded_steps: tuple[int, ...]
+    rms_residual: float | None
+    certificate: Certificate
+    readings: tuple[dict[str, Any], ...]
+    scan_sha256: str
+    scan_path: str
+    created: str
+    bits: int
+    channel: str
+    decoding: str
+    dpi: float | None
+    tablet_center_rc: tuple[float, float]
+    lateral: LateralCorrection | None = None
+    flat_field_sha256: str | None = None
+    note: str = ""
+    _interp: Any = field(default=None, compare=False, repr=False)
+
+    def __post_init__(self) -> None:
+        interp = PchipInterpolator(np.asarray(self.log_signal), np.asarray(self.od), extrapolate=False)
+        object.__setattr__(self, "_interp", interp)
+
+    # -- using the map ---------------------------------------------------
+    def density(self, signal: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+        """Density for linear signal(s), and whether each lies in the valid range.
+
+        Outside the fitted signals the density is extended along the end
+        slopes (straight lines in log signal) and flagged out of range.
+
+        Returns
+        -------
+        od : ndarray of float
+        in_range : ndarray of bool
+        """
+        s = np.atleast_1d(np.asarray(signal, dtype=np.float64))
+        x = np.log10(np.clip(s, 1e-9, None))
+        knots_x = np.asarray(self.log_signal)
+        knots_od = np.asarray(self.od)
+        od = self._interp(x)
+        low = x < knots_x[0]
+        high = x > knots_x[-1]
+        slope_dense = (knots_od[1] - knots_od[0]) / (knots_x[1] - knots_x[0])
+        slope_light = (knots_od[-1] - knots_od[-2]) / (knots_x[-1] - knots_x[-2])
+        od = np.where(low, knots_od[0] + slope_dense * (x - knots_x[0]), od)
+        od = np.where(high, knots_od[-1] + slope_light * (x - knots_x[-1]), od)
+        od = np.where(np.isfinite(s), od, np.nan)
+        lo, hi = self.valid_od
+        tol = 1e-9
+        in_range = np.isfinite(od) & (od >= lo - tol) & (od <= hi + tol)
+        return od, in_range
+
+    def slope(self, signal: float) -> float:
+        """|dOD / dlog10 signal| at ``signal`` (1 for an ideal linear scanner)."""
+        x = math.log10(max(signal, 1e-9))
+        knots_x = np.asarray(self.log_signal)
+        x = float(np.clip(x, knots_x[0], knots_x[-1]))
+        return abs(float(self._interp.derivative()(x)))
+
+    def summary(self) -> dict[str, Any]:
+        """The few fields every result carries about its calibration."""
+        return {
+            "sha256": self.sha256,
+            "od_min": clean_float(self.valid_od[0], 4),
+            "od_max": clean_float(self.valid_od[1], 4),
+            "covered_od": [clean_float(v, 4) for v in self.covered_od],
+            "rms_residual": clean_float(self.rms_residual, 5),
+            "created": self.created,
+            "bits": self.bits,
+            "tablet_scan_sha256": self.scan_sha256,
+            "mode": "tablet",
+        }
+
+    # -- serialisation ---------------------------------------------------
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "format": _FORMAT,
+            "format_version": _FORMAT_VERSION,
+            "log_signal": list(self.log_signal),
+            "od": list(self.od),
+            "valid_od": list(self.valid_od),
+            "covered_od": list(self.covered_od),
+            "residuals": list(self.residuals),
+            "excluded_steps": list(self.excluded_steps),
+            "rms_residual": self.rms_residual,
+            "certificate": self.certificate.to_dict(),
+            "readings": list(self.readings),
+            "scan_sha256": self.scan_sha256,
+            "scan_path": self.scan_path,
+            "created": self.created,
+            "bits": self.bits,
+            "channel": self.channel,
+            "decoding": self.decoding,
+            "dpi": self.dpi,
+            "tablet_center_rc": list(self.tablet_center_rc),
+            "lateral": self.lateral.to_dict() if self.lateral else None,
+            "flat_field_sha256": self.flat_field_sha256,
+            "note": self.note,
+        }
+
+    @property
+    def sha256(self) -> str:
+        """Content hash of the calibration (canonical JSON)."""
+        text = json.dumps(self.to_dict(), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any], *, source: str = "<calibration>") -> "Calibration":
+        if data.get("format") != _FORMAT:
+            raise CalibrationError(f"{source}: not a stripscan calibration file")
+        if int(data.get("format_version", 0)) > _FORMAT_VERSION:
+            raise CalibrationError(f"{source}: made by a newer stripscan (format {data['format_version']})")
+        try:
+            return cls(
+                log_signal=tuple(float(v) for v in data["log_signal"]),
+                od=tuple(float(v) for v in data["od"]),
+                valid_od=(float(data["valid_od"][0]), float(data["valid_od"][1])),
+                covered_od=(float(data["covered_od"][0]), float(data["covered_od"][1])),
+                residuals=tuple(None if r is None else float(r) for r in data["residuals"]),
+                excluded_steps=tuple(int(s) for s in data["excluded_steps"]),
+                rms_residual=None if data["rms_residual"] is None else float(data["rms_residual"]),
+                certificate=Certificate.from_dict(data["certificate"]),
+                readings=tuple(data["readings"]),
+                scan_sha256=str(data["scan_sha256"]),
+                scan_path=str(data["scan_path"]),
+                created=str(data["created"]),
+                bits=int(data["bits"]),
+                channel=str(data["channel"]),
+                decoding=str(data["decoding"]),
+                dpi=None if data["dpi"] is None else float(data["dpi"]),
+                tablet_center_rc=(float(data["tablet_center_rc"][0]), float(data["tablet_center_rc"][1])),
+                lateral=LateralCorrection.from_dict(data["lateral"]) if data.get("lateral") else None,
+                flat_field_sha256=data.get("flat_field_sha256"),
+                note=str(data.get("note", "")),
+            )
+        except (KeyError, TypeError, ValueError, IndexError) as exc:
+            raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None
+
+
+def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> None:
+    """Write a calibration as JSON, atomically (never half written)."""
+    path = Path(path)
+    tmp = path.with_name(path.name + ".partial")
+    try:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            json.dump(calibration.to_dict(), fh, indent=1)
+            fh.write("\n")
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise CalibrationError(f"{path}: cannot write the calibration ({exc.strerror or exc})") from None
+
+
+def load_calibration(path: str | os.PathLike[str]) -> Calibration:
+    """Read a calibration JSON file."""
+    path = Path(path)
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise CalibrationError(f"{path}: no such calibration file") from None
+    except (UnicodeDecodeError, json.JSONDecodeError):
+        raise CalibrationError(f"{path}: not a calibration file (invalid JSON)") from None
+    except OSError as exc:
+        raise CalibrationError(f"{path}: cannot be read ({exc.strerror})") from None
+    if not isinstance(data, dict):
+        raise CalibrationError(f"{path}: not a stripscan calibration file")
+    return Calibration.from_dict(data, source=str(path))
+
+
+def _loo_residuals(x: np.ndarray, od: np.ndarray) -> list[float | None]:
+    """Leave-one-out residuals of a PCHIP curve; None for the end points."""
+    out: list[float | None] = [None]
+    for i in range(1, len(x) - 1):
+        keep = np.ones(len(x), dtype=bool)
+        keep[i] = False
+        predicted = float(PchipInterpolator(x[keep], od[keep])(x[i]))
+        out.append(predicted - float(od[i]))
+    out.append(None)
+    return out
+
+
+def fit_calibration(
+    readings: Sequence[StepReading],
+    certificate: Certificate,
+    *,
+    scan_sha256: str,
+    scan_path: str,
+    bits: int,
+    channel: str,
+    decoding: str,
+    dpi: float | None,
+    tablet_center_rc: tuple[float, float],
+    lateral: LateralCorrection | None = None,
+    flat_field_sha256: str | None = None,
+    note: str = "",
+    accuracy: float = ACCURACY_GOAL,
+    max_saturated: float = 0.01,
+    created: str | None = None,
+) -> Calibration:
+    """Fit the signal-to-density map from a tablet's step readings.
+
+    Parameters
+    ----------
+    readings : sequence of StepReading
+        One per certificate step, step 1 (lightest) first.
+    certificate : Certificate
+    accuracy : float
+        Accuracy goal, OD; the valid range ends before the first step whose
+        leave-one-out residual exceeds it.
+    max_saturated : float
+        Largest fraction of saturated pixels a usable step may have.
+    Other parameters record provenance.
+
+    Raises
+    ------
+    CalibrationError
+        When the readings and certificate do not match, or fewer than four
+        steps are usable.
+    """
+    if len(readings) != len(certificate.densities):
+        raise CalibrationError(
+            f"the tablet shows {len(readings)} steps but the certificate lists {len(certificate.densities)}"
+        )
+    signal = np.array([r.signal for r in readings], dtype=np.float64)
+    sem = np.array([r.signal_sd / math.sqrt(max(r.pixels, 1)) for r in readings], dtype=np.float64)
+    cert = np.asarray(certificate.densities, dtype=np.float64)
+    usable = [0]
+    excluded: list[int] = []
+    if not np.isfinite(signal[0]) or signal[0] <= 0 or readings[0].saturated_fraction > max_saturated:
+        raise CalibrationError("the tablet's lightest step cannot be read (off the scan or saturated)")
+    for i in range(1, len(signal)):
+        prev = usable[-1]
+        ok = np.isfinite(signal[i]) and signal[i] > 0 and readings[i].saturated_fraction <= max_saturated
+        # The signal must fall clearly, both against noise and by a relative
+        # margin that a flare-capped or clipped scanner no longer reaches.
+        margin = max(4.0 * math.hypot(sem[i], sem[prev]), 0.002 * signal[prev])
+        if ok and signal[prev] - signal[i] > margin:
+            usable.append(i)
+        else:
+            excluded.extend(range(i + 1, len(signal) + 1))
+            break
+    if len(usable) < 4:
+        raise CalibrationError(
+            f"only {len(usable)} tablet steps give distinct signals; check the scan settings "
+            "(16-bit linear, automatic corrections off)"
+        )
+    x = np.log10(signal[usable])[::-1]
+    od = cert[usable][::-1]
+    residuals_asc = _loo_residuals(x, od)
+    residuals = residuals_asc[::-1]  # back to step order
+    used_cert = cert[usable]
+    # Valid range: from the lightest step up to the last step before the
+    # leave-one-out error first exceeds the goal.
+    valid_hi_index = len(usable) - 1
+    for k, res in enumerate(residuals):
+        if res is not None and abs(res) > accuracy:
+            valid_hi_index = max(0, k - 1)
+            break
+    valid = (float(used_cert[0]), float(used_cert[valid_hi_index]))
+    interior = [r for r in residuals if r is not None]
+    rms = float(np.sqrt(np.mean(np.square(interior)))) if interior else None
+    return Calibration(
+        log_signal=tuple(float(v) for v in x),
+        od=tuple(float(v) for v in od),
+        valid_od=valid,
+        covered_od=(float(used_cert[0]), float(used_cert[-1])),
+        residuals=tuple(residuals),
+        excluded_steps=tuple(excluded),
+        rms_residual=rms,
+        certificate=certificate,
+        readings=tuple(
+            {"step": r.step, "signal": clean_float(r.signal), "signal_sd": clean_float(r.signal_sd), "pixels": r.pixels}
+            for r in readings
+        ),
+        scan_sha256=scan_sha256,
+        scan_path=scan_path,
+        created=created or _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
+        bits=bits,
+        channel=channel,
+        decoding=decoding,
+        dpi=dpi,
+        tablet_center_rc=tablet_center_rc,
+        lateral=lateral,
+        flat_field_sha256=flat_field_sha256,
+        note=note,
+    )
+
+
+@dataclass(frozen=True)
+class DirectMode:
+    """Uncalibrated densities, OD = log10((I0 - dark) / (I - dark)).
+
+    Only meaningful for linear 16-bit scans with every automatic correction
+    off; every result made with it says it is uncalibrated.
+
+    Attributes
+    ----------
+    i0 : float
+        Signal of unattenuated light (open platen or a clear area), 0..1.
+    dark : float
+        Signal with no light (the scanner's dark level), 0..1.
+    floor_sd : float
+        Noise of one pixel near dark; a step whose mean signal is within a
+        few of these of the dark level is out of range.
+    """
+
+    i0: float
+    dark: float = 0.0
+    floor_sd: float = 0.0
+
+    def density(self, signal: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+        s = np.atleast_1d(np.asarray(signal, dtype=np.float64))
+        net = s - self.dark
+        light = self.i0 - self.dark
+        floor = max(5.0 * self.floor_sd, 1e-5)
+        od = np.log10(light / np.clip(net, 1e-9, None))
+        in_range = np.isfinite(s) & (net > floor) & (s < self.i0 * 1.05)
+        return np.where(np.isfinite(s), od, np.nan), in_range
+
+    def slope(self, signal: float) -> float:
+        net = max(signal - self.dark, 1e-9)
+        return signal / net
+
+    def summary(self) -> dict[str, Any]:
+        return {
+            "sha256": None,
+            "od_min": None,
+            "od_max": None,
+            "mode": "direct",
+            "i0": clean_float(self.i0, 6),
+            "dark": clean_float(self.dark, 6),
+        }

@@ -1,0 +1,457 @@
+"""Finding strips and step tablets on a scan, and their steps.
+
+The search runs on a reduced copy of the scan (about 0.25 mm per pixel),
+which is plenty to place steps several millimetres long; the readings are
+then taken from the full-resolution image (:mod:`stripscan.core.sample`).
+
+Method, per piece of film:
+
+1. Film is found as connected areas denser than the open platen.
+2. The long axis comes from the principal axes of the area's pixels.
+3. The piece is resampled into its own frame; the step band is the part of
+   the width where density changes along the length, the rest is
+   unexposed film (base+fog).
+4. Along the band the density profile is a staircase.  Its dense end is
+   the strongest falling edge; the step pitch is the spacing that puts comb
+   teeth on the rising step edges and not between them.
+5. The step count is given, or counted from the visible edges and, when
+   close, taken as one of the common tablet counts (21 or 11): the
+   lightest steps of a strip often sit at base+fog and show no edge.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import ndimage
+
+from .records import StripGeometry
+
+__all__ = ["LocateError", "LocateOptions", "FoundStrip", "locate_strips", "geometry_from_outline", "working_factor"]
+
+COMMON_STEP_COUNTS = (21, 11)
+
+
+class LocateError(ValueError):
+    """No usable strip could be found."""
+
+
+@dataclass(frozen=True)
+class LocateOptions:
+    """Settings of the strip search.
+
+    Attributes
+    ----------
+    n_steps : int or None
+        Fixed step count; None to count.
+    working_mm : float
+        Pixel size of the reduced search image, mm.
+    film_threshold : float
+        Density above the open platen that counts as film.
+    min_pitch_mm, max_pitch_mm : float
+        Plausible step lengths, mm.
+    full_width_band : bool
+        True for step tablets: the steps fill the whole width and there is
+        no unexposed film beside them.
+    inner_fraction : float
+        Centred fraction of each step's length and width that is sampled.
+    """
+
+    n_steps: int | None = None
+    working_mm: float = 0.25
+    film_threshold: float = 0.03
+    min_pitch_mm: float = 2.0
+    max_pitch_mm: float = 40.0
+    full_width_band: bool = False
+    inner_fraction: float = 0.6
+
+
+@dataclass(frozen=True)
+class FoundStrip:
+    """A located strip: its geometry and what the search noticed."""
+
+    geometry: StripGeometry
+    warnings: tuple[str, ...]
+    touches_edge: bool
+
+
+def working_factor(shape: tuple[int, int], dpi: float | None, working_mm: float) -> int:
+    """Integer reduction factor that brings pixels near ``working_mm``."""
+    if dpi:
+        factor = dpi * working_mm / 25.4
+    else:
+        # Without a resolution, assume the scan spans a flatbed's ~200 mm.
+        factor = max(shape) / (200.0 / working_mm)
+    return max(1, int(round(factor)))
+
+
+def _reduce(signal: np.ndarray, factor: int) -> np.ndarray:
+    """Block mean by ``factor`` (edges cropped), float32."""
+    if factor == 1:
+        return signal.astype(np.float32, copy=False)
+    rows, cols = (signal.shape[0] // factor) * factor, (signal.shape[1] // factor) * factor
+    view = signal[:rows, :cols].reshape(rows // factor, factor, cols // factor, factor)
+    return view.mean(axis=(1, 3), dtype=np.float32)
+
+
+def _platen_level(working: np.ndarray) -> float:
+    """Signal of the open platen: the bright end of the histogram."""
+    level = float(np.percentile(working, 99.0))
+    return level if level > 0 else 1.0
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """Half-open index runs where a 1-D boolean mask is True."""
+    padded = np.concatenate(([False], mask, [False]))
+    edges = np.flatnonzero(np.diff(padded.astype(np.int8)))
+    return list(zip(edges[::2], edges[1::2]))
+
+
+def _parabolic_peak(values: np.ndarray, index: int) -> float:
+    """Sub-sample position of a peak at ``index`` by a parabola through three samples."""
+    if index <= 0 or index >= len(values) - 1:
+        return float(index)
+    a, b, c = values[index - 1], values[index], values[index + 1]
+    denom = a - 2 * b + c
+    return float(index) if denom == 0 else float(index + 0.5 * (a - c) / denom)
+
+
+def _comb_pitch(rising: np.ndarray, end: float, start: float, lo: float, hi: float) -> tuple[float, float]:
+    """Step pitch and refined end from a comb fitted to the rising edges.
+
+    ``rising`` is the positive part of the profile's derivative, indexed by
+    working pixel along the strip with density growing with the index;
+    ``end`` is the dense end's falling edge.  Teeth sit at ``end - j * P``;
+    the score subtracts the signal half a pitch away, so that half and
+    double the true pitch score near zero.
+    """
+    x = np.arange(len(rising), dtype=np.float64)
+
+    def score(pitch: np.ndarray, anchor: float) -> np.ndarray:
+        # Mean over teeth, not sum: half the true pitch would otherwise tie
+        # with it (its extra teeth land on flat steps and cost nothing).
+        total = np.zeros_like(pitch)
+        teeth_count = np.zeros_like(pitch)
+        max_teeth = int((anchor - start) / pitch.min()) + 2
+        for j in range(1, max_teeth + 1):
+            teeth = anchor - j * pitch
+            valid = teeth >= start - 0.5 * pitch
+            on = np.interp(teeth, x, rising, left=0.0, right=0.0)
+            off = np.interp(teeth + 0.5 * pitch, x, rising, left=0.0, right=0.0)
+            total += np.where(valid, on - off, 0.0)
+            teeth_count += valid
+        return total / np.maximum(teeth_count, 1.0)
+
+    hi = max(hi, lo + 1.0)
+    # Any multiple of the pitch also puts every tooth on an edge, so the
+    # comb only refines; the pitch itself is the first strong peak of the
+    # edges' autocorrelation (half the pitch has no peak at all).
+    segment = rising[max(0, int(start)) : int(end) + 3]
+    lags = np.arange(len(segment))
+    acf = np.correlate(segment, segment, mode="full")[len(segment) - 1 :]
+    window = (lags >= lo) & (lags <= min(hi, len(segment) - 2))
+    if not window.any():
+        raise ValueError("the strip is too short for its step pitch")
+    strongest = acf[window].max()
+    peaks = [
+        k for k in lags[window]
+        if acf[k] >= acf[k - 1] and acf[k] >= acf[k + 1] and acf[k] >= 0.5 * strongest
+    ]
+    guess = _parabolic_peak(acf, int(peaks[0])) if peaks else float(lags[window][np.argmax(acf[window])])
+    coarse = np.arange(max(lo, 0.9 * guess), min(hi, 1.1 * guess) + 0.1, 0.05)
+    best = float(coarse[np.argmax(score(coarse, end))])
+    fine = np.arange(best - 0.1, best + 0.1, 0.005)
+    best_anchor, best_pitch, best_value = end, best, -np.inf
+    for anchor in np.arange(end - 0.6, end + 0.61, 0.1):
+        values = score(fine, anchor)
+        k = int(np.argmax(values))
+        if values[k] > best_value:
+            best_anchor, best_pitch, best_value = float(anchor), float(fine[k]), float(values[k])
+    return best_pitch, best_anchor
+
+
+def _choose_count(visible: int, room: float, fixed: int | None) -> tuple[int, list[str]]:
+    """Step count from the visibly distinct steps and the room on the film."""
+    notes: list[str] = []
+    if fixed is not None:
+        return fixed, notes
+    count = visible
+    # The lightest steps of a strip often sit at base+fog and show no edge;
+    # when the film has room for them, take the nearest common count above.
+    for common in sorted(COMMON_STEP_COUNTS):
+        if 0.6 * common <= visible <= common and common <= room + 0.5:
+            count = common
+            break
+    if count != visible:
+        notes.append(
+            f"{visible} steps are distinct; taken as a {count}-step strip with the lightest "
+            "steps at base+fog (set the step count if this is wrong)"
+        )
+    return count, notes
+
+
+def _piece_geometry(
+    dens: np.ndarray,
+    coords: np.ndarray,
+    factor: int,
+    opts: LocateOptions,
+    pixel_mm: float,
+) -> tuple[StripGeometry, list[str]]:
+    """Geometry of one piece of film in full-resolution pixels."""
+    notes: list[str] = []
+    centre = coords.mean(axis=0)
+    cov = np.cov((coords - centre).T)
+    evals, evecs = np.linalg.eigh(cov)
+    e1 = evecs[:, np.argmax(evals)]
+    e2 = np.array([-e1[1], e1[0]])
+    u = (coords - centre) @ e1
+    v = (coords - centre) @ e2
+    pad = 3.0
+    u_grid = np.arange(u.min() - pad, u.max() + pad + 1.0)
+    v_grid = np.arange(v.min() - 1.0, v.max() + 2.0)
+    uu, vv = np.meshgrid(u_grid, v_grid)
+    rows = centre[0] + uu * e1[0] + vv * e2[0]
+    cols = centre[1] + uu * e1[1] + vv * e2[1]
+    rect = ndimage.map_coordinates(dens, [rows, cols], order=1, mode="nearest")
+
+    # Along-strip extent of the film piece in the rectified frame.
+    u_lo, u_hi = u.min() - u_grid[0], u.max() - u_grid[0]
+    core = slice(int(u_lo + 0.08 * (u_hi - u_lo)), int(u_hi - 0.08 * (u_hi - u_lo)) + 1)
+    v_lo, v_hi = v.min() - v_grid[0], v.max() - v_grid[0]
+
+    # The step band: where density varies along the strip.
+    spread = rect[:, core].std(axis=1)
+    inside = (np.arange(len(v_grid)) >= v_lo) & (np.arange(len(v_grid)) <= v_hi)
+    if opts.full_width_band:
+        band = (v_lo + 0.5, v_hi + 0.5)
+    else:
+        level = 0.5 * spread[inside].max()
+        runs = [r for r in _runs((spread > level) & inside)]
+        b0, b1 = max(runs, key=lambda r: r[1] - r[0])
+        band = (float(b0), float(b1))
+    band_mid = 0.5 * (band[0] + band[1])
+    half = 0.5 * (band[1] - band[0])
+    inner = slice(int(round(band_mid - 0.6 * half)), int(round(band_mid + 0.6 * half)) + 1)
+    profile = np.median(rect[inner, :], axis=0)
+
+    # Dense end: density grows towards it.
+    span = slice(int(u_lo), int(u_hi) + 1)
+    seg = profile[span]
+    quarter = max(1, len(seg) // 4)
+    direction = 1 if seg[-quarter:].mean() >= seg[:quarter].mean() else -1
+    if direction < 0:
+        profile = profile[::-1]
+        u_lo, u_hi = len(profile) - 1 - u_hi, len(profile) - 1 - u_lo
+    smooth = ndimage.gaussian_filter1d(profile.astype(np.float64), 1.0)
+    grad = np.gradient(smooth)
+    end_index = int(np.argmin(grad))
+    end = _parabolic_peak(-grad, end_index)
+    rising = np.clip(grad, 0.0, None)
+
+    lo = opts.min_pitch_mm / pixel_mm
+    hi = min(opts.max_pitch_mm / pixel_mm, max(lo + 2.0, (end - u_lo) / 4.0))
+    pitch, end = _comb_pitch(rising, end, u_lo, lo, hi)
+
+    noise = 1.4826 * np.median(np.abs(grad - np.median(grad))) + 1e-6
+    room = (end - u_lo) / pitch
+    # Visible steps: up to the lightest clear step edge.  Flat runs (the
+    # shoulder near Dmax, the toe at base+fog) show no edges, so do not stop
+    # at the first miss; skip the film's own edge against the platen.
+    visible = 1
+    positions = np.arange(len(rising))
+    for j in range(1, int(room) + 2):
+        tooth = end - j * pitch
+        if tooth < u_lo + 0.5 * pitch:
+            break
+        if np.interp(tooth, positions, rising) > 4.0 * noise:
+            visible = j + 1
+    visible = min(visible, max(1, int(round(room))))
+    n_steps, count_notes = _choose_count(visible, room, opts.n_steps)
+    notes += count_notes
+    start = end - n_steps * pitch
+    if start < u_lo - 0.5 * pitch:
+        notes.append(
+            f"{n_steps} steps of {pitch * pixel_mm:.1f} mm do not fit on the film piece; "
+            "the lightest steps may be cut off"
+        )
+
+    # Back to the image: u index in the (possibly reversed) profile -> u coordinate.
+    def u_coord(index: float) -> float:
+        return float(u_grid[0] + (index if direction > 0 else len(u_grid) - 1 - index))
+
+    axis = e1 * direction
+    u_start = u_coord(start)
+    v0, v1 = float(v_grid[0] + band[0] - 0.5), float(v_grid[0] + band[1] - 0.5)
+    # Put v = 0 on the band edge such that the band lies at 0..width along the normal.
+    normal = e2.copy()
+    if np.cross(np.append(axis, 0), np.append(normal, 0))[2] < 0:
+        normal = -normal
+    if np.dot(normal, e2) > 0:
+        v_origin, width = v0, v1 - v0
+    else:
+        v_origin, width = v1, v1 - v0
+    origin_w = centre + u_start * e1 + v_origin * e2
+    # Unexposed film beside the band, on the wider side.
+    side_a = (v.min(), v0)  # towards -e2
+    side_b = (v1, v.max())  # towards +e2
+    base_fog_v = None
+    if not opts.full_width_band:
+        lo_side, hi_side = max((side_a, side_b), key=lambda s: s[1] - s[0])
+        side_width = hi_side - lo_side
+        if side_width * pixel_mm >= 2.0:
+            a = lo_side + 0.2 * side_width
+            b = hi_side - 0.2 * side_width
+            # Express in the new v (along ``normal`` from ``v_origin``).
+            sign = 1.0 if np.dot(normal, e2) > 0 else -1.0
+            va, vb = sorted(((a - v_origin) * sign, (b - v_origin) * sign))
+            base_fog_v = (va * factor, vb * factor)
+        else:
+            notes.append("no unexposed film beside the steps wide enough to read base+fog")
+
+    def to_full(rc: np.ndarray) -> tuple[float, float]:
+        return (float((rc[0] + 0.5) * factor - 0.5), float((rc[1] + 0.5) * factor - 0.5))
+
+    geometry = StripGeometry(
+        origin_rc=to_full(origin_w),
+        axis_rc=(float(axis[0]), float(axis[1])),
+        normal_rc=(float(normal[0]), float(normal[1])),
+        step_pitch_px=float(pitch * factor),
+        n_steps=int(n_steps),
+        band_width_px=float(width * factor),
+        base_fog_v_px=base_fog_v,
+        inner_fraction=opts.inner_fraction,
+    )
+    return geometry, notes
+
+
+def locate_strips(
+    signal: np.ndarray,
+    *,
+    dpi: float | None = None,
+    options: LocateOptions = LocateOptions(),
+) -> list[FoundStrip]:
+    """Find every strip (or step tablet) on a scan.
+
+    Parameters
+    ----------
+    signal : ndarray, shape (rows, cols)
+        Linear signal, 0..1.
+    dpi : float, optional
+        Resolution; without it a flatbed-sized scan is assumed.
+    options : LocateOptions
+
+    Returns
+    -------
+    list of FoundStrip
+        Ordered top to bottom, then left to right, by the strip's centre.
+
+    Raises
+    ------
+    LocateError
+        When no piece of film with steps is found.
+    """
+    factor = working_factor(signal.shape, dpi, options.working_mm)
+    pixel_mm = (25.4 / dpi) * factor if dpi else options.working_mm
+    working = _reduce(signal, factor)
+    platen = _platen_level(working)
+    dens = -np.log10(np.clip(working / platen, 1e-6, None)).astype(np.float32)
+
+    film = dens > options.film_threshold
+    # Dust on the platen and thin hairs are not film; holes in film are.
+    film = ndimage.binary_opening(film, structure=np.ones((3, 3)), iterations=1)
+    film = ndimage.binary_fill_holes(film)
+    labels, count = ndimage.label(film)
+    if count == 0:
+        raise LocateError("no film found on the scan: nothing is denser than the open platen")
+    found: list[tuple[tuple[float, float], FoundStrip]] = []
+    sizes = ndimage.sum_labels(np.ones_like(labels), labels, index=np.arange(1, count + 1))
+    min_area = (10.0 / pixel_mm) * (4.0 / pixel_mm)
+    slices = ndimage.find_objects(labels)
+    for label_id, (size, box) in enumerate(zip(sizes, slices), start=1):
+        if size < min_area:
+            continue
+        rr, cc = np.nonzero(labels[box] == label_id)
+        coords = np.column_stack((rr + box[0].start, cc + box[1].start)).astype(np.float64)
+        touches = (
+            box[0].start == 0 or box[1].start == 0 or box[0].stop == labels.shape[0] or box[1].stop == labels.shape[1]
+        )
+        spans = np.ptp(coords, axis=0)
+        if max(spans) * pixel_mm < 20.0:
+            continue
+        try:
+            geometry, notes = _piece_geometry(dens, coords, factor, options, pixel_mm)
+        except ValueError:
+            continue
+        if touches:
+            notes.append("the film touches the scan's edge; steps may be cut off")
+        found.append((geometry.step_center_rc(1), FoundStrip(geometry, tuple(notes), touches)))
+    if not found:
+        raise LocateError("no strip found on the scan: film was seen but no steps along it")
+    # Rows of strips 20 mm apart read top to bottom, each row left to right.
+    row_px = 20.0 / pixel_mm * factor
+    found.sort(key=lambda item: (round(geometry_centre(item[1].geometry)[0] / row_px), geometry_centre(item[1].geometry)[1]))
+    return [strip for _, strip in found]
+
+
+def geometry_centre(geometry: StripGeometry) -> tuple[float, float]:
+    """Centre (row, col) of the step band, px."""
+    return geometry.point_rc(0.5 * geometry.length_px, 0.5 * geometry.band_width_px)
+
+
+def geometry_from_outline(
+    corners_rc: np.ndarray | list[tuple[float, float]],
+    n_steps: int,
+    *,
+    base_fog_side: float | None = None,
+    inner_fraction: float = 0.6,
+) -> StripGeometry:
+    """Geometry of a strip drawn by hand.
+
+    Parameters
+    ----------
+    corners_rc : array_like, shape (4, 2)
+        Corners (row, col) of the step band: the outer corner of step 1,
+        the far corner along the strip, then the other two in order.
+    n_steps : int
+        Number of steps between the first and second corner.
+    base_fog_side : float, optional
+        Width (px) of unexposed film to sample beyond the band's far side,
+        starting 20 % of that width away from it; None for no base+fog area.
+    """
+    corners = np.asarray(corners_rc, dtype=np.float64)
+    if corners.shape != (4, 2):
+        raise ValueError("an outline needs four (row, col) corners")
+    if n_steps < 2:
+        raise ValueError("a strip needs at least two steps")
+    along = corners[1] - corners[0]
+    across = corners[3] - corners[0]
+    length = float(np.hypot(*along))
+    width = float(np.hypot(*across))
+    if length < 1 or width < 1:
+        raise ValueError("the outline is too small")
+    axis = along / length
+    normal = np.array([-axis[1], axis[0]])
+    if np.dot(normal, across) < 0:
+        normal = -normal
+    bf = None
+    if base_fog_side:
+        bf = (width + 0.2 * base_fog_side, width + 0.8 * base_fog_side)
+    return StripGeometry(
+        origin_rc=(float(corners[0][0]), float(corners[0][1])),
+        axis_rc=(float(axis[0]), float(axis[1])),
+        normal_rc=(float(normal[0]), float(normal[1])),
+        step_pitch_px=length / n_steps,
+        n_steps=int(n_steps),
+        band_width_px=width,
+        base_fog_v_px=bf,
+        inner_fraction=inner_fraction,
+        manual=True,
+    )
+
+
+def with_step_count(geometry: StripGeometry, n_steps: int) -> StripGeometry:
+    """The same band divided into ``n_steps`` equal steps."""
+    if n_steps < 2:
+        raise ValueError("a strip needs at least two steps")
+    return geometry.replace(step_pitch_px=geometry.length_px / n_steps, n_steps=int(n_steps))

@@ -1,0 +1,405 @@
+"""The whole job in two calls: calibrate from a tablet scan, analyse a strip scan.
+
+Both are thin compositions of the stages (load, locate, sample, calibrate,
+figures) so that the command line, the GUI and the archive get identical
+numbers.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, replace
+from typing import Sequence
+
+import numpy as np
+
+from .. import __version__
+from .calibration import (
+    Calibration,
+    CalibrationError,
+    Certificate,
+    DirectMode,
+    LateralCorrection,
+    fit_calibration,
+    flat_field,
+)
+from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
+from .locate import FoundStrip, LocateOptions, locate_strips, with_step_count
+from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
+from .sample import read_strip
+from .scan import Scan, load_scan
+
+__all__ = [
+    "AnalysisError",
+    "AnalysisOptions",
+    "analyze_scan",
+    "analyze_loaded",
+    "calibrate_tablet",
+    "direct_mode_for",
+    "strip_result",
+]
+
+#: Largest fraction of saturated pixels a step may have and still be read.
+MAX_SATURATED = 0.01
+
+
+class AnalysisError(ValueError):
+    """The scan cannot be analysed as asked; the message says why."""
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """Settings of one analysis (they are stored with every result).
+
+    Attributes
+    ----------
+    n_steps : int or None
+        Fixed step count, or None to count.
+    increment : float
+        Log exposure per step (common practice: 0.15 = log10 √2).
+    exposure_table : tuple of float or None
+        Per-step log exposure from the sensitometer instead of ``increment``.
+    air_kerma_ugy : tuple of float or None
+        Air kerma per step in µGy, for ISO speed (X-ray sensitometry).
+    figures : FigureSettings
+    dark : float
+        Dark signal for direct mode, 0..1.
+    """
+
+    n_steps: int | None = None
+    increment: float = DEFAULT_INCREMENT
+    exposure_table: tuple[float, ...] | None = None
+    air_kerma_ugy: tuple[float, ...] | None = None
+    figures: FigureSettings = FigureSettings()
+    dark: float = 0.0
+
+    def to_dict(self) -> dict:
+        return {
+            "n_steps": self.n_steps,
+            "increment": self.increment,
+            "exposure_table": list(self.exposure_table) if self.exposure_table else None,
+            "air_kerma_ugy": list(self.air_kerma_ugy) if self.air_kerma_ugy else None,
+            "figures": self.figures.to_dict(),
+            "dark": self.dark,
+        }
+
+
+def direct_mode_for(scan: Scan, *, dark: float = 0.0) -> DirectMode:
+    """Direct-mode densities for a linear 16-bit scan, I0 from the open platen.
+
+    Raises
+    ------
+    AnalysisError
+        For gamma-encoded or 8-bit scans, where log10(I0/I) means nothing.
+    """
+    info = scan.info
+    if info.bits < 16 or info.decoding != "linear":
+        raise AnalysisError(
+            f"{info.path}: direct mode needs a linear 16-bit scan, this one is {info.bits}-bit "
+            f"{info.decoding}; calibrate with a step tablet (stripscan calibrate) and pass --calibration"
+        )
+    step = max(1, int(math.sqrt(scan.signal.size / 250_000)))
+    sample = scan.signal[::step, ::step]
+    i0 = float(np.percentile(sample, 99.0))
+    if i0 <= dark:
+        raise AnalysisError(f"{info.path}: no open platen or clear area is bright enough to serve as I0")
+    darkest = sample[sample <= np.percentile(sample, 0.5)]
+    floor_sd = float(darkest.std()) if darkest.size > 1 else 0.0
+    return DirectMode(i0=i0, dark=dark, floor_sd=floor_sd)
+
+
+def _check_compatible(scan: Scan, calibration: Calibration) -> list[str]:
+    info = scan.info
+    if info.bits != calibration.bits:
+        raise AnalysisError(
+            f"{info.path}: the scan is {info.bits}-bit but the calibration was made from a "
+            f"{calibration.bits}-bit scan; scan with the same settings or calibrate again"
+        )
+    if info.decoding != calibration.decoding or info.channel != calibration.channel:
+        raise AnalysisError(
+            f"{info.path}: the scan was decoded as {info.decoding}/{info.channel} but the calibration "
+            f"as {calibration.decoding}/{calibration.channel}; use the same settings for both"
+        )
+    warnings = []
+    if info.dpi and calibration.dpi and abs(info.dpi - calibration.dpi) > 0.5:
+        warnings.append(
+            f"the scan is at {info.dpi:g} dpi but the calibration at {calibration.dpi:g} dpi; "
+            "flare and sharpness differ between resolutions"
+        )
+    return warnings
+
+
+def strip_result(
+    index: int,
+    geometry: StripGeometry,
+    readings: Sequence[StepReading],
+    base_fog_reading: StepReading | None,
+    mapping: Calibration | DirectMode,
+    options: AnalysisOptions,
+    *,
+    pixel_mm: float | None,
+    excluded: Sequence[int] = (),
+    notes: Sequence[str] = (),
+) -> StripResult:
+    """Turn one strip's signal readings into densities and figures.
+
+    Parameters
+    ----------
+    index : int
+        1-based strip number on the scan.
+    geometry : StripGeometry
+    readings : sequence of StepReading
+        Step 1 first.
+    base_fog_reading : StepReading or None
+    mapping : Calibration or DirectMode
+    options : AnalysisOptions
+    pixel_mm : float or None
+        Pixel pitch, for the lateral correction.
+    excluded : sequence of int
+        Steps a person excluded.
+    notes : sequence of str
+        Warnings from locating the strip.
+    """
+    warnings = list(notes)
+    log_e = step_log_exposures(geometry.n_steps, options.increment, options.exposure_table)
+    signals = np.array([r.signal for r in readings], dtype=np.float64)
+    od, in_range = mapping.density(signals)
+    cal_sd = mapping.rms_residual if isinstance(mapping, Calibration) and mapping.rms_residual else 0.0
+    lateral: LateralCorrection | None = mapping.lateral if isinstance(mapping, Calibration) else None
+    steps = []
+    saturated_steps, out_steps = [], []
+    for k, reading in enumerate(readings):
+        value = float(od[k])
+        ok = bool(in_range[k])
+        if reading.saturated_fraction > MAX_SATURATED:
+            ok = False
+            saturated_steps.append(reading.step)
+        if lateral is not None and pixel_mm and math.isfinite(value):
+            value -= lateral.offset_od(reading.center_rc, mapping.tablet_center_rc, pixel_mm)  # type: ignore[union-attr]
+        if math.isfinite(reading.signal) and reading.signal > 0 and reading.pixels > 0:
+            rel = reading.signal_sd / math.sqrt(reading.pixels) / (reading.signal * math.log(10.0))
+            sd = math.hypot(mapping.slope(reading.signal) * rel, cal_sd)
+        else:
+            sd = float("nan")
+            ok = False
+        if not ok and reading.step not in saturated_steps:
+            out_steps.append(reading.step)
+        steps.append(
+            StepDensity(
+                step=reading.step,
+                log_exposure=float(log_e[k]),
+                od=value,
+                od_sd=sd,
+                pixels=reading.pixels,
+                in_range=ok,
+                center_rc=reading.center_rc,
+                excluded=reading.step in excluded,
+            )
+        )
+    if saturated_steps:
+        warnings.append(f"steps {_list(saturated_steps)}: the scanner saturates; not used")
+    if out_steps and isinstance(mapping, Calibration):
+        lo, hi = mapping.valid_od
+        warnings.append(
+            f"steps {_list(out_steps)}: outside the calibrated range {lo:.2f}-{hi:.2f} OD; not used"
+        )
+    elif out_steps:
+        warnings.append(f"steps {_list(out_steps)}: at the scanner's dark floor or saturated; not used")
+
+    base_fog = None
+    if base_fog_reading is not None and math.isfinite(base_fog_reading.signal):
+        bf_od, bf_ok = mapping.density(base_fog_reading.signal)
+        value = float(bf_od[0])
+        if lateral is not None and pixel_mm:
+            value -= lateral.offset_od(base_fog_reading.center_rc, mapping.tablet_center_rc, pixel_mm)  # type: ignore[union-attr]
+        if bool(bf_ok[0]) and base_fog_reading.saturated_fraction <= MAX_SATURATED:
+            base_fog = value
+        else:
+            warnings.append(f"base+fog ({value:.2f} OD) is outside the calibrated range; not used")
+    usable = [s.in_range and not s.excluded for s in steps]
+    densest_unusable = any(
+        (not s.in_range) and (not s.excluded) and s.step > max((t.step for t in steps if t.in_range), default=0)
+        for s in steps
+    )
+    figures = compute_figures(
+        log_e,
+        [s.od for s in steps],
+        usable,
+        base_fog=base_fog,
+        settings=options.figures,
+        air_kerma_ugy=options.air_kerma_ugy,
+        beyond_range_denser=densest_unusable,
+    )
+    warnings += list(figures.notes)
+    return StripResult(
+        index=index,
+        geometry=geometry,
+        steps=tuple(steps),
+        base_fog_reading=base_fog_reading,
+        figures=figures,
+        warnings=tuple(warnings),
+    )
+
+
+def _list(steps: Sequence[int]) -> str:
+    return ", ".join(str(s) for s in steps)
+
+
+def analyze_loaded(
+    scan: Scan,
+    *,
+    calibration: Calibration | None = None,
+    options: AnalysisOptions = AnalysisOptions(),
+    geometries: Sequence[StripGeometry] | None = None,
+    excluded: dict[int, Sequence[int]] | None = None,
+) -> Analysis:
+    """Analyse a loaded scan; see :func:`analyze_scan`."""
+    warnings: list[str] = []
+    if calibration is None:
+        mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark)
+        warnings.append(
+            "UNCALIBRATED: densities are log10(I0/I) straight from the scanner (direct mode); "
+            "calibrate against a reference step tablet before trusting them"
+        )
+    else:
+        warnings += _check_compatible(scan, calibration)
+        mapping = calibration
+    if geometries is None:
+        found = locate_strips(
+            scan.signal, dpi=scan.info.dpi, options=LocateOptions(n_steps=options.n_steps)
+        )
+    else:
+        found = [
+            FoundStrip(with_step_count(g, options.n_steps) if options.n_steps else g, (), False)
+            for g in geometries
+        ]
+    strips = []
+    for index, item in enumerate(found, start=1):
+        readings, bf, notes = read_strip(scan.signal, scan.saturated, item.geometry)
+        result = strip_result(
+            index,
+            item.geometry,
+            readings,
+            bf,
+            mapping,
+            options,
+            pixel_mm=scan.info.pixel_mm,
+            excluded=(excluded or {}).get(index, ()),
+            notes=list(item.warnings) + notes,
+        )
+        strips.append(result)
+        warnings += [f"strip {index}: {w}" for w in result.warnings]
+    return Analysis(
+        scan=scan.info,
+        calibration=mapping.summary(),
+        strips=tuple(strips),
+        warnings=tuple(warnings),
+        program_version=__version__,
+        settings=options.to_dict(),
+    )
+
+
+def analyze_scan(
+    path: str | os.PathLike[str],
+    *,
+    calibration: Calibration | None = None,
+    options: AnalysisOptions = AnalysisOptions(),
+    dpi: float | None = None,
+    channel: str = "auto",
+    flat_field_scan: str | os.PathLike[str] | None = None,
+) -> Analysis:
+    """Read every strip on a scan: densities per step, curve figures.
+
+    Parameters
+    ----------
+    path : path-like
+        The scan of processed strips.
+    calibration : Calibration, optional
+        From :func:`calibrate_tablet`; None for uncalibrated direct mode
+        (linear 16-bit scans only; every result says it is uncalibrated).
+    options : AnalysisOptions
+    dpi : float, optional
+        Overrides the file's resolution.
+    channel : str
+        Channel rule, see :func:`stripscan.core.scan.load_scan`.
+    flat_field_scan : path-like, optional
+        Blank-platen scan of the same size to divide by.
+    """
+    scan = load_scan(path, dpi=dpi, channel=channel)
+    if flat_field_scan is not None:
+        scan = _apply_flat_field(scan, flat_field_scan, channel)
+    return analyze_loaded(scan, calibration=calibration, options=options)
+
+
+def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: str) -> Scan:
+    blank = load_scan(blank_path, channel=channel)
+    try:
+        corrected = flat_field(scan.signal, blank.signal)
+    except CalibrationError as exc:
+        raise AnalysisError(f"{blank_path}: {exc}") from None
+    return replace(scan, signal=corrected)
+
+
+def calibrate_tablet(
+    path: str | os.PathLike[str],
+    certificate: Certificate,
+    *,
+    dpi: float | None = None,
+    channel: str = "auto",
+    flat_field_scan: str | os.PathLike[str] | None = None,
+    lateral: LateralCorrection | None = None,
+    note: str = "",
+) -> tuple[Calibration, FoundStrip, list[str]]:
+    """Locate a step tablet on a scan, read it and fit the calibration.
+
+    Returns
+    -------
+    calibration : Calibration
+    tablet : FoundStrip
+        Where the tablet was found (for drawing).
+    warnings : list of str
+    """
+    scan = load_scan(path, dpi=dpi, channel=channel)
+    ff_sha = None
+    if flat_field_scan is not None:
+        scan = _apply_flat_field(scan, flat_field_scan, channel)
+        ff_sha = load_scan(flat_field_scan, channel=channel).info.sha256
+    n = len(certificate.densities)
+    try:
+        found = locate_strips(
+            scan.signal, dpi=scan.info.dpi, options=LocateOptions(n_steps=n, full_width_band=True)
+        )
+    except ValueError as exc:
+        raise CalibrationError(f"{path}: {exc}") from None
+    warnings = []
+    if len(found) > 1:
+        warnings.append(f"{len(found)} pieces found on the tablet scan; the longest is taken as the tablet")
+    tablet = max(found, key=lambda f: f.geometry.length_px)
+    warnings += list(tablet.warnings)
+    readings, _, notes = read_strip(scan.signal, scan.saturated, tablet.geometry)
+    warnings += notes
+    centre = tablet.geometry.point_rc(0.5 * tablet.geometry.length_px, 0.5 * tablet.geometry.band_width_px)
+    try:
+        calibration = fit_calibration(
+            readings,
+            certificate,
+            scan_sha256=scan.info.sha256,
+            scan_path=scan.info.path,
+            bits=scan.info.bits,
+            channel=scan.info.channel,
+            decoding=scan.info.decoding,
+            dpi=scan.info.dpi,
+            tablet_center_rc=centre,
+            lateral=lateral,
+            flat_field_sha256=ff_sha,
+            note=note,
+        )
+    except CalibrationError as exc:
+        raise CalibrationError(f"{path}: {exc}") from None
+    if calibration.excluded_steps:
+        warnings.append(
+            f"tablet steps {_list(calibration.excluded_steps)} are not distinguished by the scanner; "
+            f"the calibration ends at {calibration.covered_od[1]:.2f} OD"
+        )
+    return calibration, tablet, warnings
