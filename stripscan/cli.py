@@ -1,0 +1,307 @@
+"""Command line: ``stripscan calibrate``, ``stripscan analyze`` and friends.
+
+Every subcommand reads files, calls the core and prints; a bad input gives
+one line on stderr and a non-zero exit, and nothing is written.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import sys
+from pathlib import Path
+from typing import Callable, Sequence
+
+from . import CAUTION, __version__
+
+EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
+
+
+class CommandError(Exception):
+    """A user-facing failure: printed as one line, exit status 1."""
+
+
+def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
+    if value is None or (isinstance(value, float) and not math.isfinite(value)):
+        return "not reached"
+    return f"{value:.{digits}f}{unit}"
+
+
+def _write_text_atomic(path: Path, text: str) -> None:
+    tmp = path.with_name(path.name + ".partial")
+    try:
+        tmp.write_text(text, encoding="utf-8")
+        os.replace(tmp, path)
+    except OSError as exc:
+        tmp.unlink(missing_ok=True)
+        raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
+
+
+def _read_exposure_table(path: str) -> tuple[float, ...]:
+    """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
+    try:
+        lines = Path(path).read_text(encoding="utf-8").splitlines()
+    except OSError as exc:
+        raise CommandError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    values = []
+    for lineno, line in enumerate(lines, start=1):
+        text = line.split("#", 1)[0].strip()
+        if not text:
+            continue
+        cell = text.split(",")[-1].strip()
+        try:
+            values.append(float(cell))
+        except ValueError:
+            if not values:  # a header row
+                continue
+            raise CommandError(f"{path}, line {lineno}: {cell!r} is not a number") from None
+    if len(values) < 2:
+        raise CommandError(f"{path}: an exposure table needs one log exposure per step")
+    return tuple(values)
+
+
+def format_analysis(analysis) -> str:
+    """Readable tables, one per strip."""
+    from .core.calibration import ACCURACY_GOAL
+
+    out = []
+    info = analysis.scan
+    dpi = f"{info.dpi:g} dpi" if info.dpi else "unknown dpi"
+    out.append(f"Scan: {info.path}  ({info.width} x {info.height} px, {dpi}, {info.bits}-bit, {info.channel})")
+    cal = analysis.calibration
+    if cal and cal.get("mode") == "tablet":
+        out.append(
+            f"Calibration {cal['sha256'][:12]}: reads within ±{ACCURACY_GOAL:.2f} OD from "
+            f"{cal['od_min']:.2f} to {cal['od_max']:.2f} OD (made {cal['created'][:10]})"
+        )
+    else:
+        out.append("Calibration: NONE (direct mode, uncalibrated log10(I0/I))")
+    for strip in analysis.strips:
+        f = strip.figures
+        out.append("")
+        out.append(f"Strip {strip.index}: {strip.geometry.n_steps} steps, axis {strip.geometry.angle_deg:.1f}°")
+        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}  note")
+        for s in strip.steps:
+            note = "excluded" if s.excluded else ("" if s.in_range else "OUT OF RANGE")
+            od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"
+            sd = f"{s.od_sd:6.3f}" if math.isfinite(s.od_sd) else "     -"
+            out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}  {note}")
+        out.append(f"  base+fog              {_fmt(f.base_fog, 3)}")
+        out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'beyond the calibrated range'}")
+        out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
+        if f.relative_speed_percent is not None:
+            out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
+        low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
+        out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, 2)}")
+        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)} at log E {_fmt(f.gamma_log_exposure, 2)}")
+        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2)} log E")
+        if f.mid_density_step is not None:
+            out.append(f"  mid-density           {_fmt(f.mid_density, 2)} (step {f.mid_density_step})")
+        if f.density_difference is not None:
+            out.append(
+                f"  density difference    {_fmt(f.density_difference, 2)} (step {f.dd_high_step} - step {f.dd_low_step})"
+            )
+        if f.iso_speed is not None:
+            out.append(f"  ISO speed             {f.iso_speed:.0f}")
+        for w in strip.warnings:
+            out.append(f"  ! {w}")
+    top = [w for w in analysis.warnings if not w.startswith("strip ")]
+    if top:
+        out.append("")
+        out += [f"! {w}" for w in top]
+    out.append("")
+    out.append(f"Caution: {CAUTION}")
+    return "\n".join(out)
+
+
+def _analysis_options(args):
+    from .core.curve import FigureSettings
+    from .core.pipeline import AnalysisOptions
+
+    figures = FigureSettings(
+        gradient_low=args.low,
+        gradient_high=args.high,
+        mid_density_target=args.mid_target,
+        dd_high_target=args.dd_high,
+        dd_low_target=args.dd_low,
+        dd_rule=args.dd_rule,
+        reference_speed_log_exposure=args.reference_speed,
+    )
+    table = _read_exposure_table(args.exposures) if args.exposures else None
+    kerma = _read_exposure_table(args.air_kerma) if args.air_kerma else None
+    n_steps = args.steps
+    if table is not None and n_steps is None:
+        n_steps = len(table)
+    return AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table, air_kerma_ugy=kerma, figures=figures)
+
+
+def cmd_analyze(args) -> int:
+    from .core.calibration import load_calibration
+    from .core.pipeline import analyze_scan
+
+    calibration = load_calibration(args.calibration) if args.calibration else None
+    options = _analysis_options(args)
+    analysis = analyze_scan(
+        args.scan, calibration=calibration, options=options, dpi=args.dpi, channel=args.channel,
+        flat_field_scan=args.flat_field,
+    )
+    data = analysis.to_dict()
+    data["caution"] = CAUTION
+    text = json.dumps(data, indent=1, ensure_ascii=False)
+    if args.output:
+        _write_text_atomic(Path(args.output), text + "\n")
+    if args.json:
+        print(text)
+    else:
+        print(format_analysis(analysis))
+    return EXIT_OK
+
+
+def cmd_calibrate(args) -> int:
+    from .core.calibration import ACCURACY_GOAL, read_certificate, save_calibration
+    from .core.pipeline import calibrate_tablet
+
+    certificate = read_certificate(args.densities)
+    calibration, tablet, warnings = calibrate_tablet(
+        args.tablet_scan, certificate, dpi=args.dpi, channel=args.channel, flat_field_scan=args.flat_field,
+        note=args.note or "",
+    )
+    save_calibration(calibration, args.output)
+    print(f"Tablet: {len(certificate.densities)} certified steps, found at axis {tablet.geometry.angle_deg:.1f}°")
+    print(f"  {'step':>4} {'certified':>9} {'signal':>9} {'residual':>9}")
+    used = len(calibration.residuals)
+    for k, (step, density) in enumerate(zip(certificate.steps, certificate.densities)):
+        reading = calibration.readings[k]
+        res = calibration.residuals[k] if k < used else None
+        res_text = f"{res:+9.4f}" if res is not None else ("      end" if k < used else " not used")
+        print(f"  {step:>4} {density:9.3f} {reading['signal'] or float('nan'):9.5f} {res_text}")
+    rms = calibration.rms_residual
+    print(f"Leave-one-out residual RMS: {rms:.4f} OD" if rms is not None else "Leave-one-out residual RMS: n/a")
+    lo, hi = calibration.valid_od
+    print(f"Reads within ±{ACCURACY_GOAL:.2f} OD from {lo:.2f} to {hi:.2f} OD; steps outside are flagged.")
+    for w in warnings:
+        print(f"! {w}")
+    print(f"Saved {args.output}")
+    return EXIT_OK
+
+
+def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--calibration", metavar="CAL.json", help="calibration from 'stripscan calibrate' (none: uncalibrated direct mode)")
+    p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted)")
+    p.add_argument("--increment", type=float, default=0.15, metavar="LOGE", help="log exposure per step (default 0.15 = log10 √2)")
+    p.add_argument("--exposures", metavar="FILE", help="per-step log exposure table from the sensitometer, one per line")
+    p.add_argument("--air-kerma", metavar="FILE", help="per-step air kerma in µGy, one per line (gives ISO speed)")
+    p.add_argument("--low", type=float, default=0.25, help="lower net density for average gradient and latitude (ISO 9236-1: 0.25)")
+    p.add_argument("--high", type=float, default=2.00, help="upper net density (ISO 9236-1: 2.00)")
+    p.add_argument("--mid-target", type=float, default=1.20, help="density the mid-density step is chosen near (1.20)")
+    p.add_argument("--dd-high", type=float, default=2.20, help="high density-difference target (2.20)")
+    p.add_argument("--dd-low", type=float, default=0.45, help="low density-difference target (0.45)")
+    p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen")
+    p.add_argument("--reference-speed", type=float, metavar="LOGE", help="speed point of a reference film, for relative speed")
+
+
+def _add_scan_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--dpi", type=float, help="resolution, overriding the file's tags")
+    p.add_argument("--channel", default="auto", choices=("auto", "mean", "red", "green", "blue", "luminance"),
+                   help="how colour channels become one signal (default: mean of R, G, B)")
+    p.add_argument("--flat-field", metavar="BLANK_SCAN", help="blank-platen scan of the same size to divide by")
+
+
+# Subcommand groups that live beside their own code register here.
+_REGISTRARS: list[str] = [
+    "stripscan.archive.cli",
+    "stripscan.qc_cli",
+    "stripscan.compare_cli",
+    "stripscan.report.cli",
+]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="stripscan",
+        description="Read processed sensitometric film strips off a flatbed scanner.",
+        epilog=f"Caution: {CAUTION}",
+    )
+    parser.add_argument("--version", action="version", version=f"stripscan {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+
+    p = sub.add_parser("analyze", help="read every strip on a scan: densities, curve figures")
+    p.add_argument("scan", help="scan of processed strips (TIFF, PNG or JPEG)")
+    _add_analysis_arguments(p)
+    _add_scan_arguments(p)
+    p.add_argument("--json", action="store_true", help="print the full result as JSON")
+    p.add_argument("-o", "--output", metavar="OUT.json", help="also save the JSON result here")
+    p.set_defaults(func=cmd_analyze)
+
+    p = sub.add_parser("calibrate", help="fit the scanner's signal-to-density map from a step tablet scan")
+    p.add_argument("tablet_scan", help="scan of the reference step tablet")
+    p.add_argument("--densities", required=True, metavar="CERT.csv", help="certified densities: CSV 'step,density'")
+    p.add_argument("-o", "--output", required=True, metavar="CAL.json", help="where to save the calibration")
+    p.add_argument("--note", help="free text kept with the calibration")
+    _add_scan_arguments(p)
+    p.set_defaults(func=cmd_calibrate)
+
+    p = sub.add_parser("demo", help="open the desktop window on the bundled invented scenario")
+    p.add_argument("--folder", help="where to put the demo's archive and files (default: a temporary folder)")
+    p.set_defaults(func=cmd_demo)
+
+    import importlib
+
+    for name in _REGISTRARS:
+        try:
+            module = importlib.import_module(name)
+        except ModuleNotFoundError as exc:
+            if exc.name and name.startswith(exc.name):
+                continue
+            raise
+        module.register(sub)
+    return parser
+
+
+def cmd_demo(args) -> int:
+    try:
+        from .gui.app import run_demo
+    except ModuleNotFoundError as exc:
+        raise CommandError(f"the desktop window is not available ({exc})") from None
+    return run_demo(args.folder)
+
+
+def cmd_gui() -> int:
+    try:
+        from .gui.app import run_gui
+    except ModuleNotFoundError as exc:
+        raise CommandError(f"the desktop window is not available ({exc}); try 'stripscan --help'") from None
+    return run_gui()
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Entry point of the ``stripscan`` command."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    if not argv:
+        try:
+            return cmd_gui()
+        except CommandError as exc:
+            print(f"stripscan: error: {exc}", file=sys.stderr)
+            return EXIT_ERROR
+    args = parser.parse_args(argv)
+    func: Callable | None = getattr(args, "func", None)
+    if func is None:
+        parser.print_help()
+        return EXIT_USAGE
+    try:
+        return int(func(args) or 0)
+    except (CommandError, ValueError, OSError) as exc:
+        # Our errors (ScanError, CalibrationError, LocateError, ...) are
+        # ValueErrors whose message already names the file.
+        print(f"stripscan: error: {exc}", file=sys.stderr)
+        return EXIT_ERROR
+    except KeyboardInterrupt:
+        print("stripscan: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
