@@ -10,7 +10,8 @@ signal to density.
 The map is only trusted between the tablet's lightest step and the densest
 step that the scanner still tells apart from its neighbour with an error
 within the accuracy goal (±0.02 OD, the usual expectation of a QC
-densitometer, common practice).  Outside that range a density is still
+densitometer, common practice): its leave-one-out residual, and twice its
+reading noise carried through the map's slope, must both stay within it.  Outside that range a density is still
 computed, by a straight line in log signal, but it is flagged and never
 used silently.
 
@@ -560,9 +561,14 @@ def fit_calibration(
     used_cert = cert[usable]
     # Valid range: from the lightest step up to the last step before the
     # leave-one-out error first exceeds the goal.
+    # The tablet's own reading noise, carried through the map's slope, must
+    # also leave room for the goal (at k = 2): where the scanner's response
+    # flattens, a tiny signal error becomes a large density error.
+    slopes = np.abs(PchipInterpolator(x, od).derivative()(x))[::-1]
+    noise_od = slopes * sem[usable] / (signal[usable] * math.log(10.0))
     valid_hi_index = len(usable) - 1
     for k, res in enumerate(residuals):
-        if res is not None and abs(res) > accuracy:
+        if (res is not None and abs(res) > accuracy) or 2.0 * noise_od[k] > accuracy:
             valid_hi_index = max(0, k - 1)
             break
     valid = (float(used_cert[0]), float(used_cert[valid_hi_index]))

@@ -16,6 +16,7 @@ import numpy as np
 
 from .. import __version__
 from .calibration import (
+    ACCURACY_GOAL,
     Calibration,
     CalibrationError,
     Certificate,
@@ -168,7 +169,7 @@ def strip_result(
     cal_sd = mapping.rms_residual if isinstance(mapping, Calibration) and mapping.rms_residual else 0.0
     lateral: LateralCorrection | None = mapping.lateral if isinstance(mapping, Calibration) else None
     steps = []
-    saturated_steps, out_steps = [], []
+    saturated_steps, out_steps, noisy_steps = [], [], []
     for k, reading in enumerate(readings):
         value = float(od[k])
         ok = bool(in_range[k])
@@ -183,7 +184,11 @@ def strip_result(
         else:
             sd = float("nan")
             ok = False
-        if not ok and reading.step not in saturated_steps:
+        if ok and 2.0 * sd > ACCURACY_GOAL:
+            # In range, but too noisy to claim the goal at k = 2.
+            ok = False
+            noisy_steps.append(reading.step)
+        elif not ok and reading.step not in saturated_steps:
             out_steps.append(reading.step)
         steps.append(
             StepDensity(
@@ -198,14 +203,18 @@ def strip_result(
             )
         )
     if saturated_steps:
-        warnings.append(f"steps {_list(saturated_steps)}: the scanner saturates; not used")
+        warnings.append(f"{_list(saturated_steps)}: the scanner saturates; not used")
     if out_steps and isinstance(mapping, Calibration):
         lo, hi = mapping.valid_od
         warnings.append(
-            f"steps {_list(out_steps)}: outside the calibrated range {lo:.2f}-{hi:.2f} OD; not used"
+            f"{_list(out_steps)}: outside the calibrated range {lo:.2f}-{hi:.2f} OD; not used"
         )
     elif out_steps:
-        warnings.append(f"steps {_list(out_steps)}: at the scanner's dark floor or saturated; not used")
+        warnings.append(f"{_list(out_steps)}: at the scanner's dark floor or saturated; not used")
+    if noisy_steps:
+        warnings.append(
+            f"{_list(noisy_steps)}: reading noise too high to be within ±{ACCURACY_GOAL:.2f} OD; not used"
+        )
 
     base_fog = None
     if base_fog_reading is not None and math.isfinite(base_fog_reading.signal):
@@ -243,7 +252,9 @@ def strip_result(
 
 
 def _list(steps: Sequence[int]) -> str:
-    return ", ".join(str(s) for s in steps)
+    """'step 3' or 'steps 3, 4, 5'."""
+    word = "step" if len(steps) == 1 else "steps"
+    return f"{word} {', '.join(str(s) for s in steps)}"
 
 
 def analyze_loaded(
@@ -399,7 +410,8 @@ def calibrate_tablet(
         raise CalibrationError(f"{path}: {exc}") from None
     if calibration.excluded_steps:
         warnings.append(
-            f"tablet steps {_list(calibration.excluded_steps)} are not distinguished by the scanner; "
+            f"tablet {_list(calibration.excluded_steps)} "
+            f"{'is' if len(calibration.excluded_steps) == 1 else 'are'} not distinguished by the scanner; "
             f"the calibration ends at {calibration.covered_od[1]:.2f} OD"
         )
     return calibration, tablet, warnings

@@ -10,8 +10,6 @@ lines) and hairs are rejected as outliers from a robust centre and spread
 from __future__ import annotations
 
 import numpy as np
-from skimage.draw import polygon
-
 from .records import StepReading, StripGeometry
 
 __all__ = ["robust_mean", "read_area", "read_strip", "box_pixels"]
@@ -51,13 +49,21 @@ def robust_mean(values: np.ndarray, *, cut: float = 4.0) -> tuple[float, float, 
 
 
 def box_pixels(corners_rc: list[tuple[float, float]], shape: tuple[int, int]) -> tuple[np.ndarray, np.ndarray, bool]:
-    """Pixel indices whose centres lie inside a quadrilateral.
+    """Pixel indices whose centres lie inside a parallelogram.
+
+    Parameters
+    ----------
+    corners_rc : sequence of 4 (row, col)
+        Corners in order; the fourth is taken as ``c0 + (c3 - c0)`` so the
+        area spanned is the parallelogram on the edges c0->c1 and c0->c3
+        (every box the strip geometry makes is a rectangle).
+    shape : (rows, cols)
 
     Returns
     -------
     rows, cols : ndarray of int
     clipped : bool
-        True when part of the quadrilateral lies outside the image.
+        True when part of the area lies outside the image.
     """
     corners = np.asarray(corners_rc, dtype=np.float64)
     clipped = bool(
@@ -66,8 +72,24 @@ def box_pixels(corners_rc: list[tuple[float, float]], shape: tuple[int, int]) ->
         or corners[:, 0].max() > shape[0] - 0.5
         or corners[:, 1].max() > shape[1] - 0.5
     )
-    rr, cc = polygon(corners[:, 0], corners[:, 1], shape=shape)
-    return rr, cc, clipped
+    r0 = max(int(np.floor(corners[:, 0].min())), 0)
+    r1 = min(int(np.ceil(corners[:, 0].max())), shape[0] - 1)
+    c0 = max(int(np.floor(corners[:, 1].min())), 0)
+    c1 = min(int(np.ceil(corners[:, 1].max())), shape[1] - 1)
+    if r1 < r0 or c1 < c0:
+        return np.empty(0, dtype=np.intp), np.empty(0, dtype=np.intp), True
+    edges = np.column_stack((corners[1] - corners[0], corners[3] - corners[0]))
+    if abs(np.linalg.det(edges)) < 1e-9:
+        return np.empty(0, dtype=np.intp), np.empty(0, dtype=np.intp), clipped
+    inverse = np.linalg.inv(edges)
+    rr, cc = np.mgrid[r0 : r1 + 1, c0 : c1 + 1]
+    dr = rr - corners[0][0]
+    dc = cc - corners[0][1]
+    # (a, b) are the pixel centre's coordinates along the two edges, 0..1 inside.
+    a = inverse[0, 0] * dr + inverse[0, 1] * dc
+    b = inverse[1, 0] * dr + inverse[1, 1] * dc
+    inside = (a >= 0) & (a < 1) & (b >= 0) & (b < 1)
+    return rr[inside], cc[inside], clipped
 
 
 def read_area(
@@ -127,7 +149,7 @@ def read_strip(
             clipped_steps.append(step)
         steps.append(reading)
     if clipped_steps:
-        warnings.append(f"steps {_step_list(clipped_steps)} run off the scan and are not read")
+        warnings.append(f"{_step_list(clipped_steps)} run off the scan and are not read")
     base_fog = None
     box = geometry.base_fog_box_rc()
     if box is not None:
@@ -141,4 +163,5 @@ def read_strip(
 
 
 def _step_list(steps: list[int]) -> str:
-    return ", ".join(str(s) for s in steps)
+    word = "step" if len(steps) == 1 else "steps"
+    return f"{word} {', '.join(str(s) for s in steps)}"
