@@ -1,0 +1,217 @@
+"""Schema of the lot archive, as a list of forward steps.
+
+The schema version of a file is kept in ``PRAGMA user_version``.  Opening
+an archive applies, in order, every step above the file's version, each in
+its own transaction together with the new ``user_version``, so a file is
+always at exactly one version.
+
+Rules for whoever adds a step
+-----------------------------
+* Never edit a step that has been released: files out there were built by
+  it.  Add a new step instead.
+* A step that adds a column to ``snapshots`` must drop and recreate the
+  ``snapshots_frozen`` trigger with the new column in its list, otherwise
+  the new column would be open to UPDATE.  (A test walks the table's
+  columns to catch this.)
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["Migration", "MIGRATIONS", "LATEST_VERSION", "APPLICATION_ID"]
+
+#: Written to ``PRAGMA application_id`` so a stripscan archive can be told
+#: from any other SQLite file ("SSAR" in ASCII).
+APPLICATION_ID = 0x53534152
+
+
+@dataclass(frozen=True)
+class Migration:
+    """One forward step of the schema: run ``statements`` to go from ``version - 1`` to ``version``."""
+
+    version: int
+    summary: str
+    statements: tuple[str, ...]
+
+
+_V1 = (
+    """CREATE TABLE film_types (
+        name TEXT PRIMARY KEY NOT NULL CHECK (length(trim(name)) > 0),
+        description TEXT NOT NULL DEFAULT ''
+    )""",
+    """CREATE TABLE emulsion_lots (
+        lot_id TEXT PRIMARY KEY NOT NULL CHECK (length(trim(lot_id)) > 0),
+        film_type TEXT REFERENCES film_types(name),
+        expiry_date TEXT CHECK (expiry_date IS NULL OR date(expiry_date) IS expiry_date),
+        received_date TEXT CHECK (received_date IS NULL OR date(received_date) IS received_date),
+        notes TEXT NOT NULL DEFAULT ''
+    )""",
+    """CREATE TABLE processors (
+        name TEXT PRIMARY KEY NOT NULL CHECK (length(trim(name)) > 0),
+        place TEXT NOT NULL DEFAULT '',
+        chemistry TEXT NOT NULL DEFAULT '',
+        developer_temperature_c REAL,
+        cycle_time_s REAL,
+        notes TEXT NOT NULL DEFAULT ''
+    )""",
+    """CREATE TABLE sensitometers (
+        sensitometer_id TEXT PRIMARY KEY NOT NULL CHECK (length(trim(sensitometer_id)) > 0),
+        description TEXT NOT NULL DEFAULT '',
+        log_exposures_json TEXT NOT NULL CHECK (json_valid(log_exposures_json))
+    )""",
+    # A calibration is stored once and found by the sha256 of its text.
+    """CREATE TABLE calibrations (
+        hash TEXT PRIMARY KEY NOT NULL CHECK (length(hash) = 64),
+        json TEXT NOT NULL CHECK (json_valid(json))
+    )""",
+    """CREATE TABLE snapshots (
+        id INTEGER PRIMARY KEY,
+        created_at TEXT NOT NULL
+            CHECK (created_at GLOB '[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T*Z'),
+        lot_id TEXT NOT NULL REFERENCES emulsion_lots(lot_id),
+        processor TEXT REFERENCES processors(name),
+        sensitometer TEXT REFERENCES sensitometers(sensitometer_id),
+        calibration_hash TEXT REFERENCES calibrations(hash),
+        operator TEXT NOT NULL DEFAULT '',
+        exposed_on TEXT CHECK (exposed_on IS NULL OR date(exposed_on) IS exposed_on),
+        processed_on TEXT CHECK (processed_on IS NULL OR date(processed_on) IS processed_on),
+        scanned_on TEXT CHECK (scanned_on IS NULL OR date(scanned_on) IS scanned_on),
+        scan_path TEXT NOT NULL,
+        scan_sha256 TEXT NOT NULL CHECK (length(scan_sha256) = 64),
+        scan_json TEXT NOT NULL CHECK (json_valid(scan_json)),
+        strip_index INTEGER NOT NULL,
+        strip_json TEXT NOT NULL CHECK (json_valid(strip_json)),
+        base_fog REAL,
+        dmax REAL,
+        speed_log_exposure REAL,
+        average_gradient REAL,
+        gamma REAL,
+        latitude_log_exposure REAL,
+        mid_density REAL,
+        density_difference REAL,
+        settings_json TEXT NOT NULL DEFAULT '{}' CHECK (json_valid(settings_json)),
+        warnings_json TEXT NOT NULL DEFAULT '[]' CHECK (json_valid(warnings_json)),
+        program_version TEXT NOT NULL DEFAULT '',
+        notes TEXT NOT NULL DEFAULT '',
+        preview_png BLOB CHECK (preview_png IS NULL OR (length(preview_png) <= 65536
+            AND substr(preview_png, 1, 8) = X'89504E470D0A1A0A')),
+        revises INTEGER REFERENCES snapshots(id) CHECK (revises IS NULL OR revises < id),
+        revision_reason TEXT,
+        retired_at TEXT,
+        retired_reason TEXT,
+        CHECK ((revises IS NULL) = (revision_reason IS NULL)),
+        CHECK ((retired_at IS NULL) = (retired_reason IS NULL))
+    )""",
+    # One revision per snapshot keeps a correction chain a straight line.
+    "CREATE UNIQUE INDEX snapshots_revises ON snapshots(revises) WHERE revises IS NOT NULL",
+    "CREATE INDEX snapshots_lot ON snapshots(lot_id)",
+    """CREATE TABLE snapshot_steps (
+        snapshot_id INTEGER NOT NULL REFERENCES snapshots(id),
+        step INTEGER NOT NULL,
+        log_exposure REAL,
+        od REAL,
+        od_sd REAL,
+        pixels INTEGER NOT NULL,
+        in_range INTEGER NOT NULL CHECK (in_range IN (0, 1)),
+        excluded INTEGER NOT NULL CHECK (excluded IN (0, 1)),
+        PRIMARY KEY (snapshot_id, step)
+    ) WITHOUT ROWID""",
+    """CREATE TABLE qc_entries (
+        processor TEXT NOT NULL REFERENCES processors(name),
+        date TEXT NOT NULL CHECK (date(date) IS date),
+        base_fog REAL,
+        mid_density REAL,
+        density_difference REAL,
+        source TEXT NOT NULL CHECK (source IN ('scan', 'manual')),
+        snapshot_id INTEGER REFERENCES snapshots(id),
+        note TEXT NOT NULL DEFAULT '',
+        action TEXT NOT NULL DEFAULT '',
+        UNIQUE (processor, date)
+    )""",
+    """CREATE TABLE qc_events (
+        id INTEGER PRIMARY KEY,
+        processor TEXT NOT NULL REFERENCES processors(name),
+        date TEXT NOT NULL CHECK (date(date) IS date),
+        kind TEXT NOT NULL CHECK (length(trim(kind)) > 0),
+        note TEXT NOT NULL DEFAULT ''
+    )""",
+    "CREATE INDEX qc_events_processor ON qc_events(processor, date)",
+    """CREATE TABLE qc_settings (
+        processor TEXT PRIMARY KEY NOT NULL REFERENCES processors(name),
+        settings_json TEXT NOT NULL CHECK (json_valid(settings_json)),
+        updated_at TEXT NOT NULL
+    )""",
+    """CREATE TABLE crossovers (
+        id INTEGER PRIMARY KEY,
+        processor TEXT NOT NULL REFERENCES processors(name),
+        date TEXT NOT NULL CHECK (date(date) IS date),
+        record_json TEXT NOT NULL CHECK (json_valid(record_json))
+    )""",
+    "CREATE INDEX crossovers_processor ON crossovers(processor, date)",
+    # The audit trail is enforced in the file itself, so that no other tool
+    # (or a slip in this one) can rewrite history.  A BEFORE INSERT guard is
+    # needed too: INSERT OR REPLACE deletes the old row without firing the
+    # DELETE trigger unless recursive triggers are on.
+    """CREATE TRIGGER snapshots_no_delete BEFORE DELETE ON snapshots
+    BEGIN SELECT RAISE(ABORT, 'snapshots are never deleted; retire the snapshot instead'); END""",
+    """CREATE TRIGGER snapshots_no_replace BEFORE INSERT ON snapshots
+    WHEN EXISTS (SELECT 1 FROM snapshots WHERE id = NEW.id)
+    BEGIN SELECT RAISE(ABORT, 'snapshot ids are never reused or replaced'); END""",
+    """CREATE TRIGGER snapshots_frozen BEFORE UPDATE OF
+        id, created_at, lot_id, processor, sensitometer, calibration_hash, operator,
+        exposed_on, processed_on, scanned_on, scan_path, scan_sha256, scan_json,
+        strip_index, strip_json, base_fog, dmax, speed_log_exposure, average_gradient,
+        gamma, latitude_log_exposure, mid_density, density_difference, settings_json,
+        warnings_json, program_version, notes, preview_png, revises, revision_reason
+        ON snapshots
+    BEGIN SELECT RAISE(ABORT, 'snapshots are never changed; store a revision instead'); END""",
+    """CREATE TRIGGER snapshots_retire_once BEFORE UPDATE OF retired_at, retired_reason ON snapshots
+    WHEN OLD.retired_at IS NOT NULL OR NEW.retired_at IS NULL
+        OR NEW.retired_reason IS NULL OR length(trim(NEW.retired_reason)) = 0
+    BEGIN SELECT RAISE(ABORT, 'a snapshot is retired once, with a reason, and stays retired'); END""",
+    """CREATE TRIGGER snapshot_steps_no_update BEFORE UPDATE ON snapshot_steps
+    BEGIN SELECT RAISE(ABORT, 'stored step densities are never changed'); END""",
+    """CREATE TRIGGER snapshot_steps_no_delete BEFORE DELETE ON snapshot_steps
+    BEGIN SELECT RAISE(ABORT, 'stored step densities are never deleted'); END""",
+    """CREATE TRIGGER snapshot_steps_no_replace BEFORE INSERT ON snapshot_steps
+    WHEN EXISTS (SELECT 1 FROM snapshot_steps WHERE snapshot_id = NEW.snapshot_id AND step = NEW.step)
+    BEGIN SELECT RAISE(ABORT, 'stored step densities are never replaced'); END""",
+    """CREATE TRIGGER calibrations_no_update BEFORE UPDATE ON calibrations
+    BEGIN SELECT RAISE(ABORT, 'a stored calibration is never changed'); END""",
+    """CREATE TRIGGER calibrations_no_delete BEFORE DELETE ON calibrations
+    BEGIN SELECT RAISE(ABORT, 'a stored calibration is never deleted'); END""",
+    """CREATE TRIGGER calibrations_no_replace BEFORE INSERT ON calibrations
+    WHEN EXISTS (SELECT 1 FROM calibrations WHERE hash = NEW.hash)
+    BEGIN SELECT RAISE(ABORT, 'a stored calibration is never replaced'); END""",
+)
+
+# v2: remarks added to a snapshot after the fact (an auditor's "checked,
+# see service report") without touching the snapshot, and an index for
+# listings and trends by processor.
+_V2 = (
+    """CREATE TABLE snapshot_notes (
+        id INTEGER PRIMARY KEY,
+        snapshot_id INTEGER NOT NULL REFERENCES snapshots(id),
+        created_at TEXT NOT NULL
+            CHECK (created_at GLOB '[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T*Z'),
+        author TEXT NOT NULL DEFAULT '',
+        text TEXT NOT NULL CHECK (length(trim(text)) > 0)
+    )""",
+    "CREATE INDEX snapshot_notes_snapshot ON snapshot_notes(snapshot_id)",
+    """CREATE TRIGGER snapshot_notes_no_update BEFORE UPDATE ON snapshot_notes
+    BEGIN SELECT RAISE(ABORT, 'notes are never changed; add another note'); END""",
+    """CREATE TRIGGER snapshot_notes_no_delete BEFORE DELETE ON snapshot_notes
+    BEGIN SELECT RAISE(ABORT, 'notes are never deleted; add another note'); END""",
+    """CREATE TRIGGER snapshot_notes_no_replace BEFORE INSERT ON snapshot_notes
+    WHEN EXISTS (SELECT 1 FROM snapshot_notes WHERE id = NEW.id)
+    BEGIN SELECT RAISE(ABORT, 'notes are never replaced; add another note'); END""",
+    "CREATE INDEX snapshots_processor ON snapshots(processor)",
+)
+
+MIGRATIONS: tuple[Migration, ...] = (
+    Migration(1, "lots, processors, sensitometers, calibrations, snapshots, processor QC", _V1),
+    Migration(2, "notes on snapshots; index by processor", _V2),
+)
+
+LATEST_VERSION = MIGRATIONS[-1].version

@@ -1,0 +1,723 @@
+"""Frozen records stored in and read from the lot archive.
+
+The archive keeps the core's :class:`~stripscan.core.records.StripResult`
+and :class:`~stripscan.core.records.ScanInfo` as they are and adds the
+bookkeeping an audit needs: which emulsion lot, which processor, who, when,
+which calibration, and how a reading was later corrected or retired.
+
+Every record is a frozen dataclass with ``to_dict`` / ``from_dict`` giving
+JSON-ready data; checks run in ``__post_init__``, so a record that exists
+is a record the archive will accept, whether built by hand or read back
+from an export file.  Dates are ISO 8601 calendar dates (``YYYY-MM-DD``),
+times are UTC ISO 8601 with a ``Z`` suffix.
+"""
+
+from __future__ import annotations
+
+import base64
+import binascii
+import dataclasses
+import datetime as dt
+import hashlib
+import json
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Any, NamedTuple
+
+from stripscan.core.records import Analysis, CurveFigures, ScanInfo, StripResult
+
+__all__ = [
+    "FIGURES",
+    "FIGURE_UNITS",
+    "PREVIEW_MAX_BYTES",
+    "QC_SOURCES",
+    "canonical_json",
+    "calibration_text",
+    "calibration_hash",
+    "FilmType",
+    "EmulsionLot",
+    "Processor",
+    "Sensitometer",
+    "NewSnapshot",
+    "Snapshot",
+    "SnapshotSummary",
+    "SnapshotNote",
+    "LotSummary",
+    "TrendPoint",
+    "QcEntry",
+    "QcEvent",
+    "QcSettings",
+    "Crossover",
+    "ImportReport",
+    "snapshots_from_analysis",
+]
+
+#: Curve figures kept as columns of the snapshot table, in display order.
+FIGURES: tuple[str, ...] = (
+    "base_fog",
+    "dmax",
+    "speed_log_exposure",
+    "average_gradient",
+    "gamma",
+    "latitude_log_exposure",
+    "mid_density",
+    "density_difference",
+)
+
+#: Unit of each figure, as written in CSV headers.
+FIGURE_UNITS: dict[str, str] = {
+    "base_fog": "OD",
+    "dmax": "OD",
+    "speed_log_exposure": "log10 rel. exposure",
+    "average_gradient": "OD per log10 exposure",
+    "gamma": "OD per log10 exposure",
+    "latitude_log_exposure": "log10 rel. exposure",
+    "mid_density": "OD",
+    "density_difference": "OD",
+}
+
+#: Largest preview image kept with a snapshot; the archive is for numbers,
+#: the scan itself stays on disk and is identified by its sha256.
+PREVIEW_MAX_BYTES = 64 * 1024
+
+QC_SOURCES: tuple[str, ...] = ("scan", "manual")
+
+_PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
+_DAY = re.compile(r"\d{4}-\d{2}-\d{2}")
+_UTC_TIME = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}(\.\d{1,6})?Z")
+_SHA256 = re.compile(r"[0-9a-f]{64}")
+
+
+def _json_default(value: Any) -> Any:
+    # numpy scalars reach us from the pipeline; .item() gives the plain value.
+    item = getattr(value, "item", None)
+    if callable(item):
+        return item()
+    raise TypeError(f"{type(value).__name__} is not JSON data")
+
+
+def canonical_json(data: Any) -> str:
+    """Serialise ``data`` the one way the archive stores and hashes JSON.
+
+    Keys are sorted and no spaces are written, so equal data gives equal
+    text.  NaN and infinities are refused: JSON has no spelling for them.
+
+    Raises
+    ------
+    ValueError
+        When ``data`` holds a non-finite number or a value JSON cannot hold.
+    """
+    try:
+        return json.dumps(
+            data, sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+            allow_nan=False, default=_json_default,
+        )
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"not storable as JSON ({exc})") from None
+
+
+def calibration_text(calibration: dict[str, Any]) -> str:
+    """The canonical JSON text of a calibration, exactly as hashed and stored.
+
+    This is ``json.dumps(d, sort_keys=True, separators=(",", ":"))`` with
+    its default ASCII escaping, the form the whole program agrees on, so
+    that anyone can check a stored calibration: sha256 of its text is its
+    hash.
+    """
+    if not isinstance(calibration, dict):
+        raise ValueError("a calibration must be a JSON object (dict)")
+    try:
+        return json.dumps(calibration, sort_keys=True, separators=(",", ":"),
+                          allow_nan=False, default=_json_default)
+    except (TypeError, ValueError) as exc:
+        raise ValueError(f"calibration is not storable as JSON ({exc})") from None
+
+
+def calibration_hash(calibration: dict[str, Any]) -> str:
+    """Content address of a calibration: sha256 of :func:`calibration_text`."""
+    return hashlib.sha256(calibration_text(calibration).encode("ascii")).hexdigest()
+
+
+def utc_now() -> str:
+    """The current UTC time as stored in ``created_at`` columns."""
+    return dt.datetime.now(dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def check_day(value: str | None, what: str) -> None:
+    """Refuse anything but None or a real ``YYYY-MM-DD`` date."""
+    if value is None:
+        return
+    if not isinstance(value, str) or not _DAY.fullmatch(value):
+        raise ValueError(f"{what} {value!r} is not a date written YYYY-MM-DD")
+    try:
+        dt.date.fromisoformat(value)
+    except ValueError:
+        raise ValueError(f"{what} {value!r} is not a calendar date") from None
+
+
+def _check_time(value: str | None, what: str) -> None:
+    if value is not None and (not isinstance(value, str) or not _UTC_TIME.fullmatch(value)):
+        raise ValueError(f"{what} {value!r} is not a UTC time written YYYY-MM-DDTHH:MM:SSZ")
+
+
+def _check_name(value: Any, what: str) -> None:
+    if not isinstance(value, str) or not value.strip():
+        raise ValueError(f"{what} must be a non-empty text")
+
+
+def _check_text(value: Any, what: str) -> None:
+    if not isinstance(value, str):
+        raise ValueError(f"{what} must be text, not {type(value).__name__}")
+
+
+def _check_number(value: Any, what: str, *, low: float | None = None,
+                  high: float | None = None) -> None:
+    if value is None:
+        return
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise ValueError(f"{what} must be a finite number, not {value!r}")
+    if (low is not None and value <= low) or (high is not None and value >= high):
+        raise ValueError(f"{what} {value!r} lies outside {low} .. {high}")
+
+
+def _check_preview(value: bytes | None) -> None:
+    if value is None:
+        return
+    if not isinstance(value, (bytes, bytearray)):
+        raise ValueError("preview must be PNG bytes")
+    if not bytes(value[:8]) == _PNG_SIGNATURE:
+        raise ValueError("preview is not a PNG image (its first bytes are not the PNG signature)")
+    if len(value) > PREVIEW_MAX_BYTES:
+        raise ValueError(f"preview is {len(value)} bytes; at most {PREVIEW_MAX_BYTES} are kept")
+
+
+def _set(record: Any, name: str, value: Any) -> None:
+    # Normalising inside __post_init__ of a frozen dataclass.
+    object.__setattr__(record, name, value)
+
+
+def _fields_from(cls: type, data: dict[str, Any]) -> dict[str, Any]:
+    """Pick ``cls``'s fields out of ``data``; a missing required field is an error."""
+    if not isinstance(data, dict):
+        raise ValueError(f"{cls.__name__} data must be a JSON object")
+    kwargs: dict[str, Any] = {}
+    for f in dataclasses.fields(cls):
+        if f.name in data:
+            kwargs[f.name] = data[f.name]
+        elif f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
+            raise ValueError(f"{cls.__name__} data lacks the field {f.name!r}")
+    return kwargs
+
+
+class _Plain:
+    """``to_dict`` / ``from_dict`` for records made only of JSON values."""
+
+    def to_dict(self) -> dict[str, Any]:
+        data = {}
+        for f in dataclasses.fields(self):  # type: ignore[arg-type]
+            value = getattr(self, f.name)
+            data[f.name] = list(value) if isinstance(value, tuple) else value
+        return data
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Any:
+        return cls(**_fields_from(cls, data))
+
+
+@dataclass(frozen=True)
+class FilmType(_Plain):
+    """A kind of film, e.g. a green-sensitive screen film for mammography."""
+
+    name: str
+    description: str = ""
+
+    def __post_init__(self) -> None:
+        _check_name(self.name, "film type name")
+        _check_text(self.description, "film type description")
+
+
+@dataclass(frozen=True)
+class EmulsionLot(_Plain):
+    """One emulsion lot (batch) of film, as printed on the box."""
+
+    lot_id: str
+    film_type: str | None = None
+    expiry_date: str | None = None
+    received_date: str | None = None
+    notes: str = ""
+
+    def __post_init__(self) -> None:
+        _check_name(self.lot_id, "lot id")
+        if self.film_type is not None:
+            _check_name(self.film_type, "film type")
+        check_day(self.expiry_date, "expiry date")
+        check_day(self.received_date, "date received")
+        _check_text(self.notes, "lot notes")
+
+
+@dataclass(frozen=True)
+class Processor(_Plain):
+    """A film processor and the conditions it runs at.
+
+    Attributes
+    ----------
+    developer_temperature_c : float or None
+        Developer temperature set point, degrees Celsius.
+    cycle_time_s : float or None
+        Dry-to-dry cycle time, seconds.
+    """
+
+    name: str
+    place: str = ""
+    chemistry: str = ""
+    developer_temperature_c: float | None = None
+    cycle_time_s: float | None = None
+    notes: str = ""
+
+    def __post_init__(self) -> None:
+        _check_name(self.name, "processor name")
+        for name in ("place", "chemistry", "notes"):
+            _check_text(getattr(self, name), f"processor {name}")
+        # Wide bounds: they catch Fahrenheit or minutes typed by mistake
+        # without judging any real chemistry.
+        _check_number(self.developer_temperature_c, "developer temperature (degC)", low=0, high=60)
+        _check_number(self.cycle_time_s, "cycle time (s)", low=0, high=3600)
+
+
+@dataclass(frozen=True)
+class Sensitometer(_Plain):
+    """A sensitometer and the relative log exposure it gives each step.
+
+    Attributes
+    ----------
+    log_exposures : tuple of float
+        Relative log10 exposure of step 1, 2, ... N.
+    """
+
+    sensitometer_id: str
+    description: str = ""
+    log_exposures: tuple[float, ...] = ()
+
+    def __post_init__(self) -> None:
+        _check_name(self.sensitometer_id, "sensitometer id")
+        _check_text(self.description, "sensitometer description")
+        values = tuple(self.log_exposures)
+        if not values:
+            raise ValueError(f"sensitometer {self.sensitometer_id!r} has no step log-exposure table")
+        for i, value in enumerate(values, start=1):
+            _check_number(value, f"log exposure of step {i}")
+        _set(self, "log_exposures", tuple(float(v) for v in values))
+
+
+@dataclass(frozen=True)
+class NewSnapshot:
+    """What a caller hands the archive to store one strip's reading.
+
+    Attributes
+    ----------
+    lot_id : str
+        Emulsion lot the strip was cut from.
+    scan : ScanInfo
+        The scan the strip was read from (path and sha256 are kept).
+    strip : StripResult
+        Steps, densities and curve figures of the strip.
+    processor, sensitometer : str or None
+        Names of the processor and sensitometer used.
+    calibration : dict or None
+        The scanner calibration used; stored once, addressed by its hash.
+    operator : str
+        Who exposed, processed and scanned the strip.
+    exposed_on, processed_on, scanned_on : str or None
+        Dates (YYYY-MM-DD).
+    settings : dict
+        Analysis settings (step count, increment, targets).
+    warnings : tuple of str
+        Warnings the analysis gave for the scan as a whole.
+    program_version : str
+        Version of the program that made the reading.
+    notes : str
+        Free text.
+    preview_png : bytes or None
+        A small PNG picture of the strip, at most ``PREVIEW_MAX_BYTES``.
+    """
+
+    lot_id: str
+    scan: ScanInfo
+    strip: StripResult
+    processor: str | None = None
+    sensitometer: str | None = None
+    calibration: dict[str, Any] | None = None
+    operator: str = ""
+    exposed_on: str | None = None
+    processed_on: str | None = None
+    scanned_on: str | None = None
+    settings: dict[str, Any] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    program_version: str = ""
+    notes: str = ""
+    preview_png: bytes | None = None
+
+    def __post_init__(self) -> None:
+        _check_name(self.lot_id, "lot id")
+        _check_common(self)
+        if self.calibration is not None:
+            calibration_hash(self.calibration)
+
+
+def _check_common(record: NewSnapshot | Snapshot) -> None:
+    for name in ("processor", "sensitometer"):
+        if getattr(record, name) is not None:
+            _check_name(getattr(record, name), name)
+    for name, what in (("exposed_on", "exposure date"), ("processed_on", "processing date"),
+                       ("scanned_on", "scan date")):
+        check_day(getattr(record, name), what)
+    if not isinstance(record.scan, ScanInfo):
+        raise ValueError("scan must be a ScanInfo record")
+    if not isinstance(record.strip, StripResult):
+        raise ValueError("strip must be a StripResult record")
+    if not isinstance(record.scan.sha256, str) or not _SHA256.fullmatch(record.scan.sha256):
+        raise ValueError(f"scan sha256 {record.scan.sha256!r} is not 64 lower-case hex digits")
+    _check_name(record.scan.path, "scan path")
+    for name in ("operator", "program_version", "notes"):
+        _check_text(getattr(record, name), name)
+    if not isinstance(record.settings, dict):
+        raise ValueError("settings must be a JSON object (dict)")
+    canonical_json(record.settings)
+    _set(record, "warnings", tuple(record.warnings))
+    for warning in record.warnings:
+        _check_text(warning, "warning")
+    if isinstance(record.preview_png, bytearray):
+        _set(record, "preview_png", bytes(record.preview_png))
+    _check_preview(record.preview_png)
+
+
+def _preview_to_text(value: bytes | None) -> str | None:
+    return None if value is None else base64.b64encode(value).decode("ascii")
+
+
+def _preview_from_text(value: str | None) -> bytes | None:
+    if value is None:
+        return None
+    try:
+        return base64.b64decode(value, validate=True)
+    except (binascii.Error, ValueError, TypeError):
+        raise ValueError("preview is not valid base64 text") from None
+
+
+def _day_of(processed_on: str | None, exposed_on: str | None, scanned_on: str | None,
+            created_at: str) -> str:
+    # The film's own date, best first: processing fixes the result.
+    return processed_on or exposed_on or scanned_on or created_at[:10]
+
+
+@dataclass(frozen=True)
+class Snapshot:
+    """One strip's reading as stored, with its audit trail.
+
+    Attributes
+    ----------
+    id : int
+        Archive-wide number of the snapshot.
+    created_at : str
+        When it was stored (UTC).
+    calibration_hash : str or None
+        sha256 of the calibration used, see :func:`calibration_hash`.
+    revises : int or None
+        Id of the snapshot this one corrects.
+    revision_reason : str or None
+        Why the correction was made (set exactly when ``revises`` is).
+    retired_at, retired_reason : str or None
+        When and why the snapshot was withdrawn from listings and trends.
+
+    Other attributes are as in :class:`NewSnapshot`.
+    """
+
+    id: int
+    created_at: str
+    lot_id: str
+    scan: ScanInfo
+    strip: StripResult
+    processor: str | None = None
+    sensitometer: str | None = None
+    calibration_hash: str | None = None
+    operator: str = ""
+    exposed_on: str | None = None
+    processed_on: str | None = None
+    scanned_on: str | None = None
+    settings: dict[str, Any] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+    program_version: str = ""
+    notes: str = ""
+    preview_png: bytes | None = None
+    revises: int | None = None
+    revision_reason: str | None = None
+    retired_at: str | None = None
+    retired_reason: str | None = None
+
+    def __post_init__(self) -> None:
+        if isinstance(self.id, bool) or not isinstance(self.id, int) or self.id < 1:
+            raise ValueError(f"snapshot id must be a positive whole number, not {self.id!r}")
+        _check_time(self.created_at, "created_at")
+        _check_name(self.lot_id, "lot id")
+        _check_common(self)
+        if self.calibration_hash is not None and not _SHA256.fullmatch(str(self.calibration_hash)):
+            raise ValueError(f"calibration hash {self.calibration_hash!r} is not a sha256 digest")
+        if (self.revises is None) != (self.revision_reason is None):
+            raise ValueError("revises and revision_reason go together")
+        if self.revises is not None:
+            if isinstance(self.revises, bool) or not isinstance(self.revises, int) or not 0 < self.revises < self.id:
+                raise ValueError(f"snapshot {self.id} cannot revise {self.revises!r}: only an earlier snapshot")
+            _check_name(self.revision_reason, "revision reason")
+        if (self.retired_at is None) != (self.retired_reason is None):
+            raise ValueError("retired_at and retired_reason go together")
+        _check_time(self.retired_at, "retired_at")
+        if self.retired_reason is not None:
+            _check_name(self.retired_reason, "retirement reason")
+
+    @property
+    def date(self) -> str:
+        """The film's date: processing, else exposure, else scan, else storage date."""
+        return _day_of(self.processed_on, self.exposed_on, self.scanned_on, self.created_at)
+
+    @property
+    def figures(self) -> CurveFigures:
+        return self.strip.figures
+
+    @property
+    def retired(self) -> bool:
+        return self.retired_at is not None
+
+    def to_dict(self) -> dict[str, Any]:
+        data: dict[str, Any] = {}
+        for f in dataclasses.fields(self):
+            value = getattr(self, f.name)
+            if f.name in ("scan", "strip"):
+                value = value.to_dict()
+            elif f.name == "preview_png":
+                value = _preview_to_text(value)
+            elif isinstance(value, tuple):
+                value = list(value)
+            data[f.name] = value
+        return data
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "Snapshot":
+        kwargs = _fields_from(cls, data)
+        try:
+            kwargs["scan"] = ScanInfo.from_dict(kwargs["scan"])
+            kwargs["strip"] = StripResult.from_dict(kwargs["strip"])
+        except (KeyError, TypeError, ValueError, AttributeError) as exc:
+            raise ValueError(f"snapshot {data.get('id')!r}: scan or strip data is incomplete ({exc!r})") from None
+        kwargs["preview_png"] = _preview_from_text(kwargs.get("preview_png"))
+        kwargs["warnings"] = tuple(kwargs.get("warnings", ()))
+        return cls(**kwargs)
+
+
+@dataclass(frozen=True)
+class SnapshotSummary(_Plain):
+    """One line of a snapshot listing: the figures without steps or pictures.
+
+    ``superseded_by`` is the id of the revision that corrects this snapshot,
+    or None when it is the latest of its chain.
+    """
+
+    id: int
+    created_at: str
+    date: str
+    lot_id: str
+    processor: str | None
+    operator: str
+    strip_index: int
+    base_fog: float | None
+    dmax: float | None
+    speed_log_exposure: float | None
+    average_gradient: float | None
+    gamma: float | None
+    latitude_log_exposure: float | None
+    mid_density: float | None
+    density_difference: float | None
+    revises: int | None
+    superseded_by: int | None
+    retired_at: str | None
+    retired_reason: str | None
+    scan_path: str
+
+    @property
+    def current(self) -> bool:
+        """True when neither corrected by a later revision nor retired."""
+        return self.superseded_by is None and self.retired_at is None
+
+
+@dataclass(frozen=True)
+class SnapshotNote(_Plain):
+    """A remark added to a snapshot after it was stored; never changed."""
+
+    id: int
+    snapshot_id: int
+    created_at: str
+    text: str
+    author: str = ""
+
+    def __post_init__(self) -> None:
+        _check_time(self.created_at, "note time")
+        _check_name(self.text, "note text")
+        _check_text(self.author, "note author")
+
+
+@dataclass(frozen=True)
+class LotSummary:
+    """An emulsion lot with how many current snapshots it has, and over which dates."""
+
+    lot: EmulsionLot
+    snapshot_count: int
+    first_date: str | None
+    last_date: str | None
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"lot": self.lot.to_dict(), "snapshot_count": self.snapshot_count,
+                "first_date": self.first_date, "last_date": self.last_date}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "LotSummary":
+        return cls(EmulsionLot.from_dict(data["lot"]), int(data["snapshot_count"]),
+                   data.get("first_date"), data.get("last_date"))
+
+
+class TrendPoint(NamedTuple):
+    """One point of a figure's trend: ``(date, value, lot, snapshot_id)``."""
+
+    date: str
+    value: float
+    lot: str
+    snapshot_id: int
+
+
+@dataclass(frozen=True)
+class QcEntry(_Plain):
+    """One day's processor QC reading: the three control densities.
+
+    Attributes
+    ----------
+    source : str
+        ``"scan"`` when read from an archived strip (see ``snapshot_id``),
+        ``"manual"`` when typed in from a densitometer.
+    action : str
+        What was done about it, if anything.
+    """
+
+    processor: str
+    date: str
+    base_fog: float | None
+    mid_density: float | None
+    density_difference: float | None
+    source: str = "manual"
+    snapshot_id: int | None = None
+    note: str = ""
+    action: str = ""
+
+    def __post_init__(self) -> None:
+        _check_name(self.processor, "processor")
+        if self.date is None:
+            raise ValueError("a QC entry needs a date")
+        check_day(self.date, "QC date")
+        for name in ("base_fog", "mid_density", "density_difference"):
+            _check_number(getattr(self, name), name)
+        if self.source not in QC_SOURCES:
+            raise ValueError(f"QC source {self.source!r} is not one of {', '.join(QC_SOURCES)}")
+        _check_text(self.note, "note")
+        _check_text(self.action, "action")
+
+
+@dataclass(frozen=True)
+class QcEvent(_Plain):
+    """Something that happened to a processor (chemistry change, service...)."""
+
+    id: int
+    processor: str
+    date: str
+    kind: str
+    note: str = ""
+
+    def __post_init__(self) -> None:
+        _check_name(self.processor, "processor")
+        check_day(self.date, "event date")
+        _check_name(self.kind, "event kind")
+        _check_text(self.note, "note")
+
+
+@dataclass(frozen=True)
+class QcSettings(_Plain):
+    """A processor's QC settings (operating levels, control limits, steps) as plain JSON."""
+
+    processor: str
+    settings: dict[str, Any]
+    updated_at: str
+
+    def __post_init__(self) -> None:
+        _check_name(self.processor, "processor")
+        if not isinstance(self.settings, dict):
+            raise ValueError("QC settings must be a JSON object (dict)")
+        canonical_json(self.settings)
+        _check_time(self.updated_at, "updated_at")
+
+
+@dataclass(frozen=True)
+class Crossover(_Plain):
+    """A stored crossover (old lot against new lot) for a processor, as plain JSON."""
+
+    id: int
+    processor: str
+    date: str
+    record: dict[str, Any]
+
+    def __post_init__(self) -> None:
+        _check_name(self.processor, "processor")
+        check_day(self.date, "crossover date")
+        if not isinstance(self.record, dict):
+            raise ValueError("a crossover record must be a JSON object (dict)")
+        canonical_json(self.record)
+
+
+@dataclass(frozen=True)
+class ImportReport(_Plain):
+    """What an import did: items added and items already present unchanged, per kind."""
+
+    source: str
+    added: dict[str, int]
+    unchanged: dict[str, int]
+
+
+def snapshots_from_analysis(analysis: Analysis, lot_id: str, **details: Any) -> list[NewSnapshot]:
+    """One :class:`NewSnapshot` per strip of an analysed scan.
+
+    Parameters
+    ----------
+    analysis : Analysis
+        The pipeline's result for one scan.
+    lot_id : str
+        Emulsion lot of the strips.
+    **details
+        Any other :class:`NewSnapshot` field (processor, operator,
+        exposed_on, notes...) applied to every strip.  Scan, calibration,
+        settings, warnings and program version come from ``analysis``.
+
+    Raises
+    ------
+    ValueError
+        When the scan holds no strip, or a detail is not acceptable.
+    """
+    if not analysis.strips:
+        raise ValueError(f"no strip was found on {analysis.scan.path}; nothing to store")
+    taken = {"scan", "strip", "calibration", "settings", "warnings", "program_version"}
+    clash = taken.intersection(details)
+    if clash:
+        raise ValueError(f"{', '.join(sorted(clash))} come(s) from the analysis and cannot be given")
+    return [
+        NewSnapshot(
+            lot_id=lot_id, scan=analysis.scan, strip=strip, calibration=analysis.calibration,
+            settings=dict(analysis.settings), warnings=tuple(analysis.warnings),
+            program_version=analysis.program_version, **details,
+        )
+        for strip in analysis.strips
+    ]

@@ -1,0 +1,958 @@
+"""The lot archive: an SQLite file that remembers every strip reading for audits.
+
+Open it with :meth:`Archive.open` (a context manager).  The file is kept in
+write-ahead-log mode, so the GUI can read while a command line run writes;
+every write is one ``BEGIN IMMEDIATE`` transaction, so a write either lands
+whole or not at all, even if the program is killed half way.
+
+Snapshots are never changed or deleted.  A mistake is corrected with
+:meth:`Archive.revise`, which stores a new snapshot linked to the old one,
+and a reading that should not count is withdrawn with
+:meth:`Archive.retire`, which keeps it readable.  Triggers in the file
+enforce the same rules against any other tool.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+import sys
+from collections.abc import Iterable, Iterator, Sequence
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Any
+
+from stripscan.core.records import Analysis, ScanInfo, StripResult
+
+from .errors import (
+    ArchiveBusyError,
+    ArchiveConflictError,
+    ArchiveError,
+    ArchiveLookupError,
+    ArchiveReadOnlyError,
+)
+from .migrations import APPLICATION_ID, LATEST_VERSION, MIGRATIONS
+from .records import (
+    FIGURES,
+    Crossover,
+    EmulsionLot,
+    FilmType,
+    ImportReport,
+    LotSummary,
+    NewSnapshot,
+    Processor,
+    QcEntry,
+    QcEvent,
+    QcSettings,
+    Sensitometer,
+    Snapshot,
+    SnapshotNote,
+    SnapshotSummary,
+    TrendPoint,
+    calibration_hash,
+    calibration_text,
+    canonical_json,
+    snapshots_from_analysis,
+    utc_now,
+)
+
+__all__ = ["Archive", "default_archive_path", "DEFAULT_BUSY_TIMEOUT_MS"]
+
+DEFAULT_BUSY_TIMEOUT_MS = 5000
+
+# SQLite primary result codes (sqlite.org/rescode.html).
+_SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY = 5, 6, 8
+_SQLITE_CORRUPT, _SQLITE_FULL, _SQLITE_NOTADB = 11, 13, 26
+
+# The film's date, as in Snapshot.date: processing, exposure, scan, storage.
+_DAY = "COALESCE(s.processed_on, s.exposed_on, s.scanned_on, substr(s.created_at, 1, 10))"
+
+_SNAPSHOT_COLUMNS = (
+    "id", "created_at", "lot_id", "processor", "sensitometer", "calibration_hash", "operator",
+    "exposed_on", "processed_on", "scanned_on", "scan_path", "scan_sha256", "scan_json",
+    "strip_index", "strip_json", *FIGURES, "settings_json", "warnings_json", "program_version",
+    "notes", "preview_png", "revises", "revision_reason", "retired_at", "retired_reason",
+)
+_SNAPSHOT_INSERT = (
+    f"INSERT INTO snapshots ({', '.join(_SNAPSHOT_COLUMNS)}) "
+    f"VALUES ({', '.join('?' for _ in _SNAPSHOT_COLUMNS)})"
+)
+_SNAPSHOT_SELECT = f"SELECT {', '.join('s.' + c for c in _SNAPSHOT_COLUMNS)} FROM snapshots s"
+_STEP_COLUMNS = ("snapshot_id", "step", "log_exposure", "od", "od_sd", "pixels", "in_range", "excluded")
+
+_SUMMARY_SELECT = (
+    f"SELECT s.id, s.created_at, {_DAY} AS day, s.lot_id, s.processor, s.operator, s.strip_index, "
+    f"{', '.join('s.' + f for f in FIGURES)}, s.revises, n.id, s.retired_at, s.retired_reason, "
+    "s.scan_path FROM snapshots s LEFT JOIN snapshots n ON n.revises = s.id"
+)
+
+# Reference data: record class -> (table, key column, plain word for messages).
+# The key column has the same name as the record's key field.
+_REFERENCE: dict[type, tuple[str, str, str]] = {
+    FilmType: ("film_types", "name", "film type"),
+    EmulsionLot: ("emulsion_lots", "lot_id", "lot"),
+    Processor: ("processors", "name", "processor"),
+    Sensitometer: ("sensitometers", "sensitometer_id", "sensitometer"),
+}
+
+
+def default_archive_path() -> Path:
+    """Where the archive lives unless a path is given.
+
+    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise the user's data folder:
+    ``$XDG_DATA_HOME/stripscan/archive.sqlite3`` (``~/.local/share`` when
+    XDG_DATA_HOME is unset or not absolute, as the XDG base directory
+    specification asks), or ``%LOCALAPPDATA%\\stripscan`` on Windows.
+    """
+    override = os.environ.get("STRIPSCAN_ARCHIVE")
+    if override:
+        return Path(override).expanduser()
+    if sys.platform == "win32":
+        base = Path(os.environ.get("LOCALAPPDATA") or Path.home() / "AppData" / "Local")
+    else:
+        xdg = os.environ.get("XDG_DATA_HOME", "")
+        base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".local" / "share"
+    return base / "stripscan" / "archive.sqlite3"
+
+
+def _marked_read_only(path: Path) -> bool:
+    # The permission bits count even for an administrator, who could write
+    # anyway: a file someone made read-only is meant to stay as it is.
+    try:
+        mode = path.stat().st_mode
+    except OSError:
+        return False
+    return not (mode & 0o222) or not os.access(path, os.W_OK)
+
+
+def _sqlite_uri(path: Path, mode: str) -> str:
+    # as_uri() percent-encodes spaces, '?', '#' and non-ASCII letters,
+    # which SQLite decodes back to the UTF-8 file name.
+    return f"{path.as_uri()}?mode={mode}"
+
+
+class Archive:
+    """An open lot archive.  Use :meth:`open`; close it (or use ``with``).
+
+    Attributes
+    ----------
+    path : Path
+        The archive file.
+    read_only : bool
+        True when opened read-only or when the file's permissions forbid
+        writing; every write then raises :class:`ArchiveReadOnlyError`.
+    busy_timeout_ms : int
+        How long a write waits for another program's write to finish.
+    """
+
+    def __init__(self, connection: sqlite3.Connection, path: Path, *, read_only: bool,
+                 busy_timeout_ms: int) -> None:
+        self._conn: sqlite3.Connection | None = connection
+        self.path = path
+        self.read_only = read_only
+        self.busy_timeout_ms = busy_timeout_ms
+
+    # ------------------------------------------------------------------ opening
+
+    @classmethod
+    def open(cls, path: str | os.PathLike[str] | None = None, *,
+             busy_timeout_ms: int = DEFAULT_BUSY_TIMEOUT_MS, read_only: bool = False,
+             create: bool = True) -> "Archive":
+        """Open (or create) an archive file and bring its schema up to date.
+
+        Parameters
+        ----------
+        path : path-like, optional
+            The file; :func:`default_archive_path` when omitted.
+        busy_timeout_ms : int
+            How long to wait for another program's write before giving up
+            with :class:`ArchiveBusyError`.
+        read_only : bool
+            Open for reading only.
+        create : bool
+            Create the file (and its folders) when it does not exist.
+
+        Raises
+        ------
+        ArchiveError
+            When the file is not an SQLite database, is damaged (the message
+            carries SQLite's integrity check), belongs to another program or
+            to a newer stripscan, or cannot be created.
+        ArchiveBusyError
+            When another program holds the write lock during an upgrade.
+        """
+        if isinstance(busy_timeout_ms, bool) or not isinstance(busy_timeout_ms, int) or busy_timeout_ms < 0:
+            raise ValueError(f"busy_timeout_ms must be a whole number of milliseconds >= 0, not {busy_timeout_ms!r}")
+        path = Path(path if path is not None else default_archive_path()).expanduser().absolute()
+        if path.is_dir():
+            raise ArchiveError(f"{path} is a folder, not an archive file")
+        if not path.exists():
+            if read_only or not create:
+                raise ArchiveError(f"{path} does not exist")
+            try:
+                path.parent.mkdir(parents=True, exist_ok=True)
+            except OSError as exc:
+                raise ArchiveError(f"{path}: cannot create its folder: {exc.strerror or exc}") from None
+        read_only = read_only or _marked_read_only(path)
+        try:
+            conn = sqlite3.connect(_sqlite_uri(path, "ro" if read_only else "rwc"), uri=True,
+                                   timeout=busy_timeout_ms / 1000.0, isolation_level=None)
+        except sqlite3.Error as exc:
+            raise ArchiveError(f"{path}: cannot open: {exc}") from None
+        archive = cls(conn, path, read_only=read_only, busy_timeout_ms=busy_timeout_ms)
+        try:
+            archive._prepare()
+        except BaseException:
+            archive.close()
+            raise
+        return archive
+
+    def _prepare(self) -> None:
+        conn = self._c
+        try:
+            conn.execute(f"PRAGMA busy_timeout = {int(self.busy_timeout_ms)}")
+            conn.execute("PRAGMA foreign_keys = ON")
+            try:
+                objects = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+            except sqlite3.DatabaseError as exc:
+                if (getattr(exc, "sqlite_errorcode", 0) & 0xFF) == _SQLITE_NOTADB:
+                    raise ArchiveError(f"{self.path} is not an SQLite database: {exc}") from None
+                raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+            self._check_integrity()
+            version = conn.execute("PRAGMA user_version").fetchone()[0]
+            app_id = conn.execute("PRAGMA application_id").fetchone()[0]
+            fresh = objects == 0 and version == 0 and app_id == 0
+            if not fresh and app_id != APPLICATION_ID:
+                raise ArchiveError(f"{self.path} is an SQLite database, but not a stripscan archive")
+            if version > LATEST_VERSION:
+                raise ArchiveError(
+                    f"{self.path} was written by a newer stripscan (schema version {version}; "
+                    f"this one knows up to {LATEST_VERSION}); update stripscan to open it")
+            if self.read_only:
+                if version < LATEST_VERSION:
+                    raise ArchiveReadOnlyError(
+                        f"{self.path} is read-only and uses the older schema version {version}; "
+                        "open it once with write access to upgrade it")
+                return
+            conn.execute("PRAGMA journal_mode = WAL")
+            self._migrate()
+        except sqlite3.Error as exc:
+            raise self._translate(exc, "open it") from None
+
+    def _check_integrity(self) -> None:
+        conn = self._c
+        try:
+            # One line per problem: the command line prints errors as one line.
+            problems = [" ".join(str(row[0]).split()) for row in conn.execute("PRAGMA integrity_check")]
+            broken = conn.execute("PRAGMA foreign_key_check").fetchall()
+        except sqlite3.DatabaseError as exc:
+            raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+        if problems != ["ok"]:
+            shown = "; ".join(problems[:10]) + (f"; ... {len(problems) - 10} more" if len(problems) > 10 else "")
+            raise ArchiveError(f"{self.path} is damaged: {shown}")
+        if broken:
+            table, rowid, parent, _ = broken[0]
+            raise ArchiveError(f"{self.path} is damaged: {len(broken)} broken reference(s), "
+                               f"first {table} row {rowid} points to a missing {parent} row")
+
+    def _migrate(self) -> None:
+        conn = self._c
+        for migration in MIGRATIONS:
+            if conn.execute("PRAGMA user_version").fetchone()[0] >= migration.version:
+                continue
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                # Another program may have upgraded the file while we waited.
+                if conn.execute("PRAGMA user_version").fetchone()[0] < migration.version:
+                    for statement in migration.statements:
+                        conn.execute(statement)
+                    if migration.version == 1:
+                        conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+                    conn.execute(f"PRAGMA user_version = {migration.version}")
+                conn.execute("COMMIT")
+            except BaseException:
+                conn.execute("ROLLBACK")
+                raise
+
+    def close(self) -> None:
+        """Close the file; calling it again does nothing."""
+        if self._conn is not None:
+            conn, self._conn = self._conn, None
+            conn.close()
+
+    def __enter__(self) -> "Archive":
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        state = "closed" if self._conn is None else ("read-only" if self.read_only else "open")
+        return f"<Archive {str(self.path)!r} {state}>"
+
+    @property
+    def schema_version(self) -> int:
+        """The file's schema version (``PRAGMA user_version``)."""
+        return int(self._query("PRAGMA user_version")[0][0])
+
+    # ------------------------------------------------------------ plumbing
+
+    @property
+    def _c(self) -> sqlite3.Connection:
+        if self._conn is None:
+            raise ArchiveError(f"{self.path}: the archive is closed")
+        return self._conn
+
+    def _translate(self, exc: sqlite3.Error, action: str) -> ArchiveError:
+        """Turn an SQLite error into an archive error that names the file."""
+        code = getattr(exc, "sqlite_errorcode", None)
+        primary = code & 0xFF if isinstance(code, int) else None
+        text = str(exc)
+        if primary in (_SQLITE_BUSY, _SQLITE_LOCKED) or "database is locked" in text:
+            return ArchiveBusyError(
+                f"{self.path} is busy: another program is writing to it and did not finish "
+                f"within {self.busy_timeout_ms} ms; cannot {action} now, try again")
+        if primary == _SQLITE_READONLY or "readonly" in text:
+            return ArchiveReadOnlyError(f"{self.path} is read-only: cannot {action}")
+        if primary in (_SQLITE_CORRUPT, _SQLITE_NOTADB):
+            return ArchiveError(f"{self.path} is damaged: {text}")
+        if primary == _SQLITE_FULL:
+            return ArchiveError(f"{self.path}: cannot {action}: the disk is full")
+        return ArchiveError(f"{self.path}: cannot {action}: {text}")
+
+    def _query(self, sql: str, params: Sequence[Any] = ()) -> list[Any]:
+        try:
+            return self._c.execute(sql, params).fetchall()
+        except sqlite3.Error as exc:
+            raise self._translate(exc, "read it") from None
+
+    def _rows(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
+        try:
+            cursor = self._c.cursor()
+            cursor.row_factory = sqlite3.Row
+            return cursor.execute(sql, params).fetchall()
+        except sqlite3.Error as exc:
+            raise self._translate(exc, "read it") from None
+
+    @contextmanager
+    def _reading(self) -> Iterator[None]:
+        """Several reads that must see one state of the file (no write in between)."""
+        conn = self._c
+        if conn.in_transaction:
+            yield
+            return
+        try:
+            conn.execute("BEGIN")
+        except sqlite3.Error as exc:
+            raise self._translate(exc, "read it") from None
+        try:
+            yield
+        finally:
+            conn.execute("COMMIT")
+
+    @contextmanager
+    def _writing(self, action: str) -> Iterator[sqlite3.Connection]:
+        """One write transaction: all of it is stored, or none of it."""
+        if self.read_only:
+            raise ArchiveReadOnlyError(f"{self.path} is read-only: cannot {action}")
+        conn = self._c
+        try:
+            # IMMEDIATE takes the write lock now, so a busy file is found
+            # before anything is done rather than at COMMIT.
+            conn.execute("BEGIN IMMEDIATE")
+        except sqlite3.Error as exc:
+            raise self._translate(exc, action) from None
+        try:
+            yield conn
+            conn.execute("COMMIT")
+        except BaseException as exc:
+            if conn.in_transaction:
+                conn.execute("ROLLBACK")
+            if isinstance(exc, sqlite3.Error):
+                raise self._translate(exc, action) from None
+            raise
+
+    def _checked(self, doing: str, record_class: type, *args: Any, **kwargs: Any) -> Any:
+        """Build a record; its own checks' complaint becomes an ArchiveError naming the file."""
+        try:
+            return record_class(*args, **kwargs)
+        except ValueError as exc:
+            raise ArchiveError(f"{self.path}: cannot {doing}: {exc}") from None
+
+    def _missing(self, word: str, key: Any) -> ArchiveLookupError:
+        return ArchiveLookupError(f"{self.path}: {word} {key!r} is not in the archive")
+
+    def _exists(self, table: str, column: str, key: Any) -> bool:
+        return self._c.execute(f"SELECT 1 FROM {table} WHERE {column} = ?", (key,)).fetchone() is not None
+
+    def _require(self, record_class: type, key: Any) -> None:
+        table, column, word = _REFERENCE[record_class]
+        if not self._exists(table, column, key):
+            raise self._missing(word, key)
+
+    # ------------------------------------------------------- reference data
+
+    @staticmethod
+    def _reference_row(record: Any) -> dict[str, Any]:
+        row = record.to_dict()
+        if isinstance(record, Sensitometer):
+            row["log_exposures_json"] = canonical_json(row.pop("log_exposures"))
+        return row
+
+    @staticmethod
+    def _reference_record(record_class: type, row: sqlite3.Row) -> Any:
+        data = dict(row)
+        if record_class is Sensitometer:
+            data["log_exposures"] = tuple(json.loads(data.pop("log_exposures_json")))
+        return record_class(**data)
+
+    def _insert_reference(self, conn: sqlite3.Connection, record: Any) -> None:
+        table, column, word = _REFERENCE[type(record)]
+        key = getattr(record, column)
+        if self._exists(table, column, key):
+            raise ArchiveConflictError(f"{self.path}: {word} {key!r} is already in the archive")
+        if isinstance(record, EmulsionLot) and record.film_type is not None:
+            self._require(FilmType, record.film_type)
+        row = self._reference_row(record)
+        conn.execute(f"INSERT INTO {table} ({', '.join(row)}) VALUES ({', '.join('?' for _ in row)})",
+                     tuple(row.values()))
+
+    def _add_reference(self, record: Any) -> Any:
+        _, column, word = _REFERENCE[type(record)]
+        with self._writing(f"add {word} {getattr(record, column)!r}") as conn:
+            self._insert_reference(conn, record)
+        return record
+
+    def _get_reference(self, record_class: type, key: str) -> Any:
+        table, column, word = _REFERENCE[record_class]
+        rows = self._rows(f"SELECT * FROM {table} WHERE {column} = ?", (key,))
+        if not rows:
+            raise self._missing(word, key)
+        return self._reference_record(record_class, rows[0])
+
+    def _list_reference(self, record_class: type) -> list[Any]:
+        table, column, _ = _REFERENCE[record_class]
+        return [self._reference_record(record_class, row)
+                for row in self._rows(f"SELECT * FROM {table} ORDER BY {column}")]
+
+    def add_film_type(self, film_type: FilmType) -> FilmType:
+        """Store a film type; its name must be new."""
+        return self._add_reference(film_type)
+
+    def add_lot(self, lot: EmulsionLot) -> EmulsionLot:
+        """Store an emulsion lot; its id must be new and its film type stored."""
+        return self._add_reference(lot)
+
+    def add_processor(self, processor: Processor) -> Processor:
+        """Store a processor; its name must be new."""
+        return self._add_reference(processor)
+
+    def add_sensitometer(self, sensitometer: Sensitometer) -> Sensitometer:
+        """Store a sensitometer with its step log-exposure table; its id must be new."""
+        return self._add_reference(sensitometer)
+
+    def get_film_type(self, name: str) -> FilmType:
+        return self._get_reference(FilmType, name)
+
+    def get_lot(self, lot_id: str) -> EmulsionLot:
+        return self._get_reference(EmulsionLot, lot_id)
+
+    def get_processor(self, name: str) -> Processor:
+        return self._get_reference(Processor, name)
+
+    def get_sensitometer(self, sensitometer_id: str) -> Sensitometer:
+        return self._get_reference(Sensitometer, sensitometer_id)
+
+    def list_film_types(self) -> list[FilmType]:
+        return self._list_reference(FilmType)
+
+    def list_processors(self) -> list[Processor]:
+        return self._list_reference(Processor)
+
+    def list_sensitometers(self) -> list[Sensitometer]:
+        return self._list_reference(Sensitometer)
+
+    def list_lots(self) -> list[LotSummary]:
+        """Every lot with the count and first/last film date of its current snapshots."""
+        rows = self._rows(
+            f"SELECT l.*, count(c.id) AS n, min(c.day) AS first, max(c.day) AS last "
+            f"FROM emulsion_lots l LEFT JOIN ("
+            f"  SELECT s.id, s.lot_id, {_DAY} AS day FROM snapshots s"
+            f"  WHERE s.retired_at IS NULL"
+            f"  AND NOT EXISTS (SELECT 1 FROM snapshots n WHERE n.revises = s.id)"
+            f") c ON c.lot_id = l.lot_id GROUP BY l.lot_id ORDER BY l.lot_id")
+        lot_fields = ("lot_id", "film_type", "expiry_date", "received_date", "notes")
+        return [LotSummary(EmulsionLot(**{k: row[k] for k in lot_fields}), row["n"], row["first"], row["last"])
+                for row in rows]
+
+    # --------------------------------------------------------- calibrations
+
+    def _insert_calibration(self, conn: sqlite3.Connection, calibration: dict[str, Any]) -> str:
+        digest = calibration_hash(calibration)
+        if not self._exists("calibrations", "hash", digest):
+            conn.execute("INSERT INTO calibrations (hash, json) VALUES (?, ?)",
+                         (digest, calibration_text(calibration)))
+        return digest
+
+    def add_calibration(self, calibration: dict[str, Any]) -> str:
+        """Store a calibration once and return its content hash."""
+        try:
+            calibration_hash(calibration)
+        except ValueError as exc:
+            raise ArchiveError(f"{self.path}: cannot store calibration: {exc}") from None
+        with self._writing("store a calibration") as conn:
+            return self._insert_calibration(conn, calibration)
+
+    def get_calibration(self, digest: str) -> dict[str, Any]:
+        """The calibration stored under ``digest``."""
+        rows = self._query("SELECT json FROM calibrations WHERE hash = ?", (digest,))
+        if not rows:
+            raise self._missing("calibration", digest)
+        return json.loads(rows[0][0])
+
+    def list_calibrations(self) -> list[str]:
+        """Hashes of all stored calibrations, sorted."""
+        return [row[0] for row in self._query("SELECT hash FROM calibrations ORDER BY hash")]
+
+    # ------------------------------------------------------------ snapshots
+
+    def _next_id(self, conn: sqlite3.Connection, table: str) -> int:
+        # Safe inside BEGIN IMMEDIATE: no other writer can take the number.
+        return conn.execute(f"SELECT coalesce(max(id), 0) + 1 FROM {table}").fetchone()[0]
+
+    def _check_links(self, conn: sqlite3.Connection, snapshot: Snapshot, create_missing: bool) -> None:
+        if not self._exists("emulsion_lots", "lot_id", snapshot.lot_id):
+            if not create_missing:
+                raise self._missing("lot", snapshot.lot_id)
+            self._insert_reference(conn, EmulsionLot(snapshot.lot_id))
+        if snapshot.processor is not None and not self._exists("processors", "name", snapshot.processor):
+            if not create_missing:
+                raise self._missing("processor", snapshot.processor)
+            self._insert_reference(conn, Processor(snapshot.processor))
+        if snapshot.sensitometer is not None:
+            self._require(Sensitometer, snapshot.sensitometer)
+        if snapshot.calibration_hash is not None:
+            if not self._exists("calibrations", "hash", snapshot.calibration_hash):
+                raise self._missing("calibration", snapshot.calibration_hash)
+        if snapshot.revises is not None:
+            row = conn.execute("SELECT n.id FROM snapshots s LEFT JOIN snapshots n ON n.revises = s.id "
+                               "WHERE s.id = ?", (snapshot.revises,)).fetchone()
+            if row is None:
+                raise self._missing("snapshot", snapshot.revises)
+            if row[0] is not None:
+                raise ArchiveConflictError(f"{self.path}: snapshot {snapshot.revises} has already been "
+                                           f"revised by snapshot {row[0]}; revise that one instead")
+
+    def _insert_snapshot(self, conn: sqlite3.Connection, snapshot: Snapshot, *,
+                         create_missing: bool = False) -> None:
+        """Write one snapshot, its step table and figure columns (inside a transaction)."""
+        self._check_links(conn, snapshot, create_missing)
+        strip = snapshot.strip.to_dict()
+        steps = strip["steps"]
+        numbers = [s["step"] for s in steps]
+        if len(set(numbers)) != len(numbers):
+            raise ArchiveError(f"{self.path}: cannot store snapshot: strip {snapshot.strip.index} "
+                               "lists the same step number twice")
+        metrics = strip["metrics"]
+        values = {
+            "id": snapshot.id, "created_at": snapshot.created_at, "lot_id": snapshot.lot_id,
+            "processor": snapshot.processor, "sensitometer": snapshot.sensitometer,
+            "calibration_hash": snapshot.calibration_hash, "operator": snapshot.operator,
+            "exposed_on": snapshot.exposed_on, "processed_on": snapshot.processed_on,
+            "scanned_on": snapshot.scanned_on, "scan_path": snapshot.scan.path,
+            "scan_sha256": snapshot.scan.sha256, "scan_json": canonical_json(snapshot.scan.to_dict()),
+            "strip_index": snapshot.strip.index, "strip_json": canonical_json(strip),
+            **{name: metrics.get(name) for name in FIGURES},
+            "settings_json": canonical_json(snapshot.settings),
+            "warnings_json": canonical_json(list(snapshot.warnings)),
+            "program_version": snapshot.program_version, "notes": snapshot.notes,
+            "preview_png": snapshot.preview_png, "revises": snapshot.revises,
+            "revision_reason": snapshot.revision_reason, "retired_at": snapshot.retired_at,
+            "retired_reason": snapshot.retired_reason,
+        }
+        conn.execute(_SNAPSHOT_INSERT, tuple(values[c] for c in _SNAPSHOT_COLUMNS))
+        conn.executemany(
+            f"INSERT INTO snapshot_steps ({', '.join(_STEP_COLUMNS)}) VALUES ({', '.join('?' * len(_STEP_COLUMNS))})",
+            [(snapshot.id, s["step"], s["log_exposure"], s["od"], s["od_sd"], s["pixels"],
+              int(s["in_range"]), int(s["excluded"])) for s in steps])
+
+    def _store_new(self, conn: sqlite3.Connection, draft: NewSnapshot, *, create_missing: bool,
+                   revises: int | None = None, reason: str | None = None) -> int:
+        if not isinstance(draft, NewSnapshot):
+            raise TypeError(f"expected a NewSnapshot, not {type(draft).__name__}")
+        digest = self._insert_calibration(conn, draft.calibration) if draft.calibration is not None else None
+        snapshot_id = self._next_id(conn, "snapshots")
+        snapshot = self._checked(
+            "store snapshot", Snapshot,
+            id=snapshot_id, created_at=utc_now(), lot_id=draft.lot_id, scan=draft.scan,
+            strip=draft.strip, processor=draft.processor, sensitometer=draft.sensitometer,
+            calibration_hash=digest, operator=draft.operator, exposed_on=draft.exposed_on,
+            processed_on=draft.processed_on, scanned_on=draft.scanned_on, settings=draft.settings,
+            warnings=draft.warnings, program_version=draft.program_version, notes=draft.notes,
+            preview_png=draft.preview_png, revises=revises, revision_reason=reason)
+        self._insert_snapshot(conn, snapshot, create_missing=create_missing)
+        return snapshot_id
+
+    def add_snapshot(self, draft: NewSnapshot, *, create_missing: bool = False) -> Snapshot:
+        """Store one strip's reading and return it as stored.
+
+        Parameters
+        ----------
+        draft : NewSnapshot
+            The reading and its bookkeeping.
+        create_missing : bool
+            Add a bare lot or processor entry when the named one is not
+            stored yet, instead of refusing.
+
+        Raises
+        ------
+        ArchiveLookupError
+            When the lot, processor or sensitometer is not stored.
+        """
+        return self.add_snapshots([draft], create_missing=create_missing)[0]
+
+    def add_snapshots(self, drafts: Iterable[NewSnapshot], *, create_missing: bool = False) -> list[Snapshot]:
+        """Store several readings in one transaction: all of them or none."""
+        with self._writing("add snapshots") as conn:
+            ids = [self._store_new(conn, draft, create_missing=create_missing) for draft in drafts]
+            return [self._load_snapshot(i) for i in ids]
+
+    def add_analysis(self, analysis: Analysis, lot_id: str, *, create_missing: bool = False,
+                     **details: Any) -> list[Snapshot]:
+        """Store every strip of an analysed scan as one snapshot each, in one transaction.
+
+        ``details`` are :class:`NewSnapshot` fields such as ``processor``,
+        ``operator``, ``exposed_on``, ``processed_on`` or ``notes``.
+        """
+        try:
+            drafts = snapshots_from_analysis(analysis, lot_id, **details)
+        except (TypeError, ValueError) as exc:
+            raise ArchiveError(f"{self.path}: cannot store {analysis.scan.path}: {exc}") from None
+        return self.add_snapshots(drafts, create_missing=create_missing)
+
+    def _snapshot_from_row(self, row: Sequence[Any]) -> Snapshot:
+        data = dict(zip(_SNAPSHOT_COLUMNS, row))
+        return Snapshot(
+            id=data["id"], created_at=data["created_at"], lot_id=data["lot_id"],
+            scan=ScanInfo.from_dict(json.loads(data["scan_json"])),
+            strip=StripResult.from_dict(json.loads(data["strip_json"])),
+            processor=data["processor"], sensitometer=data["sensitometer"],
+            calibration_hash=data["calibration_hash"], operator=data["operator"],
+            exposed_on=data["exposed_on"], processed_on=data["processed_on"],
+            scanned_on=data["scanned_on"], settings=json.loads(data["settings_json"]),
+            warnings=tuple(json.loads(data["warnings_json"])), program_version=data["program_version"],
+            notes=data["notes"], preview_png=data["preview_png"], revises=data["revises"],
+            revision_reason=data["revision_reason"], retired_at=data["retired_at"],
+            retired_reason=data["retired_reason"])
+
+    def _load_snapshot(self, snapshot_id: int) -> Snapshot:
+        row = self._c.execute(f"{_SNAPSHOT_SELECT} WHERE s.id = ?", (snapshot_id,)).fetchone()
+        if row is None:
+            raise self._missing("snapshot", snapshot_id)
+        return self._snapshot_from_row(row)
+
+    def get_snapshot(self, snapshot_id: int) -> Snapshot:
+        """The snapshot with this id, retired or superseded ones included."""
+        try:
+            return self._load_snapshot(snapshot_id)
+        except sqlite3.Error as exc:
+            raise self._translate(exc, "read it") from None
+
+    def all_snapshots(self) -> list[Snapshot]:
+        """Every stored snapshot in full, in id order (for export and audits)."""
+        return [self._snapshot_from_row(row) for row in self._query(f"{_SNAPSHOT_SELECT} ORDER BY s.id")]
+
+    def list_snapshots(self, lot: str | None = None, processor: str | None = None, *,
+                       include_retired: bool = False, include_superseded: bool = False) -> list[SnapshotSummary]:
+        """Snapshot summaries in film-date order.
+
+        By default only current snapshots: the latest revision of each
+        chain, and not retired.
+
+        Parameters
+        ----------
+        lot, processor : str, optional
+            Keep only this lot's / this processor's snapshots.
+        include_retired : bool
+            Also list retired snapshots.
+        include_superseded : bool
+            Also list snapshots that a later revision corrects.
+        """
+        where, params = self._filters(lot=[lot] if lot is not None else None, processor=processor,
+                                      include_retired=include_retired, include_superseded=include_superseded)
+        rows = self._query(f"{_SUMMARY_SELECT}{where} ORDER BY day, s.id", params)
+        return [SnapshotSummary(*row) for row in rows]
+
+    @staticmethod
+    def _filters(*, lot: Sequence[str] | None, processor: str | None, include_retired: bool,
+                 include_superseded: bool) -> tuple[str, list[Any]]:
+        clauses: list[str] = []
+        params: list[Any] = []
+        if lot is not None:
+            clauses.append(f"s.lot_id IN ({', '.join('?' for _ in lot)})")
+            params.extend(lot)
+        if processor is not None:
+            clauses.append("s.processor = ?")
+            params.append(processor)
+        if not include_retired:
+            clauses.append("s.retired_at IS NULL")
+        if not include_superseded:
+            clauses.append("n.id IS NULL")
+        return (" WHERE " + " AND ".join(clauses) if clauses else ""), params
+
+    def trend(self, figure: str, lots: Sequence[str] | str | None = None, *, processor: str | None = None,
+              include_retired: bool = False) -> list[TrendPoint]:
+        """A figure over time: ``(date, value, lot, snapshot_id)`` of current snapshots.
+
+        Snapshots where the figure could not be read are left out.
+
+        Parameters
+        ----------
+        figure : str
+            One of :data:`~stripscan.archive.records.FIGURES`.
+        lots : sequence of str, optional
+            Lots to include (all when omitted).
+        processor : str, optional
+            Keep only this processor's snapshots.
+        """
+        if figure not in FIGURES:
+            raise ArchiveError(f"unknown figure {figure!r}; choose one of {', '.join(FIGURES)}")
+        if isinstance(lots, str):
+            lots = [lots]
+        where, params = self._filters(lot=list(lots) if lots is not None else None, processor=processor,
+                                      include_retired=include_retired, include_superseded=False)
+        where += (" AND " if where else " WHERE ") + f"s.{figure} IS NOT NULL"
+        rows = self._query(
+            f"SELECT {_DAY} AS day, s.{figure}, s.lot_id, s.id FROM snapshots s "
+            f"LEFT JOIN snapshots n ON n.revises = s.id{where} ORDER BY day, s.id", params)
+        return [TrendPoint(*row) for row in rows]
+
+    def step_table(self, snapshot_id: int) -> list[tuple[int, float, float | None, float | None, bool, bool]]:
+        """``(step, log_exposure, od, od_sd, in_range, excluded)`` rows of a snapshot, by step."""
+        if not self._query("SELECT 1 FROM snapshots WHERE id = ?", (snapshot_id,)):
+            raise self._missing("snapshot", snapshot_id)
+        rows = self._query("SELECT step, log_exposure, od, od_sd, in_range, excluded FROM snapshot_steps "
+                           "WHERE snapshot_id = ? ORDER BY step", (snapshot_id,))
+        return [(s, e, od, sd, bool(r), bool(x)) for s, e, od, sd, r, x in rows]
+
+    # ------------------------------------------------- revisions, retirement
+
+    def _require_latest(self, conn: sqlite3.Connection, snapshot_id: int, doing: str) -> None:
+        """Refuse to ``doing`` a snapshot that is retired or already corrected by a revision."""
+        row = conn.execute("SELECT n.id, s.retired_at, s.retired_reason FROM snapshots s "
+                           "LEFT JOIN snapshots n ON n.revises = s.id WHERE s.id = ?", (snapshot_id,)).fetchone()
+        if row is None:
+            raise self._missing("snapshot", snapshot_id)
+        superseded_by, retired_at, retired_reason = row
+        if retired_at is not None:
+            raise ArchiveConflictError(f"{self.path}: snapshot {snapshot_id} was retired on {retired_at} "
+                                       f"({retired_reason}); a retired snapshot cannot be {doing}")
+        if superseded_by is not None:
+            raise ArchiveConflictError(f"{self.path}: snapshot {snapshot_id} has already been revised by "
+                                       f"snapshot {superseded_by}; only the latest revision can be {doing}")
+
+    def _reason(self, reason: str, doing: str) -> str:
+        if not isinstance(reason, str) or not reason.strip():
+            raise ArchiveError(f"{self.path}: a snapshot is {doing} only with a reason")
+        return reason.strip()
+
+    def revise(self, snapshot_id: int, new_record: NewSnapshot, reason: str) -> Snapshot:
+        """Correct a snapshot by storing ``new_record`` as its revision.
+
+        The old snapshot stays as it was and readable; listings and trends
+        show the revision in its place.  Only the latest revision of a chain
+        can be revised, and a retired snapshot cannot be.
+
+        Raises
+        ------
+        ArchiveError
+            When ``reason`` is empty.
+        ArchiveConflictError
+            When the snapshot is retired or has already been revised.
+        """
+        reason = self._reason(reason, "revised")
+        with self._writing(f"revise snapshot {snapshot_id}") as conn:
+            self._require_latest(conn, snapshot_id, "revised")
+            new_id = self._store_new(conn, new_record, create_missing=False, revises=snapshot_id, reason=reason)
+            return self._load_snapshot(new_id)
+
+    def retire(self, snapshot_id: int, reason: str) -> Snapshot:
+        """Withdraw a snapshot from listings and trends, keeping it readable.
+
+        A snapshot is retired once.  To withdraw a corrected reading, retire
+        the latest revision of its chain.
+        """
+        reason = self._reason(reason, "retired")
+        with self._writing(f"retire snapshot {snapshot_id}") as conn:
+            self._require_latest(conn, snapshot_id, "retired")
+            conn.execute("UPDATE snapshots SET retired_at = ?, retired_reason = ? WHERE id = ?",
+                         (utc_now(), reason, snapshot_id))
+            return self._load_snapshot(snapshot_id)
+
+    def history(self, snapshot_id: int) -> list[Snapshot]:
+        """The whole revision chain ``snapshot_id`` belongs to, oldest first."""
+        with self._reading():
+            rows = self._query(
+                "WITH RECURSIVE up(id, revises) AS ("
+                "  SELECT id, revises FROM snapshots WHERE id = ?"
+                "  UNION ALL SELECT s.id, s.revises FROM snapshots s JOIN up ON s.id = up.revises),"
+                " down(id) AS ("
+                "  SELECT id FROM up WHERE revises IS NULL"
+                "  UNION ALL SELECT s.id FROM snapshots s JOIN down ON s.revises = down.id)"
+                " SELECT id FROM down ORDER BY id", (snapshot_id,))
+            if not rows:
+                raise self._missing("snapshot", snapshot_id)
+            return [self.get_snapshot(row[0]) for row in rows]
+
+    # ------------------------------------------------------------ notes
+
+    def add_note(self, snapshot_id: int, text: str, author: str = "") -> SnapshotNote:
+        """Attach a remark to a snapshot without changing it."""
+        with self._writing(f"add a note to snapshot {snapshot_id}") as conn:
+            if not self._exists("snapshots", "id", snapshot_id):
+                raise self._missing("snapshot", snapshot_id)
+            note = self._checked("add note", SnapshotNote, self._next_id(conn, "snapshot_notes"), snapshot_id,
+                                 utc_now(), text, author)
+            self._insert_note(conn, note)
+            return note
+
+    @staticmethod
+    def _insert_note(conn: sqlite3.Connection, note: SnapshotNote) -> None:
+        conn.execute("INSERT INTO snapshot_notes (id, snapshot_id, created_at, author, text) VALUES (?, ?, ?, ?, ?)",
+                     (note.id, note.snapshot_id, note.created_at, note.author, note.text))
+
+    def list_notes(self, snapshot_id: int | None = None) -> list[SnapshotNote]:
+        """Notes of one snapshot (or all notes), oldest first."""
+        sql = "SELECT id, snapshot_id, created_at, text, author FROM snapshot_notes"
+        params: tuple[Any, ...] = ()
+        if snapshot_id is not None:
+            sql, params = sql + " WHERE snapshot_id = ?", (snapshot_id,)
+        return [SnapshotNote(*row) for row in self._query(sql + " ORDER BY id", params)]
+
+    # ------------------------------------------------------ processor QC
+
+    def _check_qc_processor(self, processor: str) -> None:
+        if not self._exists("processors", "name", processor):
+            raise self._missing("processor", processor)
+
+    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry) -> None:
+        self._check_qc_processor(entry.processor)
+        if entry.snapshot_id is not None and not self._exists("snapshots", "id", entry.snapshot_id):
+            raise self._missing("snapshot", entry.snapshot_id)
+        if conn.execute("SELECT 1 FROM qc_entries WHERE processor = ? AND date = ?",
+                        (entry.processor, entry.date)).fetchone():
+            raise ArchiveConflictError(f"{self.path}: processor {entry.processor!r} already has a QC entry "
+                                       f"for {entry.date} (duplicate day)")
+        row = entry.to_dict()
+        conn.execute(f"INSERT INTO qc_entries ({', '.join(row)}) VALUES ({', '.join('?' for _ in row)})",
+                     tuple(row.values()))
+
+    def add_qc_entry(self, entry: QcEntry) -> QcEntry:
+        """Store one day's QC densities for a processor; one entry per processor and day."""
+        with self._writing(f"add the QC entry of {entry.date}") as conn:
+            self._insert_qc_entry(conn, entry)
+        return entry
+
+    def list_qc_entries(self, processor: str | None = None, *, since: str | None = None,
+                        until: str | None = None) -> list[QcEntry]:
+        """QC entries by processor and date, optionally only from ``since`` to ``until`` (inclusive)."""
+        clauses, params = [], []
+        for clause, value in (("processor = ?", processor), ("date >= ?", since), ("date <= ?", until)):
+            if value is not None:
+                clauses.append(clause)
+                params.append(value)
+        where = " WHERE " + " AND ".join(clauses) if clauses else ""
+        return [QcEntry(**dict(row)) for row in
+                self._rows(f"SELECT * FROM qc_entries{where} ORDER BY processor, date", params)]
+
+    def add_qc_event(self, processor: str, date: str, kind: str, note: str = "") -> QcEvent:
+        """Record something that happened to a processor (chemistry change, service, ...)."""
+        with self._writing(f"add a QC event for {processor!r}") as conn:
+            event = self._checked("add QC event", QcEvent, self._next_id(conn, "qc_events"), processor, date,
+                                  kind, note)
+            self._insert_qc_event(conn, event)
+            return event
+
+    def _insert_qc_event(self, conn: sqlite3.Connection, event: QcEvent) -> None:
+        self._check_qc_processor(event.processor)
+        conn.execute("INSERT INTO qc_events (id, processor, date, kind, note) VALUES (?, ?, ?, ?, ?)",
+                     (event.id, event.processor, event.date, event.kind, event.note))
+
+    def list_qc_events(self, processor: str | None = None) -> list[QcEvent]:
+        where, params = (" WHERE processor = ?", (processor,)) if processor is not None else ("", ())
+        return [QcEvent(**dict(row)) for row in
+                self._rows(f"SELECT * FROM qc_events{where} ORDER BY processor, date, id", params)]
+
+    def set_qc_settings(self, processor: str, settings: dict[str, Any]) -> QcSettings:
+        """Store (or replace) a processor's QC settings: operating levels, limits, steps."""
+        with self._writing(f"store QC settings for {processor!r}") as conn:
+            record = self._checked("store QC settings", QcSettings, processor, settings, utc_now())
+            conn.execute("DELETE FROM qc_settings WHERE processor = ?", (processor,))
+            self._insert_qc_settings(conn, record)
+            return record
+
+    def _insert_qc_settings(self, conn: sqlite3.Connection, record: QcSettings) -> None:
+        self._check_qc_processor(record.processor)
+        conn.execute("INSERT INTO qc_settings (processor, settings_json, updated_at) VALUES (?, ?, ?)",
+                     (record.processor, canonical_json(record.settings), record.updated_at))
+
+    def get_qc_settings(self, processor: str) -> QcSettings | None:
+        """A processor's QC settings, or None when none are stored."""
+        rows = self._query("SELECT processor, settings_json, updated_at FROM qc_settings WHERE processor = ?",
+                           (processor,))
+        return QcSettings(rows[0][0], json.loads(rows[0][1]), rows[0][2]) if rows else None
+
+    def list_qc_settings(self) -> list[QcSettings]:
+        return [QcSettings(p, json.loads(s), u) for p, s, u in
+                self._query("SELECT processor, settings_json, updated_at FROM qc_settings ORDER BY processor")]
+
+    def add_crossover(self, processor: str, date: str, record: dict[str, Any]) -> Crossover:
+        """Store a crossover (old lot against new lot) as plain JSON."""
+        with self._writing(f"add a crossover for {processor!r}") as conn:
+            crossover = self._checked("add crossover", Crossover, self._next_id(conn, "crossovers"), processor,
+                                      date, record)
+            self._insert_crossover(conn, crossover)
+            return crossover
+
+    def _insert_crossover(self, conn: sqlite3.Connection, crossover: Crossover) -> None:
+        self._check_qc_processor(crossover.processor)
+        conn.execute("INSERT INTO crossovers (id, processor, date, record_json) VALUES (?, ?, ?, ?)",
+                     (crossover.id, crossover.processor, crossover.date, canonical_json(crossover.record)))
+
+    def list_crossovers(self, processor: str | None = None) -> list[Crossover]:
+        where, params = (" WHERE processor = ?", (processor,)) if processor is not None else ("", ())
+        return [Crossover(i, p, d, json.loads(r)) for i, p, d, r in
+                self._query(f"SELECT id, processor, date, record_json FROM crossovers{where} "
+                            "ORDER BY processor, date, id", params)]
+
+    # ------------------------------------------------ export, import, backup
+
+    def export_json(self, path: str | os.PathLike[str]) -> Path:
+        """Write everything in the archive to a JSON file that :meth:`import_json` reads back exactly."""
+        from .exchange import export_json
+        return export_json(self, Path(path))
+
+    def import_json(self, path: str | os.PathLike[str]) -> ImportReport:
+        """Add an exported JSON file's contents in one transaction.
+
+        Items already present with the same content are left alone; an item
+        whose key (id, name, processor and day) is taken by other content
+        stops the import with :class:`ArchiveConflictError`, and nothing of
+        the file is stored.
+        """
+        from .exchange import import_json
+        return import_json(self, Path(path))
+
+    def export_csv(self, path: str | os.PathLike[str], *, lot: str | None = None, processor: str | None = None,
+                   include_retired: bool = False, include_superseded: bool = False) -> Path:
+        """Write the snapshots' figures as a UTF-8 CSV table, header row with units."""
+        from .exchange import export_csv
+        return export_csv(self, Path(path), lot=lot, processor=processor, include_retired=include_retired,
+                          include_superseded=include_superseded)
+
+    def backup(self, dest: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
+        """Copy the archive to ``dest`` with SQLite's online backup, safe while others write."""
+        from .exchange import backup
+        return backup(self, Path(dest), overwrite=overwrite)
+
