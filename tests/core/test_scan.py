@@ -1,0 +1,148 @@
+"""Loading scans: formats, resolution tags, sRGB decoding, channel rules, bad files."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import tifffile
+
+from stripscan.core.scan import ScanError, decode_srgb, load_scan, reduce_channels
+
+
+def _ramp(shape=(40, 60), top=65535, dtype=np.uint16):
+    return (np.linspace(0, top, shape[0] * shape[1]).reshape(shape)).astype(dtype)
+
+
+@pytest.mark.parametrize(
+    "kwargs",
+    [
+        {},
+        {"compression": "zlib"},
+        {"compression": "lzw"},
+        {"tile": (16, 16)},
+        {"tile": (16, 16), "compression": "zlib"},
+    ],
+)
+def test_16bit_grey_tiff_is_linear_and_scaled(tmp_path, kwargs):
+    image = _ramp()
+    path = tmp_path / "scan.tif"
+    tifffile.imwrite(path, image, resolution=(300, 300), resolutionunit="INCH", **kwargs)
+    scan = load_scan(path)
+    assert scan.info.bits == 16 and scan.info.decoding == "linear" and scan.info.channel == "grey"
+    np.testing.assert_allclose(scan.signal, image / 65535.0, rtol=0, atol=1e-7)
+    assert scan.info.dpi == pytest.approx(300.0)
+    assert (scan.info.width, scan.info.height) == (60, 40)
+
+
+def test_resolution_in_centimetres_becomes_dpi(tmp_path):
+    path = tmp_path / "cm.tif"
+    tifffile.imwrite(path, _ramp(), resolution=(118.11, 118.11), resolutionunit="CENTIMETER")
+    # 118.11 px/cm * 2.54 cm/inch = 300 dpi
+    assert load_scan(path).info.dpi == pytest.approx(300.0, abs=0.01)
+
+
+def test_dpi_override_wins(tmp_path):
+    path = tmp_path / "scan.tif"
+    tifffile.imwrite(path, _ramp(), resolution=(300, 300), resolutionunit="INCH")
+    assert load_scan(path, dpi=600).info.dpi == 600
+
+
+def test_srgb_decoding_matches_scikit_image_reference():
+    # Reference implementation: scikit-image's rgb2xyz linearises sRGB (IEC 61966-2-1)
+    # and then applies its matrix; undo the matrix to get its linear values.
+    from skimage.color import rgb2xyz
+    from skimage.color.colorconv import xyz_from_rgb
+
+    encoded = np.linspace(0, 1, 256, dtype=np.float64)
+    rgb = np.stack([encoded] * 3, axis=-1).reshape(1, -1, 3)
+    linear_ref = rgb2xyz(rgb).reshape(-1, 3) @ np.linalg.inv(xyz_from_rgb).T
+    np.testing.assert_allclose(decode_srgb(encoded), linear_ref[:, 0], atol=2e-6)
+
+
+def test_8bit_rgb_is_decoded_from_srgb_and_channels_averaged(tmp_path):
+    rng = np.random.default_rng(0)
+    image = rng.integers(0, 256, size=(32, 48, 3), dtype=np.uint8)
+    path = tmp_path / "rgb.tif"
+    tifffile.imwrite(path, image, photometric="rgb")
+    scan = load_scan(path)
+    assert scan.info.bits == 8 and scan.info.decoding == "srgb" and scan.info.channel == "mean"
+    expected = decode_srgb(image / 255.0).mean(axis=-1)
+    np.testing.assert_allclose(scan.signal, expected, atol=1e-6)
+
+
+def test_rgba_png_and_channel_choice(tmp_path):
+    import imageio.v3 as iio
+
+    image = np.zeros((32, 40, 4), dtype=np.uint8)
+    image[..., 0], image[..., 1], image[..., 2], image[..., 3] = 200, 100, 50, 255
+    path = tmp_path / "scan.png"
+    iio.imwrite(path, image)
+    green = load_scan(path, channel="green")
+    assert green.info.channel == "green"
+    np.testing.assert_allclose(green.signal, decode_srgb(np.full((32, 40), 100 / 255.0)), atol=1e-6)
+
+
+def test_jpeg_loads(tmp_path):
+    import imageio.v3 as iio
+
+    path = tmp_path / "scan.jpg"
+    iio.imwrite(path, np.full((32, 32), 128, dtype=np.uint8))
+    scan = load_scan(path)
+    assert scan.info.bits == 8 and scan.signal.shape == (32, 32)
+
+
+def test_gamma_decoding_option(tmp_path):
+    path = tmp_path / "g.tif"
+    tifffile.imwrite(path, np.full((20, 20), 128, dtype=np.uint8))
+    scan = load_scan(path, decoding="gamma", gamma=2.2)
+    assert scan.signal[0, 0] == pytest.approx((128 / 255) ** 2.2, rel=1e-5)
+
+
+def test_luminance_weights_are_rec709():
+    rgb = np.zeros((2, 2, 3), dtype=np.float32)
+    rgb[..., 1] = 1.0
+    # IEC 61966-2-1 / Rec. 709: Y = 0.2126 R + 0.7152 G + 0.0722 B
+    signal, used = reduce_channels(rgb, "luminance")
+    assert used == "luminance" and signal[0, 0] == pytest.approx(0.7152)
+
+
+def test_saturated_pixels_are_marked(tmp_path):
+    image = np.full((20, 20), 30000, dtype=np.uint16)
+    image[:5] = 65535
+    image[-5:] = 0
+    path = tmp_path / "sat.tif"
+    tifffile.imwrite(path, image)
+    scan = load_scan(path)
+    assert scan.saturated[:5].all() and scan.saturated[-5:].all() and not scan.saturated[5:15].any()
+
+
+@pytest.mark.parametrize(
+    "make, message",
+    [
+        (lambda p: p.write_bytes(b""), "empty"),
+        (lambda p: p.write_bytes(b"this is not an image at all\n" * 20), "cannot be read"),
+        (lambda p: tifffile.imwrite(p, np.zeros((1, 1), np.uint16)), "too small"),
+        (lambda p: tifffile.imwrite(p, np.full((20, 20), 5.0, np.float32)), "floating-point"),
+        (lambda p: tifffile.imwrite(p, np.zeros((20, 20), np.int32)), "unsupported sample type"),
+    ],
+)
+def test_bad_files_name_the_file_and_the_problem(tmp_path, make, message):
+    path = tmp_path / "bad.tif"
+    make(path)
+    with pytest.raises(ScanError) as info:
+        load_scan(path)
+    assert str(path) in str(info.value) and message in str(info.value)
+
+
+def test_truncated_tiff_is_refused(tmp_path):
+    path = tmp_path / "cut.tif"
+    tifffile.imwrite(path, _ramp((200, 200)))
+    data = path.read_bytes()
+    path.write_bytes(data[: len(data) // 3])
+    with pytest.raises(ScanError, match="cut.tif"):
+        load_scan(path)
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(ScanError, match="no such file"):
+        load_scan(tmp_path / "nothing.tif")
