@@ -31,7 +31,7 @@ import numpy as np
 from scipy.interpolate import CubicHermiteSpline, CubicSpline
 from scipy.optimize import brentq
 
-from .qc import choose_qc_steps
+from .qc import choose_qc_steps, closest_step
 from .records import CurveFigures
 
 __all__ = [
@@ -257,9 +257,15 @@ def compute_figures(
         value = curve.log_exposure_at(base_fog + net)
         if value is None:
             top = float(d.max()) - base_fog
-            notes.append(
-                f"{label}: the usable steps never reach net density {net:.2f} (highest net {top:.2f})"
-            )
+            if top >= net:
+                notes.append(
+                    f"{label}: net density {net:.2f} lies below the lightest usable step "
+                    f"(net {float(d[0]) - base_fog:.2f})"
+                )
+            else:
+                notes.append(
+                    f"{label}: the usable steps never reach net density {net:.2f} (highest net {top:.2f})"
+                )
         return value
 
     speed = at_net(settings.speed_net_density, "speed point")
@@ -289,22 +295,23 @@ def compute_figures(
         else:
             notes.append("ISO speed: net density 1.00 is not reached")
 
-    qc = choose_qc_steps(
-        list(d),
-        mid_target=settings.mid_density_target,
-        dd_high_target=settings.dd_high_target,
-        dd_low_target=settings.dd_low_target,
-        rule=settings.dd_rule,
-    )
-    mid_step = int(numbers[qc.mid_step - 1]) if qc.mid_step else None
-    mid_density = float(d[qc.mid_step - 1]) if qc.mid_step else None
-    if qc.dd_high_step and qc.dd_low_step:
-        hi_step, lo_step = int(numbers[qc.dd_high_step - 1]), int(numbers[qc.dd_low_step - 1])
-        dd = float(d[qc.dd_high_step - 1] - d[qc.dd_low_step - 1])
-    else:
+    mid_index = closest_step(d, settings.mid_density_target) - 1
+    mid_step, mid_density = int(numbers[mid_index]), float(d[mid_index])
+    try:
+        qc = choose_qc_steps(
+            list(d),
+            mid_target=settings.mid_density_target,
+            dd_high_target=settings.dd_high_target,
+            dd_low_target=settings.dd_low_target,
+            rule=settings.dd_rule,
+        )
+    except ValueError as exc:
         hi_step = lo_step = None
         dd = None
-        notes.append("density difference: no usable steps satisfy the rule")
+        notes.append(f"density difference: {exc}")
+    else:
+        hi_step, lo_step = int(numbers[qc.dd_high_step - 1]), int(numbers[qc.dd_low_step - 1])
+        dd = float(d[qc.dd_high_step - 1] - d[qc.dd_low_step - 1])
     relative_speed = None
     if settings.reference_speed_log_exposure is not None and speed is not None:
         relative_speed = relative_speed_percent(speed - settings.reference_speed_log_exposure)

@@ -607,7 +607,12 @@ class CrossoverResult(_Record):
 # Choosing the steps
 
 
-def _closest_step(d: np.ndarray, target: float) -> int:
+def closest_step(densities: Sequence[float], target: float) -> int:
+    """1-based step whose density is closest to ``target``; decimal ties go to the lower step.
+
+    NaN marks a step that was not read; it is never chosen.
+    """
+    d = np.asarray(densities, dtype=float)
     # Rounded distances make decimal ties real ties (|1.05 - 1.20| and
     # |1.35 - 1.20| differ in binary); argmin then keeps the lower step.
     distance = np.round(np.abs(d - target), _DIGITS)
@@ -671,9 +676,9 @@ def choose_qc_steps(
         raise ValueError("need the densities of at least 2 readable steps, in one row")
     if np.isinf(d).any():
         raise ValueError(f"density of step {int(np.flatnonzero(np.isinf(d))[0]) + 1} is infinite")
-    mid = _closest_step(d, mid_target)
+    mid = closest_step(d, mid_target)
     if rule == "closest":
-        high, low = _closest_step(d, dd_high_target), _closest_step(d, dd_low_target)
+        high, low = closest_step(d, dd_high_target), closest_step(d, dd_low_target)
     else:
         high = _bounded_step(d, dd_high_target, densest_below=True)
         low = _bounded_step(d, dd_low_target, densest_below=False)
