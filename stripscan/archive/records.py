@@ -688,7 +688,8 @@ class ImportReport(_Plain):
     unchanged: dict[str, int]
 
 
-def snapshots_from_analysis(analysis: Analysis, lot_id: str, **details: Any) -> list[NewSnapshot]:
+def snapshots_from_analysis(analysis: Analysis, lot_id: str, *, calibration: dict[str, Any] | None = None,
+                            **details: Any) -> list[NewSnapshot]:
     """One :class:`NewSnapshot` per strip of an analysed scan.
 
     Parameters
@@ -697,25 +698,38 @@ def snapshots_from_analysis(analysis: Analysis, lot_id: str, **details: Any) -> 
         The pipeline's result for one scan.
     lot_id : str
         Emulsion lot of the strips.
+    calibration : dict, optional
+        The full calibration used (its ``to_dict()``).  The analysis itself
+        carries only a summary; when that summary names the calibration's
+        sha256, it must match this one's content hash.  Without it the
+        summary is stored as the calibration.
     **details
         Any other :class:`NewSnapshot` field (processor, operator,
-        exposed_on, notes...) applied to every strip.  Scan, calibration,
-        settings, warnings and program version come from ``analysis``.
+        exposed_on, notes...) applied to every strip.  Scan, settings,
+        warnings and program version come from ``analysis``.
 
     Raises
     ------
     ValueError
-        When the scan holds no strip, or a detail is not acceptable.
+        When the scan holds no strip, the calibration is not the one the
+        analysis used, or a detail is not acceptable.
     """
     if not analysis.strips:
         raise ValueError(f"no strip was found on {analysis.scan.path}; nothing to store")
-    taken = {"scan", "strip", "calibration", "settings", "warnings", "program_version"}
+    taken = {"scan", "strip", "settings", "warnings", "program_version"}
     clash = taken.intersection(details)
     if clash:
         raise ValueError(f"{', '.join(sorted(clash))} come(s) from the analysis and cannot be given")
+    used = analysis.calibration
+    if calibration is not None:
+        named = used.get("sha256") if isinstance(used, dict) else None
+        if named is not None and named != calibration_hash(calibration):
+            raise ValueError(f"the calibration given (sha256 {calibration_hash(calibration)[:12]}...) is not "
+                             f"the one the analysis used (sha256 {str(named)[:12]}...)")
+        used = calibration
     return [
         NewSnapshot(
-            lot_id=lot_id, scan=analysis.scan, strip=strip, calibration=analysis.calibration,
+            lot_id=lot_id, scan=analysis.scan, strip=strip, calibration=used,
             settings=dict(analysis.settings), warnings=tuple(analysis.warnings),
             program_version=analysis.program_version, **details,
         )

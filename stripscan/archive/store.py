@@ -618,15 +618,17 @@ class Archive:
             ids = [self._store_new(conn, draft, create_missing=create_missing) for draft in drafts]
             return [self._load_snapshot(i) for i in ids]
 
-    def add_analysis(self, analysis: Analysis, lot_id: str, *, create_missing: bool = False,
-                     **details: Any) -> list[Snapshot]:
+    def add_analysis(self, analysis: Analysis, lot_id: str, *, calibration: dict[str, Any] | None = None,
+                     create_missing: bool = False, **details: Any) -> list[Snapshot]:
         """Store every strip of an analysed scan as one snapshot each, in one transaction.
 
+        ``calibration`` is the full calibration used (see
+        :func:`~stripscan.archive.records.snapshots_from_analysis`);
         ``details`` are :class:`NewSnapshot` fields such as ``processor``,
         ``operator``, ``exposed_on``, ``processed_on`` or ``notes``.
         """
         try:
-            drafts = snapshots_from_analysis(analysis, lot_id, **details)
+            drafts = snapshots_from_analysis(analysis, lot_id, calibration=calibration, **details)
         except (TypeError, ValueError) as exc:
             raise ArchiveError(f"{self.path}: cannot store {analysis.scan.path}: {exc}") from None
         return self.add_snapshots(drafts, create_missing=create_missing)

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import re
 import sqlite3
 import struct
 import zlib
@@ -131,3 +132,8 @@ def raw_connection(path: Path, **kwargs: Any) -> Iterator[sqlite3.Connection]:
     """A plain sqlite3 connection, closed afterwards, for looking behind the archive's back."""
     with closing(sqlite3.connect(path, isolation_level=None, **kwargs)) as conn:
         yield conn
+
+
+def escaped(path: Path) -> str:
+    """``path`` as a regular expression matching itself, for ``pytest.raises(match=...)``."""
+    return re.escape(str(path))

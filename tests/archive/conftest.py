@@ -2,13 +2,20 @@
 
 from __future__ import annotations
 
+import sys
 from collections.abc import Callable, Iterator
 from pathlib import Path
 
 import pytest
-from archive_factory import make_draft, populate
 
-from stripscan.archive import Archive, NewSnapshot
+# pytest may run with --import-mode=importlib, which puts no test folder on
+# sys.path; the test modules and child processes import the builders by name.
+if str(Path(__file__).parent) not in sys.path:
+    sys.path.insert(0, str(Path(__file__).parent))
+
+from archive_factory import make_draft, populate  # noqa: E402
+
+from stripscan.archive import Archive, NewSnapshot  # noqa: E402
 
 
 @pytest.fixture

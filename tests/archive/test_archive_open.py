@@ -8,7 +8,7 @@ import sys
 from pathlib import Path
 
 import pytest
-from archive_factory import make_draft, populate, raw_connection
+from archive_factory import escaped, make_draft, populate, raw_connection
 
 from stripscan.archive import Archive, ArchiveError, ArchiveReadOnlyError, default_archive_path
 from stripscan.archive.migrations import APPLICATION_ID, LATEST_VERSION
@@ -76,7 +76,7 @@ def test_garbage_file_is_refused_by_name_and_left_untouched(tmp_path: Path) -> N
     path.write_bytes(garbage)
     # SQLite docs (fileformat.html): a database starts with "SQLite format 3\0";
     # anything else is SQLITE_NOTADB.
-    with pytest.raises(ArchiveError, match=rf"^{_re(path)} is not an SQLite database"):
+    with pytest.raises(ArchiveError, match=rf"^{escaped(path)} is not an SQLite database"):
         Archive.open(path)
     assert path.read_bytes() == garbage
 
@@ -88,7 +88,7 @@ def test_truncated_header_is_refused(archive_path: Path) -> None:
     archive_path.write_bytes(whole[:60])
     # SQLite docs (fileformat.html): the header is 100 bytes; a shorter file
     # is not a database.
-    with pytest.raises(ArchiveError, match=rf"^{_re(archive_path)} is damaged: "):
+    with pytest.raises(ArchiveError, match=rf"^{escaped(archive_path)} is damaged: "):
         Archive.open(archive_path)
     assert archive_path.read_bytes() == whole[:60]
 
@@ -112,7 +112,7 @@ def test_damaged_index_is_reported_with_the_integrity_check_output(archive_path:
     _damage(archive_path, _root_page(archive_path, "snapshots_lot"), 100, 4096, b"\x07")
     # SQLite docs (pragma.html#pragma_integrity_check): a damaged index is
     # reported as rows "row N missing from index NAME".
-    with pytest.raises(ArchiveError, match=rf"^{_re(archive_path)} is damaged: .*missing from index snapshots_lot"):
+    with pytest.raises(ArchiveError, match=rf"^{escaped(archive_path)} is damaged: .*missing from index snapshots_lot"):
         Archive.open(archive_path)
 
 
@@ -123,7 +123,7 @@ def test_badly_damaged_pages_are_reported(archive_path: Path) -> None:
     for page in range(3, 12):
         # Overwrite b-tree page headers: SQLite gives up with SQLITE_CORRUPT.
         _damage(archive_path, page, 0, 64, b"\xff")
-    with pytest.raises(ArchiveError, match=rf"^{_re(archive_path)} is damaged: database disk image is malformed"):
+    with pytest.raises(ArchiveError, match=rf"^{escaped(archive_path)} is damaged: database disk image is malformed"):
         Archive.open(archive_path)
 
 
@@ -131,7 +131,7 @@ def test_other_sqlite_database_is_not_taken_for_an_archive(tmp_path: Path) -> No
     path = tmp_path / "inventory.sqlite"
     with raw_connection(path) as conn:
         conn.execute("CREATE TABLE boxes (shelf TEXT)")
-    with pytest.raises(ArchiveError, match=rf"^{_re(path)} is an SQLite database, but not a stripscan archive"):
+    with pytest.raises(ArchiveError, match=rf"^{escaped(path)} is an SQLite database, but not a stripscan archive"):
         Archive.open(path)
 
 
@@ -140,14 +140,14 @@ def test_archive_from_a_newer_program_is_refused(archive_path: Path) -> None:
         pass
     with raw_connection(archive_path) as conn:
         conn.execute(f"PRAGMA user_version = {LATEST_VERSION + 1}")
-    with pytest.raises(ArchiveError, match=rf"{_re(archive_path)} was written by a newer stripscan"):
+    with pytest.raises(ArchiveError, match=rf"{escaped(archive_path)} was written by a newer stripscan"):
         Archive.open(archive_path)
 
 
 def test_missing_file_is_not_created_when_asked_not_to(tmp_path: Path) -> None:
     path = tmp_path / "absent.sqlite3"
     for kwargs in ({"create": False}, {"read_only": True}):
-        with pytest.raises(ArchiveError, match=rf"^{_re(path)} does not exist$"):
+        with pytest.raises(ArchiveError, match=rf"^{escaped(path)} does not exist$"):
             Archive.open(path, **kwargs)
     assert not path.exists()
 
@@ -192,7 +192,7 @@ def test_file_marked_read_only_opens_for_reading_and_refuses_writes(archive_path
         with Archive.open(archive_path) as archive:
             assert archive.read_only
             assert len(archive.list_snapshots()) == 1
-            with pytest.raises(ArchiveReadOnlyError, match=rf"^{_re(archive_path)} is read-only: cannot add snapshots"):
+            with pytest.raises(ArchiveReadOnlyError, match=rf"^{escaped(archive_path)} is read-only: cannot add snapshots"):
                 archive.add_snapshot(make_draft(1))
             with pytest.raises(ArchiveReadOnlyError, match="is read-only: cannot retire snapshot 1"):
                 archive.retire(1, "test")
@@ -217,9 +217,3 @@ def test_read_only_open_of_an_old_schema_asks_for_write_access(archive_path: Pat
         conn.execute("PRAGMA user_version = 1")
     with pytest.raises(ArchiveReadOnlyError, match="open it once with write access"):
         Archive.open(archive_path, read_only=True)
-
-
-def _re(path: Path) -> str:
-    import re
-
-    return re.escape(str(path))
