@@ -177,10 +177,11 @@ def _choose_count(visible: int, room: float, fixed: int | None) -> tuple[int, li
     if fixed is not None:
         return fixed, notes
     count = visible
-    # The lightest steps of a strip often sit at base+fog and show no edge;
-    # when the film has room for them, take the nearest common count above.
-    for common in sorted(COMMON_STEP_COUNTS):
-        if 0.6 * common <= visible <= common and common <= room + 0.5:
+    # The lightest steps of a strip often sit at base+fog and the densest at
+    # the scanner's ceiling, so neither shows an edge.  The room on the film
+    # tells the counts apart: take the largest common count that fits.
+    for common in sorted(COMMON_STEP_COUNTS, reverse=True):
+        if 0.4 * common <= visible <= common and common <= room + 0.5:
             count = common
             break
     if count != visible:
@@ -223,6 +224,8 @@ def _piece_geometry(
     # The step band: where density varies along the strip.
     spread = rect[:, core].std(axis=1)
     inside = (np.arange(len(v_grid)) >= v_lo) & (np.arange(len(v_grid)) <= v_hi)
+    if spread[inside].max() < 0.02:
+        raise ValueError("the film shows no steps: its density hardly changes along it")
     if opts.full_width_band:
         band = (v_lo + 0.5, v_hi + 0.5)
     else:
@@ -253,11 +256,17 @@ def _piece_geometry(
     hi = min(opts.max_pitch_mm / pixel_mm, max(lo + 2.0, (end - u_lo) / 4.0))
     pitch, end = _comb_pitch(rising, end, u_lo, lo, hi)
 
-    noise = 1.4826 * np.median(np.abs(grad - np.median(grad))) + 1e-6
+    # An edge counts when it stands out of the profile's noise and is at
+    # least a density step of about 0.01 (what a densitometer resolves; a
+    # Gaussian-smoothed edge of height h peaks near 0.4 h per pixel).
+    noise = max(1.4826 * np.median(np.abs(grad - np.median(grad))), 0.001)
     room = (end - u_lo) / pitch
     # Visible steps: up to the lightest clear step edge.  Flat runs (the
     # shoulder near Dmax, the toe at base+fog) show no edges, so do not stop
     # at the first miss; skip the film's own edge against the platen.
+    # The lightest clear edge is either step 1's outer edge (then j steps)
+    # or a boundary with more steps at base+fog beyond it (j + 1 or more):
+    # take j, and let the common counts fill in steps that show no edge.
     visible = 1
     positions = np.arange(len(rising))
     for j in range(1, int(room) + 2):
@@ -265,8 +274,10 @@ def _piece_geometry(
         if tooth < u_lo + 0.5 * pitch:
             break
         if np.interp(tooth, positions, rising) > 4.0 * noise:
-            visible = j + 1
+            visible = j
     visible = min(visible, max(1, int(round(room))))
+    if visible < 3 and opts.n_steps is None:
+        raise ValueError("fewer than three distinct steps along the film")
     n_steps, count_notes = _choose_count(visible, room, opts.n_steps)
     notes += count_notes
     start = end - n_steps * pitch
