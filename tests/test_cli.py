@@ -1,0 +1,88 @@
+"""The command line: calibrate and analyze end to end, JSON contract, one-line errors."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from stripscan import CAUTION
+from stripscan.cli import main
+from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_certificate, write_tiff
+
+TABLET_OD = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))  # common practice: 21 steps 0.05..3.05
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("cli")
+    tablet = TabletSpec(densities=TABLET_OD, step_length_mm=7.5, center_mm=(40.0, 95.0), angle_deg=90.0)
+    write_tiff(folder / "tablet.tif", simulate_scan([tablet], platen_mm=(80.0, 190.0), dpi=150.0, scanner=ScannerModel(seed=1)))
+    write_certificate(folder / "cert.csv", TABLET_OD)
+    strips = [StripSpec(film=FilmModel(), center_mm=(30.0 + 55.0 * k, 100.0), angle_deg=90.0) for k in range(2)]
+    write_tiff(folder / "strips.tif", simulate_scan(strips, platen_mm=(120.0, 200.0), dpi=150.0, scanner=ScannerModel(seed=2)))
+    return folder
+
+
+def test_calibrate_then_analyze_json(files, capsys):
+    cal = files / "cal.json"
+    assert main(["calibrate", str(files / "tablet.tif"), "--densities", str(files / "cert.csv"), "-o", str(cal)]) == 0
+    out = capsys.readouterr().out
+    assert "Reads within ±0.02 OD from 0.05 to" in out and cal.exists()
+    assert main(["analyze", str(files / "strips.tif"), "--calibration", str(cal), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert set(data["scan"]) >= {"path", "sha256", "width", "height", "dpi", "bits"}
+    assert set(data["calibration"]) >= {"sha256", "od_min", "od_max"}
+    assert len(data["strips"]) == 2 and data["caution"] == CAUTION
+    strip = data["strips"][0]
+    assert set(strip) >= {"index", "angle_deg", "outline_px", "steps", "metrics"}
+    assert set(strip["steps"][0]) >= {"step", "log_exposure", "od", "od_sd", "pixels", "in_range", "center_px"}
+    assert strip["steps"][1]["log_exposure"] == pytest.approx(0.15)  # common practice: 0.15 per step
+
+
+def test_plain_output_has_tables_and_caution(files, capsys):
+    cal = files / "cal2.json"
+    main(["calibrate", str(files / "tablet.tif"), "--densities", str(files / "cert.csv"), "-o", str(cal)])
+    capsys.readouterr()
+    assert main(["analyze", str(files / "strips.tif"), "--calibration", str(cal), "--steps", "21"]) == 0
+    out = capsys.readouterr().out
+    assert "Strip 1: 21 steps" in out and "Strip 2: 21 steps" in out
+    assert "average gradient (0.25-2.00)" in out and "Caution:" in out
+
+
+def test_unreachable_figure_is_null_with_a_warning(files, capsys):
+    # A film that never reaches net density 2.00: average gradient cannot be read.
+    flat = FilmModel(dmax=1.9, log_e_mid=1.5, slope=4.0)
+    write_tiff(files / "flat.tif", simulate_scan([StripSpec(film=flat, center_mm=(60.0, 100.0), angle_deg=90.0)],
+                                                 platen_mm=(120.0, 200.0), dpi=150.0, scanner=ScannerModel(seed=3)))
+    cal = files / "cal3.json"
+    main(["calibrate", str(files / "tablet.tif"), "--densities", str(files / "cert.csv"), "-o", str(cal)])
+    capsys.readouterr()
+    assert main(["analyze", str(files / "flat.tif"), "--calibration", str(cal), "--steps", "21", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    metrics = data["strips"][0]["metrics"]
+    assert metrics["average_gradient"] is None and metrics["latitude_log_exposure"] is None
+    assert any("net density 2.00" in w for w in data["warnings"])
+
+
+def test_uncalibrated_run_warns(files, capsys):
+    assert main(["analyze", str(files / "strips.tif"), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["calibration"]["mode"] == "direct" and any("UNCALIBRATED" in w for w in data["warnings"])
+
+
+@pytest.mark.parametrize(
+    "argv, message",
+    [
+        (["analyze", "{d}/missing.tif"], "missing.tif: no such file"),
+        (["analyze", "{d}/strips.tif", "--calibration", "{d}/cert.csv"], "not a calibration file"),
+        (["calibrate", "{d}/tablet.tif", "--densities", "{d}/bad.csv", "-o", "{d}/out.json"], "listed twice"),
+        (["calibrate", "{d}/strips.tif", "--densities", "{d}/cert.csv", "-o", "{d}/out.json"], "strips.tif"),
+    ],
+)
+def test_bad_input_is_one_line_and_writes_nothing(files, capsys, argv, message):
+    (files / "bad.csv").write_text("1,0.05\n2,0.2\n2,0.35\n")
+    code = main([a.format(d=files) for a in argv])
+    err = capsys.readouterr().err
+    assert code != 0 and err.count("\n") == 1 and err.startswith("stripscan: error:") and message in err
+    assert not (files / "out.json").exists()
