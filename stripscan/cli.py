@@ -12,6 +12,8 @@ import math
 import os
 import sys
 from pathlib import Path
+
+import numpy as np
 from typing import Callable, Sequence
 
 from . import CAUTION, __version__
@@ -134,7 +136,31 @@ def _analysis_options(args):
     n_steps = args.steps
     if table is not None and n_steps is None:
         n_steps = len(table)
-    return AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table, air_kerma_ugy=kerma, figures=figures)
+    clear_area = None
+    if args.clear_area:
+        try:
+            x0, y0, x1, y1 = (int(v) for v in args.clear_area.split(","))
+        except ValueError:
+            raise CommandError(f"--clear-area wants X0,Y0,X1,Y1 in pixels, got {args.clear_area!r}") from None
+        clear_area = (min(y0, y1), min(x0, x1), max(y0, y1), max(x0, x1))
+    return AnalysisOptions(
+        n_steps=n_steps, increment=args.increment, exposure_table=table, air_kerma_ugy=kerma, figures=figures,
+        dark=args.dark, clear_area=clear_area,
+    )
+
+
+def _gradient_curve(strip) -> dict | None:
+    """The gradient curve (dD/dlog E) of a strip's usable steps, every 0.05 log E."""
+    from .core.curve import CharacteristicCurve
+
+    usable = [s for s in strip.steps if s.in_range and not s.excluded]
+    if len(usable) < 2:
+        return None
+    curve = CharacteristicCurve([s.log_exposure for s in usable], [s.od for s in usable])
+    count = int(round((curve.log_exposure[-1] - curve.log_exposure[0]) / 0.05)) + 1
+    grid = np.linspace(curve.log_exposure[0], curve.log_exposure[-1], max(count, 2))
+    return {"log_exposure": [round(float(v), 4) for v in grid],
+            "gradient": [round(float(v), 4) for v in curve.gradient(grid)]}
 
 
 def cmd_analyze(args) -> int:
@@ -148,6 +174,8 @@ def cmd_analyze(args) -> int:
         flat_field_scan=args.flat_field,
     )
     data = analysis.to_dict()
+    for strip, out in zip(analysis.strips, data["strips"]):
+        out["gradient_curve"] = _gradient_curve(strip)
     data["caution"] = CAUTION
     text = json.dumps(data, indent=1, ensure_ascii=False)
     if args.output:
@@ -164,9 +192,18 @@ def cmd_calibrate(args) -> int:
     from .core.pipeline import calibrate_tablet
 
     certificate = read_certificate(args.densities)
+    lateral = None
+    if args.lateral_from:
+        from .core.calibration import fit_lateral
+        from .core.scan import load_scan
+
+        blank = load_scan(args.lateral_from, dpi=args.dpi, channel=args.channel)
+        if not blank.info.pixel_mm:
+            raise CommandError(f"{args.lateral_from}: the resolution is unknown; give it with --dpi")
+        lateral = fit_lateral(blank.signal, pixel_mm=blank.info.pixel_mm, axis=args.lateral_axis)
     calibration, tablet, warnings = calibrate_tablet(
         args.tablet_scan, certificate, dpi=args.dpi, channel=args.channel, flat_field_scan=args.flat_field,
-        note=args.note or "",
+        lateral=lateral, note=args.note or "",
     )
     save_calibration(calibration, args.output)
     print(f"Tablet: {len(certificate.densities)} certified steps, found at axis {tablet.geometry.angle_deg:.1f}°")
@@ -181,6 +218,8 @@ def cmd_calibrate(args) -> int:
     print(f"Leave-one-out residual RMS: {rms:.4f} OD" if rms is not None else "Leave-one-out residual RMS: n/a")
     lo, hi = calibration.valid_od
     print(f"Reads within ±{ACCURACY_GOAL:.2f} OD from {lo:.2f} to {hi:.2f} OD; steps outside are flagged.")
+    if calibration.lateral is not None:
+        print(f"Lateral response: c = {calibration.lateral.c_per_mm2:.3g} OD/mm² across the carriage")
     for w in warnings:
         print(f"! {w}")
     print(f"Saved {args.output}")
@@ -200,6 +239,8 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--dd-low", type=float, default=0.45, help="low density-difference target (0.45)")
     p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen")
     p.add_argument("--reference-speed", type=float, metavar="LOGE", help="speed point of a reference film, for relative speed")
+    p.add_argument("--dark", type=float, default=0.0, help="direct mode: the scanner's dark signal, 0..1 of full scale")
+    p.add_argument("--clear-area", metavar="X0,Y0,X1,Y1", help="direct mode: a clear area (px) whose signal is I0")
 
 
 def _add_scan_arguments(p: argparse.ArgumentParser) -> None:
@@ -240,6 +281,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--densities", required=True, metavar="CERT.csv", help="certified densities: CSV 'step,density'")
     p.add_argument("-o", "--output", required=True, metavar="CAL.json", help="where to save the calibration")
     p.add_argument("--note", help="free text kept with the calibration")
+    p.add_argument("--lateral-from", metavar="UNIFORM_SCAN",
+                   help="fit the across-carriage response OD = c0 + c x^2 from a uniform scan (open platen or uniform film)")
+    p.add_argument("--lateral-axis", choices=("col", "row"), default="col",
+                   help="image axis that runs across the carriage (default: columns)")
     _add_scan_arguments(p)
     p.set_defaults(func=cmd_calibrate)
 

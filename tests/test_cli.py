@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 import json
+import math
 
 import pytest
 
 from stripscan import CAUTION
 from stripscan.cli import main
-from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_certificate, write_tiff
+import numpy as np
+
+from stripscan.core.simulate import (
+    FilmModel, ScannerModel, StripSpec, TabletSpec, expected_signal, simulate_scan, write_certificate, write_tiff,
+)
 
 TABLET_OD = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))  # common practice: 21 steps 0.05..3.05
 
@@ -86,3 +91,29 @@ def test_bad_input_is_one_line_and_writes_nothing(files, capsys, argv, message):
     err = capsys.readouterr().err
     assert code != 0 and err.count("\n") == 1 and err.startswith("stripscan: error:") and message in err
     assert not (files / "out.json").exists()
+
+
+def test_lateral_response_from_a_uniform_scan_is_kept(files, capsys):
+    # A blank platen scanned with lamp falloff: the fit's curvature follows the
+    # scanner's parabola (Schoenfeld et al. 2016 form OD = c0 + c x^2), so c > 0.
+    blank = simulate_scan([], platen_mm=(120.0, 60.0), dpi=100.0,
+                          scanner=ScannerModel(lamp_falloff=0.04, noise_sd=0.0002, shot_noise=0.0, seed=9))
+    write_tiff(files / "blank.tif", blank)
+    cal = files / "cal_lateral.json"
+    assert main(["calibrate", str(files / "tablet.tif"), "--densities", str(files / "cert.csv"), "-o", str(cal),
+                 "--lateral-from", str(files / "blank.tif")]) == 0
+    assert "Lateral response: c = " in capsys.readouterr().out
+    data = json.loads(cal.read_text())
+    # falloff 4 % at the edge, 60 mm from the midline: c = -log10(0.96) / 60^2 = 4.9e-6 OD/mm^2
+    assert data["lateral"]["c_per_mm2"] == pytest.approx(-math.log10(0.96) / 60.0**2, rel=0.1)
+
+
+def test_direct_mode_clear_area(files, capsys):
+    assert main(["analyze", str(files / "strips.tif"), "--clear-area", "2,2,40,300", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    # I0 is the mean signal of that open-platen area: the simulator's noiseless signal there
+    width = data["scan"]["width"]
+    expected = float(np.mean(expected_signal(1.0, ScannerModel(seed=2), col=np.arange(2, 300), width=width)))
+    assert data["calibration"]["i0"] == pytest.approx(expected, abs=0.001)
+    assert main(["analyze", str(files / "strips.tif"), "--clear-area", "2,2,x"]) == 1
+    assert "--clear-area wants X0,Y0,X1,Y1" in capsys.readouterr().err

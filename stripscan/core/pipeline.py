@@ -66,6 +66,8 @@ class AnalysisOptions:
     figures : FigureSettings
     dark : float
         Dark signal for direct mode, 0..1.
+    clear_area : (row0, col0, row1, col1) or None
+        Clear area giving I0 in direct mode, px.
     """
 
     n_steps: int | None = None
@@ -74,6 +76,7 @@ class AnalysisOptions:
     air_kerma_ugy: tuple[float, ...] | None = None
     figures: FigureSettings = FigureSettings()
     dark: float = 0.0
+    clear_area: tuple[int, int, int, int] | None = None
 
     def to_dict(self) -> dict:
         return {
@@ -83,11 +86,24 @@ class AnalysisOptions:
             "air_kerma_ugy": list(self.air_kerma_ugy) if self.air_kerma_ugy else None,
             "figures": self.figures.to_dict(),
             "dark": self.dark,
+            "clear_area": list(self.clear_area) if self.clear_area else None,
         }
 
 
-def direct_mode_for(scan: Scan, *, dark: float = 0.0) -> DirectMode:
-    """Direct-mode densities for a linear 16-bit scan, I0 from the open platen.
+def direct_mode_for(
+    scan: Scan, *, dark: float = 0.0, clear_area: tuple[int, int, int, int] | None = None
+) -> DirectMode:
+    """Direct-mode densities for a linear 16-bit scan.
+
+    Parameters
+    ----------
+    scan : Scan
+    dark : float
+        Signal with no light, 0..1 of full scale.
+    clear_area : (row0, col0, row1, col1), optional
+        A clear area (open platen or clear film base) marked by the user,
+        px, half-open; its mean signal is I0.  By default I0 is the bright
+        end (99th percentile) of the whole scan, i.e. the open platen.
 
     Raises
     ------
@@ -102,7 +118,14 @@ def direct_mode_for(scan: Scan, *, dark: float = 0.0) -> DirectMode:
         )
     step = max(1, int(math.sqrt(scan.signal.size / 250_000)))
     sample = scan.signal[::step, ::step]
-    i0 = float(np.percentile(sample, 99.0))
+    if clear_area is not None:
+        r0, c0, r1, c1 = clear_area
+        area = scan.signal[max(r0, 0) : r1, max(c0, 0) : c1]
+        if area.size < 16:
+            raise AnalysisError(f"{info.path}: the clear area {clear_area} holds too few pixels of the scan")
+        i0 = float(area.mean())
+    else:
+        i0 = float(np.percentile(sample, 99.0))
     if i0 <= dark:
         raise AnalysisError(f"{info.path}: no open platen or clear area is bright enough to serve as I0")
     darkest = sample[sample <= np.percentile(sample, 0.5)]
@@ -268,7 +291,7 @@ def analyze_loaded(
     """Analyse a loaded scan; see :func:`analyze_scan`."""
     warnings: list[str] = []
     if calibration is None:
-        mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark)
+        mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark, clear_area=options.clear_area)
         warnings.append(
             "UNCALIBRATED: densities are log10(I0/I) straight from the scanner (direct mode); "
             "calibrate against a reference step tablet before trusting them"
