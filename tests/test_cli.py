@@ -111,9 +111,10 @@ def test_lateral_response_from_a_uniform_scan_is_kept(files, capsys):
 def test_direct_mode_clear_area(files, capsys):
     assert main(["analyze", str(files / "strips.tif"), "--clear-area", "2,2,40,300", "--json"]) == 0
     data = json.loads(capsys.readouterr().out)
-    # I0 is the mean signal of that open-platen area: the simulator's noiseless signal there
+    # I0 is the mean signal of that open-platen area (columns 2..39, near the lamp's dim edge):
+    # the simulator's noiseless signal there
     width = data["scan"]["width"]
-    expected = float(np.mean(expected_signal(1.0, ScannerModel(seed=2), col=np.arange(2, 300), width=width)))
+    expected = float(np.mean(expected_signal(1.0, ScannerModel(seed=2), col=np.arange(2, 40), width=width)))
     assert data["calibration"]["i0"] == pytest.approx(expected, abs=0.001)
     assert main(["analyze", str(files / "strips.tif"), "--clear-area", "2,2,x"]) == 1
     assert "--clear-area wants X0,Y0,X1,Y1" in capsys.readouterr().err
