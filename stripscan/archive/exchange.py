@@ -126,9 +126,30 @@ def export_json(archive: "Archive", path: Path) -> Path:
     """Write :func:`export_data` to ``path`` as UTF-8 JSON; return the path."""
     data = export_data(archive)
     with _replacing(path) as handle:
-        json.dump(data, handle, ensure_ascii=False, allow_nan=False, indent=1)
-        handle.write("\n")
+        _write_lines(handle, data)
     return path.expanduser().absolute()
+
+
+def _write_lines(handle: IO[str], data: dict[str, Any]) -> None:
+    """JSON with one list item per line: readable, diff-friendly, and fast.
+
+    ``json.dump`` with ``indent`` runs the pure-Python encoder, five times
+    slower than ``json.dumps`` without it on a large archive.
+    """
+    def dumps(value: Any) -> str:
+        return json.dumps(value, ensure_ascii=False, allow_nan=False)
+
+    handle.write("{\n")
+    for number, (key, value) in enumerate(data.items()):
+        handle.write(f" {dumps(key)}: ")
+        if isinstance(value, list) and value:
+            handle.write("[\n")
+            handle.write(",\n".join(f"  {dumps(item)}" for item in value))
+            handle.write("\n ]")
+        else:
+            handle.write(dumps(value))
+        handle.write(",\n" if number < len(data) - 1 else "\n")
+    handle.write("}\n")
 
 
 def _read_export(path: Path) -> dict[str, Any]:

@@ -79,9 +79,7 @@ _V1 = (
         scanned_on TEXT CHECK (scanned_on IS NULL OR date(scanned_on) IS scanned_on),
         scan_path TEXT NOT NULL,
         scan_sha256 TEXT NOT NULL CHECK (length(scan_sha256) = 64),
-        scan_json TEXT NOT NULL CHECK (json_valid(scan_json)),
         strip_index INTEGER NOT NULL,
-        strip_json TEXT NOT NULL CHECK (json_valid(strip_json)),
         base_fog REAL,
         dmax REAL,
         speed_log_exposure REAL,
@@ -90,18 +88,25 @@ _V1 = (
         latitude_log_exposure REAL,
         mid_density REAL,
         density_difference REAL,
-        settings_json TEXT NOT NULL DEFAULT '{}' CHECK (json_valid(settings_json)),
-        warnings_json TEXT NOT NULL DEFAULT '[]' CHECK (json_valid(warnings_json)),
-        program_version TEXT NOT NULL DEFAULT '',
-        notes TEXT NOT NULL DEFAULT '',
-        preview_png BLOB CHECK (preview_png IS NULL OR (length(preview_png) <= 65536
-            AND substr(preview_png, 1, 8) = X'89504E470D0A1A0A')),
         revises INTEGER REFERENCES snapshots(id) CHECK (revises IS NULL OR revises < id),
         revision_reason TEXT,
         retired_at TEXT,
         retired_reason TEXT,
+        program_version TEXT NOT NULL DEFAULT '',
+        notes TEXT NOT NULL DEFAULT '',
         CHECK ((revises IS NULL) = (revision_reason IS NULL)),
         CHECK ((retired_at IS NULL) = (retired_reason IS NULL))
+    )""",
+    # The bulky part of a snapshot lives beside it, one row each, so that
+    # listings and trends scan a table of small rows.
+    """CREATE TABLE snapshot_data (
+        snapshot_id INTEGER PRIMARY KEY REFERENCES snapshots(id),
+        scan_json TEXT NOT NULL CHECK (json_valid(scan_json)),
+        settings_json TEXT NOT NULL DEFAULT '{}' CHECK (json_valid(settings_json)),
+        warnings_json TEXT NOT NULL DEFAULT '[]' CHECK (json_valid(warnings_json)),
+        strip_json TEXT NOT NULL CHECK (json_valid(strip_json)),
+        preview_png BLOB CHECK (preview_png IS NULL OR (length(preview_png) <= 65536
+            AND substr(preview_png, 1, 8) = X'89504E470D0A1A0A'))
     )""",
     # One revision per snapshot keeps a correction chain a straight line.
     "CREATE UNIQUE INDEX snapshots_revises ON snapshots(revises) WHERE revises IS NOT NULL",
@@ -160,16 +165,22 @@ _V1 = (
     BEGIN SELECT RAISE(ABORT, 'snapshot ids are never reused or replaced'); END""",
     """CREATE TRIGGER snapshots_frozen BEFORE UPDATE OF
         id, created_at, lot_id, processor, sensitometer, calibration_hash, operator,
-        exposed_on, processed_on, scanned_on, scan_path, scan_sha256, scan_json,
-        strip_index, strip_json, base_fog, dmax, speed_log_exposure, average_gradient,
-        gamma, latitude_log_exposure, mid_density, density_difference, settings_json,
-        warnings_json, program_version, notes, preview_png, revises, revision_reason
+        exposed_on, processed_on, scanned_on, scan_path, scan_sha256, strip_index,
+        base_fog, dmax, speed_log_exposure, average_gradient, gamma, latitude_log_exposure,
+        mid_density, density_difference, revises, revision_reason, program_version, notes
         ON snapshots
     BEGIN SELECT RAISE(ABORT, 'snapshots are never changed; store a revision instead'); END""",
     """CREATE TRIGGER snapshots_retire_once BEFORE UPDATE OF retired_at, retired_reason ON snapshots
     WHEN OLD.retired_at IS NOT NULL OR NEW.retired_at IS NULL
         OR NEW.retired_reason IS NULL OR length(trim(NEW.retired_reason)) = 0
     BEGIN SELECT RAISE(ABORT, 'a snapshot is retired once, with a reason, and stays retired'); END""",
+    """CREATE TRIGGER snapshot_data_no_update BEFORE UPDATE ON snapshot_data
+    BEGIN SELECT RAISE(ABORT, 'stored snapshot data is never changed'); END""",
+    """CREATE TRIGGER snapshot_data_no_delete BEFORE DELETE ON snapshot_data
+    BEGIN SELECT RAISE(ABORT, 'stored snapshot data is never deleted'); END""",
+    """CREATE TRIGGER snapshot_data_no_replace BEFORE INSERT ON snapshot_data
+    WHEN EXISTS (SELECT 1 FROM snapshot_data WHERE snapshot_id = NEW.snapshot_id)
+    BEGIN SELECT RAISE(ABORT, 'stored snapshot data is never replaced'); END""",
     """CREATE TRIGGER snapshot_steps_no_update BEFORE UPDATE ON snapshot_steps
     BEGIN SELECT RAISE(ABORT, 'stored step densities are never changed'); END""",
     """CREATE TRIGGER snapshot_steps_no_delete BEFORE DELETE ON snapshot_steps

@@ -548,6 +548,21 @@ class SnapshotSummary(_Plain):
         """True when neither corrected by a later revision nor retired."""
         return self.superseded_by is None and self.retired_at is None
 
+    @classmethod
+    def from_row(cls, row: tuple[Any, ...]) -> "SnapshotSummary":
+        """Build from a row of the archive's listing query, fields in order.
+
+        Listings build thousands of these per redraw; filling the instance
+        dictionary directly takes half the time of the frozen ``__init__``.
+        The values come from the archive's own typed, checked columns.
+        """
+        summary = object.__new__(cls)
+        summary.__dict__.update(zip(_SUMMARY_FIELDS, row))
+        return summary
+
+
+_SUMMARY_FIELDS = tuple(f.name for f in dataclasses.fields(SnapshotSummary))
+
 
 @dataclass(frozen=True)
 class SnapshotNote(_Plain):

@@ -70,15 +70,20 @@ _DAY = "COALESCE(s.processed_on, s.exposed_on, s.scanned_on, substr(s.created_at
 
 _SNAPSHOT_COLUMNS = (
     "id", "created_at", "lot_id", "processor", "sensitometer", "calibration_hash", "operator",
-    "exposed_on", "processed_on", "scanned_on", "scan_path", "scan_sha256", "scan_json",
-    "strip_index", "strip_json", *FIGURES, "settings_json", "warnings_json", "program_version",
-    "notes", "preview_png", "revises", "revision_reason", "retired_at", "retired_reason",
+    "exposed_on", "processed_on", "scanned_on", "scan_path", "scan_sha256", "strip_index", *FIGURES,
+    "revises", "revision_reason", "retired_at", "retired_reason", "program_version", "notes",
 )
-_SNAPSHOT_INSERT = (
-    f"INSERT INTO snapshots ({', '.join(_SNAPSHOT_COLUMNS)}) "
-    f"VALUES ({', '.join('?' for _ in _SNAPSHOT_COLUMNS)})"
+_DATA_COLUMNS = ("snapshot_id", "scan_json", "settings_json", "warnings_json", "strip_json", "preview_png")
+_SNAPSHOT_SELECT = (
+    f"SELECT {', '.join('s.' + c for c in _SNAPSHOT_COLUMNS)}, {', '.join('d.' + c for c in _DATA_COLUMNS)} "
+    "FROM snapshots s JOIN snapshot_data d ON d.snapshot_id = s.id"
 )
-_SNAPSHOT_SELECT = f"SELECT {', '.join('s.' + c for c in _SNAPSHOT_COLUMNS)} FROM snapshots s"
+
+
+def _insert_sql(table: str, columns: Sequence[str]) -> str:
+    return f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})"
+
+
 _STEP_COLUMNS = ("snapshot_id", "step", "log_exposure", "od", "od_sd", "pixels", "in_range", "excluded")
 
 _SUMMARY_SELECT = (
@@ -556,7 +561,7 @@ class Archive:
                                "lists the same step number twice")
         metrics = strip["metrics"]
         values = {
-            "id": snapshot.id, "created_at": snapshot.created_at, "lot_id": snapshot.lot_id,
+            "id": snapshot.id, "snapshot_id": snapshot.id, "created_at": snapshot.created_at, "lot_id": snapshot.lot_id,
             "processor": snapshot.processor, "sensitometer": snapshot.sensitometer,
             "calibration_hash": snapshot.calibration_hash, "operator": snapshot.operator,
             "exposed_on": snapshot.exposed_on, "processed_on": snapshot.processed_on,
@@ -571,9 +576,10 @@ class Archive:
             "revision_reason": snapshot.revision_reason, "retired_at": snapshot.retired_at,
             "retired_reason": snapshot.retired_reason,
         }
-        conn.execute(_SNAPSHOT_INSERT, tuple(values[c] for c in _SNAPSHOT_COLUMNS))
+        conn.execute(_insert_sql("snapshots", _SNAPSHOT_COLUMNS), tuple(values[c] for c in _SNAPSHOT_COLUMNS))
+        conn.execute(_insert_sql("snapshot_data", _DATA_COLUMNS), tuple(values[c] for c in _DATA_COLUMNS))
         conn.executemany(
-            f"INSERT INTO snapshot_steps ({', '.join(_STEP_COLUMNS)}) VALUES ({', '.join('?' * len(_STEP_COLUMNS))})",
+            _insert_sql("snapshot_steps", _STEP_COLUMNS),
             [(snapshot.id, s["step"], s["log_exposure"], s["od"], s["od_sd"], s["pixels"],
               int(s["in_range"]), int(s["excluded"])) for s in steps])
 
@@ -634,7 +640,7 @@ class Archive:
         return self.add_snapshots(drafts, create_missing=create_missing)
 
     def _snapshot_from_row(self, row: Sequence[Any]) -> Snapshot:
-        data = dict(zip(_SNAPSHOT_COLUMNS, row))
+        data = dict(zip((*_SNAPSHOT_COLUMNS, *_DATA_COLUMNS), row))
         return Snapshot(
             id=data["id"], created_at=data["created_at"], lot_id=data["lot_id"],
             scan=ScanInfo.from_dict(json.loads(data["scan_json"])),
@@ -684,7 +690,7 @@ class Archive:
         where, params = self._filters(lot=[lot] if lot is not None else None, processor=processor,
                                       include_retired=include_retired, include_superseded=include_superseded)
         rows = self._query(f"{_SUMMARY_SELECT}{where} ORDER BY day, s.id", params)
-        return [SnapshotSummary(*row) for row in rows]
+        return [SnapshotSummary.from_row(row) for row in rows]
 
     @staticmethod
     def _filters(*, lot: Sequence[str] | None, processor: str | None, include_retired: bool,

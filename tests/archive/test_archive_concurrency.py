@@ -88,7 +88,7 @@ def test_writer_killed_mid_transaction_leaves_earlier_data_intact(archive: Archi
     archive.close()
     with raw_connection(archive_path) as conn:
         before = {t: conn.execute(f"SELECT * FROM {t} ORDER BY 1, 2").fetchall()
-                  for t in ("snapshots", "snapshot_steps", "snapshot_notes", "calibrations")}
+                  for t in ("snapshots", "snapshot_data", "snapshot_steps", "snapshot_notes", "calibrations")}
     signal_file = tmp_path / "inside"
     child = _child(KILLED_WRITER, archive_path, signal_file)
     _wait_for(signal_file, child)

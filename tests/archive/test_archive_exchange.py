@@ -14,7 +14,7 @@ from stripscan.archive import Archive, ArchiveConflictError, ArchiveError, QcEnt
 from stripscan.archive.records import FIGURE_UNITS, FIGURES
 
 TABLES = ("film_types", "emulsion_lots", "processors", "sensitometers", "calibrations", "snapshots",
-          "snapshot_steps", "snapshot_notes", "qc_entries", "qc_events", "qc_settings", "crossovers")
+          "snapshot_data", "snapshot_steps", "snapshot_notes", "qc_entries", "qc_events", "qc_settings", "crossovers")
 
 
 def _tables(path: Path) -> dict[str, list[tuple]]:
@@ -179,10 +179,11 @@ def test_failed_export_keeps_the_previous_file(filled: Archive, tmp_path: Path, 
     target.write_text("previous export", encoding="utf-8")
     import stripscan.archive.exchange as exchange
 
-    def fail(*args: object, **kwargs: object) -> None:
+    def fail_half_way(handle: object, data: object) -> None:
+        handle.write('{"format": "stripscan lot archive", "snapshots": [')  # type: ignore[attr-defined]
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(exchange.json, "dump", fail)
+    monkeypatch.setattr(exchange, "_write_lines", fail_half_way)
     with pytest.raises(ArchiveError, match="cannot write: No space left on device"):
         filled.export_json(target)
     assert target.read_text(encoding="utf-8") == "previous export"

@@ -74,6 +74,7 @@ def test_retirement_is_set_once_with_a_reason_and_never_undone(stored: Path) -> 
 
 
 @pytest.mark.parametrize("table, message", [
+    ("snapshot_data", "stored snapshot data is never"),
     ("snapshot_steps", "stored step densities are never"),
     ("calibrations", "a stored calibration is never"),
     ("snapshot_notes", "notes are never"),

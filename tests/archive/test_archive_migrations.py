@@ -39,11 +39,11 @@ def v1_archive(tmp_path: Path) -> Path:
         scan = make_scan("2024-06-03 north.tif")
         conn.execute(
             f"INSERT INTO snapshots (id, created_at, lot_id, processor, processed_on, scan_path, scan_sha256, "
-            f"scan_json, strip_index, strip_json, {', '.join(FIGURES)}) "
-            f"VALUES (1, '2024-06-03T08:15:00.000000Z', ?, ?, '2024-06-03', ?, ?, ?, 1, ?, "
-            f"{', '.join('?' for _ in FIGURES)})",
-            (LOTS[0].lot_id, PROCESSORS[0].name, scan.path, scan.sha256, canonical_json(scan.to_dict()),
-             canonical_json(data), *(data["metrics"][f] for f in FIGURES)))
+            f"strip_index, {', '.join(FIGURES)}) VALUES (1, '2024-06-03T08:15:00.000000Z', ?, ?, '2024-06-03', "
+            f"?, ?, 1, {', '.join('?' for _ in FIGURES)})",
+            (LOTS[0].lot_id, PROCESSORS[0].name, scan.path, scan.sha256, *(data["metrics"][f] for f in FIGURES)))
+        conn.execute("INSERT INTO snapshot_data (snapshot_id, scan_json, strip_json) VALUES (1, ?, ?)",
+                     (canonical_json(scan.to_dict()), canonical_json(data)))
         conn.executemany("INSERT INTO snapshot_steps VALUES (1, ?, ?, ?, ?, ?, ?, ?)",
                          [(s["step"], s["log_exposure"], s["od"], s["od_sd"], s["pixels"], int(s["in_range"]),
                            int(s["excluded"])) for s in data["steps"]])

@@ -25,6 +25,7 @@ from stripscan.archive import (
     QcEntry,
     Sensitometer,
     SnapshotNote,
+    SnapshotSummary,
     snapshots_from_analysis,
 )
 from stripscan.core.records import Analysis
@@ -140,6 +141,15 @@ def test_listing_filters_and_orders_by_film_date(archive: Archive) -> None:
     first = archive.get_snapshot(1)
     summary = next(s for s in listed if s.id == 1)
     assert [getattr(summary, name) for name in FIGURES] == [getattr(first.figures, name) for name in FIGURES]
+
+
+def test_listed_summaries_are_ordinary_frozen_records(archive: Archive) -> None:
+    archive.add_snapshot(make_draft(0))
+    summary = archive.list_snapshots()[0]
+    assert summary == SnapshotSummary(**summary.to_dict())
+    assert repr(summary).startswith("SnapshotSummary(id=1, ")
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        summary.lot_id = "ALD-0000"  # type: ignore[misc]
 
 
 def test_date_falls_back_from_processing_to_exposure_to_scan_to_storage(archive: Archive) -> None:
