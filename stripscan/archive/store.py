@@ -277,7 +277,8 @@ class Archive:
                     conn.execute(f"PRAGMA user_version = {migration.version}")
                 conn.execute("COMMIT")
             except BaseException:
-                conn.execute("ROLLBACK")
+                if conn.in_transaction:
+                    conn.execute("ROLLBACK")
                 raise
 
     def close(self) -> None:

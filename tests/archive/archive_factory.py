@@ -18,7 +18,7 @@ import re
 import sqlite3
 import struct
 import zlib
-from collections.abc import Callable, Iterator
+from collections.abc import Iterator
 from contextlib import closing, contextmanager
 from pathlib import Path
 from typing import Any

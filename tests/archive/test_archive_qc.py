@@ -37,7 +37,8 @@ def test_a_second_entry_for_the_same_day_is_a_duplicate(archive: Archive, archiv
         archive.add_qc_entry(QcEntry(NORTH, "2024-10-01", 0.18, 1.20, 1.80))
     archive.add_qc_entry(QcEntry(SOUTH, "2024-10-01", 0.18, 1.20, 1.80))  # other processor, same day: fine
     with raw_connection(archive_path) as conn:
-        # The rule is in the file too: UNIQUE (processor, date).
+        # The rule is in the file too. SQLite docs (lang_createtable.html): a UNIQUE
+        # constraint refuses a second row with the same values.
         with pytest.raises(sqlite3.IntegrityError, match="UNIQUE constraint failed: qc_entries.processor, qc_entries.date"):
             conn.execute("INSERT INTO qc_entries (processor, date, source) VALUES (?, '2024-10-01', 'manual')", (NORTH,))
     assert [e.mid_density for e in archive.list_qc_entries(NORTH)] == [1.22]

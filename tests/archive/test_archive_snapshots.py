@@ -324,6 +324,6 @@ def test_stored_snapshot_survives_json(archive: Archive) -> None:
     data = json.loads(json.dumps(retired.to_dict(), allow_nan=False))
     back = type(retired).from_dict(data)
     assert back.to_dict() == retired.to_dict()
-    assert back.preview_png == tiny_png()
+    assert back.preview_png == tiny_png()  # base64 text in JSON (RFC 4648) decodes to the same bytes
     with pytest.raises(ValueError, match="lacks the field 'lot_id'"):
         type(retired).from_dict({k: v for k, v in data.items() if k != "lot_id"})
