@@ -28,7 +28,16 @@ from scipy import ndimage
 
 from .records import StripGeometry
 
-__all__ = ["LocateError", "LocateOptions", "FoundStrip", "locate_strips", "geometry_from_outline", "working_factor"]
+__all__ = [
+    "LocateError",
+    "LocateOptions",
+    "FoundStrip",
+    "locate_strips",
+    "locate_in_scan",
+    "geometry_from_outline",
+    "with_step_count",
+    "working_factor",
+]
 
 COMMON_STEP_COUNTS = (21, 11)
 
@@ -363,15 +372,34 @@ def locate_strips(
         When no piece of film with steps is found.
     """
     factor = working_factor(signal.shape, dpi, options.working_mm)
+    return _locate_on(_reduce(signal, factor), factor, dpi, options)
+
+
+def locate_in_scan(scan, options: LocateOptions = LocateOptions()) -> list[FoundStrip]:
+    """Find every strip on a :class:`~stripscan.core.scan.Scan`, see :func:`locate_strips`.
+
+    Only a sparse sample of the stored pixels is decoded (a few per
+    0.25 mm block), which keeps the search cheap on 600-1200 dpi pages.
+    """
+    factor = working_factor(scan.shape, scan.info.dpi, options.working_mm)
+    return _locate_on(scan.sample(factor), factor, scan.info.dpi, options)
+
+
+def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: LocateOptions) -> list[FoundStrip]:
     pixel_mm = (25.4 / dpi) * factor if dpi else options.working_mm
-    working = _reduce(signal, factor)
     platen = _platen_level(working)
     dens = -np.log10(np.clip(working / platen, 1e-6, None)).astype(np.float32)
 
     film = dens > options.film_threshold
-    # Dust on the platen and thin hairs are not film; holes in film are.
-    film = ndimage.binary_opening(film, structure=np.ones((3, 3)), iterations=1)
-    film = ndimage.binary_fill_holes(film)
+    # Dust on the platen and thin hairs are not film (a 3 x 3 opening,
+    # done with rank filters, which are much faster than binary morphology
+    # here); holes in film are film: background areas that do not reach the
+    # scan's border are filled.
+    film = ndimage.maximum_filter(ndimage.minimum_filter(film.view(np.uint8), size=3), size=3).astype(bool)
+    background, n_background = ndimage.label(~film)
+    if n_background:
+        border = np.unique(np.concatenate((background[0], background[-1], background[:, 0], background[:, -1])))
+        film |= ~np.isin(background, border)
     labels, count = ndimage.label(film)
     if count == 0:
         raise LocateError("no film found on the scan: nothing is denser than the open platen")

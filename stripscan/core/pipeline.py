@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
@@ -26,7 +26,7 @@ from .calibration import (
     flat_field,
 )
 from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
-from .locate import FoundStrip, LocateOptions, locate_strips, with_step_count
+from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
 from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
 from .sample import read_strip
 from .scan import Scan, load_scan
@@ -116,11 +116,11 @@ def direct_mode_for(
             f"{info.path}: direct mode needs a linear 16-bit scan, this one is {info.bits}-bit "
             f"{info.decoding}; calibrate with a step tablet (stripscan calibrate) and pass --calibration"
         )
-    step = max(1, int(math.sqrt(scan.signal.size / 250_000)))
-    sample = scan.signal[::step, ::step]
+    step = max(1, int(math.sqrt(scan.shape[0] * scan.shape[1] / 250_000)))
+    sample = scan.decode(scan.raw[::step, ::step])
     if clear_area is not None:
         r0, c0, r1, c1 = clear_area
-        area = scan.signal[max(r0, 0) : r1, max(c0, 0) : c1]
+        area = scan.decode(scan.raw[max(r0, 0) : r1, max(c0, 0) : c1])
         if area.size < 16:
             raise AnalysisError(f"{info.path}: the clear area {clear_area} holds too few pixels of the scan")
         i0 = float(area.mean())
@@ -300,9 +300,7 @@ def analyze_loaded(
         warnings += _check_compatible(scan, calibration)
         mapping = calibration
     if geometries is None:
-        found = locate_strips(
-            scan.signal, dpi=scan.info.dpi, options=LocateOptions(n_steps=options.n_steps)
-        )
+        found = locate_in_scan(scan, LocateOptions(n_steps=options.n_steps))
     else:
         found = [
             FoundStrip(with_step_count(g, options.n_steps) if options.n_steps else g, (), False)
@@ -310,7 +308,7 @@ def analyze_loaded(
         ]
     strips = []
     for index, item in enumerate(found, start=1):
-        readings, bf, notes = read_strip(scan.signal, scan.saturated, item.geometry)
+        readings, bf, notes = read_strip(scan, None, item.geometry)
         result = strip_result(
             index,
             item.geometry,
@@ -372,7 +370,7 @@ def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: s
         corrected = flat_field(scan.signal, blank.signal)
     except CalibrationError as exc:
         raise AnalysisError(f"{blank_path}: {exc}") from None
-    return replace(scan, signal=corrected)
+    return Scan.from_signal(corrected, scan.info)
 
 
 def calibrate_tablet(
@@ -401,9 +399,7 @@ def calibrate_tablet(
         ff_sha = load_scan(flat_field_scan, channel=channel).info.sha256
     n = len(certificate.densities)
     try:
-        found = locate_strips(
-            scan.signal, dpi=scan.info.dpi, options=LocateOptions(n_steps=n, full_width_band=True)
-        )
+        found = locate_in_scan(scan, LocateOptions(n_steps=n, full_width_band=True))
     except ValueError as exc:
         raise CalibrationError(f"{path}: {exc}") from None
     warnings = []
@@ -411,7 +407,7 @@ def calibrate_tablet(
         warnings.append(f"{len(found)} pieces found on the tablet scan; the longest is taken as the tablet")
     tablet = max(found, key=lambda f: f.geometry.length_px)
     warnings += list(tablet.warnings)
-    readings, _, notes = read_strip(scan.signal, scan.saturated, tablet.geometry)
+    readings, _, notes = read_strip(scan, None, tablet.geometry)
     warnings += notes
     centre = tablet.geometry.point_rc(0.5 * tablet.geometry.length_px, 0.5 * tablet.geometry.band_width_px)
     try:

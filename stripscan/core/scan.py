@@ -8,16 +8,16 @@ its corrections switched off are linear and are only scaled.
 
 from __future__ import annotations
 
+import concurrent.futures
 import hashlib
 import os
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from .records import ScanInfo
 
-__all__ = ["ScanError", "Scan", "load_scan", "decode_srgb", "decode_gamma", "reduce_channels", "CHANNEL_RULES"]
+__all__ = ["ScanError", "Scan", "load_scan", "decode_srgb", "decode_gamma", "reduce_channels", "channel_weights", "CHANNEL_RULES"]
 
 CHANNEL_RULES = ("auto", "mean", "red", "green", "blue", "luminance")
 
@@ -29,27 +29,113 @@ class ScanError(ValueError):
     """A scan file cannot be read or used; the message names the file."""
 
 
-@dataclass(frozen=True, eq=False)
 class Scan:
-    """A loaded scan.
+    """A loaded scan: the stored pixels and how to turn them into signal.
 
-    Attributes
+    The pixels are kept as the file stores them (usually uint16) and decoded
+    only where they are needed: the strip search reads a sparse sample and
+    each step only its own pixels, so a 600-dpi page never has to exist as
+    a float image.  :attr:`signal` decodes everything, once, for displays.
+
+    Parameters
     ----------
-    signal : ndarray, shape (rows, cols), float32
-        Linear signal, 0..1 of full scale.
-    saturated : ndarray, shape (rows, cols), bool
-        Pixels at the top code (or bottom code) of any channel used.
+    raw : ndarray, shape (rows, cols) or (rows, cols, channels)
+        Pixels as stored (uint8, uint16 or float32 0..1).
     info : ScanInfo
-        Provenance and format.
+    lut : ndarray or None
+        Linear signal for every integer code (float32); None for float data.
+    weights : ndarray or None
+        Channel weights that reduce colour to one signal (sum 1); None for grey.
     """
 
-    signal: np.ndarray
-    saturated: np.ndarray
-    info: ScanInfo
+    def __init__(self, raw: np.ndarray, info: ScanInfo, lut: np.ndarray | None, weights: np.ndarray | None):
+        self.raw = raw
+        self.info = info
+        self._lut = lut
+        self._weights = weights
+        self._signal: np.ndarray | None = None
+        self._saturated: np.ndarray | None = None
+        self._top = None if lut is None else len(lut) - 1
+
+    @classmethod
+    def from_signal(cls, signal: np.ndarray, info: ScanInfo) -> "Scan":
+        """A scan whose pixels already are linear signal (e.g. after a flat-field)."""
+        return cls(np.ascontiguousarray(signal, dtype=np.float32), info, None, None)
 
     @property
     def shape(self) -> tuple[int, int]:
-        return self.signal.shape  # type: ignore[return-value]
+        return self.raw.shape[:2]  # type: ignore[return-value]
+
+    def decode(self, pixels: np.ndarray) -> np.ndarray:
+        """Linear signal (float32) of stored pixels, shape (...) or (..., channels) -> (...)."""
+        values = self._lut[pixels] if self._lut is not None else pixels.astype(np.float32, copy=False)
+        if self._weights is None:
+            return values
+        return values[..., : len(self._weights)] @ self._weights
+
+    def read_pixels(self, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Signal (float32) and saturation flags of the pixels at (rows[i], cols[i]).
+
+        One gather of the stored pixels serves both.
+        """
+        if self.raw.ndim == 2:
+            pixels = np.take(self.raw.reshape(-1), rows * self.raw.shape[1] + cols)
+        else:
+            pixels = self.raw[rows, cols]
+        return self.decode(pixels), self._flags(pixels)
+
+    def _flags(self, pixels: np.ndarray) -> np.ndarray:
+        if self._weights is not None:
+            pixels = pixels[..., : len(self._weights)]
+        if self._top is None:
+            flags = pixels >= 1.0
+        else:
+            flags = (pixels == 0) | (pixels == self._top)
+        return flags.any(axis=-1) if flags.ndim == 2 else flags
+
+    def values_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """Signal of the pixels at (rows[i], cols[i]), float32."""
+        return self.decode(self.raw[rows, cols])
+
+    def saturated_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        """True where any used channel sits at the top or bottom code."""
+        return self._flags(self.raw[rows, cols])
+
+    def sample(self, factor: int) -> np.ndarray:
+        """A reduced signal image, one value per ``factor`` x ``factor`` block.
+
+        Each value averages the two or three pixels at the block's centre
+        along each axis instead of the whole block: that reads a few percent
+        of the pixels, is centred on the block exactly like a block mean, and
+        is plenty to find strips whose steps span tens of blocks.  Rows and
+        columns beyond the last whole block are dropped.
+        """
+        if factor <= 1:
+            return self.signal
+        rows, cols = (self.shape[0] // factor) * factor, (self.shape[1] // factor) * factor
+        half = factor // 2
+        taps = (half - 1, half) if factor % 2 == 0 else (half - 1, half, half + 1)
+        total = None
+        for dr in taps:
+            for dc in taps:
+                part = self.decode(self.raw[dr:rows:factor, dc:cols:factor])
+                total = part if total is None else total + part
+        return (total / np.float32(len(taps) ** 2)).astype(np.float32, copy=False)
+
+    @property
+    def signal(self) -> np.ndarray:
+        """The whole image as linear signal, float32 (rows, cols); decoded once."""
+        if self._signal is None:
+            self._signal = np.ascontiguousarray(self.decode(self.raw), dtype=np.float32)
+        return self._signal
+
+    @property
+    def saturated(self) -> np.ndarray:
+        """Pixels at the top or bottom code of any channel used, bool (rows, cols)."""
+        if self._saturated is None:
+            rows, cols = np.indices(self.shape, sparse=True)
+            self._saturated = self.saturated_at(rows, cols)
+        return self._saturated
 
 
 def decode_srgb(encoded: np.ndarray) -> np.ndarray:
@@ -76,41 +162,63 @@ def decode_gamma(encoded: np.ndarray, gamma: float) -> np.ndarray:
     return np.power(np.asarray(encoded, dtype=np.float32), np.float32(gamma))
 
 
-def reduce_channels(linear: np.ndarray, rule: str = "auto") -> tuple[np.ndarray, str]:
-    """Reduce an (rows, cols, channels) linear image to one signal.
+def channel_weights(channels: int, rule: str = "auto") -> tuple[np.ndarray | None, str]:
+    """Weights that reduce ``channels`` linear colour channels to one signal.
 
     Silver film is neutral, so every colour channel carries the same
     density; averaging them (``"mean"``, the ``"auto"`` choice) lowers noise
     and, on 8-bit files, the quantisation step.  A single channel can be
-    chosen when one is known to be better behaved.
+    chosen when one is known to be better behaved.  Alpha is ignored.
 
     Returns
     -------
-    signal : ndarray, shape (rows, cols), float32
+    weights : ndarray of float32, shape (3,), or None for grey images
     used : str
         The rule actually applied (``"grey"`` for one-channel images).
     """
     if rule not in CHANNEL_RULES:
         raise ValueError(f"unknown channel rule {rule!r}; choose one of {', '.join(CHANNEL_RULES)}")
-    if linear.ndim == 2:
-        return linear.astype(np.float32, copy=False), "grey"
-    colour = linear[..., :3]
-    if colour.shape[-1] < 3:
-        return colour[..., 0].astype(np.float32, copy=False), "grey"
+    if channels < 3:
+        return None, "grey"
     if rule in ("auto", "mean"):
-        return colour.mean(axis=-1, dtype=np.float32), "mean"
+        return np.full(3, 1.0 / 3.0, dtype=np.float32), "mean"
     if rule == "luminance":
-        return np.tensordot(colour, _LUMINANCE, axes=([-1], [0])).astype(np.float32), "luminance"
-    index = {"red": 0, "green": 1, "blue": 2}[rule]
-    return colour[..., index].astype(np.float32, copy=True), rule
+        return _LUMINANCE.copy(), "luminance"
+    weights = np.zeros(3, dtype=np.float32)
+    weights[{"red": 0, "green": 1, "blue": 2}[rule]] = 1.0
+    return weights, rule
+
+
+def reduce_channels(linear: np.ndarray, rule: str = "auto") -> tuple[np.ndarray, str]:
+    """Reduce an (rows, cols[, channels]) linear image to one signal, see :func:`channel_weights`."""
+    channels = linear.shape[-1] if linear.ndim == 3 else 1
+    weights, used = channel_weights(channels, rule)
+    if weights is None:
+        single = linear if linear.ndim == 2 else linear[..., 0]
+        return single.astype(np.float32, copy=False), used
+    return (linear[..., :3].astype(np.float32, copy=False) @ weights).astype(np.float32, copy=False), used
 
 
 def _sha256(path: Path) -> str:
     digest = hashlib.sha256()
     with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
+        for block in iter(lambda: fh.read(1 << 22), b""):
             digest.update(block)
     return digest.hexdigest()
+
+
+class _BackgroundHash:
+    """sha256 of a file computed on a worker thread."""
+
+    def __init__(self, path: Path):
+        self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
+        self._future = self._pool.submit(_sha256, path)
+
+    def result(self) -> str:
+        return self._future.result()
+
+    def close(self) -> None:
+        self._pool.shutdown(wait=True)
 
 
 def _tiff_dpi(page) -> float | None:
@@ -206,6 +314,18 @@ def load_scan(
     size = path.stat().st_size
     if size == 0:
         raise ScanError(f"{path}: the file is empty")
+    # Hash the file on a second thread while it is decoded: hashlib releases
+    # the GIL, and for an uncompressed page the hash costs more than the read.
+    hasher = _BackgroundHash(path)
+    try:
+        return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma)
+    finally:
+        hasher.close()
+
+
+def _decode_file(
+    path: Path, hasher: "_BackgroundHash", *, dpi: float | None, channel: str, decoding: str, gamma: float | None
+) -> Scan:
     suffix = path.suffix.lower()
     try:
         if suffix in (".tif", ".tiff"):
@@ -235,11 +355,11 @@ def load_scan(
 
     kind = data.dtype.kind
     if data.dtype == np.uint8:
-        bits, full = 8, 255.0
+        bits, full = 8, 255
     elif data.dtype == np.uint16:
-        bits, full = 16, 65535.0
+        bits, full = 16, 65535
     elif kind == "f":
-        bits, full = data.dtype.itemsize * 8, 1.0
+        bits, full = data.dtype.itemsize * 8, 1
         finite = np.isfinite(data)
         if not finite.all():
             raise ScanError(f"{path}: the floating-point image holds NaN or infinite values")
@@ -249,46 +369,44 @@ def load_scan(
                 f"{path}: floating-point samples span {lo:g}..{hi:g}; stripscan expects linear "
                 "values scaled 0..1 (save the scan as 16-bit integers instead)"
             )
+        data = data.astype(np.float32, copy=False)
     else:
         raise ScanError(f"{path}: unsupported sample type {data.dtype}; use 8- or 16-bit scans")
 
     if decoding == "auto":
         decoding = "srgb" if bits == 8 else "linear"
-    colour = data[..., :3] if data.ndim == 3 else data
     if kind == "f":
-        saturated = colour >= 1.0
+        if decoding != "linear":
+            raise ScanError(f"{path}: floating-point scans must be linear")
+        lut, decoding_used = None, "linear"
     else:
-        saturated = (colour == full) | (colour == 0)
-    if saturated.ndim == 3:
-        saturated = saturated.any(axis=-1)
-
-    scaled = colour.astype(np.float32) / np.float32(full) if kind != "f" else colour.astype(np.float32)
-    if decoding == "linear":
-        linear, decoding_used = scaled, "linear"
-    elif decoding == "srgb":
-        linear, decoding_used = decode_srgb(scaled), "srgb"
-    elif decoding == "gamma":
-        if gamma is None:
-            raise ValueError("decoding='gamma' needs a gamma value")
-        linear, decoding_used = decode_gamma(scaled, gamma), f"gamma {gamma:g}"
-    else:
-        raise ValueError(f"unknown decoding {decoding!r}; choose auto, linear, srgb or gamma")
-    signal, used = reduce_channels(linear, channel)
-    del scaled, linear
+        codes = np.arange(full + 1, dtype=np.float32) / np.float32(full)
+        if decoding == "linear":
+            lut, decoding_used = codes, "linear"
+        elif decoding == "srgb":
+            lut, decoding_used = decode_srgb(codes), "srgb"
+        elif decoding == "gamma":
+            if gamma is None:
+                raise ValueError("decoding='gamma' needs a gamma value")
+            lut, decoding_used = decode_gamma(codes, gamma), f"gamma {gamma:g}"
+        else:
+            raise ValueError(f"unknown decoding {decoding!r}; choose auto, linear, srgb or gamma")
+    weights, used = channel_weights(data.shape[-1] if data.ndim == 3 else 1, channel)
 
     if dpi is None:
         dpi = file_dpi
     if dpi is not None and not (10.0 <= dpi <= 20000.0):
         raise ScanError(f"{path}: implausible resolution {dpi:g} dpi; give the right one with --dpi")
+    digest = hasher.result()
     info = ScanInfo(
         path=str(path),
-        sha256=_sha256(path),
-        width=int(signal.shape[1]),
-        height=int(signal.shape[0]),
+        sha256=digest,
+        width=int(data.shape[1]),
+        height=int(data.shape[0]),
         dpi=float(dpi) if dpi else None,
         bits=bits,
         channels=channels,
         channel=used,
         decoding=decoding_used,
     )
-    return Scan(signal=np.ascontiguousarray(signal, dtype=np.float32), saturated=saturated, info=info)
+    return Scan(data, info, lut, weights)
