@@ -91,7 +91,8 @@ class Scan:
             flags = pixels >= 1.0
         else:
             flags = (pixels == 0) | (pixels == self._top)
-        return flags.any(axis=-1) if flags.ndim == 2 else flags
+        # Colour pixels carry their channels last.
+        return flags.any(axis=-1) if self.raw.ndim == 3 else flags
 
     def values_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
         """Signal of the pixels at (rows[i], cols[i]), float32."""
