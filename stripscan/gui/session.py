@@ -24,7 +24,7 @@ import numpy as np
 
 from .. import __version__
 from ..core.calibration import Calibration, DirectMode
-from ..core.locate import LocateError, LocateOptions, locate_strips, with_step_count
+from ..core.locate import LocateError, LocateOptions, locate_in_scan, with_step_count
 from ..core.pipeline import AnalysisOptions, analyze_loaded, direct_mode_for, strip_result
 from ..core.records import Analysis, StepReading, StripGeometry, StripResult
 from ..core.sample import read_strip
@@ -137,7 +137,8 @@ def read_state(
     excluded: frozenset[int] = frozenset(),
 ) -> StripState:
     """Read one strip's steps from the full-resolution scan."""
-    readings, base_fog, read_notes = read_strip(scan.signal, scan.saturated, geometry)
+    # From the stored pixels, exactly as the core's pipeline reads them.
+    readings, base_fog, read_notes = read_strip(scan, None, geometry)
     return StripState(geometry, tuple(readings), base_fog, tuple(notes) + tuple(read_notes), excluded)
 
 
@@ -176,7 +177,7 @@ def find_strips(
 ) -> tuple[list[StripState], list[str]]:
     """Find and read every strip; a scan with none gives a note, not an error."""
     try:
-        found = locate_strips(scan.signal, dpi=scan.info.dpi, options=LocateOptions(n_steps=n_steps))
+        found = locate_in_scan(scan, LocateOptions(n_steps=n_steps))
     except LocateError as exc:
         return [], [f"{scan.info.path}: {exc}. Draw the strip by hand (Strip menu)."]
     strips = []
@@ -515,7 +516,9 @@ class Session:
             # (bit depth, decoding, resolution) exactly as the command line does.
             probe = analyze_loaded(self.scan, calibration=self.calibration, options=self.options, geometries=[])
             self.mapping = (
-                self.calibration if self.calibration is not None else direct_mode_for(self.scan, dark=self.options.dark)
+                self.calibration
+                if self.calibration is not None
+                else direct_mode_for(self.scan, dark=self.options.dark, clear_area=self.options.clear_area)
             )
             self.mapping_warnings = probe.warnings
         except ValueError as exc:
