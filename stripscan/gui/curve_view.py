@@ -1,0 +1,307 @@
+"""The characteristic curve: density against log relative exposure.
+
+Step points carry their uncertainty bars; the interpolated curve is the
+core's :class:`~stripscan.core.curve.CharacteristicCurve`.  Two horizontal
+lines are the density levels of the average gradient and latitude: drag
+them and the line of the average gradient and the shaded latitude follow
+live, from the core's figures.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+
+from ..core.curve import CharacteristicCurve
+from ..core.records import StripResult
+from .session import Session
+from .style import strip_colour
+
+__all__ = ["CurveView", "usable_points", "curve_of"]
+
+_LEVEL_PEN = pg.mkPen("#6a1b9a", width=2, style=Qt.PenStyle.DashLine)
+_LEVEL_HOVER = pg.mkPen("#ab47bc", width=3)
+
+
+def usable_points(result: StripResult) -> tuple[np.ndarray, np.ndarray]:
+    """Log E and density of the steps the core puts on the curve."""
+    steps = [s for s in result.steps if s.in_range and not s.excluded and np.isfinite(s.od)]
+    return np.array([s.log_exposure for s in steps]), np.array([s.od for s in steps])
+
+
+def curve_of(result: StripResult) -> CharacteristicCurve | None:
+    """The core's interpolated curve through a strip's usable steps, or None."""
+    x, d = usable_points(result)
+    return CharacteristicCurve(x, d) if x.size >= 2 else None
+
+
+class _StripCurve:
+    """Points, bars and curve of one strip (the selected one or an overlaid one)."""
+
+    def __init__(self, plot: pg.PlotItem, colour: str, *, main: bool) -> None:
+        size = 8 if main else 6
+        self.points = pg.ScatterPlotItem(size=size, pen=pg.mkPen(colour), brush=pg.mkBrush(colour))
+        self.unused = pg.ScatterPlotItem(size=size, symbol="x", pen=pg.mkPen("#9e9e9e", width=1.5),
+                                         brush=pg.mkBrush("#9e9e9e"))
+        self.bars = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.012,
+                                    pen=pg.mkPen(colour, width=1))
+        style = Qt.PenStyle.SolidLine if main else Qt.PenStyle.DashLine
+        self.line = pg.PlotCurveItem(pen=pg.mkPen(colour, width=2 if main else 1.5, style=style))
+        self.items = (self.line, self.bars, self.unused, self.points)
+        for item in self.items:
+            plot.addItem(item)
+
+    def show(self, result: StripResult | None) -> None:
+        if result is None:
+            for item in (self.points, self.unused, self.line):
+                item.setData([], [])
+            self.bars.setData(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0))
+            return
+        used = [s for s in result.steps if s.in_range and not s.excluded and np.isfinite(s.od)]
+        other = [s for s in result.steps if s not in used and np.isfinite(s.od)]
+        x = np.array([s.log_exposure for s in used])
+        y = np.array([s.od for s in used])
+        self.points.setData(x, y)
+        self.unused.setData([s.log_exposure for s in other], [s.od for s in other])
+        sd = np.array([s.od_sd if np.isfinite(s.od_sd) else 0.0 for s in used])
+        self.bars.setData(x=x, y=y, height=2.0 * sd)
+        curve = curve_of(result)
+        if curve is None:
+            self.line.setData([], [])
+        else:
+            grid = np.linspace(curve.log_exposure[0], curve.log_exposure[-1], 300)
+            self.line.setData(grid, curve(grid))
+
+    def remove(self, plot: pg.PlotItem) -> None:
+        for item in self.items:
+            plot.removeItem(item)
+
+
+class CurveView(QWidget):
+    """Characteristic curve of the selected strip, with draggable density levels.
+
+    Parameters
+    ----------
+    session : Session
+
+    Attributes
+    ----------
+    low_line, high_line : pg.InfiniteLine
+        The density levels, at base+fog plus the net levels.
+    gradient_item : pg.PlotCurveItem
+        The average gradient's straight line between the two curve points.
+    latitude_region : pg.LinearRegionItem
+        The latitude's span on the log E axis.
+    """
+
+    levels_dragged = Signal(float, float)
+
+    def __init__(self, session: Session, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.session = session
+        self.plot_widget = pg.PlotWidget()
+        self.plot = self.plot_widget.getPlotItem()
+        self.plot.setLabel("bottom", "Log relative exposure")
+        self.plot.setLabel("left", "Optical density (OD)")
+        self.plot.showGrid(x=True, y=True, alpha=0.15)
+        self.plot.setMenuEnabled(False)
+        # Top left stays empty on a characteristic curve (low exposure sits at base+fog).
+        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt")
+
+        self.latitude_region = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(106, 27, 154, 30),
+                                                   pen=pg.mkPen(None))
+        self.latitude_region.setZValue(-20)
+        self.plot.addItem(self.latitude_region)
+        self.base_fog_line = pg.InfiniteLine(angle=0, movable=False,
+                                             pen=pg.mkPen("#757575", style=Qt.PenStyle.DotLine),
+                                             label="base+fog", labelOpts={"position": 0.04, "color": "#616161",
+                                                                         "anchors": [(0, 1), (0, 1)]})
+        self.plot.addItem(self.base_fog_line)
+        self.main = _StripCurve(self.plot, strip_colour(0), main=True)
+        self.legend.addItem(self.main.points, "selected strip")
+        self.legend.addItem(self.main.unused, "step not on the curve")
+        self.low_line = self._level_line()
+        self.high_line = self._level_line()
+        self.gradient_item = pg.PlotCurveItem(pen=pg.mkPen("#6a1b9a", width=3))
+        self.plot.addItem(self.gradient_item)
+        self.speed_item = pg.ScatterPlotItem(symbol="star", size=16, pen=pg.mkPen("#000000"),
+                                             brush=pg.mkBrush("#ffeb3b"))
+        self.max_slope_item = pg.ScatterPlotItem(symbol="t1", size=13, pen=pg.mkPen("#000000"),
+                                                 brush=pg.mkBrush("#26a69a"))
+        self.tangent_item = pg.PlotCurveItem(pen=pg.mkPen("#26a69a", width=1.5, style=Qt.PenStyle.DashDotLine))
+        for item in (self.speed_item, self.max_slope_item, self.tangent_item):
+            self.plot.addItem(item)
+        self.legend.addItem(self.gradient_item, "average gradient")
+        self.legend.addItem(self.speed_item, "speed point (net 1.00)")
+        self.legend.addItem(self.max_slope_item, "maximum slope")
+        self.overlays: dict[int, _StripCurve] = {}
+        self._syncing = False
+        self._setup_gradient_axis()
+
+        self.show_gradient = QCheckBox("Show the gradient curve (right axis)")
+        self.show_gradient.toggled.connect(self.set_gradient_visible)
+        self.readout = QLabel()
+        self.readout.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        top = QHBoxLayout()
+        top.addWidget(self.readout, 1)
+        top.addWidget(self.show_gradient)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addLayout(top)
+        layout.addWidget(self.plot_widget, 1)
+        hint = QLabel("Drag the two dashed lines to move the density levels of the average gradient and latitude.")
+        hint.setStyleSheet("color: #616161")
+        hint.setWordWrap(True)
+        layout.addWidget(hint)
+
+        session.events.connect_each(self.refresh, *session.events.RESULT_EVENTS, "overlay_changed")
+        self.set_gradient_visible(False)
+        self.refresh()
+
+    def _level_line(self) -> pg.InfiniteLine:
+        line = pg.InfiniteLine(angle=0, movable=True, pen=_LEVEL_PEN, hoverPen=_LEVEL_HOVER,
+                               label="", labelOpts={"position": 0.97, "color": "#4a148c",
+                                                    "fill": pg.mkBrush(255, 255, 255, 210),
+                                                    "anchors": [(1, 1), (1, 1)]})
+        line.setToolTip("Drag to move this density level")
+        line.sigPositionChanged.connect(self._line_moved)
+        self.plot.addItem(line)
+        return line
+
+    def _setup_gradient_axis(self) -> None:
+        # A second view box sharing the log E axis, drawn against the right axis.
+        self.gradient_view = pg.ViewBox()
+        self.plot.scene().addItem(self.gradient_view)
+        axis = self.plot.getAxis("right")
+        axis.linkToView(self.gradient_view)
+        axis.setLabel("Gradient dD/d(log E)")
+        self.gradient_view.setXLink(self.plot)
+        self.gradient_curve = pg.PlotCurveItem(pen=pg.mkPen("#26a69a", width=1.5, style=Qt.PenStyle.DashLine))
+        self.gradient_view.addItem(self.gradient_curve)
+
+        def follow() -> None:
+            self.gradient_view.setGeometry(self.plot.getViewBox().sceneBoundingRect())
+
+        self.plot.getViewBox().sigResized.connect(follow)
+
+    def set_gradient_visible(self, shown: bool) -> None:
+        """Show or hide the gradient curve and its axis."""
+        self.plot.showAxis("right", shown)
+        self.gradient_view.setVisible(shown)
+        if self.show_gradient.isChecked() != shown:
+            self.show_gradient.setChecked(shown)
+        self.refresh()
+
+    # -- model → view --------------------------------------------------------------
+    def refresh(self, *_: object) -> None:
+        """Redraw everything from the session's results."""
+        result = self.session.result()
+        index = self.session.selected
+        colour = strip_colour(index or 0)
+        for item, pen in ((self.main.points, pg.mkPen(colour)), (self.main.line, pg.mkPen(colour, width=2))):
+            item.setPen(pen)
+        self.main.points.setBrush(pg.mkBrush(colour))
+        self.main.bars.setData(pen=pg.mkPen(colour, width=1))
+        self.main.show(result)
+        self._show_overlays()
+        self._show_figures(result)
+
+    def _show_overlays(self) -> None:
+        wanted = {k for k in self.session.overlay if k != self.session.selected and k < len(self.session.strips)}
+        for k in list(self.overlays):
+            if k not in wanted:
+                self.overlays.pop(k).remove(self.plot)
+                self.legend.removeItem(f"strip {k + 1}")
+        for k in sorted(wanted):
+            if k not in self.overlays:
+                self.overlays[k] = _StripCurve(self.plot, strip_colour(k), main=False)
+                self.legend.addItem(self.overlays[k].points, f"strip {k + 1}")
+            self.overlays[k].show(self.session.result(k))
+
+    def _show_figures(self, result: StripResult | None) -> None:
+        low, high = self.session.levels
+        figures = result.figures if result is not None else None
+        base_fog = figures.base_fog if figures is not None else None
+        on = base_fog is not None
+        for item in (self.low_line, self.high_line, self.base_fog_line):
+            item.setVisible(on)
+        if on:
+            self._syncing = True
+            try:
+                self.low_line.setValue(base_fog + low)
+                self.high_line.setValue(base_fog + high)
+            finally:
+                self._syncing = False
+            self.base_fog_line.setValue(base_fog)
+            self.low_line.label.setFormat(f"net {low:.2f}")
+            self.high_line.label.setFormat(f"net {high:.2f}")
+        x1 = figures.gradient_low_log_exposure if figures else None
+        x2 = figures.gradient_high_log_exposure if figures else None
+        if on and x1 is not None and x2 is not None:
+            self.gradient_item.setData([x1, x2], [base_fog + low, base_fog + high])
+            self.latitude_region.setRegion((x1, x2))
+            self.latitude_region.show()
+        else:
+            self.gradient_item.setData([], [])
+            self.latitude_region.hide()
+        if on and figures.speed_log_exposure is not None:
+            self.speed_item.setData([figures.speed_log_exposure], [base_fog + figures.settings.get("speed_net_density", 1.0)])
+        else:
+            self.speed_item.setData([], [])
+        self._show_slope(result)
+        self._show_readout(result)
+
+    def _show_slope(self, result: StripResult | None) -> None:
+        curve = curve_of(result) if result is not None else None
+        figures = result.figures if result is not None else None
+        if curve is None or figures is None or figures.gamma_log_exposure is None:
+            self.max_slope_item.setData([], [])
+            self.tangent_item.setData([], [])
+            self.gradient_curve.setData([], [])
+            return
+        x0 = figures.gamma_log_exposure
+        y0 = float(curve(x0))
+        self.max_slope_item.setData([x0], [y0])
+        # A short tangent shows what "maximum slope" means on the curve itself.
+        half = 0.12
+        self.tangent_item.setData([x0 - half, x0 + half], [y0 - figures.gamma * half, y0 + figures.gamma * half])
+        if self.gradient_view.isVisible():
+            grid, slope = curve.gradient_curve()
+            self.gradient_curve.setData(grid, slope)
+            self.gradient_view.enableAutoRange(axis=pg.ViewBox.YAxis)
+        else:
+            self.gradient_curve.setData([], [])
+
+    def _show_readout(self, result: StripResult | None) -> None:
+        if result is None:
+            self.readout.setText("No strip selected." if self.session.selected is None
+                                 else "No densities: see the message above the scan.")
+            return
+        f = result.figures
+        low, high = self.session.levels
+
+        def num(value: float | None, digits: int = 2) -> str:
+            return "—" if value is None else f"{value:.{digits}f}"
+
+        self.readout.setText(
+            f"<b>Strip {result.index}</b> &nbsp; average gradient (net {low:.2f}–{high:.2f}) "
+            f"<b>{num(f.average_gradient)}</b> &nbsp; latitude <b>{num(f.latitude_log_exposure)}</b> log E"
+            f" &nbsp; speed point {num(f.speed_log_exposure)} &nbsp; gamma {num(f.gamma)}"
+        )
+
+    # -- view → model -------------------------------------------------------------------
+    def _line_moved(self, line: pg.InfiniteLine) -> None:
+        if self._syncing:
+            return
+        result = self.session.result()
+        base_fog = result.figures.base_fog if result is not None else None
+        if base_fog is None:
+            return
+        net = float(line.value()) - base_fog
+        if line is self.low_line:
+            self.session.set_levels(low=net)
+        else:
+            self.session.set_levels(high=net)
+        self.levels_dragged.emit(*self.session.levels)

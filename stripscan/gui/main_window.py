@@ -1,0 +1,425 @@
+"""The main window: scan, curve, figures and steps, all over one :class:`Session`."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import logging
+import os
+from pathlib import Path
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QAction, QCloseEvent, QDragEnterEvent, QDropEvent, QKeySequence
+from PySide6.QtWidgets import (
+    QDockWidget,
+    QFileDialog,
+    QFrame,
+    QHBoxLayout,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QSplitter,
+    QTabWidget,
+    QVBoxLayout,
+    QWidget,
+)
+
+from .. import CAUTION, __version__
+from ..core.calibration import load_calibration
+from .calibration_dialog import CalibrationDialog
+from .curve_view import CurveView
+from .errors import log_file, report_error, show_message
+from .figures_panel import FiguresPanel, StepTable
+from .options_dialog import OptionsDialog
+from .scan_view import ScanView
+from .session import LoadedScan, Session, find_strips, load_and_find
+from .settings import AppSettings
+from .strips_panel import StripsPanel
+from .tasks import TaskRunner
+
+__all__ = ["MainWindow", "SCAN_SUFFIXES"]
+
+log = logging.getLogger(__name__)
+
+SCAN_SUFFIXES = (".tif", ".tiff", ".png", ".jpg", ".jpeg")
+_SCAN_FILTER = "Scans (*.tif *.tiff *.png *.jpg *.jpeg);;All files (*)"
+
+
+class _Banner(QFrame):
+    """A strip above the scan for what the user must not miss (calibration state)."""
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setObjectName("banner")
+        self.label = QLabel()
+        self.label.setWordWrap(True)
+        self.label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.button = QPushButton("Calibrate…")
+        layout = QHBoxLayout(self)
+        layout.setContentsMargins(8, 4, 8, 4)
+        layout.addWidget(self.label, 1)
+        layout.addWidget(self.button)
+
+    def show_lines(self, lines: list[str], *, severe: bool) -> None:
+        self.label.setText("\n".join(lines))
+        colour, border = ("#f8d7da", "#d9534f") if severe else ("#fff3cd", "#e0a800")
+        self.setStyleSheet(f"QFrame#banner {{ background: {colour}; border: 1px solid {border}; }}"
+                           f" QLabel {{ color: #3b2a00; }}")
+        self.setVisible(bool(lines))
+
+
+class MainWindow(QMainWindow):
+    """The workbench window.
+
+    Parameters
+    ----------
+    session : Session, optional
+        The model to show (a new one by default).
+    settings : AppSettings, optional
+        Where settings persist (default: the user's settings file).
+    """
+
+    def __init__(self, session: Session | None = None, settings: AppSettings | None = None) -> None:
+        super().__init__()
+        self.settings = settings or AppSettings()
+        self.session = session or Session(max_calibration_age_days=self.settings.max_age_days())
+        self.runner = TaskRunner(self)
+        self.setWindowTitle("stripscan")
+        self.setAcceptDrops(True)
+        self.resize(1400, 900)
+
+        self.scan_view = ScanView(self.session)
+        self.curve_view = CurveView(self.session)
+        self.figures = FiguresPanel(self.session)
+        self.step_table = StepTable(self.session)
+        self.strips_panel = StripsPanel(self.session)
+        self.banner = _Banner()
+        self.banner.button.clicked.connect(self.open_calibration_assistant)
+        self.calibration_dialog: CalibrationDialog | None = None
+
+        tabs = QTabWidget()
+        tabs.addTab(self.figures, "Figures")
+        tabs.addTab(self.step_table, "Steps")
+        self.tabs = tabs
+        right = QSplitter(Qt.Orientation.Vertical)
+        right.addWidget(self.curve_view)
+        right.addWidget(tabs)
+        right.setSizes([520, 380])
+        main = QSplitter(Qt.Orientation.Horizontal)
+        main.addWidget(self.scan_view)
+        main.addWidget(right)
+        main.setSizes([620, 780])
+        self.splitter = main
+        central = QWidget()
+        layout = QVBoxLayout(central)
+        layout.setContentsMargins(4, 4, 4, 0)
+        layout.addWidget(self.banner)
+        layout.addWidget(main, 1)
+        self.setCentralWidget(central)
+        dock = QDockWidget("Strips", self)
+        dock.setObjectName("strips_dock")
+        dock.setWidget(self.strips_panel)
+        dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable)
+        self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, dock)
+        self.resizeDocks([dock], [270], Qt.Orientation.Horizontal)
+
+        self.progress = QProgressBar()
+        self.progress.setRange(0, 100)
+        self.progress.setMaximumWidth(260)
+        self.progress.hide()
+        caution = QLabel(CAUTION)
+        caution.setStyleSheet("color: #6d4c00")
+        caution.setToolTip(CAUTION)
+        self.statusBar().addPermanentWidget(self.progress)
+        self.statusBar().addPermanentWidget(caution)
+        self.caution_label = caution
+        self.runner.busy_changed.connect(self._busy)
+        self.runner.progress.connect(self._progress)
+        self.scan_view.hint.connect(lambda text: self.statusBar().showMessage(text))
+        self.strips_panel.draw_requested.connect(self.start_drawing)
+        self.strips_panel.find_requested.connect(self.find_strips_again)
+        self.curve_view.show_gradient.toggled.connect(self.settings.set_show_gradient)
+
+        self._make_actions()
+        ev = self.session.events
+        ev.calibration_changed.connect(self._refresh_banner)
+        ev.scan_loaded.connect(self._refresh_banner)
+        ev.levels_changed.connect(lambda low, high: self.settings.set_levels(low, high))
+        self._restore()
+
+    # -- actions ---------------------------------------------------------------------
+    def _action(self, menu, text: str, slot, shortcut=None, tip: str = "") -> QAction:
+        action = QAction(text, self)
+        if shortcut is not None:
+            action.setShortcut(QKeySequence(shortcut))
+        if tip:
+            action.setStatusTip(tip)
+        action.triggered.connect(lambda checked=False: slot())
+        menu.addAction(action)
+        return action
+
+    def _make_actions(self) -> None:
+        bar = self.menuBar()
+        file = bar.addMenu("&File")
+        self.open_action = self._action(file, "&Open a scan…", self.ask_open, QKeySequence.StandardKey.Open,
+                                        "Open a scan of processed strips (or drop the file on the window)")
+        self.recent_menu = file.addMenu("Open &recent")
+        file.addSeparator()
+        self._action(file, "&Save results (JSON)…", self.ask_save_results, QKeySequence.StandardKey.Save)
+        self._action(file, "Save the step table (CSV)…", self.step_table._ask_save)
+        file.addSeparator()
+        self._action(file, "&Quit", self.close, QKeySequence.StandardKey.Quit)
+
+        cal = bar.addMenu("&Calibration")
+        self._action(cal, "Calibration &assistant…", self.open_calibration_assistant, "Ctrl+K",
+                     "Calibrate the scanner from a reference step tablet and its certificate")
+        self._action(cal, "&Use a saved calibration…", self.ask_use_calibration)
+        self._action(cal, "Work &without calibration (direct mode)", lambda: self.use_calibration(None))
+
+        strip = bar.addMenu("&Strip")
+        self.next_action = self._action(strip, "&Next strip", lambda: self.session.select_next(1), "Ctrl+]")
+        self.previous_action = self._action(strip, "&Previous strip", lambda: self.session.select_next(-1), "Ctrl+[")
+        strip.addSeparator()
+        self._action(strip, "&Draw a strip by hand", self.start_drawing, "Ctrl+D",
+                     "Outline a strip with three clicks where the search did not find it")
+        self._action(strip, "&Find strips again", self.find_strips_again)
+
+        view = bar.addMenu("&View")
+        self._action(view, "Zoom &in", lambda: self.scan_view.zoom(1.25), QKeySequence.StandardKey.ZoomIn)
+        self._action(view, "Zoom &out", lambda: self.scan_view.zoom(0.8), QKeySequence.StandardKey.ZoomOut)
+        self._action(view, "Show the &whole scan", self.scan_view.fit, "Ctrl+0")
+        gradient = QAction("Show the &gradient curve", self, checkable=True)
+        gradient.setShortcut(QKeySequence("Ctrl+G"))
+        gradient.toggled.connect(self.curve_view.set_gradient_visible)
+        self.curve_view.show_gradient.toggled.connect(gradient.setChecked)
+        view.addAction(gradient)
+
+        settings = bar.addMenu("Se&ttings")
+        self._action(settings, "&Analysis settings…", self.open_options)
+        help_menu = bar.addMenu("&Help")
+        self._action(help_menu, "&About stripscan", self.show_about)
+        self._fill_recent()
+
+    def _fill_recent(self) -> None:
+        self.recent_menu.clear()
+        recent = self.settings.recent_files()
+        for path in recent:
+            action = self.recent_menu.addAction(Path(path).name)
+            action.setToolTip(path)
+            action.setStatusTip(path)
+            action.triggered.connect(lambda checked=False, p=path: self.open_path(p))
+        if recent:
+            self.recent_menu.addSeparator()
+            self.recent_menu.addAction("Clear the list").triggered.connect(self._clear_recent)
+        self.recent_menu.setEnabled(bool(recent))
+
+    def _clear_recent(self) -> None:
+        self.settings.clear_recent()
+        self._fill_recent()
+
+    # -- settings -----------------------------------------------------------------------
+    def _restore(self) -> None:
+        geometry, state = self.settings.window_state()
+        if geometry is not None:
+            self.restoreGeometry(geometry)
+        if state is not None:
+            self.restoreState(state)
+        low, high = self.settings.levels()
+        self.session.set_levels(low, high)
+        increment = self.settings.increment()
+        if increment != self.session.options.increment:
+            self.session.set_options(dataclasses.replace(self.session.options, increment=increment))
+        self.curve_view.set_gradient_visible(self.settings.show_gradient())
+        path = self.settings.calibration_path()
+        if path:
+            try:
+                self.session.set_calibration(load_calibration(path), path)
+            except (OSError, ValueError) as exc:
+                self.settings.set_calibration_path(None)
+                report_error(self, "The saved calibration could not be used", exc)
+        self._refresh_banner()
+
+    def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
+        self.runner.wait(10_000)
+        self.settings.set_window_state(self.saveGeometry(), self.saveState())
+        self.settings.set_levels(*self.session.levels)
+        self.settings.sync()
+        super().closeEvent(event)
+
+    # -- opening files ---------------------------------------------------------------------
+    def ask_open(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Open a scan of strips", self.settings.last_folder(), _SCAN_FILTER)
+        if path:
+            self.open_path(path)
+
+    def open_path(self, path: str | os.PathLike[str]) -> None:
+        """Open a scan (read in a worker thread) or, for a .json file, use it as the calibration."""
+        path = str(path)
+        if path.lower().endswith(".json"):
+            self.use_calibration_file(path)
+            return
+        self.statusBar().showMessage(f"Reading {path}…")
+        self.runner.start(load_and_find, path, n_steps=self.session.options.n_steps,
+                          on_done=lambda loaded: self._loaded(path, loaded),
+                          on_error=lambda exc: self._open_failed(path, exc), key="scan")
+
+    def _loaded(self, path: str, loaded: LoadedScan) -> None:
+        self.session.set_loaded(loaded)
+        self.settings.add_recent(path)
+        self.settings.set_last_folder(str(Path(path).parent))
+        self._fill_recent()
+        self.setWindowTitle(f"stripscan — {Path(path).name}")
+        n = len(self.session.strips)
+        self.statusBar().showMessage(f"{Path(path).name}: {n} strip{'s' if n != 1 else ''} found", 8000)
+        if loaded.notes:
+            show_message(self, "No strip found", "\n".join(loaded.notes), icon=QMessageBox.Icon.Information)
+        elif self.session.mapping_error:
+            show_message(self, "No densities for this scan", self.session.mapping_error)
+
+    def _open_failed(self, path: str, error: BaseException) -> None:
+        self.statusBar().showMessage(f"Could not open {Path(path).name}", 8000)
+        report_error(self, "The scan could not be opened", error)
+
+    def dragEnterEvent(self, event: QDragEnterEvent) -> None:  # noqa: N802 (Qt's name)
+        if event.mimeData().hasUrls() and any(u.isLocalFile() for u in event.mimeData().urls()):
+            event.acceptProposedAction()
+        else:
+            event.ignore()
+
+    def dropEvent(self, event: QDropEvent) -> None:  # noqa: N802 (Qt's name)
+        files = [u.toLocalFile() for u in event.mimeData().urls() if u.isLocalFile()]
+        if not files:
+            event.ignore()
+            return
+        event.acceptProposedAction()
+        # A calibration dropped together with a scan is used for it.
+        for path in sorted(files, key=lambda p: not p.lower().endswith(".json")):
+            self.open_path(path)
+
+    def find_strips_again(self) -> None:
+        scan = self.session.scan
+        if scan is None:
+            return
+        self.runner.start(find_strips, scan, n_steps=self.session.options.n_steps, key="scan",
+                          on_done=self._found_again,
+                          on_error=lambda exc: report_error(self, "The search failed", exc))
+
+    def _found_again(self, found: tuple) -> None:
+        strips, notes = found
+        self.session.replace_strips(strips)
+        if notes:
+            show_message(self, "No strip found", "\n".join(notes), icon=QMessageBox.Icon.Information)
+
+    def start_drawing(self) -> None:
+        try:
+            self.scan_view.start_drawing()
+        except ValueError as exc:
+            self.statusBar().showMessage(str(exc), 6000)
+            return
+        self.scan_view.setFocus()
+
+    # -- calibration -----------------------------------------------------------------------------
+    def open_calibration_assistant(self) -> CalibrationDialog:
+        active = self.session.calibration_path or ""
+        dialog = CalibrationDialog(self, start_folder=self.settings.last_folder(), active=active)
+        dialog.calibration_saved.connect(self.use_calibration_file)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        self.calibration_dialog = dialog
+        dialog.destroyed.connect(lambda: setattr(self, "calibration_dialog", None))
+        dialog.open()
+        return dialog
+
+    def ask_use_calibration(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Use a saved calibration", self.settings.last_folder(),
+                                              "Calibrations (*.json);;All files (*)")
+        if path:
+            self.use_calibration_file(path)
+
+    def use_calibration_file(self, path: str) -> bool:
+        """Make the calibration in ``path`` active; a bad file gets a message naming it."""
+        try:
+            calibration = load_calibration(path)
+        except (OSError, ValueError) as exc:
+            report_error(self, "The calibration could not be used", exc)
+            return False
+        self.use_calibration(calibration, path)
+        return True
+
+    def use_calibration(self, calibration, path: str | None = None) -> None:
+        self.session.set_calibration(calibration, path)
+        self.settings.set_calibration_path(path)
+        what = f"calibration {Path(path).name}" if path else "direct mode (no calibration)"
+        self.statusBar().showMessage(f"Now using {what}", 8000)
+
+    def _refresh_banner(self) -> None:
+        lines = self.session.messages()
+        self.banner.show_lines(lines, severe=bool(self.session.mapping_error or self.session.calibration is None))
+
+    # -- saving ------------------------------------------------------------------------------------
+    def ask_save_results(self) -> None:
+        analysis = self.session.analysis()
+        if analysis is None:
+            show_message(self, "Nothing to save", "Open a scan with strips (and a usable calibration) first.",
+                         icon=QMessageBox.Icon.Information)
+            return
+        default = str(Path(analysis.scan.path).with_suffix(".results.json"))
+        path, _ = QFileDialog.getSaveFileName(self, "Save the results", default, "JSON (*.json)")
+        if path:
+            self.save_results(path)
+
+    def save_results(self, path: str | os.PathLike[str]) -> Path | None:
+        """Write every strip's results as the core's JSON record (with the caution)."""
+        analysis = self.session.analysis()
+        if analysis is None:
+            return None
+        path = Path(path)
+        data = {**analysis.to_dict(), "caution": CAUTION}
+        tmp = path.with_name(path.name + ".partial")
+        try:
+            tmp.write_text(json.dumps(data, indent=1) + "\n", encoding="utf-8")
+            os.replace(tmp, path)
+        except OSError as exc:
+            tmp.unlink(missing_ok=True)
+            report_error(self, "The results were not saved", OSError(f"{path}: {exc.strerror or exc}"))
+            return None
+        self.statusBar().showMessage(f"Results saved to {path}", 8000)
+        return path
+
+    # -- the rest -----------------------------------------------------------------------------------
+    def open_options(self) -> None:
+        dialog = OptionsDialog(self.session.options, self.session.max_calibration_age_days, self)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+
+        def accepted() -> None:
+            self.session.set_options(dialog.options())
+            self.session.set_max_calibration_age(dialog.max_age_days())
+            self.settings.set_increment(dialog.options().increment)
+            self.settings.set_max_age_days(dialog.max_age_days())
+
+        dialog.accepted.connect(accepted)
+        dialog.open()
+
+    def show_about(self) -> QMessageBox:
+        where = log_file()
+        return show_message(
+            self, "About stripscan",
+            f"stripscan {__version__}\nReads processed sensitometric film strips off a flatbed scanner: "
+            f"calibrated optical densities per step, the characteristic curve and its figures.\n\n"
+            f"Caution: {CAUTION}" + (f"\n\nLog file: {where}" if where else ""),
+            icon=QMessageBox.Icon.Information,
+        )
+
+    def _busy(self, busy: bool) -> None:
+        self.progress.setVisible(busy)
+        if busy:
+            self.progress.setValue(0)
+
+    def _progress(self, fraction: float, text: str) -> None:
+        self.progress.setValue(int(round(100 * fraction)))
+        self.progress.setFormat(f"{text} %p%")
+
+    @property
+    def busy(self) -> bool:
+        return self.runner.busy
