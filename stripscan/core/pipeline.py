@@ -110,7 +110,7 @@ def direct_mode_for(
     AnalysisError
         For gamma-encoded or 8-bit scans, where log10(I0/I) means nothing.
     """
-    info = scan.info
+    info = scan.header
     if info.bits < 16 or info.decoding != "linear":
         raise AnalysisError(
             f"{info.path}: direct mode needs a linear 16-bit scan, this one is {info.bits}-bit "
@@ -134,7 +134,7 @@ def direct_mode_for(
 
 
 def _check_compatible(scan: Scan, calibration: Calibration) -> list[str]:
-    info = scan.info
+    info = scan.header
     if info.bits != calibration.bits:
         raise AnalysisError(
             f"{info.path}: the scan is {info.bits}-bit but the calibration was made from a "
@@ -316,7 +316,7 @@ def analyze_loaded(
             bf,
             mapping,
             options,
-            pixel_mm=scan.info.pixel_mm,
+            pixel_mm=scan.pixel_mm,
             excluded=(excluded or {}).get(index, ()),
             notes=list(item.warnings) + notes,
         )

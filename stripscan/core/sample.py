@@ -18,7 +18,7 @@ __all__ = ["robust_mean", "read_area", "read_strip", "box_pixels"]
 _MAD_TO_SD = 1.4826
 
 
-def robust_mean(values: np.ndarray, *, cut: float = 4.0, estimate_from: int = 8192) -> tuple[float, float, int, int]:
+def robust_mean(values: np.ndarray, *, cut: float = 4.0, estimate_from: int = 4096) -> tuple[float, float, int, int]:
     """Mean and sd of the values left after rejecting outliers.
 
     Parameters
@@ -28,9 +28,9 @@ def robust_mean(values: np.ndarray, *, cut: float = 4.0, estimate_from: int = 81
         Values farther than ``cut`` robust sd from the median are rejected.
     estimate_from : int
         The median and spread that set the rejection window are estimated
-        from an evenly strided subset of at most this many values; the mean
+        from an evenly strided subset of about this many values; the mean
         and sd are then taken over every kept value.  A window set from
-        8192 of 20 000 pixels moves by well under a noise sd, while the
+        4096 of 20 000 pixels moves by well under a noise sd, while the
         selection cost drops several fold.
 
     Returns

@@ -8,9 +8,10 @@ its corrections switched off are linear and are only scaled.
 
 from __future__ import annotations
 
-import concurrent.futures
+import dataclasses
 import hashlib
 import os
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -48,14 +49,44 @@ class Scan:
         Channel weights that reduce colour to one signal (sum 1); None for grey.
     """
 
-    def __init__(self, raw: np.ndarray, info: ScanInfo, lut: np.ndarray | None, weights: np.ndarray | None):
+    def __init__(
+        self,
+        raw: np.ndarray,
+        info: ScanInfo,
+        lut: np.ndarray | None,
+        weights: np.ndarray | None,
+        pending_hash: "_BackgroundHash | None" = None,
+    ):
         self.raw = raw
-        self.info = info
+        self._info = info
+        self._pending_hash = pending_hash
         self._lut = lut
         self._weights = weights
         self._signal: np.ndarray | None = None
         self._saturated: np.ndarray | None = None
         self._top = None if lut is None else len(lut) - 1
+
+    @property
+    def info(self) -> ScanInfo:
+        """Provenance and format; waits for the file's sha256 the first time."""
+        if self._pending_hash is not None:
+            self._info = dataclasses.replace(self._info, sha256=self._pending_hash.result())
+            self._pending_hash = None
+        return self._info
+
+    @property
+    def header(self) -> ScanInfo:
+        """Provenance and format known at once; ``sha256`` may still be empty."""
+        return self._info
+
+    @property
+    def dpi(self) -> float | None:
+        """Resolution (available at once, without waiting for the hash)."""
+        return self._info.dpi
+
+    @property
+    def pixel_mm(self) -> float | None:
+        return self._info.pixel_mm
 
     @classmethod
     def from_signal(cls, signal: np.ndarray, info: ScanInfo) -> "Scan":
@@ -209,17 +240,31 @@ def _sha256(path: Path) -> str:
 
 
 class _BackgroundHash:
-    """sha256 of a file computed on a worker thread."""
+    """sha256 of a file computed on a worker thread (hashlib releases the GIL)."""
 
     def __init__(self, path: Path):
-        self._pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
-        self._future = self._pool.submit(_sha256, path)
+        self._path = path
+        self._digest: str | None = None
+        self._error: OSError | None = None
+        self._thread = threading.Thread(target=self._run, name="stripscan-sha256", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        try:
+            self._digest = _sha256(self._path)
+        except OSError as exc:
+            self._error = exc
 
     def result(self) -> str:
-        return self._future.result()
+        self._thread.join()
+        if self._error is not None:
+            raise ScanError(f"{self._path}: cannot be read ({self._error.strerror or self._error})")
+        assert self._digest is not None
+        return self._digest
 
-    def close(self) -> None:
-        self._pool.shutdown(wait=True)
+    def result_quietly(self) -> None:
+        """Wait for the thread, ignoring its outcome (the load failed anyway)."""
+        self._thread.join()
 
 
 def _tiff_dpi(page) -> float | None:
@@ -317,11 +362,14 @@ def load_scan(
         raise ScanError(f"{path}: the file is empty")
     # Hash the file on a second thread while it is decoded: hashlib releases
     # the GIL, and for an uncompressed page the hash costs more than the read.
+    # The hash is joined only when the scan's provenance is first asked for,
+    # so it also overlaps the analysis.
     hasher = _BackgroundHash(path)
     try:
         return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma)
-    finally:
-        hasher.close()
+    except BaseException:
+        hasher.result_quietly()
+        raise
 
 
 def _decode_file(
@@ -398,10 +446,9 @@ def _decode_file(
         dpi = file_dpi
     if dpi is not None and not (10.0 <= dpi <= 20000.0):
         raise ScanError(f"{path}: implausible resolution {dpi:g} dpi; give the right one with --dpi")
-    digest = hasher.result()
     info = ScanInfo(
         path=str(path),
-        sha256=digest,
+        sha256="",
         width=int(data.shape[1]),
         height=int(data.shape[0]),
         dpi=float(dpi) if dpi else None,
@@ -410,4 +457,4 @@ def _decode_file(
         channel=used,
         decoding=decoding_used,
     )
-    return Scan(data, info, lut, weights)
+    return Scan(data, info, lut, weights, pending_hash=hasher)
