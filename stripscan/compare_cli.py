@@ -1,0 +1,671 @@
+"""Command line: ``stripscan compare`` (emulsion lots side by side) and ``stripscan crossover``.
+
+Naming a set of strips
+----------------------
+Both commands take *sets*: replicate strips of one film.  A set is written
+in one of three ways:
+
+``scan:PATH`` or ``scan:PATH#STRIPS``
+    The strips on a scan file, analysed now (with ``--calibration``).
+    ``#STRIPS`` picks strips by their number on the scan, as
+    ``stripscan analyze`` prints them: ``#1,3`` or ``#2-4`` or ``#1,3-5``.
+    A bare path to an existing file means the same as ``scan:PATH``.
+``snapshot:ID`` or ``snapshot:ID,ID,...``
+    Strips stored in the archive (``--archive``), by snapshot number;
+    ranges work as above: ``snapshot:12-16``.
+``lot:LOT``
+    Every current snapshot of an emulsion lot in the archive.  For a
+    crossover only the lot's snapshots of that processor and that date
+    count, so earlier readings of the same lot stay out.
+
+The set's name in tables and JSON is what you wrote.  Examples::
+
+    stripscan compare lot:M-2610-A scan:lot_M-2702-B_three_strips.tif --calibration cal.json
+    stripscan compare scan:old.tif#1-3 scan:new.tif#1-3 scan:other.tif --json
+    stripscan crossover --processor "Processor 1" --old snapshot:21-25 --new snapshot:26-30 --date 2026-11-20
+
+``compare`` compares every set with the first one: differences are
+always B − A, the later set minus the first.  Relative speed is
+100·(10^(−Δlog E) − 1) %, positive when B is faster.  ``--json`` prints
+``{"sets": [...], "differences": {...}, "comparisons": [...]}``:
+``sets`` holds every set (``name``, ``n``, ``figures`` with mean, sd, n
+per figure, and the mean curves); ``differences`` is the table of the
+second set against the first, one entry per figure with ``a``, ``b``,
+``difference`` (= b − a), ``ci95`` ([low, high] or null with one strip),
+``tolerance`` and ``verdict``; ``comparisons`` lists every pair (set k
+against set 1) in the same shape, with ΔD(log E) and Δlog E(net density).
+
+``crossover`` reads the old and the new QC film's strips at the steps the
+processor already uses, moves its operating levels by the mean difference
+(:func:`stripscan.core.qc.crossover`) and stores the crossover record and
+a ``crossover`` event in the processor's QC log together.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import datetime
+import json
+import math
+import os
+import re
+import sys
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from . import CAUTION, __version__
+from .core.compare import (
+    DEFAULT_TOLERANCES,
+    FIGURE_INFO,
+    FIGURES,
+    Comparison,
+    CompareError,
+    StripSet,
+    Tolerance,
+    compare_sets,
+    mean_step_densities,
+    strip_qc_values,
+)
+
+__all__ = [
+    "SetError",
+    "SetSpec",
+    "parse_set",
+    "SetLoader",
+    "comparison_json",
+    "format_comparisons",
+    "levels_in_force",
+    "store_crossover",
+    "register",
+]
+
+
+class SetError(ValueError):
+    """A set named on the command line cannot be read; the message names the set."""
+
+
+# --------------------------------------------------------------------------
+# Naming sets
+
+_KINDS = ("scan", "snapshot", "lot")
+_NUMBERS = re.compile(r"^\d+(-\d+)?(,\d+(-\d+)?)*$")
+_SYNTAX = "write scan:PATH[#1,3], snapshot:ID[,ID...] or lot:LOT"
+
+
+def _numbers(text: str, what: str, spec: str) -> tuple[int, ...]:
+    """``1,3-5`` -> (1, 3, 4, 5), in the order written, each once."""
+    if not _NUMBERS.match(text):
+        raise SetError(f"set {spec!r}: {text!r} is not a list of {what} numbers (e.g. 1,3 or 2-4)")
+    out: list[int] = []
+    for part in text.split(","):
+        first, _, last = part.partition("-")
+        lo, hi = int(first), int(last or first)
+        if hi < lo:
+            raise SetError(f"set {spec!r}: the range {part} runs backwards")
+        out += [n for n in range(lo, hi + 1) if n not in out]
+    if 0 in out:
+        raise SetError(f"set {spec!r}: {what} numbers start at 1")
+    return tuple(out)
+
+
+@dataclass(frozen=True)
+class SetSpec:
+    """A set as written on the command line.
+
+    Attributes
+    ----------
+    text : str
+        What was written (the set's name).
+    kind : str
+        ``"scan"``, ``"snapshot"`` or ``"lot"``.
+    target : str
+        The scan path or lot id (empty for snapshots).
+    numbers : tuple of int
+        Picked strip numbers (scan) or snapshot ids; empty for all strips.
+    """
+
+    text: str
+    kind: str
+    target: str
+    numbers: tuple[int, ...] = ()
+
+
+def _split_picks(text: str) -> tuple[str, str | None]:
+    """``a.tif#1,3`` -> (``a.tif``, ``1,3``); a ``#`` not followed by numbers belongs to the path."""
+    path, hash_, picks = text.rpartition("#")
+    return (path, picks) if hash_ and _NUMBERS.match(picks) else (text, None)
+
+
+def parse_set(text: str) -> SetSpec:
+    """Read a set written as described in this module's docstring.
+
+    Raises
+    ------
+    SetError
+        When the text names none of the three kinds.
+    """
+    kind, sep, rest = text.partition(":")
+    if sep and kind in _KINDS:
+        if not rest.strip():
+            raise SetError(f"set {text!r}: nothing after '{kind}:'; {_SYNTAX}")
+        if kind == "snapshot":
+            return SetSpec(text, kind, "", _numbers(rest.strip(), "snapshot", text))
+        if kind == "lot":
+            return SetSpec(text, kind, rest.strip())
+    else:
+        # Not prefixed: only an existing file makes sense (a scan).
+        rest = text
+        if not Path(_split_picks(text)[0]).is_file():
+            raise SetError(f"set {text!r}: no such file, and not a set; {_SYNTAX}")
+    path, picks = _split_picks(rest)
+    return SetSpec(text, "scan", path, _numbers(picks, "strip", text) if picks else ())
+
+
+# --------------------------------------------------------------------------
+# Reading sets
+
+
+class SetLoader:
+    """Turns set specs into :class:`StripSet` records, analysing scans and reading the archive.
+
+    Parameters
+    ----------
+    archive_path : path-like or None
+        The archive (default: :func:`stripscan.archive.default_archive_path`);
+        opened only when a set needs it.
+    calibration_path : path-like or None
+        Calibration for scans (none: uncalibrated direct mode).
+    n_steps : int or None
+        Steps per strip on scans (None: counted).
+    archive : Archive, optional
+        An archive already open (the crossover writes to it).
+    """
+
+    def __init__(self, archive_path: str | os.PathLike[str] | None = None, *,
+                 calibration_path: str | os.PathLike[str] | None = None, n_steps: int | None = None,
+                 archive: Any = None) -> None:
+        self.archive_path = archive_path
+        self.calibration_path = calibration_path
+        self.n_steps = n_steps
+        self.notes: list[str] = []
+        self._archive = archive
+        self._own_archive = False
+        self._calibration: Any = None
+        self._analyses: dict[str, Any] = {}
+
+    def close(self) -> None:
+        if self._own_archive and self._archive is not None:
+            self._archive.close()
+            self._archive = None
+
+    def __enter__(self) -> "SetLoader":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def _open_archive(self) -> Any:
+        if self._archive is None:
+            from .archive import Archive, default_archive_path
+
+            path = self.archive_path if self.archive_path is not None else default_archive_path()
+            self._archive = Archive.open(path, read_only=True)
+            self._own_archive = True
+        return self._archive
+
+    def load(self, spec: SetSpec, *, processor: str | None = None, date: str | None = None) -> StripSet:
+        """The strips a spec names.
+
+        ``processor`` and ``date`` (YYYY-MM-DD) narrow ``lot:`` sets to the
+        snapshots of that processor and film date (used by the crossover).
+        """
+        from .archive import ArchiveError
+
+        try:
+            if spec.kind == "scan":
+                return self._scan(spec)
+            if spec.kind == "snapshot":
+                return self._snapshots(spec, list(spec.numbers))
+            return self._lot(spec, processor, date)
+        except ArchiveError as exc:
+            raise SetError(f"set {spec.text!r}: {exc}") from None
+
+    def _scan(self, spec: SetSpec) -> StripSet:
+        from .core.calibration import load_calibration
+        from .core.pipeline import AnalysisOptions, analyze_scan
+
+        if self.calibration_path is not None and self._calibration is None:
+            self._calibration = load_calibration(self.calibration_path)
+        key = os.path.realpath(spec.target)
+        if key not in self._analyses:
+            # A scan named twice (different strips of it) is read once.
+            self._analyses[key] = analyze_scan(spec.target, calibration=self._calibration,
+                                               options=AnalysisOptions(n_steps=self.n_steps))
+        analysis = self._analyses[key]
+        strips = {s.index: s for s in analysis.strips}
+        picks = spec.numbers or tuple(strips)
+        missing = [n for n in picks if n not in strips]
+        if missing:
+            raise SetError(f"set {spec.text!r}: the scan {spec.target} has {len(strips)} strip(s), "
+                           f"no strip {', '.join(map(str, missing))}")
+        if analysis.calibration is None or analysis.calibration.get("mode") != "tablet":
+            self.notes.append(f"set {spec.text!r}: uncalibrated (direct mode); give --calibration")
+        chosen = tuple(strips[n] for n in picks)
+        source = f"scan {spec.target}, strips {', '.join(str(s.index) for s in chosen)}"
+        return StripSet(spec.text, chosen, tuple(f"strip {s.index}" for s in chosen), source)
+
+    def _snapshots(self, spec: SetSpec, ids: Sequence[int]) -> StripSet:
+        archive = self._open_archive()
+        snapshots = [archive.get_snapshot(i) for i in ids]
+        for s in snapshots:
+            if s.retired_at is not None:
+                self.notes.append(f"set {spec.text!r}: snapshot {s.id} was retired ({s.retired_reason})")
+        lots = sorted({s.lot_id for s in snapshots})
+        source = f"archive {archive.path}, lot {', '.join(lots)}, snapshots {', '.join(str(i) for i in ids)}"
+        return StripSet(spec.text, tuple(s.strip for s in snapshots), tuple(f"snapshot {s.id}" for s in snapshots),
+                        source)
+
+    def _lot(self, spec: SetSpec, processor: str | None, date: str | None) -> StripSet:
+        archive = self._open_archive()
+        archive.get_lot(spec.target)  # an unknown lot is an error, not an empty set
+        rows = archive.list_snapshots(lot=spec.target, processor=processor)
+        if date is not None:
+            rows = [r for r in rows if r.date == date]
+        if not rows:
+            where = "".join((f" on processor {processor!r}" if processor else "",
+                             f" dated {date}" if date else ""))
+            raise SetError(f"set {spec.text!r}: lot {spec.target!r} has no current snapshots{where} in "
+                           f"{archive.path}; store the strips first (stripscan archive add) or name them "
+                           "with snapshot:ID")
+        return self._snapshots(spec, [r.id for r in rows])
+
+
+# --------------------------------------------------------------------------
+# compare: output
+
+
+def _signed(value: float | None) -> str:
+    return "-" if value is None or not math.isfinite(value) else f"{value:+.3f}"
+
+
+def format_comparisons(comparisons: Sequence[Comparison], notes: Sequence[str] = ()) -> str:
+    """Readable tables, one per pair, with notes, tolerance sources and the caution."""
+    first = comparisons[0].a
+    out = [f"Comparing {len(comparisons) + 1} sets of strips; differences are B − A, each set against the first.",
+           ""]
+    for label, s in [("A", first), *((f"B{k}" if len(comparisons) > 1 else "B", c.b)
+                                      for k, c in enumerate(comparisons, start=1))]:
+        out.append(f"{label:>3}  {s.name}: {s.n} strip(s), {s.n_steps} steps; {s.source}")
+    widths = (33, 22, 22, 8, 20, 18)
+    titles = ("figure", "A mean ± sd (n)", "B mean ± sd (n)", "B − A", "95 % interval", "tolerance")
+    header = "  " + " ".join(t.rjust(w) if t == "B − A" else t.ljust(w) for t, w in zip(titles, widths)) + " verdict"
+    for c in comparisons:
+        out += ["", f"{c.b.name} (B) against {c.a.name} (A)", header]
+        for row in c.rows:
+            cells = row.cells()
+            texts = [cells[k] for k in ("figure", "a", "b", "difference", "interval", "tolerance")]
+            out.append("  " + " ".join(t.rjust(w) if k == 3 else t.ljust(w)
+                                       for k, (t, w) in enumerate(zip(texts, widths))) + f" {cells['verdict']}")
+        shifts = [(net, c.shift_at(net)) for net in (0.25, 0.50, 1.00, 1.50, 2.00)]
+        out.append("  shift along log E, B − A, at net density "
+                   + ", ".join(f"{net:.2f}: {_signed(v)}" for net, v in shifts)
+                   + "  (negative: B needs less exposure)")
+        if c.qc_steps is not None:
+            st = c.qc_steps
+            out.append(f"  mid-density read at step {st.mid_step}, density difference at step {st.dd_high_step} "
+                       f"− step {st.dd_low_step}, on every strip (chosen on {c.a.name}'s mean densities)")
+        out += [f"  note: {n}" for n in c.notes]
+    out += [f"note: {n}" for n in notes]
+    out += ["", "Relative speed: positive = B faster, 100·(10^(−Δlog E) − 1) % from the speed-point shift.",
+            "Verdicts put the whole 95 % interval (Welch's t) against the tolerance. Tolerances used:"]
+    used = {row.figure: row.tolerance for row in comparisons[0].rows if row.tolerance is not None}
+    for figure, tol in used.items():
+        if figure != "relative_speed_percent":
+            out.append(f"  {FIGURE_INFO[figure][0]}: {tol.text()} ({tol.source})")
+    out += ["  Set tolerances for your site with --tolerance FIGURE=VALUE.", "", f"Caution: {CAUTION}"]
+    return "\n".join(out)
+
+
+def comparison_json(comparisons: Sequence[Comparison], notes: Sequence[str] = ()) -> dict[str, Any]:
+    """The JSON object of ``stripscan compare --json`` (see the module docstring)."""
+    sets = [comparisons[0].a] + [c.b for c in comparisons]
+    pairs = [c.to_dict() for c in comparisons]
+    for pair in pairs:
+        # Each set is listed once under "sets"; pairs name them.
+        pair.pop("set_a")
+        pair.pop("set_b")
+    return {
+        "sets": [s.to_dict() for s in sets],
+        "differences": pairs[0]["differences"],
+        "comparisons": pairs,
+        "notes": list(notes),
+        "sign_convention": "difference = b - a; relative speed positive = b faster",
+        "program_version": __version__,
+        "caution": CAUTION,
+    }
+
+
+def _tolerances(items: Sequence[str] | None) -> dict[str, Tolerance]:
+    tolerances = dict(DEFAULT_TOLERANCES)
+    names = [f for f in FIGURES if f != "relative_speed_percent"]
+    for item in items or ():
+        figure, sep, value = item.partition("=")
+        figure = figure.strip().replace("-", "_")
+        if not sep or figure not in names:
+            raise SetError(f"--tolerance {item!r}: write FIGURE=VALUE with FIGURE one of {', '.join(names)}")
+        if value.strip().lower() == "none":
+            tolerances.pop(figure, None)
+        else:
+            tolerances[figure] = Tolerance.parse(value)
+    return tolerances
+
+
+def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
+    # Archive errors are not ValueErrors; every failure becomes one line on stderr.
+    def run(args: argparse.Namespace) -> int:
+        from .archive import ArchiveError
+
+        try:
+            return handler(args)
+        except (ArchiveError, ValueError, OSError) as exc:
+            print(f"stripscan: error: {exc}", file=sys.stderr)
+            return 1
+    run.__doc__ = handler.__doc__
+    return run
+
+
+def cmd_compare(args: argparse.Namespace) -> int:
+    """Compare sets of strips: every set against the first."""
+    if len(args.sets) < 2:
+        raise CompareError(f"compare needs at least two sets, got {len(args.sets)}: {args.sets[0]}")
+    specs = [parse_set(text) for text in args.sets]
+    tolerances = _tolerances(args.tolerance)
+    with SetLoader(args.archive, calibration_path=args.calibration, n_steps=args.steps) as loader:
+        sets = [loader.load(spec) for spec in specs]
+    comparisons = compare_sets(sets, tolerances=tolerances)
+    if args.json:
+        print(json.dumps(comparison_json(comparisons, loader.notes), ensure_ascii=False, indent=1))
+    else:
+        print(format_comparisons(comparisons, loader.notes))
+    return 0
+
+
+# --------------------------------------------------------------------------
+# crossover
+
+
+def _parse_date(text: str) -> datetime.date:
+    try:
+        return datetime.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a date YYYY-MM-DD") from None
+
+
+def levels_in_force(archive: Any, processor: str, date: datetime.date) -> tuple[Any, str]:
+    """The operating levels a processor's QC film is judged against on ``date``.
+
+    Rebuilds the processor's QC log from the archive (entries, events, and
+    the levels earlier crossovers stored) and takes the levels of its latest
+    period up to ``date`` (:class:`stripscan.core.qc.QCLog`).  When the log
+    sets none, the processor's QC settings may: ``{"levels": ...}`` in the
+    form of :meth:`OperatingLevels.to_dict`, used only when established
+    after the log's latest event.
+
+    Returns
+    -------
+    levels : OperatingLevels
+    source : str
+        Where they came from, in plain words.
+
+    Raises
+    ------
+    ValueError
+        When neither gives levels (baseline not complete, none stored).
+    """
+    from .core.qc import EVENT_KINDS, OperatingLevels, QCEntry, QCEvent, QCLog, QCValues
+
+    day = date.isoformat()
+    crossover_levels = {}
+    for record in archive.list_crossovers(processor):
+        levels = record.record.get("result", {}).get("new_levels")
+        if levels is not None:
+            crossover_levels[record.date] = OperatingLevels.from_dict(levels)
+    entries = [
+        QCEntry(datetime.date.fromisoformat(e.date), QCValues(e.base_fog, e.mid_density, e.density_difference),
+                e.source, e.note, e.action)
+        for e in archive.list_qc_entries(processor, until=day)
+        if None not in (e.base_fog, e.mid_density, e.density_difference)
+    ]
+    events = [
+        QCEvent(datetime.date.fromisoformat(e.date), e.kind if e.kind in EVENT_KINDS else "other", e.note,
+                crossover_levels.get(e.date) if e.kind == "crossover" else None)
+        for e in archive.list_qc_events(processor) if e.date <= day
+    ]
+    log = QCLog(entries=tuple(entries), events=tuple(events))
+    period = log.periods[-1] if log.periods else None
+    if period is not None and period.levels is not None:
+        return period.levels, f"the QC log ({period.levels.reason}, {period.levels.established.isoformat()})"
+    settings = archive.get_qc_settings(processor)
+    stored = settings.settings.get("levels") if settings is not None else None
+    if stored is not None:
+        try:
+            levels = OperatingLevels.from_dict(stored)
+        except (ValueError, KeyError, TypeError) as exc:
+            raise ValueError(f"processor {processor!r}: the stored QC settings' levels cannot be read: {exc}") from None
+        latest_event = events[-1].date if events else None
+        if latest_event is None or levels.established >= latest_event:
+            return levels, f"the processor's QC settings (established {levels.established.isoformat()})"
+    if period is not None and period.event is not None:
+        why = (f"the baseline since the {period.event.label} is not complete "
+               f"({len(period.days)} of {log.n_days} days)")
+    elif period is not None:
+        why = f"its baseline is not complete ({len(period.days)} of {log.n_days} days)"
+    else:
+        why = "it has no QC entries, events or stored levels"
+    raise ValueError(f"processor {processor!r} has no operating levels to cross over from on {day}: {why}; "
+                     "establish them first")
+
+
+def _steps_in_use(archive: Any, processor: str, levels: Any, old: StripSet) -> tuple[Any, str]:
+    from .core.qc import QCSteps, choose_qc_steps
+
+    if levels.steps is not None:
+        return levels.steps, "the steps kept with the operating levels"
+    settings = archive.get_qc_settings(processor)
+    stored = settings.settings.get("steps") if settings is not None else None
+    if stored is not None:
+        try:
+            return QCSteps.from_dict(stored), "the processor's QC settings"
+        except (ValueError, KeyError, TypeError) as exc:
+            raise ValueError(f"processor {processor!r}: the stored QC steps cannot be read: {exc}") from None
+    try:
+        steps = choose_qc_steps(list(mean_step_densities(old.strips)))
+    except ValueError as exc:
+        raise ValueError(f"set {old.name!r}: the QC steps cannot be chosen on the old film: {exc}") from None
+    return steps, f"chosen now on the old film's mean densities (none were stored for {processor!r})"
+
+
+def store_crossover(archive: Any, processor: str, date: str, record: dict[str, Any],
+                    note: Callable[[int], str]) -> tuple[Any, Any]:
+    """Store a crossover record and its ``crossover`` QC event in one transaction.
+
+    Parameters
+    ----------
+    archive : Archive
+    processor, date : str
+    record : dict
+        The crossover as JSON-ready data.
+    note : callable
+        Makes the event's note from the crossover record's id.
+
+    Returns
+    -------
+    (Crossover, QcEvent)
+        As stored; if anything fails, neither is.
+    """
+    from .archive import Crossover, QcEvent
+
+    # The archive has no public call that writes both at once; this uses the
+    # same transaction and insert steps as its add_crossover and
+    # add_qc_event, inside one BEGIN IMMEDIATE.
+    with archive._writing(f"store the crossover of {date} for {processor!r}") as conn:
+        crossover = archive._checked("add crossover", Crossover, archive._next_id(conn, "crossovers"),
+                                     processor, date, record)
+        archive._insert_crossover(conn, crossover)
+        event = archive._checked("add QC event", QcEvent, archive._next_id(conn, "qc_events"), processor, date,
+                                 "crossover", note(crossover.id))
+        archive._insert_qc_event(conn, event)
+    return crossover, event
+
+
+def _qc_values(s: StripSet, steps: Any) -> list[Any]:
+    values = []
+    for label, strip in zip(s.labels, s.strips):
+        try:
+            values.append(strip_qc_values(strip, steps))
+        except ValueError as exc:
+            raise SetError(f"set {s.name!r}, {label}: {exc}") from None
+    return values
+
+
+def _levels_text(levels: Any) -> str:
+    return (f"base+fog {levels.base_fog:.3f}, mid-density {levels.mid_density:.3f}, "
+            f"density difference {levels.density_difference:.3f}")
+
+
+def format_crossover(result: Any, old: StripSet, new: StripSet, levels: Any, processor: str,
+                     sources: Sequence[str], stored: Sequence[str]) -> str:
+    """The crossover's table: old and new means, differences, old and new levels."""
+    steps = result.new_levels.steps
+    out = [f"Crossover of QC film on {processor!r}, {result.new_levels.established.isoformat()}",
+           f"  old film: {old.name}: {len(old.strips)} strip(s); {old.source}",
+           f"  new film: {new.name}: {len(new.strips)} strip(s); {new.source}",
+           f"  steps: mid-density step {steps.mid_step}, density difference step {steps.dd_high_step} − "
+           f"step {steps.dd_low_step}", *(f"  {s}" for s in sources), "",
+           f"  {'':<20} {'old mean':>9} {'new mean':>9} {'new − old':>10} {'old level':>10} {'new level':>10}"]
+    for q, label in (("base_fog", "base+fog"), ("mid_density", "mid-density"),
+                     ("density_difference", "density difference")):
+        out.append(f"  {label:<20} {getattr(result.old_means, q):9.3f} {getattr(result.new_means, q):9.3f} "
+                   f"{getattr(result.differences, q):+10.3f} {getattr(levels, q):10.3f} "
+                   f"{getattr(result.new_levels, q):10.3f}")
+    rule = ("the new film's mean" if result.rule == "new_mean" else "the old level moved by the difference")
+    out += [f"  new base+fog level: {rule}; mid-density and density difference: old level + (new − old)",
+            "", *stored, *(f"note: {n}" for n in result.notes), "", f"Caution: {CAUTION}"]
+    return "\n".join(out)
+
+
+def cmd_crossover(args: argparse.Namespace) -> int:
+    """Move a processor's operating levels to a new box of QC film."""
+    from .archive import Archive, default_archive_path
+    from .core.qc import crossover
+
+    if args.strips < 1:
+        raise SetError(f"--strips must be 1 or more, got {args.strips}")
+    date = args.date or datetime.date.today()
+    day = date.isoformat()
+    old_spec, new_spec = parse_set(args.old), parse_set(args.new)
+    path = args.archive if args.archive is not None else default_archive_path()
+    with Archive.open(path, create=False) as archive:
+        archive.get_processor(args.processor)
+        earlier = [c for c in archive.list_crossovers(args.processor) if c.date == day]
+        if earlier:
+            raise SetError(f"processor {args.processor!r} already has a crossover on {day} (record "
+                           f"{earlier[-1].id}); nothing was stored")
+        loader = SetLoader(calibration_path=args.calibration, n_steps=args.steps, archive=archive)
+        old = loader.load(old_spec, processor=args.processor, date=day)
+        new = loader.load(new_spec, processor=args.processor, date=day)
+        if old.name == new.name:
+            raise SetError(f"the old and the new film are the same set {old.name!r}")
+        n_old, n_new = old.strips[0].geometry.n_steps, new.strips[0].geometry.n_steps
+        if n_old != n_new:
+            raise SetError(f"set {new.name!r} has {n_new}-step strips but set {old.name!r} has {n_old}-step "
+                           "strips; cross over with strips of the same sensitometer")
+        levels, levels_from = levels_in_force(archive, args.processor, date)
+        steps, steps_from = _steps_in_use(archive, args.processor, levels, old)
+        levels = levels if levels.steps is not None else dataclasses.replace(levels, steps=steps)
+        old_values, new_values = _qc_values(old, steps), _qc_values(new, steps)
+        try:
+            result = crossover(old_values, new_values, levels, date=date, base_fog_rule=args.base_fog_rule,
+                               n_required=args.strips)
+        except ValueError as exc:
+            raise SetError(f"crossover of {old.name} to {new.name}: {exc}") from None
+        record = {
+            "old": {"set": old.name, "source": old.source, "strips": list(old.labels),
+                    "values": [v.to_dict() for v in old_values]},
+            "new": {"set": new.name, "source": new.source, "strips": list(new.labels),
+                    "values": [v.to_dict() for v in new_values]},
+            "old_levels": levels.to_dict(), "levels_from": levels_from, "steps_from": steps_from,
+            "result": result.to_dict(), "program_version": __version__,
+        }
+        stored, event = store_crossover(
+            archive, args.processor, day, record,
+            lambda rid: f"QC-film crossover from {old.name} to {new.name} (crossover record {rid}): new operating "
+                        f"levels {_levels_text(result.new_levels)}; steps {steps.mid_step}, "
+                        f"{steps.dd_high_step} − {steps.dd_low_step}",
+        )
+    print(format_crossover(result, old, new, levels, args.processor,
+                           [f"operating levels from {levels_from}", f"steps from {steps_from}"],
+                           [f"Stored in {archive.path}: crossover record {stored.id} and event {event.id} "
+                            f"('crossover', with the new levels) in the QC log of {args.processor!r}."]))
+    for n in loader.notes:
+        print(f"note: {n}")
+    return 0
+
+
+# --------------------------------------------------------------------------
+# Registration
+
+
+def register(subparsers: Any) -> None:
+    """Add ``compare`` and ``crossover`` to the main parser's sub-commands."""
+    set_help = "a set of strips: scan:PATH[#1,3], snapshot:ID[,ID...] or lot:LOT (see 'Naming sets' below)"
+    epilog = (
+        "Naming sets: scan:PATH (every strip on a scan) or scan:PATH#1,3 / #2-4 (strips by number); "
+        "snapshot:12 or snapshot:12,14 or snapshot:12-16 (archived strips); lot:LOT (every current "
+        "snapshot of an emulsion lot).  A bare path to a file is a scan.  " + f"Caution: {CAUTION}"
+    )
+    # argparse expands %-codes in help texts: the per-cent signs must be doubled.
+    tolerance_help = "; ".join(f"{FIGURE_INFO[f][0]} {t.text()} ({t.source})"
+                               for f, t in DEFAULT_TOLERANCES.items()).replace("%", "%%")
+
+    p = subparsers.add_parser(
+        "compare", help="compare emulsion lots (or any sets of strips) with replicate statistics",
+        description="Compare two or more sets of strips, each against the first: mean curves ± sd, "
+                    "density difference and log E shift along the curve, and a table of figures with "
+                    "B − A, its 95 % interval (Welch's t) and a verdict against tolerances.",
+        epilog=epilog,
+    )
+    p.add_argument("sets", nargs="+", metavar="SET", help=set_help)
+    p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets (none: uncalibrated direct mode)")
+    p.add_argument("--archive", metavar="PATH", help="archive for snapshot: and lot: sets (default: $STRIPSCAN_ARCHIVE "
+                   "or the user's data folder)")
+    p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
+    p.add_argument("--tolerance", action="append", metavar="FIGURE=VALUE",
+                   help="tolerance of B − A for a figure: 0.05 (±), 5%% (± per cent of A), +0.03 (rise only) or "
+                        f"none; repeat for more figures.  Defaults, set local values: {tolerance_help}")
+    p.add_argument("--json", action="store_true", help="print the result as JSON")
+    p.set_defaults(func=_guarded(cmd_compare))
+
+    p = subparsers.add_parser(
+        "crossover", help="move a processor's operating levels to a new box of QC film",
+        description="Read strips of the old and the new QC film processed together, at the processor's QC "
+                    "steps; new level = old level + (mean new − mean old); store the crossover and a "
+                    "'crossover' event with the new levels in the processor's QC log, together.",
+        epilog=epilog,
+    )
+    p.add_argument("--processor", required=True, metavar="P", help="processor, as named in the archive")
+    p.add_argument("--old", required=True, metavar="SET", help="strips of the old QC film: " + set_help)
+    p.add_argument("--new", required=True, metavar="SET", help="strips of the new QC film: " + set_help)
+    p.add_argument("--date", type=_parse_date, metavar="YYYY-MM-DD", help="day of the crossover (default: today)")
+    p.add_argument("--strips", type=int, default=5, metavar="N",
+                   help="strips needed of each film, at least (common practice: 5); as many old as new")
+    p.add_argument("--archive", metavar="PATH", help="the archive (default: $STRIPSCAN_ARCHIVE or the user's data folder)")
+    p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets")
+    p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
+    p.add_argument("--base-fog-rule", choices=("new_mean", "shift"), default="new_mean",
+                   help="new base+fog level: the new film's mean (default) or the old level moved by the difference")
+    p.set_defaults(func=_guarded(cmd_crossover))
+

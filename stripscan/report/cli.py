@@ -1,0 +1,286 @@
+"""Command line: ``stripscan report`` (PDF) and ``stripscan export`` (CSV, PNG, SVG, JSON).
+
+The main program calls :func:`register` with its sub-command action.
+Qt is loaded only when a command runs, so ``stripscan --help`` stays quick
+and works where Qt cannot start.
+
+Sources
+-------
+``SCAN``
+    A scan file, analysed now, with ``--calibration CAL.json`` (without
+    it the reading is uncalibrated direct mode and every page says so).
+    The analysis options of ``stripscan analyze`` apply (``--steps``,
+    ``--increment``, ``--low``/``--high``, ...).
+``snapshot:ID`` or ``snapshot:ID,ID,...``
+    Readings stored in the archive (``--archive PATH``).
+
+``stripscan report``
+--------------------
+::
+
+    stripscan report SCAN --calibration CAL.json -o OUT.pdf [--site TEXT] [--lot ID]
+                     [--processor NAME] [--operator NAME] [--exposed DATE] [--processed DATE] [--scanned DATE]
+    stripscan report snapshot:ID[,ID...] --archive PATH -o OUT.pdf [--site TEXT]
+
+One A4 page per strip (a scan) or per snapshot.  ``--lot``,
+``--processor``, ``--operator`` and the dates only label a scan's pages;
+a snapshot's come from the archive.  ``--site`` names the site in the
+header (the archive does not keep one).
+
+``stripscan export``
+--------------------
+::
+
+    stripscan export steps   SOURCE -o OUT.csv [--strip N]
+    stripscan export figures SOURCE -o OUT.csv
+    stripscan export plot    SOURCE -o OUT.png|OUT.svg [--strip N] [--width-mm W] [--height-mm H] [--resolution D]
+    stripscan export json    snapshot:ID --archive PATH -o OUT.json
+
+``steps`` writes the step table (strip, step, log E, OD, sd, flags) of
+every strip, or of strip N; ``figures`` one row of figures per strip;
+``plot`` the characteristic curve of strip N (default 1) as PNG or SVG,
+chosen by the file's suffix or ``--format``; ``json`` one snapshot in the
+archive's export form (``stripscan archive import`` reads it).  For a
+scan's full JSON use ``stripscan analyze SCAN -o OUT.json``.
+
+Every output is written under a temporary name and renamed when complete.
+A failure prints one line ``stripscan: error: ...`` and exits with 1.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+from .qtsetup import ReportError
+
+__all__ = ["register", "Source", "parse_source"]
+
+_Handler = Callable[[argparse.Namespace], int]
+
+
+@dataclass(frozen=True)
+class Source:
+    """What a command reads: a scan file or archived snapshots."""
+
+    text: str
+    kind: str  # "scan" or "snapshot"
+    path: str = ""
+    ids: tuple[int, ...] = field(default_factory=tuple)
+
+
+def parse_source(text: str) -> Source:
+    """Read ``SCAN`` or ``snapshot:ID[,ID...]``.
+
+    Raises
+    ------
+    ReportError
+        When ``snapshot:`` is not followed by snapshot numbers, or a scan
+        file does not exist.
+    """
+    if text.startswith("snapshot:"):
+        body = text[len("snapshot:"):].strip()
+        try:
+            ids = tuple(int(part) for part in body.split(","))
+        except ValueError:
+            raise ReportError(f"{text!r}: write snapshot:ID or snapshot:ID,ID,... with snapshot numbers") from None
+        if not ids or min(ids) < 1:
+            raise ReportError(f"{text!r}: snapshot numbers start at 1")
+        return Source(text, "snapshot", ids=ids)
+    if not Path(text).is_file():
+        raise ReportError(f"{text}: no such scan file (for a stored reading write snapshot:ID)")
+    return Source(text, "scan", path=text)
+
+
+def _fail(message: str) -> int:
+    print(f"stripscan: error: {message}", file=sys.stderr)
+    return 1
+
+
+def _guarded(handler: _Handler) -> _Handler:
+    def run(args: argparse.Namespace) -> int:
+        from ..archive import ArchiveError
+
+        try:
+            return handler(args)
+        except (ArchiveError, ValueError, OSError) as exc:
+            return _fail(str(exc))
+    run.__doc__ = handler.__doc__
+    return run
+
+
+def _date(text: str) -> str:
+    try:
+        dt.date.fromisoformat(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a date YYYY-MM-DD") from None
+    return text
+
+
+def _open_archive(args: argparse.Namespace) -> Any:
+    from ..archive import Archive, default_archive_path
+
+    # Reading never creates a file: a mistyped path must say so.
+    return Archive.open(args.archive if args.archive is not None else default_archive_path(),
+                        read_only=True, create=False)
+
+
+def _analysis(args: argparse.Namespace, source: Source) -> tuple[Any, Any]:
+    from ..cli import _analysis_options
+    from ..core.calibration import load_calibration
+    from ..core.pipeline import analyze_scan
+
+    calibration = load_calibration(args.calibration) if args.calibration else None
+    analysis = analyze_scan(source.path, calibration=calibration, options=_analysis_options(args), dpi=args.dpi,
+                            channel=args.channel, flat_field_scan=args.flat_field)
+    return analysis, calibration
+
+
+def _pick(strips: tuple[Any, ...], number: int | None, what: str) -> tuple[Any, ...]:
+    if number is None:
+        return strips
+    chosen = tuple(s for s in strips if s.index == number)
+    if not chosen:
+        raise ReportError(f"{what} has {len(strips)} strip(s); there is no strip {number}")
+    return chosen
+
+
+def _scan_only(args: argparse.Namespace, source: Source) -> None:
+    given = [f"--{name}" for name in ("lot", "processor", "operator", "exposed", "processed", "scanned")
+             if getattr(args, name, None)]
+    if source.kind != "scan" and given:
+        raise ReportError(f"{', '.join(given)} label a scan's pages only; a snapshot's come from the archive")
+
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    """Write a PDF report: one page per strip of a scan, or per archived snapshot."""
+    from .snapshot import StripContext, report_from_snapshot, reports_from_analysis
+    from .canvas import write_pdf
+
+    source = parse_source(args.source)
+    _scan_only(args, source)
+    if source.kind == "scan":
+        analysis, calibration = _analysis(args, source)
+        context = StripContext(site=args.site or "", lot=args.lot or "", processor=args.processor or "",
+                               operator=args.operator or "", exposed_on=args.exposed or "",
+                               processed_on=args.processed or "", scanned_on=args.scanned or "")
+        pages = reports_from_analysis(analysis, calibration=calibration, context=context)
+        title = f"stripscan strip report - {Path(source.path).name}"
+    else:
+        with _open_archive(args) as archive:
+            pages = [report_from_snapshot(archive.get_snapshot(i), archive=archive, site=args.site or "")
+                     for i in source.ids]
+        title = f"stripscan report - {source.text}"
+    path = write_pdf(pages, args.output, title=title)
+    print(f"Wrote {path} ({len(pages)} page{'s' if len(pages) != 1 else ''})")
+    return 0
+
+
+def _strips_of(args: argparse.Namespace, source: Source) -> tuple[list[Any], dict[str, Any] | None]:
+    """Strip results or snapshots named by ``source``, and the calibration record for plots."""
+    if source.kind == "scan":
+        analysis, calibration = _analysis(args, source)
+        if not analysis.strips:
+            raise ReportError(f"{source.path}: no strip was found on the scan")
+        strips = list(_pick(analysis.strips, getattr(args, "strip", None), source.path))
+        return strips, calibration.to_dict() if calibration is not None else analysis.calibration
+    with _open_archive(args) as archive:
+        snapshots = [archive.get_snapshot(i) for i in source.ids]
+        first = snapshots[0]
+        calibration = archive.get_calibration(first.calibration_hash) if first.calibration_hash else None
+    return snapshots, calibration
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    """Export steps or figures (CSV), a plot (PNG or SVG) or a snapshot (JSON)."""
+    from . import export
+
+    source = parse_source(args.source)
+    if args.kind == "json":
+        if source.kind != "snapshot" or len(source.ids) != 1:
+            raise ReportError("export json takes one snapshot:ID (for a scan use 'stripscan analyze SCAN -o OUT.json')")
+        with _open_archive(args) as archive:
+            path = export.export_snapshot_json(archive, source.ids[0], args.output)
+    elif args.kind in ("steps", "figures"):
+        items, _ = _strips_of(args, source)
+        writer = export.export_steps_csv if args.kind == "steps" else export.export_figures_csv
+        path = writer(items, args.output)
+    else:
+        path = _export_plot(args, source)
+    print(f"Wrote {path}")
+    return 0
+
+
+def _plot_format(args: argparse.Namespace) -> str:
+    if args.format:
+        return args.format
+    suffix = Path(args.output).suffix.lower().lstrip(".")
+    if suffix not in ("png", "svg"):
+        raise ReportError(f"{args.output}: name the file .png or .svg, or give --format png|svg")
+    return suffix
+
+
+def _export_plot(args: argparse.Namespace, source: Source) -> Path:
+    from .plot import save_plot_png, save_plot_svg
+    from .provenance import valid_range
+    from .snapshot import curve_plot
+
+    kind = _plot_format(args)
+    if args.strip is None:
+        args.strip = 1 if source.kind == "scan" else None
+    items, calibration = _strips_of(args, source)
+    if len(items) != 1:
+        raise ReportError("a plot shows one strip: give one snapshot:ID, or --strip N for a scan")
+    item = items[0]
+    strip = item.strip if hasattr(item, "strip") else item
+    label = f"snapshot {item.id}, lot {item.lot_id}" if hasattr(item, "strip") else \
+        f"{Path(source.path).name}, strip {strip.index}"
+    plot = curve_plot(strip, valid_od=valid_range(calibration), title=f"Characteristic curve - {label}")
+    size = {"width_mm": args.width_mm, "height_mm": args.height_mm}
+    if kind == "png":
+        return save_plot_png(plot, args.output, dpi=args.dpi_out, **size)
+    return save_plot_svg(plot, args.output, **size)
+
+
+def register(subparsers: Any) -> None:
+    """Add ``report`` and ``export`` to the main parser's sub-commands."""
+    from ..cli import _add_analysis_arguments, _add_scan_arguments
+
+    def common(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--archive", metavar="PATH", type=Path, help="archive for snapshot: sources "
+                       "(default: $STRIPSCAN_ARCHIVE or the user's data folder)")
+        _add_analysis_arguments(p)
+        _add_scan_arguments(p)
+
+    p = subparsers.add_parser("report", help="PDF report of a scan's strips or of archived snapshots",
+                              description=_cmd_report.__doc__,
+                              epilog="SOURCE is a scan file or snapshot:ID[,ID...] (with --archive).")
+    p.add_argument("source", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
+    p.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="the PDF to write")
+    p.add_argument("--site", metavar="TEXT", help="site name for the page header")
+    p.add_argument("--lot", metavar="ID", help="emulsion lot (labels a scan's pages)")
+    p.add_argument("--processor", metavar="NAME", help="processor (labels a scan's pages)")
+    p.add_argument("--operator", metavar="NAME", help="who made the strips (labels a scan's pages)")
+    p.add_argument("--exposed", metavar="DATE", type=_date, help="exposure date YYYY-MM-DD (scan)")
+    p.add_argument("--processed", metavar="DATE", type=_date, help="processing date YYYY-MM-DD (scan)")
+    p.add_argument("--scanned", metavar="DATE", type=_date, help="scan date YYYY-MM-DD (scan)")
+    common(p)
+    p.set_defaults(func=_guarded(_cmd_report))
+
+    p = subparsers.add_parser("export", help="CSV of steps or figures, PNG/SVG of a plot, JSON of a snapshot",
+                              description=_cmd_export.__doc__)
+    p.add_argument("kind", choices=("steps", "figures", "plot", "json"), help="what to export")
+    p.add_argument("source", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
+    p.add_argument("-o", "--output", required=True, metavar="FILE", help="the file to write")
+    p.add_argument("--strip", type=int, metavar="N", help="only strip N of a scan (plot: default 1)")
+    p.add_argument("--format", choices=("png", "svg"), help="plot format (default: from the file's suffix)")
+    p.add_argument("--width-mm", type=float, default=160.0, metavar="W", help="plot width, mm (160)")
+    p.add_argument("--height-mm", type=float, default=100.0, metavar="H", help="plot height, mm (100)")
+    p.add_argument("--resolution", dest="dpi_out", type=float, default=150.0, metavar="D",
+                   help="PNG resolution, dots per inch (150)")
+    common(p)
+    p.set_defaults(func=_guarded(_cmd_export))

@@ -1,0 +1,91 @@
+"""Builders and readers for the report tests: the demo scenario, hand-made strips, PDF and picture readers.
+
+All names, lots and places come from the invented demo scenario
+(``stripscan.demo_data``).  PDFs are read back with the general-purpose
+library pypdf and, when installed, poppler's ``pdftotext``.  Kept apart
+from ``conftest.py`` so that test modules can import it by name.
+"""
+
+from __future__ import annotations
+
+import os
+
+# Before Qt is imported anywhere: no display needed.
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import math  # noqa: E402
+import shutil  # noqa: E402
+import subprocess  # noqa: E402
+from pathlib import Path  # noqa: E402
+from typing import Any  # noqa: E402
+
+import pytest  # noqa: E402
+
+from stripscan.core.calibration import Calibration  # noqa: E402
+from stripscan.core.curve import FigureSettings, compute_figures  # noqa: E402
+from stripscan.core.records import Analysis, ScanInfo, StepDensity, StripGeometry, StripResult  # noqa: E402
+from stripscan.demo_data import SCENARIO  # noqa: E402
+
+SITE = SCENARIO["site"]
+LOT_A, LOT_B = tuple(SCENARIO["lots"])
+PROCESSOR = SCENARIO["processor"]["name"]
+
+
+def logistic_strip(*, base_fog: float = 0.19, top: float = 3.2, slope: float = 5.0, centre: float = 1.6,
+                   n_steps: int = 21, index: int = 1, warnings: tuple[str, ...] = ()) -> StripResult:
+    """A strip whose densities follow a logistic curve; figures by the core's ``compute_figures``."""
+    log_e = [0.15 * k for k in range(n_steps)]
+    od = [base_fog + (top - base_fog) / (1.0 + math.exp(-slope * (x - centre))) for x in log_e]
+    steps = tuple(StepDensity(k + 1, x, d, 0.003, 1200, True, (100.0 + 40.0 * k, 60.0))
+                  for k, (x, d) in enumerate(zip(log_e, od)))
+    figures = compute_figures(log_e, od, [True] * n_steps, base_fog=base_fog, settings=FigureSettings())
+    geometry = StripGeometry((80.0, 40.0), (1.0, 0.0), (0.0, 1.0), 40.0, n_steps, 40.0, (44.0, 52.0))
+    return StripResult(index, geometry, steps, None, figures, warnings=tuple(warnings) + figures.notes)
+
+
+def scan_info(name: str = "fernhill_processor-1_2026-11-05.tif") -> ScanInfo:
+    return ScanInfo(f"/data/fernhill/{name}", "ab" * 32, 768, 1181, 150.0, 16, 1, "grey", "linear")
+
+
+def analysis_of(*strips: StripResult, calibration: Calibration | None = None,
+                warnings: tuple[str, ...] = ()) -> Analysis:
+    summary = calibration.summary() if calibration is not None else {"sha256": None, "mode": "direct"}
+    return Analysis(scan_info(), summary, tuple(strips), warnings=warnings, program_version="0.1.0",
+                    settings={"increment": 0.15})
+
+
+def pdf_pages(path: Path) -> list[str]:
+    """Text of each page as pypdf extracts it, whitespace runs made single spaces."""
+    from pypdf import PdfReader
+
+    return [" ".join(page.extract_text().split()) for page in PdfReader(path).pages]
+
+
+def pdf_words(path: Path) -> list[tuple[int, float, float, float, float, float, float, str]]:
+    """Every word's box as poppler's ``pdftotext -bbox`` gives it: (page, width, height, x0, y0, x1, y1, word)."""
+    import xml.etree.ElementTree as ET
+
+    out = subprocess.run(["pdftotext", "-bbox", str(path), "-"], check=True, capture_output=True, text=True).stdout
+    root = ET.fromstring(out.replace('xmlns="http://www.w3.org/1999/xhtml"', ""))
+    words = []
+    for number, page in enumerate(root.iter("page"), start=1):
+        w, h = float(page.get("width")), float(page.get("height"))
+        for word in page.iter("word"):
+            words.append((number, w, h, float(word.get("xMin")), float(word.get("yMin")),
+                          float(word.get("xMax")), float(word.get("yMax")), word.text or ""))
+    return words
+
+
+needs_poppler = pytest.mark.skipif(shutil.which("pdftotext") is None or shutil.which("pdftoppm") is None,
+                                   reason="poppler-utils (pdftotext, pdftoppm) not installed")
+
+
+def image_array(image: Any) -> Any:
+    """A QImage (32-bit RGB) as a numpy array (rows, columns, 3) of R, G, B."""
+    import numpy as np
+    from PySide6.QtGui import QImage
+
+    image = image.convertToFormat(QImage.Format.Format_RGB888)
+    raw = np.frombuffer(image.constBits(), dtype=np.uint8, count=image.sizeInBytes())
+    return raw.reshape(image.height(), image.bytesPerLine())[:, :image.width() * 3].reshape(
+        image.height(), image.width(), 3).copy()
