@@ -6,6 +6,11 @@ back through the setters.  Every density and figure comes from the core
 per strip, so editing an outline re-reads one strip and moving a density
 level only recomputes figures.
 
+Results are recomputed lazily: a change marks every strip stale and a
+strip is brought up to date when it is next read (:meth:`Session.result`,
+:attr:`Session.strips`), so a density-level drag only pays for the strips
+on screen.
+
 The slow part, loading a scan and finding its strips, is the free function
 :func:`load_and_find`, meant to run in a worker thread; its result is handed
 to :meth:`Session.set_loaded` on the UI thread.
@@ -280,12 +285,16 @@ class Session:
         self.mapping_error: str | None = None
         self.mapping_warnings: tuple[str, ...] = ()
         self._strips: list[StripState] = []
+        self._stale: set[int] = set()
         self._selected: int | None = None
         self._overlay: set[int] = set()
 
     # -- reading the state ---------------------------------------------------
     @property
     def strips(self) -> tuple[StripState, ...]:
+        """Every strip, results up to date."""
+        for index in sorted(self._stale):
+            self._fresh(index)
         return tuple(self._strips)
 
     @property
@@ -309,6 +318,7 @@ class Session:
         index = self._selected if index is None else index
         if index is None or not 0 <= index < len(self._strips):
             return None
+        self._fresh(index)
         return self._strips[index].result
 
     def messages(self) -> list[str]:
@@ -326,7 +336,8 @@ class Session:
         self.display_levels = loaded.display_levels
         self.search_notes = loaded.notes
         self._update_mapping()
-        self._strips = [self._computed(k, s) for k, s in enumerate(loaded.strips)]
+        self._strips = list(loaded.strips)
+        self._recompute_all()
         self._selected = 0 if self._strips else None
         self._overlay = set()
         self.events.scan_loaded.emit()
@@ -416,7 +427,7 @@ class Session:
         self._check(index)
         old = self._strips[index]
         state = read_state(self._require_scan(), geometry, excluded=old.excluded)
-        self._strips[index] = self._computed(index, state)
+        self._store(index, self._computed(index, state))
         self.events.strip_changed.emit(index)
 
     def set_step_count(self, index: int, n_steps: int) -> None:
@@ -440,7 +451,7 @@ class Session:
         (steps.add if excluded else steps.discard)(step)
         if frozenset(steps) == state.excluded:
             return
-        self._strips[index] = self._computed(index, dataclasses.replace(state, excluded=frozenset(steps)))
+        self._store(index, self._computed(index, dataclasses.replace(state, excluded=frozenset(steps))))
         self.events.strip_changed.emit(index)
 
     def toggle_excluded(self, index: int, step: int) -> None:
@@ -453,6 +464,7 @@ class Session:
         scan = self._require_scan()
         index = len(self._strips)
         self._strips.append(self._computed(index, read_state(scan, geometry)))
+        self._stale.discard(index)
         self.events.strips_changed.emit()
         self._selected = None
         self.select(index)
@@ -472,7 +484,8 @@ class Session:
     def replace_strips(self, strips: Sequence[StripState]) -> None:
         """Take newly found strips for the open scan (e.g. after a new step count)."""
         self._require_scan()
-        self._strips = [self._computed(k, s) for k, s in enumerate(strips)]
+        self._strips = list(strips)
+        self._recompute_all()
         self._overlay = set()
         self._selected = 0 if self._strips else None
         self.events.strips_changed.emit()
@@ -483,7 +496,7 @@ class Session:
         """The open scan's results as the core's :class:`Analysis` record."""
         if self.scan is None or self.mapping is None:
             return None
-        results = [s.result for s in self._strips if s.result is not None]
+        results = [s.result for s in self.strips if s.result is not None]
         warnings = list(self.mapping_warnings)
         for result in results:
             warnings += [f"strip {result.index}: {w}" for w in result.warnings]
@@ -541,4 +554,14 @@ class Session:
         return dataclasses.replace(state, result=result)
 
     def _recompute_all(self) -> None:
-        self._strips = [self._computed(k, s) for k, s in enumerate(self._strips)]
+        """Mark every result out of date; each is recomputed when next read."""
+        self._stale = set(range(len(self._strips)))
+
+    def _fresh(self, index: int) -> None:
+        if index in self._stale:
+            self._stale.discard(index)
+            self._strips[index] = self._computed(index, self._strips[index])
+
+    def _store(self, index: int, state: StripState) -> None:
+        self._strips[index] = state
+        self._stale.discard(index)
