@@ -169,6 +169,7 @@ class CalibrationDialog(QDialog):
         self.residual_plot.setTitle("Leave-one-out residual per step")
         self.residual_plot.setLabel("bottom", "Tablet step")
         self.residual_plot.setLabel("left", "Predicted − certified (OD)")
+        self.residual_plot.getAxis("left").enableAutoSIPrefix(False)
         self.residual_plot.showGrid(y=True, alpha=0.15)
         self.residual_bars = pg.BarGraphItem(x=[], height=[], width=0.6, brush="#56B4E9")
         self.residual_plot.addItem(self.residual_bars)

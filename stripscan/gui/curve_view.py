@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QCheckBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QCheckBox, QGraphicsItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
 from ..core.curve import CharacteristicCurve
 from ..core.records import StripResult
@@ -51,6 +51,8 @@ class _StripCurve:
         self.line = pg.PlotCurveItem(pen=pg.mkPen(colour, width=2 if main else 1.5, style=style))
         self.items = (self.line, self.bars, self.unused, self.points)
         for item in self.items:
+            # The selected strip stays on top of the strips drawn with it.
+            item.setZValue(5 if main else 0)
             plot.addItem(item)
 
     def show(self, result: StripResult | None) -> None:
@@ -139,24 +141,34 @@ class CurveView(QWidget):
         self.overlays: dict[int, _StripCurve] = {}
         self._syncing = False
         self._setup_gradient_axis()
+        # Axes and legend are drawn once into pixmaps: a level drag repaints the plot
+        # many times a second while they stay the same (text drawing is the slow part).
+        for name in ("left", "bottom", "right"):
+            self.plot.getAxis(name).setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        self.legend.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
-        self.show_gradient = QCheckBox("Show the gradient curve (right axis)")
+        self.show_gradient = QCheckBox("Gradient curve (right axis)")
+        self.show_gradient.setToolTip("Show dD/d(log E) of the curve against a second axis")
         self.show_gradient.toggled.connect(self.set_gradient_visible)
         self.readout = QLabel()
+        self.readout.setWordWrap(True)
         self.readout.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        top = QHBoxLayout()
-        top.addWidget(self.readout, 1)
-        top.addWidget(self.show_gradient)
-        layout = QVBoxLayout(self)
-        layout.setContentsMargins(2, 2, 2, 2)
-        layout.addLayout(top)
-        layout.addWidget(self.plot_widget, 1)
-        hint = QLabel("Drag the two dashed lines to move the density levels of the average gradient and latitude.")
+        hint = QLabel("Drag the dashed lines to move the two density levels.")
         hint.setStyleSheet("color: #616161")
         hint.setWordWrap(True)
-        layout.addWidget(hint)
+        bottom = QHBoxLayout()
+        bottom.addWidget(hint, 1)
+        bottom.addWidget(self.show_gradient)
+        layout = QVBoxLayout(self)
+        layout.setContentsMargins(2, 2, 2, 2)
+        layout.addWidget(self.readout)
+        layout.addWidget(self.plot_widget, 1)
+        layout.addLayout(bottom)
 
-        session.events.connect_each(self.refresh, *session.events.RESULT_EVENTS, "overlay_changed")
+        # Moving a level changes figures only: the points and curves stay as they are.
+        session.events.connect_each(self.refresh, "strips_changed", "results_changed", "strip_changed",
+                                    "selection_changed", "overlay_changed")
+        session.events.levels_changed.connect(lambda low, high: self._show_figures(self.session.result()))
         self.set_gradient_visible(False)
         self.refresh()
 
@@ -180,6 +192,7 @@ class CurveView(QWidget):
         self.gradient_view.setXLink(self.plot)
         self.gradient_curve = pg.PlotCurveItem(pen=pg.mkPen("#26a69a", width=1.5, style=Qt.PenStyle.DashLine))
         self.gradient_view.addItem(self.gradient_curve)
+        self._gradient_shown = False
 
         def follow() -> None:
             self.gradient_view.setGeometry(self.plot.getViewBox().sceneBoundingRect())
@@ -188,6 +201,12 @@ class CurveView(QWidget):
 
     def set_gradient_visible(self, shown: bool) -> None:
         """Show or hide the gradient curve and its axis."""
+        if shown != self._gradient_shown:
+            if shown:
+                self.legend.addItem(self.gradient_curve, "gradient (right axis)")
+            else:
+                self.legend.removeItem(self.gradient_curve)
+        self._gradient_shown = shown
         self.plot.showAxis("right", shown)
         self.gradient_view.setVisible(shown)
         if self.show_gradient.isChecked() != shown:
@@ -207,6 +226,7 @@ class CurveView(QWidget):
         self.main.show(result)
         self._show_overlays()
         self._show_figures(result)
+        self._show_slope(result)
 
     def _show_overlays(self) -> None:
         wanted = {k for k in self.session.overlay if k != self.session.selected and k < len(self.session.strips)}
@@ -250,7 +270,6 @@ class CurveView(QWidget):
             self.speed_item.setData([figures.speed_log_exposure], [base_fog + figures.settings.get("speed_net_density", 1.0)])
         else:
             self.speed_item.setData([], [])
-        self._show_slope(result)
         self._show_readout(result)
 
     def _show_slope(self, result: StripResult | None) -> None:
@@ -267,7 +286,7 @@ class CurveView(QWidget):
         # A short tangent shows what "maximum slope" means on the curve itself.
         half = 0.12
         self.tangent_item.setData([x0 - half, x0 + half], [y0 - figures.gamma * half, y0 + figures.gamma * half])
-        if self.gradient_view.isVisible():
+        if self._gradient_shown:
             grid, slope = curve.gradient_curve()
             self.gradient_curve.setData(grid, slope)
             self.gradient_view.enableAutoRange(axis=pg.ViewBox.YAxis)
@@ -286,9 +305,9 @@ class CurveView(QWidget):
             return "—" if value is None else f"{value:.{digits}f}"
 
         self.readout.setText(
-            f"<b>Strip {result.index}</b> &nbsp; average gradient (net {low:.2f}–{high:.2f}) "
-            f"<b>{num(f.average_gradient)}</b> &nbsp; latitude <b>{num(f.latitude_log_exposure)}</b> log E"
-            f" &nbsp; speed point {num(f.speed_log_exposure)} &nbsp; gamma {num(f.gamma)}"
+            f"<b>Strip {result.index}</b> · average gradient <b>{num(f.average_gradient)}</b> "
+            f"(net {low:.2f}–{high:.2f}) · latitude <b>{num(f.latitude_log_exposure)}</b> log E · "
+            f"speed point {num(f.speed_log_exposure)} · gamma {num(f.gamma)}"
         )
 
     # -- view → model -------------------------------------------------------------------

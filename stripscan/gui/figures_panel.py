@@ -69,10 +69,10 @@ class FiguresPanel(QWidget):
         self.notes = QLabel()
         self.notes.setWordWrap(True)
         self.notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.notes.setStyleSheet("color: #8a4b00")
+        self.notes.setStyleSheet("color: #8a4b00; font-size: 8pt")
         self.caution = QLabel(CAUTION)
         self.caution.setWordWrap(True)
-        self.caution.setStyleSheet("color: #555555; font-style: italic")
+        self.caution.setStyleSheet("color: #555555; font-style: italic; font-size: 8pt")
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addWidget(self.title)
@@ -86,18 +86,30 @@ class FiguresPanel(QWidget):
         result = self.session.result()
         rows = figure_rows(result.figures if result else None, self.session.levels)
         self.title.setText(f"Figures of strip {result.index}" if result else "Figures")
-        self.table.setRowCount(len(rows))
+        if self.table.rowCount() != len(rows):
+            self._make_rows(len(rows))
+        # Cells are rewritten in place: a level drag refreshes this many times a second.
         for k, row in enumerate(rows):
-            value = _read_only(row.text, row.definition)
+            name, value, unit = (self.table.item(k, col) for col in range(3))
+            name.setText(row.label)
+            name.setData(VALUE_ROLE, row.key)
+            value.setText(row.text)
             value.setData(VALUE_ROLE, row.value)
-            value.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-            self.table.setItem(k, 0, _read_only(row.label, row.definition))
-            self.table.setItem(k, 1, value)
-            self.table.setItem(k, 2, _read_only(row.unit or "—", row.definition))
-            self.table.item(k, 0).setData(VALUE_ROLE, row.key)
+            unit.setText(row.unit or "—")
+            for item in (name, value, unit):
+                item.setToolTip(row.definition)
         notes = list(result.warnings) if result else list(self.session.search_notes)
         self.notes.setText("\n".join(f"• {n}" for n in notes))
         self.notes.setVisible(bool(notes))
+
+    def _make_rows(self, count: int) -> None:
+        self.table.setRowCount(count)
+        for k in range(count):
+            for col in range(3):
+                item = _read_only("")
+                if col == 1:
+                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                self.table.setItem(k, col, item)
 
     def value_of(self, key: str) -> float | None:
         """The core's number behind the row for figure ``key``."""

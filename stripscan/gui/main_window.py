@@ -8,7 +8,7 @@ import logging
 import os
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QAction, QCloseEvent, QDragEnterEvent, QDropEvent, QKeySequence
 from PySide6.QtWidgets import (
     QDockWidget,
@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
     QMessageBox,
     QProgressBar,
     QPushButton,
+    QSizePolicy,
     QSplitter,
     QTabWidget,
     QVBoxLayout,
@@ -104,13 +105,16 @@ class MainWindow(QMainWindow):
         tabs.addTab(self.step_table, "Steps")
         self.tabs = tabs
         right = QSplitter(Qt.Orientation.Vertical)
+        self.right_splitter = right
         right.addWidget(self.curve_view)
         right.addWidget(tabs)
-        right.setSizes([520, 380])
+        right.setStretchFactor(0, 1)
+        right.setStretchFactor(1, 1)
         main = QSplitter(Qt.Orientation.Horizontal)
         main.addWidget(self.scan_view)
         main.addWidget(right)
-        main.setSizes([620, 780])
+        main.setStretchFactor(0, 5)
+        main.setStretchFactor(1, 6)
         self.splitter = main
         central = QWidget()
         layout = QVBoxLayout(central)
@@ -123,7 +127,7 @@ class MainWindow(QMainWindow):
         dock.setWidget(self.strips_panel)
         dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable)
         self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, dock)
-        self.resizeDocks([dock], [270], Qt.Orientation.Horizontal)
+        self.resizeDocks([dock], [235], Qt.Orientation.Horizontal)
 
         self.progress = QProgressBar()
         self.progress.setRange(0, 100)
@@ -132,8 +136,11 @@ class MainWindow(QMainWindow):
         caution = QLabel(CAUTION)
         caution.setStyleSheet("color: #6d4c00")
         caution.setToolTip(CAUTION)
+        # Clipped rather than widening the window; it is shown in full under the figures.
+        caution.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
+        caution.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         self.statusBar().addPermanentWidget(self.progress)
-        self.statusBar().addPermanentWidget(caution)
+        self.statusBar().addPermanentWidget(caution, 1)
         self.caution_label = caution
         self.runner.busy_changed.connect(self._busy)
         self.runner.progress.connect(self._progress)
@@ -226,6 +233,9 @@ class MainWindow(QMainWindow):
             self.restoreGeometry(geometry)
         if state is not None:
             self.restoreState(state)
+        else:
+            # First start: share the width once the window has its real size.
+            QTimer.singleShot(0, self._first_layout)
         low, high = self.settings.levels()
         self.session.set_levels(low, high)
         increment = self.settings.increment()
@@ -240,6 +250,12 @@ class MainWindow(QMainWindow):
                 self.settings.set_calibration_path(None)
                 report_error(self, "The saved calibration could not be used", exc)
         self._refresh_banner()
+
+    def _first_layout(self) -> None:
+        width = self.splitter.width()
+        self.splitter.setSizes([int(width * 0.45), width - int(width * 0.45)])
+        height = self.right_splitter.height()
+        self.right_splitter.setSizes([int(height * 0.52), height - int(height * 0.52)])
 
     def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
         self.runner.wait(10_000)

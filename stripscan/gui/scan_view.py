@@ -128,6 +128,7 @@ class _Legend(QWidget):
             icon = QLabel()
             icon.setPixmap(swatch(LOOKS[name]))
             text = QLabel(LOOKS[name].text)
+            text.setWordWrap(True)
             row, col = divmod(k, 2)
             layout.addWidget(icon, row, 2 * col)
             layout.addWidget(text, row, 2 * col + 1)

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QIcon, QPixmap
 from PySide6.QtWidgets import (
     QFormLayout,
@@ -77,8 +77,16 @@ class StripsPanel(QWidget):
         layout.addWidget(self.details)
         layout.addLayout(buttons)
         self._filling = False
-        session.events.connect_each(self.refresh, *session.events.RESULT_EVENTS, "overlay_changed")
+        session.events.connect_each(self.refresh, "strips_changed", "results_changed", "strip_changed",
+                                    "selection_changed", "overlay_changed")
+        # While a level is dragged the list's gradients follow a moment later, not every step.
+        self._later = QTimer(self, singleShot=True, interval=150)
+        self._later.timeout.connect(self.refresh)
+        session.events.levels_changed.connect(lambda low, high: self._later.start())
         self.refresh()
+
+    def sizeHint(self) -> QSize:  # noqa: N802 (Qt's name)
+        return QSize(240, 400)
 
     def refresh(self, *_: object) -> None:
         self._filling = True

@@ -43,9 +43,9 @@ class Look:
 
 #: The overlay kinds of the scan view, in legend order.
 LOOKS = {
-    "used": Look("#4dd0e1", 1.5, Qt.PenStyle.SolidLine, "step read, within the calibrated range"),
-    "outside": Look("#ffa726", 1.5, Qt.PenStyle.DashLine, "step outside the calibrated range: not on the curve"),
-    "excluded": Look("#ef5350", 1.5, Qt.PenStyle.SolidLine, "step excluded by you: not on the curve", cross=True),
+    "used": Look("#4dd0e1", 1.5, Qt.PenStyle.SolidLine, "step within the calibrated range"),
+    "outside": Look("#ffa726", 1.5, Qt.PenStyle.DashLine, "outside the calibrated range (not used)"),
+    "excluded": Look("#ef5350", 1.5, Qt.PenStyle.SolidLine, "excluded by you (not used)", cross=True),
     "unread": Look("#bdbdbd", 1.0, Qt.PenStyle.SolidLine, "step not converted (no usable calibration)"),
     "base_fog": Look("#fff176", 1.5, Qt.PenStyle.DotLine, "base+fog sampling area"),
     "outline": Look("#ffffff", 1.0, Qt.PenStyle.SolidLine, "strip outline (the selected one has handles)"),
