@@ -1,0 +1,139 @@
+"""Render each view of the workbench on the invented demo, offscreen, to PNG files.
+
+Usage::
+
+    python tools/render_screens.py [FOLDER] [--docs]
+
+FOLDER defaults to ``renders/``.  ``--docs`` also writes the README's
+screenshot, ``docs/screens/main-window.png`` (kept under 300 KB).  No
+display is needed: Qt's offscreen platform is used unless one is set.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+ROOT = Path(__file__).resolve().parents[1]
+if str(ROOT) not in sys.path:
+    sys.path.insert(0, str(ROOT))
+
+from PySide6.QtCore import Qt  # noqa: E402
+from PySide6.QtGui import QImage  # noqa: E402
+from PySide6.QtWidgets import QApplication, QWidget  # noqa: E402
+
+from stripscan.gui.app import make_app, open_demo  # noqa: E402
+from stripscan.gui.main_window import MainWindow  # noqa: E402
+from stripscan.gui.settings import AppSettings  # noqa: E402
+
+DOCS_SHOT = ROOT / "docs" / "screens" / "main-window.png"
+DOCS_LIMIT = 300_000
+
+
+def _settle(app: QApplication, runner=None, seconds: float = 30.0) -> None:
+    """Let queued work and repaints finish."""
+    end = time.monotonic() + seconds
+    while runner is not None and runner.busy and time.monotonic() < end:
+        app.processEvents()
+        time.sleep(0.01)
+    for _ in range(5):
+        app.processEvents()
+        time.sleep(0.02)
+
+
+def _save(widget: QWidget, path: Path) -> Path:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if not widget.grab().save(str(path)):
+        raise OSError(f"{path}: could not be written")
+    return path
+
+
+def save_small(widget: QWidget, path: Path, limit: int = DOCS_LIMIT) -> Path:
+    """Save a screenshot under ``limit`` bytes, reducing to 256 colours when needed."""
+    _save(widget, path)
+    if path.stat().st_size > limit:
+        try:
+            from PIL import Image
+        except ImportError:
+            # Without dithering, flat areas stay flat and compress well.
+            flags = Qt.ImageConversionFlag.AvoidDither | Qt.ImageConversionFlag.ThresholdDither
+            widget.grab().toImage().convertToFormat(QImage.Format.Format_Indexed8, flags).save(str(path), "PNG", 9)
+        else:
+            # A palette fitted to the picture keeps the pale shadings their own colour.
+            with Image.open(path) as full:
+                small = full.convert("RGB").quantize(256, method=Image.Quantize.MEDIANCUT,
+                                                     dither=Image.Dither.NONE)
+            small.save(path, optimize=True)
+    if path.stat().st_size > limit:
+        raise OSError(f"{path}: {path.stat().st_size} bytes, over the {limit}-byte limit")
+    return path
+
+
+def render(folder: Path, *, docs: bool = False, size: tuple[int, int] = (1440, 900)) -> list[Path]:
+    """Render every view; returns the files written."""
+    app = make_app()
+    scratch = Path(tempfile.mkdtemp(prefix="stripscan-render-"))
+    window = MainWindow(settings=AppSettings(scratch / "settings.ini"))
+    window.resize(*size)
+    window.show()
+    files = open_demo(window)
+    _settle(app, window.runner)
+    session = window.session
+    written = [_save(window, folder / "main-window.png")]
+    if docs:
+        written.append(save_small(window, DOCS_SHOT))
+
+    written.append(_save(window.scan_view, folder / "scan-view.png"))
+    for k in range(1, len(session.strips)):
+        session.set_overlay(k, True)
+    window.curve_view.set_gradient_visible(True)
+    _settle(app)
+    written.append(_save(window.curve_view, folder / "curve-view-overlaid-gradient.png"))
+    window.curve_view.set_gradient_visible(False)
+    written.append(_save(window.figures, folder / "figures.png"))
+    window.tabs.setCurrentWidget(window.step_table)
+    _settle(app)
+    written.append(_save(window.step_table, folder / "steps.png"))
+    window.tabs.setCurrentWidget(window.figures)
+
+    # A step excluded and the outline of a hand-drawn strip, as a user leaves them.
+    session.set_excluded(0, 11)
+    _settle(app)
+    written.append(_save(window.scan_view, folder / "scan-view-step-excluded.png"))
+    written.append(_save(window.strips_panel, folder / "strips.png"))
+
+    dialog = window.open_calibration_assistant()
+    dialog.resize(1200, 760)
+    dialog.set_files(files.tablet_scan, files.certificate)
+    dialog.start_fit()
+    _settle(app, dialog.runner)
+    written.append(_save(dialog, folder / "calibration-assistant.png"))
+    dialog.reject()
+
+    # Without a calibration the banner says so.
+    window.use_calibration(None)
+    window.open_path(str(files.daily_scans[0][1]))
+    _settle(app, window.runner)
+    written.append(_save(window, folder / "main-window-direct-mode.png"))
+    window.close()
+    return written
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("folder", nargs="?", default="renders", help="where to write the PNG files (default renders/)")
+    parser.add_argument("--docs", action="store_true", help=f"also write {DOCS_SHOT.relative_to(ROOT)}")
+    args = parser.parse_args(argv)
+    for path in render(Path(args.folder), docs=args.docs):
+        print(f"{path}  ({path.stat().st_size // 1024} KB)")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
