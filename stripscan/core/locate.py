@@ -83,6 +83,7 @@ class FoundStrip:
     geometry: StripGeometry
     warnings: tuple[str, ...]
     touches_edge: bool
+    dense_end_cut: bool = False
 
 
 def working_factor(shape: tuple[int, int], dpi: float | None, working_mm: float) -> int:
@@ -257,6 +258,11 @@ def _piece_geometry(
     if direction < 0:
         profile = profile[::-1]
         u_lo, u_hi = len(profile) - 1 - u_hi, len(profile) - 1 - u_lo
+    # Where the film piece ends beyond the densest step there is unexposed
+    # film (or the piece was trimmed there); exposed film right at the
+    # piece's end, together with the scan's edge, means the end is cut off.
+    tip = profile[max(int(u_hi) - 2, 0) : int(u_hi) + 1]
+    dense_tip = float(np.median(tip)) - float(np.percentile(profile[span], 5)) > 0.3
     smooth = ndimage.gaussian_filter1d(profile.astype(np.float64), 1.0)
     grad = np.gradient(smooth)
     end_index = int(np.argmin(grad))
@@ -344,7 +350,7 @@ def _piece_geometry(
         base_fog_v_px=base_fog_v,
         inner_fraction=opts.inner_fraction,
     )
-    return geometry, notes
+    return geometry, notes, dense_tip
 
 
 def locate_strips(
@@ -421,7 +427,7 @@ def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: Loc
         if max(spans) * pixel_mm < 20.0:
             continue
         try:
-            geometry, notes = _piece_geometry(dens, coords, factor, options, pixel_mm)
+            geometry, notes, dense_tip = _piece_geometry(dens, coords, factor, options, pixel_mm)
         except ValueError:
             continue
         if touches:
@@ -432,7 +438,7 @@ def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: Loc
                 f"this piece of film is not a plain rectangle ({100 * fill:.0f} % of its outline is film): "
                 "pieces may touch or overlap; lay the strips apart and scan again"
             )
-        found.append((geometry.step_center_rc(1), FoundStrip(geometry, tuple(notes), touches)))
+        found.append((geometry.step_center_rc(1), FoundStrip(geometry, tuple(notes), touches, touches and dense_tip)))
     if not found:
         raise LocateError("no strip found on the scan: film was seen but no steps along it")
     # Rows of strips 20 mm apart read top to bottom, each row left to right.

@@ -37,6 +37,7 @@ __all__ = [
     "analyze_scan",
     "analyze_loaded",
     "calibrate_tablet",
+    "check_exposure",
     "direct_mode_for",
     "strip_result",
 ]
@@ -131,6 +132,29 @@ def direct_mode_for(
     darkest = sample[sample <= np.percentile(sample, 0.5)]
     floor_sd = float(darkest.std()) if darkest.size > 1 else 0.0
     return DirectMode(i0=i0, dark=dark, floor_sd=floor_sd)
+
+
+def check_exposure(scan: Scan) -> None:
+    """Refuse scans that hold no usable picture: white or black everywhere.
+
+    Raises
+    ------
+    AnalysisError
+        Naming the file and the likely cause.
+    """
+    step = max(1, int(math.sqrt(scan.shape[0] * scan.shape[1] / 250_000)))
+    sample = scan.decode(scan.raw[::step, ::step])
+    path = scan.header.path
+    if np.mean(sample >= 0.995) > 0.98:
+        raise AnalysisError(
+            f"{path}: the scan is white (saturated) almost everywhere; lower the scanner's exposure "
+            "and switch off its automatic corrections"
+        )
+    if np.mean(sample <= 0.002) > 0.98:
+        raise AnalysisError(
+            f"{path}: the scan is black almost everywhere; was it made in reflection mode, or with "
+            "the transparency light off?"
+        )
 
 
 def _check_compatible(scan: Scan, calibration: Calibration) -> list[str]:
@@ -290,6 +314,7 @@ def analyze_loaded(
 ) -> Analysis:
     """Analyse a loaded scan; see :func:`analyze_scan`."""
     warnings: list[str] = []
+    check_exposure(scan)
     if calibration is None:
         mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark, clear_area=options.clear_area)
         warnings.append(
@@ -300,7 +325,10 @@ def analyze_loaded(
         warnings += _check_compatible(scan, calibration)
         mapping = calibration
     if geometries is None:
-        found = locate_in_scan(scan, LocateOptions(n_steps=options.n_steps))
+        try:
+            found = locate_in_scan(scan, LocateOptions(n_steps=options.n_steps))
+        except ValueError as exc:
+            raise AnalysisError(f"{scan.header.path}: {exc}") from None
     else:
         found = [
             FoundStrip(with_step_count(g, options.n_steps) if options.n_steps else g, (), False)
@@ -309,6 +337,17 @@ def analyze_loaded(
     strips = []
     for index, item in enumerate(found, start=1):
         readings, bf, notes = read_strip(scan, None, item.geometry)
+        if item.dense_end_cut:
+            # The steps are numbered from the dense end; without it every
+            # number (and so every log E) could be wrong.  Read nothing.
+            notes.append(
+                "the strip's dense end is cut off by the scan's edge, so its steps cannot be numbered; "
+                "lay the whole strip on the platen and scan again (or draw it by hand)"
+            )
+            readings = [
+                StepReading(r.step, r.center_rc, float("nan"), float("nan"), 0, 0, 0.0) for r in readings
+            ]
+            bf = None
         result = strip_result(
             index,
             item.geometry,
@@ -399,6 +438,7 @@ def calibrate_tablet(
         ff_sha = load_scan(flat_field_scan, channel=channel).info.sha256
     n = len(certificate.densities)
     try:
+        check_exposure(scan)
         found = locate_in_scan(scan, LocateOptions(n_steps=n, full_width_band=True))
     except ValueError as exc:
         raise CalibrationError(f"{path}: {exc}") from None
