@@ -864,30 +864,30 @@ def _summarize(s: StripSet, kept, left_out, steps: QCSteps | None, reference_spe
     )
 
 
-def _row(figure: str, a: FigureSummary, b: FigureSummary, tolerances: Mapping[str, Tolerance],
-         confidence: float, speed_row: FigureRow | None) -> FigureRow:
-    if figure == "relative_speed_percent":
-        # Relative speed is the speed-point shift seen through 10^(−Δ):
-        # same interval (ends swap, the map decreases) and same verdict.
-        assert speed_row is not None
-        diff = None if a.mean is None or b.mean is None else b.mean - a.mean
-        interval = None
-        if speed_row.interval is not None:
-            si = speed_row.interval
-            interval = WelchInterval(diff, relative_speed_percent(si.high), relative_speed_percent(si.low),  # type: ignore[arg-type]
-                                     si.df, si.standard_error, si.confidence)
-        bounds = None
-        if speed_row.bounds is not None:
-            lower, upper = speed_row.bounds
-            bounds = (relative_speed_percent(upper), relative_speed_percent(lower))
-        return FigureRow(figure, a, b, diff, interval, speed_row.tolerance, bounds, speed_row.verdict)
-    tolerance = tolerances.get(figure)
+def _row(figure: str, a: FigureSummary, b: FigureSummary, tolerance: Tolerance | None,
+         confidence: float) -> FigureRow:
     interval = welch_interval(a.values, b.values, confidence=confidence)
     diff = None if a.mean is None or b.mean is None else b.mean - a.mean
     bounds = tolerance.bounds(a.mean) if tolerance is not None else None
     single = diff is not None and min(a.n, b.n) == 1
     verdict = judge(diff, (interval.low, interval.high) if interval else None, bounds, single=single)
     return FigureRow(figure, a, b, diff, interval, tolerance, bounds, verdict)
+
+
+def _relative_speed_row(a: FigureSummary, b: FigureSummary, speed: FigureRow) -> FigureRow:
+    # Relative speed is the speed-point shift seen through 10^(−Δ): the
+    # same interval (its ends swap, the map decreases) and the same verdict.
+    diff = None if a.mean is None or b.mean is None else b.mean - a.mean
+    interval = None
+    if speed.interval is not None and diff is not None:
+        si = speed.interval
+        interval = WelchInterval(diff, relative_speed_percent(si.high), relative_speed_percent(si.low),
+                                 si.df, si.standard_error, si.confidence)
+    bounds = None
+    if speed.bounds is not None:
+        lower, upper = speed.bounds
+        bounds = (relative_speed_percent(upper), relative_speed_percent(lower))
+    return FigureRow("relative_speed_percent", a, b, diff, interval, speed.tolerance, bounds, speed.verdict)
 
 
 def compare_sets(
@@ -959,12 +959,11 @@ def compare_sets(
     results = []
     a = summaries[0]
     for k, b in enumerate(summaries[1:], start=1):
-        rows: list[FigureRow] = []
-        speed_row = None
-        for figure in FIGURES:
-            row = _row(figure, a.figures[figure], b.figures[figure], tolerances, confidence, speed_row)
-            speed_row = row if figure == "speed_log_exposure" else speed_row
-            rows.append(row)
+        by_figure = {f: _row(f, a.figures[f], b.figures[f], tolerances.get(f), confidence)
+                     for f in FIGURES if f != "relative_speed_percent"}
+        by_figure["relative_speed_percent"] = _relative_speed_row(
+            a.figures["relative_speed_percent"], b.figures["relative_speed_percent"], by_figure["speed_log_exposure"])
+        rows = [by_figure[f] for f in FIGURES]
         pair_notes = [*general, *per_set[0], *per_set[k]]
         if min(a.n, b.n) == 1:
             pair_notes.append(
