@@ -20,8 +20,9 @@ from PySide6.QtWidgets import QGridLayout, QLabel, QMenu, QVBoxLayout, QWidget
 from ..core.locate import geometry_from_outline
 from ..core.records import StripGeometry
 from .outline import frame_of, geometry_from_corners, hand_drawn_corners, step_at
-from .session import Session, StripState
+from .session import Session, StripState, read_state
 from .style import FILM_LUT, LOOKS, SCAN_BACKGROUND, look_pen, strip_colour, swatch
+from .tasks import TaskRunner
 
 __all__ = ["ScanView"]
 
@@ -42,6 +43,10 @@ def _polygons_xy(boxes: Sequence[Sequence[tuple[float, float]]], cross: bool = F
         ys += [p[0] for p in ring] + [np.nan]
         xs += [p[1] for p in ring] + [np.nan]
     return np.asarray(xs, dtype=np.float64), np.asarray(ys, dtype=np.float64)
+
+
+def _read_in_worker(scan, geometry: StripGeometry, *, progress) -> StripState:
+    return read_state(scan, geometry)
 
 
 def step_look(state: StripState, step: int) -> str:
@@ -175,6 +180,10 @@ class ScanView(QWidget):
         self._draw_marks = pg.PlotDataItem(pen=pg.mkPen("#ffd54f", width=2, style=Qt.PenStyle.DashLine),
                                            symbol="o", symbolBrush="#ffd54f", symbolSize=8)
         self.plot.addItem(self._draw_marks)
+        # Outline edits re-read the strip in a worker: at 600 dpi one read takes ~0.15 s.
+        self.runner = TaskRunner(self)
+        self._dragging = False
+        self._read_again = False
         self._edit_timer = QTimer(self, singleShot=True, interval=_EDIT_INTERVAL_MS)
         self._edit_timer.timeout.connect(self._apply_roi)
         self.plot_widget.scene().sigMouseClicked.connect(self._clicked)
@@ -243,7 +252,8 @@ class ScanView(QWidget):
     def _strip_changed(self, index: int) -> None:
         if 0 <= index < len(self.overlays):
             self.overlays[index].update(index, self.session.strips[index], index == self.session.selected)
-        if index == self._roi_index and not self._edit_timer.isActive():
+        # Not while the user is still moving it: a read that lags behind would pull it back.
+        if index == self._roi_index and not (self._edit_timer.isActive() or self._dragging or self.runner.busy):
             self._sync_roi()
 
     def _selection_changed(self, index: int | None) -> None:
@@ -301,10 +311,12 @@ class ScanView(QWidget):
         return [(p.x(), p.y()) for p in points]
 
     def _roi_moving(self) -> None:
+        self._dragging = True
         if not self._edit_timer.isActive():
             self._edit_timer.start()
 
     def _roi_finished(self) -> None:
+        self._dragging = False
         self._edit_timer.stop()
         self._apply_roi()
 
@@ -316,6 +328,9 @@ class ScanView(QWidget):
     def _apply_roi(self) -> None:
         if self.roi is None or self._roi_index is None:
             return
+        if self.runner.busy:
+            self._read_again = True  # one read at a time; the latest outline follows
+            return
         index = self._roi_index
         old = self.session.strips[index].geometry
         try:
@@ -323,7 +338,24 @@ class ScanView(QWidget):
         except ValueError as exc:
             self.hint.emit(str(exc))
             return
-        self.session.set_geometry(index, geometry)
+        scan = self.session.scan
+
+        def done(state: StripState) -> None:
+            # The scan or the strip list may have changed while it was read.
+            if self.session.scan is scan and index < len(self.session.strips):
+                self.session.set_state(index, state)
+            follow()
+
+        def failed(error: BaseException) -> None:
+            self.hint.emit(f"The strip could not be read: {error}")
+            follow()
+
+        def follow() -> None:
+            if self._read_again:
+                self._read_again = False
+                self._apply_roi()
+
+        self.runner.start(_read_in_worker, scan, geometry, key="outline", on_done=done, on_error=failed)
 
     # -- clicks -------------------------------------------------------------------------
     def _clicked(self, event) -> None:  # pyqtgraph's MouseClickEvent

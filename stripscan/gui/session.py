@@ -430,6 +430,12 @@ class Session:
         self._store(index, self._computed(index, state))
         self.events.strip_changed.emit(index)
 
+    def set_state(self, index: int, state: StripState) -> None:
+        """Take a strip read elsewhere (by :func:`read_state` in a worker thread) for strip ``index``."""
+        self._check(index)
+        self._store(index, self._computed(index, dataclasses.replace(state, excluded=self._strips[index].excluded)))
+        self.events.strip_changed.emit(index)
+
     def set_step_count(self, index: int, n_steps: int) -> None:
         """Divide a strip's band into ``n_steps`` equal steps (exclusions beyond it are dropped)."""
         self._check(index)
