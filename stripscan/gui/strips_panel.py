@@ -47,6 +47,10 @@ class StripsPanel(QWidget):
         self.session = session
         self.list = QListWidget()
         self.list.setToolTip("Click to select a strip; tick to draw it on the curve as well")
+        # Long lines wrap in the narrow dock instead of hiding behind a scroll bar.
+        self.list.setWordWrap(True)
+        self.list.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.list.setResizeMode(QListWidget.ResizeMode.Adjust)
         self.list.currentRowChanged.connect(self._row_changed)
         self.list.itemChanged.connect(self._item_changed)
         self.steps = QSpinBox()
