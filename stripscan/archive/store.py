@@ -863,6 +863,40 @@ class Archive:
             self._insert_qc_entry(conn, entry)
         return entry
 
+    def add_qc_day(self, entry: QcEntry, *, new_processor: Processor | None = None,
+                   snapshot: NewSnapshot | None = None, settings: dict[str, Any] | None = None) -> QcEntry:
+        """Store one day's QC entry together with what belongs to it, in one transaction.
+
+        Parameters
+        ----------
+        entry : QcEntry
+            The day's densities.
+        new_processor : Processor, optional
+            A processor to add first, for its first QC day.
+        snapshot : NewSnapshot, optional
+            The strip the densities were read from, kept for the audit trail;
+            the entry is linked to it (``source="scan"``).  A lot it names
+            that is not stored yet is added bare.
+        settings : dict, optional
+            The processor's QC settings to store with the day (for instance
+            the QC steps chosen on this strip); they replace the stored ones.
+
+        Returns
+        -------
+        QcEntry
+            The entry as stored.  If any part fails, nothing is stored.
+        """
+        with self._writing(f"add the QC entry of {entry.date}") as conn:
+            if new_processor is not None:
+                self._insert_reference(conn, new_processor)
+            if snapshot is not None:
+                entry = QcEntry(**{**entry.to_dict(), "source": "scan",
+                                   "snapshot_id": self._store_new(conn, snapshot, create_missing=True)})
+            self._insert_qc_entry(conn, entry)
+            if settings is not None:
+                self._replace_qc_settings(conn, entry.processor, settings)
+        return entry
+
     def list_qc_entries(self, processor: str | None = None, *, since: str | None = None,
                         until: str | None = None) -> list[QcEntry]:
         """QC entries by processor and date, optionally only from ``since`` to ``until`` (inclusive)."""
@@ -896,10 +930,13 @@ class Archive:
     def set_qc_settings(self, processor: str, settings: dict[str, Any]) -> QcSettings:
         """Store (or replace) a processor's QC settings: operating levels, limits, steps."""
         with self._writing(f"store QC settings for {processor!r}") as conn:
-            record = self._checked("store QC settings", QcSettings, processor, settings, utc_now())
-            conn.execute("DELETE FROM qc_settings WHERE processor = ?", (processor,))
-            self._insert_qc_settings(conn, record)
-            return record
+            return self._replace_qc_settings(conn, processor, settings)
+
+    def _replace_qc_settings(self, conn: sqlite3.Connection, processor: str, settings: dict[str, Any]) -> QcSettings:
+        record = self._checked("store QC settings", QcSettings, processor, settings, utc_now())
+        conn.execute("DELETE FROM qc_settings WHERE processor = ?", (processor,))
+        self._insert_qc_settings(conn, record)
+        return record
 
     def _insert_qc_settings(self, conn: sqlite3.Connection, record: QcSettings) -> None:
         self._check_qc_processor(record.processor)
