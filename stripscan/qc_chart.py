@@ -1,0 +1,512 @@
+"""The processor QC chart as a PNG: three stacked deviation plots drawn with QPainter.
+
+One plot per tracked number (base+fog, mid-density, density difference),
+each showing the day's deviation from the operating level in force, the
+control limits and warning tier as shaded bands, the days that set the
+levels, events that restart the baseline, and trend-rule findings as bars
+under the days they cover.  A point past a limit is told apart by its shape
+*and* its colour (a circle within limits, a triangle past the warning
+tier, a larger diamond past the control limit), so the chart reads in
+grey print and for people who do not see the colours apart.
+
+The picture is drawn on a ``QImage`` offscreen: no window, no display
+needed.  It is written under a temporary name and renamed into place, so a
+failure never leaves a half-written file.
+"""
+
+from __future__ import annotations
+
+import datetime
+import math
+import os
+import sys
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from stripscan import CAUTION, __version__
+from stripscan.core.qc import (
+    QUANTITIES,
+    OperatingLevels,
+    ProcessorStatus,
+    QCLimits,
+    QCValues,
+    TrendFinding,
+    evaluate_day,
+)
+from stripscan.qc_log import LABELS, VERDICT_WORDS, ProcessorLog
+
+__all__ = [
+    "MARKS", "BANDS", "ChartPoint", "ChartSeries", "ChartPeriod", "ChartData", "chart_data", "chart_legend",
+    "describe_rule", "y_span", "ensure_app", "render_chart", "render_chart_png",
+]
+
+#: How a day's point looks, by verdict: colour, shape, size (px) and legend text.
+#: Colours from Okabe & Ito's palette, which survives the common colour-vision deficiencies.
+MARKS = {
+    "ok": ("#0072B2", "circle", 5.0, "within limits"),
+    "warning": ("#E69F00", "triangle", 7.0, "past the warning tier"),
+    "action": ("#D55E00", "diamond", 9.0, "past the control limit"),
+}
+#: Fill of the zone past the warning tier and past the control limit.
+BANDS = {"warning": "#FCEFD2", "action": "#F7D4C6"}
+_LIMIT_LINE, _WARNING_LINE = "#B03A12", "#B7860B"
+_TREND, _EVENT, _BASELINE = "#8E4A7A", "#444444", "#ECECEC"
+
+_APP: Any = None
+
+
+# --------------------------------------------------------------------------
+# What the chart shows (no Qt)
+
+
+@dataclass(frozen=True)
+class ChartPoint:
+    """One day on one plot.  ``deviation`` and ``verdict`` are None while the baseline is incomplete."""
+
+    date: datetime.date
+    value: float
+    deviation: float | None
+    verdict: str | None
+    baseline: bool
+
+
+@dataclass(frozen=True)
+class ChartSeries:
+    """One quantity's plot: its points and limit lines (None where there is none), OD."""
+
+    quantity: str
+    label: str
+    points: tuple[ChartPoint, ...]
+    action: tuple[float | None, float | None]
+    warning: tuple[float | None, float | None]
+
+
+@dataclass(frozen=True)
+class ChartPeriod:
+    """A stretch of constant operating levels within the chart's dates."""
+
+    first: datetime.date
+    last: datetime.date
+    levels: OperatingLevels | None
+    baseline_dates: tuple[datetime.date, ...]
+    label: str
+
+
+@dataclass(frozen=True)
+class ChartData:
+    """Everything a QC chart shows, without any drawing (shared by the PNG and the panel)."""
+
+    processor: str
+    first: datetime.date
+    last: datetime.date
+    series: tuple[ChartSeries, ...]
+    events: tuple[tuple[datetime.date, str], ...]
+    findings: tuple[TrendFinding, ...]
+    periods: tuple[ChartPeriod, ...]
+    status: ProcessorStatus
+    title: str
+
+
+def _quantity_verdict(q: str, value: float, levels: OperatingLevels, limits: QCLimits) -> str:
+    # The core judges a whole strip; judging a strip that is at its levels
+    # except for q gives q's own tier by exactly the same arithmetic.
+    alone = QCValues(**{**{k: getattr(levels, k) for k in QUANTITIES}, q: value})
+    return evaluate_day(alone, levels, limits).verdict
+
+
+def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
+    """The three deviation plots' data over the whole log, or one month (``YYYY-MM``).
+
+    Raises
+    ------
+    ValueError
+        An unreadable month, or no entry in the dates asked for.
+    """
+    first, last = datetime.date.min, datetime.date.max
+    if month is not None:
+        try:
+            first = datetime.date.fromisoformat(f"{month}-01")
+        except ValueError:
+            raise ValueError(f"month {month!r} is not written YYYY-MM") from None
+        last = (first.replace(day=28) + datetime.timedelta(days=4)).replace(day=1) - datetime.timedelta(days=1)
+    limits = plog.setup.limits
+    points: dict[str, list[ChartPoint]] = {q: [] for q in QUANTITIES}
+    periods = []
+    for period in plog.log.periods:
+        days = [d for d in period.days if first <= d.entry.date <= last]
+        if not days:
+            continue
+        baseline = tuple(d.entry.date for d in period.days[: plog.log.n_days]) if period.levels else ()
+        label = (period.levels.reason if period.levels else
+                 f"baseline in progress ({len(period.days)} of {plog.log.n_days} days)")
+        periods.append(ChartPeriod(days[0].entry.date, days[-1].entry.date, period.levels, baseline, label))
+        for d in days:
+            for q in QUANTITIES:
+                value = getattr(d.entry.values, q)
+                dev = getattr(d.verdict.deviations, q) if d.verdict else None
+                tier = _quantity_verdict(q, value, period.levels, limits) if period.levels else None
+                points[q].append(ChartPoint(d.entry.date, value, dev, tier, d.entry.date in baseline))
+    if not periods:
+        span = f"in {month}" if month else "at all"
+        raise ValueError(f"processor {plog.processor!r} has no QC entries {span}")
+    series = []
+    for q in QUANTITIES:
+        if q == "base_fog":
+            action, warning = (limits.base_fog_action, None), (limits.base_fog_warning, None)
+        else:
+            a, w = limits.md_dd_action, limits.md_dd_warning
+            action, warning = (a, -a), (w, -w if w is not None else None)
+        series.append(ChartSeries(q, LABELS[q], tuple(points[q]), action, warning))
+    shown_first, shown_last = periods[0].first, periods[-1].last
+    events = tuple((e.date, e.label) for e in plog.log.events if shown_first <= e.date <= shown_last)
+    findings = tuple(f for f in plog.log.findings if any(shown_first <= d <= shown_last for d in f.dates))
+    span = (datetime.date.fromisoformat(f"{month}-01").strftime("%B %Y") if month else
+            f"{shown_first.isoformat()} to {shown_last.isoformat()}")
+    status = plog.status(shown_last)
+    return ChartData(plog.processor, shown_first, shown_last, tuple(series), events, findings, tuple(periods),
+                     status, f"{plog.processor}: processor QC, {span}")
+
+
+def describe_rule(finding: TrendFinding) -> str:
+    """A short name for a trend finding, for chart labels."""
+    return {"run": "run", "drift": "drift", "two_warnings": "repeated warnings"}.get(finding.rule, finding.rule)
+
+
+def chart_legend(data: ChartData) -> Sequence[str]:
+    """Lines under the chart: the levels of each period and the caution."""
+    lines = []
+    for p in data.periods:
+        if p.levels is None:
+            lines.append(f"{p.first.isoformat()} to {p.last.isoformat()}: {p.label}; no operating levels yet")
+        else:
+            lv = p.levels
+            lines.append(f"{p.first.isoformat()} to {p.last.isoformat()}: levels from {lv.reason} "
+                         f"(set {lv.established.isoformat()}): "
+                         + ", ".join(f"{LABELS[q]} {getattr(lv, q):.3f}" for q in QUANTITIES))
+    return lines
+
+
+# --------------------------------------------------------------------------
+# Drawing
+
+
+def ensure_app() -> Any:
+    """The running Qt application, or a new ``QGuiApplication`` (offscreen when there is no display)."""
+    global _APP
+    if "PySide6.QtGui" not in sys.modules and not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):
+        # Qt picks its platform once, when it starts; decide before that.
+        os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    from PySide6.QtGui import QGuiApplication
+
+    from stripscan.gui import qtguard  # noqa: F401  (a binding that leaks None needs this before drawing)
+
+    app = QGuiApplication.instance()
+    if app is None:
+        # Kept: Qt must outlive every image drawn with its fonts.
+        _APP = app = QGuiApplication(["stripscan-qc-chart"])
+    return app
+
+
+class _Axes:
+    """Maps days and deviations of one plot to pixels."""
+
+    def __init__(self, rect: Any, first: datetime.date, last: datetime.date, span: float) -> None:
+        self.rect, self.first, self.span = rect, first, span
+        self.days = (last - first).days + 1
+
+    def x(self, day: datetime.date | float) -> float:
+        k = (day - self.first).days if isinstance(day, datetime.date) else day
+        return self.rect.left() + (k + 0.5) / self.days * self.rect.width()
+
+    def y(self, deviation: float) -> float:
+        frac = (deviation + self.span) / (2 * self.span)
+        return self.rect.bottom() - min(max(frac, 0.0), 1.0) * self.rect.height()
+
+
+def y_span(series: ChartSeries) -> float:
+    """Half the y range: room for the limits and every point, on a 0.05 OD grid."""
+    limits = [abs(v) for v in (*series.action, *series.warning) if v is not None]
+    devs = [abs(p.deviation) for p in series.points if p.deviation is not None]
+    need = max([1.35 * max(limits, default=0.1), *(1.15 * d for d in devs)])
+    return math.ceil(need / 0.05 - 1e-9) * 0.05
+
+
+def _marker(painter: Any, verdict: str, x: float, y: float) -> None:
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QBrush, QColor, QPen, QPolygonF
+
+    colour, shape, r, _ = MARKS[verdict]
+    painter.setPen(QPen(QColor("#1A1A1A"), 1.2))
+    painter.setBrush(QBrush(QColor(colour)))
+    if shape == "circle":
+        painter.drawEllipse(QPointF(x, y), r, r)
+    elif shape == "triangle":
+        painter.drawPolygon(QPolygonF([QPointF(x, y - r), QPointF(x + r, y + 0.8 * r), QPointF(x - r, y + 0.8 * r)]))
+    else:
+        painter.drawPolygon(QPolygonF([QPointF(x, y - r), QPointF(x + r, y), QPointF(x, y + r), QPointF(x - r, y)]))
+
+
+def _font(size: float, bold: bool = False) -> Any:
+    from PySide6.QtGui import QFont
+
+    font = QFont("DejaVu Sans")
+    font.setPixelSize(max(1, round(size)))
+    font.setBold(bold)
+    return font
+
+
+def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *, lane_rows: int, top: bool,
+               bottom: bool) -> None:
+    from PySide6.QtCore import QPointF, QRectF, Qt
+    from PySide6.QtGui import QColor, QPen
+
+    # Trend-rule bars get a lane of their own under the points, so neither hides the other.
+    lane_h = 14 * lane_rows + 6 if lane_rows else 0
+    rect = QRectF(outer.left(), outer.top(), outer.width(), outer.height() - lane_h)
+    lane = QRectF(outer.left(), rect.bottom(), outer.width(), lane_h)
+    span = y_span(series)
+    ax = _Axes(rect, data.first, data.last, span)
+    painter.setPen(Qt.PenStyle.NoPen)
+    painter.fillRect(outer, QColor("white"))
+    # Days that set each period's levels, behind everything else.
+    for period in data.periods:
+        for day in period.baseline_dates:
+            if data.first <= day <= data.last:
+                w = rect.width() / ax.days
+                painter.fillRect(QRectF(ax.x(day) - w / 2, rect.top(), w, rect.height()), QColor(_BASELINE))
+    up_a, low_a = series.action
+    up_w, low_w = series.warning
+    for edge, limit in ((1, up_a), (-1, low_a)):
+        if limit is None:
+            continue
+        y = ax.y(limit)
+        painter.fillRect(QRectF(rect.left(), min(y, ax.y(edge * span)), rect.width(), abs(ax.y(edge * span) - y)),
+                         QColor(BANDS["action"]))
+    for limit, beyond in ((up_w, up_a), (low_w, low_a)):
+        if limit is None or beyond is None:
+            continue
+        y0, y1 = ax.y(limit), ax.y(beyond)
+        painter.fillRect(QRectF(rect.left(), min(y0, y1), rect.width(), abs(y1 - y0)), QColor(BANDS["warning"]))
+    # Grid, operating level, limit lines.
+    painter.setFont(_font(12))
+    step = 0.05 if span <= 0.3 else 0.1
+    k = -math.floor(span / step + 1e-9)
+    while k * step <= span + 1e-9:
+        v, y = k * step, ax.y(k * step)
+        painter.setPen(QPen(QColor("#DDDDDD"), 1))
+        painter.drawLine(QPointF(rect.left(), y), QPointF(rect.right(), y))
+        painter.setPen(QColor("#333333"))
+        painter.drawText(QRectF(rect.left() - 64, y - 9, 58, 18), Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
+                         f"{v:+.2f}" if abs(v) > 1e-9 else "0")
+        k += 1
+    painter.setPen(QPen(QColor("#555555"), 1.6))
+    painter.drawLine(QPointF(rect.left(), ax.y(0)), QPointF(rect.right(), ax.y(0)))
+    for limit, colour, style in ((up_a, _LIMIT_LINE, Qt.PenStyle.DashLine), (low_a, _LIMIT_LINE, Qt.PenStyle.DashLine),
+                                 (up_w, _WARNING_LINE, Qt.PenStyle.DotLine), (low_w, _WARNING_LINE, Qt.PenStyle.DotLine)):
+        if limit is not None:
+            painter.setPen(QPen(QColor(colour), 1.6, style))
+            painter.drawLine(QPointF(rect.left(), ax.y(limit)), QPointF(rect.right(), ax.y(limit)))
+            painter.setFont(_font(11))
+            painter.drawText(QRectF(rect.right() - 120, ax.y(limit) - (16 if limit > 0 else -2), 116, 14),
+                             Qt.AlignmentFlag.AlignRight, f"{limit:+.2f}")
+    # Events: the baseline restarts from that day's strip on, so the line sits at the day's left edge.
+    for day, label in data.events:
+        x = ax.x(day) - rect.width() / ax.days / 2
+        painter.setPen(QPen(QColor(_EVENT), 1.5, Qt.PenStyle.DashDotLine))
+        painter.drawLine(QPointF(x, outer.top()), QPointF(x, outer.bottom()))
+        if top:
+            painter.setFont(_font(12, bold=True))
+            painter.drawText(QRectF(x + 4, rect.top() + 2, 300, 16), Qt.AlignmentFlag.AlignLeft, label.split(" on ")[0])
+    # Trend findings on this quantity: bars under the days they cover.
+    if lane_rows:
+        painter.setPen(QPen(QColor("#BBBBBB"), 1))
+        painter.drawLine(QPointF(lane.left(), lane.top()), QPointF(lane.right(), lane.top()))
+        painter.setPen(QColor(_TREND))
+        painter.setFont(_font(11))
+        painter.drawText(QRectF(lane.left() - 64, lane.top() + 2, 58, 14), Qt.AlignmentFlag.AlignRight, "trends")
+    mine = [f for f in data.findings if f.quantity == series.quantity]
+    for i, finding in enumerate(mine):
+        days = [d for d in finding.dates if data.first <= d <= data.last]
+        if not days or not lane_rows:
+            continue
+        y = lane.top() + 10 + 14 * (i % lane_rows)
+        painter.setPen(QPen(QColor(_TREND), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+        painter.drawLine(QPointF(ax.x(days[0]) - 4, y), QPointF(ax.x(days[-1]) + 4, y))
+        painter.setFont(_font(11, bold=True))
+        painter.drawText(QRectF(ax.x(days[-1]) + 8, y - 8, 170, 16), Qt.AlignmentFlag.AlignLeft, describe_rule(finding))
+    # Points, joined within a period; days still in a baseline get a tick on the axis.
+    painter.setPen(QPen(QColor("#888888"), 1.2))
+    for period in data.periods:
+        pts = [p for p in series.points if period.first <= p.date <= period.last and p.deviation is not None]
+        for a, b in zip(pts, pts[1:]):
+            painter.drawLine(QPointF(ax.x(a.date), ax.y(a.deviation)), QPointF(ax.x(b.date), ax.y(b.deviation)))
+    for p in series.points:
+        if p.deviation is None:
+            painter.setPen(QPen(QColor("#666666"), 2))
+            painter.drawLine(QPointF(ax.x(p.date), rect.bottom() - 12), QPointF(ax.x(p.date), rect.bottom()))
+            continue
+        _marker(painter, p.verdict or "ok", ax.x(p.date), ax.y(p.deviation))
+        if p.verdict == "action":
+            painter.setPen(QColor("#1A1A1A"))
+            painter.setFont(_font(12, bold=True))
+            dy = -26 if p.deviation > 0 else 10
+            painter.drawText(QRectF(ax.x(p.date) - 40, ax.y(p.deviation) + dy, 80, 16),
+                             Qt.AlignmentFlag.AlignHCenter, f"{p.deviation:+.3f}")
+    painter.setPen(QPen(QColor("#222222"), 1.2))
+    painter.setBrush(Qt.BrushStyle.NoBrush)
+    painter.drawRect(outer)
+    painter.setFont(_font(14, bold=True))
+    painter.drawText(QRectF(outer.left(), outer.top() - 21, 700, 20), Qt.AlignmentFlag.AlignLeft,
+                     f"{series.label}: deviation from operating level (OD)")
+    _x_ticks(painter, ax, outer, labels=bottom)
+
+
+def _x_ticks(painter: Any, ax: _Axes, rect: Any, *, labels: bool) -> None:
+    from PySide6.QtCore import QPointF, QRectF, Qt
+    from PySide6.QtGui import QColor, QPen
+
+    every = 1 if ax.days <= 40 else 7 if ax.days <= 200 else 30
+    painter.setFont(_font(11))
+    for k in range(ax.days):
+        day = ax.first + datetime.timedelta(days=k)
+        if k % every and day.day != 1:
+            continue
+        x = ax.x(day)
+        painter.setPen(QPen(QColor("#222222"), 1))
+        painter.drawLine(QPointF(x, rect.bottom()), QPointF(x, rect.bottom() + 4))
+        if labels:
+            painter.drawText(QRectF(x - 20, rect.bottom() + 5, 40, 14), Qt.AlignmentFlag.AlignHCenter, str(day.day))
+            if k == 0 or day.day == 1:
+                painter.setFont(_font(12, bold=True))
+                painter.drawText(QRectF(x - 8, rect.bottom() + 20, 160, 16), Qt.AlignmentFlag.AlignLeft,
+                                 day.strftime("%B %Y"))
+                painter.setFont(_font(11))
+
+
+def _legend(painter: Any, left: float, top: float, width: float) -> float:
+    from PySide6.QtCore import QPointF, QRectF, Qt
+    from PySide6.QtGui import QColor, QPen
+
+    painter.setFont(_font(12))
+    x = left
+    for verdict in ("ok", "warning", "action"):
+        _marker(painter, verdict, x + 8, top + 8)
+        painter.setPen(QColor("#1A1A1A"))
+        painter.drawText(QRectF(x + 22, top, 190, 16), Qt.AlignmentFlag.AlignLeft, MARKS[verdict][3])
+        x += 200
+    items = ((_LIMIT_LINE, Qt.PenStyle.DashLine, "control limit"), (_WARNING_LINE, Qt.PenStyle.DotLine, "warning tier"),
+             (_EVENT, Qt.PenStyle.DashDotLine, "event: baseline restarts"))
+    x, top2 = left, top + 24
+    for colour, style, text in items:
+        painter.setPen(QPen(QColor(colour), 1.6, style))
+        painter.drawLine(QPointF(x, top2 + 8), QPointF(x + 30, top2 + 8))
+        painter.setPen(QColor("#1A1A1A"))
+        painter.drawText(QRectF(x + 36, top2, 200, 16), Qt.AlignmentFlag.AlignLeft, text)
+        x += 230
+    painter.fillRect(QRectF(x, top2 + 2, 24, 12), QColor(_BASELINE))
+    painter.setPen(QColor("#1A1A1A"))
+    painter.drawText(QRectF(x + 30, top2, 250, 16), Qt.AlignmentFlag.AlignLeft, "days that set the levels")
+    painter.setPen(QPen(QColor(_TREND), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+    x3, top3 = left, top + 48
+    painter.drawLine(QPointF(x3 + 2, top3 + 8), QPointF(x3 + 28, top3 + 8))
+    painter.setPen(QColor("#1A1A1A"))
+    painter.drawText(QRectF(x3 + 36, top3, width - 40, 16), Qt.AlignmentFlag.AlignLeft,
+                     "trend rule fired (run: strips on one side of the level; drift: each strip further than the "
+                     "last; repeated warnings)")
+    return top + 72
+
+
+def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
+    """Draw the chart on a new ``QImage`` of ``size`` (width, height) px and return it."""
+    ensure_app()
+    from PySide6.QtCore import QRectF, Qt
+    from PySide6.QtGui import QColor, QImage, QPainter
+
+    width, height = size
+    if width < 600 or height < 600 or width > 10000 or height > 10000:
+        raise ValueError(f"a QC chart needs 600 to 10000 px each way, not {width} x {height}")
+    image = QImage(width, height, QImage.Format.Format_ARGB32)
+    image.fill(QColor("white"))
+    painter = QPainter(image)
+    try:
+        painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+        painter.setRenderHint(QPainter.RenderHint.TextAntialiasing)
+        painter.setPen(QColor("#111111"))
+        painter.setFont(_font(20, bold=True))
+        painter.drawText(QRectF(24, 14, width - 48, 28), Qt.AlignmentFlag.AlignLeft, data.title)
+        status = data.status
+        word = "BASELINE IN PROGRESS" if status.baseline_in_progress else VERDICT_WORDS[status.verdict]
+        rules = f"; trend rules fired: {', '.join(status.rules_fired)}" if status.rules_fired else ""
+        painter.setFont(_font(14, bold=True))
+        painter.setPen(QColor(MARKS[status.verdict][0] if not status.baseline_in_progress else "#444444"))
+        when = status.latest_date.isoformat() if status.latest_date else "-"
+        painter.drawText(QRectF(24, 44, width - 48, 20), Qt.AlignmentFlag.AlignLeft,
+                         f"Status on the latest strip ({when}): {word}{rules}")
+        footer = _wrap([*chart_legend(data), f"Caution: {CAUTION}",
+                        f"Drawn by stripscan {__version__} on {datetime.date.today().isoformat()}."],
+                       int((width - 48) / 7.4))
+        foot_h = 20 + 17 * len(footer) + 90
+        top, left, right = 96, 96, width - 24
+        gap, bottom_axis = 30, 40
+        plot_h = (height - top - foot_h - bottom_axis - 2 * gap) / 3
+        counts = [sum(f.quantity == s.quantity for f in data.findings) for s in data.series]
+        for i, series in enumerate(data.series):
+            rect = QRectF(left, top + i * (plot_h + gap), right - left, plot_h)
+            _draw_plot(painter, data, series, rect, lane_rows=min(4, max(counts)), top=i == 0,
+                       bottom=i == len(data.series) - 1)
+        y = top + 3 * plot_h + 2 * gap + bottom_axis
+        y = _legend(painter, left, y, right - left)
+        painter.setFont(_font(12))
+        painter.setPen(QColor("#222222"))
+        for line in footer:
+            painter.drawText(QRectF(24, y, width - 48, 17), Qt.AlignmentFlag.AlignLeft, line)
+            y += 17
+    finally:
+        painter.end()
+    return image
+
+
+def render_chart_png(data: ChartData, path: str | os.PathLike[str], *, size: tuple[int, int] = (1200, 1100)) -> Path:
+    """Draw the chart and write it as PNG at ``path`` (never half-written).
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    ValueError
+        A size out of range, or a path that does not end in ``.png``.
+    OSError
+        When the file cannot be written.
+    """
+    path = Path(path)
+    if path.suffix.lower() != ".png":
+        raise ValueError(f"{path}: the chart is written as PNG; give a file name ending in .png")
+    if not path.parent.is_dir():
+        raise OSError(f"{path}: the folder {path.parent} does not exist")
+    image = render_chart(data, size)
+    partial = path.with_name(path.name + ".partial")
+    try:
+        if not image.save(str(partial), "PNG"):
+            raise OSError(f"{path}: cannot write the PNG image")
+        os.replace(partial, path)
+    finally:
+        partial.unlink(missing_ok=True)
+    return path
+
+
+def _wrap(lines: Sequence[str], width: int) -> list[str]:
+    """Split lines longer than ``width`` characters at spaces."""
+    out = []
+    for line in lines:
+        while len(line) > width:
+            cut = line.rfind(" ", 0, width)
+            cut = cut if cut > 0 else width
+            out.append(line[:cut])
+            line = "    " + line[cut:].lstrip()
+        out.append(line)
+    return out

@@ -1,0 +1,621 @@
+"""The processor QC log: the archive's stored days and settings, judged by the pure core.
+
+The archive (:mod:`stripscan.archive`) keeps what was measured: one entry a
+day per processor, the events that restart a baseline, crossover records and
+a JSON settings object per processor.  The core (:mod:`stripscan.core.qc`)
+decides what it means: operating levels, verdicts, trend rules, status.
+This module joins the two and adds the rules that need both:
+
+* a day read off a scan uses the QC steps kept from the baseline on: they
+  are chosen (:func:`~stripscan.core.qc.choose_qc_steps`) on the first
+  scanned strip after the latest event that restarts the baseline, stored
+  in the settings with that day's entry, and used unchanged afterwards;
+* entries go in date order, one per day, and an event may not be dated
+  before the latest entry (it would silently re-judge days already
+  reported);
+* a ``crossover`` event takes the new operating levels of the crossover
+  record stored for that processor and day, when there is one.
+
+Settings JSON (``Archive.set_qc_settings``), keys this module owns::
+
+    {"limits": QCLimits.to_dict(), "trend_rules": TrendRules.to_dict(),
+     "baseline_days": 5, "steps": QCSteps.to_dict() (the latest choice),
+     "step_choices": [{"since": "YYYY-MM-DD", "steps": {...}, "chosen_on": "..."}]}
+
+Other keys found in the settings are kept as they are.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from stripscan import CAUTION
+from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError, NewSnapshot, Processor
+from stripscan.archive import QcEntry as StoredEntry
+from stripscan.core.qc import (
+    EVENT_KINDS,
+    QUANTITIES,
+    OperatingLevels,
+    ProcessorStatus,
+    QCEntry,
+    QCEvent,
+    QCLimits,
+    QCLog,
+    QCSteps,
+    QCValues,
+    TrendRules,
+    choose_qc_steps,
+    evaluate_day,
+    qc_values_from_steps,
+)
+from stripscan.core.records import Analysis, StripResult
+
+__all__ = [
+    "LABELS",
+    "VERDICT_WORDS",
+    "StepChoice",
+    "QcSetup",
+    "ProcessorLog",
+    "StripReading",
+    "AddedDay",
+    "parse_day",
+    "load_setup",
+    "load_processor_log",
+    "read_strip",
+    "add_day",
+    "add_event",
+    "set_limits",
+    "status_json",
+    "status_text",
+    "signed",
+]
+
+LABELS = {"base_fog": "base+fog", "mid_density": "mid-density", "density_difference": "density difference"}
+
+#: How each verdict is shown to a person.
+VERDICT_WORDS = {"ok": "WITHIN LIMITS", "warning": "WARNING", "action": "ACT"}
+
+# Marks "leave as it is" in set_limits, where None means "no warning tier".
+_KEEP: Any = object()
+
+
+def parse_day(text: str, what: str = "date") -> datetime.date:
+    """A ``YYYY-MM-DD`` date, or a ValueError that says what was wrong."""
+    try:
+        if len(text) != 10:
+            raise ValueError
+        return datetime.date.fromisoformat(text)
+    except (TypeError, ValueError):
+        raise ValueError(f"{what} {text!r} is not a calendar date written YYYY-MM-DD") from None
+
+
+# --------------------------------------------------------------------------
+# Settings
+
+
+@dataclass(frozen=True)
+class StepChoice:
+    """The QC steps chosen for a baseline, from ``since`` on, and the strip they were chosen on."""
+
+    since: datetime.date
+    steps: QCSteps
+    chosen_on: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"since": self.since.isoformat(), "steps": self.steps.to_dict(), "chosen_on": self.chosen_on}
+
+    @classmethod
+    def from_dict(cls, data: Mapping[str, Any]) -> StepChoice:
+        return cls(parse_day(data["since"], "step choice date"), QCSteps.from_dict(data["steps"]),
+                   str(data.get("chosen_on", "")))
+
+
+@dataclass(frozen=True)
+class QcSetup:
+    """A processor's QC settings: limits, trend rules, baseline length and QC steps.
+
+    Attributes
+    ----------
+    limits : QCLimits
+        Control limits and warning tiers (21 CFR 900.12(e)(1) by default).
+    rules : TrendRules
+        Trend rules and their sizes.
+    baseline_days : int
+        Strips averaged for the operating levels (5).
+    step_choices : tuple of StepChoice
+        Every choice of QC steps, oldest first.
+    extra : dict
+        Settings kept by other parts of the program, stored back untouched.
+    """
+
+    limits: QCLimits = field(default_factory=QCLimits)
+    rules: TrendRules = field(default_factory=TrendRules)
+    baseline_days: int = 5
+    step_choices: tuple[StepChoice, ...] = ()
+    extra: Mapping[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        days = self.baseline_days
+        if isinstance(days, bool) or not isinstance(days, int) or not 1 <= days <= 60:
+            raise ValueError(f"baseline days must be a whole number from 1 to 60, got {days!r}")
+
+    _OWN = ("limits", "trend_rules", "baseline_days", "steps", "step_choices")
+
+    def to_settings(self) -> dict[str, Any]:
+        """The JSON object stored in the archive."""
+        data = {k: v for k, v in self.extra.items() if k not in self._OWN}
+        data.update(limits=self.limits.to_dict(), trend_rules=self.rules.to_dict(),
+                    baseline_days=self.baseline_days,
+                    step_choices=[c.to_dict() for c in self.step_choices])
+        if self.step_choices:
+            # Read by the crossover command as the steps in use.
+            data["steps"] = self.step_choices[-1].steps.to_dict()
+        return data
+
+    @classmethod
+    def from_settings(cls, data: Mapping[str, Any] | None, processor: str = "") -> QcSetup:
+        """Read stored settings; missing keys take the defaults."""
+        data = dict(data or {})
+        try:
+            return cls(
+                limits=QCLimits.from_dict(data["limits"]) if "limits" in data else QCLimits(),
+                rules=TrendRules.from_dict(data["trend_rules"]) if "trend_rules" in data else TrendRules(),
+                baseline_days=data.get("baseline_days", 5),
+                step_choices=tuple(StepChoice.from_dict(c) for c in data.get("step_choices", ())),
+                extra={k: v for k, v in data.items() if k not in cls._OWN},
+            )
+        except (KeyError, TypeError, ValueError) as exc:
+            raise ValueError(f"processor {processor!r}: the stored QC settings cannot be read ({exc})") from None
+
+
+def load_setup(archive: Archive, processor: str) -> QcSetup:
+    """The processor's stored QC settings, or the defaults when none are stored."""
+    stored = archive.get_qc_settings(processor)
+    return QcSetup.from_settings(stored.settings if stored else None, processor)
+
+
+# --------------------------------------------------------------------------
+# The log as the core sees it
+
+
+@dataclass(frozen=True)
+class ProcessorLog:
+    """One processor's QC log, read from the archive and ready for the core.
+
+    Attributes
+    ----------
+    processor : str
+    setup : QcSetup
+    log : QCLog
+        Entries, events (crossovers with their levels) and the site's settings.
+    notes : tuple of str
+        What was read but not used, in plain words.
+    """
+
+    processor: str
+    setup: QcSetup
+    log: QCLog
+    notes: tuple[str, ...] = ()
+
+    @property
+    def latest_entry(self) -> QCEntry | None:
+        return self.log.entries[-1] if self.log.entries else None
+
+    def status(self, today: datetime.date | None = None) -> ProcessorStatus:
+        """Today's status (the core's :meth:`QCLog.status`)."""
+        return self.log.status(today)
+
+    def step_restart(self, day: datetime.date) -> datetime.date | None:
+        """Date of the latest event on or before ``day`` after which the QC steps are chosen again.
+
+        Every event but a crossover restarts the choice: a new box of the
+        same film keeps its steps (None before the first such event).
+        """
+        dates = [e.date for e in self.log.events if e.date <= day and e.kind != "crossover"]
+        return dates[-1] if dates else None
+
+    def steps_on(self, day: datetime.date) -> QCSteps | None:
+        """The QC steps a strip of ``day`` is read at; None when they are still to be chosen."""
+        since = self.step_restart(day)
+        for choice in reversed(self.setup.step_choices):
+            if choice.since <= day and (since is None or choice.since >= since):
+                return choice.steps
+        for event in reversed(self.log.events):
+            # A crossover record keeps the steps its levels were read at.
+            if since is not None and event.date < since:
+                break
+            if event.date <= day and event.levels is not None and event.levels.steps is not None:
+                return event.levels.steps
+        return None
+
+
+def _crossover_levels(archive: Archive, processor: str) -> dict[str, OperatingLevels]:
+    levels = {}
+    for record in archive.list_crossovers(processor):
+        data = record.record.get("result", {}).get("new_levels") or record.record.get("new_levels")
+        if data is not None:
+            try:
+                levels[record.date] = OperatingLevels.from_dict(data)
+            except (KeyError, TypeError, ValueError) as exc:
+                raise ValueError(f"processor {processor!r}: crossover record {record.id} of {record.date} "
+                                 f"has unreadable levels ({exc})") from None
+    return levels
+
+
+def load_processor_log(archive: Archive, processor: str) -> ProcessorLog:
+    """Read a processor's entries, events, crossovers and settings into a :class:`ProcessorLog`.
+
+    Raises
+    ------
+    ArchiveLookupError
+        When the processor is not in the archive.
+    ValueError
+        When stored settings or crossover levels cannot be read.
+    """
+    archive.get_processor(processor)
+    setup = load_setup(archive, processor)
+    notes = []
+    entries = []
+    for e in archive.list_qc_entries(processor):
+        if None in (e.base_fog, e.mid_density, e.density_difference):
+            notes.append(f"the entry of {e.date} lacks a number and is not judged")
+            continue
+        entries.append(QCEntry(parse_day(e.date), QCValues(e.base_fog, e.mid_density, e.density_difference),
+                               e.source, e.note, e.action))
+    levels = _crossover_levels(archive, processor)
+    events = []
+    for e in archive.list_qc_events(processor):
+        kind = e.kind if e.kind in EVENT_KINDS else "other"
+        note = e.note if kind == e.kind else f"{e.kind}: {e.note}".rstrip(": ")
+        events.append(QCEvent(parse_day(e.date), kind, note, levels.get(e.date) if kind == "crossover" else None))
+    log = QCLog(entries=tuple(entries), events=tuple(events), limits=setup.limits, rules=setup.rules,
+                n_days=setup.baseline_days)
+    return ProcessorLog(processor, setup, log, tuple(notes))
+
+
+# --------------------------------------------------------------------------
+# Reading a strip
+
+
+@dataclass(frozen=True)
+class StripReading:
+    """A day's three numbers read off one strip of a scan.
+
+    Attributes
+    ----------
+    values : QCValues
+    steps : QCSteps
+        The steps read (kept from the baseline, or chosen now).
+    chosen_now : bool
+        True when this strip is the one the steps were chosen on.
+    strip : StripResult
+    source : str
+        Where it came from, in plain words (file, strip, sha256).
+    """
+
+    values: QCValues
+    steps: QCSteps
+    chosen_now: bool
+    strip: StripResult
+    source: str
+
+
+def _pick_strip(analysis: Analysis, number: int | None) -> StripResult:
+    name = Path(analysis.scan.path).name
+    if not analysis.strips:
+        raise ValueError(f"{name}: no strip was found on the scan; nothing was stored")
+    if number is None:
+        if len(analysis.strips) > 1:
+            raise ValueError(f"{name} holds {len(analysis.strips)} strips; say which one is the QC strip "
+                             "with --strip N (numbered as 'stripscan analyze' prints them)")
+        return analysis.strips[0]
+    for strip in analysis.strips:
+        if strip.index == number:
+            return strip
+    raise ValueError(f"{name} has no strip {number}; its strips are numbered 1 to {len(analysis.strips)}")
+
+
+def read_strip(analysis: Analysis, steps: QCSteps | None, *, strip: int | None = None) -> StripReading:
+    """Base+fog, mid-density and density difference of the QC strip on an analysed scan.
+
+    Parameters
+    ----------
+    analysis : Analysis
+        The pipeline's result for the scan.
+    steps : QCSteps or None
+        The steps kept from the baseline; None to choose them on this strip
+        (steps outside the calibrated range or excluded are never chosen).
+    strip : int or None
+        Strip number (1-based) when the scan holds more than one.
+
+    Raises
+    ------
+    ValueError
+        No strip, an unknown strip number, no base+fog, a kept step missing
+        or not usable on this strip.
+    """
+    picked = _pick_strip(analysis, strip)
+    where = f"{Path(analysis.scan.path).name}, strip {picked.index}"
+    densities = [s.od if s.in_range and not s.excluded else math.nan for s in picked.steps]
+    if picked.figures.base_fog is None:
+        raise ValueError(f"{where}: no base+fog was read (see 'stripscan analyze'); nothing was stored")
+    chosen_now = steps is None
+    if steps is None:
+        try:
+            steps = choose_qc_steps(densities)
+        except ValueError as exc:
+            raise ValueError(f"{where}: the QC steps cannot be chosen: {exc}") from None
+    for name, step in (("mid-density", steps.mid_step), ("density difference high", steps.dd_high_step),
+                       ("density difference low", steps.dd_low_step)):
+        if step > len(densities):
+            raise ValueError(f"{where} has {len(densities)} steps; the {name} step kept from the baseline "
+                             f"is step {step}; nothing was stored")
+        if not math.isfinite(densities[step - 1]):
+            raise ValueError(f"{where}: the {name} step kept from the baseline (step {step}) is outside the "
+                             "calibrated range or excluded; nothing was stored")
+    values = qc_values_from_steps(densities, steps, picked.figures.base_fog)
+    return StripReading(values, steps, chosen_now, picked, f"{where}, sha256 {analysis.scan.sha256[:12]}")
+
+
+# --------------------------------------------------------------------------
+# Writing
+
+
+@dataclass(frozen=True)
+class AddedDay:
+    """What :func:`add_day` stored, and the processor's status afterwards."""
+
+    entry: StoredEntry
+    reading: StripReading | None
+    plog: ProcessorLog
+    status: ProcessorStatus
+    notes: tuple[str, ...] = ()
+
+
+def _processor_known(archive: Archive, processor: str) -> bool:
+    return any(p.name == processor for p in archive.list_processors())
+
+
+def _require_processor(archive: Archive, processor: str, new_processor: bool) -> Processor | None:
+    """The Processor to add first, None when already known; an error when unknown and not allowed."""
+    if not isinstance(processor, str) or not processor.strip():
+        raise ValueError("a processor name is needed (--processor NAME)")
+    if _processor_known(archive, processor):
+        return None
+    if not new_processor:
+        known = ", ".join(repr(p.name) for p in archive.list_processors()) or "none yet"
+        raise ArchiveLookupError(f"processor {processor!r} is not in the archive (known: {known}); "
+                                 "give --new-processor to start its QC log")
+    return Processor(processor)
+
+
+def _check_new_day(plog: ProcessorLog | None, processor: str, day: datetime.date) -> None:
+    latest = plog.latest_entry if plog else None
+    if latest is None:
+        return
+    if day == latest.date:
+        raise ArchiveConflictError(f"processor {processor!r} already has a QC entry for {day.isoformat()} "
+                                   "(one strip a day is kept; a duplicate day is not stored)")
+    if day < latest.date:
+        raise ValueError(f"dates out of order: {day.isoformat()} is before processor {processor!r}'s latest "
+                         f"QC entry ({latest.date.isoformat()}); entries are added in date order")
+
+
+def _provenance(note: str, source: str) -> str:
+    # The scan itself is not kept unless a lot is given; say where the numbers came from.
+    return f"{note} [read from {source}]" if note else f"[read from {source}]"
+
+
+def add_day(
+    archive: Archive,
+    processor: str,
+    day: datetime.date,
+    *,
+    values: QCValues | None = None,
+    analysis: Analysis | None = None,
+    strip: int | None = None,
+    calibration: dict[str, Any] | None = None,
+    lot: str | None = None,
+    note: str = "",
+    action: str = "",
+    new_processor: bool = False,
+) -> AddedDay:
+    """Store one day's QC entry, typed in or read off a scan, in one transaction.
+
+    Parameters
+    ----------
+    archive : Archive
+    processor : str
+    day : datetime.date
+        Day the strip was processed; after the latest entry.
+    values : QCValues, optional
+        Typed-in values (densitometer readings); exclusive with ``analysis``.
+    analysis : Analysis, optional
+        The pipeline's result for the day's scan; read at the kept steps.
+    strip : int, optional
+        Which strip of the scan, when it holds several.
+    calibration : dict, optional
+        The full calibration used, stored with the strip when ``lot`` is given.
+    lot : str, optional
+        Emulsion lot of the QC film: keeps the strip as a snapshot linked to the entry.
+    note, action : str
+        Remark, and corrective action taken that day.
+    new_processor : bool
+        Add the processor if it is not in the archive yet.
+
+    Raises
+    ------
+    ValueError, ArchiveError
+        With a one-line message; nothing is stored.
+    """
+    if (values is None) == (analysis is None):
+        raise ValueError("give either a scan or the three typed values (base+fog, mid-density, density difference)")
+    if lot is not None and analysis is None:
+        raise ValueError("--lot keeps the scanned strip in the archive; it needs a scan")
+    add_processor = _require_processor(archive, processor, new_processor)
+    plog = None if add_processor else load_processor_log(archive, processor)
+    _check_new_day(plog, processor, day)
+    setup = plog.setup if plog else QcSetup()
+    settings, reading, snapshot, notes = None, None, None, []
+    if analysis is not None:
+        reading = read_strip(analysis, plog.steps_on(day) if plog else None, strip=strip)
+        values = reading.values
+        notes += [w for w in analysis.warnings if w.startswith("UNCALIBRATED")]
+        if reading.chosen_now:
+            since = plog.step_restart(day) if plog else None
+            choice = StepChoice(day, reading.steps, reading.source)
+            settings = dataclasses.replace(setup, step_choices=(*setup.step_choices, choice)).to_settings()
+            notes.append(f"QC steps chosen on this strip{' (after the ' + since.isoformat() + ' event)' if since else ''} "
+                         f"and kept from now on: mid-density step {reading.steps.mid_step}, density difference "
+                         f"step {reading.steps.dd_high_step} - step {reading.steps.dd_low_step}")
+        if lot is not None:
+            snapshot = NewSnapshot(lot_id=lot, scan=analysis.scan, strip=reading.strip, processor=processor,
+                                   calibration=calibration if calibration is not None else analysis.calibration,
+                                   processed_on=day.isoformat(), settings=dict(analysis.settings),
+                                   warnings=tuple(analysis.warnings), program_version=analysis.program_version,
+                                   notes=note)
+            if not any(s.lot.lot_id == lot for s in archive.list_lots()):
+                notes.append(f"lot {lot!r} was not in the archive; added it with no further details")
+        else:
+            note = _provenance(note, reading.source)
+    elif add_processor is not None:
+        settings = setup.to_settings()
+    assert values is not None
+    # The core's own record checks the numbers before anything is written.
+    QCEntry(day, values, "scan" if analysis is not None else "manual", note, action)
+    entry = StoredEntry(processor, day.isoformat(), values.base_fog, values.mid_density, values.density_difference,
+                        "scan" if analysis is not None else "manual", note=note, action=action)
+    stored = archive.add_qc_day(entry, new_processor=add_processor, snapshot=snapshot, settings=settings)
+    after = load_processor_log(archive, processor)
+    if add_processor is not None:
+        notes.insert(0, f"processor {processor!r} was not in the archive; added it and started its QC log")
+    return AddedDay(stored, reading, after, after.status(), tuple(notes))
+
+
+def add_event(archive: Archive, processor: str, day: datetime.date, kind: str, note: str = "", *,
+              new_processor: bool = False) -> ProcessorLog:
+    """Record an event that restarts the baseline (new chemistry, service, crossover...).
+
+    Raises
+    ------
+    ValueError
+        Unknown kind, or a date before the latest entry (it would re-judge
+        days already reported).
+    """
+    if kind not in EVENT_KINDS:
+        raise ValueError(f"unknown event kind {kind!r}; expected one of: {', '.join(EVENT_KINDS)}")
+    add_processor = _require_processor(archive, processor, new_processor)
+    if add_processor is None:
+        latest = load_processor_log(archive, processor).latest_entry
+        if latest is not None and day < latest.date:
+            raise ValueError(f"dates out of order: the event of {day.isoformat()} is before processor "
+                             f"{processor!r}'s latest QC entry ({latest.date.isoformat()}); it would re-judge "
+                             "days already reported")
+    else:
+        archive.add_processor(add_processor)
+    archive.add_qc_event(processor, day.isoformat(), kind, note)
+    return load_processor_log(archive, processor)
+
+
+def set_limits(archive: Archive, processor: str, *, md_dd_action: Any = _KEEP, md_dd_warning: Any = _KEEP,
+               base_fog_action: Any = _KEEP, base_fog_warning: Any = _KEEP, baseline_days: Any = _KEEP,
+               run_length: Any = _KEEP, drift_length: Any = _KEEP, new_processor: bool = False) -> QcSetup:
+    """Change a processor's limits, baseline length or trend-rule sizes; arguments not given stay.
+
+    ``md_dd_warning=None`` or ``base_fog_warning=None`` removes that warning
+    tier.  Every stored day is judged again with the new settings.
+    """
+    add_processor = _require_processor(archive, processor, new_processor)
+    setup = QcSetup() if add_processor else load_setup(archive, processor)
+    limits = {k: v for k, v in (("md_dd_action", md_dd_action), ("md_dd_warning", md_dd_warning),
+                                ("base_fog_action", base_fog_action), ("base_fog_warning", base_fog_warning))
+              if v is not _KEEP}
+    sizes = {k: v for k, v in (("run_length", run_length), ("drift_length", drift_length)) if v is not _KEEP}
+    setup = dataclasses.replace(
+        setup, limits=dataclasses.replace(setup.limits, **limits), rules=dataclasses.replace(setup.rules, **sizes),
+        baseline_days=setup.baseline_days if baseline_days is _KEEP else baseline_days)
+    if add_processor is not None:
+        archive.add_processor(add_processor)
+    archive.set_qc_settings(processor, setup.to_settings())
+    return setup
+
+
+# --------------------------------------------------------------------------
+# Reporting
+
+
+def _values_dict(values: QCValues | None) -> dict[str, float] | None:
+    return None if values is None else {q: round(getattr(values, q), 4) for q in QUANTITIES}
+
+
+def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> dict[str, Any]:
+    """The status as JSON-ready data (``stripscan qc status --json``).
+
+    Keys: ``processor``; ``operating_levels`` (``base_fog``, ``mid_density``,
+    ``density_difference``, ``established``, ``reason``, or null during a
+    baseline); ``latest`` (``date``, ``values``, ``deviations``, ``verdict``
+    one of ok / warning / action, ``rules``, ``reasons``, ``advice``);
+    ``baseline``; ``limits``; ``steps``; ``caution``.
+    """
+    status = status or plog.status()
+    levels = status.levels
+    reasons: tuple[str, ...] = ()
+    if status.values is not None and levels is not None:
+        reasons = evaluate_day(status.values, levels, plog.setup.limits).reasons
+    steps = plog.steps_on(status.latest_date) if status.latest_date else None
+    return {
+        "processor": plog.processor,
+        "operating_levels": None if levels is None else {
+            **_values_dict(levels.values),  # type: ignore[arg-type]
+            "established": levels.established.isoformat(), "n_days": levels.n_days, "reason": levels.reason},
+        "latest": {
+            "date": status.latest_date.isoformat() if status.latest_date else None,
+            "values": _values_dict(status.values),
+            "deviations": _values_dict(status.deviations),
+            "verdict": status.verdict,
+            "rules": list(status.rules_fired),
+            "rule_messages": [f.message for f in status.findings],
+            "reasons": list(reasons),
+            "advice": status.advice,
+        },
+        "baseline": {"in_progress": status.baseline_in_progress, "days": status.baseline_days,
+                     "needed": plog.setup.baseline_days},
+        "limits": plog.setup.limits.to_dict(),
+        "steps": steps.to_dict() if steps else None,
+        "notes": list(plog.notes),
+        "caution": CAUTION,
+    }
+
+
+def signed(value: float) -> str:
+    """A deviation as +0.012 (a rounded -0.000 shows as +0.000)."""
+    # Adding 0.0 turns a rounded -0.0 into 0.0: no "-0.000" for a point on its level.
+    return f"{round(value, 3) + 0.0:+.3f}"
+
+
+def status_text(plog: ProcessorLog, status: ProcessorStatus | None = None) -> str:
+    """The status in plain lines: verdict, numbers, rules fired, advice (ending with the caution)."""
+    status = status or plog.status()
+    when = status.latest_date.isoformat() if status.latest_date else "no strip yet"
+    head = "BASELINE IN PROGRESS" if status.baseline_in_progress else VERDICT_WORDS[status.verdict]
+    lines = [f"{plog.processor}: {head} (latest strip {when})"]
+    if status.levels is not None:
+        lv = status.levels
+        lines.append(f"  operating levels ({lv.reason}, set {lv.established.isoformat()}): "
+                     + ", ".join(f"{LABELS[q]} {getattr(lv, q):.3f}" for q in QUANTITIES))
+    if status.values is not None:
+        dev = status.deviations
+        lines.append("  latest: " + ", ".join(
+            f"{LABELS[q]} {getattr(status.values, q):.3f}"
+            + (f" ({signed(getattr(dev, q))})" if dev is not None else "") for q in QUANTITIES))
+    if status.rules_fired:
+        lines.append("  trend rules fired: " + ", ".join(status.rules_fired))
+    lines.extend(f"  note: {n}" for n in plog.notes)
+    lines.append(f"  {status.advice}")
+    return "\n".join(lines)
