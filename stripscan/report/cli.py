@@ -21,8 +21,13 @@ Sources
     stripscan report SCAN --calibration CAL.json -o OUT.pdf [--site TEXT] [--lot ID]
                      [--processor NAME] [--operator NAME] [--exposed DATE] [--processed DATE] [--scanned DATE]
     stripscan report snapshot:ID[,ID...] --archive PATH -o OUT.pdf [--site TEXT]
+    stripscan report --compare SET SET [SET...] -o OUT.pdf [--archive PATH] [--calibration CAL.json]
+                     [--tolerance FIGURE=VALUE ...]
 
-One A4 page per strip (a scan) or per snapshot.  ``--lot``,
+One A4 page per strip (a scan) or per snapshot; with ``--compare``, one
+page per pair (each later set against the first), the sets written as for
+``stripscan compare`` (``scan:PATH[#1,3]``, ``snapshot:ID[,ID...]``,
+``lot:LOT``) and its ``--tolerance`` settings.  ``--lot``,
 ``--processor``, ``--operator`` and the dates only label a scan's pages;
 a snapshot's come from the archive.  ``--site`` names the site in the
 header (the archive does not keep one).
@@ -34,13 +39,16 @@ header (the archive does not keep one).
     stripscan export steps   SOURCE -o OUT.csv [--strip N]
     stripscan export figures SOURCE -o OUT.csv
     stripscan export plot    SOURCE -o OUT.png|OUT.svg [--strip N] [--width-mm W] [--height-mm H] [--resolution D]
+    stripscan export plot    --compare SET SET -o OUT.png|OUT.svg --chart overlay|delta-density|delta-log-exposure
     stripscan export json    snapshot:ID --archive PATH -o OUT.json
 
 ``steps`` writes the step table (strip, step, log E, OD, sd, flags) of
 every strip, or of strip N; ``figures`` one row of figures per strip;
 ``plot`` the characteristic curve of strip N (default 1) as PNG or SVG,
 chosen by the file's suffix or ``--format``; ``json`` one snapshot in the
-archive's export form (``stripscan archive import`` reads it).  For a
+archive's export form (``stripscan archive import`` reads it).  With
+``--compare``, ``plot`` draws one of the comparison's charts (of the second
+set against the first).  For a
 scan's full JSON use ``stripscan analyze SCAN -o OUT.json``.
 
 Every output is written under a temporary name and renamed when complete.
@@ -51,7 +59,6 @@ from __future__ import annotations
 
 import argparse
 import datetime as dt
-import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable
@@ -96,21 +103,11 @@ def parse_source(text: str) -> Source:
     return Source(text, "scan", path=text)
 
 
-def _fail(message: str) -> int:
-    print(f"stripscan: error: {message}", file=sys.stderr)
-    return 1
-
-
 def _guarded(handler: _Handler) -> _Handler:
-    def run(args: argparse.Namespace) -> int:
-        from ..archive import ArchiveError
+    # The archive's commands print failures the same way: one line, exit 1.
+    from ..archive.cli import _guarded as archive_guarded
 
-        try:
-            return handler(args)
-        except (ArchiveError, ValueError, OSError) as exc:
-            return _fail(str(exc))
-    run.__doc__ = handler.__doc__
-    return run
+    return archive_guarded(handler)
 
 
 def _date(text: str) -> str:
@@ -156,12 +153,28 @@ def _scan_only(args: argparse.Namespace, source: Source) -> None:
         raise ReportError(f"{', '.join(given)} label a scan's pages only; a snapshot's come from the archive")
 
 
-def _cmd_report(args: argparse.Namespace) -> int:
-    """Write a PDF report: one page per strip of a scan, or per archived snapshot."""
-    from .snapshot import StripContext, report_from_snapshot, reports_from_analysis
-    from .canvas import write_pdf
+def _one_source(args: argparse.Namespace) -> Source:
+    if args.compare:
+        raise ReportError("internal: a comparison has sets, not one source")
+    if len(args.sources) != 1:
+        raise ReportError(f"give one SOURCE (a scan file or snapshot:ID[,ID...]), got {len(args.sources)}; "
+                          "to compare sets use --compare")
+    return parse_source(args.sources[0])
 
-    source = parse_source(args.source)
+
+def _cmd_report(args: argparse.Namespace) -> int:
+    """Write a PDF report: one page per strip of a scan, per archived snapshot, or per compared pair of sets."""
+    from .canvas import write_pdf
+    from .snapshot import StripContext, report_from_snapshot, reports_from_analysis
+
+    if args.compare:
+        comparisons, uses, notes = _comparisons(args)
+        from .comparison import comparison_report_pdf
+
+        path = comparison_report_pdf(comparisons, args.output, calibrations=uses, notes=notes, site=args.site or "")
+        print(f"Wrote {path} ({len(comparisons)} page{'s' if len(comparisons) != 1 else ''})")
+        return 0
+    source = _one_source(args)
     _scan_only(args, source)
     if source.kind == "scan":
         analysis, calibration = _analysis(args, source)
@@ -178,6 +191,52 @@ def _cmd_report(args: argparse.Namespace) -> int:
     path = write_pdf(pages, args.output, title=title)
     print(f"Wrote {path} ({len(pages)} page{'s' if len(pages) != 1 else ''})")
     return 0
+
+
+def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
+    """Compare the sets named on the command line as ``stripscan compare`` does; with the calibrations used."""
+    from ..compare_cli import SetLoader, _tolerances, parse_set
+    from ..core.compare import compare_sets
+
+    if len(args.sources) < 2:
+        raise ReportError(f"--compare needs at least two sets, got {len(args.sources)}")
+    specs = [parse_set(text) for text in args.sources]
+    with SetLoader(args.archive, calibration_path=args.calibration, n_steps=args.steps) as loader:
+        sets = [loader.load(spec) for spec in specs]
+    comparisons = compare_sets(sets, tolerances=_tolerances(args.tolerance))
+    return comparisons, _calibration_uses(args, specs), list(loader.notes)
+
+
+def _calibration_uses(args: argparse.Namespace, specs: list[Any]) -> list[Any]:
+    """Which calibration gave each set's densities: the scans' file, or the archived snapshots' own."""
+    from ..core.calibration import load_calibration
+    from .comparison import CalibrationUse
+
+    groups: dict[str, tuple[list[str], dict[str, Any] | None, str | None]] = {}
+
+    def add(key: str, name: str, calibration: dict[str, Any] | None, digest: str | None) -> None:
+        names = groups.setdefault(key, ([], calibration, digest))[0]
+        if name not in names:
+            names.append(name)
+
+    archive = None
+    try:
+        for spec in specs:
+            if spec.kind == "scan":
+                if args.calibration:
+                    calibration = load_calibration(args.calibration)
+                    add(calibration.sha256, spec.text, calibration.to_dict(), calibration.sha256)
+                else:
+                    add("direct", spec.text, {"mode": "direct"}, None)
+                continue
+            archive = archive or _open_archive(args)
+            ids = spec.numbers if spec.kind == "snapshot" else [r.id for r in archive.list_snapshots(lot=spec.target)]
+            for digest in sorted({archive.get_snapshot(i).calibration_hash or "" for i in ids}):
+                add(digest or "unknown", spec.text, archive.get_calibration(digest) if digest else None, digest or None)
+    finally:
+        if archive is not None:
+            archive.close()
+    return [CalibrationUse(tuple(names), calibration, digest) for names, calibration, digest in groups.values()]
 
 
 def _strips_of(args: argparse.Namespace, source: Source) -> tuple[list[Any], dict[str, Any] | None]:
@@ -199,7 +258,14 @@ def _cmd_export(args: argparse.Namespace) -> int:
     """Export steps or figures (CSV), a plot (PNG or SVG) or a snapshot (JSON)."""
     from . import export
 
-    source = parse_source(args.source)
+    if args.compare:
+        if args.kind != "plot":
+            raise ReportError(f"--compare goes with 'export plot' (a comparison's table is in 'stripscan compare "
+                              f"--json'), not 'export {args.kind}'")
+        path = _export_comparison_plot(args)
+        print(f"Wrote {path}")
+        return 0
+    source = _one_source(args)
     if args.kind == "json":
         if source.kind != "snapshot" or len(source.ids) != 1:
             raise ReportError("export json takes one snapshot:ID (for a scan use 'stripscan analyze SCAN -o OUT.json')")
@@ -224,12 +290,30 @@ def _plot_format(args: argparse.Namespace) -> str:
     return suffix
 
 
+def _save_plot(args: argparse.Namespace, plot: Any) -> Path:
+    from .pictures import save_plot_png, save_plot_svg
+
+    size = {"width_mm": args.width_mm, "height_mm": args.height_mm}
+    if _plot_format(args) == "png":
+        return save_plot_png(plot, args.output, dpi=args.dpi_out, **size)
+    return save_plot_svg(plot, args.output, **size)
+
+
+def _export_comparison_plot(args: argparse.Namespace) -> Path:
+    from .comparison import comparison_plots
+
+    _plot_format(args)
+    comparisons, _, _ = _comparisons(args)
+    return _save_plot(args, comparison_plots(comparisons[0])[args.chart or "overlay"])
+
+
 def _export_plot(args: argparse.Namespace, source: Source) -> Path:
-    from .plot import save_plot_png, save_plot_svg
-    from .provenance import valid_range
+    from .provenance import is_uncalibrated, valid_range
     from .snapshot import curve_plot
 
-    kind = _plot_format(args)
+    _plot_format(args)
+    if args.chart not in (None, "curve"):
+        raise ReportError(f"--chart {args.chart} is a comparison chart; a strip's plot is its curve")
     if args.strip is None:
         args.strip = 1 if source.kind == "scan" else None
     items, calibration = _strips_of(args, source)
@@ -239,11 +323,10 @@ def _export_plot(args: argparse.Namespace, source: Source) -> Path:
     strip = item.strip if hasattr(item, "strip") else item
     label = f"snapshot {item.id}, lot {item.lot_id}" if hasattr(item, "strip") else \
         f"{Path(source.path).name}, strip {strip.index}"
+    if is_uncalibrated(calibration):
+        label += " (UNCALIBRATED direct mode)"
     plot = curve_plot(strip, valid_od=valid_range(calibration), title=f"Characteristic curve - {label}")
-    size = {"width_mm": args.width_mm, "height_mm": args.height_mm}
-    if kind == "png":
-        return save_plot_png(plot, args.output, dpi=args.dpi_out, **size)
-    return save_plot_svg(plot, args.output, **size)
+    return _save_plot(args, plot)
 
 
 def register(subparsers: Any) -> None:
@@ -256,10 +339,19 @@ def register(subparsers: Any) -> None:
         _add_analysis_arguments(p)
         _add_scan_arguments(p)
 
-    p = subparsers.add_parser("report", help="PDF report of a scan's strips or of archived snapshots",
+    def compare_options(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--compare", action="store_true",
+                       help="the SOURCEs are sets to compare, as for 'stripscan compare': scan:PATH[#1,3], "
+                            "snapshot:ID[,ID...] or lot:LOT")
+        p.add_argument("--tolerance", action="append", metavar="FIGURE=VALUE",
+                       help="with --compare: tolerance of B - A, as for 'stripscan compare'")
+
+    p = subparsers.add_parser("report", help="PDF report of a scan's strips, archived snapshots or a lot comparison",
                               description=_cmd_report.__doc__,
-                              epilog="SOURCE is a scan file or snapshot:ID[,ID...] (with --archive).")
-    p.add_argument("source", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
+                              epilog="SOURCE is a scan file or snapshot:ID[,ID...] (with --archive); with "
+                                     "--compare, two or more sets.")
+    p.add_argument("sources", nargs="+", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]; sets with --compare")
+    compare_options(p)
     p.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="the PDF to write")
     p.add_argument("--site", metavar="TEXT", help="site name for the page header")
     p.add_argument("--lot", metavar="ID", help="emulsion lot (labels a scan's pages)")
@@ -274,8 +366,12 @@ def register(subparsers: Any) -> None:
     p = subparsers.add_parser("export", help="CSV of steps or figures, PNG/SVG of a plot, JSON of a snapshot",
                               description=_cmd_export.__doc__)
     p.add_argument("kind", choices=("steps", "figures", "plot", "json"), help="what to export")
-    p.add_argument("source", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
+    p.add_argument("sources", nargs="+", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]; sets with --compare")
     p.add_argument("-o", "--output", required=True, metavar="FILE", help="the file to write")
+    compare_options(p)
+    p.add_argument("--chart", choices=("curve", "overlay", "delta-density", "delta-log-exposure"),
+                   help="which plot: a strip's curve (default), or with --compare the comparison's overlay "
+                        "(default), delta-density or delta-log-exposure")
     p.add_argument("--strip", type=int, metavar="N", help="only strip N of a scan (plot: default 1)")
     p.add_argument("--format", choices=("png", "svg"), help="plot format (default: from the file's suffix)")
     p.add_argument("--width-mm", type=float, default=160.0, metavar="W", help="plot width, mm (160)")

@@ -140,3 +140,17 @@ def calibration_lines(calibration: dict[str, Any] | None, digest: str | None = N
     if full and calibration.get("note"):
         lines.append(("Note", str(calibration["note"])))
     return lines
+
+
+def calibration_brief(calibration: dict[str, Any] | None, digest: str | None = None) -> str:
+    """The provenance on one line (for pages that name several calibrations)."""
+    if calibration is None:
+        return "calibration NOT RECORDED: do not rely on these densities"
+    if is_uncalibrated(calibration):
+        return "NONE - uncalibrated direct mode (log10(I0/I) from the scanner, not traced to a step tablet)"
+    lines = dict(calibration_lines(calibration, digest))
+    parts = [lines["Calibration id"].split(";")[0], f"tablet scan {lines['Tablet scan']}"]
+    if "Certificate" in lines:
+        parts.append(f"certificate {lines['Certificate']}")
+    parts += [f"calibrated {lines['Calibrated on']}", lines["Density range"], f"residual RMS {lines['Residual RMS']}"]
+    return "; ".join(parts)

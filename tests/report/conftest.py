@@ -42,6 +42,12 @@ def lot_a(demo: Any, calibration: Calibration) -> Analysis:
     return analyze_scan(demo.lot_a_scan, calibration=calibration)
 
 
+@pytest.fixture(scope="session")
+def lot_b(demo: Any, calibration: Calibration) -> Analysis:
+    """The demo's three strips of lot B (the new lot), analysed like lot A."""
+    return analyze_scan(demo.lot_b_scan, calibration=calibration)
+
+
 @pytest.fixture
 def archive(tmp_path: Path, lot_a: Analysis, calibration: Calibration) -> Iterator[Archive]:
     """An archive holding the demo's lot A strips (snapshots 1-3), with its lot, processor and calibration."""
