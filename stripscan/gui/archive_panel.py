@@ -43,6 +43,7 @@ from .figures_panel import VALUE_ROLE
 from .save_snapshot_dialog import CalibrationLike, SaveSnapshotDialog
 from .style import strip_colour
 from .tables import STEP_COLUMNS, figure_rows, step_rows
+from .tasks import TaskRunner
 from .trend_view import TrendView
 
 __all__ = ["ArchivePanel", "SnapshotView", "SnapshotRecord", "read_snapshot", "provenance_rows", "status_text"]
@@ -360,15 +361,25 @@ class ArchivePanel(QWidget):
     -------
     snapshot_opened(int)
         Id of the snapshot just shown.
+    demo_ready(str)
+        Path of a demo archive just built and shown (see :meth:`build_demo`).
+
+    Attributes
+    ----------
+    runner : TaskRunner
+        Runs the demo build off the UI thread; its ``busy_changed`` and
+        ``progress`` signals can drive a progress bar.
     """
 
     snapshot_opened = Signal(int)
+    demo_ready = Signal(str)
 
     def __init__(self, archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.archive_path = Path(archive_path) if archive_path is not None else None
         self.lot_summaries: list[LotSummary] = []
         self.snapshots: list[SnapshotSummary] = []
+        self.runner = TaskRunner(self)
         self.where = QLabel()
         self.where.setWordWrap(True)
         self.where.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -547,3 +558,23 @@ class ArchivePanel(QWidget):
     def _saved(self, lot: str, ids: list[int]) -> None:
         self.refresh()
         self.select_lot(lot)
+
+    def build_demo(self, folder: str | os.PathLike[str]) -> None:
+        """Build the invented demo archive in ``folder`` (a worker thread, ~10 s) and show it.
+
+        The user's own archive is never touched: the builder refuses its
+        folder.  ``demo_ready`` follows when the archive is shown.
+        """
+        from ..archive.demo import build_demo_archive
+
+        self.where.setText(f"Building the demo archive in {folder}…")
+        self.runner.start(build_demo_archive, Path(folder), key="demo", on_done=self._demo_built,
+                          on_error=lambda exc: self._demo_failed(exc))
+
+    def _demo_built(self, path: Path) -> None:
+        self.set_archive(path)
+        self.demo_ready.emit(str(path))
+
+    def _demo_failed(self, error: BaseException) -> None:
+        self.refresh()
+        report_error(self, "The demo archive was not built", error)

@@ -304,3 +304,22 @@ def test_a_damaged_archive_gives_a_message_not_a_crash(qtbot, tmp_path: Path) ->
     assert shown and all(str(path) in box.text() for box in shown)
     assert widget.lots.rowCount() == 0
     assert not widget.open_snapshot(1)
+
+
+def test_the_demo_archive_is_built_off_the_ui_thread_and_shown(qtbot, tmp_path: Path) -> None:
+    widget = ArchivePanel(None)
+    qtbot.addWidget(widget)
+    with qtbot.waitSignal(widget.demo_ready, timeout=120_000) as ready:
+        widget.build_demo(tmp_path)
+        assert widget.runner.busy  # the window stays responsive meanwhile
+    path = Path(ready.args[0])
+    assert widget.archive_path == path and path.parent == tmp_path
+    with Archive.open(path, read_only=True) as archive:
+        counts = [s.snapshot_count for s in archive.list_lots()]
+    assert [int(widget.lots.item(k, 2).text()) for k in range(widget.lots.rowCount())] == counts
+    # A second build into the same place is refused with a message, and the shown archive stays.
+    widget.build_demo(tmp_path)
+    qtbot.waitUntil(lambda: not widget.runner.busy, timeout=10_000)
+    qtbot.waitUntil(lambda: bool(messages(widget)), timeout=5000)
+    assert "already exists" in messages(widget)[0].text()
+    assert widget.archive_path == path
