@@ -93,6 +93,8 @@ class TrendView(QWidget):
         self.plot.showGrid(x=True, y=True, alpha=0.15)
         self.plot.setMenuEnabled(False)
         self.plot.setLabel("bottom", "Film date (processing)")
+        # Densities read as OD: a "(x0.001)" scale on the axis would hide the unit people know.
+        self.plot.getAxis("left").enableAutoSIPrefix(False)
         self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt")
         self.empty = QLabel()
         self.empty.setStyleSheet("color: #8a4b00")
