@@ -11,9 +11,9 @@ Scenario
 Fernhill District Hospital's breast imaging unit processes its QC film in
 "Processor 1" (basement darkroom).  The medical physicist, M. Arden, keeps a
 21-step reference tablet with a calibration certificate.  The unit is
-changing from emulsion lot M-2610-A to lot M-2702-B of its invented "Type M"
-single-emulsion film; three strips of each lot were exposed on sensitometer
-SEN-01 and processed together.  A week of daily QC strips (2-8 November
+changing from emulsion lot M-2610-A to lot M-2702-B (received 20 October
+2026) of its invented "Type M" single-emulsion film; three strips of each
+lot were exposed on sensitometer SEN-01 and processed together.  A week of daily QC strips (2-8 November
 2026), read by technologist J. Solberg, shows the processor drifting a
 little as its developer ages.
 """
@@ -40,7 +40,7 @@ SCENARIO = {
     "film_type": "Type M single-emulsion QC film (invented)",
     "lots": {
         "M-2610-A": {"received": "2026-10-12", "expiry": "2027-10-31", "note": "current lot"},
-        "M-2702-B": {"received": "2026-11-20", "expiry": "2028-02-28", "note": "new lot under acceptance"},
+        "M-2702-B": {"received": "2026-10-20", "expiry": "2028-02-28", "note": "new lot under acceptance"},
     },
     "processor": {
         "name": "Processor 1",

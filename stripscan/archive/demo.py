@@ -8,8 +8,9 @@ is the real pipeline's reading of a simulated scan, so the archive holds
 exactly what a person would have stored by scanning the same film.
 
 The story: lot M-2610-A is the unit's current lot and is checked every week
-from 13 October 2026; lot M-2702-B arrives in November and is checked every
-week from 24 November, the two overlapping for two weeks.  The processor's
+from 13 October 2026; lot M-2702-B arrives on 20 October and is checked every
+week from 27 October, the two running side by side for six weeks up to
+1 December 2026 (nothing is dated after that).  The processor's
 developer tires slowly (speed point creeping up, contrast falling, fog
 rising) until it is changed on 17 November.  One reading was corrected by
 a revision (a dusty step left off the curve); one strip of the new lot was
@@ -68,7 +69,7 @@ SENSITOMETER = str(SCENARIO["sensitometer"]["id"])
 #: The day the processor's developer is renewed; the drift starts again.
 CHEMISTRY_CHANGE = dt.date(2026, 11, 17)
 
-_WEEKS = {"M-2610-A": (dt.date(2026, 10, 13), 8), "M-2702-B": (dt.date(2026, 11, 24), 6)}
+_WEEKS = {"M-2610-A": (dt.date(2026, 10, 13), 8), "M-2702-B": (dt.date(2026, 10, 27), 6)}
 _PHYSICIST, _TECHNOLOGIST = str(SCENARIO["physicist"]), str(SCENARIO["technologist"])
 # The sensitometer's step count is known, so the pipeline is told rather than left to count.
 _OPTIONS = AnalysisOptions(n_steps=int(SCENARIO["sensitometer"]["steps"]))

@@ -324,10 +324,12 @@ class Calibration:
     flat_field_sha256: str | None = None
     note: str = ""
     _interp: Any = field(default=None, compare=False, repr=False)
+    _deriv: Any = field(default=None, compare=False, repr=False)
 
     def __post_init__(self) -> None:
         interp = PchipInterpolator(np.asarray(self.log_signal), np.asarray(self.od), extrapolate=False)
         object.__setattr__(self, "_interp", interp)
+        object.__setattr__(self, "_deriv", interp.derivative())
 
     # -- using the map ---------------------------------------------------
     def density(self, signal: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
@@ -363,7 +365,7 @@ class Calibration:
         x = math.log10(max(signal, 1e-9))
         knots_x = np.asarray(self.log_signal)
         x = float(np.clip(x, knots_x[0], knots_x[-1]))
-        return abs(float(self._interp.derivative()(x)))
+        return abs(float(self._deriv(x)))
 
     def summary(self) -> dict[str, Any]:
         """The few fields every result carries about its calibration."""
