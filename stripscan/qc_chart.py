@@ -193,19 +193,24 @@ def chart_legend(data: ChartData) -> Sequence[str]:
 
 
 def ensure_app() -> Any:
-    """The running Qt application, or a new ``QGuiApplication`` (offscreen when there is no display)."""
+    """The running Qt application, or a new one (offscreen when there is no display).
+
+    A widgets ``QApplication`` is made rather than a bare ``QGuiApplication``:
+    it draws the same, and a window or a widget test started later in the
+    same process needs one.
+    """
     global _APP
     if "PySide6.QtGui" not in sys.modules and not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):
         # Qt picks its platform once, when it starts; decide before that.
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-    from PySide6.QtGui import QGuiApplication
+    from PySide6.QtWidgets import QApplication
 
     from stripscan.gui import qtguard  # noqa: F401  (a binding that leaks None needs this before drawing)
 
-    app = QGuiApplication.instance()
+    app = QApplication.instance()
     if app is None:
         # Kept: Qt must outlive every image drawn with its fonts.
-        _APP = app = QGuiApplication(["stripscan-qc-chart"])
+        _APP = app = QApplication(["stripscan-qc-chart"])
     return app
 
 

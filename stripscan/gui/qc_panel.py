@@ -1,0 +1,341 @@
+"""The processor QC panel: a processor's deviation plots, today's status, and a form for a typed day.
+
+A standalone ``QWidget`` over the archive file: it opens the archive for
+each read or write and keeps no connection, so the command line (or
+another window) may write meanwhile; :meth:`QcPanel.refresh` shows what is
+stored now.  Every number and verdict comes from :mod:`stripscan.qc_log`
+and the pure core; the panel only draws them, with the same marks as the
+PNG chart (:data:`stripscan.qc_chart.MARKS`: shape *and* colour).
+"""
+
+from __future__ import annotations
+
+import datetime
+import html
+import logging
+import os
+from pathlib import Path
+from typing import Any
+
+import pyqtgraph as pg
+from PySide6.QtCore import QDate, Qt, Signal
+from PySide6.QtGui import QBrush, QColor, QPen
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDateEdit,
+    QDoubleSpinBox,
+    QFormLayout,
+    QGraphicsRectItem,
+    QGroupBox,
+    QHBoxLayout,
+    QLabel,
+    QLineEdit,
+    QPushButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from . import qtguard  # noqa: F401  (before any signal is emitted)
+from ..archive import Archive, ArchiveError
+from ..core.qc import QUANTITIES, QCValues
+from ..qc_chart import BANDS, MARKS, ChartData, ChartSeries, chart_data, describe_rule, y_span
+from ..qc_log import LABELS, VERDICT_WORDS, add_day, load_processor_log, status_text
+
+__all__ = ["QcPanel", "DayAxis"]
+
+log = logging.getLogger(__name__)
+
+# pyqtgraph's names for the chart's shapes.
+_SYMBOLS = {"circle": "o", "triangle": "t1", "diamond": "d"}
+_GLYPHS = {"ok": "\u25cf", "warning": "\u25b2", "action": "\u25c6"}
+
+
+class DayAxis(pg.AxisItem):
+    """A bottom axis whose values are days counted from ``first``, labelled '2 Nov'."""
+
+    def __init__(self, first: datetime.date | None = None) -> None:
+        super().__init__(orientation="bottom")
+        self.first = first or datetime.date.today()
+
+    def tickStrings(self, values: Any, scale: float, spacing: float) -> list[str]:  # noqa: N802 (Qt name)
+        out = []
+        for v in values:
+            day = self.first + datetime.timedelta(days=round(v))
+            out.append(f"{day.day} {day.strftime('%b')}" if abs(v - round(v)) < 1e-6 else "")
+        return out
+
+
+class QcPanel(QWidget):
+    """A processor's QC: three stacked deviation plots, today's status and a form for a typed day.
+
+    Parameters
+    ----------
+    archive_path : path-like, optional
+        The archive file; :meth:`set_archive` may give it later.
+    parent : QWidget, optional
+
+    Signals
+    -------
+    sigDayAdded(str, str)
+        Processor and date (``YYYY-MM-DD``) of a day stored through the form.
+    """
+
+    sigDayAdded = Signal(str, str)
+
+    def __init__(self, archive_path: str | os.PathLike[str] | None = None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.archive_path: Path | None = None
+        self.data: ChartData | None = None
+        self.processor_box = QComboBox()
+        self.processor_box.currentTextChanged.connect(self._processor_chosen)
+        self.refresh_button = QPushButton("Reload")
+        self.refresh_button.clicked.connect(self.refresh)
+        self.status_label = QLabel()
+        self.status_label.setWordWrap(True)
+        self.status_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.status_label.setTextFormat(Qt.TextFormat.RichText)
+        self.graphics = pg.GraphicsLayoutWidget()
+        self.graphics.setBackground("w")
+        self.axes = {q: DayAxis() for q in QUANTITIES}
+        self.plots: dict[str, pg.PlotItem] = {}
+        for row, q in enumerate(QUANTITIES):
+            plot = self.graphics.addPlot(row=row, col=0, axisItems={"bottom": self.axes[q]})
+            plot.setLabel("left", f"{LABELS[q]} \u0394 (OD)")
+            plot.showGrid(x=False, y=True, alpha=0.25)
+            plot.setMenuEnabled(False)
+            # Deviations are read in OD; a "x0.001" scale would hide the limits' own numbers.
+            plot.getAxis("left").enableAutoSIPrefix(False)
+            if self.plots:
+                plot.setXLink(self.plots[QUANTITIES[0]])
+            self.plots[q] = plot
+        self.scatter: dict[str, pg.ScatterPlotItem] = {}
+        layout = QVBoxLayout(self)
+        top = QHBoxLayout()
+        top.addWidget(QLabel("Processor:"))
+        top.addWidget(self.processor_box, 1)
+        top.addWidget(self.refresh_button)
+        layout.addLayout(top)
+        layout.addWidget(self.status_label)
+        layout.addWidget(self.graphics, 1)
+        layout.addWidget(self._make_form())
+        if archive_path is not None:
+            self.set_archive(archive_path)
+
+    # ----------------------------------------------------------- the form
+
+    def _make_form(self) -> QGroupBox:
+        box = QGroupBox("Add a day's values read on a densitometer")
+        form = QFormLayout(box)
+        self.date_edit = QDateEdit()
+        self.date_edit.setCalendarPopup(True)
+        self.date_edit.setDisplayFormat("yyyy-MM-dd")
+        self.date_edit.setDate(QDate.currentDate())
+        form.addRow("Date processed", self.date_edit)
+        self.value_edits: dict[str, QDoubleSpinBox] = {}
+        for q, start in zip(QUANTITIES, (0.20, 1.20, 1.80)):
+            spin = QDoubleSpinBox()
+            spin.setRange(0.0, 5.0)
+            spin.setDecimals(3)
+            spin.setSingleStep(0.01)
+            spin.setValue(start)
+            spin.setSuffix(" OD")
+            self.value_edits[q] = spin
+            form.addRow(LABELS[q].capitalize(), spin)
+        self.note_edit = QLineEdit()
+        self.note_edit.setPlaceholderText("remark for the day (optional)")
+        self.action_edit = QLineEdit()
+        self.action_edit.setPlaceholderText("corrective action taken (optional)")
+        form.addRow("Note", self.note_edit)
+        form.addRow("Corrective action", self.action_edit)
+        self.add_button = QPushButton("Add day")
+        self.add_button.clicked.connect(self.add_typed_day)
+        self.form_message = QLabel()
+        self.form_message.setWordWrap(True)
+        form.addRow(self.add_button, self.form_message)
+        return box
+
+    def add_typed_day(self) -> bool:
+        """Store the form's values for the chosen processor; True when stored.
+
+        A refused day (duplicate, out of order, bad number) is explained
+        under the button and nothing is stored.
+        """
+        processor = self.processor_box.currentText()
+        if self.archive_path is None or not processor:
+            self._form_error("choose an archive and a processor first")
+            return False
+        day = self.date_edit.date().toPython()
+        values = QCValues(*(self.value_edits[q].value() for q in QUANTITIES))
+        try:
+            with Archive.open(self.archive_path, create=False) as archive:
+                add_day(archive, processor, day, values=values, note=self.note_edit.text().strip(),
+                        action=self.action_edit.text().strip())
+        except (ArchiveError, ValueError, OSError) as exc:
+            self._form_error(str(exc))
+            return False
+        log.info("QC day %s stored for %r from the panel", day, processor)
+        self.form_message.setStyleSheet("color: #1b5e20")
+        self.form_message.setText(f"Stored {day.isoformat()}.")
+        self.note_edit.clear()
+        self.action_edit.clear()
+        self.show_processor(processor)
+        self.sigDayAdded.emit(processor, day.isoformat())
+        return True
+
+    def _form_error(self, message: str) -> None:
+        self.form_message.setStyleSheet("color: #b71c1c")
+        self.form_message.setText(f"Not stored: {message}")
+
+    # ------------------------------------------------------------ reading
+
+    def set_archive(self, path: str | os.PathLike[str]) -> None:
+        """Show the processors of the archive at ``path``."""
+        self.archive_path = Path(path)
+        self.refresh()
+
+    def refresh(self) -> None:
+        """Read the processor list and the shown processor's log again."""
+        current = self.processor_box.currentText()
+        names: list[str] = []
+        if self.archive_path is not None:
+            try:
+                with Archive.open(self.archive_path, create=False) as archive:
+                    names = [p.name for p in archive.list_processors()]
+            except ArchiveError as exc:
+                self._show_message(f"Cannot read the archive: {exc}")
+                return
+        self.processor_box.blockSignals(True)
+        self.processor_box.clear()
+        self.processor_box.addItems(names)
+        self.processor_box.blockSignals(False)
+        if current in names:
+            self.processor_box.setCurrentText(current)
+        self.show_processor(self.processor_box.currentText() or None)
+
+    def _processor_chosen(self, name: str) -> None:
+        self.show_processor(name or None)
+
+    def show_processor(self, processor: str | None) -> None:
+        """Draw ``processor``'s log and status (None: clear)."""
+        for plot in self.plots.values():
+            plot.clear()
+        self.scatter.clear()
+        self.data = None
+        if processor is None or self.archive_path is None:
+            self._show_message("No processor chosen.")
+            return
+        if self.processor_box.currentText() != processor:
+            self.processor_box.blockSignals(True)
+            self.processor_box.setCurrentText(processor)
+            self.processor_box.blockSignals(False)
+        try:
+            with Archive.open(self.archive_path, create=False) as archive:
+                plog = load_processor_log(archive, processor)
+        except (ArchiveError, ValueError) as exc:
+            self._show_message(f"Cannot read the QC log of {processor!r}: {exc}")
+            return
+        latest = plog.latest_entry
+        self.date_edit.setDate(QDate(latest.date + datetime.timedelta(days=1)) if latest else QDate.currentDate())
+        self.status_label.setText(self._status_html(plog))
+        if not plog.log.entries:
+            return
+        self.data = chart_data(plog)
+        for series in self.data.series:
+            self._draw(series, self.data)
+
+    def _show_message(self, text: str) -> None:
+        self.status_label.setText(html.escape(text))
+
+    @staticmethod
+    def _status_html(plog: Any) -> str:
+        status = plog.status()
+        if status.baseline_in_progress:
+            head, colour, glyph = "BASELINE IN PROGRESS", "#444444", ""
+        else:
+            head, colour, glyph = VERDICT_WORDS[status.verdict], MARKS[status.verdict][0], _GLYPHS[status.verdict]
+        lines = status_text(plog, status).splitlines()
+        body = "<br>".join(html.escape(line.strip()) for line in lines[1:])
+        when = status.latest_date.isoformat() if status.latest_date else "no strip yet"
+        return (f"<b style='color:{colour}; font-size:13pt'>{glyph} {html.escape(plog.processor)}: {head}</b> "
+                f"<span>(latest strip {when})</span><br>{body}")
+
+    # ------------------------------------------------------------ drawing
+
+    def _x(self, day: datetime.date) -> float:
+        assert self.data is not None
+        return float((day - self.data.first).days)
+
+    def _draw(self, series: ChartSeries, data: ChartData) -> None:
+        plot = self.plots[series.quantity]
+        self.axes[series.quantity].first = data.first
+        span = y_span(series)
+        x0, x1 = -0.5, (data.last - data.first).days + 0.5
+        up_a, low_a = series.action
+        up_w, low_w = series.warning
+        zones = [(up_a, span, "action"), (low_a, -span, "action") if low_a is not None else None,
+                 (up_w, up_a, "warning") if up_w is not None else None,
+                 (low_w, low_a, "warning") if low_w is not None and low_a is not None else None]
+        for zone in zones:
+            if zone is None or zone[0] is None:
+                continue
+            a, b, kind = zone
+            rect = QGraphicsRectItem(x0, min(a, b), x1 - x0, abs(b - a))
+            rect.setPen(QPen(Qt.PenStyle.NoPen))
+            rect.setBrush(QBrush(QColor(BANDS[kind])))
+            rect.setZValue(-10)
+            plot.addItem(rect)
+        for period in data.periods:
+            for day in period.baseline_dates:
+                if data.first <= day <= data.last:
+                    rect = QGraphicsRectItem(self._x(day) - 0.5, -span, 1.0, 2 * span)
+                    rect.setPen(QPen(Qt.PenStyle.NoPen))
+                    rect.setBrush(QBrush(QColor(0, 0, 0, 18)))
+                    rect.setZValue(-9)
+                    plot.addItem(rect)
+        plot.addItem(pg.InfiniteLine(0.0, angle=0, movable=False, pen=pg.mkPen("#555555", width=1.5)))
+        for limit, colour, style in ((up_a, "#B03A12", Qt.PenStyle.DashLine), (low_a, "#B03A12", Qt.PenStyle.DashLine),
+                                     (up_w, "#B7860B", Qt.PenStyle.DotLine), (low_w, "#B7860B", Qt.PenStyle.DotLine)):
+            if limit is not None:
+                plot.addItem(pg.InfiniteLine(limit, angle=0, movable=False, pen=pg.mkPen(colour, width=1.5, style=style)))
+        for day, label in data.events:
+            plot.addItem(pg.InfiniteLine(self._x(day) - 0.5, angle=90, movable=False, label=label.split(" on ")[0],
+                                         labelOpts={"position": 0.9, "color": "#333333"},
+                                         pen=pg.mkPen("#444444", width=1.5, style=Qt.PenStyle.DashDotLine)))
+        for period in data.periods:
+            pts = [p for p in series.points if period.first <= p.date <= period.last and p.deviation is not None]
+            if len(pts) > 1:
+                plot.addItem(pg.PlotDataItem([self._x(p.date) for p in pts], [p.deviation for p in pts],
+                                             pen=pg.mkPen("#888888", width=1)))
+        for row, finding in enumerate(f for f in data.findings if f.quantity == series.quantity):
+            y = -span * (0.95 - 0.065 * (row % 4))
+            days = [self._x(d) for d in finding.dates if data.first <= d <= data.last]
+            if days:
+                plot.addItem(pg.PlotDataItem([days[0] - 0.2, days[-1] + 0.2], [y, y],
+                                             pen=pg.mkPen("#8E4A7A", width=5)))
+                label = pg.TextItem(describe_rule(finding), color="#8E4A7A", anchor=(0, 0.5))
+                label.setPos(days[-1] + 0.35, y)
+                plot.addItem(label)
+        spots = []
+        for p in series.points:
+            if p.deviation is None:
+                continue
+            colour, shape, size, _ = MARKS[p.verdict or "ok"]
+            spots.append({"pos": (self._x(p.date), p.deviation), "symbol": _SYMBOLS[shape], "size": 2 * size + 2,
+                          "brush": pg.mkBrush(colour), "pen": pg.mkPen("#1A1A1A", width=1),
+                          "data": (p.date.isoformat(), p.verdict)})
+        scatter = pg.ScatterPlotItem(spots=spots, hoverable=True, tip=self._tip(series))
+        plot.addItem(scatter)
+        self.scatter[series.quantity] = scatter
+        plot.setYRange(-span, span, padding=0.02)
+        plot.setXRange(x0, x1, padding=0.01)
+
+    @staticmethod
+    def _tip(series: ChartSeries) -> Any:
+        values = {p.date.isoformat(): p.value for p in series.points}
+
+        def tip(x: float, y: float, data: Any) -> str:
+            day, verdict = data
+            words = VERDICT_WORDS.get(verdict, "baseline")
+            return f"{day}: {series.label} {values[day]:.3f} OD ({y:+.3f}), {words.lower()}"
+
+        return tip
