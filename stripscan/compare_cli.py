@@ -36,9 +36,13 @@ second set against the first, one entry per figure with ``a``, ``b``,
 against set 1) in the same shape, with ΔD(log E) and Δlog E(net density).
 
 ``crossover`` reads the old and the new QC film's strips at the steps the
-processor already uses, moves its operating levels by the mean difference
-(:func:`stripscan.core.qc.crossover`) and stores the crossover record and
-a ``crossover`` event in the processor's QC log together.
+processor already uses (kept in its QC log, :mod:`stripscan.qc_log`; chosen
+on the old film's mean densities when none are kept), moves its operating
+levels by the mean difference (:func:`stripscan.core.qc.crossover`: at
+least ``--strips`` strips of each film, as many old as new) and stores the
+crossover record and a ``crossover`` event with the new levels in the
+processor's QC log together: both or neither.  It refuses a second
+crossover on one day and a day before the log's latest entry.
 """
 
 from __future__ import annotations
@@ -78,6 +82,7 @@ __all__ = [
     "comparison_json",
     "format_comparisons",
     "levels_in_force",
+    "tolerances_from_args",
     "store_crossover",
     "register",
 ]
@@ -348,7 +353,8 @@ def comparison_json(comparisons: Sequence[Comparison], notes: Sequence[str] = ()
     }
 
 
-def _tolerances(items: Sequence[str] | None) -> dict[str, Tolerance]:
+def tolerances_from_args(items: Sequence[str] | None) -> dict[str, Tolerance]:
+    """The default tolerances changed by ``--tolerance FIGURE=VALUE`` items (``VALUE`` ``none`` drops one)."""
     tolerances = dict(DEFAULT_TOLERANCES)
     names = [f for f in FIGURES if f != "relative_speed_percent"]
     for item in items or ():
@@ -361,6 +367,10 @@ def _tolerances(items: Sequence[str] | None) -> dict[str, Tolerance]:
         else:
             tolerances[figure] = Tolerance.parse(value)
     return tolerances
+
+
+#: The name the report commands first imported; kept so they keep working.
+_tolerances = tolerances_from_args
 
 
 def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
@@ -382,7 +392,7 @@ def cmd_compare(args: argparse.Namespace) -> int:
     if len(args.sets) < 2:
         raise CompareError(f"compare needs at least two sets, got {len(args.sets)}: {args.sets[0]}")
     specs = [parse_set(text) for text in args.sets]
-    tolerances = _tolerances(args.tolerance)
+    tolerances = tolerances_from_args(args.tolerance)
     with SetLoader(args.archive, calibration_path=args.calibration, n_steps=args.steps) as loader:
         sets = [loader.load(spec) for spec in specs]
     comparisons = compare_sets(sets, tolerances=tolerances)
@@ -404,88 +414,58 @@ def _parse_date(text: str) -> datetime.date:
         raise argparse.ArgumentTypeError(f"{text!r} is not a date YYYY-MM-DD") from None
 
 
-def levels_in_force(archive: Any, processor: str, date: datetime.date) -> tuple[Any, str]:
+def levels_in_force(archive: Any, processor: str, date: datetime.date, *,
+                    log: Any = None) -> tuple[Any, Any, str]:
     """The operating levels a processor's QC film is judged against on ``date``.
 
-    Rebuilds the processor's QC log from the archive (entries, events, and
-    the levels earlier crossovers stored) and takes the levels of its latest
-    period up to ``date`` (:class:`stripscan.core.qc.QCLog`).  When the log
-    sets none, the processor's QC settings may: ``{"levels": ...}`` in the
-    form of :meth:`OperatingLevels.to_dict`, used only when established
-    after the log's latest event.
+    Reads the processor's QC log from the archive
+    (:func:`stripscan.qc_log.load_processor_log`: entries, events, the levels
+    earlier crossovers stored, the site's settings) and takes the levels of
+    its latest period up to ``date``.
+
+    ``log`` is the processor's log when already read.
 
     Returns
     -------
     levels : OperatingLevels
+    log : stripscan.qc_log.ProcessorLog
+        The whole log, for its settings and QC steps.
     source : str
-        Where they came from, in plain words.
+        Where the levels came from, in plain words.
 
     Raises
     ------
     ValueError
-        When neither gives levels (baseline not complete, none stored).
+        When the log sets no levels on ``date`` (baseline not complete).
     """
-    from .core.qc import EVENT_KINDS, OperatingLevels, QCEntry, QCEvent, QCLog, QCValues
+    from .qc_log import load_processor_log
 
-    day = date.isoformat()
-    crossover_levels = {}
-    for record in archive.list_crossovers(processor):
-        levels = record.record.get("result", {}).get("new_levels")
-        if levels is not None:
-            crossover_levels[record.date] = OperatingLevels.from_dict(levels)
-    entries = [
-        QCEntry(datetime.date.fromisoformat(e.date), QCValues(e.base_fog, e.mid_density, e.density_difference),
-                e.source, e.note, e.action)
-        for e in archive.list_qc_entries(processor, until=day)
-        if None not in (e.base_fog, e.mid_density, e.density_difference)
-    ]
-    events = [
-        QCEvent(datetime.date.fromisoformat(e.date), e.kind if e.kind in EVENT_KINDS else "other", e.note,
-                crossover_levels.get(e.date) if e.kind == "crossover" else None)
-        for e in archive.list_qc_events(processor) if e.date <= day
-    ]
-    log = QCLog(entries=tuple(entries), events=tuple(events))
-    period = log.periods[-1] if log.periods else None
-    if period is not None and period.levels is not None:
-        return period.levels, f"the QC log ({period.levels.reason}, {period.levels.established.isoformat()})"
-    settings = archive.get_qc_settings(processor)
-    stored = settings.settings.get("levels") if settings is not None else None
-    if stored is not None:
-        try:
-            levels = OperatingLevels.from_dict(stored)
-        except (ValueError, KeyError, TypeError) as exc:
-            raise ValueError(f"processor {processor!r}: the stored QC settings' levels cannot be read: {exc}") from None
-        latest_event = events[-1].date if events else None
-        if latest_event is None or levels.established >= latest_event:
-            return levels, f"the processor's QC settings (established {levels.established.isoformat()})"
-    if period is not None and period.event is not None:
-        why = (f"the baseline since the {period.event.label} is not complete "
-               f"({len(period.days)} of {log.n_days} days)")
-    elif period is not None:
-        why = f"its baseline is not complete ({len(period.days)} of {log.n_days} days)"
+    log = log if log is not None else load_processor_log(archive, processor)
+    status = log.status(date)
+    if status.levels is not None:
+        levels = status.levels
+        return levels, log, f"the QC log ({levels.reason}, {levels.established.isoformat()})"
+    if status.baseline_in_progress and status.baseline_days:
+        why = f"its baseline is not complete ({status.baseline_days} of {status.baseline_needed} days)"
     else:
-        why = "it has no QC entries, events or stored levels"
-    raise ValueError(f"processor {processor!r} has no operating levels to cross over from on {day}: {why}; "
-                     "establish them first")
+        why = "it has no QC strips or levels in the log"
+    raise ValueError(f"processor {processor!r} has no operating levels to cross over from on "
+                     f"{date.isoformat()}: {why}; establish them first (stripscan qc)")
 
 
-def _steps_in_use(archive: Any, processor: str, levels: Any, old: StripSet) -> tuple[Any, str]:
-    from .core.qc import QCSteps, choose_qc_steps
+def _steps_in_use(log: Any, levels: Any, old: StripSet, date: datetime.date) -> tuple[Any, str]:
+    from .core.qc import choose_qc_steps
 
+    steps = log.steps_on(date)
+    if steps is not None:
+        return steps, "the QC steps kept in the processor's log"
     if levels.steps is not None:
         return levels.steps, "the steps kept with the operating levels"
-    settings = archive.get_qc_settings(processor)
-    stored = settings.settings.get("steps") if settings is not None else None
-    if stored is not None:
-        try:
-            return QCSteps.from_dict(stored), "the processor's QC settings"
-        except (ValueError, KeyError, TypeError) as exc:
-            raise ValueError(f"processor {processor!r}: the stored QC steps cannot be read: {exc}") from None
     try:
         steps = choose_qc_steps(list(mean_step_densities(old.strips)))
     except ValueError as exc:
         raise ValueError(f"set {old.name!r}: the QC steps cannot be chosen on the old film: {exc}") from None
-    return steps, f"chosen now on the old film's mean densities (none were stored for {processor!r})"
+    return steps, f"chosen now on the old film's mean densities (none were kept for {log.processor!r})"
 
 
 def store_crossover(archive: Any, processor: str, date: str, record: dict[str, Any],
@@ -561,6 +541,7 @@ def cmd_crossover(args: argparse.Namespace) -> int:
     """Move a processor's operating levels to a new box of QC film."""
     from .archive import Archive, default_archive_path
     from .core.qc import crossover
+    from .qc_log import load_processor_log
 
     if args.strips < 1:
         raise SetError(f"--strips must be 1 or more, got {args.strips}")
@@ -569,11 +550,16 @@ def cmd_crossover(args: argparse.Namespace) -> int:
     old_spec, new_spec = parse_set(args.old), parse_set(args.new)
     path = args.archive if args.archive is not None else default_archive_path()
     with Archive.open(path, create=False) as archive:
-        archive.get_processor(args.processor)
+        log = load_processor_log(archive, args.processor)
         earlier = [c for c in archive.list_crossovers(args.processor) if c.date == day]
         if earlier:
             raise SetError(f"processor {args.processor!r} already has a crossover on {day} (record "
                            f"{earlier[-1].id}); nothing was stored")
+        latest = log.latest_entry
+        if latest is not None and date < latest.date:
+            # As the QC log's own events: an earlier event would re-judge days already reported.
+            raise SetError(f"the crossover of {day} is before the latest QC entry of processor {args.processor!r} "
+                           f"({latest.date.isoformat()}); it would re-judge days already reported")
         loader = SetLoader(calibration_path=args.calibration, n_steps=args.steps, archive=archive)
         old = loader.load(old_spec, processor=args.processor, date=day)
         new = loader.load(new_spec, processor=args.processor, date=day)
@@ -583,13 +569,13 @@ def cmd_crossover(args: argparse.Namespace) -> int:
         if n_old != n_new:
             raise SetError(f"set {new.name!r} has {n_new}-step strips but set {old.name!r} has {n_old}-step "
                            "strips; cross over with strips of the same sensitometer")
-        levels, levels_from = levels_in_force(archive, args.processor, date)
-        steps, steps_from = _steps_in_use(archive, args.processor, levels, old)
+        levels, log, levels_from = levels_in_force(archive, args.processor, date, log=log)
+        steps, steps_from = _steps_in_use(log, levels, old, date)
         levels = levels if levels.steps is not None else dataclasses.replace(levels, steps=steps)
         old_values, new_values = _qc_values(old, steps), _qc_values(new, steps)
         try:
             result = crossover(old_values, new_values, levels, date=date, base_fog_rule=args.base_fog_rule,
-                               n_required=args.strips)
+                               n_required=args.strips, limits=log.setup.limits)
         except ValueError as exc:
             raise SetError(f"crossover of {old.name} to {new.name}: {exc}") from None
         record = {

@@ -20,7 +20,9 @@ from stripscan.core.calibration import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult
+from stripscan.core.qc import QCSteps
 from stripscan.demo_data import SCENARIO, demo_files
+from stripscan.qc_log import QcSetup, StepChoice
 
 PROCESSOR = SCENARIO["processor"]["name"]
 LOT_A, LOT_B, LOT_ODD = "M-2610-A", "M-2702-B", "M-2703-C"
@@ -93,7 +95,9 @@ def crossover_archive(path: Path, *, daily: bool = True, steps: bool = True) -> 
             for k, (bf, md, dd) in enumerate(DAILY):
                 archive.add_qc_entry(QcEntry(PROCESSOR, f"2026-11-{2 + k:02d}", bf, md, dd, "manual"))
         if steps:
-            archive.set_qc_settings(PROCESSOR, {"steps": STEPS})
+            # Kept as the QC log keeps the steps chosen at baseline.
+            choice = StepChoice(datetime.date(2026, 11, 2), QCSteps.from_dict(STEPS), "baseline strip")
+            archive.set_qc_settings(PROCESSOR, QcSetup(step_choices=(choice,)).to_settings())
     return path
 
 
@@ -251,7 +255,7 @@ def test_crossover_end_to_end_into_the_qc_log(capsys, tmp_path):
     assert "  base+fog                 0.190     0.210     +0.020      0.180      0.210" in out
     assert "  mid-density              1.200     1.260     +0.060      1.230      1.290" in out
     assert "  density difference       1.700     1.760     +0.060      1.720      1.780" in out
-    assert "steps from the processor's QC settings" in out and CAUTION in out
+    assert "steps from the QC steps kept in the processor's log" in out and CAUTION in out
     with Archive.open(path, read_only=True) as archive:
         (stored,) = archive.list_crossovers(PROCESSOR)
         (event,) = archive.list_qc_events(PROCESSOR)
@@ -263,7 +267,7 @@ def test_crossover_end_to_end_into_the_qc_log(capsys, tmp_path):
         assert (event.kind, event.date) == ("crossover", DAY)
         assert "mid-density 1.290" in event.note and f"crossover record {stored.id}" in event.note
         # The QC log now judges the processor against the crossover's levels.
-        after, source = levels_in_force(archive, PROCESSOR, datetime.date(2026, 11, 21))
+        after, _, source = levels_in_force(archive, PROCESSOR, datetime.date(2026, 11, 21))
         assert (after.mid_density, after.density_difference, after.base_fog) == pytest.approx((1.29, 1.78, 0.21))
         assert "crossover on 2026-11-20" in source
     code, _, err = run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}",
@@ -303,6 +307,8 @@ def test_crossover_stores_both_or_neither(capsys, tmp_path, monkeypatch):
     (("--date", "2026-11-21"), {}, "lot 'M-2610-A' has no current snapshots on processor 'Processor 1' dated "
                                    "2026-11-21"),
     (("--processor", "Processor 9"), {}, "processor 'Processor 9' is not in the archive"),
+    (("--old", "snapshot:1-5", "--new", "snapshot:6-10", "--date", "2026-11-05"), {},
+     "the crossover of 2026-11-05 is before the latest QC entry of processor 'Processor 1' (2026-11-06)"),
 ])
 def test_crossover_bad_input_stores_nothing(capsys, tmp_path, extra, setup, message):
     path = crossover_archive(tmp_path / "qc.sqlite3", **setup)
