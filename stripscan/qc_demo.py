@@ -18,13 +18,18 @@ Where the numbers come from
   stops clinical processing and corrects the replenishment (corrective
   action recorded that day); the repeat strip after the correction, the
   next morning before clinical films, is back within limits.
-* 12-22 and 24-30 November: typed in, as read on a densitometer at the same steps:
-  the exact densities of the film model plus a small reading scatter,
-  rounded to 0.01 OD.  From the 16th the mid-density creeps up each day
-  (too much replenisher after the correction), which fires the drift rule;
-  a service on the 23rd, with fresh chemistry, restarts the baseline (that
-  day's strip is a simulated scan again, and the steps are chosen anew),
-  which is complete on the 27th; the month ends within limits.
+* 12-16 November: typed in, as read on a densitometer at the same steps
+  (the exact densities of the film model plus day-to-day scatter, rounded
+  to 0.01 OD): the developer goes on tiring, more slowly.
+* 17 November: developer and fixer renewed (a ``new_chemistry`` event, on
+  the day the demo lot archive of :mod:`stripscan.archive.demo` records its
+  chemistry change); that day's strip is a simulated scan again and the
+  QC steps are chosen anew on it.
+* 18-30 November: typed in.  The new baseline is complete on the 21st and
+  the month ends within limits.
+
+Trend rules fire in the first week (a drift, a run, repeated warnings),
+as they should on a tiring developer.
 """
 
 from __future__ import annotations
@@ -48,11 +53,12 @@ __all__ = ["DEMO_PROCESSOR", "DemoDay", "DemoQcSummary", "demo_plan", "build_dem
 
 DEMO_PROCESSOR = SCENARIO["processor"]["name"]
 _START = datetime.date(2026, 11, 2)
-_SERVICE = datetime.date(2026, 11, 23)
+# The developer and fixer are renewed on the day the demo lot archive
+# (stripscan.archive.demo) records its chemistry change, so both tell one story.
+_RENEWED = datetime.date(2026, 11, 17)
 # Standard deviations of base+fog, mid-density and density difference from day to day, OD.
 _SCATTER = (0.003, 0.008, 0.010)
-_SERVICE_NOTE = ("Service brought forward after the mid-density drift: rollers and racks cleaned, replenishment "
-                 "rates reset, tanks refilled with fresh chemistry (M. Arden informed).")
+_RENEWAL_NOTE = "developer and fixer renewed"
 
 
 @dataclass(frozen=True)
@@ -100,16 +106,13 @@ def demo_plan() -> tuple[DemoDay, ...]:
                 "Repeat strip after the correction, before clinical films: within limits; clinical processing "
                 "resumed."),
     ]
-    for k in range(12, 23):
-        # From the 16th a little too much replenisher: the film gets faster each day.
-        creep = max(0, k - 15)
-        note = {20: "Mid-density higher every day this week; physicist informed.",
-                22: "Service booked for tomorrow."}.get(k, "")
-        days.append(DemoDay(datetime.date(2026, 11, k), "typed",
-                            _shifted(restored, log_e=-0.0055 * creep, slope=1 + 0.002 * creep), note))
+    for k in range(12, 17):
+        # The developer goes on tiring from where the correction left it, at half the pace.
+        note = "Developer and fixer renewal booked for tomorrow." if k == 16 else ""
+        days.append(DemoDay(datetime.date(2026, 11, k), "typed", daily_film(2 + 0.5 * (k - 11)), note))
     fresh = _shifted(daily_film(0), log_e=-0.01)
-    days.append(DemoDay(_SERVICE, "simulated scan", fresh, "First strip of the new baseline after the service."))
-    days += [DemoDay(datetime.date(2026, 11, k), "typed", fresh) for k in range(24, 31)]
+    days.append(DemoDay(_RENEWED, "simulated scan", fresh, "First strip of the new baseline after the renewal."))
+    days += [DemoDay(datetime.date(2026, 11, k), "typed", fresh) for k in range(18, 31)]
     return tuple(days)
 
 
@@ -182,12 +185,14 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
 
     known = {p.name for p in archive.list_processors()}
     if processor in known:
-        if archive.list_qc_entries(processor) or archive.list_qc_events(processor):
+        if archive.list_qc_entries(processor):
             raise ValueError(f"processor {processor!r} already has a QC log in {archive.path}; "
                              "build the demo in a new archive")
     else:
         details: dict[str, Any] = {k: v for k, v in SCENARIO["processor"].items() if k != "name"}
         archive.add_processor(Processor(processor, **details))
+    # The demo lot archive may have recorded the renewal already; it is not recorded twice.
+    events = {e.date for e in archive.list_qc_events(processor)} if processor in known else set()
     calibration = load_calibration(files.calibration)
     bundled = dict(files.daily_scans)
     plan = demo_plan()
@@ -196,8 +201,8 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
         folder = Path(scan_folder) if scan_folder is not None else Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
         for k, day in enumerate(plan):
-            if day.date == _SERVICE:
-                add_event(archive, processor, day.date, "service", _SERVICE_NOTE)
+            if day.date == _RENEWED and _RENEWED.isoformat() not in events:
+                add_event(archive, processor, day.date, "new_chemistry", _RENEWAL_NOTE)
             if day.how == "typed":
                 # The month starts with a scan, so steps have been chosen by now.
                 plog = load_processor_log(archive, processor)

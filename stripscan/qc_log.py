@@ -248,6 +248,18 @@ def _crossover_levels(archive: Archive, processor: str) -> dict[str, OperatingLe
     return levels
 
 
+# Words of free-text kinds other tools store (e.g. "chemistry change"), and the core's kind for them.
+_KIND_WORDS = (("chemistry", "new_chemistry"), ("service", "service"), ("crossover", "crossover"),
+               ("sensitometer", "new_sensitometer"), ("film", "new_film_type"))
+
+
+def _core_kind(kind: str) -> str:
+    if kind in EVENT_KINDS:
+        return kind
+    words = kind.lower().replace("_", " ")
+    return next((core for word, core in _KIND_WORDS if word in words), "other")
+
+
 def load_processor_log(archive: Archive, processor: str) -> ProcessorLog:
     """Read a processor's entries, events, crossovers and settings into a :class:`ProcessorLog`.
 
@@ -271,8 +283,8 @@ def load_processor_log(archive: Archive, processor: str) -> ProcessorLog:
     levels = _crossover_levels(archive, processor)
     events = []
     for e in archive.list_qc_events(processor):
-        kind = e.kind if e.kind in EVENT_KINDS else "other"
-        note = e.note if kind == e.kind else f"{e.kind}: {e.note}".rstrip(": ")
+        kind = _core_kind(e.kind)
+        note = f"{e.kind}: {e.note}".rstrip(": ") if kind == "other" and e.kind != "other" else e.note
         events.append(QCEvent(parse_day(e.date), kind, note, levels.get(e.date) if kind == "crossover" else None))
     log = QCLog(entries=tuple(entries), events=tuple(events), limits=setup.limits, rules=setup.rules,
                 n_days=setup.baseline_days)

@@ -15,10 +15,11 @@ import numpy as np
 import pytest
 
 from stripscan import CAUTION
-from stripscan.archive import Archive
+from stripscan.archive import Archive, Processor
 from stripscan.cli import main
 from stripscan.core.simulate import StripSpec, simulate_scan, write_tiff
 from stripscan.demo_data import daily_film, demo_files, scanner_for
+from stripscan.qc_log import load_processor_log
 
 P = "Darkroom B"
 
@@ -228,14 +229,16 @@ def test_scanned_days_keep_the_baseline_steps(capsys, archive, demo, tmp_path):
 @pytest.fixture(scope="module")
 def demo_archive(tmp_path_factory, demo) -> Path:
     path = tmp_path_factory.mktemp("demo") / "demo.sqlite3"
+    # As the demo lot archive leaves it: the processor known, its chemistry change recorded in free words.
+    with Archive.open(path) as archive:
+        archive.add_processor(Processor("Processor 1"))
+        archive.add_qc_event("Processor 1", "2026-11-17", "chemistry change", "developer and fixer renewed")
     assert main(["qc", "demo", "--archive", str(path)]) == 0
     return path
 
 
 def test_the_demo_month(capsys, demo_archive):
     with Archive.open(demo_archive, read_only=True) as opened:
-        from stripscan.qc_log import load_processor_log
-
         plog = load_processor_log(opened, "Processor 1")
         entries = opened.list_qc_entries("Processor 1")
     days = plog.log.days
@@ -247,14 +250,17 @@ def test_the_demo_month(capsys, demo_archive):
     repeat = days[days.index(acted[0]) + 1]
     assert repeat.verdict.verdict == "ok" and repeat.entry.note.startswith("Repeat strip after the correction")
     assert [e.source for e in entries].count("scan") == 11 and [e.source for e in entries].count("manual") == 18
-    assert [e.kind for e in plog.log.events] == ["service"]
-    assert any(f.rule == "drift" and f.quantity == "mid_density" and f.dates[-1] <= datetime.date(2026, 11, 22)
-               and f.dates[0] >= datetime.date(2026, 11, 12) for f in plog.log.findings)
+    # The chemistry change already stored is used, not recorded twice; it restarts the baseline.
+    assert [(e.date, e.kind) for e in plog.log.events] == [(datetime.date(2026, 11, 17), "new_chemistry")]
+    # A tiring developer: density difference falls on each strip (drift of 5, common practice, from memory).
+    assert any(f.rule == "drift" and f.quantity == "density_difference" and f.dates[-1] == acted[0].entry.date
+               for f in plog.log.findings)
     choices = plog.setup.step_choices
-    assert [c.since for c in choices] == [datetime.date(2026, 11, 2), datetime.date(2026, 11, 23)]
+    assert [c.since for c in choices] == [datetime.date(2026, 11, 2), datetime.date(2026, 11, 17)]
     data = status(capsys, demo_archive, "Processor 1")
     assert data["latest"]["verdict"] == "ok" and data["latest"]["date"] == "2026-11-30"
-    assert data["operating_levels"]["reason"] == "baseline after processor service on 2026-11-23"
+    assert data["operating_levels"]["reason"] == "baseline after new chemistry on 2026-11-17"
+    assert data["operating_levels"]["established"] == "2026-11-21"  # 5th strip after the change (FDA guidance)
     line = refused(capsys, "qc", "demo", "--archive", demo_archive)
     assert "already has a QC log" in line
 
