@@ -13,6 +13,10 @@ Functions for the desktop program
     One-page report of an archived snapshot.
 ``scan_report_pdf(analysis, path, calibration=...)``
     One page per strip of a scan analysis, no archive needed.
+``comparison_report_pdf(comparisons, path, calibrations=...)``
+    One page per compared pair of sets (from ``core.compare.compare_sets``).
+``qc_month_report_pdf(archive, processor, "YYYY-MM", path)``
+    A processor's month of QC: charts, then days and actions.
 ``export_steps_csv(strip, path)``, ``export_figures_csv(strips, path)``
     CSV tables (UTF-8, header row with units).
 ``export_snapshot_json(archive, snapshot_id, path)``
@@ -34,6 +38,8 @@ __all__ = [
     "ReportError",
     "snapshot_report_pdf",
     "scan_report_pdf",
+    "comparison_report_pdf",
+    "qc_month_report_pdf",
     "reports_from_analysis",
     "report_from_snapshot",
     "StripContext",
@@ -52,6 +58,8 @@ _HOMES = {
     "ReportError": "qtsetup",
     "snapshot_report_pdf": "snapshot",
     "scan_report_pdf": "snapshot",
+    "comparison_report_pdf": "comparison",
+    "qc_month_report_pdf": "qcmonth",
     "reports_from_analysis": "snapshot",
     "report_from_snapshot": "snapshot",
     "StripContext": "snapshot",

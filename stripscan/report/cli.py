@@ -23,11 +23,14 @@ Sources
     stripscan report snapshot:ID[,ID...] --archive PATH -o OUT.pdf [--site TEXT]
     stripscan report --compare SET SET [SET...] -o OUT.pdf [--archive PATH] [--calibration CAL.json]
                      [--tolerance FIGURE=VALUE ...]
+    stripscan report --qc PROCESSOR --month YYYY-MM --archive PATH -o OUT.pdf [--site TEXT]
 
 One A4 page per strip (a scan) or per snapshot; with ``--compare``, one
 page per pair (each later set against the first), the sets written as for
 ``stripscan compare`` (``scan:PATH[#1,3]``, ``snapshot:ID[,ID...]``,
-``lot:LOT``) and its ``--tolerance`` settings.  ``--lot``,
+``lot:LOT``) and its ``--tolerance`` settings; with ``--qc``, the month's
+processor QC (two pages: the three deviation charts, then the day table,
+actions, where the numbers came from and trend findings).  ``--lot``,
 ``--processor``, ``--operator`` and the dates only label a scan's pages;
 a snapshot's come from the archive.  ``--site`` names the site in the
 header (the archive does not keep one).
@@ -40,6 +43,8 @@ header (the archive does not keep one).
     stripscan export figures SOURCE -o OUT.csv
     stripscan export plot    SOURCE -o OUT.png|OUT.svg [--strip N] [--width-mm W] [--height-mm H] [--resolution D]
     stripscan export plot    --compare SET SET -o OUT.png|OUT.svg --chart overlay|delta-density|delta-log-exposure
+    stripscan export plot    --qc PROCESSOR --month YYYY-MM --archive PATH -o OUT.png|OUT.svg
+                             --chart base-fog|mid-density|density-difference
     stripscan export json    snapshot:ID --archive PATH -o OUT.json
 
 ``steps`` writes the step table (strip, step, log E, OD, sd, flags) of
@@ -48,7 +53,7 @@ every strip, or of strip N; ``figures`` one row of figures per strip;
 chosen by the file's suffix or ``--format``; ``json`` one snapshot in the
 archive's export form (``stripscan archive import`` reads it).  With
 ``--compare``, ``plot`` draws one of the comparison's charts (of the second
-set against the first).  For a
+set against the first); with ``--qc``, one of the month's QC charts.  For a
 scan's full JSON use ``stripscan analyze SCAN -o OUT.json``.
 
 Every output is written under a temporary name and renamed when complete.
@@ -58,6 +63,7 @@ A failure prints one line ``stripscan: error: ...`` and exits with 1.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import datetime as dt
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -153,6 +159,20 @@ def _scan_only(args: argparse.Namespace, source: Source) -> None:
         raise ReportError(f"{', '.join(given)} label a scan's pages only; a snapshot's come from the archive")
 
 
+def _check_mode(args: argparse.Namespace) -> None:
+    """One of: a SOURCE, --compare SETS, or --qc PROCESSOR --month M; said plainly when mixed up."""
+    if args.qc is not None:
+        if args.sources or args.compare:
+            raise ReportError("--qc reports a processor's month from the archive; give no SOURCE and no --compare")
+        if not args.month:
+            raise ReportError(f"--qc {args.qc!r} needs --month YYYY-MM")
+    elif args.month:
+        raise ReportError("--month goes with --qc PROCESSOR")
+    if args.compare and args.sources:
+        raise ReportError(f"--compare takes the sets itself; {args.sources[0]!r} is left over "
+                          "(write --compare SET SET ..., then the options)")
+
+
 def _one_source(args: argparse.Namespace) -> Source:
     if args.compare:
         raise ReportError("internal: a comparison has sets, not one source")
@@ -167,6 +187,14 @@ def _cmd_report(args: argparse.Namespace) -> int:
     from .canvas import write_pdf
     from .snapshot import StripContext, report_from_snapshot, reports_from_analysis
 
+    _check_mode(args)
+    if args.qc:
+        from .qcmonth import qc_month_report_pdf
+
+        with _open_archive(args) as archive:
+            path = qc_month_report_pdf(archive, args.qc, args.month, args.output, site=args.site or "")
+        print(f"Wrote {path} (2 pages)")
+        return 0
     if args.compare:
         comparisons, uses, notes = _comparisons(args)
         from .comparison import comparison_report_pdf
@@ -198,9 +226,9 @@ def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
     from ..compare_cli import SetLoader, _tolerances, parse_set
     from ..core.compare import compare_sets
 
-    if len(args.sources) < 2:
-        raise ReportError(f"--compare needs at least two sets, got {len(args.sources)}")
-    specs = [parse_set(text) for text in args.sources]
+    if len(args.compare) < 2:
+        raise ReportError(f"--compare needs at least two sets, got {len(args.compare)}")
+    specs = [parse_set(text) for text in args.compare]
     with SetLoader(args.archive, calibration_path=args.calibration, n_steps=args.steps) as loader:
         sets = [loader.load(spec) for spec in specs]
     comparisons = compare_sets(sets, tolerances=_tolerances(args.tolerance))
@@ -258,6 +286,13 @@ def _cmd_export(args: argparse.Namespace) -> int:
     """Export steps or figures (CSV), a plot (PNG or SVG) or a snapshot (JSON)."""
     from . import export
 
+    _check_mode(args)
+    if args.qc:
+        if args.kind != "plot":
+            raise ReportError(f"--qc goes with 'export plot' or 'stripscan report --qc', not 'export {args.kind}'")
+        path = _export_qc_plot(args)
+        print(f"Wrote {path}")
+        return 0
     if args.compare:
         if args.kind != "plot":
             raise ReportError(f"--compare goes with 'export plot' (a comparison's table is in 'stripscan compare "
@@ -303,8 +338,28 @@ def _export_comparison_plot(args: argparse.Namespace) -> Path:
     from .comparison import comparison_plots
 
     _plot_format(args)
+    chart = args.chart or "overlay"
+    if chart not in ("overlay", "delta-density", "delta-log-exposure"):
+        raise ReportError(f"--chart {chart} is not a comparison chart; choose overlay, delta-density or "
+                          "delta-log-exposure")
     comparisons, _, _ = _comparisons(args)
-    return _save_plot(args, comparison_plots(comparisons[0])[args.chart or "overlay"])
+    return _save_plot(args, comparison_plots(comparisons[0])[chart])
+
+
+def _export_qc_plot(args: argparse.Namespace) -> Path:
+    from .qcmonth import CHARTS, qc_month, qc_month_plots
+
+    _plot_format(args)
+    chart = args.chart or "mid-density"
+    if chart not in CHARTS:
+        raise ReportError(f"--chart {chart} is not a QC chart; choose {', '.join(CHARTS)}")
+    with _open_archive(args) as archive:
+        month = qc_month(archive, args.qc, args.month)
+    plot = qc_month_plots(month)[chart]
+    # A chart alone gets its own legend, axis title and processor in the title.
+    plot = dataclasses.replace(plot, legend=True, x_label="day of the month",
+                               title=f"{month.processor}, {month.month_name} - {plot.title}")
+    return _save_plot(args, plot)
 
 
 def _export_plot(args: argparse.Namespace, source: Source) -> Path:
@@ -313,7 +368,7 @@ def _export_plot(args: argparse.Namespace, source: Source) -> Path:
 
     _plot_format(args)
     if args.chart not in (None, "curve"):
-        raise ReportError(f"--chart {args.chart} is a comparison chart; a strip's plot is its curve")
+        raise ReportError(f"--chart {args.chart} is not a strip's chart; a strip's plot is its curve")
     if args.strip is None:
         args.strip = 1 if source.kind == "scan" else None
     items, calibration = _strips_of(args, source)
@@ -339,19 +394,24 @@ def register(subparsers: Any) -> None:
         _add_analysis_arguments(p)
         _add_scan_arguments(p)
 
+    def qc_options(p: argparse.ArgumentParser) -> None:
+        p.add_argument("--qc", metavar="PROCESSOR", help="a processor's QC month from the archive (with --month)")
+        p.add_argument("--month", metavar="YYYY-MM", help="with --qc: the month")
+
     def compare_options(p: argparse.ArgumentParser) -> None:
-        p.add_argument("--compare", action="store_true",
-                       help="the SOURCEs are sets to compare, as for 'stripscan compare': scan:PATH[#1,3], "
-                            "snapshot:ID[,ID...] or lot:LOT")
+        p.add_argument("--compare", nargs="+", metavar="SET",
+                       help="compare these sets, each against the first, as 'stripscan compare' does: "
+                            "scan:PATH[#1,3], snapshot:ID[,ID...] or lot:LOT")
         p.add_argument("--tolerance", action="append", metavar="FIGURE=VALUE",
                        help="with --compare: tolerance of B - A, as for 'stripscan compare'")
 
     p = subparsers.add_parser("report", help="PDF report of a scan's strips, archived snapshots or a lot comparison",
                               description=_cmd_report.__doc__,
                               epilog="SOURCE is a scan file or snapshot:ID[,ID...] (with --archive); with "
-                                     "--compare, two or more sets.")
-    p.add_argument("sources", nargs="+", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]; sets with --compare")
+                                     "--compare, two or more sets instead.")
+    p.add_argument("sources", nargs="*", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
     compare_options(p)
+    qc_options(p)
     p.add_argument("-o", "--output", required=True, metavar="OUT.pdf", help="the PDF to write")
     p.add_argument("--site", metavar="TEXT", help="site name for the page header")
     p.add_argument("--lot", metavar="ID", help="emulsion lot (labels a scan's pages)")
@@ -366,12 +426,15 @@ def register(subparsers: Any) -> None:
     p = subparsers.add_parser("export", help="CSV of steps or figures, PNG/SVG of a plot, JSON of a snapshot",
                               description=_cmd_export.__doc__)
     p.add_argument("kind", choices=("steps", "figures", "plot", "json"), help="what to export")
-    p.add_argument("sources", nargs="+", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]; sets with --compare")
+    p.add_argument("sources", nargs="*", metavar="SOURCE", help="scan file, or snapshot:ID[,ID...]")
     p.add_argument("-o", "--output", required=True, metavar="FILE", help="the file to write")
     compare_options(p)
-    p.add_argument("--chart", choices=("curve", "overlay", "delta-density", "delta-log-exposure"),
-                   help="which plot: a strip's curve (default), or with --compare the comparison's overlay "
-                        "(default), delta-density or delta-log-exposure")
+    qc_options(p)
+    p.add_argument("--chart", choices=("curve", "overlay", "delta-density", "delta-log-exposure", "base-fog",
+                                       "mid-density", "density-difference"),
+                   help="which plot: a strip's curve (default); with --compare the overlay (default), "
+                        "delta-density or delta-log-exposure; with --qc base-fog, mid-density (default) or "
+                        "density-difference")
     p.add_argument("--strip", type=int, metavar="N", help="only strip N of a scan (plot: default 1)")
     p.add_argument("--format", choices=("png", "svg"), help="plot format (default: from the file's suffix)")
     p.add_argument("--width-mm", type=float, default=160.0, metavar="W", help="plot width, mm (160)")

@@ -312,8 +312,9 @@ def _draw_swatch(painter, item: Item, x: float, y: float, w: float, pt: float) -
         draw_marker(painter, x + w / 2, y, item.marker, 3.5 * pt, item.colour, True, 0.8 * pt)
 
 
-def _legend_rows(plot: Plot, metrics, width: float, pt: float) -> list[list[tuple[Item, float]]]:
-    rows: list[list[tuple[Item, float]]] = [[]]
+def _legend_rows(plot: Plot, metrics, width: float, pt: float) -> list[list[tuple[Item, str, float]]]:
+    """Legend entries (item, text, width) in rows that fit ``width``."""
+    rows: list[list[tuple[Item, str, float]]] = [[]]
     used = 0.0
     for item in _legend_entries(plot):
         text = metrics.elidedText(item.label, _qt()[0].Qt.TextElideMode.ElideRight, width - 20 * pt)
@@ -321,7 +322,7 @@ def _legend_rows(plot: Plot, metrics, width: float, pt: float) -> list[list[tupl
         if rows[-1] and used + entry > width:
             rows.append([])
             used = 0.0
-        rows[-1].append((item, entry))
+        rows[-1].append((item, text, entry))
         used += entry
     return [row for row in rows if row]
 
@@ -437,11 +438,10 @@ def _draw(painter, rect, plot: Plot) -> None:
     y = rect.bottom() - len(legend) * (line_h + 2 * pt) + line_h / 2 + 1 * pt
     for row in legend:
         x = rect.left()
-        for item, entry in row:
+        for item, text, entry in row:
             _draw_swatch(painter, item, x, y, 12 * pt, pt)
             painter.setPen(QtGui.QColor(COLOURS["ink"]))
             painter.setFont(small)
-            text = fm.elidedText(item.label, Qt.TextElideMode.ElideRight, entry - 24 * pt)
             painter.drawText(QtCore.QRectF(x + 14 * pt, y - line_h / 2, entry - 14 * pt, line_h),
                              int(Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter), text)
             x += entry

@@ -66,3 +66,24 @@ def archive(tmp_path: Path, lot_a: Analysis, calibration: Calibration) -> Iterat
         yield opened
 
 
+
+
+@pytest.fixture(scope="session")
+def daily_scan(demo: Any, calibration: Calibration) -> Analysis:
+    """The demo's daily QC strip of 2 November 2026, analysed."""
+    return analyze_scan(demo.daily_scans[0][1], calibration=calibration)
+
+
+@pytest.fixture
+def qc_archive(tmp_path: Path, daily_scan: Analysis, calibration: Calibration) -> Iterator[Archive]:
+    """Processor 1 with a month of QC (one day read off a scan), in a fresh archive."""
+    from report_support import fill_qc_month
+
+    with Archive.open(tmp_path / "fernhill-qc.sqlite3") as opened:
+        opened.add_film_type(FilmType(SCENARIO["film_type"], "demo film"))
+        opened.add_lot(EmulsionLot(LOT_A, SCENARIO["film_type"]))
+        processor = SCENARIO["processor"]
+        opened.add_processor(Processor(processor["name"], processor["place"], processor["chemistry"],
+                                       processor["developer_temperature_c"], float(processor["cycle_time_s"])))
+        fill_qc_month(opened, scan_day=daily_scan, calibration=calibration)
+        yield opened

@@ -89,3 +89,54 @@ def image_array(image: Any) -> Any:
     raw = np.frombuffer(image.constBits(), dtype=np.uint8, count=image.sizeInBytes())
     return raw.reshape(image.height(), image.bytesPerLine())[:, :image.width() * 3].reshape(
         image.height(), image.width(), 3).copy()
+
+
+#: A month of Processor 1's QC in the demo's story, typed in like densitometer readings:
+#: day -> (base+fog, mid-density, density difference, note, action).  A five-day baseline
+#: in late October, the developer tiring through November (fog up, contrast down), a
+#: limit broken on the 12th and acted on, new chemistry on the 17th and a new baseline.
+QC_DAYS: dict[str, tuple[float, float, float, str, str]] = {
+    "2026-10-26": (0.190, 0.99, 1.87, "", ""), "2026-10-27": (0.189, 0.98, 1.86, "", ""),
+    "2026-10-28": (0.191, 0.99, 1.88, "", ""), "2026-10-29": (0.190, 1.00, 1.87, "", ""),
+    "2026-10-30": (0.190, 0.99, 1.86, "", ""),
+    "2026-11-03": (0.193, 0.96, 1.84, "", ""), "2026-11-04": (0.195, 0.95, 1.81, "", ""),
+    "2026-11-05": (0.197, 0.93, 1.79, "", ""), "2026-11-06": (0.199, 0.91, 1.77, "", ""),
+    "2026-11-09": (0.203, 0.89, 1.75, "", ""), "2026-11-10": (0.207, 0.87, 1.73, "", ""),
+    "2026-11-11": (0.212, 0.86, 1.72, "", ""),
+    "2026-11-12": (0.224, 0.83, 1.69, "repeat strip gave the same",
+                   "clinical processing stopped; replenishment rate checked and raised"),
+    "2026-11-13": (0.221, 0.88, 1.76, "", "developer temperature 34.6 degC, set back to 35.0 degC"),
+    "2026-11-16": (0.219, 0.87, 1.75, "fresh chemistry ordered", ""),
+    "2026-11-17": (0.190, 1.01, 1.89, "first strip on new chemistry", ""),
+    "2026-11-18": (0.191, 1.00, 1.88, "", ""), "2026-11-19": (0.190, 1.00, 1.90, "", ""),
+    "2026-11-20": (0.189, 1.01, 1.89, "", ""), "2026-11-23": (0.190, 0.99, 1.88, "", ""),
+    "2026-11-24": (0.191, 1.00, 1.89, "", ""), "2026-11-25": (0.192, 0.99, 1.87, "", ""),
+    "2026-11-26": (0.191, 1.02, 1.90, "", ""), "2026-11-27": (0.193, 0.98, 1.86, "", ""),
+    "2026-11-30": (0.192, 1.00, 1.88, "", ""),
+}
+
+
+def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibration | None = None) -> None:
+    """Store :data:`QC_DAYS` and the chemistry change of 17 November for Processor 1.
+
+    With ``scan_day`` (the analysis of the demo's daily strip of 2 November) that
+    day is read off the scan, so the month has a scanned day as well as typed ones.
+    """
+    import datetime as dt
+
+    from stripscan.core.qc import QCValues
+    from stripscan.qc_log import add_day, add_event
+
+    days = dict(QC_DAYS)
+    if scan_day is not None:
+        days["2026-11-02"] = None  # type: ignore[assignment]
+    for day in sorted(days):
+        if day == "2026-11-17":
+            add_event(archive, PROCESSOR, dt.date(2026, 11, 17), "new_chemistry", "developer and fixer renewed")
+        if days[day] is None:
+            add_day(archive, PROCESSOR, dt.date.fromisoformat(day), analysis=scan_day, lot=LOT_A,
+                    calibration=calibration.to_dict() if calibration else None, note="daily strip, scanned")
+            continue
+        bf, md, dd, note, action = days[day]
+        add_day(archive, PROCESSOR, dt.date.fromisoformat(day), values=QCValues(bf, md, dd), note=note,
+                action=action)

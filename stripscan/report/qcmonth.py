@@ -1,0 +1,358 @@
+"""The monthly processor QC report: three deviation charts, the day table, actions taken.
+
+Two A4 pages per processor and month, from the processor's QC log as the
+archive keeps it (:func:`stripscan.qc_log.load_processor_log`) and the
+chart data the QC views share (:func:`stripscan.qc_chart.chart_data`):
+
+1. the processor, the operating levels and control limits in force, the
+   status at the month's last strip, and three stacked charts (base+fog,
+   mid-density, density difference) of each day's deviation from its
+   operating level, with the warning and control-limit zones shaded, the
+   limit lines drawn, points past a limit marked by shape and colour, and
+   the processor's events as vertical lines;
+2. the day table (values, deviations, verdict, note and action), the
+   actions taken and events, where the numbers came from (strips read off
+   scans with their calibration, or densitometer readings typed in), and
+   the trend findings.
+
+Point marks follow the program's QC chart (:data:`stripscan.qc_chart.MARKS`):
+a circle within limits, a triangle past the warning tier, a larger diamond
+past the control limit.
+"""
+
+from __future__ import annotations
+
+import calendar
+import datetime as dt
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Sequence
+
+from ..core.qc import QCDay
+from .canvas import Canvas, Column, draw_frame, write_pdf
+from .plot import COLOURS, HBand, Line, Note, Plot, Points, RefLine
+from .provenance import calibration_brief
+from .qtsetup import ReportError
+
+if TYPE_CHECKING:
+    from ..archive import Archive
+    from ..qc_chart import ChartData, ChartSeries
+
+__all__ = ["QCMonth", "qc_month", "qc_month_plots", "qc_month_report_pdf", "CHARTS"]
+
+#: Chart names (as the export command takes them) and the quantity each shows.
+CHARTS = {"base-fog": "base_fog", "mid-density": "mid_density", "density-difference": "density_difference"}
+_ZONES = {"warning": "#F3C969", "action": "#E8906C"}
+
+
+@dataclass(frozen=True)
+class QCMonth:
+    """One processor's month of QC, ready to print.
+
+    Attributes
+    ----------
+    processor : str
+    month : str
+        ``YYYY-MM``.
+    data : ChartData
+        The charts' data (points, limits, events, findings, periods, status).
+    days : tuple of QCDay
+        The month's entries with their verdicts, oldest first.
+    place : str
+        Where the processor is, its chemistry and settings, in words.
+    sources : tuple of (str, str)
+        Where the month's numbers came from: scans (with calibrations) or typed in.
+    notes : tuple of str
+        What the log read but could not use.
+    site : str
+    """
+
+    processor: str
+    month: str
+    data: "ChartData"
+    days: tuple[QCDay, ...]
+    place: str = ""
+    sources: tuple[tuple[str, str], ...] = ()
+    notes: tuple[str, ...] = ()
+    site: str = ""
+
+    @property
+    def month_name(self) -> str:
+        return dt.date.fromisoformat(f"{self.month}-01").strftime("%B %Y")
+
+    def pages(self) -> list[Any]:
+        return [_Page(self, "charts"), _Page(self, "days and actions")]
+
+
+def _month_days(month: str) -> tuple[dt.date, dt.date]:
+    try:
+        first = dt.date.fromisoformat(f"{month}-01")
+    except ValueError:
+        raise ReportError(f"month {month!r} is not written YYYY-MM") from None
+    if len(month) != 7:
+        raise ReportError(f"month {month!r} is not written YYYY-MM")
+    return first, first.replace(day=calendar.monthrange(first.year, first.month)[1])
+
+
+def _sources(archive: "Archive", processor: str, first: dt.date, last: dt.date) -> list[tuple[str, str]]:
+    """Which days were read off scans (with which calibration) and which were typed in."""
+    scanned: dict[str | None, list[str]] = {}
+    typed = []
+    for entry in archive.list_qc_entries(processor, since=first.isoformat(), until=last.isoformat()):
+        if entry.source == "scan" and entry.snapshot_id is not None:
+            digest = archive.get_snapshot(entry.snapshot_id).calibration_hash
+            scanned.setdefault(digest, []).append(f"{entry.date} (snapshot {entry.snapshot_id})")
+        else:
+            typed.append(entry.date)
+    lines = []
+    for digest, days in scanned.items():
+        calibration = archive.get_calibration(digest) if digest else None
+        lines.append((f"Read off scans, {len(days)} day{'s' if len(days) != 1 else ''}",
+                      f"{', '.join(days)}: {calibration_brief(calibration, digest)}"))
+    if typed:
+        lines.append((f"Typed in, {len(typed)} day{'s' if len(typed) != 1 else ''}",
+                      "densitometer readings as entered (no scan, no calibration of this program): "
+                      + ", ".join(d[8:] for d in typed)))
+    return lines
+
+
+def qc_month(archive: "Archive", processor: str, month: str, *, site: str = "") -> QCMonth:
+    """Read one processor's month of QC from the archive.
+
+    Raises
+    ------
+    ReportError
+        A month not written ``YYYY-MM``.
+    ArchiveLookupError, ValueError
+        An unknown processor, unreadable settings, or no entry in the month.
+    """
+    from ..qc_chart import chart_data
+    from ..qc_log import load_processor_log
+
+    first, last = _month_days(month)
+    plog = load_processor_log(archive, processor)
+    data = chart_data(plog, month=month)
+    record = archive.get_processor(processor)
+    place = ", ".join(part for part in (
+        record.place, record.chemistry,
+        f"developer {record.developer_temperature_c:g} \u00b0C" if record.developer_temperature_c else "",
+        f"cycle {record.cycle_time_s:g} s" if record.cycle_time_s else "") if part)
+    days = tuple(d for d in plog.log.days if first <= d.entry.date <= last)
+    return QCMonth(processor, month, data, days, place, tuple(_sources(archive, processor, first, last)),
+                   tuple(plog.notes), site)
+
+
+# --------------------------------------------------------------------------
+# Charts
+
+
+def _limits_items(series: "ChartSeries") -> tuple[list[Any], float]:
+    """Shaded zones and lines of a series' limits, and the largest limit (for the axis)."""
+    items: list[Any] = []
+    reach = 0.0
+    far = 10.0  # beyond any axis: the zone runs off the plot, where it is clipped
+    upper_action, lower_action = series.action
+    upper_warning, lower_warning = series.warning
+    for sign, action, warning in ((1, upper_action, upper_warning), (-1, lower_action, lower_warning)):
+        if action is None:
+            continue
+        action = abs(action)
+        reach = max(reach, action)
+        lo, hi = sorted((sign * action, sign * far))
+        items.append(HBand(lo, hi, colour=_ZONES["action"], opacity=0.28))
+        items.append(RefLine(sign * action, colour=COLOURS["red"], dash="dash", width_pt=0.9,
+                             label="control limit" if sign == 1 else ""))
+        if warning is not None:
+            warning = abs(warning)
+            lo, hi = sorted((sign * warning, sign * action))
+            items.append(HBand(lo, hi, colour=_ZONES["warning"], opacity=0.28))
+            items.append(RefLine(sign * warning, colour="#8a5a00", dash="dot", width_pt=0.8,
+                                 label="warning tier" if sign == 1 else ""))
+    return items, reach
+
+
+def _series_plot(data: "ChartData", series: "ChartSeries", first: dt.date, last: dt.date, *,
+                 legend: bool) -> Plot:
+    from ..qc_chart import MARKS
+
+    items, reach = _limits_items(series)
+    items.insert(0, RefLine(0.0, colour=COLOURS["ink"], dash="solid", width_pt=0.7, label="operating level"))
+    events = [(day, label) for day, label in data.events if first <= day <= last]
+    for number, (day, label) in enumerate(events):
+        legend_text = (f"event: {label}" if len(events) == 1 else "processor events") if number == 0 else ""
+        items.append(RefLine(float(day.day), vertical=True, colour=COLOURS["purple"], dash="dashdot",
+                             width_pt=1.0, label=legend_text))
+    judged = [p for p in series.points if p.deviation is not None]
+    x = [float(p.date.day) for p in judged]
+    y = [float(p.deviation) for p in judged]
+    items.append(Line(tuple(x), tuple(y), colour=COLOURS["grey"], width_pt=0.6))
+    for verdict in ("ok", "warning", "action"):
+        chosen = [p for p in judged if p.verdict == verdict and not p.baseline]
+        colour, shape, size_px, words = MARKS[verdict]
+        if chosen:
+            items.append(Points(tuple(float(p.date.day) for p in chosen), tuple(p.deviation for p in chosen),
+                                label=words, colour=colour, marker=shape, size_pt=size_px * 0.75))
+        if verdict == "action":
+            items += [Note(float(p.date.day), p.deviation, f"{p.deviation:+.3f}", colour=COLOURS["red"],
+                           side="above" if p.deviation > 0 else "below") for p in chosen]
+    baseline = [p for p in judged if p.baseline]
+    if baseline:
+        items.append(Points(tuple(float(p.date.day) for p in baseline), tuple(p.deviation for p in baseline),
+                            label="baseline day (sets the level)", colour=COLOURS["blue"], filled=False, size_pt=4))
+    waiting = [p for p in series.points if p.deviation is None]
+    if waiting:
+        items.append(Points(tuple(float(p.date.day) for p in waiting), (0.0,) * len(waiting),
+                            label="baseline in progress (not judged)", colour=COLOURS["grey"], marker="plus",
+                            size_pt=4))
+    span = max([reach * 1.35, 0.05, *(abs(v) * 1.15 for v in y)])
+    ticks = [(float(d), str(d) if d == 1 or d % 5 == 0 or d == last.day else "") for d in range(1, last.day + 1)]
+    return Plot(items=tuple(items), title=f"{series.label}: deviation from operating level",
+                x_label="day of the month" if legend else "", y_label="OD", x_range=(0.5, last.day + 0.5),
+                y_range=(-span, span), x_ticks=ticks, y_signed=True, legend=legend, font_pt=6.5,
+                empty_text="no strip this month")
+
+
+def qc_month_plots(month: QCMonth) -> dict[str, Plot]:
+    """The three charts of a month, by name (see :data:`CHARTS`); the last one carries the legend."""
+    first, last = _month_days(month.month)
+    by_quantity = {s.quantity: s for s in month.data.series}
+    names = list(CHARTS)
+    return {name: _series_plot(month.data, by_quantity[CHARTS[name]], first, last, legend=name == names[-1])
+            for name in names}
+
+
+# --------------------------------------------------------------------------
+# Pages
+
+
+def _frame(month: QCMonth, canvas: Canvas, part: str) -> tuple[float, float]:
+    return draw_frame(canvas, title=f"Processor QC - {month.month_name}",
+                      subtitle=f"{month.processor}\n{part}", extra_footer=f"{month.processor}, {month.month}")
+
+
+def _status_text(month: QCMonth) -> str:
+    from .. import CAUTION
+    from ..qc_log import VERDICT_WORDS
+
+    status = month.data.status
+    head = "BASELINE IN PROGRESS" if status.baseline_in_progress else VERDICT_WORDS[status.verdict]
+    advice = status.advice.replace(CAUTION, "").strip()  # the caution has its own box on every page
+    latest = status.latest_date.isoformat() if status.latest_date else "no strip"
+    return f"{head} at the month's last strip ({latest}). {advice}"
+
+
+def _limits_text(month: QCMonth) -> str:
+    series = {s.quantity: s for s in month.data.series}
+    md, bf = series["mid_density"], series["base_fog"]
+    text = f"mid-density and density difference \u00b1{abs(md.action[0]):.2f} OD"
+    if md.warning[0] is not None:
+        text += f" (warning tier \u00b1{abs(md.warning[0]):.2f})"
+    text += f"; base+fog no more than +{abs(bf.action[0]):.2f} OD above its level"
+    if bf.warning[0] is not None:
+        text += f" (warning +{abs(bf.warning[0]):.2f})"
+    return text
+
+
+@dataclass(frozen=True)
+class _Page:
+    """Page ``part`` ("charts" or "days and actions") of a month's report."""
+
+    month: QCMonth
+    part: str
+
+    def draw(self, canvas: Canvas) -> None:
+        top, bottom = _frame(self.month, canvas, self.part)
+        (_draw_charts if self.part == "charts" else _draw_days)(self.month, canvas, top, bottom)
+
+
+def _draw_charts(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
+    from ..qc_chart import chart_legend
+
+    pairs = [("Site", m.site), ("Processor", f"{m.processor}" + (f" ({m.place})" if m.place else "")),
+             ("Operating levels", "\n".join(chart_legend(m.data))), ("Control limits", _limits_text(m)),
+             ("Status", _status_text(m))]
+    y = top + c.fields(c.left, top, c.content_width, pairs, key_width=28.0, size=7.5, max_lines=4) + 2.0
+    plots = list(qc_month_plots(m).values())
+    gap = 2.0
+    # The last chart carries the legend and the axis title: give it more room.
+    height = (bottom - y - 2 * gap - 14.0) / 3
+    for number, plot in enumerate(plots):
+        h = height + (14.0 if number == len(plots) - 1 else 0.0)
+        c.plot(c.left, y, c.content_width, h, plot)
+        y += h + gap
+
+
+_DAY_TABLE = (Column("Date", 17), Column("Source", 12), Column("Base+fog", 16, "right"), Column("\u0394", 10, "right"),
+              Column("Mid-density", 19, "right"), Column("\u0394", 10, "right"), Column("Density diff.", 20, "right"),
+              Column("\u0394", 10, "right"), Column("Verdict", 22), Column("Note and action", 46))
+_VERDICT_COLOURS = {"action": COLOURS["red"], "warning": "#8a5a00"}
+
+
+def _day_rows(month: QCMonth) -> tuple[list[list[str]], list[str | None]]:
+    from ..qc_log import VERDICT_WORDS
+
+    rows, colours = [], []
+    for day in month.days:
+        values, verdict = day.entry.values, day.verdict
+        cells = [day.entry.date.isoformat(), day.entry.source]
+        for q in ("base_fog", "mid_density", "density_difference"):
+            cells.append(f"{getattr(values, q):.3f}")
+            cells.append(f"{round(getattr(verdict.deviations, q), 3) + 0.0:+.3f}" if verdict else "-")
+        cells.append(VERDICT_WORDS[verdict.verdict] if verdict else "baseline")
+        remarks = [r for r in (day.entry.note, f"action: {day.entry.action}" if day.entry.action else "") if r]
+        cells.append("; ".join(remarks))
+        rows.append(cells)
+        colours.append(_VERDICT_COLOURS.get(verdict.verdict) if verdict else COLOURS["grey"])
+    return rows, colours
+
+
+def _bullets(c: Canvas, y: float, bottom: float, title: str, lines: Sequence[str], *, empty: str) -> float:
+    y += c.text(c.left, y, c.content_width, title, size=8.5, bold=True, max_lines=1)
+    for number, line in enumerate(lines or [empty]):
+        height = c.text_height(c.content_width - 3.0, line, size=7.0, max_lines=3)
+        if y + height + c.line_height(7.0) > bottom and number < len(lines) - 1:
+            return y + c.text(c.left, y, c.content_width, f"\u2026 and {len(lines) - number} more", size=7.0,
+                              italic=True, max_lines=1)
+        c.text(c.left, y, 3.0, "\u2022", size=7.0)
+        y += c.text(c.left + 3.0, y, c.content_width - 3.0, line, size=7.0, max_lines=3)
+    return y + 1.5
+
+
+def _draw_days(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
+    rows, colours = _day_rows(m)
+    size = 7.0
+    while size > 5.0 and c.table(0, 0, _DAY_TABLE, rows, size=size, max_lines=3, draw=False) > 0.6 * (bottom - top):
+        size -= 0.25
+    y = top + c.table(c.left, top, _DAY_TABLE, rows, size=size, max_lines=3, row_colours=colours) + 1.0
+    y += c.text(c.left, y, c.content_width, "\u0394 = value minus the operating level in force that day, OD; "
+                "source: scan (read by this program) or manual (typed in).", size=6.0, colour=COLOURS["grey"])
+    y += 2.0
+    actions = [f"{d.entry.date.isoformat()}: {d.entry.action}" for d in m.days if d.entry.action]
+    actions += [f"{day.isoformat()}: {label}" for day, label in m.data.events]
+    y = _bullets(c, y, bottom, "Actions taken and processor events", sorted(actions), empty="None recorded.")
+    # Provenance before the findings: it must never be what runs out of room.
+    sources = [f"{label}: {text}" for label, text in m.sources] + list(m.notes)
+    y = _bullets(c, y, bottom, "Where the numbers come from", sources, empty="No entry this month.")
+    findings = [f.message for f in m.data.findings]
+    _bullets(c, y, bottom, "Trend findings", findings, empty="No trend rule fired.")
+
+
+def qc_month_report_pdf(archive: "Archive", processor: str, month: str, path: str | os.PathLike[str], *,
+                        site: str = "", generated: dt.datetime | None = None) -> Path:
+    """Write the monthly QC report of one processor (two pages) to a PDF; return the absolute path.
+
+    Parameters
+    ----------
+    archive : Archive
+    processor : str
+        As named in the archive.
+    month : str
+        ``YYYY-MM``.
+    path : path-like
+    site : str
+        Site name for the header.
+    """
+    report = qc_month(archive, processor, month, site=site)
+    return write_pdf(report.pages(), path, title=f"stripscan processor QC - {processor} - {month}",
+                     generated=generated)
