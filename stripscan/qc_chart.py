@@ -296,7 +296,8 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
         painter.fillRect(QRectF(rect.left(), min(y0, y1), rect.width(), abs(y1 - y0)), QColor(BANDS["warning"]))
     # Grid, operating level, limit lines.
     painter.setFont(_font(12))
-    step = 0.05 if span <= 0.3 else 0.1
+    # The finest grid whose labels stay at least 22 px apart.
+    step = next((g for g in (0.01, 0.02, 0.05, 0.1, 0.2) if g / (2 * span) * rect.height() >= 22), 0.5)
     k = -math.floor(span / step + 1e-9)
     while k * step <= span + 1e-9:
         v, y = k * step, ax.y(k * step)
@@ -308,13 +309,16 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
         k += 1
     painter.setPen(QPen(QColor("#555555"), 1.6))
     painter.drawLine(QPointF(rect.left(), ax.y(0)), QPointF(rect.right(), ax.y(0)))
-    for limit, colour, style in ((up_a, _LIMIT_LINE, Qt.PenStyle.DashLine), (low_a, _LIMIT_LINE, Qt.PenStyle.DashLine),
-                                 (up_w, _WARNING_LINE, Qt.PenStyle.DotLine), (low_w, _WARNING_LINE, Qt.PenStyle.DotLine)):
+    # Limit and warning labels sit in two columns at the right, so close lines keep readable labels.
+    for limit, colour, style, inset in ((up_a, _LIMIT_LINE, Qt.PenStyle.DashLine, 4),
+                                        (low_a, _LIMIT_LINE, Qt.PenStyle.DashLine, 4),
+                                        (up_w, _WARNING_LINE, Qt.PenStyle.DotLine, 52),
+                                        (low_w, _WARNING_LINE, Qt.PenStyle.DotLine, 52)):
         if limit is not None:
             painter.setPen(QPen(QColor(colour), 1.6, style))
             painter.drawLine(QPointF(rect.left(), ax.y(limit)), QPointF(rect.right(), ax.y(limit)))
             painter.setFont(_font(11))
-            painter.drawText(QRectF(rect.right() - 120, ax.y(limit) - (16 if limit > 0 else -2), 116, 14),
+            painter.drawText(QRectF(rect.right() - inset - 60, ax.y(limit) - (16 if limit > 0 else -2), 60, 14),
                              Qt.AlignmentFlag.AlignRight, f"{limit:+.2f}")
     # Events: the baseline restarts from that day's strip on, so the line sits at the day's left edge.
     for day, label in data.events:
