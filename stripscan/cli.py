@@ -151,12 +151,11 @@ def _analysis_options(args):
 
 def _gradient_curve(strip) -> dict | None:
     """The gradient curve (dD/dlog E) of a strip's usable steps, every 0.05 log E."""
-    from .core.curve import CharacteristicCurve
+    from .core.curve import strip_curve
 
-    usable = [s for s in strip.steps if s.in_range and not s.excluded]
-    if len(usable) < 2:
+    curve = strip_curve(strip)
+    if curve is None:
         return None
-    curve = CharacteristicCurve([s.log_exposure for s in usable], [s.od for s in usable])
     count = int(round((curve.log_exposure[-1] - curve.log_exposure[0]) / 0.05)) + 1
     grid = np.linspace(curve.log_exposure[0], curve.log_exposure[-1], max(count, 2))
     return {"log_exposure": [round(float(v), 4) for v in grid],

@@ -51,7 +51,7 @@ from typing import Any
 import numpy as np
 from scipy import stats
 
-from .curve import CharacteristicCurve, relative_speed_percent
+from .curve import CharacteristicCurve, relative_speed_percent, strip_curve
 from .qc import QCSteps, QCValues, choose_qc_steps, qc_values_from_steps
 from .records import StripResult, clean_float
 
@@ -396,17 +396,6 @@ class StripSet:
     def from_dict(cls, data: Mapping[str, Any]) -> "StripSet":
         return cls(data["name"], tuple(StripResult.from_dict(s) for s in data["strips"]),
                    tuple(data.get("labels", ())), data.get("source", ""))
-
-
-def _usable(strip: StripResult) -> tuple[np.ndarray, np.ndarray]:
-    steps = [s for s in strip.steps if s.in_range and not s.excluded and math.isfinite(s.od)]
-    return np.array([s.log_exposure for s in steps]), np.array([s.od for s in steps])
-
-
-def strip_curve(strip: StripResult) -> CharacteristicCurve | None:
-    """The characteristic curve through a strip's usable steps, or None (fewer than two)."""
-    x, d = _usable(strip)
-    return CharacteristicCurve(x, d) if x.size >= 2 else None
 
 
 def mean_step_densities(strips: Sequence[StripResult]) -> np.ndarray:

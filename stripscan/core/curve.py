@@ -32,7 +32,7 @@ from scipy.interpolate import CubicHermiteSpline, CubicSpline
 from scipy.optimize import brentq
 
 from .qc import choose_qc_steps, closest_step
-from .records import CurveFigures
+from .records import CurveFigures, StripResult
 
 __all__ = [
     "FigureSettings",
@@ -41,6 +41,8 @@ __all__ = [
     "CharacteristicCurve",
     "compute_figures",
     "shape_preserving_cubic",
+    "usable_points",
+    "strip_curve",
     "relative_speed_percent",
 ]
 
@@ -196,6 +198,22 @@ class CharacteristicCurve:
         slopes = self.gradient(grid)
         k = int(np.nanargmax(slopes))
         return float(slopes[k]), float(grid[k])
+
+
+def usable_points(strip: StripResult) -> tuple[np.ndarray, np.ndarray]:
+    """Log E and density of the steps that go on a strip's curve.
+
+    Those in the calibrated range, not excluded by a person, with a finite
+    density; step order.
+    """
+    steps = [s for s in strip.steps if s.in_range and not s.excluded and math.isfinite(s.od)]
+    return np.array([s.log_exposure for s in steps]), np.array([s.od for s in steps])
+
+
+def strip_curve(strip: StripResult) -> CharacteristicCurve | None:
+    """The characteristic curve through a strip's usable steps, or None (fewer than two)."""
+    x, d = usable_points(strip)
+    return CharacteristicCurve(x, d) if x.size >= 2 else None
 
 
 def _round(value: float | None, digits: int = 6) -> float | None:

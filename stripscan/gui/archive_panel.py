@@ -37,7 +37,7 @@ from PySide6.QtWidgets import (
 from .. import CAUTION
 from ..archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary
 from ..core.records import Analysis
-from .curve_view import curve_of
+from ..core.curve import strip_curve
 from .errors import report_error
 from .figures_panel import VALUE_ROLE
 from .save_snapshot_dialog import CalibrationLike, SaveSnapshotDialog
@@ -217,7 +217,7 @@ class _StoredCurve(pg.PlotWidget):
         self.unused.setData([s.log_exposure for s in other], [s.od for s in other])
         sd = np.array([s.od_sd if np.isfinite(s.od_sd) else 0.0 for s in used])
         self.bars.setData(x=x, y=y, height=2.0 * sd)
-        curve = curve_of(strip) if strip is not None else None
+        curve = strip_curve(strip) if strip is not None else None
         if curve is None:
             self.line.setData([], [])
         else:

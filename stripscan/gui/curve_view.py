@@ -14,27 +14,15 @@ import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QCheckBox, QGraphicsItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
-from ..core.curve import CharacteristicCurve
+from ..core.curve import strip_curve
 from ..core.records import StripResult
 from .session import Session
 from .style import strip_colour
 
-__all__ = ["CurveView", "usable_points", "curve_of"]
+__all__ = ["CurveView"]
 
 _LEVEL_PEN = pg.mkPen("#6a1b9a", width=2, style=Qt.PenStyle.DashLine)
 _LEVEL_HOVER = pg.mkPen("#ab47bc", width=3)
-
-
-def usable_points(result: StripResult) -> tuple[np.ndarray, np.ndarray]:
-    """Log E and density of the steps the core puts on the curve."""
-    steps = [s for s in result.steps if s.in_range and not s.excluded and np.isfinite(s.od)]
-    return np.array([s.log_exposure for s in steps]), np.array([s.od for s in steps])
-
-
-def curve_of(result: StripResult) -> CharacteristicCurve | None:
-    """The core's interpolated curve through a strip's usable steps, or None."""
-    x, d = usable_points(result)
-    return CharacteristicCurve(x, d) if x.size >= 2 else None
 
 
 class _StripCurve:
@@ -69,7 +57,7 @@ class _StripCurve:
         self.unused.setData([s.log_exposure for s in other], [s.od for s in other])
         sd = np.array([s.od_sd if np.isfinite(s.od_sd) else 0.0 for s in used])
         self.bars.setData(x=x, y=y, height=2.0 * sd)
-        curve = curve_of(result)
+        curve = strip_curve(result)
         if curve is None:
             self.line.setData([], [])
         else:
@@ -273,7 +261,7 @@ class CurveView(QWidget):
         self._show_readout(result)
 
     def _show_slope(self, result: StripResult | None) -> None:
-        curve = curve_of(result) if result is not None else None
+        curve = strip_curve(result) if result is not None else None
         figures = result.figures if result is not None else None
         if curve is None or figures is None or figures.gamma_log_exposure is None:
             self.max_slope_item.setData([], [])

@@ -16,7 +16,7 @@ from stripscan.core.curve import FigureSettings, compute_figures
 from stripscan.core.locate import locate_strips
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan
-from stripscan.gui.curve_view import curve_of
+from stripscan.core.curve import strip_curve
 from stripscan.gui.main_window import MainWindow
 from stripscan.gui.tables import step_table_text
 
@@ -98,7 +98,7 @@ def test_excluding_a_step_in_the_table_changes_the_curve(qtbot, open_scan, windo
     after = window.session.result()
     assert after.steps[step - 1].excluded
     x, y = window.curve_view.main.line.getData()
-    expected = curve_of(after)
+    expected = strip_curve(after)
     assert y == pytest.approx(expected(x))  # the drawn curve is the core's curve without the step
     assert not np.allclose(y, np.interp(x, before_x, before_y))
     assert window.scan_view.steps_drawn_as(0, "excluded") == [step]
