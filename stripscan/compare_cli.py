@@ -486,19 +486,7 @@ def store_crossover(archive: Any, processor: str, date: str, record: dict[str, A
     (Crossover, QcEvent)
         As stored; if anything fails, neither is.
     """
-    from .archive import Crossover, QcEvent
-
-    # The archive has no public call that writes both at once; this uses the
-    # same transaction and insert steps as its add_crossover and
-    # add_qc_event, inside one BEGIN IMMEDIATE.
-    with archive._writing(f"store the crossover of {date} for {processor!r}") as conn:
-        crossover = archive._checked("add crossover", Crossover, archive._next_id(conn, "crossovers"),
-                                     processor, date, record)
-        archive._insert_crossover(conn, crossover)
-        event = archive._checked("add QC event", QcEvent, archive._next_id(conn, "qc_events"), processor, date,
-                                 "crossover", note(crossover.id))
-        archive._insert_qc_event(conn, event)
-    return crossover, event
+    return archive.add_crossover_with_event(processor, date, record, note)
 
 
 def _qc_values(s: StripSet, steps: Any) -> list[Any]:

@@ -21,7 +21,7 @@ import sys
 from collections.abc import Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import Any, Callable
 
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
@@ -960,6 +960,32 @@ class Archive:
                                       date, record)
             self._insert_crossover(conn, crossover)
             return crossover
+
+    def add_crossover_with_event(self, processor: str, date: str, record: dict[str, Any],
+                                 note: Callable[[int], str]) -> tuple[Crossover, QcEvent]:
+        """Store a crossover and the ``crossover`` QC event that moves the levels, in one transaction.
+
+        Parameters
+        ----------
+        processor, date : str
+        record : dict
+            The crossover as JSON-ready data.
+        note : callable
+            Makes the event's note from the crossover's new id.
+
+        Returns
+        -------
+        (Crossover, QcEvent)
+            As stored; if anything fails, neither is.
+        """
+        with self._writing(f"store the crossover of {date} for {processor!r}") as conn:
+            crossover = self._checked("add crossover", Crossover, self._next_id(conn, "crossovers"), processor,
+                                      date, record)
+            self._insert_crossover(conn, crossover)
+            event = self._checked("add QC event", QcEvent, self._next_id(conn, "qc_events"), processor, date,
+                                  "crossover", note(crossover.id))
+            self._insert_qc_event(conn, event)
+            return crossover, event
 
     def _insert_crossover(self, conn: sqlite3.Connection, crossover: Crossover) -> None:
         self._check_qc_processor(crossover.processor)
