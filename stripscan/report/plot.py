@@ -138,6 +138,9 @@ class Plot:
         Explicit tick positions and labels (e.g. days of a month).
     y_signed : bool
         Print y tick labels with a sign (deviations).
+    y_decimals : int or None
+        Decimals of the y tick labels (None: as the tick step needs); fixed
+        decimals line up the axes of plots stacked on a page.
     legend : bool
         Show a legend of the labelled items below the plot.
     empty_text : str
@@ -154,6 +157,7 @@ class Plot:
     y_range: tuple[float, float] | None = None
     x_ticks: Sequence[tuple[float, str]] | None = None
     y_signed: bool = False
+    y_decimals: int | None = None
     legend: bool = True
     empty_text: str = "no data to draw"
     font_pt: float = 7.0
@@ -356,6 +360,8 @@ def _draw(painter, rect, plot: Plot) -> None:
     x_ticks, x_dec = ([t for t, _ in plot.x_ticks], 0) if plot.x_ticks else (
         nice_ticks(*x_span) if x_span else ([], 0))
     y_ticks, y_dec = nice_ticks(*y_span, target=5) if y_span else ([], 0)
+    if plot.y_decimals is not None:
+        y_dec = max(y_dec, plot.y_decimals)
     y_texts = [f"{v:+.{y_dec}f}" if plot.y_signed and v != 0 else f"{v:.{y_dec}f}" for v in y_ticks]
 
     top = rect.top()

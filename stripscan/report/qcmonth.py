@@ -97,21 +97,30 @@ def _month_days(month: str) -> tuple[dt.date, dt.date]:
 
 def _sources(archive: "Archive", processor: str, first: dt.date, last: dt.date) -> list[tuple[str, str]]:
     """Which days were read off scans (with which calibration) and which were typed in."""
-    scanned: dict[str | None, list[str]] = {}
-    typed = []
+    kept: dict[str | None, list[str]] = {}
+    unkept, typed = [], []
     for entry in archive.list_qc_entries(processor, since=first.isoformat(), until=last.isoformat()):
         if entry.source == "scan" and entry.snapshot_id is not None:
             digest = archive.get_snapshot(entry.snapshot_id).calibration_hash
-            scanned.setdefault(digest, []).append(f"{entry.date} (snapshot {entry.snapshot_id})")
+            kept.setdefault(digest, []).append(f"{entry.date} (snapshot {entry.snapshot_id})")
+        elif entry.source == "scan":
+            unkept.append(entry.date)
         else:
             typed.append(entry.date)
+
+    def days(dates: Sequence[str]) -> str:
+        return f"{len(dates)} day{'s' if len(dates) != 1 else ''}"
+
     lines = []
-    for digest, days in scanned.items():
+    for digest, dates in kept.items():
         calibration = archive.get_calibration(digest) if digest else None
-        lines.append((f"Read off scans, {len(days)} day{'s' if len(days) != 1 else ''}",
-                      f"{', '.join(days)}: {calibration_brief(calibration, digest)}"))
+        lines.append((f"Read off scans, {days(dates)}", f"{', '.join(dates)}: {calibration_brief(calibration, digest)}"))
+    if unkept:
+        lines.append((f"Read off scans, {days(unkept)}",
+                      "the strips were not kept in the archive, so their calibration is not recorded here (each "
+                      "entry's note names its scan): " + ", ".join(d[8:] for d in unkept)))
     if typed:
-        lines.append((f"Typed in, {len(typed)} day{'s' if len(typed) != 1 else ''}",
+        lines.append((f"Typed in, {days(typed)}",
                       "densitometer readings as entered (no scan, no calibration of this program): "
                       + ", ".join(d[8:] for d in typed)))
     return lines
@@ -209,7 +218,7 @@ def _series_plot(data: "ChartData", series: "ChartSeries", first: dt.date, last:
     ticks = [(float(d), str(d) if d == 1 or d % 5 == 0 or d == last.day else "") for d in range(1, last.day + 1)]
     return Plot(items=tuple(items), title=f"{series.label}: deviation from operating level",
                 x_label="day of the month" if legend else "", y_label="OD", x_range=(0.5, last.day + 0.5),
-                y_range=(-span, span), x_ticks=ticks, y_signed=True, legend=legend, font_pt=6.5,
+                y_range=(-span, span), x_ticks=ticks, y_signed=True, y_decimals=2, legend=legend, font_pt=6.5,
                 empty_text="no strip this month")
 
 
@@ -283,9 +292,9 @@ def _draw_charts(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
         y += h + gap
 
 
-_DAY_TABLE = (Column("Date", 17), Column("Source", 12), Column("Base+fog", 16, "right"), Column("\u0394", 10, "right"),
-              Column("Mid-density", 19, "right"), Column("\u0394", 10, "right"), Column("Density diff.", 20, "right"),
-              Column("\u0394", 10, "right"), Column("Verdict", 22), Column("Note and action", 46))
+_DAY_TABLE = (Column("Date", 17), Column("Source", 11), Column("Base+fog", 14, "right"), Column("\u0394", 10, "right"),
+              Column("Mid-density", 16, "right"), Column("\u0394", 10, "right"), Column("Density diff.", 18, "right"),
+              Column("\u0394", 10, "right"), Column("Verdict", 20), Column("Note and action", 56))
 _VERDICT_COLOURS = {"action": COLOURS["red"], "warning": "#8a5a00"}
 
 
@@ -322,9 +331,10 @@ def _bullets(c: Canvas, y: float, bottom: float, title: str, lines: Sequence[str
 def _draw_days(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
     rows, colours = _day_rows(m)
     size = 7.0
-    while size > 5.0 and c.table(0, 0, _DAY_TABLE, rows, size=size, max_lines=3, draw=False) > 0.6 * (bottom - top):
+    # The table may take most of the page; what follows is a few short lists.
+    while size > 5.0 and c.table(0, 0, _DAY_TABLE, rows, size=size, max_lines=4, draw=False) > 0.72 * (bottom - top):
         size -= 0.25
-    y = top + c.table(c.left, top, _DAY_TABLE, rows, size=size, max_lines=3, row_colours=colours) + 1.0
+    y = top + c.table(c.left, top, _DAY_TABLE, rows, size=size, max_lines=4, row_colours=colours) + 1.0
     y += c.text(c.left, y, c.content_width, "\u0394 = value minus the operating level in force that day, OD; "
                 "source: scan (read by this program) or manual (typed in).", size=6.0, colour=COLOURS["grey"])
     y += 2.0

@@ -116,11 +116,13 @@ QC_DAYS: dict[str, tuple[float, float, float, str, str]] = {
 }
 
 
-def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibration | None = None) -> None:
+def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibration | None = None,
+                  keep_strip: bool = True) -> None:
     """Store :data:`QC_DAYS` and the chemistry change of 17 November for Processor 1.
 
     With ``scan_day`` (the analysis of the demo's daily strip of 2 November) that
-    day is read off the scan, so the month has a scanned day as well as typed ones.
+    day is read off the scan, so the month has a scanned day as well as typed ones;
+    ``keep_strip`` keeps that strip as a snapshot of lot A (with its calibration).
     """
     import datetime as dt
 
@@ -134,8 +136,9 @@ def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibratio
         if day == "2026-11-17":
             add_event(archive, PROCESSOR, dt.date(2026, 11, 17), "new_chemistry", "developer and fixer renewed")
         if days[day] is None:
-            add_day(archive, PROCESSOR, dt.date.fromisoformat(day), analysis=scan_day, lot=LOT_A,
-                    calibration=calibration.to_dict() if calibration else None, note="daily strip, scanned")
+            add_day(archive, PROCESSOR, dt.date.fromisoformat(day), analysis=scan_day,
+                    lot=LOT_A if keep_strip else None, calibration=calibration.to_dict() if calibration else None,
+                    note="daily strip, scanned")
             continue
         bf, md, dd, note, action = days[day]
         add_day(archive, PROCESSOR, dt.date.fromisoformat(day), values=QCValues(bf, md, dd), note=note,

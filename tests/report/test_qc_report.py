@@ -69,6 +69,20 @@ def test_two_pages_with_every_day_its_deviations_and_verdict(qc_archive, calibra
     assert "Typed in, 20 days" in table
 
 
+def test_a_scanned_day_whose_strip_was_not_kept_says_its_calibration_is_not_recorded(
+        daily_scan, calibration, tmp_path):
+    from report_support import fill_qc_month
+
+    from stripscan.archive import Processor
+
+    with Archive.open(tmp_path / "unkept.sqlite3") as archive:
+        archive.add_processor(Processor(PROCESSOR, SCENARIO["processor"]["place"]))
+        fill_qc_month(archive, scan_day=daily_scan, calibration=calibration, keep_strip=False)
+        table = pdf_pages(qc_month_report_pdf(archive, PROCESSOR, "2026-11", tmp_path / "qc.pdf"))[1]
+    assert "Read off scans, 1 day" in table and "calibration is not recorded here" in table
+    assert calibration.sha256[:12] not in table
+
+
 def test_points_past_a_limit_are_marked_on_the_charts(qc_archive):
     month = qc_month(qc_archive, PROCESSOR, "2026-11")
     plots = qc_month_plots(month)
