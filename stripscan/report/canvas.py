@@ -17,12 +17,15 @@ import datetime as dt
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Protocol, Sequence
+from typing import TYPE_CHECKING, Callable, Protocol, Sequence
 
 from .. import CAUTION, __version__
 from .plot import COLOURS, Plot, draw_plot, make_font
 from .provenance import short_hash
 from .qtsetup import ReportError, ensure_app, replacing
+
+if TYPE_CHECKING:
+    from PySide6.QtGui import QFont, QFontMetricsF, QImage, QPainter
 
 __all__ = [
     "A4_MM", "Page", "Canvas", "Column", "write_pdf", "render_page", "save_page_png", "draw_frame",
@@ -53,7 +56,7 @@ def _qt():
     return QtCore, QtGui
 
 
-def _wrap_paragraph(text: str, advance, width: float) -> list[str]:
+def _wrap_paragraph(text: str, advance: Callable[[str], float], width: float) -> list[str]:
     """Greedy word wrap with ``advance(text)`` widths; a word wider than a line is cut where it must."""
     words = text.split()
     if not words:
@@ -90,7 +93,7 @@ class Canvas:
         When the document is made (printed in the footer).
     """
 
-    def __init__(self, painter, *, page_no: int = 1, page_count: int = 1, generated: dt.datetime | None = None,
+    def __init__(self, painter: "QPainter", *, page_no: int = 1, page_count: int = 1, generated: dt.datetime | None = None,
                  page_mm: tuple[float, float] = A4_MM, margin_mm: float = MARGIN_MM) -> None:
         self.painter = painter
         self.dpi = float(painter.device().logicalDpiX())
@@ -114,10 +117,10 @@ class Canvas:
     def content_width(self) -> float:
         return self.right - self.left
 
-    def font(self, size_pt: float = 8.0, *, bold: bool = False, italic: bool = False, mono: bool = False):
+    def font(self, size_pt: float = 8.0, *, bold: bool = False, italic: bool = False, mono: bool = False) -> "QFont":
         return make_font(size_pt, bold=bold, italic=italic, mono=mono)
 
-    def metrics(self, font):
+    def metrics(self, font: "QFont") -> "QFontMetricsF":
         _, QtGui = _qt()
         return QtGui.QFontMetricsF(font, self.painter.device())
 
@@ -126,7 +129,7 @@ class Canvas:
         return self.mm(self.metrics(self.font(size_pt, bold=bold)).height()) * spacing
 
     # -- text -------------------------------------------------------------
-    def wrap(self, text: str, font, width_mm: float, max_lines: int | None = None) -> list[str]:
+    def wrap(self, text: str, font: "QFont", width_mm: float, max_lines: int | None = None) -> list[str]:
         """``text`` broken into lines no wider than ``width_mm``.
 
         Explicit newlines start new lines.  With ``max_lines`` the last line
@@ -323,7 +326,7 @@ def write_pdf(pages: Sequence[Page], path: str | os.PathLike[str], *, title: str
 
 
 def render_page(page: Page, *, dpi: float = 100.0, page_no: int = 1, page_count: int = 1,
-                border_mm: float = 0.0, generated: dt.datetime | None = None):
+                border_mm: float = 0.0, generated: dt.datetime | None = None) -> "QImage":
     """A picture (``QImage``) of one page, drawn by the same code as the PDF.
 
     ``border_mm`` adds a white border around the page: anything drawn

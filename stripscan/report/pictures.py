@@ -9,9 +9,13 @@ from __future__ import annotations
 import math
 import os
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from .plot import Plot, draw_plot
 from .qtsetup import ReportError, ensure_app, replacing
+
+if TYPE_CHECKING:
+    from PySide6.QtGui import QImage
 
 __all__ = ["plot_image", "save_plot_png", "save_plot_svg"]
 
@@ -30,7 +34,7 @@ def _check_size(width_mm: float, height_mm: float, dpi: float) -> None:
         raise ReportError(f"resolution must be between 50 and 1200 dpi, got {dpi!r}")
 
 
-def plot_image(plot: Plot, *, width_mm: float = 160.0, height_mm: float = 100.0, dpi: float = 150.0):
+def plot_image(plot: Plot, *, width_mm: float = 160.0, height_mm: float = 100.0, dpi: float = 150.0) -> "QImage":
     """The plot drawn on a white ``QImage`` of the given size and resolution."""
     _check_size(width_mm, height_mm, dpi)
     ensure_app()

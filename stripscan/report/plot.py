@@ -17,9 +17,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Sequence, Union
+from typing import TYPE_CHECKING, Sequence, Union
 
 from .qtsetup import ReportError
+
+if TYPE_CHECKING:
+    from PySide6.QtCore import QRectF
+    from PySide6.QtGui import QFont, QPainter, QPen
 
 __all__ = [
     "COLOURS", "Line", "Points", "Band", "HBand", "RefLine", "ErrorBars", "Note", "Plot",
@@ -228,7 +232,7 @@ def _qt():
     return QtCore, QtGui
 
 
-def _pen(colour: str, width_px: float, dash: str = "solid", opacity: float = 1.0):
+def _pen(colour: str, width_px: float, dash: str = "solid", opacity: float = 1.0) -> "QPen":
     QtCore, QtGui = _qt()
     qcolour = QtGui.QColor(colour)
     qcolour.setAlphaF(opacity)
@@ -242,7 +246,7 @@ def _pen(colour: str, width_px: float, dash: str = "solid", opacity: float = 1.0
     return pen
 
 
-def make_font(size_pt: float, *, bold: bool = False, italic: bool = False, mono: bool = False):
+def make_font(size_pt: float, *, bold: bool = False, italic: bool = False, mono: bool = False) -> "QFont":
     """The reports' font: a plain sans (or mono) face at ``size_pt`` points, without ligatures.
 
     Ligatures are turned off so that a PDF's text reads back letter by
@@ -264,7 +268,7 @@ def make_font(size_pt: float, *, bold: bool = False, italic: bool = False, mono:
     return font
 
 
-def draw_marker(painter, x: float, y: float, marker: str, size_px: float, colour: str, filled: bool,
+def draw_marker(painter: "QPainter", x: float, y: float, marker: str, size_px: float, colour: str, filled: bool,
                 pen_px: float) -> None:
     """Draw one marker centred on device point (x, y)."""
     QtCore, QtGui = _qt()
@@ -331,7 +335,7 @@ def _legend_rows(plot: Plot, metrics, width: float, pt: float) -> list[list[tupl
     return [row for row in rows if row]
 
 
-def draw_plot(painter, rect, plot: Plot) -> None:
+def draw_plot(painter: "QPainter", rect: "QRectF", plot: Plot) -> None:
     """Paint ``plot`` inside ``rect`` (a QRectF in device pixels) with ``painter``.
 
     Nothing is drawn outside ``rect``: data are clipped to the plot area and
