@@ -39,6 +39,7 @@ __all__ = [
     "calibrate_tablet",
     "check_exposure",
     "direct_mode_for",
+    "read_found_strip",
     "strip_result",
 ]
 
@@ -176,6 +177,31 @@ def _check_compatible(scan: Scan, calibration: Calibration) -> list[str]:
             "flare and sharpness differ between resolutions"
         )
     return warnings
+
+
+def read_found_strip(scan: Scan, found: FoundStrip) -> tuple[list[StepReading], StepReading | None, list[str]]:
+    """Read a located strip's steps and base+fog area from the stored pixels.
+
+    A strip whose dense end is cut off by the scan's edge is not read at
+    all: steps are numbered from the dense end, so without it every number
+    (and so every log E) could be wrong.
+
+    Returns
+    -------
+    readings, base_fog_reading, notes
+        As :func:`stripscan.core.sample.read_strip`; the notes include the
+        search's own warnings.
+    """
+    readings, bf, notes = read_strip(scan, None, found.geometry)
+    notes = list(found.warnings) + notes
+    if found.dense_end_cut:
+        notes.append(
+            "the strip's dense end is cut off by the scan's edge, so its steps cannot be numbered; "
+            "lay the whole strip on the platen and scan again (or draw it by hand)"
+        )
+        readings = [StepReading(r.step, r.center_rc, float("nan"), float("nan"), 0, 0, 0.0) for r in readings]
+        bf = None
+    return readings, bf, notes
 
 
 def strip_result(
@@ -336,18 +362,7 @@ def analyze_loaded(
         ]
     strips = []
     for index, item in enumerate(found, start=1):
-        readings, bf, notes = read_strip(scan, None, item.geometry)
-        if item.dense_end_cut:
-            # The steps are numbered from the dense end; without it every
-            # number (and so every log E) could be wrong.  Read nothing.
-            notes.append(
-                "the strip's dense end is cut off by the scan's edge, so its steps cannot be numbered; "
-                "lay the whole strip on the platen and scan again (or draw it by hand)"
-            )
-            readings = [
-                StepReading(r.step, r.center_rc, float("nan"), float("nan"), 0, 0, 0.0) for r in readings
-            ]
-            bf = None
+        readings, bf, notes = read_found_strip(scan, item)
         result = strip_result(
             index,
             item.geometry,
@@ -357,7 +372,7 @@ def analyze_loaded(
             options,
             pixel_mm=scan.pixel_mm,
             excluded=(excluded or {}).get(index, ()),
-            notes=list(item.warnings) + notes,
+            notes=notes,
         )
         strips.append(result)
         warnings += [f"strip {index}: {w}" for w in result.warnings]

@@ -30,7 +30,7 @@ import numpy as np
 from .. import __version__
 from ..core.calibration import Calibration, DirectMode
 from ..core.locate import LocateError, LocateOptions, locate_in_scan, with_step_count
-from ..core.pipeline import AnalysisOptions, analyze_loaded, direct_mode_for, strip_result
+from ..core.pipeline import AnalysisOptions, analyze_loaded, direct_mode_for, read_found_strip, strip_result
 from ..core.records import Analysis, StepReading, StripGeometry, StripResult
 from ..core.sample import read_strip
 from ..core.scan import Scan, load_scan
@@ -188,7 +188,9 @@ def find_strips(
     strips = []
     for k, item in enumerate(found):
         progress(0.35 + 0.55 * k / len(found), f"Reading strip {k + 1} of {len(found)}")
-        strips.append(read_state(scan, item.geometry, notes=item.warnings))
+        # The core's own reading of a found strip (it refuses to number a strip cut at its dense end).
+        readings, base_fog, notes = read_found_strip(scan, item)
+        strips.append(StripState(item.geometry, tuple(readings), base_fog, tuple(notes), frozenset()))
     return strips, []
 
 
