@@ -20,7 +20,6 @@ drawing error never leaves a half-written file under the real name.
 
 from __future__ import annotations
 
-import ctypes
 import os
 import sys
 import tempfile
@@ -47,38 +46,15 @@ def ensure_app() -> Any:
         os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
     from PySide6.QtGui import QGuiApplication
 
-    _pin_singletons_if_leaking()
+    # The one guard against a Qt binding that drops references to None/True
+    # (see stripscan.gui.qtguard); importing it applies it when needed.
+    from ..gui import qtguard  # noqa: F401
+
     app = QGuiApplication.instance()
     if app is None:
         # Kept in a module global: Qt must not be torn down while pages are drawn.
         _APP = app = QGuiApplication(["stripscan-report"])
     return app
-
-
-# Far beyond any number of calls in a run, with no risk of overflow.
-_PIN = 1 << 40
-_PINNED = False
-
-
-def _pin_singletons_if_leaking() -> bool:
-    """Pin ``None``, ``True`` and ``False`` when the Qt binding loses references to them; True if pinned."""
-    global _PINNED
-    if _PINNED or sys.version_info >= (3, 12) or sys.implementation.name != "cpython":
-        return _PINNED
-    from PySide6.QtGui import QFont
-
-    font = QFont()
-    calls = 64
-    before = sys.getrefcount(None)
-    for _ in range(calls):
-        font.setBold(True)
-    if sys.getrefcount(None) >= before:
-        return False
-    for value in (True, False, None):
-        # ob_refcnt is the first field of every CPython object.
-        ctypes.c_ssize_t.from_address(id(value)).value += _PIN
-    _PINNED = True
-    return True
 
 
 def _has_display() -> bool:
