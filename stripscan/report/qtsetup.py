@@ -8,10 +8,12 @@ Qt starts, because Qt cannot change platform once it has one.
 PySide6 6.12.0 on Python 3.11 drops one reference to ``None`` on every
 call of a method that returns nothing (``setFont``, ``drawLine``, ...); a
 page makes tens of thousands of such calls, and before Python 3.12 ``None``
-is not immortal, so the interpreter would free it and abort.  When the loss
-is measured, :func:`ensure_app` gives ``None``, ``True`` and ``False`` a
-reference count that cannot reach zero, which is what Python 3.12 does for
-every build.  Nothing is done when no loss is measured.
+is not immortal, so the interpreter would free it and abort.
+:func:`ensure_app` applies :mod:`stripscan.gui.qtguard`, which measures the
+loss and, only when it sees one, gives ``None``, ``True`` and ``False`` a
+reference count that cannot reach zero (what Python 3.12 does for every
+build).  The project excludes that PySide6 release; the guard stays for
+environments that have it anyway.
 
 Outputs are written under a temporary name beside the destination and
 renamed into place only when complete, so a crash, a full disk or a
