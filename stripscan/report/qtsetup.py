@@ -54,8 +54,12 @@ def ensure_app() -> Any:
 
     app = QGuiApplication.instance()
     if app is None:
-        # Kept in a module global: Qt must not be torn down while pages are drawn.
-        _APP = app = QGuiApplication(["stripscan-report"])
+        # A widgets application (a QGuiApplication too), so that a window
+        # opened later in the same process can still use it.  Kept in a
+        # module global: Qt must not be torn down while pages are drawn.
+        from PySide6.QtWidgets import QApplication
+
+        _APP = app = QApplication(["stripscan-report"])
     return app
 
 
