@@ -117,7 +117,9 @@ class QcPanel(QWidget):
         layout.addLayout(top)
         layout.addWidget(self.status_label)
         layout.addWidget(self.graphics, 1)
-        layout.addWidget(self._make_form())
+        #: The typed-day form; a page with room to the side may place it there.
+        self.form_box = self._make_form()
+        layout.addWidget(self.form_box)
         if archive_path is not None:
             self.set_archive(archive_path)
 
@@ -306,15 +308,21 @@ class QcPanel(QWidget):
             if len(pts) > 1:
                 plot.addItem(pg.PlotDataItem([self._x(p.date) for p in pts], [p.deviation for p in pts],
                                              pen=pg.mkPen("#888888", width=1)))
+        # Bars ending on one day share one label: stacked a few pixels apart, their words would overlap.
+        labels: dict[float, tuple[float, list[str]]] = {}
         for row, finding in enumerate(f for f in data.findings if f.quantity == series.quantity):
             y = -span * (0.95 - 0.065 * (row % 4))
             days = [self._x(d) for d in finding.dates if data.first <= d <= data.last]
             if days:
                 plot.addItem(pg.PlotDataItem([days[0] - 0.2, days[-1] + 0.2], [y, y],
                                              pen=pg.mkPen("#8E4A7A", width=5)))
-                label = pg.TextItem(describe_rule(finding), color="#8E4A7A", anchor=(0, 0.5))
-                label.setPos(days[-1] + 0.35, y)
-                plot.addItem(label)
+                words = labels.setdefault(days[-1], (y, []))[1]
+                if describe_rule(finding) not in words:
+                    words.append(describe_rule(finding))
+        for end, (y, words) in labels.items():
+            label = pg.TextItem(", ".join(words), color="#8E4A7A", anchor=(0, 0.5))
+            label.setPos(end + 0.35, y)
+            plot.addItem(label)
         spots = []
         for p in series.points:
             if p.deviation is None:
