@@ -36,11 +36,11 @@ def make_window(settings: AppSettings | None = None):
     return MainWindow(settings=settings)
 
 
-def _start(settings_path: str | os.PathLike[str] | None, log_dir: str | os.PathLike[str] | None):
+def _start(settings: str | os.PathLike[str] | AppSettings | None, log_dir: str | os.PathLike[str] | None):
     app = make_app()
     path = setup_logging(log_dir)
     log.info("stripscan window starting; log at %s", path)
-    window = make_window(AppSettings(settings_path))
+    window = make_window(settings if isinstance(settings, AppSettings) else AppSettings(settings))
     install_excepthook(lambda: QApplication.activeWindow() or window)
     return app, window
 
@@ -65,8 +65,18 @@ def run_gui(
     return int(app.exec())
 
 
-def open_demo(window, folder: str | os.PathLike[str] | None = None):
+def open_demo(window, folder: str | os.PathLike[str] | None = None, *,
+              archive_folder: str | os.PathLike[str] | None = None):
     """Point ``window`` at the invented demo: its calibration active, lot A's scan opening.
+
+    Parameters
+    ----------
+    window : MainWindow
+    folder : path-like, optional
+        Where the demo's files are (made there if missing).
+    archive_folder : path-like, optional
+        Also build the demo lot archive and QC month there (in a worker
+        thread) and point the archive, comparison and QC pages at it.
 
     Returns the demo's files (:class:`stripscan.demo_data.DemoFiles`).
     """
@@ -75,6 +85,8 @@ def open_demo(window, folder: str | os.PathLike[str] | None = None):
     files = demo_files(folder)
     window.use_calibration_file(str(files.calibration))
     window.open_path(str(files.lot_a_scan))
+    if archive_folder is not None:
+        window.workspace.build_demo(archive_folder, files)
     return files
 
 
@@ -84,13 +96,26 @@ def run_demo(folder: str | None = None) -> int:
     Parameters
     ----------
     folder : str, optional
-        Where the demo's files are (made there if missing); default the
-        checkout's ``sample_scans/`` or a cache folder.
+        The demo's own folder: its files (made there if missing), its
+        settings and its lot archive.  By default the files are the
+        checkout's ``sample_scans/`` (or a cache folder) and the settings
+        and archive go to a new temporary folder.
+
+    The demo lot archive and a month of processor QC are built there in a
+    worker thread (progress in the status bar); the archive, comparison and
+    QC pages show them when ready.
     """
-    # The demo keeps its own settings, so it never changes the user's active calibration.
-    settings = Path(folder) / "stripscan-demo.ini" if folder else Path(tempfile.mkdtemp(prefix="stripscan-demo-")) / "settings.ini"
+    from .jobs import demo_archive_path
+    from .workspace import set_archive_setting
+
+    # The demo keeps its own settings and its own archive in its own folder, so it never changes
+    # the user's active calibration nor reads or writes the user's lot archive.
+    own = Path(folder) if folder else Path(tempfile.mkdtemp(prefix="stripscan-demo-"))
+    own.mkdir(parents=True, exist_ok=True)
+    settings = AppSettings(own / "stripscan-demo.ini")
+    set_archive_setting(settings, demo_archive_path(own))
     app, window = _start(settings, None)
     window.show()
-    files = open_demo(window, Path(folder) if folder else None)
-    window.statusBar().showMessage(f"Demo: invented scenario in {files.folder}", 10000)
+    files = open_demo(window, own if folder else None, archive_folder=own)
+    window.statusBar().showMessage(f"Demo: invented scenario in {files.folder}; its archive in {own}", 10000)
     return int(app.exec())

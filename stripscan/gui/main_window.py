@@ -18,7 +18,6 @@ from PySide6.QtWidgets import (
     QLabel,
     QMainWindow,
     QMessageBox,
-    QProgressBar,
     QPushButton,
     QSizePolicy,
     QSplitter,
@@ -34,11 +33,13 @@ from .curve_view import CurveView
 from .errors import log_file, report_error, show_message
 from .figures_panel import FiguresPanel, StepTable
 from .options_dialog import OptionsDialog
+from .progress import TaskProgress
 from .scan_view import ScanView
 from .session import LoadedScan, Session, find_strips, load_and_find
 from .settings import AppSettings
 from .strips_panel import StripsPanel
 from .tasks import TaskRunner
+from .workspace import Workspace
 
 __all__ = ["MainWindow", "SCAN_SUFFIXES"]
 
@@ -121,18 +122,20 @@ class MainWindow(QMainWindow):
         layout.setContentsMargins(4, 4, 4, 0)
         layout.addWidget(self.banner)
         layout.addWidget(main, 1)
-        self.setCentralWidget(central)
+        # The scan is the first of the pages; the lot archive, comparison and QC panels follow it.
+        self.workspace = Workspace(self, self.session, self.settings, central)
+        self.setCentralWidget(self.workspace.pages)
         dock = QDockWidget("Strips", self)
         dock.setObjectName("strips_dock")
         dock.setWidget(self.strips_panel)
         dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable)
         self.addDockWidget(Qt.DockWidgetArea.LeftDockWidgetArea, dock)
         self.resizeDocks([dock], [235], Qt.Orientation.Horizontal)
+        self.strips_dock = dock
+        # The strips belong to the scan; the other pages get the whole width.
+        self.workspace.pages.currentChanged.connect(lambda _: dock.setVisible(self.workspace.current_page() == "scan"))
 
-        self.progress = QProgressBar()
-        self.progress.setRange(0, 100)
-        self.progress.setMaximumWidth(260)
-        self.progress.hide()
+        self.progress = TaskProgress(self.runner, 260)
         caution = QLabel(CAUTION)
         caution.setStyleSheet("color: #6d4c00")
         caution.setToolTip(CAUTION)
@@ -140,10 +143,9 @@ class MainWindow(QMainWindow):
         caution.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
         caution.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         self.statusBar().addPermanentWidget(self.progress)
+        self.statusBar().addPermanentWidget(self.workspace.progress)
         self.statusBar().addPermanentWidget(caution, 1)
         self.caution_label = caution
-        self.runner.busy_changed.connect(self._busy)
-        self.runner.progress.connect(self._progress)
         self.scan_view.hint.connect(lambda text: self.statusBar().showMessage(text))
         self.strips_panel.draw_requested.connect(self.start_drawing)
         self.strips_panel.find_requested.connect(self.find_strips_again)
@@ -176,6 +178,7 @@ class MainWindow(QMainWindow):
         file.addSeparator()
         self._action(file, "&Save results (JSON)…", self.ask_save_results, QKeySequence.StandardKey.Save)
         self._action(file, "Save the step table (CSV)…", self.step_table._ask_save)
+        self.workspace.fill_file_menu(file)
         file.addSeparator()
         self._action(file, "&Quit", self.close, QKeySequence.StandardKey.Quit)
 
@@ -192,8 +195,10 @@ class MainWindow(QMainWindow):
         self._action(strip, "&Draw a strip by hand", self.start_drawing, "Ctrl+D",
                      "Outline a strip with three clicks where the search did not find it")
         self._action(strip, "&Find strips again", self.find_strips_again)
+        self.workspace.add_menus(bar)
 
         view = bar.addMenu("&View")
+        self.workspace.fill_view_menu(view)
         self._action(view, "Zoom &in", lambda: self.scan_view.zoom(1.25), QKeySequence.StandardKey.ZoomIn)
         self._action(view, "Zoom &out", lambda: self.scan_view.zoom(0.8), QKeySequence.StandardKey.ZoomOut)
         self._action(view, "Show the &whole scan", self.scan_view.fit, "Ctrl+0")
@@ -258,6 +263,7 @@ class MainWindow(QMainWindow):
         self.right_splitter.setSizes([int(height * 0.52), height - int(height * 0.52)])
 
     def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
+        self.workspace.shut_down()
         self.runner.wait(10_000)
         self.settings.set_window_state(self.saveGeometry(), self.saveState())
         self.settings.set_levels(*self.session.levels)
@@ -426,15 +432,6 @@ class MainWindow(QMainWindow):
             f"Caution: {CAUTION}" + (f"\n\nLog file: {where}" if where else ""),
             icon=QMessageBox.Icon.Information,
         )
-
-    def _busy(self, busy: bool) -> None:
-        self.progress.setVisible(busy)
-        if busy:
-            self.progress.setValue(0)
-
-    def _progress(self, fraction: float, text: str) -> None:
-        self.progress.setValue(int(round(100 * fraction)))
-        self.progress.setFormat(f"{text} %p%")
 
     @property
     def busy(self) -> bool:

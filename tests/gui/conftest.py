@@ -71,12 +71,14 @@ def files(tmp_path_factory) -> SimpleNamespace:
 
 @pytest.fixture
 def settings(tmp_path, monkeypatch):
-    """Settings and the log file in tmp_path, never in the user's home."""
+    """Settings, the log file and the default lot archive in tmp_path, never in the user's home."""
     from stripscan.gui.errors import setup_logging
     from stripscan.gui.settings import AppSettings
 
     monkeypatch.setenv("STRIPSCAN_SETTINGS", str(tmp_path / "settings.ini"))
     monkeypatch.setenv("STRIPSCAN_LOG_DIR", str(tmp_path / "logs"))
+    # The window shows the default lot archive when none is chosen: never the real user's in a test.
+    monkeypatch.setenv("STRIPSCAN_ARCHIVE", str(tmp_path / "user-archive" / "archive.sqlite3"))
     setup_logging(tmp_path / "logs")
     return AppSettings(tmp_path / "settings.ini")
 

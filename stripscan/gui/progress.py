@@ -1,0 +1,38 @@
+"""A status-bar progress bar that follows a :class:`~stripscan.gui.tasks.TaskRunner`."""
+
+from __future__ import annotations
+
+from PySide6.QtWidgets import QProgressBar, QWidget
+
+from .tasks import TaskRunner
+
+__all__ = ["TaskProgress"]
+
+
+class TaskProgress(QProgressBar):
+    """Shown while ``runner`` works, with the latest task's words and per cent; hidden otherwise.
+
+    Parameters
+    ----------
+    runner : TaskRunner
+    width : int
+        Widest it may get, in pixels (the status bar's caution keeps the rest).
+    parent : QWidget, optional
+    """
+
+    def __init__(self, runner: TaskRunner, width: int = 260, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setRange(0, 100)
+        self.setMaximumWidth(width)
+        self.hide()
+        runner.busy_changed.connect(self._busy)
+        runner.progress.connect(self._progress)
+
+    def _busy(self, busy: bool) -> None:
+        self.setVisible(busy)
+        if busy:
+            self.setValue(0)
+
+    def _progress(self, fraction: float, text: str) -> None:
+        self.setValue(int(round(100 * fraction)))
+        self.setFormat(f"{text} %p%")

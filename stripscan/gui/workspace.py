@@ -1,0 +1,524 @@
+"""The workspace: the scan page and the lot archive, comparison and processor QC panels in one window.
+
+The main window's centre is a row of pages (tabs): the scan with its curve,
+the lot archive (with its trends), the lot comparison and the processor QC.
+Each panel is the standalone widget of its module, shown as it is; this
+module only points them at one archive file, runs their long work in a
+worker thread (:class:`~stripscan.gui.tasks.TaskRunner`, progress in the
+status bar) and offers the actions that join them: storing the open scan's
+strips, comparing lots, and writing files of what a page shows.
+
+Every number on the pages comes from the archive API, the core and
+:mod:`stripscan.report`; nothing is recomputed here.
+"""
+
+from __future__ import annotations
+
+import html
+import logging
+import os
+import threading
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+from PySide6.QtCore import QObject, Qt, Signal
+from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtWidgets import (
+    QDialog,
+    QFileDialog,
+    QHBoxLayout,
+    QMainWindow,
+    QMenu,
+    QMenuBar,
+    QMessageBox,
+    QSplitter,
+    QStackedWidget,
+    QTabWidget,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from ..archive import Archive, default_archive_path
+from . import jobs
+from .archive_panel import ArchivePanel
+from .compare_panel import ComparePanel
+from .errors import report_error, show_message
+from .exports import Exports
+from .lot_choice import LotChoiceDialog, caution_label
+from .progress import TaskProgress
+from .qc_panel import QcPanel
+from .save_snapshot_dialog import SaveSnapshotDialog
+from .session import Session
+from .settings import AppSettings
+from .tasks import TaskRunner
+
+__all__ = ["Workspace", "PAGES", "archive_setting", "set_archive_setting"]
+
+log = logging.getLogger(__name__)
+
+#: Page names, their tab titles and shortcuts (the trend is a view of the archive page).
+PAGES: tuple[tuple[str, str, str], ...] = (
+    ("scan", "Scan and curve", "Ctrl+1"),
+    ("archive", "Lot archive", "Ctrl+2"),
+    ("trend", "Trends over time", "Ctrl+3"),
+    ("comparison", "Lot comparison", "Ctrl+4"),
+    ("qc", "Processor QC", "Ctrl+5"),
+)
+_ARCHIVE_KEY = "archive/path"
+_ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
+_NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or in the Compare menu) to set two "
+                  "emulsion lots of the archive side by side, or compare a lot with the strips on the open scan.")
+
+
+def archive_setting(settings: AppSettings) -> Path | None:
+    """The archive file chosen last (None: never chosen)."""
+    value = settings.qsettings.value(_ARCHIVE_KEY, "")
+    return Path(str(value)) if value else None
+
+
+def set_archive_setting(settings: AppSettings, path: str | os.PathLike[str] | None) -> None:
+    """Remember the archive file for the next start."""
+    settings.qsettings.setValue(_ARCHIVE_KEY, str(path) if path else "")
+
+
+class Workspace(QObject):
+    """The pages of the main window over one lot archive, and the actions joining them.
+
+    Parameters
+    ----------
+    window : QMainWindow
+        Owner of the dialogs and the status bar.
+    session : Session
+        The open scan.
+    settings : AppSettings
+        Where the chosen archive is remembered.
+    scan_page : QWidget
+        The scan, its curve, figures and steps: the first page.
+
+    Signals
+    -------
+    archive_changed(str)
+        The pages now show this archive file ("" for none).
+    demo_ready(str)
+        The demo archive is built and shown.
+    comparison_shown()
+        The comparison page shows a new comparison.
+
+    Attributes
+    ----------
+    pages : QTabWidget
+        The window's centre.
+    archive_panel, compare_panel, qc_panel
+        The panels, as their modules make them.
+    runner : TaskRunner
+        The workspace's long work (demo build, comparisons, files).
+    progress : TaskProgress
+        Shows that work, for the status bar.
+    exports : Exports
+        Writes files of what the pages show.
+    dialog : QDialog or None
+        The form opened last (storing strips, picking lots), for a test or a script to fill in.
+    """
+
+    archive_changed = Signal(str)
+    demo_ready = Signal(str)
+    comparison_shown = Signal()
+
+    def __init__(self, window: QMainWindow, session: Session, settings: AppSettings, scan_page: QWidget) -> None:
+        super().__init__(window)
+        self.window, self.session, self.settings = window, session, settings
+        self.runner = TaskRunner(self)
+        self.archive_path: Path | None = None
+        self.comparison: jobs.ComparisonResult | None = None
+        self.building = False
+        self.dialog: QDialog | None = None
+        # Set on closing: the demo build stops between two scans rather than outlive the window.
+        self._cancel = threading.Event()
+
+        self.archive_panel = ArchivePanel(None)
+        for split in self.archive_panel.findChildren(QSplitter, options=Qt.FindChildOption.FindDirectChildrenOnly):
+            # Room for the snapshot list's last column (status) at 1440 px without scrolling sideways.
+            split.setSizes([680, 760])
+        self.compare_panel = ComparePanel(())
+        self.qc_panel = QcPanel(None)
+        qc_page = QWidget()
+        qc_layout = QVBoxLayout(qc_page)
+        qc_layout.setContentsMargins(0, 0, 0, 4)
+        # The typed-day form beside the charts, not under them: at 900 px high the three
+        # charts need the height, and the form's few fields need no more than a column.
+        side = QVBoxLayout()
+        side.setContentsMargins(0, 44, 8, 0)
+        self.qc_panel.form_box.setFixedWidth(380)
+        side.addWidget(self.qc_panel.form_box)
+        side.addStretch(1)
+        row = QHBoxLayout()
+        row.addWidget(self.qc_panel, 1)
+        row.addLayout(side)
+        qc_layout.addLayout(row, 1)
+        # The panel's status carries the caution only once a processor is shown; the page always does.
+        self.qc_caution = caution_label()
+        self.qc_caution.setContentsMargins(8, 0, 8, 0)
+        qc_layout.addWidget(self.qc_caution)
+        self.page_widgets: dict[str, QWidget] = {"scan": scan_page, "archive": self.archive_panel,
+                                                 "comparison": self.compare_panel, "qc": qc_page}
+        self.pages = QTabWidget()
+        self.pages.setDocumentMode(True)
+        for name, title, _ in PAGES:
+            if name in self.page_widgets:
+                self.pages.addTab(self.page_widgets[name], title)
+
+        self.progress = TaskProgress(self.runner, 340)
+        self.exports = Exports(self)
+        self._make_actions()
+        self.pages.setCornerWidget(self._corner(), Qt.Corner.TopRightCorner)
+        self.pages.currentChanged.connect(self._corner_follow)
+        self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
+
+    # -- actions and menus ----------------------------------------------------------------
+    def _act(self, text: str, slot: Callable[[], Any], tip: str = "", shortcut: str | None = None) -> QAction:
+        action = QAction(text, self.window)
+        action.setStatusTip(tip)
+        action.setToolTip(tip or text)
+        if shortcut:
+            action.setShortcut(QKeySequence(shortcut))
+        action.triggered.connect(lambda checked=False: slot())
+        return action
+
+    def _make_actions(self) -> None:
+        act = self._act
+        self.save_action = act("Save strips to the archive…", self.save_to_archive,
+                               "Store every strip of the open scan in the lot archive, one snapshot each")
+        self.open_archive_action = act("Open archive…", self.ask_open_archive, "Show another lot archive file")
+        self.new_archive_action = act("New archive…", self.ask_new_archive, "Make an empty lot archive file")
+        self.snapshot_report_action = act("Report of the open snapshot (PDF)…", self.exports.ask_snapshot_report,
+                                          "One page on the snapshot open in the lot archive")
+        self.qc_report_action = act("QC report of the latest month (PDF)…", self.exports.ask_qc_report,
+                                    "Charts, days and corrective actions of the processor shown")
+        self.compare_lots_action = act("Compare two lots…", self.ask_compare_lots,
+                                       "Two emulsion lots of the archive side by side, with replicate statistics")
+        self.compare_scan_action = act("Compare a lot with the strips on this scan…", self.ask_compare_with_scan,
+                                       "A lot of the archive against the strips of the open scan")
+        self.comparison_report_action = act("Report of this comparison (PDF)…", self.exports.ask_comparison_report,
+                                            "One page per compared pair of sets")
+        self.steps_csv_action = act("Steps of every strip (CSV)…", lambda: self.exports.ask_export("steps"),
+                                    "Every step of every strip on the scan, at full precision")
+        self.figures_csv_action = act("Figures of every strip (CSV)…", lambda: self.exports.ask_export("figures"),
+                                      "The curve's figures, one row per strip")
+        self.curve_png_action = act("Curve plot as a picture (PNG)…", lambda: self.exports.ask_export("png"),
+                                    "The selected strip's characteristic curve, as the reports draw it")
+        self.curve_svg_action = act("Curve plot as a drawing (SVG)…", lambda: self.exports.ask_export("svg"),
+                                    "The selected strip's characteristic curve, with real lines and text")
+        self.scan_report_action = act("Report of this scan's strips (PDF)…", lambda: self.exports.ask_export("pdf"),
+                                      "One page per strip: curve, figures, steps, calibration")
+        self.page_actions = {name: act(title, lambda n=name: self.show_page(n), f"Show the {title.lower()} page",
+                                       shortcut) for name, title, shortcut in PAGES}
+        self.export_menu = QMenu("E&xport")
+        for action in (self.steps_csv_action, self.figures_csv_action, self.curve_png_action, self.curve_svg_action):
+            self.export_menu.addAction(action)
+        # Greyed out while the demo archive is being built into the file they would use.
+        self._archive_actions = (self.save_action, self.open_archive_action, self.new_archive_action,
+                                 self.snapshot_report_action, self.qc_report_action, self.compare_lots_action,
+                                 self.compare_scan_action)
+
+    def fill_file_menu(self, menu: QMenu) -> None:
+        """Add the exports of the scan page to the File menu."""
+        menu.addMenu(self.export_menu)
+        menu.addAction(self.scan_report_action)
+
+    def add_menus(self, bar: QMenuBar) -> None:
+        """Add the Archive and Compare menus."""
+        archive = bar.addMenu("&Archive")
+        for action in (self.save_action, None, self.open_archive_action, self.new_archive_action, None,
+                       self.snapshot_report_action, self.qc_report_action):
+            archive.addSeparator() if action is None else archive.addAction(action)
+        compare = bar.addMenu("C&ompare")
+        for action in (self.compare_lots_action, self.compare_scan_action, None, self.comparison_report_action):
+            compare.addSeparator() if action is None else compare.addAction(action)
+
+    def fill_view_menu(self, menu: QMenu) -> None:
+        """Put the pages, with their shortcuts, at the top of the View menu."""
+        for action in self.page_actions.values():
+            menu.addAction(action)
+        menu.addSeparator()
+
+    def _corner(self) -> QStackedWidget:
+        # The tab row has room to the right: each page's own actions go there, no extra row is taken.
+        stack = QStackedWidget()
+        rows: dict[str, Sequence[QAction | QMenu]] = {
+            "scan": (self.save_action, self.scan_report_action, self.export_menu),
+            "archive": (self.open_archive_action, self.new_archive_action, self.snapshot_report_action),
+            "comparison": (self.compare_lots_action, self.compare_scan_action, self.comparison_report_action),
+            "qc": (self.qc_report_action,),
+        }
+        self.corner_buttons: dict[str, list[QToolButton]] = {}
+        for name in self.page_widgets:
+            row = QWidget()
+            layout = QHBoxLayout(row)
+            layout.setContentsMargins(0, 2, 4, 2)
+            layout.setSpacing(4)
+            layout.addStretch(1)
+            buttons = []
+            for item in rows[name]:
+                button = QToolButton()
+                button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
+                if isinstance(item, QMenu):
+                    button.setText("Export")
+                    button.setToolTip("Save the scan's steps, figures or curve plot as files")
+                    button.setMenu(item)
+                    button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
+                else:
+                    button.setDefaultAction(item)
+                layout.addWidget(button)
+                buttons.append(button)
+            self.corner_buttons[name] = buttons
+            stack.addWidget(row)
+        self._corner_stack = stack
+        return stack
+
+    def _corner_follow(self, index: int) -> None:
+        self._corner_stack.setCurrentIndex(index)
+
+    # -- pages ------------------------------------------------------------------------------------
+    def show_page(self, name: str) -> None:
+        """Bring a page to the front; "archive" opens its snapshot view, "trend" its trend."""
+        panel = self.archive_panel
+        if name == "trend":
+            panel.tabs.setCurrentWidget(panel.trend)
+            name = "archive"
+        elif name == "archive":
+            panel.tabs.setCurrentWidget(panel.view)
+        self.pages.setCurrentWidget(self.page_widgets[name])
+
+    def current_page(self) -> str:
+        widget = self.pages.currentWidget()
+        return next(name for name, w in self.page_widgets.items() if w is widget)
+
+    def status(self, text: str, msecs: int = 8000) -> None:
+        """A line in the status bar (``msecs`` 0: until the next)."""
+        self.window.statusBar().showMessage(text, msecs)
+
+    def tell(self, title: str, text: str) -> QMessageBox:
+        """A message that does not block the window."""
+        return show_message(self.window, title, text, icon=QMessageBox.Icon.Information)
+
+    # -- the archive ---------------------------------------------------------------------------------
+    def set_archive(self, path: str | os.PathLike[str] | None, *, persist: bool = True) -> None:
+        """Point the archive, trend, comparison and QC pages at the archive file ``path``."""
+        self.archive_path = Path(path) if path is not None else None
+        self.archive_panel.set_archive(self.archive_path)
+        self._point_qc()
+        self.comparison = None
+        self.compare_panel.set_comparisons(())
+        self.compare_panel.title.setText(_NO_COMPARISON)
+        if persist:
+            set_archive_setting(self.settings, self.archive_path)
+        self.archive_changed.emit(str(self.archive_path or ""))
+
+    def _point_qc(self) -> None:
+        path = self.archive_path
+        if path is not None and path.is_file():
+            if self.qc_panel.archive_path == path:
+                self.qc_panel.refresh()
+            else:
+                self.qc_panel.set_archive(path)
+            if self.qc_panel.processor_box.count() == 0:
+                self.qc_panel.status_label.setText(html.escape(
+                    f"No processor has QC strips in {path.name} yet. Record a processor's daily strips with "
+                    "“stripscan qc add”; its charts and status then show here."))
+            return
+        # QcPanel opens the file for writing; a missing file must not be made just by looking.
+        self.qc_panel.archive_path = None
+        self.qc_panel.refresh()
+        where = f"No archive yet at {path}." if path is not None else "No archive chosen."
+        self.qc_panel.status_label.setText(html.escape(f"{where} A processor's QC log shows here once the "
+                                                       "archive holds its daily strips."))
+
+    def _archive_ready(self) -> bool:
+        if self.building:
+            self.tell("The demo archive is not ready yet",
+                       "The demo archive is still being built; the progress is in the status bar.")
+            return False
+        if self.archive_path is None or not self.archive_path.is_file():
+            self.tell("No archive", "There is no lot archive to read yet. Open one or make a new one "
+                                     "(Archive menu), or store the strips of a scan first.")
+            return False
+        return True
+
+    def ask_open_archive(self) -> None:
+        start = str(self.archive_path.parent) if self.archive_path else ""
+        path, _ = QFileDialog.getOpenFileName(self.window, "Open a lot archive", start, _ARCHIVE_FILTER)
+        if path:
+            self.open_archive(path)
+
+    def open_archive(self, path: str | os.PathLike[str]) -> bool:
+        """Show the archive at ``path`` (checked first) and remember it; False with a message when unusable."""
+        return self._use_archive(Path(path), create=False)
+
+    def _use_archive(self, path: Path, *, create: bool) -> bool:
+        try:
+            # Opened once here so a bad file is named now, not by each panel in turn.
+            Archive.open(path, read_only=not create, create=create).close()
+        except Exception as exc:  # shown, never fatal
+            report_error(self.window, f"The archive could not be {'made' if create else 'opened'}", exc)
+            return False
+        self.set_archive(path)
+        self.status(f"{'New lot' if create else 'Lot'} archive: {path}")
+        return True
+
+    def ask_new_archive(self) -> None:
+        start = str(self.archive_path.parent / "archive.sqlite3") if self.archive_path else "archive.sqlite3"
+        path, _ = QFileDialog.getSaveFileName(self.window, "Make a new lot archive", start, _ARCHIVE_FILTER,
+                                              options=QFileDialog.Option.DontConfirmOverwrite)
+        if path:
+            self.new_archive(path)
+
+    def new_archive(self, path: str | os.PathLike[str]) -> bool:
+        """Make an empty archive at ``path`` and show it; an existing file is opened, never emptied."""
+        path = Path(path)
+        if not path.suffix:
+            path = path.with_suffix(".sqlite3")
+        if path.exists():
+            self.tell("That archive exists", f"{path} exists already; it is opened as it is, nothing is removed.")
+            return self.open_archive(path)
+        return self._use_archive(path, create=True)
+
+    def save_to_archive(self) -> SaveSnapshotDialog | None:
+        """Open the form that stores the open scan's strips in the archive, one snapshot per strip."""
+        if self.building:
+            self._archive_ready()
+            return None
+        analysis = self.session.analysis()
+        if analysis is None or not analysis.strips:
+            self.tell("Nothing to store", "Open a scan with strips (and a usable calibration) first.")
+            return None
+        if self.archive_path is None:
+            self.tell("No archive", "Choose the lot archive first (Archive menu).")
+            return None
+        dialog = self.archive_panel.save_dialog(analysis, self.session.calibration)
+        dialog.saved.connect(self._stored)
+        self.dialog = dialog
+        return dialog
+
+    def _stored(self, lot: str, ids: list[int]) -> None:
+        self._point_qc()  # the first snapshot may have made the file
+        self.status(f"Stored {len(ids)} snapshot{'s' if len(ids) != 1 else ''} of lot {lot} in {self.archive_path}")
+
+    # -- comparing lots -------------------------------------------------------------------------------
+    def _lots(self) -> list[str]:
+        with Archive.open(self.archive_path, read_only=True) as archive:  # type: ignore[arg-type]
+            return [s.lot.lot_id for s in archive.list_lots() if s.snapshot_count > 0]
+
+    def ask_compare_lots(self) -> LotChoiceDialog | None:
+        if not self._archive_ready():
+            return None
+        lots = self._lots()
+        if len(lots) < 2:
+            self.tell("Two lots are needed", f"The archive holds snapshots of {len(lots)} lot(s); a comparison "
+                                              "needs two lots with stored strips.")
+            return None
+        return self._open_choice(LotChoiceDialog(lots, parent=self.window), lambda lots: self.compare_lots(*lots))
+
+    def ask_compare_with_scan(self) -> LotChoiceDialog | None:
+        analysis = self.session.analysis()
+        if analysis is None or not analysis.strips:
+            self.tell("No strips to compare", "Open a scan with strips first.")
+            return None
+        if not self._archive_ready():
+            return None
+        lots = self._lots()
+        if not lots:
+            self.tell("No lot to compare with", "The archive holds no snapshot of any lot yet.")
+            return None
+        dialog = LotChoiceDialog(lots, scan_name=jobs.scan_set(analysis).name, parent=self.window)
+        return self._open_choice(dialog, lambda lots: self.compare_with_scan(lots[0]))
+
+    def _open_choice(self, dialog: LotChoiceDialog, then: Callable[[list[str]], None]) -> LotChoiceDialog:
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        dialog.chosen.connect(then)
+        self.dialog = dialog
+        dialog.open()
+        return dialog
+
+    def compare_lots(self, lot_a: str, lot_b: str, *, show: bool = True) -> None:
+        """Compare lot B with lot A (worker thread); the comparison page shows it (and comes to the front)."""
+        self._compare([lot_a, lot_b], show=show)
+
+    def compare_with_scan(self, lot: str) -> None:
+        """Compare the open scan's strips (B) with a lot of the archive (A)."""
+        analysis = self.session.analysis()
+        if analysis is None or not analysis.strips:
+            return
+        calibration = self.session.calibration.to_dict() if self.session.calibration else {"mode": "direct"}
+        self._compare([lot], jobs.scan_set(analysis), calibration)
+
+    def _compare(self, lots: list[str], extra: Any = None, calibration: dict[str, Any] | None = None, *,
+                 show: bool = True) -> None:
+        if not self._archive_ready():
+            return
+        self.status(f"Comparing with lot {lots[0]}…")
+        self.runner.start(jobs.compare_lots, self.archive_path, lots, extra, calibration, key="compare",
+                          on_done=lambda result: self._compared(result, show),
+                          on_error=lambda exc: report_error(self.window, "The sets could not be compared", exc))
+
+    def _compared(self, result: jobs.ComparisonResult, show: bool) -> None:
+        self.comparison = result
+        self.compare_panel.set_comparisons(result.comparisons)
+        if show:
+            self.show_page("comparison")
+        first = result.comparisons[0]
+        self.status(f"Compared {first.b.name} with {first.a.name}" + (f"; {'; '.join(result.notes)}"
+                                                                          if result.notes else ""), 12000)
+        self.comparison_shown.emit()
+
+    # -- the demo ---------------------------------------------------------------------------------------------
+    def build_demo(self, folder: str | os.PathLike[str], files: Any) -> None:
+        """Build the demo archive (lots, then a QC month) in ``folder`` in a worker thread, then show it.
+
+        Until it is ready the archive's actions are greyed out, so nothing
+        else writes the file being built; ``demo_ready`` follows.
+        """
+        self.building = True
+        self._cancel.clear()
+        for action in self._archive_actions:
+            action.setEnabled(False)
+        self.set_archive(jobs.demo_archive_path(folder), persist=False)
+        self.archive_panel.where.setText(f"Building the demo archive in {folder}… The scan page can be used "
+                                         "meanwhile; the progress is in the status bar.")
+        self.qc_panel.status_label.setText("The demo's month of processor QC is added once the lots are stored.")
+        self.compare_panel.title.setText("The two demo lots are compared once the demo archive is built.")
+        self.runner.start(jobs.build_demo_workspace, folder, files, cancel=self._cancel, key="demo",
+                          on_done=self._demo_built, on_error=self._demo_failed)
+
+    def _demo_done(self) -> None:
+        self.building = False
+        for action in self._archive_actions:
+            action.setEnabled(True)
+
+    def _demo_built(self, path: Path) -> None:
+        self._demo_done()
+        self.set_archive(path)
+        self.status(f"Demo archive ready: {path}", 12000)
+        # A new user finds every page filled: the latest snapshot open, the two lots compared.
+        self.archive_panel.open_selected()
+        lots = self._lots()
+        if len(lots) >= 2:
+            self.compare_lots(*lots[:2], show=False)  # the person stays on the page they are reading
+        self.demo_ready.emit(str(path))
+
+    def _demo_failed(self, error: BaseException) -> None:
+        self._demo_done()
+        if isinstance(error, jobs.Cancelled):
+            return
+        self.set_archive(self.archive_path, persist=False)
+        report_error(self.window, "The demo archive was not built", error)
+
+    # -- busy state -------------------------------------------------------------------------------------------
+    @property
+    def busy(self) -> bool:
+        return self.runner.busy
+
+    def shut_down(self) -> None:
+        """Ask running work to stop (the window is closing)."""
+        self._cancel.set()
