@@ -4,9 +4,14 @@ Usage::
 
     python tools/render_screens.py [FOLDER] [--docs]
 
-FOLDER defaults to ``renders/``.  ``--docs`` also writes the README's
-screenshot, ``docs/screens/main-window.png`` (kept under 300 KB).  No
-display is needed: Qt's offscreen platform is used unless one is set.
+FOLDER defaults to ``renders/``.  The window is rendered at 1440 x 900 with
+each page in front (scan and curve, lot archive, trend, lot comparison,
+processor QC) over the demo archive, built as ``stripscan demo`` builds it
+(in a scratch folder), then each part and dialog on its own.  ``--docs``
+also writes the documentation's screenshots to ``docs/screens/``
+(``main-window.png``, ``archive.png``, ``comparison.png``, ``qc.png``, each
+kept under 300 KB).  No display is needed: Qt's offscreen platform is used
+unless one is set.
 """
 
 from __future__ import annotations
@@ -32,8 +37,10 @@ from stripscan.gui.app import make_app, open_demo  # noqa: E402
 from stripscan.gui.main_window import MainWindow  # noqa: E402
 from stripscan.gui.settings import AppSettings  # noqa: E402
 
-DOCS_SHOT = ROOT / "docs" / "screens" / "main-window.png"
+DOCS = ROOT / "docs" / "screens"
 DOCS_LIMIT = 300_000
+# Window renders that also go to the documentation, by page.
+DOCS_PAGES = {"scan": "main-window.png", "archive": "archive.png", "comparison": "comparison.png", "qc": "qc.png"}
 
 
 def _settle(app: QApplication, runner=None, seconds: float = 30.0) -> None:
@@ -79,15 +86,26 @@ def render(folder: Path, *, docs: bool = False, size: tuple[int, int] = (1440, 9
     """Render every view; returns the files written."""
     app = make_app()
     scratch = Path(tempfile.mkdtemp(prefix="stripscan-render-"))
+    # Never the user's archive, even for a look: the window starts on the demo's own file.
+    os.environ["STRIPSCAN_ARCHIVE"] = str(scratch / "no-user-archive.sqlite3")
     window = MainWindow(settings=AppSettings(scratch / "settings.ini"))
     window.resize(*size)
     window.show()
-    files = open_demo(window)
+    files = open_demo(window, archive_folder=scratch / "demo")
+    workspace = window.workspace
     _settle(app, window.runner)
+    _settle(app, workspace.runner, seconds=180.0)
     session = window.session
-    written = [_save(window, folder / "main-window.png")]
-    if docs:
-        written.append(save_small(window, DOCS_SHOT))
+    written = []
+    for page, name in (("scan", "main-window.png"), ("archive", "archive.png"), ("trend", "trend.png"),
+                       ("comparison", "comparison.png"), ("qc", "qc.png")):
+        workspace.show_page(page)
+        _settle(app)
+        written.append(_save(window, folder / name))
+        if docs and page in DOCS_PAGES:
+            written.append(save_small(window, DOCS / DOCS_PAGES[page]))
+    workspace.show_page("scan")
+    _settle(app)
 
     written.append(_save(window.scan_view, folder / "scan-view.png"))
     for k in range(1, len(session.strips)):
@@ -116,6 +134,15 @@ def render(folder: Path, *, docs: bool = False, size: tuple[int, int] = (1440, 9
     written.append(_save(dialog, folder / "calibration-assistant.png"))
     dialog.reject()
 
+    save = workspace.save_to_archive()
+    _settle(app)
+    written.append(_save(save, folder / "save-to-archive.png"))
+    save.reject()
+    choice = workspace.ask_compare_lots()
+    _settle(app)
+    written.append(_save(choice, folder / "compare-two-lots.png"))
+    choice.reject()
+
     # Without a calibration the banner says so.
     window.use_calibration(None)
     window.open_path(str(files.daily_scans[0][1]))
@@ -128,7 +155,9 @@ def render(folder: Path, *, docs: bool = False, size: tuple[int, int] = (1440, 9
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("folder", nargs="?", default="renders", help="where to write the PNG files (default renders/)")
-    parser.add_argument("--docs", action="store_true", help=f"also write {DOCS_SHOT.relative_to(ROOT)}")
+    parser.add_argument("--docs", action="store_true",
+                        help=f"also write the screenshots in {DOCS.relative_to(ROOT)}/: "
+                             + ", ".join(DOCS_PAGES.values()))
     args = parser.parse_args(argv)
     for path in render(Path(args.folder), docs=args.docs):
         print(f"{path}  ({path.stat().st_size // 1024} KB)")
