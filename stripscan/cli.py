@@ -304,7 +304,19 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _require_display() -> None:
+    """Refuse plainly when no graphical session is there (Qt would abort with a cryptic message)."""
+    if os.environ.get("QT_QPA_PLATFORM") or not sys.platform.startswith("linux"):
+        return
+    if not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):
+        raise CommandError(
+            "the desktop window needs a graphical session (no DISPLAY or WAYLAND_DISPLAY is set); "
+            "the command line works without one: see 'stripscan --help'"
+        )
+
+
 def cmd_demo(args) -> int:
+    _require_display()
     try:
         from .gui.app import run_demo
     except ModuleNotFoundError as exc:
@@ -313,6 +325,7 @@ def cmd_demo(args) -> int:
 
 
 def cmd_gui() -> int:
+    _require_display()
     try:
         from .gui.app import run_gui
     except ModuleNotFoundError as exc:

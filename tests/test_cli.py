@@ -118,3 +118,14 @@ def test_direct_mode_clear_area(files, capsys):
     assert data["calibration"]["i0"] == pytest.approx(expected, abs=0.001)
     assert main(["analyze", str(files / "strips.tif"), "--clear-area", "2,2,x"]) == 1
     assert "--clear-area wants X0,Y0,X1,Y1" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("argv", [[], ["demo"]])
+def test_window_without_a_display_is_a_plain_error(capsys, monkeypatch, argv):
+    # Qt itself would abort the process with a message about platform plugins.
+    for name in ("DISPLAY", "WAYLAND_DISPLAY", "QT_QPA_PLATFORM"):
+        monkeypatch.delenv(name, raising=False)
+    monkeypatch.setattr("sys.platform", "linux")
+    assert main(argv) == 1
+    err = capsys.readouterr().err
+    assert err.startswith("stripscan: error: the desktop window needs a graphical session") and err.count("\n") == 1
