@@ -15,10 +15,8 @@ import time
 import tracemalloc
 from pathlib import Path
 
-import numpy as np
 import tifffile
 
-from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
 from stripscan.core.calibration import Certificate
 from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff

@@ -236,7 +236,7 @@ def test_compare_scan_strip_that_is_not_there(capsys, demo):
     files, _, _ = demo
     code, _, err = run(capsys, "compare", f"scan:{files.lot_a_scan}#2,7", f"scan:{files.lot_b_scan}",
                        "--calibration", files.calibration)
-    assert code == 1 and f"has 3 strip(s), no strip 7" in err
+    assert code == 1 and "has 3 strip(s), no strip 7" in err
 
 
 def test_compare_missing_archive_is_named(capsys, tmp_path):

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 
 import numpy as np
@@ -10,10 +9,8 @@ import pytest
 
 from stripscan.core.calibration import (
     ACCURACY_GOAL,
-    Calibration,
     CalibrationError,
     DirectMode,
-    LateralCorrection,
     fit_calibration,
     fit_lateral,
     flat_field,
