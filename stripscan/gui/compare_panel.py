@@ -38,9 +38,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from .. import CAUTION
 from ..core.compare import Comparison, FigureRow
-from .style import strip_colour
+from .style import caution_label, notes_label, strip_colour
 
 __all__ = ["ComparePanel", "COLUMNS", "VERDICT_COLOURS"]
 
@@ -128,13 +127,8 @@ class ComparePanel(QWidget):
         header = self.table.horizontalHeader()
         header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(len(COLUMNS) - 1, QHeaderView.ResizeMode.Stretch)
-        self.notes = QLabel()
-        self.notes.setWordWrap(True)
-        self.notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.notes.setStyleSheet("color: #8a4b00; font-size: 8pt")
-        self.caution = QLabel(CAUTION)
-        self.caution.setWordWrap(True)
-        self.caution.setStyleSheet("color: #555555; font-style: italic; font-size: 8pt")
+        self.notes = notes_label()
+        self.caution = caution_label()
 
         plots = QWidget()
         grid = QGridLayout(plots)

@@ -26,9 +26,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from .. import CAUTION
 from .session import Session
 from .tables import STEP_COLUMNS, figure_rows, step_rows, step_table_text
+from .style import caution_label, notes_label
 
 __all__ = ["FiguresPanel", "StepTable", "VALUE_ROLE"]
 
@@ -66,13 +66,8 @@ class FiguresPanel(QWidget):
         header.setSectionResizeMode(0, QHeaderView.ResizeMode.Stretch)
         header.setSectionResizeMode(1, QHeaderView.ResizeMode.ResizeToContents)
         header.setSectionResizeMode(2, QHeaderView.ResizeMode.ResizeToContents)
-        self.notes = QLabel()
-        self.notes.setWordWrap(True)
-        self.notes.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        self.notes.setStyleSheet("color: #8a4b00; font-size: 8pt")
-        self.caution = QLabel(CAUTION)
-        self.caution.setWordWrap(True)
-        self.caution.setStyleSheet("color: #555555; font-style: italic; font-size: 8pt")
+        self.notes = notes_label()
+        self.caution = caution_label()
         layout = QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addWidget(self.title)

@@ -10,10 +10,13 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QColor, QPainter, QPen, QPixmap
+from PySide6.QtWidgets import QLabel
 
+from .. import CAUTION
 from . import qtguard  # noqa: F401  (before any signal is emitted)
 
-__all__ = ["LOOKS", "Look", "strip_colour", "look_pen", "swatch", "FILM_LUT", "SCAN_BACKGROUND"]
+__all__ = ["LOOKS", "Look", "strip_colour", "look_pen", "swatch", "FILM_LUT", "SCAN_BACKGROUND",
+           "notes_label", "caution_label"]
 
 # Row-major images match numpy's (rows, cols); once, for every view of the program.
 pg.setConfigOptions(imageAxisOrder="row-major", antialias=True, background="w", foreground="k")
@@ -75,3 +78,20 @@ def swatch(look: Look, size: tuple[int, int] = (30, 16)) -> QPixmap:
         painter.drawLine(QPointF(rect.left(), rect.bottom()), QPointF(rect.right(), rect.top()))
     painter.end()
     return pixmap
+
+
+def notes_label() -> QLabel:
+    """A wrapping, selectable label for a panel's notes and warnings (amber, small)."""
+    label = QLabel()
+    label.setWordWrap(True)
+    label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+    label.setStyleSheet("color: #8a4b00; font-size: 8pt")
+    return label
+
+
+def caution_label() -> QLabel:
+    """The caution every panel shows (grey italic, small)."""
+    label = QLabel(CAUTION)
+    label.setWordWrap(True)
+    label.setStyleSheet("color: #555555; font-style: italic; font-size: 8pt")
+    return label
