@@ -9,10 +9,12 @@ lines) and hairs are rejected as outliers from a robust centre and spread
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from .records import StepReading, StripGeometry
 
-__all__ = ["robust_mean", "read_area", "read_strip", "box_pixels"]
+__all__ = ["robust_mean", "read_area", "read_strip", "box_pixels", "box_mask"]
 
 # A normal distribution's sd is 1.4826 times its median absolute deviation.
 _MAD_TO_SD = 1.4826
@@ -51,9 +53,17 @@ def robust_mean(values: np.ndarray, *, cut: float = 4.0, estimate_from: int = 40
         spread = float(subset.std())
     if spread == 0.0:
         return median, 0.0, int(values.size), 0
-    keep = np.abs(values - median) <= cut * spread
-    kept = values[keep].astype(np.float64)
-    return float(kept.mean()), float(kept.std(ddof=1)) if kept.size > 1 else 0.0, int(kept.size), int(values.size - kept.size)
+    # Two bound comparisons in the values' own type: no temporary of |x - m|.
+    keep = (values >= median - cut * spread) & (values <= median + cut * spread)
+    kept = (values if keep.all() else values[keep]).astype(np.float64)
+    mean = float(kept.mean())
+    if kept.size < 2:
+        return mean, 0.0, int(kept.size), int(values.size - kept.size)
+    deviation = kept - mean
+    # Not ``deviation @ deviation``: a BLAS dot may hand 20 000 values to
+    # worker threads, which only costs time on a busy two-core machine.
+    sd = math.sqrt(float(np.square(deviation, out=deviation).sum()) / (kept.size - 1))
+    return mean, sd, int(kept.size), int(values.size - kept.size)
 
 
 def _middle(values: np.ndarray) -> float:
@@ -78,14 +88,41 @@ def box_pixels(corners_rc: list[tuple[float, float]], shape: tuple[int, int]) ->
     Returns
     -------
     rows, cols : ndarray of int
+        Row-major order.
+    clipped : bool
+        True when part of the area lies outside the image.
+    """
+    (r0, c0), mask, clipped = box_mask(corners_rc, shape)
+    rr, cc = np.nonzero(mask)
+    return rr + r0, cc + c0, clipped
+
+
+def box_mask(
+    corners_rc: list[tuple[float, float]], shape: tuple[int, int]
+) -> tuple[tuple[int, int], np.ndarray, bool]:
+    """The pixels of a parallelogram as a mask over its bounding window.
+
+    Parameters
+    ----------
+    corners_rc : sequence of 4 (row, col)
+        As :func:`box_pixels`.
+    shape : (rows, cols)
+
+    Returns
+    -------
+    top_left : (int, int)
+        Image (row, col) of the mask's first element.
+    mask : ndarray of bool, shape (window_rows, window_cols)
+        True where the pixel's centre lies inside; (0, 0) when none does.
     clipped : bool
         True when part of the area lies outside the image.
 
     Notes
     -----
     Each image row crosses the parallelogram in one run of columns, found
-    from the two edge coordinates being linear in the column; the runs are
-    then expanded into indices without visiting pixels outside the box.
+    from the two edge coordinates being linear in the column; the mask is
+    those runs over the window that holds them, so reading the area is one
+    boolean selection from a view of the image, not a gather by index.
     """
     corners = np.asarray(corners_rc, dtype=np.float64)
     clipped = bool(
@@ -94,15 +131,15 @@ def box_pixels(corners_rc: list[tuple[float, float]], shape: tuple[int, int]) ->
         or corners[:, 0].max() > shape[0] - 0.5
         or corners[:, 1].max() > shape[1] - 0.5
     )
-    empty = np.empty(0, dtype=np.intp)
+    nothing = ((0, 0), np.zeros((0, 0), dtype=bool), clipped)
     edges = np.column_stack((corners[1] - corners[0], corners[3] - corners[0]))
     if abs(np.linalg.det(edges)) < 1e-9:
-        return empty, empty, clipped
+        return nothing
     inverse = np.linalg.inv(edges)
     r0 = max(int(np.ceil(corners[:, 0].min())), 0)
     r1 = min(int(np.floor(corners[:, 0].max())), shape[0] - 1)
     if r1 < r0:
-        return empty, empty, True
+        return (0, 0), nothing[1], True
     rows = np.arange(r0, r1 + 1, dtype=np.float64)
     lo = np.full(rows.size, -np.inf)
     hi = np.full(rows.size, np.inf)
@@ -120,14 +157,15 @@ def box_pixels(corners_rc: list[tuple[float, float]], shape: tuple[int, int]) ->
     # Clip before the cast: rows the box misses carry infinite bounds.
     start = np.clip(np.ceil(lo - 1e-9), 0, shape[1]).astype(np.int64)
     stop = np.clip(np.floor(hi - 1e-9), -1, shape[1] - 1).astype(np.int64)  # inclusive
-    counts = np.clip(stop - start + 1, 0, None)
-    total = int(counts.sum())
-    if total == 0:
-        return empty, empty, clipped
-    rr = np.repeat(rows.astype(np.intp), counts)
-    offsets = np.repeat(np.cumsum(counts) - counts, counts)
-    cc = (np.arange(total) - offsets + np.repeat(start, counts)).astype(np.intp)
-    return rr, cc, clipped
+    filled = np.flatnonzero(stop >= start)
+    if filled.size == 0:
+        return nothing
+    first, last = int(filled[0]), int(filled[-1])
+    start, stop = start[first : last + 1], stop[first : last + 1]
+    c0, c1 = int(start.min()), int(stop.max())
+    window_cols = np.arange(c0, c1 + 1)
+    mask = (window_cols >= start[:, None]) & (window_cols <= stop[:, None])
+    return (r0 + first, c0), mask, clipped
 
 
 class _ArraySource:
@@ -138,11 +176,12 @@ class _ArraySource:
         self._signal = signal
         self._saturated = saturated
 
-    def read_pixels(self, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        values = self._signal[rows, cols]
+    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        window = (slice(top_left[0], top_left[0] + mask.shape[0]), slice(top_left[1], top_left[1] + mask.shape[1]))
+        values = self._signal[window][mask]
         if self._saturated is None:
-            return values, np.zeros(rows.shape, dtype=bool)
-        return values, self._saturated[rows, cols]
+            return values, np.zeros(values.shape, dtype=bool)
+        return values, self._saturated[window][mask]
 
 
 def _source(signal, saturated):
@@ -169,10 +208,11 @@ def read_area(
         True when the area runs off the scan (the reading is then NaN).
     """
     source = _source(signal, saturated)
-    rr, cc, clipped = box_pixels(corners_rc, source.shape)
-    if clipped or rr.size < 4:
-        return StepReading(step, center_rc, float("nan"), float("nan"), int(rr.size), 0, 0.0), True
-    values, saturated_flags = source.read_pixels(rr, cc)
+    top_left, mask, clipped = box_mask(corners_rc, source.shape)
+    count = int(np.count_nonzero(mask))
+    if clipped or count < 4:
+        return StepReading(step, center_rc, float("nan"), float("nan"), count, 0, 0.0), True
+    values, saturated_flags = source.read_masked(top_left, mask)
     mean, sd, kept, rejected = robust_mean(values)
     sat = float(np.count_nonzero(saturated_flags)) / saturated_flags.size
     return StepReading(step, center_rc, mean, sd, kept, rejected, sat), False

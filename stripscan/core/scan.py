@@ -65,6 +65,9 @@ class Scan:
         self._signal: np.ndarray | None = None
         self._saturated: np.ndarray | None = None
         self._top = None if lut is None else len(lut) - 1
+        # A linear table is codes / full scale: dividing gives the same
+        # float32 values twice as fast as looking them up.
+        self._linear_full = None if lut is None or info.decoding != "linear" else np.float32(self._top)
 
     @property
     def info(self) -> ScanInfo:
@@ -99,23 +102,38 @@ class Scan:
 
     def decode(self, pixels: np.ndarray) -> np.ndarray:
         """Linear signal (float32) of stored pixels, shape (...) or (..., channels) -> (...)."""
-        values = self._lut[pixels] if self._lut is not None else pixels.astype(np.float32, copy=False)
+        if self._linear_full is not None:
+            values = pixels.astype(np.float32) / self._linear_full
+        elif self._lut is not None:
+            values = self._lut[pixels]
+        else:
+            values = pixels.astype(np.float32, copy=False)
         if self._weights is None:
             return values
-        return values[..., : len(self._weights)] @ self._weights
+        # einsum's own loop, not a BLAS product that may wait on worker threads.
+        return np.einsum("...c,c->...", values[..., : len(self._weights)], self._weights)
 
-    def read_pixels(self, rows: np.ndarray, cols: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Signal (float32) and saturation flags of the pixels at (rows[i], cols[i]).
+    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Signal (float32) and saturation flags of the pixels selected by a window mask.
 
-        One gather of the stored pixels serves both.
+        Parameters
+        ----------
+        top_left : (int, int)
+            Image (row, col) of ``mask[0, 0]``.
+        mask : ndarray of bool, shape (window_rows, window_cols)
+            Lies inside the image.
+
+        Returns
+        -------
+        signal, saturated : ndarray, shape (count,)
+            In row-major order of the selected pixels.
         """
-        if self.raw.ndim == 2:
-            pixels = np.take(self.raw.reshape(-1), rows * self.raw.shape[1] + cols)
-        else:
-            pixels = self.raw[rows, cols]
+        r0, c0 = top_left
+        pixels = self.raw[r0 : r0 + mask.shape[0], c0 : c0 + mask.shape[1]][mask]
         return self.decode(pixels), self._flags(pixels)
 
     def _flags(self, pixels: np.ndarray) -> np.ndarray:
+        """True where any used channel of stored pixels sits at the top or bottom code."""
         if self._weights is not None:
             pixels = pixels[..., : len(self._weights)]
         if self._top is None:
@@ -124,14 +142,6 @@ class Scan:
             flags = (pixels == 0) | (pixels == self._top)
         # Colour pixels carry their channels last.
         return flags.any(axis=-1) if self.raw.ndim == 3 else flags
-
-    def values_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
-        """Signal of the pixels at (rows[i], cols[i]), float32."""
-        return self.decode(self.raw[rows, cols])
-
-    def saturated_at(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
-        """True where any used channel sits at the top or bottom code."""
-        return self._flags(self.raw[rows, cols])
 
     def sample(self, factor: int) -> np.ndarray:
         """A reduced signal image, one value per ``factor`` x ``factor`` block.
@@ -165,8 +175,7 @@ class Scan:
     def saturated(self) -> np.ndarray:
         """Pixels at the top or bottom code of any channel used, bool (rows, cols)."""
         if self._saturated is None:
-            rows, cols = np.indices(self.shape, sparse=True)
-            self._saturated = self.saturated_at(rows, cols)
+            self._saturated = self._flags(self.raw)
         return self._saturated
 
 

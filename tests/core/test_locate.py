@@ -112,3 +112,18 @@ def test_outline_drawn_by_hand():
     assert with_step_count(geometry, 11).step_pitch_px == pytest.approx(210.0 / 11)
     with pytest.raises(ValueError):
         geometry_from_outline(corners[:3], 21)
+
+
+def test_open_3x3_equals_scipy_rank_filter_opening():
+    # Reference: scipy.ndimage's minimum then maximum filter (edges reflected,
+    # which for a 3 x 3 window repeats the edge pixel) is a 3 x 3 opening.
+    from scipy import ndimage
+
+    from stripscan.core.locate import _open_3x3
+
+    rng = np.random.default_rng(11)
+    for _ in range(100):
+        shape = tuple(int(n) for n in rng.integers(1, 30, 2))
+        mask = rng.random(shape) < rng.random()
+        expected = ndimage.maximum_filter(ndimage.minimum_filter(mask.view(np.uint8), size=3), size=3).astype(bool)
+        assert np.array_equal(_open_3x3(mask), expected)
