@@ -26,7 +26,7 @@ from pathlib import Path, PurePath
 from typing import TYPE_CHECKING, Any, Iterable, Sequence, Union
 
 from ..core.records import StripResult
-from .figures import FIGURE_COLUMNS, step_flag
+from ..figure_table import FIGURE_COLUMNS, step_flag
 from .qtsetup import ReportError, write_text_atomic
 
 if TYPE_CHECKING:
@@ -113,7 +113,7 @@ def export_figures_csv(strips: Source | Iterable[Source], path: str | os.PathLik
     """Write the curve figures, one row per strip, as CSV; return the absolute path.
 
     Columns: ``strip``, every figure with its unit (see
-    :data:`stripscan.report.figures.FIGURE_COLUMNS`), the targets used
+    :data:`stripscan.figure_table.FIGURE_COLUMNS`), the targets used
     (``gradient_low_net``, ``gradient_high_net``, ``speed_net_density``,
     ``mid_density_target``, ``dd_high_target``, ``dd_low_target`` in OD)
     and ``notes`` (why a figure is missing, joined with ``; ``).

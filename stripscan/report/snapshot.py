@@ -24,8 +24,8 @@ import numpy as np
 
 from ..core.curve import CharacteristicCurve
 from ..core.records import Analysis, ScanInfo, StripResult
+from ..figure_table import figure_rows, format_value, step_flag
 from .canvas import Canvas, Column, draw_frame, write_pdf
-from .figures import figure_rows, format_value, step_flag
 from .plot import COLOURS, Line, Plot, Points, RefLine
 from .provenance import calibration_lines, is_uncalibrated, valid_range, when
 from .qtsetup import ReportError

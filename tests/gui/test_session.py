@@ -221,7 +221,13 @@ def test_step_table_text_carries_the_core_numbers(session):
         assert int(cells[0]) == step.step
         assert float(cells[2]) == pytest.approx(step.od, abs=5e-4)
         assert float(cells[3]) == pytest.approx(step.od_sd, abs=5e-4)
-        assert cells[4] == ("used" if step.in_range else "outside calibrated range")
+        # A step the reading kept off the curve (out of range, saturated, too noisy) says so.
+        assert (cells[4] == "not used") == (not step.in_range)
+    # common practice: the mid-density (MD) and density difference (DD) steps are marked in the step list
+    f = result.figures
+    assert lines[f.mid_density_step].split("\t")[4] == "MD"
+    assert lines[f.dd_high_step].split("\t")[4] == "DD high"
+    assert lines[f.dd_low_step].split("\t")[4] == "DD low"
 
 
 def test_event_listeners_all_run_and_errors_still_surface():

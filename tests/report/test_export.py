@@ -16,7 +16,7 @@ from stripscan.archive import Archive
 from stripscan.archive.records import FIGURE_UNITS
 from stripscan.report import (ReportError, curve_plot, export_figures_csv, export_snapshot_json, export_steps_csv,
                               save_plot_png, save_plot_svg)
-from stripscan.report.figures import NOT_REACHED
+from stripscan.figure_table import NOT_REACHED
 
 
 def read_csv(path: Path) -> list[dict[str, str]]:
