@@ -296,7 +296,41 @@ def _tiff_dpi(page) -> float | None:
     return float(res)
 
 
+# Compressed bytes read from a TIFF file in one pass, per decoding thread.
+# tifffile's default pass (256 MB) takes in every strip or tile of a scan at
+# once and then copies each segment out of that buffer, so a compressed page
+# peaked near three times its decoded size: the output, the file's bytes and
+# their copies.  In small passes the output is still allocated once and
+# filled segment by segment, and besides it only one pass (held twice) and
+# the segments being decoded are alive.  A pass per thread keeps every thread
+# of a many-core machine busy; on a 600-dpi A4 page such passes read a little
+# faster than one big one.  A segment larger than a pass is read whole.
+_TIFF_PASS_BYTES = 1 << 20
+
+
 def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
+    """Pixels and resolution of a TIFF file's first page.
+
+    Parameters
+    ----------
+    path : Path
+        The TIFF file.
+
+    Returns
+    -------
+    data : ndarray
+        The page as ``tifffile``'s ``TiffPage.asarray()`` returns it, with
+        planar colour samples moved last: (rows, cols) or (rows, cols, samples).
+    dpi : float or None
+        Resolution from the page's tags.
+    is_tiff : bool
+        Always True.
+
+    Raises
+    ------
+    ScanError
+        When the file holds no image.
+    """
     import tifffile
 
     with tifffile.TiffFile(path) as tif:
@@ -304,7 +338,12 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
             raise ScanError(f"{path}: the TIFF file holds no image")
         page = tif.pages[0]
         dpi = _tiff_dpi(page)
-        data = page.asarray()
+        # A bounded pass changes only how much is read at once: an
+        # uncompressed contiguous page is still read straight into the output
+        # in one call, and every compression, predictor and tiled, striped,
+        # chunky or planar layout still goes through tifffile's own segment
+        # decoder, so shape, dtype and error messages are asarray()'s.
+        data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
         planar_rgb = data.ndim == 3 and data.shape[0] in (3, 4) and data.shape[-1] not in (3, 4)
     if planar_rgb:
         data = np.moveaxis(data, 0, -1)

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import gc
+import tracemalloc
+
 import numpy as np
 import pytest
 import tifffile
@@ -146,3 +149,73 @@ def test_truncated_tiff_is_refused(tmp_path):
 def test_missing_file(tmp_path):
     with pytest.raises(ScanError, match="no such file"):
         load_scan(tmp_path / "nothing.tif")
+
+
+def _written_image(kind: str, rng: np.random.Generator) -> tuple[np.ndarray, dict]:
+    """A noisy test image of 45 x 70 pixels and the imwrite options that store it as ``kind``.
+
+    45 rows and 70 columns are no multiple of the strip or tile sizes used
+    below, so the last strip and the edge tiles are partial.
+    """
+    if kind == "grey16":
+        return rng.normal(30000, 2000, (45, 70)).clip(0, 65535).astype(np.uint16), {"photometric": "minisblack"}
+    image = rng.integers(0, 256, size=(45, 70, 3), dtype=np.uint8)
+    if kind == "rgb8":
+        return image, {"photometric": "rgb", "planarconfig": "contig"}
+    return np.moveaxis(image, -1, 0).copy(), {"photometric": "rgb", "planarconfig": "separate"}
+
+
+@pytest.mark.parametrize("kind", ["grey16", "rgb8", "rgb8-planar"])
+@pytest.mark.parametrize("layout", [{"rowsperstrip": 7}, {"tile": (16, 32)}], ids=["striped", "tiled"])
+@pytest.mark.parametrize("predictor", [False, True], ids=["plain", "predictor"])
+@pytest.mark.parametrize("compression", ["lzw", "zlib"])
+def test_compressed_tiff_decodes_exactly_like_tifffile(tmp_path, compression, predictor, layout, kind):
+    image, options = _written_image(kind, np.random.default_rng(11))
+    path = tmp_path / "scan.tif"
+    tifffile.imwrite(path, image, compression=compression, predictor=predictor, **options, **layout)
+    with tifffile.TiffFile(path) as tif:  # the file really has the layout under test
+        page = tif.pages[0]
+        # TIFF 6.0 and Adobe's Deflate note: LZW is 5, Deflate 8, horizontal differencing 2 (from memory)
+        assert page.compression == {"lzw": 5, "zlib": 8}[compression]
+        assert page.predictor == (2 if predictor else 1)
+        assert page.is_tiled == ("tile" in layout) and len(page.dataoffsets) > 1
+    expected = tifffile.imread(path)  # reference: tifffile.imread, general-purpose TIFF library
+    if kind == "rgb8-planar":
+        expected = np.moveaxis(expected, 0, -1)  # the scan keeps its samples last
+    raw = load_scan(path).raw
+    assert raw.dtype == expected.dtype and raw.shape == expected.shape  # reference: tifffile.imread
+    np.testing.assert_array_equal(raw, expected)  # reference: tifffile.imread
+
+
+def test_lzw_scan_is_decoded_in_little_more_memory_than_its_pixels(tmp_path):
+    # 16-bit scanner noise barely compresses, so the file is almost as large
+    # as the pixels: holding all of its bytes while decoding would show.
+    image = np.random.default_rng(5).normal(30000, 400, (4000, 4000)).astype(np.uint16)
+    path = tmp_path / "noisy.tif"
+    tifffile.imwrite(path, image, compression="lzw")
+    assert path.stat().st_size > 0.5 * image.nbytes
+    image_bytes = image.nbytes
+    del image
+    gc.collect()
+    tracemalloc.start()
+    try:
+        scan = load_scan(path)
+        scan.info  # waits for the file's hash, so its reads fall inside the trace too
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert scan.raw.nbytes == image_bytes
+    # reference: tracemalloc (Python standard library) against ndarray.nbytes;
+    # 1.8 is our memory budget: the pixels once plus buffers of a few MB.
+    assert peak < 1.8 * image_bytes, f"peak {peak / image_bytes:.2f} x the image"
+
+
+@pytest.mark.parametrize("compression", ["lzw", "zlib"])
+def test_truncated_compressed_tiff_is_refused(tmp_path, compression):
+    path = tmp_path / "cut.tif"
+    image = np.random.default_rng(3).normal(30000, 400, (600, 500)).astype(np.uint16)
+    tifffile.imwrite(path, image, compression=compression, rowsperstrip=16)
+    data = path.read_bytes()
+    path.write_bytes(data[: len(data) // 2])
+    with pytest.raises(ScanError, match="cut.tif: cannot be read as an image"):
+        load_scan(path)
