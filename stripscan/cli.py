@@ -90,7 +90,7 @@ def format_analysis(analysis) -> str:
             od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"
             sd = f"{s.od_sd:6.3f}" if math.isfinite(s.od_sd) else "     -"
             out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}  {note}")
-        out.append(f"  base+fog              {_fmt(f.base_fog, 3)}")
+        out.append(f"  base+fog              {_fmt(f.base_fog, 3) if f.base_fog is not None else 'not read'}")
         out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'beyond the calibrated range'}")
         out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
         if f.relative_speed_percent is not None:
@@ -214,7 +214,8 @@ def cmd_calibrate(args) -> int:
         res_text = f"{res:+9.4f}" if res is not None else ("      end" if k < used else " not used")
         print(f"  {step:>4} {density:9.3f} {reading['signal'] or float('nan'):9.5f} {res_text}")
     rms = calibration.rms_residual
-    print(f"Leave-one-out residual RMS: {rms:.4f} OD" if rms is not None else "Leave-one-out residual RMS: n/a")
+    print(f"Leave-one-out residual RMS within the valid range: {rms:.4f} OD" if rms is not None
+          else "Leave-one-out residual RMS within the valid range: n/a")
     lo, hi = calibration.valid_od
     print(f"Reads within ±{ACCURACY_GOAL:.2f} OD from {lo:.2f} to {hi:.2f} OD; steps outside are flagged.")
     if calibration.lateral is not None:

@@ -27,11 +27,13 @@ from .core.records import CurveFigures, StepDensity
 
 __all__ = [
     "FigureRow", "figure_rows", "format_value", "step_flag", "UnitStyle",
-    "FIGURE_KEYS", "FIGURE_COLUMNS", "NOT_REACHED", "ABOVE_RANGE", "NO_VALUE",
+    "FIGURE_KEYS", "FIGURE_COLUMNS", "NOT_REACHED", "NOT_READ", "ABOVE_RANGE", "NO_VALUE",
 ]
 
 #: What a table shows where a figure could not be read from the curve.
 NOT_REACHED = "not reached"
+#: What it shows for a base+fog that was not read (no unexposed film beside the steps, or out of range).
+NOT_READ = "not read"
 #: What it shows for a Dmax denser than the calibrated range.
 ABOVE_RANGE = "above range"
 #: What it shows where there is nothing to read: no strip, or a figure not asked for.
@@ -229,7 +231,8 @@ def _text(figure: _Figure, figures: CurveFigures | None) -> str:
         return NO_VALUE  # not asked for, or not computable without its speed point (the notes say which)
     if figure.key == "dmax" and _above_range(figures):
         return ABOVE_RANGE
-    return format_value(value, figure.digits, signed=figure.signed)
+    missing = NOT_READ if figure.key == "base_fog" else NOT_REACHED
+    return format_value(value, figure.digits, missing=missing, signed=figure.signed)
 
 
 def figure_rows(figures: CurveFigures | None, *, units: UnitStyle = "long",

@@ -193,7 +193,8 @@ class LateralCorrection:
     c_per_mm2 : float
         Curvature, OD per mm^2.
     midline_px : float
-        Midline position along ``axis``, full-resolution pixels.
+        Midline position along ``axis``, in pixels of the calibration's
+        (tablet) scan.
     axis : str
         ``"col"`` or ``"row"``.
     """
@@ -202,11 +203,37 @@ class LateralCorrection:
     midline_px: float
     axis: str = "col"
 
-    def offset_od(self, position_rc: tuple[float, float], reference_rc: tuple[float, float], pixel_mm: float) -> float:
-        """Extra density read at ``position_rc`` compared with ``reference_rc``."""
+    def offset_od(
+        self,
+        position_rc: tuple[float, float],
+        pixel_mm: float,
+        reference_rc: tuple[float, float],
+        reference_pixel_mm: float,
+    ) -> float:
+        """Extra density read at ``position_rc`` compared with ``reference_rc``.
+
+        Parameters
+        ----------
+        position_rc : (float, float)
+            Place of the reading, pixels of its own scan.
+        pixel_mm : float
+            Pixel pitch of that scan, mm.
+        reference_rc : (float, float)
+            Place of the tablet, pixels of the calibration's scan (as ``midline_px``).
+        reference_pixel_mm : float
+            Pixel pitch of the calibration's scan, mm.
+
+        Notes
+        -----
+        Both scans are taken to start at the same corner of the platen;
+        each position is turned into mm with its own scan's pitch, so a
+        strip scanned at another resolution than the tablet is corrected
+        for its true place on the platen.
+        """
         index = 1 if self.axis == "col" else 0
-        x = (position_rc[index] - self.midline_px) * pixel_mm
-        x_ref = (reference_rc[index] - self.midline_px) * pixel_mm
+        midline_mm = self.midline_px * reference_pixel_mm
+        x = position_rc[index] * pixel_mm - midline_mm
+        x_ref = reference_rc[index] * reference_pixel_mm - midline_mm
         return self.c_per_mm2 * (x * x - x_ref * x_ref)
 
     def to_dict(self) -> dict[str, Any]:
@@ -287,6 +314,8 @@ class Calibration:
     excluded_steps : tuple of int
         Certificate steps not used (saturated or not distinguishable).
     rms_residual : float or None
+        RMS of the leave-one-out residuals of the steps within the valid
+        range, OD; every reading's uncertainty includes it.
     certificate : Certificate
     readings : tuple of dict
         Tablet step readings (signal, sd, pixels) as read.
@@ -574,7 +603,10 @@ def fit_calibration(
             valid_hi_index = max(0, k - 1)
             break
     valid = (float(used_cert[0]), float(used_cert[valid_hi_index]))
-    interior = [r for r in residuals if r is not None]
+    # The RMS goes into every reading's uncertainty, so it covers the valid
+    # range only: residuals past its end are why the range ends there, not
+    # the map's error inside it.
+    interior = [r for r in residuals[: valid_hi_index + 1] if r is not None]
     rms = float(np.sqrt(np.mean(np.square(interior)))) if interior else None
     return Calibration(
         log_signal=tuple(float(v) for v in x),

@@ -37,6 +37,7 @@ from .records import CurveFigures, StripResult
 __all__ = [
     "FigureSettings",
     "DEFAULT_INCREMENT",
+    "ISO_SPEED_NET_DENSITY",
     "step_log_exposures",
     "CharacteristicCurve",
     "compute_figures",
@@ -48,6 +49,9 @@ __all__ = [
 
 #: Log exposure between steps of the common √2 tablet: log10 √2 = 0.1505 (common practice: 0.15).
 DEFAULT_INCREMENT = 0.15
+
+#: Net density at which ISO 9236-1 reads the air kerma K_S of ISO speed S = 1 mGy / K_S.
+ISO_SPEED_NET_DENSITY = 1.00
 
 
 @dataclass(frozen=True)
@@ -262,23 +266,29 @@ def compute_figures(
             base_fog=_round(base_fog, 4), dmax=None, speed_log_exposure=None, average_gradient=None,
             gradient_low_log_exposure=None, gradient_high_log_exposure=None, gamma=None,
             gamma_log_exposure=None, latitude_log_exposure=None, mid_density_step=None, mid_density=None,
-            density_difference=None, dd_high_step=None, dd_low_step=None, settings=settings.to_dict(),
-            notes=tuple(notes),
+            density_difference=None, dd_high_step=None, dd_low_step=None, net_reference=_round(base_fog, 4),
+            settings=settings.to_dict(), notes=tuple(notes),
         )
     x, d, numbers = x_all[ok], d_all[ok], step_numbers[ok]
-    if base_fog is None:
-        base_fog = float(d.min())
-        notes.append("no unexposed area was read: base+fog taken as the lightest step's density")
+    # Net densities count from base+fog; without a reading of it, from the
+    # lightest step, which is said, but never stored as a base+fog reading.
+    reference = base_fog
+    if reference is None:
+        reference = float(d.min())
+        notes.append(
+            "no unexposed area was read: net densities count from the lightest step "
+            f"({reference:.2f} OD) and base+fog is not stated"
+        )
     curve = CharacteristicCurve(x, d)
 
     def at_net(net: float, label: str) -> float | None:
-        value = curve.log_exposure_at(base_fog + net)
+        value = curve.log_exposure_at(reference + net)
         if value is None:
-            top = float(d.max()) - base_fog
+            top = float(d.max()) - reference
             if top >= net:
                 notes.append(
                     f"{label}: net density {net:.2f} lies below the lightest usable step "
-                    f"(net {float(d[0]) - base_fog:.2f})"
+                    f"(net {float(d[0]) - reference:.2f})"
                 )
             else:
                 notes.append(
@@ -307,11 +317,14 @@ def compute_figures(
         kerma = np.asarray(air_kerma_ugy, dtype=np.float64)
         if kerma.shape != x_all.shape or np.any(kerma <= 0):
             raise ValueError("air kerma must be positive, one value per step")
-        if speed is not None:
-            k_s = 10.0 ** np.interp(speed, x_all, np.log10(kerma))
+        # ISO 9236-1 reads K_S at net density 1.00 whatever speed point the user chose.
+        iso_point = speed if settings.speed_net_density == ISO_SPEED_NET_DENSITY else curve.log_exposure_at(
+            reference + ISO_SPEED_NET_DENSITY)
+        if iso_point is not None:
+            k_s = 10.0 ** np.interp(iso_point, x_all, np.log10(kerma))
             iso_speed = 1000.0 / float(k_s)
         else:
-            notes.append("ISO speed: net density 1.00 is not reached")
+            notes.append(f"ISO speed: net density {ISO_SPEED_NET_DENSITY:.2f} is not reached")
 
     mid_index = closest_step(d, settings.mid_density_target) - 1
     mid_step, mid_density = int(numbers[mid_index]), float(d[mid_index])
@@ -350,6 +363,7 @@ def compute_figures(
         dd_low_step=lo_step,
         iso_speed=_round(iso_speed, 3),
         relative_speed_percent=_round(relative_speed, 3),
+        net_reference=_round(reference),
         settings=settings.to_dict(),
         notes=tuple(notes),
     )

@@ -240,7 +240,14 @@ def strip_result(
     signals = np.array([r.signal for r in readings], dtype=np.float64)
     od, in_range = mapping.density(signals)
     cal_sd = mapping.rms_residual if isinstance(mapping, Calibration) and mapping.rms_residual else 0.0
-    lateral: LateralCorrection | None = mapping.lateral if isinstance(mapping, Calibration) else None
+
+    def lateral_offset(center_rc: tuple[float, float]) -> float:
+        """Density the lateral response adds at ``center_rc`` over the tablet's place (0 without one)."""
+        if not isinstance(mapping, Calibration) or mapping.lateral is None or not pixel_mm:
+            return 0.0
+        tablet_pixel_mm = 25.4 / mapping.dpi if mapping.dpi else pixel_mm
+        return mapping.lateral.offset_od(center_rc, pixel_mm, mapping.tablet_center_rc, tablet_pixel_mm)
+
     steps = []
     saturated_steps, out_steps, noisy_steps = [], [], []
     for k, reading in enumerate(readings):
@@ -249,8 +256,8 @@ def strip_result(
         if reading.saturated_fraction > MAX_SATURATED:
             ok = False
             saturated_steps.append(reading.step)
-        if lateral is not None and pixel_mm and math.isfinite(value):
-            value -= lateral.offset_od(reading.center_rc, mapping.tablet_center_rc, pixel_mm)  # type: ignore[union-attr]
+        if math.isfinite(value):
+            value -= lateral_offset(reading.center_rc)
         if math.isfinite(reading.signal) and reading.signal > 0 and reading.pixels > 0:
             rel = reading.signal_sd / math.sqrt(reading.pixels) / (reading.signal * math.log(10.0))
             sd = math.hypot(mapping.slope(reading.signal) * rel, cal_sd)
@@ -293,17 +300,16 @@ def strip_result(
     if base_fog_reading is not None and math.isfinite(base_fog_reading.signal):
         bf_od, bf_ok = mapping.density(base_fog_reading.signal)
         value = float(bf_od[0])
-        if lateral is not None and pixel_mm:
-            value -= lateral.offset_od(base_fog_reading.center_rc, mapping.tablet_center_rc, pixel_mm)  # type: ignore[union-attr]
+        value -= lateral_offset(base_fog_reading.center_rc)
         if bool(bf_ok[0]) and base_fog_reading.saturated_fraction <= MAX_SATURATED:
             base_fog = value
         else:
             warnings.append(f"base+fog ({value:.2f} OD) is outside the calibrated range; not used")
     usable = [s.in_range and not s.excluded for s in steps]
-    densest_unusable = any(
-        (not s.in_range) and (not s.excluded) and s.step > max((t.step for t in steps if t.in_range), default=0)
-        for s in steps
-    )
+    # A step past the range stays past it when a person excludes it too: the
+    # film is denser than anything read, so Dmax is not stated.
+    densest_usable = max((s.step for s, use in zip(steps, usable) if use), default=0)
+    densest_unusable = any((not s.in_range) and s.step > densest_usable for s in steps)
     figures = compute_figures(
         log_e,
         [s.od for s in steps],

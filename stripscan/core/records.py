@@ -331,7 +331,8 @@ class CurveFigures:
     Attributes
     ----------
     base_fog : float or None
-        Base+fog density.
+        Base+fog density as read beside the steps; None when no unexposed
+        area was read (or its reading was unusable).
     dmax : float or None
         Highest in-range density on the strip.
     speed_log_exposure : float or None
@@ -359,6 +360,9 @@ class CurveFigures:
     relative_speed_percent : float or None
         Speed relative to a reference speed point, percent faster (+) or
         slower (-), when a reference was given.
+    net_reference : float or None
+        The density net densities count from: ``base_fog``, or, when none
+        was read, the lightest usable step (a note says so).
     settings : dict
         The targets used (net densities, mid-density target, rule...).
     notes : tuple of str
@@ -381,6 +385,7 @@ class CurveFigures:
     dd_low_step: int | None
     iso_speed: float | None = None
     relative_speed_percent: float | None = None
+    net_reference: float | None = None
     settings: dict[str, Any] = field(default_factory=dict)
     notes: tuple[str, ...] = ()
 
@@ -401,6 +406,8 @@ class CurveFigures:
         kwargs = {k: v for k, v in data.items() if k in names}
         kwargs["notes"] = tuple(data.get("notes", ()))
         kwargs["settings"] = dict(data.get("settings", {}))
+        # Records written before net_reference existed counted from base_fog.
+        kwargs.setdefault("net_reference", kwargs.get("base_fog"))
         return cls(**kwargs)
 
 

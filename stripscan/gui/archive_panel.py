@@ -226,16 +226,18 @@ class _StoredCurve(pg.PlotWidget):
         f = strip.figures if strip is not None else None
         bf = f.base_fog if f is not None else None
         self.base_fog.setVisible(bf is not None)
+        if bf is not None:
+            self.base_fog.setValue(bf)
         self.gradient.setData([], [])
         self.speed.setData([], [])
-        if bf is None:
+        ref = f.net_reference if f is not None else None  # where the net densities count from
+        if ref is None:
             return
-        self.base_fog.setValue(bf)
         low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
         if f.gradient_low_log_exposure is not None and f.gradient_high_log_exposure is not None:
-            self.gradient.setData([f.gradient_low_log_exposure, f.gradient_high_log_exposure], [bf + low, bf + high])
+            self.gradient.setData([f.gradient_low_log_exposure, f.gradient_high_log_exposure], [ref + low, ref + high])
         if f.speed_log_exposure is not None:
-            self.speed.setData([f.speed_log_exposure], [bf + f.settings.get("speed_net_density", 1.0)])
+            self.speed.setData([f.speed_log_exposure], [ref + f.settings.get("speed_net_density", 1.0)])
 
 
 class SnapshotView(QWidget):

@@ -231,31 +231,34 @@ class CurveView(QWidget):
     def _show_figures(self, result: StripResult | None) -> None:
         low, high = self.session.levels
         figures = result.figures if result is not None else None
+        reference = figures.net_reference if figures is not None else None
         base_fog = figures.base_fog if figures is not None else None
-        on = base_fog is not None
-        for item in (self.low_line, self.high_line, self.base_fog_line):
-            item.setVisible(on)
-        if on:
+        for item in (self.low_line, self.high_line):
+            item.setVisible(reference is not None)
+        self.base_fog_line.setVisible(base_fog is not None)
+        if reference is not None:
             self._syncing = True
             try:
-                self.low_line.setValue(base_fog + low)
-                self.high_line.setValue(base_fog + high)
+                self.low_line.setValue(reference + low)
+                self.high_line.setValue(reference + high)
             finally:
                 self._syncing = False
-            self.base_fog_line.setValue(base_fog)
             self.low_line.label.setFormat(f"net {low:.2f}")
             self.high_line.label.setFormat(f"net {high:.2f}")
+        if base_fog is not None:
+            self.base_fog_line.setValue(base_fog)
         x1 = figures.gradient_low_log_exposure if figures else None
         x2 = figures.gradient_high_log_exposure if figures else None
-        if on and x1 is not None and x2 is not None:
-            self.gradient_item.setData([x1, x2], [base_fog + low, base_fog + high])
+        if reference is not None and x1 is not None and x2 is not None:
+            self.gradient_item.setData([x1, x2], [reference + low, reference + high])
             self.latitude_region.setRegion((x1, x2))
             self.latitude_region.show()
         else:
             self.gradient_item.setData([], [])
             self.latitude_region.hide()
-        if on and figures.speed_log_exposure is not None:
-            self.speed_item.setData([figures.speed_log_exposure], [base_fog + figures.settings.get("speed_net_density", 1.0)])
+        if reference is not None and figures.speed_log_exposure is not None:
+            self.speed_item.setData([figures.speed_log_exposure],
+                                    [reference + figures.settings.get("speed_net_density", 1.0)])
         else:
             self.speed_item.setData([], [])
         self._show_readout(result)
@@ -303,10 +306,10 @@ class CurveView(QWidget):
         if self._syncing:
             return
         result = self.session.result()
-        base_fog = result.figures.base_fog if result is not None else None
-        if base_fog is None:
+        reference = result.figures.net_reference if result is not None else None
+        if reference is None:
             return
-        net = float(line.value()) - base_fog
+        net = float(line.value()) - reference
         if line is self.low_line:
             self.session.set_levels(low=net)
         else:

@@ -122,7 +122,7 @@ def calibration_lines(calibration: dict[str, Any] | None, digest: str | None = N
     lines.append(("Density range", f"tablet covers {_span(covered)}; read within \u00b1{ACCURACY_GOAL:.2f} OD "
                                    f"from {valid_text}"))
     rms = calibration.get("rms_residual")
-    lines.append(("Residual RMS", f"{_od(rms, 4)} OD (leave-one-out, tablet steps)" if rms is not None
+    lines.append(("Residual RMS", f"{_od(rms, 4)} OD (leave-one-out, tablet steps in the valid range)" if rms is not None
                   else "not available (too few tablet steps)"))
     settings = []
     if calibration.get("bits"):

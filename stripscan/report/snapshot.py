@@ -148,9 +148,10 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
         items.append(Line(tuple(grid), tuple(curve(grid)), label="curve through the usable steps", width_pt=1.3))
     low_net = float(f.settings.get("gradient_low", 0.25))
     high_net = float(f.settings.get("gradient_high", 2.0))
-    if f.base_fog is not None and f.gradient_low_log_exposure is not None and f.gradient_high_log_exposure is not None:
+    reference = f.net_reference  # base+fog, or the lightest step when none was read (a note says so)
+    if reference is not None and f.gradient_low_log_exposure is not None and f.gradient_high_log_exposure is not None:
         x1, x2 = f.gradient_low_log_exposure, f.gradient_high_log_exposure
-        y1, y2 = f.base_fog + low_net, f.base_fog + high_net
+        y1, y2 = reference + low_net, reference + high_net
         if f.average_gradient is not None:
             reach = 0.12
             slope = (y2 - y1) / (x2 - x1)
@@ -159,9 +160,9 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
                               width_pt=0.9, dash="dash"))
         items.append(Points((x1, x2), (y1, y2), label=f"density points (net {low_net:.2f} and {high_net:.2f})",
                             colour=COLOURS["orange"], marker="diamond", size_pt=5.5))
-    if f.base_fog is not None and f.speed_log_exposure is not None:
+    if reference is not None and f.speed_log_exposure is not None:
         net = float(f.settings.get("speed_net_density", 1.0))
-        items.append(Points((f.speed_log_exposure,), (f.base_fog + net,), label=f"speed point (net {net:.2f})",
+        items.append(Points((f.speed_log_exposure,), (reference + net,), label=f"speed point (net {net:.2f})",
                             colour=COLOURS["green"], marker="triangle", size_pt=5.5))
     items.append(Points(tuple(s.log_exposure for s in used), tuple(s.od for s in used), label="step on the curve",
                         size_pt=3.6))

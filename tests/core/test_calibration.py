@@ -200,7 +200,7 @@ def test_lateral_fit_recovers_a_parabola():
     lateral = fit_lateral(blank, pixel_mm=pixel_mm)
     assert lateral.c_per_mm2 == pytest.approx(2e-6, rel=1e-3)
     # offset between a place 80 mm off the midline and the midline itself
-    assert lateral.offset_od((0.0, 399.5 + 320), (0.0, 399.5), pixel_mm) == pytest.approx(2e-6 * 80**2, rel=1e-3)
+    assert lateral.offset_od((0.0, 399.5 + 320), pixel_mm, (0.0, 399.5), pixel_mm) == pytest.approx(2e-6 * 80**2, rel=1e-3)
 
 
 def test_flat_field_removes_lamp_unevenness():

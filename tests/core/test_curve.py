@@ -103,10 +103,14 @@ def test_unusable_steps_are_left_out_and_dmax_beyond_range():
     assert f.average_gradient == pytest.approx(2.0, abs=1e-6)
 
 
-def test_missing_base_fog_falls_back_with_a_note():
+def test_missing_base_fog_is_not_stated_and_net_densities_count_from_the_lightest_step():
     log_e = step_log_exposures(21)
     f = figures(log_e, 0.30 + 2.0 * log_e, base_fog=None)
-    assert f.base_fog == pytest.approx(0.30) and any("base+fog taken" in n for n in f.notes)
+    # A base+fog that was not read is never stored as if it had been (the QC log judges it
+    # against the +0.03 limit of 21 CFR 900.12(e)(1)); the net reference is said instead.
+    assert f.base_fog is None and f.net_reference == pytest.approx(0.30)
+    assert any("lightest step" in n and "base+fog is not stated" in n for n in f.notes)
+    assert f.speed_log_exposure == pytest.approx(0.5, abs=1e-6)  # net 1.00 above 0.30 (arithmetic)
 
 
 def test_iso_speed_from_air_kerma():

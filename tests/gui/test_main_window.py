@@ -335,3 +335,20 @@ def test_demo_opens_with_a_scan_analysed_and_a_calibration_active(qtbot, window)
     qtbot.waitUntil(lambda: not window.busy, timeout=20_000)
     assert window.session.calibration == load_calibration(files.calibration)
     assert len(window.session.strips) == 3 and window.session.result(0) is not None
+
+
+def test_a_strip_drawn_without_base_fog_keeps_its_density_levels(qtbot, open_scan, window, files):
+    # No unexposed area: base+fog is not stated, net densities count from the lightest step
+    # (the figures' note says so), and the two levels stay on the curve to be dragged.
+    calibrated(open_scan, window, files)
+    session, curve = window.session, window.curve_view
+    drawn = session.strips[session.selected].geometry.replace(base_fog_v_px=None, manual=True)
+    index = session.add_strip(drawn)
+    figures = session.result(index).figures
+    assert figures.base_fog is None and figures.net_reference is not None
+    assert any("lightest step" in note for note in figures.notes)
+    assert window.figures.text_of("base_fog") == "not read"
+    assert curve.low_line.isVisible() and not curve.base_fog_line.isVisible()
+    assert curve.low_line.value() == pytest.approx(figures.net_reference + 0.25)  # ISO 9236-1 default level
+    curve.low_line.setValue(figures.net_reference + 0.50)  # what a drag does to the line
+    assert session.levels[0] == pytest.approx(0.50)
