@@ -305,6 +305,10 @@ def compute_figures(
     else:
         avg_gradient = latitude = None
     gamma, gamma_at = curve.max_gradient()
+    if gamma is not None and gamma <= 0.0:
+        # A curve that nowhere rises has no contrast to state.
+        gamma = gamma_at = None
+        notes.append("gamma: the curve does not rise anywhere (is the strip reversed?)")
 
     if beyond_range_denser:
         dmax = None

@@ -342,6 +342,7 @@ def test_strip_read_in_reverse_order_gives_no_speed_gradient_or_dd():
     f = figures_of(x, logistic_film(x)[::-1], base_fog=0.20)
     assert f.speed_log_exposure is None and f.average_gradient is None and f.latitude_log_exposure is None
     assert f.density_difference is None
+    assert f.gamma is None and f.gamma_log_exposure is None  # a falling curve has no maximum slope to state
     assert any("reversed" in n for n in f.notes)
 
 
