@@ -1,34 +1,132 @@
 """Analysis time of a large scan as a ratio to reading the same file with tifffile.
 
-Usage: ``python benchmarks/bench_analyze.py [--dpi 600] [--width-mm 110] [--height-mm 175] [--strips 2]``
+Usage: ``python benchmarks/bench_analyze.py [--dpi 600] [--width-mm 110] [--height-mm 175] [--strips 2] [--memory]``
 
 The scan is simulated (16-bit grey, linear) into a temporary folder; both
 timings are taken in the same run, best of ``--repeat``, so the ratio is
 meaningful on a shared, noisy machine even when the seconds are not.
+``--memory`` also traces the peak Python-heap memory of one more analysis
+and divides it by the decoded image's bytes.
+
+:func:`measure_scan` does the work for any layout of strips and returns the
+figures as :class:`ScanTiming` records; ``bench_large.py`` (and through
+it ``run_all.py``) uses it too.
 """
 
 from __future__ import annotations
 
 import argparse
+import gc
+import hashlib
 import tempfile
 import time
 import tracemalloc
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
 from pathlib import Path
 
 import tifffile
 
-from stripscan.core.pipeline import analyze_scan, calibrate_tablet
 from stripscan.core.calibration import Certificate
+from stripscan.core.pipeline import analyze_scan, calibrate_tablet
 from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
 
+COMPRESSIONS = ("none", "zlib", "lzw")
 
-def best_of(repeat: int, func) -> float:
+
+@dataclass(frozen=True)
+class ScanTiming:
+    """One scan file read and analysed; times in seconds, sizes in bytes."""
+
+    dpi: float
+    compression: str
+    width_px: int
+    height_px: int
+    strips: int
+    image_bytes: int
+    read_s: float
+    hash_s: float
+    analyse_s: float
+    peak_bytes: int | None  # None when memory was not traced
+
+    @property
+    def analyse_per_read(self) -> float:
+        return self.analyse_s / self.read_s
+
+    @property
+    def peak_per_image(self) -> float | None:
+        return None if self.peak_bytes is None else self.peak_bytes / self.image_bytes
+
+
+def best_of(repeat: int, func: Callable[[], object]) -> float:
+    """Shortest of ``repeat`` runs: the run least disturbed by other work on the machine."""
     times = []
     for _ in range(repeat):
+        gc.collect()  # garbage of the previous run must not be collected on this one's clock
         start = time.perf_counter()
         func()
         times.append(time.perf_counter() - start)
     return min(times)
+
+
+def measure_scan(
+    folder: Path,
+    strips: Sequence[StripSpec],
+    *,
+    tablet: TabletSpec,
+    platen_mm: tuple[float, float],
+    dpi: float,
+    compressions: Sequence[str] = ("none",),
+    repeat: int = 3,
+    memory: bool = True,
+) -> Iterator[ScanTiming]:
+    """Simulate ``strips`` on the platen, write one file per compression into ``folder`` and time each.
+
+    The tablet is scanned alone first to calibrate, as a user would.  Yields
+    as each file is done, so a caller can report progress on long runs.
+    """
+    write_tiff(folder / "tablet.tif", simulate_scan([tablet], platen_mm=platen_mm, dpi=dpi, scanner=ScannerModel(seed=3)))
+    cal, _, _ = calibrate_tablet(folder / "tablet.tif", Certificate(tuple(range(1, 22)), tablet.densities))
+    sim = simulate_scan(strips, platen_mm=platen_mm, dpi=dpi, scanner=ScannerModel(seed=4))
+    image_bytes = sim.image.nbytes
+    rows, cols = sim.image.shape
+    for compression in compressions:
+        path = folder / f"strips_{dpi:g}dpi_{compression}.tif"
+        write_tiff(path, sim, compression=None if compression == "none" else compression)
+        read = best_of(repeat, lambda: tifffile.imread(path))
+        # Every analysis hashes its file for provenance; on an uncompressed
+        # file that alone costs more than tifffile's read, so it is reported.
+        digest = best_of(1, lambda: hashlib.sha256(path.read_bytes()).hexdigest())
+        found: list[int] = []
+        analyse = best_of(repeat, lambda: found.append(len(analyze_scan(path, calibration=cal).strips)))
+        if set(found) != {len(strips)}:
+            raise RuntimeError(f"{path.name}: found {sorted(set(found))} strips, expected {len(strips)}")
+        peak = None
+        if memory:
+            gc.collect()
+            tracemalloc.start()
+            try:
+                analyze_scan(path, calibration=cal)
+                _, peak = tracemalloc.get_traced_memory()
+            finally:
+                tracemalloc.stop()
+        yield ScanTiming(dpi, compression, cols, rows, len(strips), image_bytes, read, digest, analyse, peak)
+        path.unlink()  # at 1200 dpi each file is hundreds of MB
+
+
+def measure(dpi: float = 600.0, width_mm: float = 110.0, height_mm: float = 175.0, strips: int = 2,
+            repeat: int = 3, memory: bool = False) -> ScanTiming:
+    """Uncompressed scan of ``strips`` strips side by side, each turned a little more than the last."""
+    tablet = TabletSpec(step_length_mm=7.0, center_mm=(width_mm / 2, height_mm / 2), angle_deg=90.0)
+    pitch = width_mm / strips
+    specs = [
+        StripSpec(film=FilmModel(), center_mm=(pitch * (k + 0.5), height_mm / 2), angle_deg=90.0 + 2.0 * k)
+        for k in range(strips)
+    ]
+    with tempfile.TemporaryDirectory() as tmp:
+        (timing,) = measure_scan(Path(tmp), specs, tablet=tablet, platen_mm=(width_mm, height_mm), dpi=dpi,
+                                 repeat=repeat, memory=memory)
+    return timing
 
 
 def main() -> None:
@@ -41,43 +139,14 @@ def main() -> None:
     parser.add_argument("--memory", action="store_true", help="also measure peak Python-heap memory (slower)")
     args = parser.parse_args()
 
-    with tempfile.TemporaryDirectory() as tmp:
-        tmp = Path(tmp)
-        scanner = ScannerModel(seed=3)
-        tablet = TabletSpec(step_length_mm=7.0, center_mm=(args.width_mm / 2, args.height_mm / 2), angle_deg=90.0)
-        write_tiff(tmp / "tablet.tif", simulate_scan([tablet], platen_mm=(args.width_mm, args.height_mm), dpi=args.dpi, scanner=scanner))
-        cal, _, _ = calibrate_tablet(tmp / "tablet.tif", Certificate(tuple(range(1, 22)), tablet.densities))
-        pitch = args.width_mm / args.strips
-        strips = [
-            StripSpec(film=FilmModel(), center_mm=(pitch * (k + 0.5), args.height_mm / 2), angle_deg=90.0 + 2.0 * k)
-            for k in range(args.strips)
-        ]
-        scan = simulate_scan(strips, platen_mm=(args.width_mm, args.height_mm), dpi=args.dpi, scanner=ScannerModel(seed=4))
-        path = tmp / "strips.tif"
-        write_tiff(path, scan, compression=None)
-        image_bytes = scan.image.nbytes
-        del scan
-
-        read = best_of(args.repeat, lambda: tifffile.imread(path))
-        result = None
-
-        def run():
-            nonlocal result
-            result = analyze_scan(path, calibration=cal)
-
-        analyse = best_of(args.repeat, run)
-        assert result is not None and len(result.strips) == args.strips
-        rows, cols = tifffile.imread(path).shape
-        print(f"scan: {cols} x {rows} px, {args.dpi:g} dpi, 16-bit grey, {args.strips} strips, {image_bytes / 1e6:.1f} MB")
-        print(f"read with tifffile:  {read * 1000:8.1f} ms")
-        print(f"stripscan analyze:   {analyse * 1000:8.1f} ms")
-        print(f"ratio analyse / read: {analyse / read:.2f}")
-        if args.memory:
-            tracemalloc.start()
-            analyze_scan(path, calibration=cal)
-            _, peak = tracemalloc.get_traced_memory()
-            tracemalloc.stop()
-            print(f"peak traced memory / image bytes: {peak / image_bytes:.2f}")
+    t = measure(args.dpi, args.width_mm, args.height_mm, args.strips, args.repeat, args.memory)
+    print(f"scan: {t.width_px} x {t.height_px} px, {t.dpi:g} dpi, 16-bit grey, {t.strips} strips, "
+          f"{t.image_bytes / 1e6:.1f} MB")
+    print(f"read with tifffile:  {t.read_s * 1000:8.1f} ms")
+    print(f"stripscan analyze:   {t.analyse_s * 1000:8.1f} ms")
+    print(f"ratio analyse / read: {t.analyse_per_read:.2f}")
+    if t.peak_per_image is not None:
+        print(f"peak traced memory / image bytes: {t.peak_per_image:.2f}")
 
 
 if __name__ == "__main__":

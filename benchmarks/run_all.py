@@ -1,0 +1,200 @@
+"""Every figure the performance work is judged on, measured in one run and printed as one table.
+
+Usage::
+
+    python3 benchmarks/run_all.py [--quick] [--skip-gui] [--json PATH]
+
+Generates its own scans and archive in temporary folders and measures, each
+as a ratio to a reference taken in the same run (the machines are shared and
+noisy: the seconds vary, the ratios less):
+
+1. analysis time of a 600-dpi A4 16-bit grey scan with six strips ÷ the
+   time tifffile takes to read that file, for uncompressed, zlib and LZW
+   files (target ≤ 2);
+2. the same at 1200 dpi;
+3. peak traced memory (tracemalloc) while analysing ÷ the decoded image's
+   bytes, for each of those files (target ≤ 3);
+4. one density-level drag step in the curve view, recompute + redraw, as
+   the median ÷ a 16 ms frame (target ≤ 1), Qt offscreen;
+5. the archive's listing and trend queries over 10,000 snapshots, best
+   time ÷ 100 ms (target ≤ 1).
+
+The table gives each figure's measured value, target, ratio and whether it
+meets the target.  ``--quick`` takes fewer repeats and only 600 dpi, for a
+smoke run; ``--skip-gui`` leaves out the drag; ``--json PATH`` also writes
+the figures as JSON.  The exit status is 0 whether or not the targets are
+met (this is a measurement, not a test) and 1 only if a benchmark crashed;
+the others still run and are reported.
+
+The pieces come from the single benchmarks beside this file
+(``bench_large.py``, ``bench_archive.py``, ``bench_gui_drag.py``), which
+also run on their own.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+import time
+import traceback
+from collections.abc import Callable, Sequence
+from dataclasses import asdict, dataclass
+from pathlib import Path
+from typing import Any
+
+# Run as a script this folder is already on sys.path; loaded by path (the test) it is not.
+HERE = Path(__file__).resolve().parent
+if str(HERE) not in sys.path:
+    sys.path.insert(0, str(HERE))
+
+import bench_archive  # noqa: E402
+import bench_large  # noqa: E402
+from bench_analyze import COMPRESSIONS  # noqa: E402
+
+ANALYSE_PER_READ = 2.0
+PEAK_PER_IMAGE = 3.0
+FRAME_MS = 16.0
+ARCHIVE_MS = 1000 * bench_archive.TARGET_S
+ARCHIVE_SNAPSHOTS = 10_000
+COMPRESSION_NAMES = {"none": "uncompressed", "zlib": "zlib", "lzw": "LZW"}
+
+
+@dataclass(frozen=True)
+class Figure:
+    """One figure: ``value / reference`` must be at most ``limit`` (None: shown, not judged).
+
+    ``value`` and ``reference`` share ``unit``; the reference is measured in
+    the same run (a read time, the image's bytes) or fixed (a frame, 100 ms).
+    """
+
+    figure: str
+    value: float
+    unit: str
+    reference: float
+    reference_name: str
+    limit: float | None
+    note: str = ""
+
+    @property
+    def ratio(self) -> float:
+        return self.value / self.reference
+
+    @property
+    def meets(self) -> bool | None:
+        return None if self.limit is None else self.ratio <= self.limit
+
+    @property
+    def target(self) -> str:
+        if self.limit is None:
+            return "none (shown only)"
+        if self.limit == 1.0:
+            return f"≤ {self.reference:g} {self.unit}"
+        return f"≤ {self.limit:g} × {self.reference:.1f} {self.unit} {self.reference_name}"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {**asdict(self), "target": self.target, "ratio": self.ratio, "meets": self.meets}
+
+
+def analysis_figures(dpis: Sequence[float], repeat: int, compressions: Sequence[str] = COMPRESSIONS,
+                     progress: Callable[[str], None] = lambda _: None) -> list[Figure]:
+    """Figures 1-3: A4, six strips, each resolution and compression; speed rows first, then memory rows."""
+    speed, memory = [], []
+    for t in bench_large.measure(dpis, compressions, repeat):
+        scan = f"{t.dpi:g} dpi A4, {COMPRESSION_NAMES[t.compression]}"
+        speed.append(Figure(f"analysis ÷ read, {scan}", 1000 * t.analyse_s, "ms", 1000 * t.read_s,
+                            "read", ANALYSE_PER_READ, note=f"sha256 of the file alone {1000 * t.hash_s:.0f} ms"))
+        assert t.peak_bytes is not None  # bench_large always traces memory
+        memory.append(Figure(f"peak memory ÷ image, {scan}", t.peak_bytes / 1e6, "MB", t.image_bytes / 1e6,
+                             "image", PEAK_PER_IMAGE))
+        progress(f"{scan}: analyse {1000 * t.analyse_s:.0f} ms, read {1000 * t.read_s:.0f} ms")
+    return speed + memory
+
+
+def drag_figures(repeats: int) -> list[Figure]:
+    """Figure 4: median drag step of each repaint kind against one 60 Hz frame."""
+    # Qt reads the platform when it is first imported, so set it before bench_gui_drag imports Qt;
+    # a figure taken on a real display would not compare with the offscreen ones.
+    os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    import bench_gui_drag
+
+    return [Figure(f"drag step of {t.strips} strips, {t.label}", t.median_ms, "ms", FRAME_MS, "frame", 1.0,
+                   note=f"p90 {t.p90_ms:.1f} ms")
+            for t in bench_gui_drag.measure(repeats)]
+
+
+def archive_figures(snapshots: int, repeat: int) -> list[Figure]:
+    """Figure 5: best time of each query the GUI runs over the archive, against 100 ms."""
+    timing = bench_archive.measure(snapshots, repeat)
+    # The target is for listing and trending; opening (once a session, with a
+    # full integrity check) is shown beside them without one.
+    return [Figure(f"archive of {snapshots} snapshots: {q.name}", 1000 * q.best_s, "ms", ARCHIVE_MS, "",
+                   None if q.name.startswith("open") else 1.0,
+                   note="" if q.rows is None else f"{q.rows} row{'' if q.rows == 1 else 's'}")
+            for q in timing.queries]
+
+
+def format_table(figures: Sequence[Figure]) -> str:
+    """Figure, measured value, target, ratio, meets/misses, note: one aligned row each."""
+    rows = [("figure", "measured", "target", "ratio", "verdict", "note")]
+    verdicts = {True: "meets", False: "misses", None: "—"}
+    rows += [(f.figure, f"{f.value:.1f} {f.unit}", f.target, f"{f.ratio:.2f}", verdicts[f.meets], f.note)
+             for f in figures]
+    widths = [max(len(row[i]) for row in rows) for i in range(len(rows[0]))]
+    right = {1, 3}  # numbers line up on their right
+    lines = ["  ".join(cell.rjust(w) if i in right else cell.ljust(w) for i, (cell, w) in enumerate(zip(row, widths)))
+             .rstrip() for row in rows]
+    lines.insert(1, "  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="fewer repeats and only 600 dpi (a smoke run)")
+    parser.add_argument("--skip-gui", action="store_true", help="leave out the density-level drag")
+    parser.add_argument("--json", type=Path, metavar="PATH", help="also write the figures as JSON to PATH")
+    args = parser.parse_args(argv)
+
+    started = time.perf_counter()
+
+    def progress(message: str) -> None:
+        # Progress goes to stderr so stdout carries only the table; a full run takes minutes.
+        print(f"[{time.perf_counter() - started:6.1f} s] {message}", file=sys.stderr, flush=True)
+
+    pieces: list[tuple[str, Callable[[], list[Figure]]]] = [
+        ("analysis", lambda: analysis_figures((600.0,) if args.quick else (600.0, 1200.0), 1 if args.quick else 3,
+                                              progress=progress)),
+        ("archive", lambda: archive_figures(ARCHIVE_SNAPSHOTS, 3 if args.quick else 7)),
+    ]
+    if not args.skip_gui:
+        # Last: the Qt application it starts stays alive to the end of the process.
+        pieces.append(("gui drag", lambda: drag_figures(50 if args.quick else 200)))
+
+    figures: list[Figure] = []
+    crashed: list[str] = []
+    for name, piece in pieces:
+        progress(f"{name} ...")
+        try:
+            figures += piece()
+        except Exception:  # one broken benchmark must not cost the figures of the others
+            traceback.print_exc()
+            crashed.append(name)
+            progress(f"{name} crashed")
+    wall = time.perf_counter() - started
+
+    print(format_table(figures))
+    judged = [f for f in figures if f.meets is not None]
+    met = sum(bool(f.meets) for f in judged)
+    print(f"\n{met} of {len(judged)} figures meet their targets; wall time {wall:.0f} s"
+          f"{'; crashed: ' + ', '.join(crashed) if crashed else ''}")
+    if args.json is not None:
+        args.json.write_text(json.dumps({
+            "quick": args.quick, "skip_gui": args.skip_gui, "wall_time_s": wall, "crashed": crashed,
+            "figures": [f.to_dict() for f in figures],
+        }, indent=2, allow_nan=False) + "\n", encoding="utf-8")
+    return 1 if crashed else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,73 @@
+"""``benchmarks/run_all.py`` still loads and measures: its cheapest piece, the archive queries, on a tiny archive.
+
+This guards the script against rot as the code under it changes.  It checks
+what the script hands back (records with the expected keys, positive finite
+numbers, a table row each), never how fast anything ran: timings belong in
+the benchmarks, which print ratios measured in one run (DEVELOPERS.md).
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import json
+import math
+import sys
+from collections.abc import Iterator
+from pathlib import Path
+from types import ModuleType
+
+import pytest
+
+RUN_ALL = Path(__file__).resolve().parents[1] / "benchmarks" / "run_all.py"
+
+# The columns the performance brief asks of the table, plus what names them in JSON.
+RECORD_KEYS = {"figure", "value", "unit", "reference", "reference_name", "limit", "note", "target", "ratio", "meets"}
+
+
+@pytest.fixture(scope="module")
+def run_all() -> Iterator[ModuleType]:
+    """The script loaded from its path: benchmarks/ is a folder of scripts, not a package."""
+    spec = importlib.util.spec_from_file_location("stripscan_benchmarks_run_all", RUN_ALL)
+    assert spec is not None and spec.loader is not None
+    module = importlib.util.module_from_spec(spec)
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(sys, "path", list(sys.path))  # the scripts add their folders; give the suite its own back
+        patch.setitem(sys.modules, spec.name, module)  # dataclasses look their module up while being made
+        spec.loader.exec_module(module)
+        yield module
+
+
+@pytest.fixture(scope="module")
+def figures(run_all: ModuleType) -> list:
+    return run_all.archive_figures(snapshots=30, repeat=1)
+
+
+def test_archive_piece_lists_and_trends(figures: list) -> None:
+    names = [f.figure for f in figures]
+    # The brief's figure 5: listing and trending the archive's snapshots.
+    assert any("list_snapshots()" in name for name in names)
+    assert any("trend(" in name for name in names)
+
+
+def test_records_have_the_table_columns_and_finite_positive_numbers(figures: list) -> None:
+    for figure in figures:
+        record = json.loads(json.dumps(figure.to_dict(), allow_nan=False))  # as --json writes it
+        assert set(record) == RECORD_KEYS
+        for key in ("value", "reference", "ratio"):
+            assert isinstance(record[key], float) and math.isfinite(record[key]) and record[key] > 0, (key, record)
+        assert record["ratio"] == pytest.approx(record["value"] / record["reference"])
+        if record["limit"] is None:  # shown beside the judged figures (opening the archive)
+            assert record["meets"] is None and record["figure"].split(": ")[1].startswith("open")
+        else:
+            assert record["meets"] is (record["ratio"] <= record["limit"])
+        assert record["unit"] == "ms"
+
+
+def test_table_has_a_row_per_figure_with_its_verdict(run_all: ModuleType, figures: list) -> None:
+    header, rule, *rows = run_all.format_table(figures).splitlines()
+    assert header.split() == ["figure", "measured", "target", "ratio", "verdict", "note"]
+    assert set(rule) <= {"-", " "}
+    assert len(rows) == len(figures)
+    for row, figure in zip(rows, figures):
+        assert row.startswith(figure.figure)
+        assert {True: "meets", False: "misses", None: "—"}[figure.meets] in row.split()
