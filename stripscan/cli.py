@@ -17,6 +17,7 @@ import numpy as np
 from typing import Callable, Sequence
 
 from . import CAUTION, __version__
+from .figure_table import step_flag
 
 EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
@@ -86,7 +87,7 @@ def format_analysis(analysis) -> str:
         out.append(f"Strip {strip.index}: {strip.geometry.n_steps} steps, axis {strip.geometry.angle_deg:.1f}°")
         out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}  note")
         for s in strip.steps:
-            note = "excluded" if s.excluded else ("" if s.in_range else "OUT OF RANGE")
+            note = step_flag(s, f)  # the window's and the reports' wording; the warnings below say why
             od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"
             sd = f"{s.od_sd:6.3f}" if math.isfinite(s.od_sd) else "     -"
             out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}  {note}")
