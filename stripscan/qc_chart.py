@@ -9,6 +9,11 @@ under the days they cover.  A point past a limit is told apart by its shape
 tier, a larger diamond past the control limit), so the chart reads in
 grey print and for people who do not see the colours apart.
 
+Entries kept but not used are drawn too, a little left of their day: a
+strip repeated the same day as a hollow mark of its own shape and colour,
+a value corrected afterwards as a small grey cross.  Neither is joined to
+the line, and the legend says what they are.
+
 The picture is drawn on a ``QImage`` offscreen: no window, no display
 needed.  It is written under a temporary name and renamed into place, so a
 failure never leaves a half-written file.
@@ -35,11 +40,12 @@ from stripscan.core.qc import (
     TrendFinding,
     evaluate_day,
 )
-from stripscan.qc_log import LABELS, VERDICT_WORDS, ProcessorLog
+from stripscan.qc_log import LABELS, VERDICT_WORDS, LoggedEntry, ProcessorLog
 
 __all__ = [
-    "MARKS", "BANDS", "ChartPoint", "ChartSeries", "ChartPeriod", "ChartData", "chart_data", "chart_legend",
-    "describe_rule", "y_span", "ensure_app", "render_chart", "render_chart_png",
+    "MARKS", "BANDS", "SET_ASIDE", "CORRECTED_COLOUR", "SET_ASIDE_SHIFT", "ChartPoint", "ChartSeries", "ChartPeriod",
+    "ChartData", "chart_data", "chart_legend", "describe_rule", "y_span", "ensure_app", "render_chart",
+    "render_chart_png",
 ]
 
 #: How a day's point looks, by verdict: colour, shape, size (px) and legend text.
@@ -53,6 +59,13 @@ MARKS = {
 BANDS = {"warning": "#FCEFD2", "action": "#F7D4C6"}
 _LIMIT_LINE, _WARNING_LINE = "#B03A12", "#B7860B"
 _TREND, _EVENT, _BASELINE = "#8E4A7A", "#444444", "#ECECEC"
+#: Legend words for entries kept but not used, by why they are set aside.
+SET_ASIDE = {
+    "repeated": "strip repeated the same day: kept, not used (the latest repeat counts)",
+    "corrected": "value corrected afterwards: kept, not used",
+}
+#: Colour of a corrected value's cross; and how far left of its day a set-aside mark sits, in days.
+CORRECTED_COLOUR, SET_ASIDE_SHIFT = "#777777", 0.25
 
 _APP: Any = None
 
@@ -63,24 +76,31 @@ _APP: Any = None
 
 @dataclass(frozen=True)
 class ChartPoint:
-    """One day on one plot.  ``deviation`` and ``verdict`` are None while the baseline is incomplete."""
+    """One entry on one plot.  ``deviation`` and ``verdict`` are None while the baseline is incomplete.
+
+    ``set_aside`` is ``"repeated"`` or ``"corrected"`` for an entry kept but
+    not used, None for the day's entry in use.
+    """
 
     date: datetime.date
     value: float
     deviation: float | None
     verdict: str | None
     baseline: bool
+    entry_id: int | None = None
+    set_aside: str | None = None
 
 
 @dataclass(frozen=True)
 class ChartSeries:
-    """One quantity's plot: its points and limit lines (None where there is none), OD."""
+    """One quantity's plot: each day's point in use, the entries set aside, and limit lines (None where none), OD."""
 
     quantity: str
     label: str
     points: tuple[ChartPoint, ...]
     action: tuple[float | None, float | None]
     warning: tuple[float | None, float | None]
+    set_aside: tuple[ChartPoint, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -107,6 +127,13 @@ class ChartData:
     periods: tuple[ChartPeriod, ...]
     status: ProcessorStatus
     title: str
+    set_aside_notes: tuple[str, ...] = ()
+
+    @property
+    def set_aside_kinds(self) -> tuple[str, ...]:
+        """Which kinds of set-aside entries the chart shows (``"repeated"``, ``"corrected"``), for its legend."""
+        shown = {p.set_aside for s in self.series for p in s.set_aside}
+        return tuple(k for k in SET_ASIDE if k in shown)
 
 
 def _quantity_verdict(q: str, value: float, levels: OperatingLevels, limits: QCLimits) -> str:
@@ -114,6 +141,24 @@ def _quantity_verdict(q: str, value: float, levels: OperatingLevels, limits: QCL
     # except for q gives q's own tier by exactly the same arithmetic.
     alone = QCValues(**{**{k: getattr(levels, k) for k in QUANTITIES}, q: value})
     return evaluate_day(alone, levels, limits).verdict
+
+
+def _month_span(month: str | None) -> tuple[datetime.date, datetime.date]:
+    if month is None:
+        return datetime.date.min, datetime.date.max
+    try:
+        first = datetime.date.fromisoformat(f"{month}-01")
+    except ValueError:
+        raise ValueError(f"month {month!r} is not written YYYY-MM") from None
+    return first, (first.replace(day=28) + datetime.timedelta(days=4)).replace(day=1) - datetime.timedelta(days=1)
+
+
+def _point(item: LoggedEntry, q: str, levels: OperatingLevels | None, limits: QCLimits, *,
+           baseline: bool = False) -> ChartPoint:
+    value = getattr(item.entry, q)
+    dev = getattr(item.verdict.deviations, q) if item.verdict else None
+    tier = _quantity_verdict(q, value, levels, limits) if levels and item.verdict else None
+    return ChartPoint(item.date, value, dev, tier, baseline, item.entry.id, item.set_aside)
 
 
 def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
@@ -124,14 +169,10 @@ def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
     ValueError
         An unreadable month, or no entry in the dates asked for.
     """
-    first, last = datetime.date.min, datetime.date.max
-    if month is not None:
-        try:
-            first = datetime.date.fromisoformat(f"{month}-01")
-        except ValueError:
-            raise ValueError(f"month {month!r} is not written YYYY-MM") from None
-        last = (first.replace(day=28) + datetime.timedelta(days=4)).replace(day=1) - datetime.timedelta(days=1)
+    first, last = _month_span(month)
     limits = plog.setup.limits
+    logged = [item for item in plog.logged(first, last) if item.values is not None]
+    in_use = {item.date: item for item in logged if item.state.in_use}
     points: dict[str, list[ChartPoint]] = {q: [] for q in QUANTITIES}
     periods = []
     for period in plog.log.periods:
@@ -144,13 +185,12 @@ def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
         periods.append(ChartPeriod(days[0].entry.date, days[-1].entry.date, period.levels, baseline, label))
         for d in days:
             for q in QUANTITIES:
-                value = getattr(d.entry.values, q)
-                dev = getattr(d.verdict.deviations, q) if d.verdict else None
-                tier = _quantity_verdict(q, value, period.levels, limits) if period.levels else None
-                points[q].append(ChartPoint(d.entry.date, value, dev, tier, d.entry.date in baseline))
+                points[q].append(_point(in_use[d.entry.date], q, period.levels, limits,
+                                        baseline=d.entry.date in baseline))
     if not periods:
         span = f"in {month}" if month else "at all"
         raise ValueError(f"processor {plog.processor!r} has no QC entries {span}")
+    aside = [item for item in logged if item.set_aside]
     series = []
     for q in QUANTITIES:
         if q == "base_fog":
@@ -158,15 +198,16 @@ def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
         else:
             a, w = limits.md_dd_action, limits.md_dd_warning
             action, warning = (a, -a), (w, -w if w is not None else None)
-        series.append(ChartSeries(q, LABELS[q], tuple(points[q]), action, warning))
+        kept = tuple(_point(item, q, plog.levels_on(item.date), limits) for item in aside)
+        series.append(ChartSeries(q, LABELS[q], tuple(points[q]), action, warning, kept))
     shown_first, shown_last = periods[0].first, periods[-1].last
     events = tuple((e.date, e.label) for e in plog.log.events if shown_first <= e.date <= shown_last)
     findings = tuple(f for f in plog.log.findings if any(shown_first <= d <= shown_last for d in f.dates))
-    span = (datetime.date.fromisoformat(f"{month}-01").strftime("%B %Y") if month else
-            f"{shown_first.isoformat()} to {shown_last.isoformat()}")
+    span = (first.strftime("%B %Y") if month else f"{shown_first.isoformat()} to {shown_last.isoformat()}")
     status = plog.status(shown_last)
+    notes = tuple(f"{item.entry.date}: {item.describe()}" for item in aside)
     return ChartData(plog.processor, shown_first, shown_last, tuple(series), events, findings, tuple(periods),
-                     status, f"{plog.processor}: processor QC, {span}")
+                     status, f"{plog.processor}: processor QC, {span}", notes)
 
 
 def describe_rule(finding: TrendFinding) -> str:
@@ -233,24 +274,48 @@ class _Axes:
 def y_span(series: ChartSeries) -> float:
     """Half the y range: room for the limits and every point, on a 0.05 OD grid."""
     limits = [abs(v) for v in (*series.action, *series.warning) if v is not None]
-    devs = [abs(p.deviation) for p in series.points if p.deviation is not None]
+    # A repeated strip was measured and may be the one past a limit; a corrected value was a slip
+    # (perhaps far off) and is drawn at the edge rather than squeezing the plot.
+    shown = [*series.points, *(p for p in series.set_aside if p.set_aside == "repeated")]
+    devs = [abs(p.deviation) for p in shown if p.deviation is not None]
     need = max([1.35 * max(limits, default=0.1), *(1.15 * d for d in devs)])
     return math.ceil(need / 0.05 - 1e-9) * 0.05
 
 
-def _marker(painter: Any, verdict: str, x: float, y: float) -> None:
-    from PySide6.QtCore import QPointF
+def _marker(painter: Any, verdict: str, x: float, y: float, *, hollow: bool = False) -> None:
+    from PySide6.QtCore import QPointF, Qt
     from PySide6.QtGui import QBrush, QColor, QPen, QPolygonF
 
     colour, shape, r, _ = MARKS[verdict]
-    painter.setPen(QPen(QColor("#1A1A1A"), 1.2))
-    painter.setBrush(QBrush(QColor(colour)))
+    if hollow:
+        # A strip kept but not used: the shape and colour of its tier, as an outline only.
+        painter.setPen(QPen(QColor(colour), 2.2))
+        painter.setBrush(Qt.BrushStyle.NoBrush)
+    else:
+        painter.setPen(QPen(QColor("#1A1A1A"), 1.2))
+        painter.setBrush(QBrush(QColor(colour)))
     if shape == "circle":
         painter.drawEllipse(QPointF(x, y), r, r)
     elif shape == "triangle":
         painter.drawPolygon(QPolygonF([QPointF(x, y - r), QPointF(x + r, y + 0.8 * r), QPointF(x - r, y + 0.8 * r)]))
     else:
         painter.drawPolygon(QPolygonF([QPointF(x, y - r), QPointF(x + r, y), QPointF(x, y + r), QPointF(x - r, y)]))
+
+
+def _cross(painter: Any, x: float, y: float, r: float = 4.5) -> None:
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QColor, QPen
+
+    painter.setPen(QPen(QColor(CORRECTED_COLOUR), 2.0))
+    painter.drawLine(QPointF(x - r, y - r), QPointF(x + r, y + r))
+    painter.drawLine(QPointF(x - r, y + r), QPointF(x + r, y - r))
+
+
+def _set_aside_mark(painter: Any, point: ChartPoint, x: float, y: float) -> None:
+    if point.set_aside == "corrected":
+        _cross(painter, x, y)
+    else:
+        _marker(painter, point.verdict or "ok", x, y, hollow=True)
 
 
 def _font(size: float, bold: bool = False) -> Any:
@@ -351,6 +416,10 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
         pts = [p for p in series.points if period.first <= p.date <= period.last and p.deviation is not None]
         for a, b in zip(pts, pts[1:]):
             painter.drawLine(QPointF(ax.x(a.date), ax.y(a.deviation)), QPointF(ax.x(b.date), ax.y(b.deviation)))
+    shift = SET_ASIDE_SHIFT * rect.width() / ax.days
+    for p in series.set_aside:
+        if p.deviation is not None:
+            _set_aside_mark(painter, p, ax.x(p.date) - shift, ax.y(p.deviation))
     for p in series.points:
         if p.deviation is None:
             painter.setPen(QPen(QColor("#666666"), 2))
@@ -394,7 +463,7 @@ def _x_ticks(painter: Any, ax: _Axes, rect: Any, *, labels: bool) -> None:
                 painter.setFont(_font(11))
 
 
-def _legend(painter: Any, left: float, top: float, width: float) -> float:
+def _legend(painter: Any, data: ChartData, left: float, top: float, width: float) -> float:
     from PySide6.QtCore import QPointF, QRectF, Qt
     from PySide6.QtGui import QColor, QPen
 
@@ -424,7 +493,25 @@ def _legend(painter: Any, left: float, top: float, width: float) -> float:
     painter.drawText(QRectF(x3 + 36, top3, width - 40, 16), Qt.AlignmentFlag.AlignLeft,
                      "trend rule fired (run: strips on one side of the level; drift: each strip further than the "
                      "last; repeated warnings)")
-    return top + 72
+    return _legend_set_aside(painter, data, left, top + 72)
+
+
+def _legend_set_aside(painter: Any, data: ChartData, left: float, top: float) -> float:
+    """A legend row for the entries kept but not used, when the chart shows any."""
+    from PySide6.QtCore import QRectF, Qt
+    from PySide6.QtGui import QColor
+
+    kinds = data.set_aside_kinds
+    x = left
+    for kind in kinds:
+        if kind == "corrected":
+            _cross(painter, x + 8, top + 8)
+        else:
+            _marker(painter, "ok", x + 8, top + 8, hollow=True)
+        painter.setPen(QColor("#1A1A1A"))
+        painter.drawText(QRectF(x + 22, top, 470, 16), Qt.AlignmentFlag.AlignLeft, SET_ASIDE[kind])
+        x += 500
+    return top + (24 if kinds else 0)
 
 
 def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
@@ -453,10 +540,10 @@ def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
         when = status.latest_date.isoformat() if status.latest_date else "-"
         painter.drawText(QRectF(24, 44, width - 48, 20), Qt.AlignmentFlag.AlignLeft,
                          f"Status on the latest strip ({when}): {word}{rules}")
-        footer = _wrap([*chart_legend(data), f"Caution: {CAUTION}",
+        footer = _wrap([*chart_legend(data), *data.set_aside_notes, f"Caution: {CAUTION}",
                         f"Drawn by stripscan {__version__} on {datetime.date.today().isoformat()}."],
                        int((width - 48) / 7.4))
-        foot_h = 20 + 17 * len(footer) + 90
+        foot_h = 20 + 17 * len(footer) + 90 + (24 if data.set_aside_kinds else 0)
         top, left, right = 96, 96, width - 24
         gap, bottom_axis = 30, 40
         plot_h = (height - top - foot_h - bottom_axis - 2 * gap) / 3
@@ -466,7 +553,7 @@ def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
             _draw_plot(painter, data, series, rect, lane_rows=min(4, max(counts)), top=i == 0,
                        bottom=i == len(data.series) - 1)
         y = top + 3 * plot_h + 2 * gap + bottom_axis
-        y = _legend(painter, left, y, right - left)
+        y = _legend(painter, data, left, y, right - left)
         painter.setFont(_font(12))
         painter.setPen(QColor("#222222"))
         for line in footer:

@@ -4,6 +4,9 @@
 
     stripscan qc add --processor P --date YYYY-MM-DD SCAN [--calibration CAL.json] [--strip N] [--lot ID]
     stripscan qc add --processor P --date YYYY-MM-DD --base-fog X --mid-density Y --density-difference Z
+    stripscan qc add ... --repeat          (a second strip of the latest day; it then counts for the day)
+    stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--note T]
+                         [--action T] --reason TEXT
     stripscan qc status [--processor P] [--json] [--on YYYY-MM-DD]
     stripscan qc list --processor P
     stripscan qc chart --processor P -o FILE.png [--month YYYY-MM]
@@ -14,8 +17,11 @@
 
 Every command takes ``--archive PATH``; reading commands never create the
 file.  ``add``, ``event`` and ``limits`` refuse a processor the archive does
-not know unless ``--new-processor`` is given.  A failure prints one line
-``stripscan: error: ...`` and exits with status 1; nothing is stored.
+not know unless ``--new-processor`` is given.  Nothing stored is changed:
+a repeat strip and a correction are new entries linked to the one they
+follow or correct, and ``list`` shows them all with their entry numbers.
+A failure prints one line ``stripscan: error: ...`` and exits with status
+1; nothing is stored.
 """
 
 from __future__ import annotations
@@ -31,7 +37,7 @@ from .archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
 from .archive.cli import _fail, _guarded, _open
 from .core.qc import EVENT_KINDS, QUANTITIES, QCValues
-from .qc_log import LABELS, parse_day
+from .qc_log import LABELS, DuplicateDayError, LoggedEntry, parse_day, signed
 
 __all__ = ["register"]
 
@@ -75,9 +81,12 @@ def _cmd_add(args: argparse.Namespace) -> int:
         analysis = analyze_scan(args.scan, calibration=cal)
     values = None if analysis is not None else QCValues(*typed)
     with _open(args, create=args.new_processor) as archive:
-        added = add_day(archive, args.processor, day, values=values, analysis=analysis, strip=args.strip,
-                        calibration=calibration, lot=args.lot, note=args.note or "", action=args.action or "",
-                        new_processor=args.new_processor)
+        try:
+            added = add_day(archive, args.processor, day, values=values, analysis=analysis, strip=args.strip,
+                            calibration=calibration, lot=args.lot, note=args.note or "", action=args.action or "",
+                            new_processor=args.new_processor, repeat=args.repeat)
+        except DuplicateDayError as exc:
+            raise DuplicateDayError(f"{archive.path}: {exc} (give --repeat); nothing was stored") from None
     for note in added.notes:
         print(f"note: {note}")
     e = added.entry
@@ -85,9 +94,35 @@ def _cmd_add(args: argparse.Namespace) -> int:
     if added.reading is not None:
         s = added.reading.steps
         where = f" at steps {s.mid_step} (mid-density), {s.dd_high_step} - {s.dd_low_step} (density difference)"
-    print(f"stored {args.processor!r} {e.date} ({e.source}{where}): "
+    kind = f", repeat of entry {e.repeat_of}" if e.repeat_of is not None else ""
+    print(f"stored entry {e.id}: {args.processor!r} {e.date} ({e.source}{where}{kind}): "
           + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES))
     print(status_text(added.plog, added.plog.status(day)))
+    if added.status.verdict == "action" and not added.status.baseline_in_progress:
+        print(f"  To keep a repeat strip of {day.isoformat()} beside this one: stripscan qc add --repeat ...")
+    return 0
+
+
+def _cmd_correct(args: argparse.Namespace) -> int:
+    """Correct a wrongly entered QC entry: store the right values with a reason, keeping the wrong ones."""
+    from .qc_log import correct_entry, status_text
+
+    if not args.reason or not args.reason.strip():
+        raise ValueError("--reason is needed: say why the entry was wrong (it is kept with the correction)")
+    with _open(args, create=False) as archive:
+        old = archive.get_qc_entry(args.entry)
+        added = correct_entry(archive, args.entry, reason=args.reason, base_fog=args.base_fog,
+                              mid_density=args.mid_density, density_difference=args.density_difference,
+                              note=args.note, action=args.action)
+    e = added.entry
+    changed = [f"{LABELS[q]} {getattr(e, q):.3f} (was {getattr(old, q):.3f})" for q in QUANTITIES
+               if getattr(e, q) != getattr(old, q) and None not in (getattr(e, q), getattr(old, q))]
+    changed += [f"{k} {getattr(e, k)!r}" for k in ("note", "action") if getattr(e, k) != getattr(old, k)]
+    print(f"stored entry {e.id}: correction of entry {e.corrects} ({e.processor!r}, {e.date}): "
+          f"{', '.join(changed)}; reason: {e.reason}")
+    for note in added.notes:
+        print(f"note: {note}")
+    print(status_text(added.plog))
     return 0
 
 
@@ -112,29 +147,44 @@ def _cmd_status(args: argparse.Namespace) -> int:
     return 0
 
 
+def _entry_row(item: LoggedEntry) -> list[str]:
+    e, v = item.entry, item.verdict
+    remark = "; ".join(t for t in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if t)
+    values = [f"{getattr(e, q):.3f}" if getattr(e, q) is not None else "-" for q in QUANTITIES]
+    devs = [signed(getattr(v.deviations, q)) if v else "-" for q in QUANTITIES]
+    verdict = "-" if item.set_aside == "corrected" else (v.verdict if v else "baseline")
+    used = "yes" if item.state.in_use else "no"
+    return [str(e.id), e.date, e.source, *values, *devs, verdict, used, remark]
+
+
+def _event_row(event: Any, width: int) -> list[str]:
+    return ["--", event.label, *[""] * (width - 3), event.note]
+
+
 def _cmd_list(args: argparse.Namespace) -> int:
-    """List a processor's QC days with their deviations and verdicts, and its events."""
-    from .qc_log import load_processor_log, signed
+    """List a processor's QC entries (repeats and corrections too) with deviations and verdicts, and its events."""
+    from .qc_log import load_processor_log
 
     _processor(args)
     with _open(args, create=False) as archive:
         plog = load_processor_log(archive, args.processor)
-    header = ["date", "source", *(LABELS[q] for q in QUANTITIES), *(f"dev {LABELS[q]}" for q in QUANTITIES),
-              "verdict", "note"]
+    header = ["entry", "date", "source", *(LABELS[q] for q in QUANTITIES), *(f"dev {LABELS[q]}" for q in QUANTITIES),
+              "verdict", "used", "note"]
+    entries = list(plog.logged())
+    events = list(plog.log.events)
     rows = []
-    for period in plog.log.periods:
-        if period.event is not None:
-            rows.append(["--", period.event.label, *[""] * (len(header) - 3), period.event.note])
-        for d in period.days:
-            e, v = d.entry, d.verdict
-            remark = "; ".join(t for t in (e.note, f"action: {e.action}" if e.action else "") if t)
-            rows.append([e.date.isoformat(), e.source, *(f"{getattr(e.values, q):.3f}" for q in QUANTITIES),
-                         *(signed(getattr(v.deviations, q)) if v else "-" for q in QUANTITIES),
-                         v.verdict if v else "baseline", remark])
+    for item in entries:
+        # An event applies from its day on, so it is listed before that day's entries.
+        while events and events[0].date <= item.date:
+            rows.append(_event_row(events.pop(0), len(header)))
+        rows.append(_entry_row(item))
+    rows += [_event_row(event, len(header)) for event in events]
     widths = [max(len(str(c)) for c in col) for col in zip(header, *rows)]
     for line in (header, *rows):
         print("  ".join(str(c).ljust(w) for c, w in zip(line, widths)).rstrip())
-    print(f"{len(plog.log.entries)} day(s), {len(plog.log.events)} event(s)")
+    kinds = [i.entry.kind for i in entries]
+    print(f"{len(plog.log.entries)} day(s), {len(plog.log.events)} event(s); {len(entries)} entries kept, "
+          f"{kinds.count('repeat')} repeat strip(s), {kinds.count('correction')} correction(s)")
     return 0
 
 
@@ -282,6 +332,19 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
                          help=f"typed {LABELS[q]} (from a densitometer)")
     add.add_argument("--note", metavar="TEXT", help="remark for the day")
     add.add_argument("--action", metavar="TEXT", help="corrective action taken that day")
+    add.add_argument("--repeat", action="store_true",
+                     help="a repeat strip of the latest day: kept beside the day's entry, and the day's value from "
+                          "now on (the earlier strip is kept and shown, not used)")
+
+    correct = command("correct", _cmd_correct, "correct a wrongly entered QC entry, with a reason",
+                      processor="none")
+    correct.add_argument("entry", metavar="ENTRY", type=int, help="number of the entry to correct (see 'qc list')")
+    for q in QUANTITIES:
+        correct.add_argument(f"--{q.replace('_', '-')}", metavar="OD", type=_number, dest=q,
+                             help=f"the right {LABELS[q]} (kept as it was when not given)")
+    correct.add_argument("--note", metavar="TEXT", help="the right remark")
+    correct.add_argument("--action", metavar="TEXT", help="the right corrective action")
+    correct.add_argument("--reason", metavar="TEXT", help="why the entry was wrong (needed)")
 
     status = command("status", _cmd_status, "today's status: within limits, warning or act",
                      processor="optional")

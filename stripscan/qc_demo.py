@@ -14,10 +14,11 @@ Where the numbers come from
 * 9-11 November: scans simulated here (same film model, scanner and
   layout as the bundled ones) and read through the pipeline too.  The fall
   goes on: on the 9th the density difference is past the warning tier, on
-  the 10th past the control limit.  The technologist repeats the strip,
-  stops clinical processing and corrects the replenishment (corrective
-  action recorded that day); the repeat strip after the correction, the
-  next morning before clinical films, is back within limits.
+  the 10th past the control limit.  The technologist stops clinical
+  processing and corrects the replenishment (corrective action recorded
+  with that strip); a repeat strip processed the same day after the
+  correction, before clinical films, is back within limits.  It is stored
+  as a repeat: both strips are kept, the repeat is the day's value.
 * 12-16 November: typed in, as read on a densitometer at the same steps
   (the exact densities of the film model plus day-to-day scatter, rounded
   to 0.01 OD): the developer goes on tiring, more slowly.
@@ -74,6 +75,8 @@ class DemoDay:
         The film as processed that day (exact truth of the simulation).
     note, action : str
         The day's remark and corrective action.
+    repeat : bool
+        A repeat strip of a day that has a strip already.
     """
 
     date: datetime.date
@@ -81,6 +84,7 @@ class DemoDay:
     film: FilmModel
     note: str = ""
     action: str = ""
+    repeat: bool = False
 
 
 def _shifted(film: FilmModel, *, log_e: float = 0.0, slope: float = 1.0, fog: float = 0.0) -> FilmModel:
@@ -89,7 +93,7 @@ def _shifted(film: FilmModel, *, log_e: float = 0.0, slope: float = 1.0, fog: fl
 
 
 def demo_plan() -> tuple[DemoDay, ...]:
-    """The month's script, 2 to 30 November 2026, one strip a day."""
+    """The month's script, 2 to 30 November 2026: one strip a day, and a repeat strip on the 10th."""
     days = [DemoDay(_START + datetime.timedelta(days=k), "bundled scan", daily_film(k)) for k in range(7)]
     days[0] = dataclasses.replace(days[0], note="First strip of the baseline (fresh box of QC film).")
     days[6] = dataclasses.replace(days[6], note="Density difference past the warning tier; watch tomorrow's strip.")
@@ -98,13 +102,13 @@ def demo_plan() -> tuple[DemoDay, ...]:
         DemoDay(datetime.date(2026, 11, 9), "simulated scan", daily_film(7),
                 "Density difference past the warning tier again; replenishment to be checked."),
         DemoDay(datetime.date(2026, 11, 10), "simulated scan", daily_film(9),
-                "Density difference outside the control limit; strip repeated with the same result; "
-                "clinical processing stopped.",
+                "Density difference outside the control limit; clinical processing stopped.",
                 "Replenisher pump found delivering too little: pump reset, developer tank topped up with fresh "
-                "replenisher, developer temperature checked at 35.0 degC. Repeat strip before clinical films."),
-        DemoDay(datetime.date(2026, 11, 11), "simulated scan", restored,
+                "replenisher, developer temperature checked at 35.0 degC. Strip repeated after the correction."),
+        DemoDay(datetime.date(2026, 11, 10), "simulated scan", restored,
                 "Repeat strip after the correction, before clinical films: within limits; clinical processing "
-                "resumed."),
+                "resumed.", repeat=True),
+        DemoDay(datetime.date(2026, 11, 11), "simulated scan", restored),
     ]
     for k in range(12, 17):
         # The developer goes on tiring from where the correction left it, at half the pace.
@@ -129,9 +133,11 @@ class DemoQcSummary:
 
     def describe(self) -> str:
         first, last = self.plan[0].date.isoformat(), self.plan[-1].date.isoformat()
-        return (f"{self.processor!r}, {len(self.plan)} days {first} to {last}: {self.count('bundled scan')} bundled "
-                f"scans and {self.count('simulated scan')} simulated scans read through the pipeline, "
-                f"{self.count('typed')} typed values; {len(self.plog.log.events)} event(s)")
+        repeats = sum(d.repeat for d in self.plan)
+        return (f"{self.processor!r}, {len({d.date for d in self.plan})} days {first} to {last}: "
+                f"{self.count('bundled scan')} bundled scans and {self.count('simulated scan')} simulated scans "
+                f"read through the pipeline ({repeats} of them a repeat strip), {self.count('typed')} typed values; "
+                f"{len(self.plog.log.events)} event(s)")
 
 
 def _write_scan(path: Path, film: FilmModel, seed: int) -> Path:
@@ -200,7 +206,7 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
     with tempfile.TemporaryDirectory(prefix="stripscan-qc-demo-") as tmp:
         folder = Path(scan_folder) if scan_folder is not None else Path(tmp)
         folder.mkdir(parents=True, exist_ok=True)
-        for k, day in enumerate(plan):
+        for day in plan:
             if day.date == _RENEWED and _RENEWED.isoformat() not in events:
                 add_event(archive, processor, day.date, "new_chemistry", _RENEWAL_NOTE)
             if day.how == "typed":
@@ -213,7 +219,11 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
             if day.how == "bundled scan":
                 path = bundled[day.date]
             else:
-                path = _write_scan(folder / f"qc_processor-1_{day.date.isoformat()}.tif", day.film, 100 + k)
+                # One scanner seed per day of the month, another for a repeat strip.
+                seed = 100 + (day.date - _START).days + (50 if day.repeat else 0)
+                name = f"qc_processor-1_{day.date.isoformat()}{'_repeat' if day.repeat else ''}.tif"
+                path = _write_scan(folder / name, day.film, seed)
             analysis = analyze_scan(path, calibration=calibration)
-            add_day(archive, processor, day.date, analysis=analysis, note=day.note, action=day.action)
+            add_day(archive, processor, day.date, analysis=analysis, note=day.note, action=day.action,
+                    repeat=day.repeat)
     return DemoQcSummary(processor, plan, load_processor_log(archive, processor))

@@ -10,9 +10,15 @@ This module joins the two and adds the rules that need both:
   are chosen (:func:`~stripscan.core.qc.choose_qc_steps`) on the first
   scanned strip after the latest event that restarts the baseline, stored
   in the settings with that day's entry, and used unchanged afterwards;
-* entries go in date order, one per day, and an event may not be dated
-  before the latest entry (it would silently re-judge days already
-  reported);
+* entries go in date order, one first strip per day, and an event may not
+  be dated before the latest entry (it would silently re-judge days
+  already reported);
+* a second strip of the latest day is stored as a *repeat*; the day's
+  value is then the repeat's (common practice: the repeat confirms or
+  clears the first result), and the first strip is kept and shown, not
+  used.  A wrongly entered value is fixed by a *correction* (same
+  processor and day, with a reason); the corrected entry is kept and
+  shown, not used.  Only each day's entry in use reaches the core;
 * a ``crossover`` event takes the new operating levels of the crossover
   record stored for that processor and day, when there is one.
 
@@ -38,9 +44,11 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError, NewSnapshot, Processor
 from stripscan.archive import QcEntry as StoredEntry
+from stripscan.archive.records import QcEntryState, qc_entry_states
 from stripscan.core.qc import (
     EVENT_KINDS,
     QUANTITIES,
+    DayVerdict,
     OperatingLevels,
     ProcessorStatus,
     QCEntry,
@@ -61,7 +69,9 @@ __all__ = [
     "VERDICT_WORDS",
     "StepChoice",
     "QcSetup",
+    "LoggedEntry",
     "ProcessorLog",
+    "DuplicateDayError",
     "StripReading",
     "AddedDay",
     "parse_day",
@@ -69,6 +79,7 @@ __all__ = [
     "load_processor_log",
     "read_strip",
     "add_day",
+    "correct_entry",
     "add_event",
     "set_limits",
     "status_json",
@@ -185,6 +196,65 @@ def load_setup(archive: Archive, processor: str) -> QcSetup:
 
 
 @dataclass(frozen=True)
+class LoggedEntry:
+    """A stored QC entry, what became of it, and how it compares with the levels in force on its day.
+
+    Attributes
+    ----------
+    entry : StoredEntry
+        As the archive keeps it, with its id and links.
+    state : QcEntryState
+        In use for its day, or repeated / corrected and kept.
+    verdict : DayVerdict or None
+        Against the operating levels in force on its day (for an entry not
+        in use too: what its strip showed); None during a baseline or when
+        a number is lacking.
+    """
+
+    entry: StoredEntry
+    state: QcEntryState
+    verdict: DayVerdict | None
+
+    @property
+    def date(self) -> datetime.date:
+        return parse_day(self.entry.date)
+
+    @property
+    def values(self) -> QCValues | None:
+        numbers = [getattr(self.entry, q) for q in QUANTITIES]
+        return None if None in numbers else QCValues(*numbers)
+
+    @property
+    def set_aside(self) -> str | None:
+        """``"corrected"`` or ``"repeated"`` for an entry kept but not used; None for the day's entry in use."""
+        if self.state.corrected_by is not None:
+            return "corrected"
+        return None if self.state.in_use else "repeated"
+
+    def standing(self) -> str:
+        """What the entry is and what became of it, in words ('' for a plain day's strip in use)."""
+        e, state = self.entry, self.state
+        words = []
+        if e.repeat_of is not None:
+            words.append(f"repeat of entry {e.repeat_of}")
+        if e.corrects is not None:
+            words.append(f"correction of entry {e.corrects} ({e.reason})")
+        if state.corrected_by is not None:
+            words.append(f"corrected by entry {state.corrected_by}, not used")
+        elif state.repeated_by is not None:
+            words.append(f"repeated by entry {state.repeated_by}, not used")
+        return "; ".join(words)
+
+    def describe(self) -> str:
+        """One line: the entry, its verdict (none for a value corrected as a slip), what became of it."""
+        judged = ""
+        if self.set_aside != "corrected":
+            judged = f" ({VERDICT_WORDS[self.verdict.verdict] if self.verdict else 'baseline'})"
+        use = "; counts for the day" if self.state.in_use else ""
+        return f"entry {self.entry.id}{judged}: {self.standing() or 'first strip'}{use}"
+
+
+@dataclass(frozen=True)
 class ProcessorLog:
     """One processor's QC log, read from the archive and ready for the core.
 
@@ -193,23 +263,64 @@ class ProcessorLog:
     processor : str
     setup : QcSetup
     log : QCLog
-        Entries, events (crossovers with their levels) and the site's settings.
+        Each day's entry in use, events (crossovers with their levels) and
+        the site's settings.
     notes : tuple of str
         What was read but not used, in plain words.
+    entries : tuple of StoredEntry
+        Every stored entry, repeats and corrections included, by date and id.
+    states : mapping of int to QcEntryState
+        What became of each stored entry, by id.
     """
 
     processor: str
     setup: QcSetup
     log: QCLog
     notes: tuple[str, ...] = ()
+    entries: tuple[StoredEntry, ...] = ()
+    states: Mapping[int, QcEntryState] = field(default_factory=dict)
 
     @property
     def latest_entry(self) -> QCEntry | None:
         return self.log.entries[-1] if self.log.entries else None
 
+    @property
+    def latest_day(self) -> datetime.date | None:
+        """The latest day with any stored entry."""
+        return max((parse_day(e.date) for e in self.entries), default=None)
+
     def status(self, today: datetime.date | None = None) -> ProcessorStatus:
         """Today's status (the core's :meth:`QCLog.status`)."""
         return self.log.status(today)
+
+    def levels_on(self, day: datetime.date) -> OperatingLevels | None:
+        """The operating levels in force on ``day``; None during a baseline."""
+        found = None
+        for period in self.log.periods:
+            if period.event is None or period.event.date <= day:
+                found = period
+        return found.levels if found is not None else None
+
+    def logged(self, first: datetime.date | None = None, last: datetime.date | None = None) -> tuple[LoggedEntry, ...]:
+        """Every stored entry from ``first`` to ``last`` (inclusive) with its state and verdict, by date and id."""
+        verdicts = {d.entry.date: d.verdict for d in self.log.days}
+        out = []
+        for entry in self.entries:
+            day = parse_day(entry.date)
+            if (first is not None and day < first) or (last is not None and day > last):
+                continue
+            state = self.states[entry.id]  # type: ignore[index]
+            verdict = verdicts.get(day) if state.in_use else self._judge(entry, day)
+            out.append(LoggedEntry(entry, state, verdict))
+        return tuple(out)
+
+    def _judge(self, entry: StoredEntry, day: datetime.date) -> DayVerdict | None:
+        # An entry not in use is judged by the same rule as the day's entry, against the same levels.
+        numbers = [getattr(entry, q) for q in QUANTITIES]
+        levels = self.levels_on(day)
+        if levels is None or None in numbers:
+            return None
+        return evaluate_day(QCValues(*numbers), levels, self.setup.limits)
 
     def step_restart(self, day: datetime.date) -> datetime.date | None:
         """Date of the latest event on or before ``day`` after which the QC steps are chosen again.
@@ -274,7 +385,11 @@ def load_processor_log(archive: Archive, processor: str) -> ProcessorLog:
     setup = load_setup(archive, processor)
     notes = []
     entries = []
-    for e in archive.list_qc_entries(processor):
+    stored = tuple(archive.list_qc_entries(processor))
+    states = qc_entry_states(stored)
+    for e in stored:
+        if not states[e.id].in_use:  # type: ignore[index]
+            continue
         if None in (e.base_fog, e.mid_density, e.density_difference):
             notes.append(f"the entry of {e.date} lacks a number and is not judged")
             continue
@@ -288,7 +403,7 @@ def load_processor_log(archive: Archive, processor: str) -> ProcessorLog:
         events.append(QCEvent(parse_day(e.date), kind, note, levels.get(e.date) if kind == "crossover" else None))
     log = QCLog(entries=tuple(entries), events=tuple(events), limits=setup.limits, rules=setup.rules,
                 n_days=setup.baseline_days)
-    return ProcessorLog(processor, setup, log, tuple(notes))
+    return ProcessorLog(processor, setup, log, tuple(notes), stored, states)
 
 
 # --------------------------------------------------------------------------
@@ -381,7 +496,7 @@ def read_strip(analysis: Analysis, steps: QCSteps | None, *, strip: int | None =
 
 @dataclass(frozen=True)
 class AddedDay:
-    """What :func:`add_day` stored, and the processor's status afterwards."""
+    """What :func:`add_day` or :func:`correct_entry` stored, and the processor's status afterwards."""
 
     entry: StoredEntry
     reading: StripReading | None
@@ -407,16 +522,29 @@ def _require_processor(archive: Archive, processor: str, new_processor: bool) ->
     return Processor(processor)
 
 
-def _check_new_day(plog: ProcessorLog | None, processor: str, day: datetime.date) -> None:
-    latest = plog.latest_entry if plog else None
+class DuplicateDayError(ArchiveConflictError):
+    """A day's first strip when the day has one already; a second strip of the day is a repeat."""
+
+
+def _check_new_day(plog: ProcessorLog | None, processor: str, day: datetime.date, repeat: bool) -> None:
+    latest = plog.latest_day if plog else None
+    when = day.isoformat()
+    if repeat:
+        if latest is None or day > latest:
+            raise ValueError(f"processor {processor!r} has no QC entry for {when} to repeat; a day's first strip "
+                             "is stored as it is, not as a repeat")
+        if day < latest:
+            raise ValueError(f"dates out of order: a repeat strip of {when} would re-judge the days after it; "
+                             f"only the latest day ({latest.isoformat()}) of processor {processor!r} takes a repeat")
+        return
     if latest is None:
         return
-    if day == latest.date:
-        raise ArchiveConflictError(f"processor {processor!r} already has a QC entry for {day.isoformat()} "
-                                   "(one strip a day is kept; a duplicate day is not stored)")
-    if day < latest.date:
-        raise ValueError(f"dates out of order: {day.isoformat()} is before processor {processor!r}'s latest "
-                         f"QC entry ({latest.date.isoformat()}); entries are added in date order")
+    if day == latest:
+        raise DuplicateDayError(f"processor {processor!r} already has a QC entry for {when} (duplicate day): to keep "
+                                "a second strip of that day, store it as a repeat strip, which then counts for the day")
+    if day < latest:
+        raise ValueError(f"dates out of order: {when} is before processor {processor!r}'s latest "
+                         f"QC entry ({latest.isoformat()}); entries are added in date order")
 
 
 def _provenance(note: str, source: str) -> str:
@@ -437,6 +565,7 @@ def add_day(
     note: str = "",
     action: str = "",
     new_processor: bool = False,
+    repeat: bool = False,
 ) -> AddedDay:
     """Store one day's QC entry, typed in or read off a scan, in one transaction.
 
@@ -460,9 +589,14 @@ def add_day(
         Remark, and corrective action taken that day.
     new_processor : bool
         Add the processor if it is not in the archive yet.
+    repeat : bool
+        A repeat strip of the latest day: stored beside the day's entry,
+        which is kept, and used as the day's value from now on.
 
     Raises
     ------
+    DuplicateDayError
+        A second strip of a day not declared a repeat.
     ValueError, ArchiveError
         With a one-line message; nothing is stored.
     """
@@ -472,7 +606,7 @@ def add_day(
         raise ValueError("--lot keeps the scanned strip in the archive; it needs a scan")
     add_processor = _require_processor(archive, processor, new_processor)
     plog = None if add_processor else load_processor_log(archive, processor)
-    _check_new_day(plog, processor, day)
+    _check_new_day(plog, processor, day, repeat)
     setup = plog.setup if plog else QcSetup()
     settings, reading, snapshot, notes = None, None, None, []
     if analysis is not None:
@@ -503,11 +637,64 @@ def add_day(
     QCEntry(day, values, "scan" if analysis is not None else "manual", note, action)
     entry = StoredEntry(processor, day.isoformat(), values.base_fog, values.mid_density, values.density_difference,
                         "scan" if analysis is not None else "manual", note=note, action=action)
-    stored = archive.add_qc_day(entry, new_processor=add_processor, snapshot=snapshot, settings=settings)
+    stored = archive.add_qc_day(entry, repeat=repeat, new_processor=add_processor, snapshot=snapshot,
+                                settings=settings)
     after = load_processor_log(archive, processor)
     if add_processor is not None:
         notes.insert(0, f"processor {processor!r} was not in the archive; added it and started its QC log")
+    if stored.repeat_of is not None:
+        notes.append(f"stored as a repeat strip of {stored.date}: entry {stored.repeat_of} is kept and shown, and "
+                     "this strip is the day's value from now on")
     return AddedDay(stored, reading, after, after.status(), tuple(notes))
+
+
+def correct_entry(archive: Archive, entry_id: int, *, reason: str, base_fog: float | None = None,
+                  mid_density: float | None = None, density_difference: float | None = None,
+                  note: str | None = None, action: str | None = None) -> AddedDay:
+    """Correct a wrongly entered QC entry, keeping the wrong one for the audit trail.
+
+    A new entry of the same processor and day is stored that names the
+    entry it corrects and why; from then on it counts instead of that
+    entry, and every day is judged again.
+
+    Parameters
+    ----------
+    archive : Archive
+    entry_id : int
+        The entry to correct (``stripscan qc list`` shows the numbers).
+    reason : str
+        Why the entry was wrong (needed).
+    base_fog, mid_density, density_difference : float, optional
+        The right values, OD; those not given are kept.
+    note, action : str, optional
+        A new remark or corrective action; kept when not given.
+
+    Raises
+    ------
+    ValueError, ArchiveError
+        With a one-line message; nothing is stored.
+    """
+    if not isinstance(reason, str) or not reason.strip():
+        raise ValueError(f"QC entry {entry_id} is corrected only with a reason: say why it was wrong")
+    changes = {k: v for k, v in (("base_fog", base_fog), ("mid_density", mid_density),
+                                 ("density_difference", density_difference), ("note", note), ("action", action))
+               if v is not None}
+    if not changes:
+        raise ValueError(f"give the right value(s) for QC entry {entry_id}: base+fog, mid-density, density "
+                         "difference, note or action")
+    old = archive.get_qc_entry(entry_id)
+    numbers = {q: changes.get(q, getattr(old, q)) for q in QUANTITIES}
+    if None not in numbers.values():
+        try:
+            QCValues(**numbers)  # the core's own checks on the numbers, before anything is written
+        except ValueError as exc:
+            raise ValueError(f"QC entry {entry_id} of {old.date}: {exc}; nothing was stored") from None
+    stored = archive.add_qc_correction(entry_id, reason, **changes)
+    after = load_processor_log(archive, stored.processor)
+    notes = [f"entry {entry_id} of {old.date} is kept and shown as corrected by entry {stored.id}; it no longer counts"]
+    if not after.states[stored.id].in_use:  # type: ignore[index]
+        notes.append(f"entry {entry_id}'s strip was repeated the same day: the repeat still counts for {old.date}")
+    return AddedDay(stored, None, after, after.status(), tuple(notes))
 
 
 def add_event(archive: Archive, processor: str, day: datetime.date, kind: str, note: str = "", *,
@@ -572,7 +759,9 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
     Keys: ``processor``; ``operating_levels`` (``base_fog``, ``mid_density``,
     ``density_difference``, ``established``, ``reason``, or null during a
     baseline); ``latest`` (``date``, ``values``, ``deviations``, ``verdict``
-    one of ok / warning / action, ``rules``, ``reasons``, ``advice``);
+    one of ok / warning / action, ``rules``, ``reasons``, ``advice``,
+    ``entries``: every entry stored for that day with ``entry`` id,
+    ``kind``, ``in_use``, ``verdict`` and ``standing`` in words);
     ``baseline``; ``limits``; ``steps``; ``caution``.
     """
     status = status or plog.status()
@@ -595,6 +784,11 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
             "rule_messages": [f.message for f in status.findings],
             "reasons": list(reasons),
             "advice": status.advice,
+            "entries": [{"entry": item.entry.id, "kind": item.entry.kind, "in_use": item.state.in_use,
+                         # A value corrected as a slip is not a reading to judge.
+                         "verdict": item.verdict.verdict if item.verdict and item.set_aside != "corrected" else None,
+                         "standing": item.standing()}
+                        for item in _day_entries(plog, status.latest_date)],
         },
         "baseline": {"in_progress": status.baseline_in_progress, "days": status.baseline_days,
                      "needed": plog.setup.baseline_days},
@@ -603,6 +797,10 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
         "notes": list(plog.notes),
         "caution": CAUTION,
     }
+
+
+def _day_entries(plog: ProcessorLog, day: datetime.date | None) -> tuple[LoggedEntry, ...]:
+    return plog.logged(day, day) if day is not None else ()
 
 
 def signed(value: float) -> str:
@@ -626,6 +824,10 @@ def status_text(plog: ProcessorLog, status: ProcessorStatus | None = None) -> st
         lines.append("  latest: " + ", ".join(
             f"{LABELS[q]} {getattr(status.values, q):.3f}"
             + (f" ({signed(getattr(dev, q))})" if dev is not None else "") for q in QUANTITIES))
+    day = _day_entries(plog, status.latest_date)
+    if len(day) > 1:
+        # A repeated or corrected day: say which entry counts and which are kept.
+        lines.extend(f"  {item.describe()}" for item in day)
     if status.rules_fired:
         lines.append("  trend rules fired: " + ", ".join(status.rules_fired))
     lines.extend(f"  note: {n}" for n in plog.notes)

@@ -143,6 +143,62 @@ def test_an_event_restarts_the_baseline_and_limits_show(capsys, baseline):
 
 
 # --------------------------------------------------------------------------
+# Repeat strips and corrections
+
+
+def test_a_repeat_strip_is_kept_beside_the_first_and_judged_instead(capsys, baseline):
+    out = add(capsys, baseline, 5, 0.18, 1.36, 1.80)
+    assert "ACT" in out and "stripscan qc add --repeat" in out  # 21 CFR 900.12(e)(1): +0.16 is past ±0.15
+    line = refused(capsys, "qc", "add", "--archive", baseline, "--processor", P, "--date", day(5), "--base-fog",
+                   "0.18", "--mid-density", "1.22", "--density-difference", "1.80")
+    assert str(baseline) in line and "already has a QC entry for 2026-10-10" in line and "duplicate day" in line
+    assert "(give --repeat)" in line
+    out = add(capsys, baseline, 5, 0.18, 1.22, 1.80, "--repeat", "--note", "after fresh replenisher")
+    assert "stored entry 7: 'Darkroom B' 2026-10-10 (manual, repeat of entry 6)" in out
+    assert "entry 6 (ACT): repeated by entry 7, not used" in out
+    assert "entry 7 (WITHIN LIMITS): repeat of entry 6; counts for the day" in out
+    data = status(capsys, baseline)
+    # Common practice: the repeat confirms or clears the first result; here it clears it.
+    assert data["latest"]["verdict"] == "ok" and data["latest"]["values"]["mid_density"] == pytest.approx(1.22)
+    assert [(e["entry"], e["in_use"], e["verdict"]) for e in data["latest"]["entries"]] == [
+        (6, False, "action"), (7, True, "ok")]
+    assert stored_days(baseline) == [day(n) for n in range(5)] + [day(5)] * 2
+    out = ok(capsys, "qc", "list", "--archive", baseline, "--processor", P)
+    assert "6 day(s), 0 event(s); 7 entries kept, 1 repeat strip(s), 0 correction(s)" in out
+    first = next(line for line in out.splitlines() if line.startswith("6 "))
+    assert "+0.160" in first and "action" in first and " no " in first and "repeated by entry 7, not used" in first
+    line = refused(capsys, "qc", "add", "--archive", baseline, "--processor", P, "--date", day(6), "--base-fog",
+                   "0.18", "--mid-density", "1.2", "--density-difference", "1.8", "--repeat")
+    assert "no QC entry for 2026-10-11 to repeat" in line
+
+
+def test_a_correction_needs_a_reason_keeps_the_wrong_entry_and_rejudges(capsys, baseline):
+    add(capsys, baseline, 5, 0.18, 1.12, 1.80)  # 1.21 read on the densitometer, 1.12 typed
+    assert status(capsys, baseline)["latest"]["verdict"] == "ok"  # -0.08: within the ±0.10 tier (common practice)
+    line = refused(capsys, "qc", "correct", "6", "--archive", baseline, "--mid-density", "1.21")
+    assert "--reason is needed" in line
+    line = refused(capsys, "qc", "correct", "6", "--archive", baseline, "--reason", "typo")
+    assert "give the right value(s) for QC entry 6" in line
+    line = refused(capsys, "qc", "correct", "60", "--archive", baseline, "--mid-density", "1.21", "--reason", "typo")
+    assert "QC entry 60 is not in the archive" in line
+    # A baseline day mistyped: the operating levels follow the correction (mean of 5 days, FDA guidance).
+    out = ok(capsys, "qc", "correct", "2", "--archive", baseline, "--mid-density", "1.30", "--reason",
+             "1.30 read, 1.20 typed")
+    assert "stored entry 7: correction of entry 2 ('Darkroom B', 2026-10-06): mid-density 1.300 (was 1.200)" in out
+    assert "reason: 1.30 read, 1.20 typed" in out and "entry 2 of 2026-10-06 is kept" in out
+    data = status(capsys, baseline)
+    assert data["operating_levels"]["mid_density"] == pytest.approx((4 * 1.20 + 1.30) / 5)
+    line = refused(capsys, "qc", "correct", "2", "--archive", baseline, "--mid-density", "1.31", "--reason", "again")
+    assert "QC entry 2 was already corrected by entry 7; correct that one instead" in line
+    ok(capsys, "qc", "correct", "7", "--archive", baseline, "--mid-density", "1.29", "--reason", "read again")
+    out = ok(capsys, "qc", "list", "--archive", baseline, "--processor", P)
+    assert "7 entries kept" not in out and "8 entries kept, 0 repeat strip(s), 2 correction(s)" in out
+    assert "corrected by entry 7, not used" in out and "correction of entry 7 (read again)" in out
+    with Archive.open(baseline, read_only=True) as opened:
+        assert opened.get_qc_entry(2).mid_density == 1.20  # the wrong entry is kept as it was
+
+
+# --------------------------------------------------------------------------
 # Bad input: one line, exit 1, nothing stored
 
 
@@ -244,16 +300,21 @@ def test_the_demo_month(capsys, demo_archive):
     days = plog.log.days
     assert len(days) == 29 and days[0].entry.date == datetime.date(2026, 11, 2)
     assert days[-1].entry.date == datetime.date(2026, 11, 30)
-    acted = [d for d in days if d.verdict and d.verdict.verdict == "action"]
-    assert [d.entry.date for d in acted] == [datetime.date(2026, 11, 10)]  # 21 CFR 900.12(e)(1): past ±0.15
-    assert "Replenisher pump" in acted[0].entry.action
-    repeat = days[days.index(acted[0]) + 1]
-    assert repeat.verdict.verdict == "ok" and repeat.entry.note.startswith("Repeat strip after the correction")
-    assert [e.source for e in entries].count("scan") == 11 and [e.source for e in entries].count("manual") == 18
+    # Every day's strip in use is within the control limits; the one past them was repeated the same day.
+    assert not [d for d in days if d.verdict and d.verdict.verdict == "action"]
+    tenth = [item for item in plog.logged() if item.date == datetime.date(2026, 11, 10)]
+    first, repeat = tenth
+    assert first.verdict.verdict == "action" and not first.state.in_use  # 21 CFR 900.12(e)(1): past ±0.15
+    assert "Replenisher pump" in first.entry.action
+    # Common practice: the repeat strip confirms or clears the first result, and is the day's value.
+    assert repeat.entry.repeat_of == first.entry.id and repeat.state.in_use and repeat.verdict.verdict == "ok"
+    assert repeat.entry.note.startswith("Repeat strip after the correction")
+    assert [e.source for e in entries].count("scan") == 12 and [e.source for e in entries].count("manual") == 18
     # The chemistry change already stored is used, not recorded twice; it restarts the baseline.
     assert [(e.date, e.kind) for e in plog.log.events] == [(datetime.date(2026, 11, 17), "new_chemistry")]
-    # A tiring developer: density difference falls on each strip (drift of 5, common practice, from memory).
-    assert any(f.rule == "drift" and f.quantity == "density_difference" and f.dates[-1] == acted[0].entry.date
+    # A tiring developer: density difference falls on each strip up to the day before the limit was
+    # broken (drift of 5, common practice, from memory); the repeat after the correction ends it.
+    assert any(f.rule == "drift" and f.quantity == "density_difference" and f.dates[-1] == datetime.date(2026, 11, 9)
                for f in plog.log.findings)
     choices = plog.setup.step_choices
     assert [c.since for c in choices] == [datetime.date(2026, 11, 2), datetime.date(2026, 11, 17)]

@@ -24,8 +24,10 @@ from stripscan.core.simulate import ScannerModel, StripSpec, simulate_scan, writ
 from stripscan.demo_data import daily_film, demo_files, scanner_for
 from stripscan.qc_chart import chart_data
 from stripscan.qc_log import (
+    DuplicateDayError,
     add_day,
     add_event,
+    correct_entry,
     load_processor_log,
     read_strip,
     set_limits,
@@ -213,6 +215,110 @@ def test_base_fog_falling_is_never_a_trend_fault(archive):
 
 
 # --------------------------------------------------------------------------
+# Repeat strips and corrections: only each day's entry in use is judged
+
+
+def test_a_repeat_strip_clears_a_day_past_the_limit_and_both_are_kept(archive):
+    baseline(archive)
+    first = typed(archive, 5, md=1.36, action="replenisher pump reset")
+    assert first.status.verdict == "action" and "repeat the strip" in first.status.advice  # 21 CFR 900.12(e)(1)
+    repeat = typed(archive, 5, md=1.23, repeat=True, note="after the reset")
+    # Common practice: the repeat strip confirms or clears the first result; here it clears it.
+    assert repeat.status.verdict == "ok" and repeat.status.values.mid_density == 1.23
+    assert repeat.entry.repeat_of == first.entry.id and "is the day's value from now on" in repeat.notes[-1]
+    plog = load_processor_log(archive, P)
+    assert [e.values.mid_density for e in plog.log.entries] == [LEVEL[1]] * 5 + [1.23]
+    kept, used = plog.logged(day(5), day(5))
+    assert (kept.state.in_use, kept.set_aside, kept.verdict.verdict) == (False, "repeated", "action")
+    assert kept.verdict.deviations.mid_density == pytest.approx(0.16)
+    assert kept.entry.action == "replenisher pump reset"
+    assert used.state.in_use and used.standing() == f"repeat of entry {first.entry.id}"
+    assert len(archive.list_qc_entries(P)) == 7
+
+
+def test_levels_and_trend_rules_use_the_repeat_not_the_first_strip(archive):
+    for n in range(4):
+        typed(archive, n)
+    typed(archive, 4, md=1.45)  # a bad strip on the last baseline day ...
+    typed(archive, 4, md=1.25, repeat=True)  # ... repeated the same day
+    levels = load_processor_log(archive, P).status().levels
+    # Operating levels: the mean of the first five days (common practice / FDA guidance for MQSA),
+    # each day counted by its strip in use.
+    assert levels.mid_density == pytest.approx(statistics.mean([1.20] * 4 + [1.25]), abs=1e-9)
+    for n in range(5, 10):
+        typed(archive, n, md=1.26 + 0.005 * n)
+    # Drift of 5 (common practice, from memory): the rising strips 5-9 with the repeat before them...
+    assert "drift:mid_density" in load_processor_log(archive, P).status().rules_fired
+    typed(archive, 9, md=1.20, repeat=True)
+    # ... ends when the day's repeat falls back.
+    assert load_processor_log(archive, P).status().rules_fired == ()
+
+
+def test_repeats_are_refused_where_they_would_rewrite_or_invent_a_day(archive):
+    with pytest.raises(ValueError, match="has no QC entry for 2026-10-05 to repeat"):
+        typed(archive, 0, repeat=True)
+    baseline(archive, 3)
+    with pytest.raises(DuplicateDayError, match="already has a QC entry for 2026-10-07 .*duplicate day.* as a "
+                                                "repeat strip"):
+        typed(archive, 2, md=1.25)
+    with pytest.raises(ValueError, match="no QC entry for 2026-10-08 to repeat"):
+        typed(archive, 3, repeat=True)
+    with pytest.raises(ValueError, match="dates out of order: a repeat strip of 2026-10-06 would re-judge"):
+        typed(archive, 1, repeat=True)
+    assert len(archive.list_qc_entries(P)) == 3
+
+
+def test_a_correction_replaces_a_mistyped_value_and_rejudges_every_day(archive):
+    for n, md in enumerate((1.20, 1.21, 2.19, 1.19, 1.20)):  # 1.19 typed as 2.19 on the third day
+        typed(archive, n, md=md)
+    typed(archive, 5, md=1.32)
+    wrong = archive.list_qc_entries(P)[2]
+    before = load_processor_log(archive, P)
+    assert before.status().verdict == "ok"  # judged against a level pulled up by the slip
+    fixed = correct_entry(archive, wrong.id, mid_density=1.19, reason="2.19 typed, 1.19 read")
+    assert (fixed.entry.corrects, fixed.entry.date, fixed.entry.reason) == (wrong.id, wrong.date,
+                                                                             "2.19 typed, 1.19 read")
+    # Levels: mean of the five baseline days with the corrected value (FDA guidance for MQSA);
+    # 1.32 is then 0.122 above: past the ±0.10 warning tier (common practice, from memory).
+    status = fixed.status
+    assert status.levels.mid_density == pytest.approx(statistics.mean((1.20, 1.21, 1.19, 1.19, 1.20)), abs=1e-9)
+    assert status.verdict == "warning"
+    assert archive.get_qc_entry(wrong.id) == wrong  # kept as it was
+    item = next(i for i in fixed.plog.logged() if i.entry.id == wrong.id)
+    assert item.set_aside == "corrected" and item.standing() == f"corrected by entry {fixed.entry.id}, not used"
+    assert "entry 3 of 2026-10-07 is kept and shown as corrected" in fixed.notes[0]
+
+
+def test_unfit_corrections_are_refused_and_store_nothing(archive):
+    baseline(archive, 2)
+    with pytest.raises(ValueError, match="QC entry 1 is corrected only with a reason"):
+        correct_entry(archive, 1, mid_density=1.21, reason="  ")
+    with pytest.raises(ValueError, match="give the right value"):
+        correct_entry(archive, 1, reason="typo")
+    with pytest.raises(ValueError, match="mid_density must be a finite number"):
+        correct_entry(archive, 1, mid_density=float("inf"), reason="typo")
+    with pytest.raises(ArchiveLookupError, match="QC entry 7 is not in the archive"):
+        correct_entry(archive, 7, mid_density=1.21, reason="typo")
+    assert len(archive.list_qc_entries(P)) == 2
+
+
+def test_a_corrected_first_strip_of_a_repeated_day_does_not_displace_the_repeat(archive):
+    baseline(archive)
+    typed(archive, 5, md=1.63)  # 1.36 read, digits swapped
+    typed(archive, 5, md=1.22, repeat=True)
+    added = correct_entry(archive, 6, mid_density=1.36, reason="1.36 read, 1.63 typed")
+    assert "the repeat still counts for 2026-10-10" in added.notes[1]
+    assert added.status.values.mid_density == 1.22 and added.status.verdict == "ok"
+    text = status_text(added.plog)
+    assert "entry 6: corrected by entry 8, not used" in text
+    assert "entry 7 (WITHIN LIMITS): repeat of entry 6; counts for the day" in text
+    assert "entry 8 (ACT): correction of entry 6 (1.36 read, 1.63 typed); repeated by entry 7, not used" in text
+    data = status_json(added.plog)
+    assert [(e["entry"], e["kind"], e["in_use"]) for e in data["latest"]["entries"]] == [
+        (6, "first strip", False), (7, "repeat", True), (8, "correction", False)]
+
+
+# --------------------------------------------------------------------------
 # Days read off simulated scans: the baseline's steps are kept
 
 
@@ -269,6 +375,17 @@ def test_steps_are_chosen_again_after_an_event_and_a_lot_keeps_the_strip(archive
     assert [c.since for c in choices] == [day(0), day(1)] and choices[0].steps != choices[1].steps
     snapshot = archive.get_snapshot(added.entry.snapshot_id)
     assert snapshot.lot_id == "QC-LOT-7" and snapshot.processor == P and snapshot.processed_on == day(1).isoformat()
+
+
+def test_a_repeat_strip_read_off_a_scan_keeps_the_day_s_steps(archive, demo, tmp_path):
+    cal = load_calibration(demo.calibration)
+    first = add_day(archive, P, day(0), new_processor=True,
+                    analysis=analyze_scan(scan_of(tmp_path, daily_film(9), 250, "f.tif"), calibration=cal))
+    again = add_day(archive, P, day(0), repeat=True,
+                    analysis=analyze_scan(scan_of(tmp_path, daily_film(0), 251, "g.tif"), calibration=cal))
+    assert first.reading.chosen_now and not again.reading.chosen_now
+    assert again.reading.steps == first.reading.steps
+    assert again.entry.repeat_of == first.entry.id and len(load_processor_log(archive, P).setup.step_choices) == 1
 
 
 def test_a_kept_step_outside_the_calibrated_range_is_refused(archive, demo, tmp_path):
@@ -379,3 +496,23 @@ def test_chart_data_marks_each_quantity_by_its_own_tier(archive):
         chart_data(load_processor_log(archive, P), month="2026-09")
     with pytest.raises(ValueError, match="not written YYYY-MM"):
         chart_data(load_processor_log(archive, P), month="October")
+
+
+def test_chart_data_shows_entries_kept_but_not_used(archive):
+    baseline(archive)
+    typed(archive, 5, md=1.37)
+    typed(archive, 5, md=1.21, repeat=True)
+    typed(archive, 6, md=12.1)
+    correct_entry(archive, 8, mid_density=1.21, reason="12.1 typed")
+    data = chart_data(load_processor_log(archive, P), month="2026-10")
+    md = {s.quantity: s for s in data.series}["mid_density"]
+    assert [p.entry_id for p in md.points] == [1, 2, 3, 4, 5, 7, 9]
+    aside = {p.entry_id: p for p in md.set_aside}
+    assert set(aside) == {6, 8}
+    # The first strip of the 10th: +0.17, past the ±0.15 control limit (21 CFR 900.12(e)(1)), repeated.
+    assert (aside[6].set_aside, aside[6].verdict, aside[6].date) == ("repeated", "action", day(5))
+    assert aside[6].deviation == pytest.approx(0.17)
+    assert aside[8].set_aside == "corrected"
+    assert data.set_aside_kinds == ("repeated", "corrected")
+    assert data.set_aside_notes == ("2026-10-10: entry 6 (ACT): repeated by entry 7, not used",
+                                    "2026-10-11: entry 8: corrected by entry 9, not used")

@@ -8,6 +8,7 @@ half-written export or backup under the real name.
 from __future__ import annotations
 
 import csv
+import dataclasses
 import json
 import os
 import sqlite3
@@ -44,7 +45,11 @@ __all__ = ["EXPORT_FORMAT", "EXPORT_FORMAT_VERSION", "export_data", "export_json
            "export_csv", "backup"]
 
 EXPORT_FORMAT = "stripscan lot archive"
-EXPORT_FORMAT_VERSION = 1
+#: Version 2 gives QC entries their id, recording time and repeat/correction
+#: links.  Version 1 files (QC entries without ids) are still read: their
+#: entries are each a day's first strip and get new ids.
+EXPORT_FORMAT_VERSION = 2
+_READABLE_VERSIONS = (1, 2)
 
 # Sections in the order they must be stored: everything a row refers to
 # comes before the row (lots need film types, snapshots need lots...).
@@ -165,9 +170,9 @@ def _read_export(path: Path) -> dict[str, Any]:
         raise ArchiveError(f"{path} is not valid JSON: {exc.msg} at line {exc.lineno} column {exc.colno}") from None
     if not isinstance(data, dict) or data.get("format") != EXPORT_FORMAT:
         raise ArchiveError(f"{path} is not a stripscan archive export")
-    if data.get("format_version") != EXPORT_FORMAT_VERSION:
+    if data.get("format_version") not in _READABLE_VERSIONS:
         raise ArchiveError(f"{path} uses export format version {data.get('format_version')!r}; "
-                           f"this stripscan reads version {EXPORT_FORMAT_VERSION}")
+                           f"this stripscan reads versions {', '.join(map(str, _READABLE_VERSIONS))}")
     return data
 
 
@@ -219,11 +224,25 @@ def _stored_twin(archive: "Archive", section: str, record: Any) -> tuple[str, An
     if section == "qc_settings":
         return f"QC settings of {record.processor!r}", archive.get_qc_settings(record.processor)
     if section == "qc_entries":
-        same_day = archive.list_qc_entries(record.processor, since=record.date, until=record.date)
-        return f"QC entry of {record.processor!r} on {record.date}", same_day[0] if same_day else None
+        return _stored_qc_twin(archive, record)
     if section == "qc_events":
         return f"QC event {record.id}", next((e for e in archive.list_qc_events() if e.id == record.id), None)
     return f"crossover {record.id}", next((c for c in archive.list_crossovers() if c.id == record.id), None)
+
+
+def _stored_qc_twin(archive: "Archive", record: QcEntry) -> tuple[str, Any]:
+    """The stored entry with the same id; for an entry without one (a version 1 file), the day's first strip."""
+    if record.id is not None:
+        what = f"QC entry {record.id} ({record.processor!r}, {record.date})"
+        try:
+            return what, archive.get_qc_entry(record.id)
+        except ArchiveLookupError:
+            return what, None
+    same_day = archive.list_qc_entries(record.processor, since=record.date, until=record.date)
+    first = next((e for e in same_day if e.kind == "first strip"), None)
+    # What a version 1 file can say about an entry: no id, no time, no links.
+    return (f"QC entry of {record.processor!r} on {record.date}",
+            None if first is None else dataclasses.replace(first, id=None, recorded_at=None))
 
 
 def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: Any) -> None:
@@ -264,6 +283,9 @@ def import_json(archive: "Archive", path: Path) -> ImportReport:
             if section == "snapshots":
                 # A revision refers to an earlier id, so id order stores parents first.
                 records = sorted(records, key=lambda r: r.id)
+            elif section == "qc_entries":
+                # Likewise repeats and corrections; entries without an id (version 1) come last.
+                records = sorted(records, key=lambda r: (r.id is None, r.id or 0))
             for record in records:
                 what, stored = _stored_twin(archive, section, record)
                 if stored is None:

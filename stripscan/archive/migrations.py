@@ -220,9 +220,79 @@ _V2 = (
     "CREATE INDEX snapshots_processor ON snapshots(processor)",
 )
 
+# v3: processor QC entries get an id, the UTC time they were recorded, a
+# link from a same-day repeat strip to the entry it repeats, and a link plus
+# a reason from a correction to the entry it corrects; and, like snapshots,
+# they can no longer be changed, deleted or replaced.
+#
+# SQLite cannot drop the old UNIQUE (processor, date), so the table is
+# rebuilt.  The old one is renamed first, which lets the new one be created
+# under its final name and point at itself; nothing else in the schema
+# (trigger, view, foreign key) names qc_entries, so the rename rewrites
+# nothing else.  Old rows keep their rowid as their id and get NULL for
+# recorded_at: the time they were recorded was never kept.
+_V3 = (
+    "ALTER TABLE qc_entries RENAME TO qc_entries_v2",
+    """CREATE TABLE qc_entries (
+        id INTEGER PRIMARY KEY,
+        processor TEXT NOT NULL REFERENCES processors(name),
+        date TEXT NOT NULL CHECK (date(date) IS date),
+        base_fog REAL,
+        mid_density REAL,
+        density_difference REAL,
+        source TEXT NOT NULL CHECK (source IN ('scan', 'manual')),
+        snapshot_id INTEGER REFERENCES snapshots(id),
+        note TEXT NOT NULL DEFAULT '',
+        action TEXT NOT NULL DEFAULT '',
+        recorded_at TEXT CHECK (recorded_at IS NULL
+            OR recorded_at GLOB '[0-9][0-9][0-9][0-9]-[0-9][0-9]-[0-9][0-9]T*Z'),
+        repeat_of INTEGER REFERENCES qc_entries(id) CHECK (repeat_of IS NULL OR repeat_of < id),
+        corrects INTEGER REFERENCES qc_entries(id) CHECK (corrects IS NULL OR corrects < id),
+        reason TEXT CHECK (reason IS NULL OR length(trim(reason)) > 0),
+        CHECK (repeat_of IS NULL OR corrects IS NULL),
+        CHECK ((corrects IS NULL) = (reason IS NULL))
+    )""",
+    """INSERT INTO qc_entries (id, processor, date, base_fog, mid_density, density_difference, source,
+        snapshot_id, note, action)
+    SELECT rowid, processor, date, base_fog, mid_density, density_difference, source, snapshot_id, note, action
+    FROM qc_entries_v2 ORDER BY rowid""",
+    "DROP TABLE qc_entries_v2",
+    # The old rule, kept for a day's first strip: repeats and corrections are linked to it.
+    """CREATE UNIQUE INDEX qc_entries_first_strip ON qc_entries(processor, date)
+    WHERE repeat_of IS NULL AND corrects IS NULL""",
+    # An entry is repeated at most once and corrected at most once: chains stay straight lines.
+    "CREATE UNIQUE INDEX qc_entries_repeat_of ON qc_entries(repeat_of) WHERE repeat_of IS NOT NULL",
+    "CREATE UNIQUE INDEX qc_entries_corrects ON qc_entries(corrects) WHERE corrects IS NOT NULL",
+    """CREATE TRIGGER qc_entries_no_update BEFORE UPDATE ON qc_entries
+    BEGIN SELECT RAISE(ABORT, 'QC entries are never changed; store a correction instead'); END""",
+    """CREATE TRIGGER qc_entries_no_delete BEFORE DELETE ON qc_entries
+    BEGIN SELECT RAISE(ABORT, 'QC entries are never deleted; store a correction instead'); END""",
+    # INSERT OR REPLACE would delete the row holding any of the unique keys
+    # without firing the DELETE trigger, so every key is guarded here.
+    """CREATE TRIGGER qc_entries_no_replace BEFORE INSERT ON qc_entries
+    WHEN EXISTS (SELECT 1 FROM qc_entries WHERE id = NEW.id)
+        OR EXISTS (SELECT 1 FROM qc_entries WHERE repeat_of = NEW.repeat_of)
+        OR EXISTS (SELECT 1 FROM qc_entries WHERE corrects = NEW.corrects)
+    BEGIN SELECT RAISE(ABORT, 'QC entries are never replaced; an entry is repeated once and corrected once at most');
+    END""",
+    """CREATE TRIGGER qc_entries_one_first_strip BEFORE INSERT ON qc_entries
+    WHEN NEW.repeat_of IS NULL AND NEW.corrects IS NULL AND EXISTS (
+        SELECT 1 FROM qc_entries WHERE processor = NEW.processor AND date = NEW.date
+        AND repeat_of IS NULL AND corrects IS NULL)
+    BEGIN SELECT RAISE(ABORT, 'one first QC strip per processor and day; store a repeat or a correction instead');
+    END""",
+    """CREATE TRIGGER qc_entries_same_day BEFORE INSERT ON qc_entries
+    WHEN (NEW.repeat_of IS NOT NULL AND NOT EXISTS (SELECT 1 FROM qc_entries
+            WHERE id = NEW.repeat_of AND processor = NEW.processor AND date = NEW.date))
+        OR (NEW.corrects IS NOT NULL AND NOT EXISTS (SELECT 1 FROM qc_entries
+            WHERE id = NEW.corrects AND processor = NEW.processor AND date = NEW.date))
+    BEGIN SELECT RAISE(ABORT, 'a repeat or a correction names an entry of the same processor and day'); END""",
+)
+
 MIGRATIONS: tuple[Migration, ...] = (
     Migration(1, "lots, processors, sensitometers, calibrations, snapshots, processor QC", _V1),
     Migration(2, "notes on snapshots; index by processor", _V2),
+    Migration(3, "QC entries: ids, repeat strips, corrections, no changes", _V3),
 )
 
 LATEST_VERSION = MIGRATIONS[-1].version

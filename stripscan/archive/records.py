@@ -22,6 +22,7 @@ import hashlib
 import json
 import math
 import re
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, NamedTuple
 
@@ -46,6 +47,8 @@ __all__ = [
     "LotSummary",
     "TrendPoint",
     "QcEntry",
+    "QcEntryState",
+    "qc_entry_states",
     "QcEvent",
     "QcSettings",
     "Crossover",
@@ -608,9 +611,20 @@ class TrendPoint(NamedTuple):
     snapshot_id: int
 
 
+def _check_id(value: Any, what: str) -> None:
+    if value is not None and (isinstance(value, bool) or not isinstance(value, int) or value < 1):
+        raise ValueError(f"{what} must be a positive whole number, not {value!r}")
+
+
 @dataclass(frozen=True)
 class QcEntry(_Plain):
-    """One day's processor QC reading: the three control densities.
+    """One processor QC strip of a day: the three control densities.
+
+    A day normally has one entry.  A second strip processed the same day
+    (after a result past a limit, say) is stored as a *repeat* linked to the
+    entry it follows; a wrongly entered value is fixed by a *correction*, a
+    new entry of the same processor and day that names the entry it
+    corrects and why.  Nothing stored is ever changed.
 
     Attributes
     ----------
@@ -619,6 +633,17 @@ class QcEntry(_Plain):
         ``"manual"`` when typed in from a densitometer.
     action : str
         What was done about it, if anything.
+    id : int or None
+        Archive-wide number of the entry; None before it is stored.
+    recorded_at : str or None
+        When it was stored (UTC).  None for entries stored before the
+        archive kept that time (schema version 2 and earlier).
+    repeat_of : int or None
+        For a repeat strip: the entry of the same day it follows.
+    corrects : int or None
+        For a correction: the entry whose values it replaces.
+    reason : str or None
+        Why the correction was made (set exactly when ``corrects`` is).
     """
 
     processor: str
@@ -630,6 +655,11 @@ class QcEntry(_Plain):
     snapshot_id: int | None = None
     note: str = ""
     action: str = ""
+    id: int | None = None
+    recorded_at: str | None = None
+    repeat_of: int | None = None
+    corrects: int | None = None
+    reason: str | None = None
 
     def __post_init__(self) -> None:
         _check_name(self.processor, "processor")
@@ -642,6 +672,91 @@ class QcEntry(_Plain):
             raise ValueError(f"QC source {self.source!r} is not one of {', '.join(QC_SOURCES)}")
         _check_text(self.note, "note")
         _check_text(self.action, "action")
+        _check_id(self.id, "QC entry id")
+        _check_time(self.recorded_at, "recorded_at")
+        self._check_links()
+
+    def _check_links(self) -> None:
+        for name in ("repeat_of", "corrects"):
+            link = getattr(self, name)
+            _check_id(link, name)
+            if link is not None and self.id is not None and link >= self.id:
+                raise ValueError(f"QC entry {self.id} cannot name entry {link} in {name}: only an earlier entry")
+        if self.repeat_of is not None and self.corrects is not None:
+            raise ValueError("a QC entry is a repeat strip or a correction, not both")
+        if (self.corrects is None) != (self.reason is None):
+            raise ValueError("a correction names the entry it corrects and a reason, both or neither")
+        if self.reason is not None:
+            _check_name(self.reason, "reason for the correction")
+
+    @property
+    def kind(self) -> str:
+        """``"first strip"``, ``"repeat"`` or ``"correction"``."""
+        if self.corrects is not None:
+            return "correction"
+        return "first strip" if self.repeat_of is None else "repeat"
+
+
+class QcEntryState(NamedTuple):
+    """What became of a stored QC entry, from the entries of its day.
+
+    Attributes
+    ----------
+    in_use : bool
+        True for the one entry per processor and day that counts for
+        operating levels, control limits and trend rules: the latest
+        correction of the day's latest strip.
+    corrected_by : int or None
+        The correction that replaces this entry's values.
+    repeated_by : int or None
+        The first entry of the later strip of the same day that replaces
+        this entry's strip.
+    strip : int
+        The entry this one's chain of corrections starts from (its own id
+        when it is no correction).
+    """
+
+    in_use: bool
+    corrected_by: int | None
+    repeated_by: int | None
+    strip: int
+
+
+def qc_entry_states(entries: Iterable[QcEntry]) -> dict[int, QcEntryState]:
+    """The state of every stored entry, by id.
+
+    A day's strips are taken in the order they were stored; a correction
+    belongs to the strip of the entry it corrects.  The day's value is the
+    latest strip's latest correction (common practice: a repeat strip
+    confirms or clears the first result).
+
+    Parameters
+    ----------
+    entries : iterable of QcEntry
+        Stored entries (with ids), including every entry of each day they
+        cover; any order.
+    """
+    by_id = {e.id: e for e in entries}
+    if None in by_id:
+        raise ValueError("only stored QC entries (with an id) have a state")
+    corrected_by = {e.corrects: e.id for e in by_id.values() if e.corrects is not None}
+
+    def strip_of(entry: QcEntry) -> int:
+        while entry.corrects is not None and entry.corrects in by_id:
+            entry = by_id[entry.corrects]
+        return entry.id  # type: ignore[return-value]
+
+    strips = {i: strip_of(e) for i, e in by_id.items()}
+    later: dict[int, int] = {}
+    days: dict[tuple[str, str], set[int]] = {}
+    for i, e in by_id.items():
+        days.setdefault((e.processor, e.date), set()).add(strips[i])
+    for firsts in days.values():
+        ordered = sorted(firsts)
+        later.update(zip(ordered, ordered[1:]))
+    return {i: QcEntryState(i not in corrected_by and strips[i] not in later, corrected_by.get(i),
+                            later.get(strips[i]), strips[i])
+            for i in by_id}
 
 
 @dataclass(frozen=True)

@@ -10,10 +10,17 @@ Snapshots are never changed or deleted.  A mistake is corrected with
 and a reading that should not count is withdrawn with
 :meth:`Archive.retire`, which keeps it readable.  Triggers in the file
 enforce the same rules against any other tool.
+
+Processor QC entries are kept the same way: a second strip of a day is a
+*repeat* linked to the day's entry (:meth:`Archive.add_qc_entry` with
+``repeat=True``), a wrongly entered value is fixed by a *correction* that
+names the entry and a reason (:meth:`Archive.add_qc_correction`), and
+nothing stored is changed or deleted.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import os
 import sqlite3
@@ -53,6 +60,7 @@ from .records import (
     calibration_hash,
     calibration_text,
     canonical_json,
+    qc_entry_states,
     snapshots_from_analysis,
     utc_now,
 )
@@ -83,6 +91,10 @@ _SNAPSHOT_SELECT = (
 def _insert_sql(table: str, columns: Sequence[str]) -> str:
     return f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})"
 
+
+# What a correction of a QC entry may change; a wrong processor or date is another matter.
+_QC_DENSITIES = ("base_fog", "mid_density", "density_difference")
+_QC_CORRECTABLE = (*_QC_DENSITIES, "note", "action")
 
 _STEP_COLUMNS = ("snapshot_id", "step", "log_exposure", "od", "od_sd", "pixels", "in_range", "excluded")
 
@@ -845,25 +857,91 @@ class Archive:
         if not self._exists("processors", "name", processor):
             raise self._missing("processor", processor)
 
-    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry) -> None:
+    def _qc_day(self, conn: sqlite3.Connection, processor: str, date: str) -> list[QcEntry]:
+        cursor = conn.cursor()
+        cursor.row_factory = sqlite3.Row
+        rows = cursor.execute("SELECT * FROM qc_entries WHERE processor = ? AND date = ? ORDER BY id",
+                              (processor, date)).fetchall()
+        return [QcEntry(**dict(row)) for row in rows]
+
+    @staticmethod
+    def _qc_in_use(day: list[QcEntry]) -> QcEntry:
+        """The entry that counts for a day: its latest strip's latest correction."""
+        states = qc_entry_states(day)
+        return next(e for e in day if states[e.id].in_use)  # type: ignore[index]
+
+    def _qc_target(self, entry: QcEntry, day: list[QcEntry], link: int, doing: str) -> QcEntry:
+        """The entry of ``entry``'s own processor and day that ``link`` names."""
+        target = next((e for e in day if e.id == link), None)
+        if target is None:
+            raise ArchiveConflictError(f"{self.path}: QC entry {link} is not an entry of processor "
+                                       f"{entry.processor!r} on {entry.date}; {doing} names an entry of its own day")
+        return target
+
+    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry) -> QcEntry:
+        """Check ``entry`` against its day and write it; an entry without an id gets the next one."""
         self._check_qc_processor(entry.processor)
         if entry.snapshot_id is not None and not self._exists("snapshots", "id", entry.snapshot_id):
             raise self._missing("snapshot", entry.snapshot_id)
-        if conn.execute("SELECT 1 FROM qc_entries WHERE processor = ? AND date = ?",
-                        (entry.processor, entry.date)).fetchone():
-            raise ArchiveConflictError(f"{self.path}: processor {entry.processor!r} already has a QC entry "
-                                       f"for {entry.date} (duplicate day)")
+        day = self._qc_day(conn, entry.processor, entry.date)
+        if entry.kind == "first strip" and day:
+            raise ArchiveConflictError(
+                f"{self.path}: processor {entry.processor!r} already has a QC entry for {entry.date} (duplicate "
+                "day); a second strip of that day is stored as a repeat, a wrongly entered value as a correction")
+        if entry.repeat_of is not None:
+            target = self._qc_target(entry, day, entry.repeat_of, "a repeat")
+            in_use = self._qc_in_use(day)
+            if target.id != in_use.id:
+                raise ArchiveConflictError(f"{self.path}: QC entry {target.id} is no longer the one in use for "
+                                           f"{entry.date} (entry {in_use.id} is); a repeat follows the entry in use")
+        if entry.corrects is not None:
+            target = self._qc_target(entry, day, entry.corrects, "a correction")
+            corrected_by = qc_entry_states(day)[target.id].corrected_by  # type: ignore[index]
+            if corrected_by is not None:
+                raise ArchiveConflictError(f"{self.path}: QC entry {target.id} was already corrected by entry "
+                                           f"{corrected_by}; correct that one instead")
+        if entry.id is None:
+            entry = dataclasses.replace(entry, id=self._next_id(conn, "qc_entries"))
         row = entry.to_dict()
-        conn.execute(f"INSERT INTO qc_entries ({', '.join(row)}) VALUES ({', '.join('?' for _ in row)})",
-                     tuple(row.values()))
-
-    def add_qc_entry(self, entry: QcEntry) -> QcEntry:
-        """Store one day's QC densities for a processor; one entry per processor and day."""
-        with self._writing(f"add the QC entry of {entry.date}") as conn:
-            self._insert_qc_entry(conn, entry)
+        conn.execute(_insert_sql("qc_entries", tuple(row)), tuple(row.values()))
         return entry
 
-    def add_qc_day(self, entry: QcEntry, *, new_processor: Processor | None = None,
+    def _new_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry, repeat: bool) -> QcEntry:
+        """A caller's new entry as it is stored: recorded now and, for a repeat, linked to the day's entry in use."""
+        if entry.id is not None or entry.recorded_at is not None or entry.corrects is not None:
+            raise ArchiveError(f"{self.path}: cannot add the QC entry of {entry.date}: the archive gives a new entry "
+                               "its id and time; a correction is stored with add_qc_correction")
+        if not repeat:
+            return dataclasses.replace(entry, recorded_at=utc_now())
+        self._check_qc_processor(entry.processor)
+        day = self._qc_day(conn, entry.processor, entry.date)
+        if not day:
+            raise ArchiveConflictError(f"{self.path}: processor {entry.processor!r} has no QC entry for {entry.date} "
+                                       "to repeat; store the day's first strip without calling it a repeat")
+        return dataclasses.replace(entry, recorded_at=utc_now(), repeat_of=self._qc_in_use(day).id)
+
+    def add_qc_entry(self, entry: QcEntry, *, repeat: bool = False) -> QcEntry:
+        """Store one QC strip's densities for a processor and day; return the entry as stored.
+
+        Parameters
+        ----------
+        entry : QcEntry
+            The densities, without id, time or links (the archive sets them).
+        repeat : bool
+            A second (third...) strip of a day that has an entry already: it is
+            linked to the day's entry in use and replaces it as the day's value.
+            Without it a second entry on the same day is refused.
+
+        Raises
+        ------
+        ArchiveConflictError
+            A second entry for the day not declared a repeat, or a repeat of a
+            day with no entry.
+        """
+        with self._writing(f"add the QC entry of {entry.date}") as conn:
+            return self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat))
+
+    def add_qc_day(self, entry: QcEntry, *, repeat: bool = False, new_processor: Processor | None = None,
                    snapshot: NewSnapshot | None = None, settings: dict[str, Any] | None = None) -> QcEntry:
         """Store one day's QC entry together with what belongs to it, in one transaction.
 
@@ -871,6 +949,9 @@ class Archive:
         ----------
         entry : QcEntry
             The day's densities.
+        repeat : bool
+            The entry is a repeat strip of a day that has an entry already
+            (see :meth:`add_qc_entry`).
         new_processor : Processor, optional
             A processor to add first, for its first QC day.
         snapshot : NewSnapshot, optional
@@ -892,14 +973,77 @@ class Archive:
             if snapshot is not None:
                 entry = QcEntry(**{**entry.to_dict(), "source": "scan",
                                    "snapshot_id": self._store_new(conn, snapshot, create_missing=True)})
-            self._insert_qc_entry(conn, entry)
+            entry = self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat))
             if settings is not None:
                 self._replace_qc_settings(conn, entry.processor, settings)
         return entry
 
+    def add_qc_correction(self, entry_id: int, reason: str, **changes: Any) -> QcEntry:
+        """Correct a wrongly entered QC entry: store a new entry that replaces its values.
+
+        The corrected entry stays as it was, readable and marked corrected;
+        the correction keeps its processor and date and names it.  A
+        correction can itself be corrected (a chain); an entry is corrected
+        once.
+
+        Parameters
+        ----------
+        entry_id : int
+            The entry to correct.
+        reason : str
+            Why (needed).
+        **changes
+            New ``base_fog``, ``mid_density``, ``density_difference``,
+            ``note`` or ``action``; what is not given is kept.  A changed
+            density makes the correction a typed value (source ``"manual"``,
+            no snapshot).
+
+        Returns
+        -------
+        QcEntry
+            The correction as stored.
+
+        Raises
+        ------
+        ArchiveError
+            An empty reason, a field that cannot be corrected, a bad value, or
+            nothing changed.
+        ArchiveLookupError
+            No entry ``entry_id``.
+        ArchiveConflictError
+            The entry was corrected already.
+        """
+        unknown = sorted(set(changes) - set(_QC_CORRECTABLE))
+        if unknown:
+            raise ArchiveError(f"{self.path}: a correction changes {', '.join(_QC_CORRECTABLE)} only, "
+                               f"not {', '.join(unknown)} (a wrong processor or date is not corrected this way)")
+        if not isinstance(reason, str) or not reason.strip():
+            raise ArchiveError(f"{self.path}: QC entry {entry_id} is corrected only with a reason")
+        with self._writing(f"correct QC entry {entry_id}") as conn:
+            old = self._load_qc_entry(entry_id)
+            changed = {k: v for k, v in changes.items() if v != getattr(old, k)}
+            if not changed:
+                raise ArchiveError(f"{self.path}: the correction of QC entry {entry_id} changes nothing")
+            typed = {"source": "manual", "snapshot_id": None} if changed.keys() & set(_QC_DENSITIES) else {}
+            correction = self._checked(f"correct QC entry {entry_id}", QcEntry, **{
+                **old.to_dict(), **changed, **typed, "id": None, "recorded_at": utc_now(), "repeat_of": None,
+                "corrects": old.id, "reason": reason.strip()})
+            return self._insert_qc_entry(conn, correction)
+
+    def _load_qc_entry(self, entry_id: int) -> QcEntry:
+        rows = self._rows("SELECT * FROM qc_entries WHERE id = ?", (entry_id,))
+        if not rows:
+            raise self._missing("QC entry", entry_id)
+        return QcEntry(**dict(rows[0]))
+
+    def get_qc_entry(self, entry_id: int) -> QcEntry:
+        """The QC entry with this id, whatever became of it (see :func:`~.records.qc_entry_states`)."""
+        return self._load_qc_entry(entry_id)
+
     def list_qc_entries(self, processor: str | None = None, *, since: str | None = None,
                         until: str | None = None) -> list[QcEntry]:
-        """QC entries by processor and date, optionally only from ``since`` to ``until`` (inclusive)."""
+        """Every QC entry (repeats and corrections too) by processor, date and id, optionally from ``since`` to
+        ``until`` (inclusive); :func:`~.records.qc_entry_states` tells which one counts for each day."""
         clauses, params = [], []
         for clause, value in (("processor = ?", processor), ("date >= ?", since), ("date <= ?", until)):
             if value is not None:
@@ -907,7 +1051,7 @@ class Archive:
                 params.append(value)
         where = " WHERE " + " AND ".join(clauses) if clauses else ""
         return [QcEntry(**dict(row)) for row in
-                self._rows(f"SELECT * FROM qc_entries{where} ORDER BY processor, date", params)]
+                self._rows(f"SELECT * FROM qc_entries{where} ORDER BY processor, date, id", params)]
 
     def add_qc_event(self, processor: str, date: str, kind: str, note: str = "") -> QcEvent:
         """Record something that happened to a processor (chemistry change, service, ...)."""
@@ -1009,9 +1153,9 @@ class Archive:
         """Add an exported JSON file's contents in one transaction.
 
         Items already present with the same content are left alone; an item
-        whose key (id, name, processor and day) is taken by other content
-        stops the import with :class:`ArchiveConflictError`, and nothing of
-        the file is stored.
+        whose key (id or name; for a QC entry of an export format 1 file,
+        processor and day) is taken by other content stops the import with
+        :class:`ArchiveConflictError`, and nothing of the file is stored.
         """
         from .exchange import import_json
         return import_json(self, Path(path))

@@ -1,11 +1,18 @@
-"""The processor QC panel: a processor's deviation plots, today's status, and a form for a typed day.
+"""The processor QC panel: a processor's deviation plots, today's status, and forms for a typed day and a correction.
 
 A standalone ``QWidget`` over the archive file: it opens the archive for
 each read or write and keeps no connection, so the command line (or
 another window) may write meanwhile; :meth:`QcPanel.refresh` shows what is
 stored now.  Every number and verdict comes from :mod:`stripscan.qc_log`
 and the pure core; the panel only draws them, with the same marks as the
-PNG chart (:data:`stripscan.qc_chart.MARKS`: shape *and* colour).
+PNG chart (:data:`stripscan.qc_chart.MARKS`: shape *and* colour).  Entries
+kept but not used are drawn as the chart draws them: a strip repeated the
+same day hollow, a value corrected afterwards as a grey cross.
+
+The typed-day form stores a day's strip, or a repeat strip of the latest
+day; the correction form stores the right values of an entry (typed by its
+number, or picked by clicking its point) with the reason it was wrong.  A
+refused entry is explained under its button; nothing is stored then.
 """
 
 from __future__ import annotations
@@ -21,6 +28,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QDate, Qt, Signal
 from PySide6.QtGui import QBrush, QColor, QPen
 from PySide6.QtWidgets import (
+    QCheckBox,
     QComboBox,
     QDateEdit,
     QDoubleSpinBox,
@@ -31,15 +39,38 @@ from PySide6.QtWidgets import (
     QLabel,
     QLineEdit,
     QPushButton,
+    QSpinBox,
     QVBoxLayout,
     QWidget,
 )
 
 from . import qtguard  # noqa: F401  (before any signal is emitted)
 from ..archive import Archive, ArchiveError
+from ..archive import QcEntry as StoredEntry
 from ..core.qc import QUANTITIES, QCValues
-from ..qc_chart import BANDS, MARKS, ChartData, ChartSeries, chart_data, describe_rule, y_span
-from ..qc_log import LABELS, VERDICT_WORDS, add_day, load_processor_log, status_text
+from ..qc_chart import (
+    BANDS,
+    CORRECTED_COLOUR,
+    MARKS,
+    SET_ASIDE,
+    SET_ASIDE_SHIFT,
+    ChartData,
+    ChartPoint,
+    ChartSeries,
+    chart_data,
+    describe_rule,
+    y_span,
+)
+from ..qc_log import (
+    LABELS,
+    VERDICT_WORDS,
+    DuplicateDayError,
+    ProcessorLog,
+    add_day,
+    correct_entry,
+    load_processor_log,
+    status_text,
+)
 
 __all__ = ["QcPanel", "DayAxis"]
 
@@ -48,6 +79,8 @@ log = logging.getLogger(__name__)
 # pyqtgraph's names for the chart's shapes.
 _SYMBOLS = {"circle": "o", "triangle": "t1", "diamond": "d"}
 _GLYPHS = {"ok": "\u25cf", "warning": "\u25b2", "action": "\u25c6"}
+# Glyphs for the key under the plots: a hollow mark, a cross.
+_KEY_GLYPHS = {"repeated": "\u25cb", "corrected": "\u00d7"}
 
 
 class DayAxis(pg.AxisItem):
@@ -65,8 +98,23 @@ class DayAxis(pg.AxisItem):
         return out
 
 
+def _density_spin(start: float) -> QDoubleSpinBox:
+    spin = QDoubleSpinBox()
+    spin.setRange(0.0, 5.0)
+    spin.setDecimals(3)
+    spin.setSingleStep(0.01)
+    spin.setValue(start)
+    spin.setSuffix(" OD")
+    return spin
+
+
+def _message(label: QLabel, text: str, *, ok: bool) -> None:
+    label.setStyleSheet("color: #1b5e20" if ok else "color: #b71c1c")
+    label.setText(text if ok else f"Not stored: {text}")
+
+
 class QcPanel(QWidget):
-    """A processor's QC: three stacked deviation plots, today's status and a form for a typed day.
+    """A processor's QC: three stacked deviation plots, today's status and forms for a typed day and a correction.
 
     Parameters
     ----------
@@ -78,14 +126,18 @@ class QcPanel(QWidget):
     -------
     sigDayAdded(str, str)
         Processor and date (``YYYY-MM-DD``) of a day stored through the form.
+    sigEntryCorrected(str, int)
+        Processor and id of a correction stored through the correction form.
     """
 
     sigDayAdded = Signal(str, str)
+    sigEntryCorrected = Signal(str, int)
 
     def __init__(self, archive_path: str | os.PathLike[str] | None = None, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.archive_path: Path | None = None
         self.data: ChartData | None = None
+        self.plog: ProcessorLog | None = None
         self.processor_box = QComboBox()
         self.processor_box.currentTextChanged.connect(self._processor_chosen)
         self.refresh_button = QPushButton("Reload")
@@ -109,6 +161,10 @@ class QcPanel(QWidget):
                 plot.setXLink(self.plots[QUANTITIES[0]])
             self.plots[q] = plot
         self.scatter: dict[str, pg.ScatterPlotItem] = {}
+        self.set_aside: dict[str, pg.ScatterPlotItem] = {}
+        #: Says what hollow marks and crosses are, when the plots show any.
+        self.key_label = QLabel()
+        self.key_label.setWordWrap(True)
         layout = QVBoxLayout(self)
         top = QHBoxLayout()
         top.addWidget(QLabel("Processor:"))
@@ -117,8 +173,13 @@ class QcPanel(QWidget):
         layout.addLayout(top)
         layout.addWidget(self.status_label)
         layout.addWidget(self.graphics, 1)
-        #: The typed-day form; a page with room to the side may place it there.
-        self.form_box = self._make_form()
+        layout.addWidget(self.key_label)
+        #: The typed-day and correction forms; a page with room to the side may place them there.
+        self.form_box = QWidget()
+        forms = QVBoxLayout(self.form_box)
+        forms.setContentsMargins(0, 0, 0, 0)
+        forms.addWidget(self._make_form())
+        forms.addWidget(self._make_correction_form())
         layout.addWidget(self.form_box)
         if archive_path is not None:
             self.set_archive(archive_path)
@@ -133,16 +194,15 @@ class QcPanel(QWidget):
         self.date_edit.setDisplayFormat("yyyy-MM-dd")
         self.date_edit.setDate(QDate.currentDate())
         form.addRow("Date processed", self.date_edit)
+        self.repeat_check = QCheckBox("Repeat strip of the day")
+        self.repeat_check.setToolTip("A second strip processed on the latest day (after a result past a limit, say). "
+                                     "Both strips are kept; the repeat is the day's value from then on.")
+        self.repeat_check.toggled.connect(self._set_form_date)
+        form.addRow("", self.repeat_check)
         self.value_edits: dict[str, QDoubleSpinBox] = {}
         for q, start in zip(QUANTITIES, (0.20, 1.20, 1.80)):
-            spin = QDoubleSpinBox()
-            spin.setRange(0.0, 5.0)
-            spin.setDecimals(3)
-            spin.setSingleStep(0.01)
-            spin.setValue(start)
-            spin.setSuffix(" OD")
-            self.value_edits[q] = spin
-            form.addRow(LABELS[q].capitalize(), spin)
+            self.value_edits[q] = _density_spin(start)
+            form.addRow(LABELS[q].capitalize(), self.value_edits[q])
         self.note_edit = QLineEdit()
         self.note_edit.setPlaceholderText("remark for the day (optional)")
         self.action_edit = QLineEdit()
@@ -156,6 +216,15 @@ class QcPanel(QWidget):
         form.addRow(self.add_button, self.form_message)
         return box
 
+    def _set_form_date(self) -> None:
+        """The day after the latest strip, or the latest strip's own day for a repeat."""
+        latest = self.plog.latest_day if self.plog is not None else None
+        if latest is None:
+            self.date_edit.setDate(QDate.currentDate())
+        else:
+            self.date_edit.setDate(QDate(latest if self.repeat_check.isChecked() else
+                                         latest + datetime.timedelta(days=1)))
+
     def add_typed_day(self) -> bool:
         """Store the form's values for the chosen processor; True when stored.
 
@@ -164,29 +233,102 @@ class QcPanel(QWidget):
         """
         processor = self.processor_box.currentText()
         if self.archive_path is None or not processor:
-            self._form_error("choose an archive and a processor first")
+            _message(self.form_message, "choose an archive and a processor first", ok=False)
             return False
         day = self.date_edit.date().toPython()
-        values = QCValues(*(self.value_edits[q].value() for q in QUANTITIES))
+        repeat = self.repeat_check.isChecked()
         try:
+            values = QCValues(*(self.value_edits[q].value() for q in QUANTITIES))
             with Archive.open(self.archive_path, create=False) as archive:
-                add_day(archive, processor, day, values=values, note=self.note_edit.text().strip(),
-                        action=self.action_edit.text().strip())
+                added = add_day(archive, processor, day, values=values, note=self.note_edit.text().strip(),
+                                action=self.action_edit.text().strip(), repeat=repeat)
         except (ArchiveError, ValueError, OSError) as exc:
-            self._form_error(str(exc))
+            repeat_hint = isinstance(exc, DuplicateDayError)
+            hint = " Tick 'Repeat strip of the day' to keep it as a repeat." if repeat_hint else ""
+            _message(self.form_message, f"{exc}.{hint}", ok=False)
             return False
-        log.info("QC day %s stored for %r from the panel", day, processor)
-        self.form_message.setStyleSheet("color: #1b5e20")
-        self.form_message.setText(f"Stored {day.isoformat()}.")
+        log.info("QC day %s stored for %r from the panel (entry %s)", day, processor, added.entry.id)
+        what = f"a repeat strip of {day.isoformat()}" if repeat else day.isoformat()
+        _message(self.form_message, f"Stored {what} as entry {added.entry.id}.", ok=True)
         self.note_edit.clear()
         self.action_edit.clear()
+        self.repeat_check.setChecked(False)
         self.show_processor(processor)
         self.sigDayAdded.emit(processor, day.isoformat())
         return True
 
-    def _form_error(self, message: str) -> None:
-        self.form_message.setStyleSheet("color: #b71c1c")
-        self.form_message.setText(f"Not stored: {message}")
+    # ----------------------------------------------------- the correction form
+
+    def _make_correction_form(self) -> QGroupBox:
+        box = QGroupBox("Correct an entry typed or read wrongly")
+        form = QFormLayout(box)
+        self.entry_spin = QSpinBox()
+        self.entry_spin.setRange(1, 2_000_000_000)
+        self.entry_spin.setToolTip("The entry's number, as 'stripscan qc list' shows it; or click its point.")
+        self.entry_spin.valueChanged.connect(self._entry_chosen)
+        form.addRow("Entry", self.entry_spin)
+        self.entry_label = QLabel()
+        self.entry_label.setWordWrap(True)
+        form.addRow("", self.entry_label)
+        self.fix_edits = {q: _density_spin(start) for q, start in zip(QUANTITIES, (0.20, 1.20, 1.80))}
+        for q, spin in self.fix_edits.items():
+            form.addRow(f"Right {LABELS[q]}", spin)
+        self.reason_edit = QLineEdit()
+        self.reason_edit.setPlaceholderText("why the entry was wrong (needed)")
+        form.addRow("Reason", self.reason_edit)
+        self.correct_button = QPushButton("Store correction")
+        self.correct_button.clicked.connect(self.correct_chosen_entry)
+        self.correct_message = QLabel()
+        self.correct_message.setWordWrap(True)
+        form.addRow(self.correct_button, self.correct_message)
+        return box
+
+    def _stored_entry(self, entry_id: int) -> StoredEntry | None:
+        entries = self.plog.entries if self.plog is not None else ()
+        return next((e for e in entries if e.id == entry_id), None)
+
+    def _entry_chosen(self, entry_id: int) -> None:
+        """Show the chosen entry and start the right values from its own."""
+        entry = self._stored_entry(entry_id)
+        if entry is None:
+            self.entry_label.setText(f"No entry {entry_id} for this processor.")
+            return
+        state = self.plog.states[entry_id] if self.plog is not None else None
+        fate = f"; corrected already by entry {state.corrected_by}" if state and state.corrected_by else ""
+        self.entry_label.setText(f"{entry.date}, {entry.source}: " + ", ".join(
+            f"{LABELS[q]} {getattr(entry, q):.3f}" for q in QUANTITIES if getattr(entry, q) is not None) + fate)
+        for q, spin in self.fix_edits.items():
+            if getattr(entry, q) is not None:
+                spin.setValue(getattr(entry, q))
+
+    def correct_chosen_entry(self) -> bool:
+        """Store the correction form's values for the chosen entry; True when stored.
+
+        Only the numbers changed in the form are corrected (to the
+        form's 0.001 OD); a refusal (no reason, nothing changed, entry
+        corrected already) is explained under the button and nothing is
+        stored.
+        """
+        processor = self.processor_box.currentText()
+        entry_id = self.entry_spin.value()
+        entry = self._stored_entry(entry_id)
+        if self.archive_path is None or entry is None:
+            _message(self.correct_message, f"entry {entry_id} is not in the QC log shown", ok=False)
+            return False
+        changes = {q: spin.value() for q, spin in self.fix_edits.items()
+                   if getattr(entry, q) is None or round(spin.value(), 3) != round(getattr(entry, q), 3)}
+        try:
+            with Archive.open(self.archive_path, create=False) as archive:
+                added = correct_entry(archive, entry_id, reason=self.reason_edit.text(), **changes)
+        except (ArchiveError, ValueError, OSError) as exc:
+            _message(self.correct_message, str(exc), ok=False)
+            return False
+        log.info("QC entry %s of %r corrected from the panel by entry %s", entry_id, processor, added.entry.id)
+        _message(self.correct_message, f"Stored entry {added.entry.id}: the correction of entry {entry_id}.", ok=True)
+        self.reason_edit.clear()
+        self.show_processor(processor)
+        self.sigEntryCorrected.emit(processor, added.entry.id)
+        return True
 
     # ------------------------------------------------------------ reading
 
@@ -222,7 +364,9 @@ class QcPanel(QWidget):
         for plot in self.plots.values():
             plot.clear()
         self.scatter.clear()
-        self.data = None
+        self.set_aside.clear()
+        self.key_label.clear()
+        self.data = self.plog = None
         if processor is None or self.archive_path is None:
             self._show_message("No processor chosen.")
             return
@@ -236,14 +380,20 @@ class QcPanel(QWidget):
         except (ArchiveError, ValueError) as exc:
             self._show_message(f"Cannot read the QC log of {processor!r}: {exc}")
             return
-        latest = plog.latest_entry
-        self.date_edit.setDate(QDate(latest.date + datetime.timedelta(days=1)) if latest else QDate.currentDate())
+        self.plog = plog
+        self._set_form_date()
+        if plog.entries:
+            # The latest entry is the one most often found mistyped.
+            self.entry_spin.setValue(max(e.id for e in plog.entries if e.id is not None))
+            self._entry_chosen(self.entry_spin.value())
         self.status_label.setText(self._status_html(plog))
         if not plog.log.entries:
             return
         self.data = chart_data(plog)
         for series in self.data.series:
             self._draw(series, self.data)
+        self.key_label.setText("   ".join(f"{_KEY_GLYPHS[kind]} {SET_ASIDE[kind].capitalize()}."
+                                          for kind in self.data.set_aside_kinds))
 
     def _show_message(self, text: str) -> None:
         self.status_label.setText(html.escape(text))
@@ -323,6 +473,11 @@ class QcPanel(QWidget):
             label = pg.TextItem(", ".join(words), color="#8E4A7A", anchor=(0, 0.5))
             label.setPos(end + 0.35, y)
             plot.addItem(label)
+        kept = pg.ScatterPlotItem(spots=[self._set_aside_spot(p, span) for p in series.set_aside
+                                         if p.deviation is not None], hoverable=True, tip=self._tip(series))
+        kept.sigClicked.connect(self._point_clicked)
+        plot.addItem(kept)
+        self.set_aside[series.quantity] = kept
         spots = []
         for p in series.points:
             if p.deviation is None:
@@ -330,20 +485,45 @@ class QcPanel(QWidget):
             colour, shape, size, _ = MARKS[p.verdict or "ok"]
             spots.append({"pos": (self._x(p.date), p.deviation), "symbol": _SYMBOLS[shape], "size": 2 * size + 2,
                           "brush": pg.mkBrush(colour), "pen": pg.mkPen("#1A1A1A", width=1),
-                          "data": (p.date.isoformat(), p.verdict)})
+                          "data": (p.date.isoformat(), p.verdict, p.entry_id)})
         scatter = pg.ScatterPlotItem(spots=spots, hoverable=True, tip=self._tip(series))
+        scatter.sigClicked.connect(self._point_clicked)
         plot.addItem(scatter)
         self.scatter[series.quantity] = scatter
         plot.setYRange(-span, span, padding=0.02)
         plot.setXRange(x0, x1, padding=0.01)
 
+    def _set_aside_spot(self, p: ChartPoint, span: float) -> dict[str, Any]:
+        """A spot left of its day: a hollow mark of its tier for a repeated strip, a grey cross for a corrected one."""
+        x = self._x(p.date) - SET_ASIDE_SHIFT
+        if p.set_aside == "corrected":
+            # A slip may be far off; it is held at the plot's edge.
+            y = min(max(p.deviation, -0.97 * span), 0.97 * span)  # type: ignore[type-var]
+            look = {"symbol": "x", "size": 11, "brush": pg.mkBrush(CORRECTED_COLOUR), "pen": pg.mkPen(None)}
+        else:
+            y = p.deviation
+            colour, shape, size, _ = MARKS[p.verdict or "ok"]
+            look = {"symbol": _SYMBOLS[shape], "size": 2 * size + 2, "brush": pg.mkBrush(None),
+                    "pen": pg.mkPen(colour, width=2)}
+        return {"pos": (x, y), **look, "data": (p.date.isoformat(), p.verdict, p.entry_id, p.set_aside)}
+
+    def _point_clicked(self, item: Any, points: Any, *_: Any) -> None:
+        # A clicked point chooses its entry in the correction form.
+        if len(points) and points[0].data()[2] is not None:
+            self.entry_spin.setValue(points[0].data()[2])
+
     @staticmethod
     def _tip(series: ChartSeries) -> Any:
-        values = {p.date.isoformat(): p.value for p in series.points}
+        values = {(p.date.isoformat(), p.entry_id): p.value for p in (*series.points, *series.set_aside)}
 
         def tip(x: float, y: float, data: Any) -> str:
-            day, verdict = data
-            words = VERDICT_WORDS.get(verdict, "baseline")
-            return f"{day}: {series.label} {values[day]:.3f} OD ({y:+.3f}), {words.lower()}"
+            day, verdict, entry_id = data[:3]
+            aside = data[3] if len(data) > 3 else None
+            words = "corrected, not used" if aside == "corrected" else VERDICT_WORDS.get(verdict, "baseline").lower()
+            if aside == "repeated":
+                words += "; repeated the same day, not used"
+            # A corrected value is drawn at the plot's edge: its height is not its deviation.
+            dev = "" if aside == "corrected" else f" ({y:+.3f})"
+            return f"{day}, entry {entry_id}: {series.label} {values[(day, entry_id)]:.3f} OD{dev}, {words}"
 
         return tip

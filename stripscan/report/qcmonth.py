@@ -10,10 +10,15 @@ chart data the QC views share (:func:`stripscan.qc_chart.chart_data`):
    operating level, with the warning and control-limit zones shaded, the
    limit lines drawn, points past a limit marked by shape and colour, and
    the processor's events as vertical lines;
-2. the day table (values, deviations, verdict, note and action), the
-   actions taken and events, where the numbers came from (strips read off
-   scans with their calibration, or densitometer readings typed in), and
-   the trend findings.
+2. the table of every entry (values, deviations, verdict, note and
+   action), the actions taken and events, where the numbers came from
+   (strips read off scans with their calibration, or densitometer readings
+   typed in), and the trend findings.
+
+Entries kept but not used are shown in the charts and the table: a strip
+repeated the same day (a hollow mark; the latest repeat is the day's value)
+and a value corrected afterwards (a grey cross; the correction counts),
+each with its entry number and what replaced it.
 
 Point marks follow the program's QC chart (:data:`stripscan.qc_chart.MARKS`):
 a circle within limits, a triangle past the warning tier, a larger diamond
@@ -29,7 +34,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Sequence
 
-from ..core.qc import QCDay
 from .canvas import Canvas, Column, draw_frame, write_pdf
 from .plot import COLOURS, HBand, Line, Note, Plot, Points, RefLine
 from .provenance import calibration_brief
@@ -37,7 +41,8 @@ from .qtsetup import ReportError
 
 if TYPE_CHECKING:
     from ..archive import Archive
-    from ..qc_chart import ChartData, ChartSeries
+    from ..qc_chart import ChartData, ChartPoint, ChartSeries
+    from ..qc_log import LoggedEntry
 
 __all__ = ["QCMonth", "qc_month", "qc_month_plots", "qc_month_report_pdf", "CHARTS"]
 
@@ -57,8 +62,9 @@ class QCMonth:
         ``YYYY-MM``.
     data : ChartData
         The charts' data (points, limits, events, findings, periods, status).
-    days : tuple of QCDay
-        The month's entries with their verdicts, oldest first.
+    entries : tuple of LoggedEntry
+        Every entry of the month, repeats and corrections too, with what
+        became of it and its verdict, by date and id.
     place : str
         Where the processor is, its chemistry and settings, in words.
     sources : tuple of (str, str)
@@ -71,7 +77,7 @@ class QCMonth:
     processor: str
     month: str
     data: "ChartData"
-    days: tuple[QCDay, ...]
+    entries: tuple["LoggedEntry", ...]
     place: str = ""
     sources: tuple[tuple[str, str], ...] = ()
     notes: tuple[str, ...] = ()
@@ -100,16 +106,19 @@ def _sources(archive: "Archive", processor: str, first: dt.date, last: dt.date) 
     kept: dict[str | None, list[str]] = {}
     unkept, typed = [], []
     for entry in archive.list_qc_entries(processor, since=first.isoformat(), until=last.isoformat()):
+        # A day's second entry says what it is, so a repeated or corrected day reads as such.
+        what = {"repeat": " repeat", "correction": " correction"}.get(entry.kind, "")
         if entry.source == "scan" and entry.snapshot_id is not None:
             digest = archive.get_snapshot(entry.snapshot_id).calibration_hash
-            kept.setdefault(digest, []).append(f"{entry.date} (snapshot {entry.snapshot_id})")
+            kept.setdefault(digest, []).append(f"{entry.date}{what} (snapshot {entry.snapshot_id})")
         elif entry.source == "scan":
-            unkept.append(entry.date)
+            unkept.append(f"{entry.date[8:]}{what}")
         else:
-            typed.append(entry.date)
+            typed.append(f"{entry.date[8:]}{what}")
 
     def days(dates: Sequence[str]) -> str:
-        return f"{len(dates)} day{'s' if len(dates) != 1 else ''}"
+        count = len({d.split()[0] for d in dates})
+        return f"{count} day{'s' if count != 1 else ''}"
 
     lines = []
     for digest, dates in kept.items():
@@ -118,11 +127,11 @@ def _sources(archive: "Archive", processor: str, first: dt.date, last: dt.date) 
     if unkept:
         lines.append((f"Read off scans, {days(unkept)}",
                       "the strips were not kept in the archive, so their calibration is not recorded here (each "
-                      "entry's note names its scan): " + ", ".join(d[8:] for d in unkept)))
+                      "entry's note names its scan): " + ", ".join(unkept)))
     if typed:
         lines.append((f"Typed in, {days(typed)}",
                       "densitometer readings as entered (no scan, no calibration of this program): "
-                      + ", ".join(d[8:] for d in typed)))
+                      + ", ".join(typed)))
     return lines
 
 
@@ -147,9 +156,8 @@ def qc_month(archive: "Archive", processor: str, month: str, *, site: str = "") 
         record.place, record.chemistry,
         f"developer {record.developer_temperature_c:g} \u00b0C" if record.developer_temperature_c else "",
         f"cycle {record.cycle_time_s:g} s" if record.cycle_time_s else "") if part)
-    days = tuple(d for d in plog.log.days if first <= d.entry.date <= last)
-    return QCMonth(processor, month, data, days, place, tuple(_sources(archive, processor, first, last)),
-                   tuple(plog.notes), site)
+    return QCMonth(processor, month, data, plog.logged(first, last), place,
+                   tuple(_sources(archive, processor, first, last)), tuple(plog.notes), site)
 
 
 # --------------------------------------------------------------------------
@@ -214,12 +222,47 @@ def _series_plot(data: "ChartData", series: "ChartSeries", first: dt.date, last:
         items.append(Points(tuple(float(p.date.day) for p in waiting), (0.0,) * len(waiting),
                             label="baseline in progress (not judged)", colour=COLOURS["grey"], marker="plus",
                             size_pt=4))
-    span = max([reach * 1.35, 0.05, *(abs(v) * 1.15 for v in y)])
+    repeated = [p for p in series.set_aside if p.set_aside == "repeated" and p.deviation is not None]
+    span = max([reach * 1.35, 0.05, *(abs(v) * 1.15 for v in (*y, *(p.deviation for p in repeated)))])
+    items += _set_aside_items(series.set_aside, span)
     ticks = [(float(d), str(d) if d == 1 or d % 5 == 0 or d == last.day else "") for d in range(1, last.day + 1)]
     return Plot(items=tuple(items), title=f"{series.label}: deviation from operating level",
                 x_label="day of the month" if legend else "", y_label="OD", x_range=(0.5, last.day + 0.5),
                 y_range=(-span, span), x_ticks=ticks, y_signed=True, y_decimals=2, legend=legend, font_pt=6.5,
                 empty_text="no strip this month")
+
+
+def _set_aside_items(points: Sequence["ChartPoint"], span: float) -> list[Any]:
+    """Marks for entries kept but not used, a little left of their day.
+
+    A repeated strip keeps the shape and colour of its own tier, hollow,
+    with the word "repeated" beside it (a hollow circle alone would read as
+    a baseline day); a corrected value is a grey cross, held inside the
+    plot: it was a slip, perhaps far off.
+    """
+    from ..qc_chart import CORRECTED_COLOUR, MARKS, SET_ASIDE, SET_ASIDE_SHIFT
+
+    items: list[Any] = []
+    judged = [p for p in points if p.deviation is not None]
+    labelled = False
+    for verdict in ("ok", "warning", "action"):
+        chosen = [p for p in judged if p.set_aside == "repeated" and (p.verdict or "ok") == verdict]
+        if not chosen:
+            continue
+        colour, shape, size_px, _ = MARKS[verdict]
+        items.append(Points(tuple(p.date.day - SET_ASIDE_SHIFT for p in chosen), tuple(p.deviation for p in chosen),
+                            label="" if labelled else SET_ASIDE["repeated"], colour=colour, marker=shape,
+                            filled=False, size_pt=size_px * 0.75))
+        items += [Note(p.date.day - SET_ASIDE_SHIFT, p.deviation, "repeated", colour=COLOURS["grey"], side="left")
+                  for p in chosen]
+        labelled = True
+    corrected = [p for p in judged if p.set_aside == "corrected"]
+    if corrected:
+        edge = 0.97 * span
+        items.append(Points(tuple(p.date.day - SET_ASIDE_SHIFT for p in corrected),
+                            tuple(min(max(p.deviation, -edge), edge) for p in corrected),
+                            label=SET_ASIDE["corrected"], colour=CORRECTED_COLOUR, marker="cross", size_pt=4))
+    return items
 
 
 def qc_month_plots(month: QCMonth) -> dict[str, Plot]:
@@ -292,27 +335,41 @@ def _draw_charts(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
         y += h + gap
 
 
-_DAY_TABLE = (Column("Date", 17), Column("Source", 11), Column("Base+fog", 14, "right"), Column("\u0394", 10, "right"),
-              Column("Mid-density", 16, "right"), Column("\u0394", 10, "right"), Column("Density diff.", 18, "right"),
-              Column("\u0394", 10, "right"), Column("Verdict", 20), Column("Note and action", 56))
+_DAY_TABLE = (Column("Entry", 9, "right"), Column("Date", 17), Column("Source", 11), Column("Base+fog", 14, "right"),
+              Column("\u0394", 10, "right"), Column("Mid-density", 16, "right"), Column("\u0394", 10, "right"),
+              Column("Density diff.", 18, "right"), Column("\u0394", 10, "right"), Column("Verdict", 20),
+              Column("Note and action", 47))
 _VERDICT_COLOURS = {"action": COLOURS["red"], "warning": "#8a5a00"}
 
 
-def _day_rows(month: QCMonth) -> tuple[list[list[str]], list[str | None]]:
+def _number(value: float | None, deviation: float | None) -> list[str]:
+    return ["-" if value is None else f"{value:.3f}",
+            "-" if deviation is None else f"{round(deviation, 3) + 0.0:+.3f}"]
+
+
+def _verdict_cell(item: "LoggedEntry") -> str:
     from ..qc_log import VERDICT_WORDS
 
+    if item.set_aside == "corrected":
+        return "corrected, not used"
+    word = VERDICT_WORDS[item.verdict.verdict] if item.verdict else "baseline"
+    return word if item.state.in_use else f"{word}; repeated, not used"
+
+
+def _day_rows(month: QCMonth) -> tuple[list[list[str]], list[str | None]]:
     rows, colours = [], []
-    for day in month.days:
-        values, verdict = day.entry.values, day.verdict
-        cells = [day.entry.date.isoformat(), day.entry.source]
+    for item in month.entries:
+        e, verdict = item.entry, item.verdict
+        cells = [str(e.id), e.date, e.source]
         for q in ("base_fog", "mid_density", "density_difference"):
-            cells.append(f"{getattr(values, q):.3f}")
-            cells.append(f"{round(getattr(verdict.deviations, q), 3) + 0.0:+.3f}" if verdict else "-")
-        cells.append(VERDICT_WORDS[verdict.verdict] if verdict else "baseline")
-        remarks = [r for r in (day.entry.note, f"action: {day.entry.action}" if day.entry.action else "") if r]
+            cells += _number(getattr(e, q), getattr(verdict.deviations, q) if verdict else None)
+        cells.append(_verdict_cell(item))
+        remarks = [r for r in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if r]
         cells.append("; ".join(remarks))
         rows.append(cells)
-        colours.append(_VERDICT_COLOURS.get(verdict.verdict) if verdict else COLOURS["grey"])
+        # Entries not used are greyed: they are kept for the record, not judged for the day.
+        in_use_colour = _VERDICT_COLOURS.get(verdict.verdict) if verdict else COLOURS["grey"]
+        colours.append(in_use_colour if item.state.in_use else COLOURS["grey"])
     return rows, colours
 
 
@@ -336,9 +393,12 @@ def _draw_days(m: QCMonth, c: Canvas, top: float, bottom: float) -> None:
         size -= 0.25
     y = top + c.table(c.left, top, _DAY_TABLE, rows, size=size, max_lines=4, row_colours=colours) + 1.0
     y += c.text(c.left, y, c.content_width, "\u0394 = value minus the operating level in force that day, OD; "
-                "source: scan (read by this program) or manual (typed in).", size=6.0, colour=COLOURS["grey"])
+                "source: scan (read by this program) or manual (typed in). Entries in grey are kept but not used: "
+                "a strip repeated the same day (the latest repeat is the day's value) or a value corrected "
+                "afterwards (the correction counts).", size=6.0, colour=COLOURS["grey"])
     y += 2.0
-    actions = [f"{d.entry.date.isoformat()}: {d.entry.action}" for d in m.days if d.entry.action]
+    # Actions of every entry that was not corrected: the action is often written on the first strip.
+    actions = [f"{i.entry.date}: {i.entry.action}" for i in m.entries if i.entry.action and i.set_aside != "corrected"]
     actions += [f"{day.isoformat()}: {label}" for day, label in m.data.events]
     y = _bullets(c, y, bottom, "Actions taken and processor events", sorted(actions), empty="None recorded.")
     # Provenance before the findings: it must never be what runs out of room.

@@ -38,6 +38,8 @@ def _fill(archive: Archive) -> None:
         archive.add_qc_entry(QcEntry(PROCESSORS[0].name, day, 0.19, mid, 1.83, "scan", 1, "", ""))
     archive.add_qc_entry(QcEntry(PROCESSORS[1].name, "2024-10-02", 0.2, 1.3, None, "manual", None, "typed in",
                                  "replenisher topped up"))
+    archive.add_qc_entry(QcEntry(PROCESSORS[0].name, "2024-10-02", 0.19, 1.22, 1.83), repeat=True)
+    archive.add_qc_correction(3, "density difference was read, not typed", density_difference=1.79)
     archive.add_qc_event(PROCESSORS[0].name, "2024-10-02", "chemistry change", "fresh developer")
     archive.set_qc_settings(PROCESSORS[0].name, {"operating levels": {"mid_density": 1.22}, "control limit": 0.15})
     archive.add_crossover(PROCESSORS[0].name, "2024-10-14", {"old lot": LOTS[0].lot_id, "new lot": LOTS[1].lot_id,
@@ -65,7 +67,11 @@ def test_export_then_import_reproduces_the_archive_exactly(filled: Archive, arch
     assert report.added["snapshots"] == 9 and report.added["calibrations"] == 2
     assert sum(report.unchanged.values()) == 0
     data = json.loads(exported.read_text(encoding="utf-8"))
-    assert data["format"] == "stripscan lot archive" and data["format_version"] == 1
+    assert data["format"] == "stripscan lot archive" and data["format_version"] == 2
+    # Ids, times and links of the QC log go along, so repeats and corrections come back as they were.
+    assert [(e["id"], e["repeat_of"], e["corrects"]) for e in data["qc_entries"]] == [
+        (1, None, None), (2, None, None), (4, 2, None), (3, None, None), (5, None, 3)]
+    assert all(e["recorded_at"] for e in data["qc_entries"])
     assert sum(1 for s in data["snapshots"] if s["preview_png"]) == 4
 
 
@@ -74,7 +80,7 @@ def test_importing_the_same_file_twice_changes_nothing(filled: Archive, archive_
     before = _tables(archive_path)
     report = filled.import_json(exported)
     assert sum(report.added.values()) == 0
-    assert report.unchanged["snapshots"] == 9 and report.unchanged["qc_entries"] == 3
+    assert report.unchanged["snapshots"] == 9 and report.unchanged["qc_entries"] == 5
     assert _tables(archive_path) == before
 
 
@@ -105,6 +111,36 @@ def test_failure_late_in_an_import_leaves_nothing_behind(archive: Archive, archi
                                                "on 2024-10-01: .*not in the archive; nothing was imported"):
             fresh.import_json(broken)
     assert _tables(tmp_path / "fresh.sqlite3") == empty
+
+
+def test_a_qc_entry_differing_under_the_same_id_stops_the_import(filled: Archive, archive_path: Path,
+                                                                 tmp_path: Path) -> None:
+    exported = filled.export_json(tmp_path / "year.json")
+    data = json.loads(exported.read_text(encoding="utf-8"))
+    data["qc_entries"][2]["mid_density"] = 1.5  # entry 4, the repeat strip
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(data), encoding="utf-8")
+    before = _tables(archive_path)
+    with pytest.raises(ArchiveConflictError, match="QC entry 4 \\('North room', 2024-10-02\\) differs"):
+        filled.import_json(edited)
+    assert _tables(archive_path) == before
+
+
+def test_a_version_1_export_without_qc_ids_is_still_read(archive: Archive, tmp_path: Path) -> None:
+    # As version 1 wrote them: no id, no time, no links.
+    old = [QcEntry(PROCESSORS[0].name, day, 0.19, mid, 1.83).to_dict() for day, mid in
+           (("2024-10-02", 1.24), ("2024-10-01", 1.21))]
+    for entry in old:
+        for key in ("id", "recorded_at", "repeat_of", "corrects", "reason"):
+            del entry[key]
+    path = tmp_path / "from-version-1.json"
+    path.write_text(json.dumps({"format": "stripscan lot archive", "format_version": 1, "qc_entries": old}),
+                    encoding="utf-8")
+    assert archive.import_json(path).added["qc_entries"] == 2
+    stored = archive.list_qc_entries()
+    assert [(e.id, e.date, e.recorded_at) for e in stored] == [(2, "2024-10-01", None), (1, "2024-10-02", None)]
+    again = archive.import_json(path)
+    assert again.unchanged["qc_entries"] == 2 and sum(again.added.values()) == 0
 
 
 @pytest.mark.parametrize("content, message", [

@@ -1,19 +1,21 @@
-"""Upgrading an archive written with schema version 1.
+"""Upgrading archives written with schema versions 1 and 2.
 
-The v1 file is built here by running version 1's own SQL, as an older
-stripscan did, then filled through raw SQL; opening it must carry every row
-over to the latest schema.
+The old files are built here by running the old versions' own SQL, as an
+older stripscan did, then filled through raw SQL; opening them must carry
+every row over to the latest schema.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
 
+import sqlite3
+
 import pytest
 from archive_factory import FILM, LOTS, PROCESSORS, make_draft, make_scan, make_strip, raw_connection
 
 import stripscan.archive.store as store
-from stripscan.archive import Archive, ArchiveError
+from stripscan.archive import Archive, ArchiveConflictError, ArchiveError, QcEntry
 from stripscan.archive.migrations import APPLICATION_ID, LATEST_VERSION, MIGRATIONS, Migration
 from stripscan.archive.records import FIGURES, canonical_json
 
@@ -49,6 +51,31 @@ def v1_archive(tmp_path: Path) -> Path:
                            int(s["excluded"])) for s in data["steps"]])
         conn.execute("COMMIT")
     return path
+
+
+# Processor QC rows as an older stripscan stored them, deliberately not in date order:
+# (processor, date, base_fog, mid_density, density_difference, source, snapshot_id, note, action).
+V2_QC_ROWS = (
+    (PROCESSORS[0].name, "2024-06-04", 0.19, 1.23, 1.84, "manual", None, "typed in", ""),
+    (PROCESSORS[0].name, "2024-06-03", 0.19, 1.21, 1.83, "scan", 1, "", ""),
+    (PROCESSORS[1].name, "2024-06-03", 0.20, 1.30, None, "manual", None, "", "developer topped up"),
+    (PROCESSORS[0].name, "2024-06-05", 0.21, 1.38, 1.80, "manual", None, "Größe ✓", "strip repeated"),
+)
+
+
+@pytest.fixture
+def v2_archive(v1_archive: Path) -> Path:
+    """An archive as the version 2 schema left it, with a QC log of two processors."""
+    with raw_connection(v1_archive) as conn:
+        conn.execute("BEGIN")
+        for statement in MIGRATIONS[1].statements:
+            conn.execute(statement)
+        conn.execute("PRAGMA user_version = 2")
+        conn.execute("INSERT INTO processors (name) VALUES (?)", (PROCESSORS[1].name,))
+        conn.executemany("INSERT INTO qc_entries (processor, date, base_fog, mid_density, density_difference, source, "
+                         "snapshot_id, note, action) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)", V2_QC_ROWS)
+        conn.execute("COMMIT")
+    return v1_archive
 
 
 def test_migrations_are_numbered_one_after_another() -> None:
@@ -100,3 +127,50 @@ def test_failed_upgrade_step_leaves_the_file_at_its_version(archive_path: Path,
         names = {r[0] for r in conn.execute("SELECT name FROM sqlite_master")}
     assert "lot_photos" not in names
 
+
+
+def test_version_2_archive_keeps_every_qc_entry_and_freezes_them(v2_archive: Path) -> None:
+    with raw_connection(v2_archive) as conn:
+        old = conn.execute("SELECT rowid, * FROM qc_entries ORDER BY rowid").fetchall()
+    assert [row[1:] for row in old] == list(V2_QC_ROWS)
+    with Archive.open(v2_archive) as archive:
+        assert archive.schema_version == LATEST_VERSION
+        entries = {e.id: e for e in archive.list_qc_entries()}
+        # Each old row keeps its rowid as its id, every value, and no time or links (none were kept).
+        assert entries == {rowid: QcEntry(*row, id=rowid) for rowid, *row in old}
+        assert all(e.recorded_at is None and e.kind == "first strip" for e in entries.values())
+        # The old one-entry-a-day rule still holds for a day's first strip; a repeat is now possible.
+        with pytest.raises(ArchiveConflictError, match="already has a QC entry for 2024-06-05 \\(duplicate day\\)"):
+            archive.add_qc_entry(QcEntry(PROCESSORS[0].name, "2024-06-05", 0.19, 1.22, 1.84))
+        repeat = archive.add_qc_entry(QcEntry(PROCESSORS[0].name, "2024-06-05", 0.19, 1.22, 1.84), repeat=True)
+        assert repeat.id == len(old) + 1 and repeat.repeat_of == 4
+    with raw_connection(v2_archive) as conn:
+        assert conn.execute("PRAGMA integrity_check").fetchall() == [("ok",)]
+        assert conn.execute("PRAGMA foreign_key_check").fetchall() == []
+        names = {r[0] for r in conn.execute("SELECT name FROM sqlite_master")}
+        assert "qc_entries_v2" not in names
+        assert {"qc_entries_no_update", "qc_entries_no_delete", "qc_entries_no_replace"} <= names
+        # SQLite docs (lang_createtrigger.html): RAISE(ABORT, ...) refuses the statement.
+        with pytest.raises(sqlite3.IntegrityError, match="QC entries are never changed"):
+            conn.execute("UPDATE qc_entries SET mid_density = 1.0 WHERE id = 2")
+        with pytest.raises(sqlite3.IntegrityError, match="QC entries are never deleted"):
+            conn.execute("DELETE FROM qc_entries")
+        assert conn.execute("SELECT rowid, processor, date, base_fog, mid_density, density_difference, source, "
+                            "snapshot_id, note, action FROM qc_entries WHERE id <= 4 ORDER BY id").fetchall() == old
+
+
+def test_a_failed_qc_rebuild_leaves_the_version_2_file_as_it_was(v2_archive: Path,
+                                                                 monkeypatch: pytest.MonkeyPatch) -> None:
+    with raw_connection(v2_archive) as conn:
+        schema = conn.execute("SELECT type, name, sql FROM sqlite_master ORDER BY name").fetchall()
+        rows = conn.execute("SELECT rowid, * FROM qc_entries ORDER BY rowid").fetchall()
+    # Version 3 cut short after the old table is dropped: the step's transaction undoes all of it.
+    cut = Migration(3, "cut short", (*MIGRATIONS[2].statements[:4], "CREATE TABLE oops ("))
+    monkeypatch.setattr(store, "MIGRATIONS", (*MIGRATIONS[:2], cut))
+    monkeypatch.setattr(store, "LATEST_VERSION", 3)
+    with pytest.raises(ArchiveError, match="cannot open it: incomplete input"):
+        Archive.open(v2_archive)
+    with raw_connection(v2_archive) as conn:
+        assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
+        assert conn.execute("SELECT type, name, sql FROM sqlite_master ORDER BY name").fetchall() == schema
+        assert conn.execute("SELECT rowid, * FROM qc_entries ORDER BY rowid").fetchall() == rows

@@ -1,4 +1,4 @@
-"""The processor QC panel on the demo month: status with rule and advice, three plots, the typed-day form."""
+"""The processor QC panel on the demo month: status with rule and advice, three plots, the day and correction forms."""
 
 from __future__ import annotations
 
@@ -47,14 +47,23 @@ def test_the_panel_shows_the_demo_processor_status(panel):
     assert "the processor may be used" in text and CAUTION in text
     assert set(panel.plots) == {"base_fog", "mid_density", "density_difference"}
     spots = {q: panel.scatter[q].points() for q in panel.plots}
-    assert all(len(s) == 29 for s in spots.values())
-    # 10 November: density difference past the control limit (21 CFR 900.12(e)(1)), a diamond in its own colour.
+    assert all(len(s) == 29 for s in spots.values())  # one point in use a day
+    # 10 November: the first strip's density difference past the control limit (21 CFR 900.12(e)(1)), a
+    # diamond in its own colour, hollow and left of the day: it was repeated the same day and is not used.
     first = panel.data.first
-    out = [s for s in spots["density_difference"] if s.data()[1] == "action"]
-    assert [first + datetime.timedelta(days=round(s.pos().x())) for s in out] == [datetime.date(2026, 11, 10)]
-    assert out[0].symbol() == "d" and out[0].brush().color().name().upper() == "#D55E00"
+    assert not [s for s in spots["density_difference"] if s.data()[1] == "action"]
+    kept = panel.set_aside["density_difference"].points()
+    assert len(kept) == 1 and kept[0].data()[1] == "action" and kept[0].data()[3] == "repeated"
+    assert first + datetime.timedelta(days=round(kept[0].pos().x())) == datetime.date(2026, 11, 10)
+    assert kept[0].pos().x() % 1 != 0
+    assert kept[0].symbol() == "d" and kept[0].pen().color().name().upper() == "#D55E00"
+    assert kept[0].brush().style() == Qt.BrushStyle.NoBrush
+    # The repeat, within limits, is the day's point (common practice: the repeat confirms or clears the first).
+    tenth = [s for s in spots["density_difference"] if s.data()[0] == "2026-11-10"]
+    assert len(tenth) == 1 and tenth[0].data()[1] == "ok"
     ordinary = [s for s in spots["density_difference"] if s.data()[1] == "ok"][0]
     assert ordinary.symbol() == "o" and ordinary.brush().color().name().upper() == "#0072B2"
+    assert "Strip repeated the same day: kept, not used" in panel.key_label.text()
 
 
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
@@ -93,9 +102,67 @@ def test_the_form_adds_a_typed_day_and_refuses_a_duplicate(panel, qtbot, archive
     assert len(panel.scatter["mid_density"].points()) == 30
     panel.date_edit.setDate(QDate(2026, 12, 1))
     assert not panel.add_typed_day()
-    assert "Not stored" in panel.form_message.text() and "duplicate day" in panel.form_message.text()
+    message = panel.form_message.text()
+    assert "Not stored" in message and "duplicate day" in message and "Repeat strip of the day" in message
     panel.date_edit.setDate(QDate(2026, 11, 15))
     assert not panel.add_typed_day()
     assert "dates out of order" in panel.form_message.text()
     with Archive.open(archive_copy, read_only=True) as archive:
-        assert len(archive.list_qc_entries("Processor 1")) == 30
+        assert len(archive.list_qc_entries("Processor 1")) == 31  # 29 days' strips, the demo's repeat, this one
+
+
+def test_the_form_stores_a_repeat_strip_that_counts_for_the_day(panel, qtbot, archive_copy):
+    panel.repeat_check.setChecked(True)
+    assert panel.date_edit.date() == QDate(2026, 11, 30)  # a repeat is a strip of the latest day
+    panel.value_edits["base_fog"].setValue(0.19)
+    panel.value_edits["mid_density"].setValue(1.22)
+    panel.value_edits["density_difference"].setValue(1.90)
+    with qtbot.waitSignal(panel.sigDayAdded, timeout=2000):
+        qtbot.mouseClick(panel.add_button, Qt.MouseButton.LeftButton)
+    assert "Stored a repeat strip of 2026-11-30 as entry 31" in panel.form_message.text()
+    assert not panel.repeat_check.isChecked() and panel.date_edit.date() == QDate(2026, 12, 1)
+    with Archive.open(archive_copy, read_only=True) as archive:
+        last = archive.list_qc_entries("Processor 1")[-2:]
+    assert [(e.id, e.date, e.repeat_of) for e in last] == [(30, "2026-11-30", None), (31, "2026-11-30", 30)]
+    # Common practice: the repeat is the day's value; the first strip stays on the plot, hollow.
+    assert "latest: base+fog 0.190" in panel.status_label.text() and "mid-density 1.220" in panel.status_label.text()
+    assert "entry 30 (WITHIN LIMITS): repeated by entry 31, not used" in panel.status_label.text()
+    assert len(panel.scatter["mid_density"].points()) == 29 and len(panel.set_aside["mid_density"].points()) == 2
+    panel.repeat_check.setChecked(True)
+    panel.date_edit.setDate(QDate(2026, 11, 20))
+    assert not panel.add_typed_day() and "a repeat strip of 2026-11-20 would re-judge" in panel.form_message.text()
+
+
+def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtbot, archive_copy):
+    # Clicking a point picks its entry: the strip of 12 November, typed in (entry 12).
+    spot = next(s for s in panel.scatter["mid_density"].points() if s.data()[0] == "2026-11-12")
+    panel.scatter["mid_density"].sigClicked.emit(panel.scatter["mid_density"], [spot], None)
+    assert panel.entry_spin.value() == 12 and panel.entry_label.text().startswith("2026-11-12, manual")
+    wrong = panel.fix_edits["mid_density"].value()
+    panel.fix_edits["mid_density"].setValue(wrong + 0.05)
+    assert not panel.correct_chosen_entry()
+    assert "Not stored" in panel.correct_message.text() and "with a reason" in panel.correct_message.text()
+    panel.reason_edit.setText("0.93 read, mistyped")
+    with qtbot.waitSignal(panel.sigEntryCorrected, timeout=2000) as signal:
+        qtbot.mouseClick(panel.correct_button, Qt.MouseButton.LeftButton)
+    assert signal.args == ["Processor 1", 31]
+    with Archive.open(archive_copy, read_only=True) as archive:
+        fixed, kept = archive.get_qc_entry(31), archive.get_qc_entry(12)
+    assert (fixed.corrects, fixed.reason, fixed.date) == (12, "0.93 read, mistyped", "2026-11-12")
+    assert fixed.mid_density == pytest.approx(wrong + 0.05) and kept.mid_density == pytest.approx(wrong)
+    crosses = panel.set_aside["mid_density"].points()
+    assert [s.data()[2:] for s in crosses if s.data()[3] == "corrected"] == [(12, "corrected")]
+    assert "Value corrected afterwards" in panel.key_label.text()
+    # Correcting it again, or nothing changed, or an entry that is not there: refused, never a crash.
+    panel.entry_spin.setValue(12)
+    panel.reason_edit.setText("again")
+    panel.fix_edits["mid_density"].setValue(1.0)
+    assert not panel.correct_chosen_entry() and "already corrected by entry 31" in panel.correct_message.text()
+    panel.entry_spin.setValue(31)
+    panel.reason_edit.setText("no change")
+    assert not panel.correct_chosen_entry() and "give the right value" in panel.correct_message.text()
+    panel.entry_spin.setValue(999)
+    assert "No entry 999" in panel.entry_label.text()
+    assert not panel.correct_chosen_entry() and "entry 999 is not in the QC log shown" in panel.correct_message.text()
+    with Archive.open(archive_copy, read_only=True) as archive:
+        assert len(archive.list_qc_entries("Processor 1")) == 31

@@ -122,3 +122,42 @@ def test_the_command_line_writes_the_month_and_its_charts(capsys, qc_archive, tm
     assert "needs --month YYYY-MM" in capsys.readouterr().err
     assert main(["report", "snapshot:1", "--qc", PROCESSOR, "--month", "2026-11", "-o", str(out)]) == 1
     assert "give no SOURCE" in capsys.readouterr().err
+
+
+def test_repeated_and_corrected_entries_are_shown_apart_and_not_used(qc_archive, tmp_path):
+    import datetime as dt
+
+    from stripscan.core.qc import QCValues
+    from stripscan.qc_chart import SET_ASIDE
+    from stripscan.qc_log import add_day, correct_entry
+
+    typo = next(e for e in qc_archive.list_qc_entries(PROCESSOR) if e.date == "2026-11-24")
+    fixed = correct_entry(qc_archive, typo.id, mid_density=1.03, reason="1.00 typed, 1.03 read").entry
+    first = qc_archive.list_qc_entries(PROCESSOR)[-1]  # the 30th's strip, listed by date
+    repeat = add_day(qc_archive, PROCESSOR, dt.date(2026, 11, 30), values=QCValues(0.191, 1.02, 1.90),
+                     repeat=True, note="second strip of the day").entry
+    table = pdf_pages(qc_month_report_pdf(qc_archive, PROCESSOR, "2026-11", tmp_path / "qc.pdf"))[1]
+    # Levels after the new chemistry: the mean of its first five days (common practice); the
+    # 24th is after them, so the correction moves no level.
+    level = np.mean([QC_DAYS[d][:3] for d in ("2026-11-17", "2026-11-18", "2026-11-19", "2026-11-20",
+                                                "2026-11-23")], axis=0)
+
+    def row(entry, verdict: str) -> str:
+        values = np.array([entry.base_fog, entry.mid_density, entry.density_difference])
+        dev = np.round(values - level, 6)
+        cells = " ".join(f"{v:.3f} {d + 0.0:+.3f}" for v, d in zip(values, dev))
+        return squash(f"{entry.id} {entry.date} {entry.source} {cells} {verdict}")
+
+    flat = squash(table)
+    assert row(typo, "corrected, not used") in flat and f"correctedbyentry{fixed.id},notused" in flat
+    assert row(fixed, "WITHIN LIMITS") in flat
+    assert squash(f"correction of entry {typo.id} (1.00 typed, 1.03 read)") in flat
+    assert row(first, "WITHIN LIMITS; repeated, not used") in flat
+    assert row(repeat, "WITHIN LIMITS") in flat and squash(f"repeat of entry {first.id}") in flat
+    assert "Typed in, 20 days" in table and "30 repeat" in table and "24 correction" in table
+    plots = qc_month_plots(qc_month(qc_archive, PROCESSOR, "2026-11"))
+    marks = {item.label: item for item in plots["mid-density"].items if isinstance(item, Points) and item.label}
+    # Each set-aside entry sits a quarter day left of its day, apart from the day's point in use.
+    assert marks[SET_ASIDE["repeated"]].x == (29.75,) and not marks[SET_ASIDE["repeated"]].filled
+    assert marks[SET_ASIDE["corrected"]].x == (23.75,) and marks[SET_ASIDE["corrected"]].marker == "cross"
+    assert marks[SET_ASIDE["corrected"]].y[0] == pytest.approx(1.00 - level[1], abs=1e-6)
