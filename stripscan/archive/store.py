@@ -727,6 +727,11 @@ class Archive:
         """A figure over time: ``(date, value, lot, snapshot_id)`` of current snapshots.
 
         Snapshots where the figure could not be read are left out.
+        Mid-density and density difference are read at the same steps in
+        every strip of a lot, those of :meth:`lot_qc_steps` (common practice:
+        once picked, the QC steps are kept); a strip on its own picks the step
+        closest to the target, and neighbouring strips can pick neighbouring
+        steps, a jump of several tenths that is no change of the film.
 
         Parameters
         ----------
@@ -741,6 +746,8 @@ class Archive:
             raise ArchiveError(f"unknown figure {figure!r}; choose one of {', '.join(FIGURES)}")
         if isinstance(lots, str):
             lots = [lots]
+        if figure in ("mid_density", "density_difference"):
+            return self._trend_at_fixed_steps(figure, lots, processor=processor, include_retired=include_retired)
         where, params = self._filters(lot=list(lots) if lots is not None else None, processor=processor,
                                       include_retired=include_retired, include_superseded=False)
         where += (" AND " if where else " WHERE ") + f"s.{figure} IS NOT NULL"
@@ -748,6 +755,49 @@ class Archive:
             f"SELECT {_DAY} AS day, s.{figure}, s.lot_id, s.id FROM snapshots s "
             f"LEFT JOIN snapshots n ON n.revises = s.id{where} ORDER BY day, s.id", params)
         return [TrendPoint(*row) for row in rows]
+
+    def lot_qc_steps(self, lot: str) -> tuple[int, int, int] | None:
+        """The steps a lot's mid-density and density difference are read at.
+
+        Returns
+        -------
+        (mid_density_step, dd_high_step, dd_low_step) or None
+            The steps the lot's first current snapshot (by date, then number)
+            chose for itself; None when no snapshot of the lot has all three.
+        """
+        metrics = "json_extract(d.strip_json, '$.metrics.{}')"
+        picked = [metrics.format(name) for name in ("mid_density_step", "dd_high_step", "dd_low_step")]
+        rows = self._query(
+            f"SELECT {', '.join(picked)} FROM snapshots s JOIN snapshot_data d ON d.snapshot_id = s.id "
+            "LEFT JOIN snapshots n ON n.revises = s.id "
+            f"WHERE s.lot_id = ? AND s.retired_at IS NULL AND n.id IS NULL AND {' AND '.join(p + ' IS NOT NULL' for p in picked)} "
+            f"ORDER BY {_DAY}, s.id LIMIT 1", (lot,))
+        return tuple(int(step) for step in rows[0]) if rows else None  # type: ignore[return-value]
+
+    def _trend_at_fixed_steps(self, figure: str, lots: Sequence[str] | None, *, processor: str | None,
+                              include_retired: bool) -> list[TrendPoint]:
+        if lots is None:
+            lots = [row[0] for row in self._query("SELECT DISTINCT lot_id FROM snapshots ORDER BY lot_id")]
+        # A step is read only where it was in the calibrated range and not excluded.
+        usable = "{0}.snapshot_id = s.id AND {0}.step = ? AND {0}.in_range = 1 AND {0}.excluded = 0 AND {0}.od IS NOT NULL"
+        points: list[TrendPoint] = []
+        for lot in lots:
+            steps = self.lot_qc_steps(lot)
+            if steps is None:
+                continue
+            where, params = self._filters(lot=[lot], processor=processor, include_retired=include_retired,
+                                          include_superseded=False)
+            if figure == "mid_density":
+                value, joins, step_params = "a.od", f"JOIN snapshot_steps a ON {usable.format('a')}", [steps[0]]
+            else:
+                value = "a.od - b.od"
+                joins = f"JOIN snapshot_steps a ON {usable.format('a')} JOIN snapshot_steps b ON {usable.format('b')}"
+                step_params = [steps[1], steps[2]]
+            rows = self._query(
+                f"SELECT {_DAY} AS day, {value}, s.lot_id, s.id FROM snapshots s {joins} "
+                f"LEFT JOIN snapshots n ON n.revises = s.id{where}", [*step_params, *params])
+            points += [TrendPoint(*row) for row in rows]
+        return sorted(points, key=lambda p: (p.date, p.snapshot_id))
 
     def step_table(self, snapshot_id: int) -> list[tuple[int, float, float | None, float | None, bool, bool]]:
         """``(step, log_exposure, od, od_sd, in_range, excluded)`` rows of a snapshot, by step."""

@@ -99,6 +99,9 @@ class TrendView(QWidget):
         self.empty = QLabel()
         self.empty.setStyleSheet("color: #8a4b00")
         self.empty.setWordWrap(True)
+        self.steps_note = QLabel()
+        self.steps_note.setStyleSheet("color: #616161")
+        self.steps_note.setWordWrap(True)
         hint = QLabel("Each point is one strip's snapshot; click a point to open it.")
         hint.setStyleSheet("color: #616161")
         top = QHBoxLayout()
@@ -111,6 +114,7 @@ class TrendView(QWidget):
         layout.addLayout(top)
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.empty)
+        layout.addWidget(self.steps_note)
         layout.addWidget(hint)
         self.refresh()
 
@@ -181,13 +185,18 @@ class TrendView(QWidget):
         """Query the trend of the chosen figure and lots and draw it."""
         lots, figure = self.chosen_lots(), self.figure_name
         points: list[TrendPoint] = []
+        steps: dict[str, tuple[int, int, int] | None] = {}
         if lots and self._readable():
             try:
                 with Archive.open(self.archive_path, read_only=True) as archive:
                     points = archive.trend(figure, lots)
+                    if figure in ("mid_density", "density_difference"):
+                        steps = {lot: archive.lot_qc_steps(lot) for lot in lots}
             except Exception as exc:  # shown, never fatal
                 report_error(self, "The trend could not be read", exc)
         self.points = points
+        self.steps_note.setText(_steps_note(figure, steps))
+        self.steps_note.setVisible(bool(steps))
         self._draw(figure, lots, points)
         self._draw_events()
 
@@ -253,3 +262,16 @@ class TrendView(QWidget):
     def _clicked(self, item: pg.ScatterPlotItem, spots: list, event: object = None) -> None:
         if len(spots):
             self.snapshot_clicked.emit(int(spots[0].data()))
+
+
+def _steps_note(figure: str, steps: dict[str, tuple[int, int, int] | None]) -> str:
+    """Which steps each lot's mid-density or density difference is read at."""
+    parts = []
+    for lot, chosen in steps.items():
+        if chosen is None:
+            continue
+        md, high, low = chosen
+        parts.append(f"{lot} step {md}" if figure == "mid_density" else f"{lot} step {high} \u2212 step {low}")
+    what = "Mid-density" if figure == "mid_density" else "Density difference"
+    return (f"{what} is read at the same steps in every strip of a lot, those its first snapshot chose: "
+            + "; ".join(parts) + ".") if parts else ""

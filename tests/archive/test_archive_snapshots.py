@@ -327,3 +327,26 @@ def test_stored_snapshot_survives_json(archive: Archive) -> None:
     assert back.preview_png == tiny_png()  # base64 text in JSON (RFC 4648) decodes to the same bytes
     with pytest.raises(ValueError, match="lacks the field 'lot_id'"):
         type(retired).from_dict({k: v for k, v in data.items() if k != "lot_id"})
+
+
+def test_mid_density_and_density_difference_trends_keep_the_lots_first_steps(archive: Archive) -> None:
+    # Common practice (processor QC): once the mid-density and density-difference steps are
+    # picked, the same steps are read every time.  A strip on its own picks the step closest
+    # to its target, so a neighbour can pick the next step: 1.25 OD at step 10, 1.57 at step 11.
+    lot = LOTS[0].lot_id
+    first, shifted = make_strip(1, centre=1.60), make_strip(1, centre=1.62)
+    assert (first.figures.mid_density_step, shifted.figures.mid_density_step) == (10, 11)  # the premise
+    a = archive.add_snapshot(make_draft(1, lot=lot, strip=first))
+    b = archive.add_snapshot(make_draft(2, lot=lot, strip=shifted))
+    assert archive.lot_qc_steps(lot) == (10, 12, 6)  # the first snapshot's own choice
+    od = {s.step: s.od for s in shifted.steps}
+    md = {p.snapshot_id: p.value for p in archive.trend("mid_density", lot)}
+    # Step densities are stored to 4 decimals.
+    assert md == {a.id: pytest.approx(first.figures.mid_density, abs=1e-4), b.id: pytest.approx(od[10], abs=1e-4)}
+    dd = {p.snapshot_id: p.value for p in archive.trend("density_difference", lot)}
+    assert dd[b.id] == pytest.approx(od[12] - od[6], abs=2e-4)
+    # Other figures stay each strip's own.
+    assert {p.snapshot_id: p.value for p in archive.trend("speed_log_exposure", lot)}[b.id] == pytest.approx(
+        shifted.figures.speed_log_exposure, abs=1e-5)
+    # A lot with nothing stored has no steps and no points.
+    assert archive.lot_qc_steps(LOTS[1].lot_id) is None and archive.trend("mid_density", LOTS[1].lot_id) == []

@@ -242,7 +242,8 @@ def test_dates_out_of_order_or_ahead_are_refused() -> None:
     assert any("operator" in p for p in check_form(nobody, strips=0, known_lots=("M-2702-B",), today=day))
 
 
-@pytest.mark.parametrize("figure", ["speed_log_exposure", "base_fog", "average_gradient", "dmax"])
+@pytest.mark.parametrize("figure", ["speed_log_exposure", "base_fog", "average_gradient", "dmax", "mid_density",
+                                    "density_difference"])
 def test_the_trend_view_plots_every_point_the_archive_trend_returns(qtbot, archive_path: Path, figure: str) -> None:
     view = TrendView(archive_path)
     qtbot.addWidget(view)
@@ -261,6 +262,12 @@ def test_the_trend_view_plots_every_point_the_archive_trend_returns(qtbot, archi
     assert view.point_count() == len(only_b)
     # Dmax lies above the demo calibration's range on every strip: nothing to draw, and it says so.
     assert view.empty.isVisibleTo(view) == (not both)
+    # The QC densities say at which steps each lot is read (common practice: kept steps).
+    assert view.steps_note.isVisibleTo(view) == (figure in ("mid_density", "density_difference"))
+    if figure == "mid_density":
+        with Archive.open(archive_path, read_only=True) as archive:
+            md_step = archive.lot_qc_steps("M-2702-B")[0]
+        assert f"M-2702-B step {md_step}" in view.steps_note.text()
 
 
 def test_clicking_a_trend_point_opens_its_snapshot(qtbot, panel: ArchivePanel) -> None:
