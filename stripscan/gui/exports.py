@@ -164,14 +164,15 @@ class Exports(QObject):
             self.export_comparison_report(path)
 
     def _qc_month(self) -> tuple[str, dt.date] | None:
-        data, processor = self.ws.qc_panel.data, self.ws.qc_panel.processor_box.currentText()
-        if data is None or not processor or self.ws.archive_path is None:
+        panel = self.ws.qc_panel
+        month, processor = panel.report_month(), panel.processor_box.currentText()
+        if month is None or not processor or self.ws.archive_path is None:
             self.ws.tell("No QC log shown", "Show a processor with QC strips on the processor QC page first.")
             return None
-        return processor, data.last
+        return processor, month
 
     def export_qc_report(self, path: str | os.PathLike[str]) -> bool:
-        """Write the QC report of the month of the latest strip of the processor shown."""
+        """Write the QC report of the processor shown, for the month chosen on the QC page (the latest by default)."""
         chosen = self._qc_month()
         if chosen is None:
             return False

@@ -142,6 +142,9 @@ class QcPanel(QWidget):
         self.processor_box.currentTextChanged.connect(self._processor_chosen)
         self.refresh_button = QPushButton("Reload")
         self.refresh_button.clicked.connect(self.refresh)
+        #: Month of the QC report, among the months the shown processor has entries in (newest first).
+        self.month_box = QComboBox()
+        self.month_box.setToolTip("The month the QC report (PDF) covers")
         self.status_label = QLabel()
         self.status_label.setWordWrap(True)
         self.status_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -169,6 +172,8 @@ class QcPanel(QWidget):
         top = QHBoxLayout()
         top.addWidget(QLabel("Processor:"))
         top.addWidget(self.processor_box, 1)
+        top.addWidget(QLabel("Report month:"))
+        top.addWidget(self.month_box)
         top.addWidget(self.refresh_button)
         layout.addLayout(top)
         layout.addWidget(self.status_label)
@@ -359,6 +364,18 @@ class QcPanel(QWidget):
     def _processor_chosen(self, name: str) -> None:
         self.show_processor(name or None)
 
+    def report_month(self) -> datetime.date | None:
+        """First day of the month chosen for the QC report; None when no processor with entries is shown."""
+        text = self.month_box.currentText()
+        return datetime.date.fromisoformat(f"{text}-01") if text else None
+
+    def set_report_month(self, month: str) -> None:
+        """Choose the report's month, ``YYYY-MM`` (one the shown processor has entries in)."""
+        index = self.month_box.findText(month)
+        if index < 0:
+            raise ValueError(f"no QC entries in {month} for the processor shown")
+        self.month_box.setCurrentIndex(index)
+
     def show_processor(self, processor: str | None) -> None:
         """Draw ``processor``'s log and status (None: clear)."""
         for plot in self.plots.values():
@@ -367,6 +384,7 @@ class QcPanel(QWidget):
         self.set_aside.clear()
         self.key_label.clear()
         self.data = self.plog = None
+        self.month_box.clear()
         if processor is None or self.archive_path is None:
             self._show_message("No processor chosen.")
             return
@@ -381,6 +399,8 @@ class QcPanel(QWidget):
             self._show_message(f"Cannot read the QC log of {processor!r}: {exc}")
             return
         self.plog = plog
+        for month in sorted({e.date[:7] for e in plog.entries}, reverse=True):
+            self.month_box.addItem(month)
         self._set_form_date()
         if plog.entries:
             # The latest entry is the one most often found mistyped.

@@ -194,7 +194,7 @@ class Workspace(QObject):
         self.new_archive_action = act("New archive…", self.ask_new_archive, "Make an empty lot archive file")
         self.snapshot_report_action = act("Report of the open snapshot (PDF)…", self.exports.ask_snapshot_report,
                                           "One page on the snapshot open in the lot archive")
-        self.qc_report_action = act("QC report of the latest month (PDF)…", self.exports.ask_qc_report,
+        self.qc_report_action = act("QC report of the chosen month (PDF)…", self.exports.ask_qc_report,
                                     "Charts, days and corrective actions of the processor shown")
         self.compare_lots_action = act("Compare two lots…", self.ask_compare_lots,
                                        "Two emulsion lots of the archive side by side, with replicate statistics")

@@ -166,3 +166,31 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
     assert not panel.correct_chosen_entry() and "entry 999 is not in the QC log shown" in panel.correct_message.text()
     with Archive.open(archive_copy, read_only=True) as archive:
         assert len(archive.list_qc_entries("Processor 1")) == 31
+
+
+def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_path):
+    from pypdf import PdfReader
+
+    from stripscan.core.qc import QCValues
+    from stripscan.gui import jobs
+    from stripscan.qc_log import add_day
+
+    path = tmp_path / "two-months.sqlite3"
+    with Archive.open(path) as archive:
+        for k, day in enumerate((datetime.date(2026, 10, 26) + datetime.timedelta(days=d) for d in range(10))):
+            add_day(archive, "Processor 3", day, values=QCValues(0.19, 1.2, 1.8), new_processor=k == 0)
+    widget = QcPanel(path)
+    qtbot.addWidget(widget)
+    months = [widget.month_box.itemText(k) for k in range(widget.month_box.count())]
+    assert months == ["2026-11", "2026-10"]  # newest first
+    assert widget.report_month() == datetime.date(2026, 11, 1)
+    widget.set_report_month("2026-10")
+    assert widget.report_month() == datetime.date(2026, 10, 1)
+    with pytest.raises(ValueError, match="no QC entries in 2026-09"):
+        widget.set_report_month("2026-09")
+    pdf = jobs.save_qc_month_report(path, "Processor 3", widget.report_month(), tmp_path / "october.pdf",
+                                    progress=lambda fraction, text: None)
+    text = " ".join(" ".join(page.extract_text() for page in PdfReader(pdf).pages).split())
+    assert "October 2026" in text and "2026-10-31" in text and "2026-11-01" not in text
+    widget.show_processor(None)
+    assert widget.report_month() is None
