@@ -200,6 +200,8 @@ class SetLoader:
         self._own_archive = False
         self._calibration: Any = None
         self._analyses: dict[str, Any] = {}
+        #: Film dates and lots of each set read from the archive, by set name (the crossover checks them).
+        self.archived: dict[str, tuple[frozenset[str], frozenset[str]]] = {}
 
     def close(self) -> None:
         if self._own_archive and self._archive is not None:
@@ -269,6 +271,7 @@ class SetLoader:
             if s.retired_at is not None:
                 self.notes.append(f"set {spec.text!r}: snapshot {s.id} was retired ({s.retired_reason})")
         lots = sorted({s.lot_id for s in snapshots})
+        self.archived[spec.text] = (frozenset(s.date for s in snapshots), frozenset(lots))
         source = f"archive {archive.path}, lot {', '.join(lots)}, snapshots {', '.join(str(i) for i in ids)}"
         return StripSet(spec.text, tuple(s.strip for s in snapshots), tuple(f"snapshot {s.id}" for s in snapshots),
                         source)
@@ -525,6 +528,34 @@ def format_crossover(result: Any, old: StripSet, new: StripSet, levels: Any, pro
     return "\n".join(out)
 
 
+def _check_processed_together(old: StripSet, new: StripSet, loader: SetLoader, day: str) -> None:
+    """Refuse strips of old and new QC film that were not processed together, on the crossover's day.
+
+    A crossover measures the difference between two films under one and the
+    same processing (common practice: old and new film exposed and processed
+    together); strips of other days would move the operating levels by the
+    processor's own change between those days.  Each set is one film: one lot.
+    """
+    dates: set[str] = set()
+    for s in (old, new):
+        if s.name not in loader.archived:
+            loader.notes.append(f"set {s.name!r} is read from a scan: its processing day is not known here; "
+                                "old and new film must be processed together on the crossover's day")
+            continue
+        set_dates, lots = loader.archived[s.name]
+        if len(lots) > 1:
+            raise SetError(f"set {s.name!r} mixes emulsion lots {', '.join(sorted(lots))}; each side of a "
+                           "crossover is one film; nothing was stored")
+        dates |= set_dates
+    if len(dates) > 1:
+        raise SetError(f"the strips were processed on {', '.join(sorted(dates))}; a crossover needs the old and the "
+                       "new film processed together on one day; nothing was stored")
+    if dates and dates != {day}:
+        (strip_day,) = dates
+        raise SetError(f"the strips were processed on {strip_day} but the crossover is dated {day}; "
+                       f"give --date {strip_day}; nothing was stored")
+
+
 def cmd_crossover(args: argparse.Namespace) -> int:
     """Move a processor's operating levels to a new box of QC film."""
     from .archive import Archive, default_archive_path
@@ -553,6 +584,7 @@ def cmd_crossover(args: argparse.Namespace) -> int:
         new = loader.load(new_spec, processor=args.processor, date=day)
         if old.name == new.name:
             raise SetError(f"the old and the new film are the same set {old.name!r}")
+        _check_processed_together(old, new, loader, day)
         n_old, n_new = old.strips[0].geometry.n_steps, new.strips[0].geometry.n_steps
         if n_old != n_new:
             raise SetError(f"set {new.name!r} has {n_new}-step strips but set {old.name!r} has {n_old}-step "

@@ -311,6 +311,13 @@ def test_crossover_stores_both_or_neither(capsys, tmp_path, monkeypatch):
     (("--processor", "Processor 9"), {}, "processor 'Processor 9' is not in the archive"),
     (("--old", "snapshot:1-5", "--new", "snapshot:6-10", "--date", "2026-11-05"), {},
      "the crossover of 2026-11-05 is before the latest QC entry of processor 'Processor 1' (2026-11-06)"),
+    # Common practice: old and new film are processed together; other days' strips carry the processor's own change.
+    (("--old", "snapshot:1-4,11", "--new", "snapshot:6-10"), {},
+     "the strips were processed on 2026-11-02, 2026-11-20; a crossover needs the old and the new film processed "
+     "together on one day"),
+    (("--old", "snapshot:1-5", "--new", "snapshot:6-10", "--date", "2026-11-25"), {},
+     "the strips were processed on 2026-11-20 but the crossover is dated 2026-11-25; give --date 2026-11-20"),
+    (("--old", "snapshot:1-4,6", "--new", "snapshot:7-10"), {}, "set 'snapshot:1-4,6' mixes emulsion lots"),
 ])
 def test_crossover_bad_input_stores_nothing(capsys, tmp_path, extra, setup, message):
     path = crossover_archive(tmp_path / "qc.sqlite3", **setup)
