@@ -92,7 +92,7 @@ def format_analysis(analysis) -> str:
             sd = f"{s.od_sd:6.3f}" if math.isfinite(s.od_sd) else "     -"
             out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}  {note}")
         out.append(f"  base+fog              {_fmt(f.base_fog, 3) if f.base_fog is not None else 'not read'}")
-        out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'beyond the calibrated range'}")
+        out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
         out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
         if f.relative_speed_percent is not None:
             out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
@@ -352,6 +352,14 @@ def main(argv: Sequence[str] | None = None) -> int:
         return EXIT_USAGE
     try:
         return int(func(args) or 0)
+    except BrokenPipeError:
+        # The reader went away (``stripscan analyze ... | head``): nothing is wrong with the input.
+        # Point stdout at devnull so that the interpreter's last flush does not fail again.
+        try:
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        except (OSError, ValueError):
+            pass
+        return 128 + 13  # as a shell reports a process ended by SIGPIPE
     except (CommandError, ValueError, OSError) as exc:
         # Our errors (ScanError, CalibrationError, LocateError, ...) are
         # ValueErrors whose message already names the file.

@@ -15,6 +15,8 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
+from .. import CAUTION
+from ..figure_table import step_flag
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -103,6 +105,10 @@ def _cmd_add(args: argparse.Namespace) -> int:
             exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "")
     for item in new:
         print(f"note: {item} was not in the archive; added it with no further details")
+    if calibration is None:
+        print("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
+              "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
+              "with calibrated ones")
     for snapshot in stored:
         f = snapshot.figures
         print(f"snapshot {snapshot.id}: lot {snapshot.lot_id}, strip {snapshot.strip.index}, "
@@ -114,6 +120,8 @@ def _cmd_add(args: argparse.Namespace) -> int:
 def _cmd_list(args: argparse.Namespace) -> int:
     """List snapshots (current ones unless --all)."""
     with _open(args, create=False) as archive:
+        if args.lot is not None:
+            archive.get_lot(args.lot)  # an unknown lot is a mistake to name, not an empty list
         rows = archive.list_snapshots(args.lot, args.processor, include_retired=args.all,
                                       include_superseded=args.all)
     table = [[str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
@@ -130,7 +138,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         snapshot = archive.get_snapshot(args.id)
         chain = archive.history(args.id)
         notes = archive.list_notes(args.id)
-        steps = archive.step_table(args.id)
+        calibration = archive.get_calibration(snapshot.calibration_hash) if snapshot.calibration_hash else None
     later = [s.id for s in chain if s.revises == snapshot.id]
     if args.json:
         data = snapshot.to_dict()
@@ -145,7 +153,10 @@ def _cmd_show(args: argparse.Namespace) -> int:
     print(f"  exposed {s.exposed_on or '-'}; processed {s.processed_on or '-'}; scanned {s.scanned_on or '-'}")
     print(f"  stored {s.created_at} by stripscan {s.program_version or '?'}")
     print(f"  scan {s.scan.path} (sha256 {s.scan.sha256}), strip {s.strip.index}")
-    print(f"  calibration {s.calibration_hash or 'none'}")
+    if calibration is None or calibration.get("mode") == "direct":
+        print("  calibration NONE: UNCALIBRATED direct mode, densities are log10(I0/I) straight from the scanner")
+    else:
+        print(f"  calibration {s.calibration_hash}")
     if s.revises is not None:
         print(f"  corrects snapshot {s.revises}: {s.revision_reason}")
     print(f"  base+fog {_number(f.base_fog, unit='OD')}; Dmax {_number(f.dmax, unit='OD')}; "
@@ -155,14 +166,17 @@ def _cmd_show(args: argparse.Namespace) -> int:
           f"difference {_number(f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
           f"{f.dd_low_step or '-'})")
     _print_table(["  step", "log E", "OD", "+/- OD", "flag"],
-                 [[f"  {n}", _number(e, 2), _number(od), _number(sd, 4),
-                   "excluded" if x else ("" if r else "out of range")] for n, e, od, sd, r, x in steps])
+                 [[f"  {st.step}", _number(st.log_exposure, 2), _number(st.od), _number(st.od_sd, 4),
+                   step_flag(st, f)] for st in s.strip.steps])
+    for warning in s.warnings:
+        print(f"  ! {warning}")
     if len(chain) > 1:
         print("  revisions: " + " -> ".join(str(c.id) for c in chain))
     for note in notes:
         print(f"  note {note.created_at} {note.author or '-'}: {note.text}")
     if s.notes:
         print(f"  notes: {s.notes}")
+    print(f"\n{CAUTION}")
     return 0
 
 

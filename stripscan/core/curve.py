@@ -31,6 +31,7 @@ import numpy as np
 from scipy.interpolate import CubicHermiteSpline, CubicSpline
 from scipy.optimize import brentq
 
+from .calibration import ACCURACY_GOAL
 from .qc import choose_qc_steps, closest_step
 from .records import CurveFigures, StripResult
 
@@ -312,7 +313,8 @@ def compute_figures(
 
     if beyond_range_denser:
         dmax = None
-        notes.append(f"Dmax is beyond the calibrated range (above {float(d.max()):.2f})")
+        notes.append(f"Dmax not stated: the film is denser than its densest usable step ({float(d.max()):.2f} OD); "
+                     f"the denser steps lie beyond the calibrated range or are too noisy to read within ±{ACCURACY_GOAL:.2f} OD")
     else:
         dmax = float(d.max())
 

@@ -43,6 +43,12 @@ __all__ = [
     "strip_result",
 ]
 
+#: The warning every direct-mode result carries, for the scan and for each strip.
+UNCALIBRATED = (
+    "UNCALIBRATED: densities are log10(I0/I) straight from the scanner (direct mode); "
+    "calibrate against a reference step tablet before trusting them"
+)
+
 #: Largest fraction of saturated pixels a step may have and still be read.
 MAX_SATURATED = 0.01
 
@@ -235,7 +241,8 @@ def strip_result(
     notes : sequence of str
         Warnings from locating the strip.
     """
-    warnings = list(notes)
+    # Each strip says it for itself: a strip's warnings travel alone (the window's list, a snapshot).
+    warnings = ([] if isinstance(mapping, Calibration) else [UNCALIBRATED]) + list(notes)
     log_e = step_log_exposures(geometry.n_steps, options.increment, options.exposure_table)
     signals = np.array([r.signal for r in readings], dtype=np.float64)
     od, in_range = mapping.density(signals)
@@ -349,10 +356,7 @@ def analyze_loaded(
     check_exposure(scan)
     if calibration is None:
         mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark, clear_area=options.clear_area)
-        warnings.append(
-            "UNCALIBRATED: densities are log10(I0/I) straight from the scanner (direct mode); "
-            "calibrate against a reference step tablet before trusting them"
-        )
+        warnings.append(UNCALIBRATED)
     else:
         warnings += _check_compatible(scan, calibration)
         mapping = calibration
@@ -381,7 +385,7 @@ def analyze_loaded(
             notes=notes,
         )
         strips.append(result)
-        warnings += [f"strip {index}: {w}" for w in result.warnings]
+        warnings += [f"strip {index}: {w}" for w in result.warnings if w != UNCALIBRATED]  # said once above
     return Analysis(
         scan=scan.info,
         calibration=mapping.summary(),

@@ -46,8 +46,10 @@ class Look:
 
 #: The overlay kinds of the scan view, in legend order.
 LOOKS = {
-    "used": Look("#4dd0e1", 1.5, Qt.PenStyle.SolidLine, "step within the calibrated range"),
-    "outside": Look("#ffa726", 1.5, Qt.PenStyle.DashLine, "outside the calibrated range (not used)"),
+    "used": Look("#4dd0e1", 1.5, Qt.PenStyle.SolidLine, "step used for the curve"),
+    # The strip's warnings say which reason holds for which step.
+    "outside": Look("#ffa726", 1.5, Qt.PenStyle.DashLine,
+                    "not used: outside the calibrated range, too noisy or saturated"),
     "excluded": Look("#ef5350", 1.5, Qt.PenStyle.SolidLine, "excluded by you (not used)", cross=True),
     "unread": Look("#bdbdbd", 1.0, Qt.PenStyle.SolidLine, "step not converted (no usable calibration)"),
     "base_fog": Look("#fff176", 1.5, Qt.PenStyle.DotLine, "base+fog sampling area"),

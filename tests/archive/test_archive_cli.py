@@ -66,6 +66,22 @@ def test_show_prints_figures_steps_chain_and_notes(stocked: Path, capsys: pytest
     assert "excluded" in capsys.readouterr().out  # the step marked unreadable
 
 
+def test_show_says_when_a_snapshot_was_read_uncalibrated(stocked: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    # DESIGN: a flatbed scanner is not a densitometer; densities read without a tablet
+    # calibration (direct mode) must never pass for calibrated ones.
+    from stripscan import CAUTION
+
+    with Archive.open(stocked) as archive:
+        direct = archive.add_snapshot(make_draft(9, calibration={"mode": "direct", "i0": 0.9, "dark": 0.0}))
+        calibrated = archive.get_snapshot(1)
+    assert main(["archive", "show", str(direct.id), "--archive", str(stocked)]) == 0
+    out = capsys.readouterr().out
+    assert "calibration NONE: UNCALIBRATED direct mode" in out and CAUTION in out
+    assert main(["archive", "show", "1", "--archive", str(stocked)]) == 0
+    out = capsys.readouterr().out
+    assert f"calibration {calibrated.calibration_hash}" in out and "UNCALIBRATED" not in out
+
+
 def test_show_json_is_the_stored_record(stocked: Path, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["archive", "show", "1", "--json", "--archive", str(stocked)]) == 0
     data = json.loads(capsys.readouterr().out)
@@ -105,6 +121,7 @@ def test_export_import_and_backup(stocked: Path, tmp_path: Path, capsys: pytest.
 
 @pytest.mark.parametrize("argv, message", [
     (["archive", "show", "99"], "snapshot 99 is not in the archive"),
+    (["archive", "list", "--lot", "NOPE"], "lot 'NOPE' is not in the archive"),
     (["archive", "import", "{tmp}/missing.json"], "missing.json: cannot read: No such file or directory"),
     (["archive", "backup", "{archive}"], "a backup cannot overwrite the archive itself"),
     (["archive", "backup", "{tmp}/cal.json"], "cal.json already exists; choose another name"),

@@ -183,3 +183,17 @@ def test_json_output_round_trips(bench, match_strips):
     for key in ("base_fog", "dmax", "speed_log_exposure", "average_gradient", "gamma", "latitude_log_exposure",
                 "mid_density_step", "mid_density", "density_difference", "dd_high_step", "dd_low_step"):
         assert key in strip["metrics"]
+
+
+def test_every_direct_mode_strip_says_it_is_uncalibrated(tmp_path):
+    # DESIGN §1: a flatbed scanner is not a densitometer; a strip read without a tablet
+    # calibration carries the warning itself, wherever it goes alone (window, snapshot).
+    from stripscan.core.pipeline import UNCALIBRATED, analyze_scan
+    from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+
+    strips = [StripSpec(film=FilmModel(), center_mm=(20.0 + 35.0 * k, 100.0), angle_deg=90.0) for k in range(2)]
+    path = tmp_path / "two.tif"
+    write_tiff(path, simulate_scan(strips, platen_mm=(75.0, 200.0), dpi=150.0, scanner=ScannerModel(seed=2)))
+    analysis = analyze_scan(path)
+    assert all(strip.warnings[0] == UNCALIBRATED for strip in analysis.strips)
+    assert analysis.warnings.count(UNCALIBRATED) == 1 and not any("strip 1: UNCALIBRATED" in w for w in analysis.warnings)
