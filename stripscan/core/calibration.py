@@ -152,7 +152,8 @@ def parse_certificate(text: str, *, source: str = "<certificate>") -> Certificat
     steps = sorted(rows)
     missing = sorted(set(range(1, steps[-1] + 1)) - set(steps))
     if missing:
-        raise CalibrationError(f"{source}: steps {', '.join(map(str, missing))} are missing (steps must run 1..N)")
+        which = f"step {missing[0]} is" if len(missing) == 1 else f"steps {', '.join(map(str, missing))} are"
+        raise CalibrationError(f"{source}: {which} missing (steps must run 1..N)")
     densities = [rows[s][0] for s in steps]
     for prev, step in zip(steps, steps[1:]):
         if not rows[step][0] > rows[prev][0]:
@@ -582,7 +583,8 @@ def fit_calibration(
             break
     if len(usable) < 4:
         raise CalibrationError(
-            f"only {len(usable)} tablet steps give distinct signals; check the scan settings "
+            f"only {len(usable)} tablet step{'' if len(usable) == 1 else 's'} give{'s' if len(usable) == 1 else ''} "
+            "distinct signals; check the scan settings "
             "(16-bit linear, automatic corrections off)"
         )
     x = np.log10(signal[usable])[::-1]

@@ -58,7 +58,7 @@ def test_certificate_uncertainty_column():
 @pytest.mark.parametrize(
     "text, message",
     [
-        ("1,0.05\n2,0.2\n4,0.5\n5,0.65\n", "steps 3 are missing"),
+        ("1,0.05\n2,0.2\n4,0.5\n5,0.65\n", "step 3 is missing"),
         ("1,0.05\n2,0.2\n2,0.35\n3,0.5\n", "step 2 is listed twice"),
         ("1,0.05\n2,abc\n3,0.35\n", "density 'abc' is not a number"),
         ("1,0.05\n2,0.20\n3,0.15\n", "densities must increase"),
