@@ -43,9 +43,10 @@ from stripscan.core.qc import (
 from stripscan.qc_log import LABELS, VERDICT_WORDS, LoggedEntry, ProcessorLog
 
 __all__ = [
-    "MARKS", "BANDS", "SET_ASIDE", "CORRECTED_COLOUR", "SET_ASIDE_SHIFT", "ChartPoint", "ChartSeries", "ChartPeriod",
-    "ChartData", "chart_data", "chart_legend", "describe_rule", "y_span", "ensure_app", "render_chart",
-    "render_chart_png",
+    "MARKS", "BANDS", "SET_ASIDE", "CORRECTED_COLOUR", "WAITING_COLOUR", "SET_ASIDE_SHIFT", "LEVEL_LINE",
+    "LIMIT_LINE", "WARNING_LINE", "TREND_COLOUR", "EVENT_COLOUR", "BASELINE_COLOUR", "BASELINE_OPACITY", "LegendEntry", "LEGEND",
+    "ChartPoint", "ChartSeries", "ChartPeriod", "ChartData", "chart_data", "chart_legend", "legend_entries",
+    "describe_rule", "y_span", "ensure_app", "render_chart", "render_chart_png",
 ]
 
 #: How a day's point looks, by verdict: colour, shape, size (px) and legend text.
@@ -57,15 +58,77 @@ MARKS = {
 }
 #: Fill of the zone past the warning tier and past the control limit.
 BANDS = {"warning": "#FCEFD2", "action": "#F7D4C6"}
-_LIMIT_LINE, _WARNING_LINE = "#B03A12", "#B7860B"
-_TREND, _EVENT, _BASELINE = "#8E4A7A", "#444444", "#ECECEC"
+#: Colours of the operating level, the limit lines, event lines, trend-rule bars and the days that set the levels.
+LEVEL_LINE, LIMIT_LINE, WARNING_LINE = "#555555", "#B03A12", "#B7860B"
+TREND_COLOUR, EVENT_COLOUR = "#8E4A7A", "#444444"
+#: The days that set the levels are shaded in this grey at this opacity, over the limit zones (on white: #E6E6E6).
+BASELINE_COLOUR, BASELINE_OPACITY = "#808080", 0.2
 #: Legend words for entries kept but not used, by why they are set aside.
 SET_ASIDE = {
-    "repeated": "strip repeated the same day: kept, not used (the latest repeat counts)",
+    "repeated": "hollow: strip repeated the same day, kept but not used (the latest repeat counts)",
     "corrected": "value corrected afterwards: kept, not used",
 }
-#: Colour of a corrected value's cross; and how far left of its day a set-aside mark sits, in days.
-CORRECTED_COLOUR, SET_ASIDE_SHIFT = "#777777", 0.25
+#: Colour of a corrected value's cross and of a day still in its baseline; how far left of its day a
+#: set-aside mark sits, in days.
+CORRECTED_COLOUR, WAITING_COLOUR, SET_ASIDE_SHIFT = "#777777", "#666666", 0.25
+
+
+@dataclass(frozen=True)
+class LegendEntry:
+    """One entry of the QC charts' legend: how a thing is drawn and what it means.
+
+    The PNG chart, the monthly PDF report and the window draw their
+    legends from :data:`LEGEND` (through :func:`legend_entries`), so a mark
+    means the same everywhere.
+
+    Attributes
+    ----------
+    key : str
+        ``"ok"``, ``"warning"``, ``"action"`` (a day's point by its tier),
+        ``"repeated"``, ``"corrected"``, ``"waiting"`` (a day in a baseline
+        still in progress), ``"level"``, ``"control_limit"``,
+        ``"warning_tier"``, ``"event"``, ``"baseline_days"``, ``"trend"``.
+    look : str
+        ``"mark"`` (filled), ``"hollow"``, ``"cross"``, ``"plus"``,
+        ``"line"``, ``"shade"`` (a day-wide grey column) or ``"bar"``.
+    words : str
+        What it means, in plain words.
+    colour : str
+        ``#RRGGBB``.
+    shape : str
+        Marker shape for the marks: ``"circle"``, ``"triangle"``, ``"diamond"``.
+    dash : str
+        Line style for the lines: ``"solid"``, ``"dash"``, ``"dot"``, ``"dashdot"``.
+    glyph : str
+        A character that looks like it, for text (the window's key).
+    """
+
+    key: str
+    look: str
+    words: str
+    colour: str
+    shape: str = ""
+    dash: str = "solid"
+    glyph: str = ""
+
+
+#: Every entry of the legend, in the order shown.
+LEGEND: tuple[LegendEntry, ...] = (
+    *(LegendEntry(v, "mark", MARKS[v][3], MARKS[v][0], MARKS[v][1], glyph=g)
+      for v, g in (("ok", "\u25cf"), ("warning", "\u25b2"), ("action", "\u25c6"))),
+    LegendEntry("repeated", "hollow", SET_ASIDE["repeated"], MARKS["ok"][0], "circle", glyph="\u25cb"),
+    LegendEntry("corrected", "cross", SET_ASIDE["corrected"], CORRECTED_COLOUR, glyph="\u00d7"),
+    LegendEntry("waiting", "plus", "baseline in progress: not judged yet", WAITING_COLOUR, glyph="+"),
+    LegendEntry("level", "line", "operating level", LEVEL_LINE, glyph="\u2500\u2500"),
+    LegendEntry("control_limit", "line", "control limit (shaded beyond)", LIMIT_LINE, dash="dash",
+                glyph="\u254c\u254c"),
+    LegendEntry("warning_tier", "line", "warning tier (shaded beyond)", WARNING_LINE, dash="dot", glyph="\u2508\u2508"),
+    LegendEntry("event", "line", "event: the baseline restarts", EVENT_COLOUR, dash="dashdot", glyph="\u2506"),
+    LegendEntry("baseline_days", "shade", "grey: days that set the operating levels", BASELINE_COLOUR,
+                glyph="\u2588"),
+    LegendEntry("trend", "bar", "trend rule fired, under its days (run: one side of the level; drift: each strip "
+                "further than the last; repeated warnings: past the warning tier)", TREND_COLOUR, glyph="\u25ac"),
+)
 
 _APP: Any = None
 
@@ -215,6 +278,27 @@ def describe_rule(finding: TrendFinding) -> str:
     return {"run": "run", "drift": "drift", "two_warnings": "repeated warnings"}.get(finding.rule, finding.rule)
 
 
+def legend_entries(data: ChartData) -> tuple[LegendEntry, ...]:
+    """The legend of a chart: the point tiers and lines always, the rest when the chart shows any.
+
+    The PNG chart, the monthly report and the window all call this, so
+    they explain the same marks in the same words.
+    """
+    shown = {"ok", "warning", "action", "level", "control_limit"}
+    if any(s.warning[0] is not None or s.warning[1] is not None for s in data.series):
+        shown.add("warning_tier")
+    shown.update(data.set_aside_kinds)
+    if any(p.deviation is None for s in data.series for p in s.points):
+        shown.add("waiting")
+    if data.events:
+        shown.add("event")
+    if any(data.first <= d <= data.last for p in data.periods for d in p.baseline_dates):
+        shown.add("baseline_days")
+    if data.findings:
+        shown.add("trend")
+    return tuple(e for e in LEGEND if e.key in shown)
+
+
 def chart_legend(data: ChartData) -> Sequence[str]:
     """Lines under the chart: the levels of each period and the caution."""
     lines = []
@@ -340,12 +424,6 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
     ax = _Axes(rect, data.first, data.last, span)
     painter.setPen(Qt.PenStyle.NoPen)
     painter.fillRect(outer, QColor("white"))
-    # Days that set each period's levels, behind everything else.
-    for period in data.periods:
-        for day in period.baseline_dates:
-            if data.first <= day <= data.last:
-                w = rect.width() / ax.days
-                painter.fillRect(QRectF(ax.x(day) - w / 2, rect.top(), w, rect.height()), QColor(_BASELINE))
     up_a, low_a = series.action
     up_w, low_w = series.warning
     for edge, limit in ((1, up_a), (-1, low_a)):
@@ -359,6 +437,14 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
             continue
         y0, y1 = ax.y(limit), ax.y(beyond)
         painter.fillRect(QRectF(rect.left(), min(y0, y1), rect.width(), abs(y1 - y0)), QColor(BANDS["warning"]))
+    # Days that set each period's levels: translucent, so the zones show through.
+    shade = QColor(BASELINE_COLOUR)
+    shade.setAlphaF(BASELINE_OPACITY)
+    for period in data.periods:
+        for day in period.baseline_dates:
+            if data.first <= day <= data.last:
+                w = rect.width() / ax.days
+                painter.fillRect(QRectF(ax.x(day) - w / 2, rect.top(), w, rect.height()), shade)
     # Grid, operating level, limit lines.
     painter.setFont(_font(12))
     # The finest grid whose labels stay at least 22 px apart.
@@ -372,13 +458,13 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
         painter.drawText(QRectF(rect.left() - 64, y - 9, 58, 18), Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter,
                          f"{v:+.2f}" if abs(v) > 1e-9 else "0")
         k += 1
-    painter.setPen(QPen(QColor("#555555"), 1.6))
+    painter.setPen(QPen(QColor(LEVEL_LINE), 1.6))
     painter.drawLine(QPointF(rect.left(), ax.y(0)), QPointF(rect.right(), ax.y(0)))
     # Limit and warning labels sit in two columns at the right, so close lines keep readable labels.
-    for limit, colour, style, inset in ((up_a, _LIMIT_LINE, Qt.PenStyle.DashLine, 4),
-                                        (low_a, _LIMIT_LINE, Qt.PenStyle.DashLine, 4),
-                                        (up_w, _WARNING_LINE, Qt.PenStyle.DotLine, 52),
-                                        (low_w, _WARNING_LINE, Qt.PenStyle.DotLine, 52)):
+    for limit, colour, style, inset in ((up_a, LIMIT_LINE, Qt.PenStyle.DashLine, 4),
+                                        (low_a, LIMIT_LINE, Qt.PenStyle.DashLine, 4),
+                                        (up_w, WARNING_LINE, Qt.PenStyle.DotLine, 52),
+                                        (low_w, WARNING_LINE, Qt.PenStyle.DotLine, 52)):
         if limit is not None:
             painter.setPen(QPen(QColor(colour), 1.6, style))
             painter.drawLine(QPointF(rect.left(), ax.y(limit)), QPointF(rect.right(), ax.y(limit)))
@@ -388,7 +474,7 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
     # Events: the baseline restarts from that day's strip on, so the line sits at the day's left edge.
     for day, label in data.events:
         x = ax.x(day) - rect.width() / ax.days / 2
-        painter.setPen(QPen(QColor(_EVENT), 1.5, Qt.PenStyle.DashDotLine))
+        painter.setPen(QPen(QColor(EVENT_COLOUR), 1.5, Qt.PenStyle.DashDotLine))
         painter.drawLine(QPointF(x, outer.top()), QPointF(x, outer.bottom()))
         if top:
             painter.setFont(_font(12, bold=True))
@@ -397,7 +483,7 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
     if lane_rows:
         painter.setPen(QPen(QColor("#BBBBBB"), 1))
         painter.drawLine(QPointF(lane.left(), lane.top()), QPointF(lane.right(), lane.top()))
-        painter.setPen(QColor(_TREND))
+        painter.setPen(QColor(TREND_COLOUR))
         painter.setFont(_font(11))
         painter.drawText(QRectF(lane.left() - 64, lane.top() + 2, 58, 14), Qt.AlignmentFlag.AlignRight, "trends")
     mine = [f for f in data.findings if f.quantity == series.quantity]
@@ -406,7 +492,7 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
         if not days or not lane_rows:
             continue
         y = lane.top() + 10 + 14 * (i % lane_rows)
-        painter.setPen(QPen(QColor(_TREND), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+        painter.setPen(QPen(QColor(TREND_COLOUR), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
         painter.drawLine(QPointF(ax.x(days[0]) - 4, y), QPointF(ax.x(days[-1]) + 4, y))
         painter.setFont(_font(11, bold=True))
         painter.drawText(QRectF(ax.x(days[-1]) + 8, y - 8, 170, 16), Qt.AlignmentFlag.AlignLeft, describe_rule(finding))
@@ -422,8 +508,8 @@ def _draw_plot(painter: Any, data: ChartData, series: ChartSeries, outer: Any, *
             _set_aside_mark(painter, p, ax.x(p.date) - shift, ax.y(p.deviation))
     for p in series.points:
         if p.deviation is None:
-            painter.setPen(QPen(QColor("#666666"), 2))
-            painter.drawLine(QPointF(ax.x(p.date), rect.bottom() - 12), QPointF(ax.x(p.date), rect.bottom()))
+            # Not judged yet: no level to deviate from; marked on the operating level's line.
+            _plus(painter, ax.x(p.date), ax.y(0.0))
             continue
         _marker(painter, p.verdict or "ok", ax.x(p.date), ax.y(p.deviation))
         if p.verdict == "action":
@@ -463,55 +549,66 @@ def _x_ticks(painter: Any, ax: _Axes, rect: Any, *, labels: bool) -> None:
                 painter.setFont(_font(11))
 
 
-def _legend(painter: Any, data: ChartData, left: float, top: float, width: float) -> float:
+def _plus(painter: Any, x: float, y: float, r: float = 5.0) -> None:
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QColor, QPen
+
+    painter.setPen(QPen(QColor(WAITING_COLOUR), 2.0))
+    painter.drawLine(QPointF(x - r, y), QPointF(x + r, y))
+    painter.drawLine(QPointF(x, y - r), QPointF(x, y + r))
+
+
+def _swatch(painter: Any, entry: LegendEntry, x: float, y: float) -> None:
+    """Draw ``entry`` as the chart draws it, in a 30 px wide box whose middle is at height ``y``."""
     from PySide6.QtCore import QPointF, QRectF, Qt
     from PySide6.QtGui import QColor, QPen
 
-    painter.setFont(_font(12))
-    x = left
-    for verdict in ("ok", "warning", "action"):
-        _marker(painter, verdict, x + 8, top + 8)
-        painter.setPen(QColor("#1A1A1A"))
-        painter.drawText(QRectF(x + 22, top, 190, 16), Qt.AlignmentFlag.AlignLeft, MARKS[verdict][3])
-        x += 200
-    items = ((_LIMIT_LINE, Qt.PenStyle.DashLine, "control limit"), (_WARNING_LINE, Qt.PenStyle.DotLine, "warning tier"),
-             (_EVENT, Qt.PenStyle.DashDotLine, "event: baseline restarts"))
-    x, top2 = left, top + 24
-    for colour, style, text in items:
-        painter.setPen(QPen(QColor(colour), 1.6, style))
-        painter.drawLine(QPointF(x, top2 + 8), QPointF(x + 30, top2 + 8))
-        painter.setPen(QColor("#1A1A1A"))
-        painter.drawText(QRectF(x + 36, top2, 200, 16), Qt.AlignmentFlag.AlignLeft, text)
-        x += 230
-    painter.fillRect(QRectF(x, top2 + 2, 24, 12), QColor(_BASELINE))
-    painter.setPen(QColor("#1A1A1A"))
-    painter.drawText(QRectF(x + 30, top2, 250, 16), Qt.AlignmentFlag.AlignLeft, "days that set the levels")
-    painter.setPen(QPen(QColor(_TREND), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
-    x3, top3 = left, top + 48
-    painter.drawLine(QPointF(x3 + 2, top3 + 8), QPointF(x3 + 28, top3 + 8))
-    painter.setPen(QColor("#1A1A1A"))
-    painter.drawText(QRectF(x3 + 36, top3, width - 40, 16), Qt.AlignmentFlag.AlignLeft,
-                     "trend rule fired (run: strips on one side of the level; drift: each strip further than the "
-                     "last; repeated warnings)")
-    return _legend_set_aside(painter, data, left, top + 72)
+    if entry.look == "mark":
+        _marker(painter, entry.key, x + 15, y)
+    elif entry.look == "hollow":
+        _marker(painter, "ok", x + 15, y, hollow=True)
+    elif entry.look == "cross":
+        _cross(painter, x + 15, y)
+    elif entry.look == "plus":
+        _plus(painter, x + 15, y)
+    elif entry.look == "shade":
+        shade = QColor(entry.colour)
+        shade.setAlphaF(BASELINE_OPACITY)
+        painter.fillRect(QRectF(x + 4, y - 7, 22, 14), shade)
+    elif entry.look == "bar":
+        painter.setPen(QPen(QColor(entry.colour), 5, Qt.PenStyle.SolidLine, Qt.PenCapStyle.RoundCap))
+        painter.drawLine(QPointF(x + 3, y), QPointF(x + 27, y))
+    else:
+        styles = {"solid": Qt.PenStyle.SolidLine, "dash": Qt.PenStyle.DashLine, "dot": Qt.PenStyle.DotLine,
+                  "dashdot": Qt.PenStyle.DashDotLine}
+        painter.setPen(QPen(QColor(entry.colour), 1.6, styles[entry.dash]))
+        painter.drawLine(QPointF(x, y), QPointF(x + 30, y))
 
 
-def _legend_set_aside(painter: Any, data: ChartData, left: float, top: float) -> float:
-    """A legend row for the entries kept but not used, when the chart shows any."""
+def _legend(painter: Any, data: ChartData, left: float, top: float, width: float, *, draw: bool = True) -> float:
+    """Draw the legend (:func:`legend_entries`) in rows that fit ``width``; return the y below it."""
     from PySide6.QtCore import QRectF, Qt
-    from PySide6.QtGui import QColor
+    from PySide6.QtGui import QColor, QFontMetricsF
 
-    kinds = data.set_aside_kinds
-    x = left
-    for kind in kinds:
-        if kind == "corrected":
-            _cross(painter, x + 8, top + 8)
-        else:
-            _marker(painter, "ok", x + 8, top + 8, hollow=True)
-        painter.setPen(QColor("#1A1A1A"))
-        painter.drawText(QRectF(x + 22, top, 470, 16), Qt.AlignmentFlag.AlignLeft, SET_ASIDE[kind])
-        x += 500
-    return top + (24 if kinds else 0)
+    font = _font(12)
+    metrics = QFontMetricsF(font)
+    flags = Qt.AlignmentFlag.AlignLeft | Qt.TextFlag.TextWordWrap
+    x, y, row_h = left, top, 0.0
+    if draw:
+        painter.setFont(font)
+    for entry in legend_entries(data):
+        text_w = min(metrics.horizontalAdvance(entry.words) + 2, width - 40)
+        if x > left and x + 40 + text_w > left + width:
+            x, y, row_h = left, y + row_h + 6, 0.0
+        # A text too long for one row wraps under itself.
+        box = metrics.boundingRect(QRectF(0, 0, text_w, 1000), flags, entry.words)
+        if draw:
+            _swatch(painter, entry, x, y + 9)
+            painter.setPen(QColor("#1A1A1A"))
+            painter.drawText(QRectF(x + 38, y, text_w, box.height() + 2), flags, entry.words)
+        row_h = max(row_h, box.height(), 18.0)
+        x += 40 + text_w + 22
+    return y + row_h + 8
 
 
 def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
@@ -543,8 +640,8 @@ def render_chart(data: ChartData, size: tuple[int, int] = (1200, 1100)) -> Any:
         footer = _wrap([*chart_legend(data), *data.set_aside_notes, f"Caution: {CAUTION}",
                         f"Drawn by stripscan {__version__} on {datetime.date.today().isoformat()}."],
                        int((width - 48) / 7.4))
-        foot_h = 20 + 17 * len(footer) + 90 + (24 if data.set_aside_kinds else 0)
         top, left, right = 96, 96, width - 24
+        foot_h = 20 + 17 * len(footer) + _legend(painter, data, left, 0, right - left, draw=False)
         gap, bottom_axis = 30, 40
         plot_h = (height - top - foot_h - bottom_axis - 2 * gap) / 3
         counts = [sum(f.quantity == s.quantity for f in data.findings) for s in data.series]

@@ -2,7 +2,7 @@
 
 ::
 
-    stripscan qc add --processor P --date YYYY-MM-DD SCAN [--calibration CAL.json] [--strip N] [--lot ID]
+    stripscan qc add --processor P --date YYYY-MM-DD SCAN --calibration CAL.json [--strip N] [--lot ID]
     stripscan qc add --processor P --date YYYY-MM-DD --base-fog X --mid-density Y --density-difference Z
     stripscan qc add ... --repeat          (a second strip of the latest day; it then counts for the day)
     stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--note T]
@@ -37,7 +37,7 @@ from .archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
 from .archive.cli import _fail, _guarded, _open
 from .core.qc import EVENT_KINDS, QUANTITIES, QCValues
-from .qc_log import LABELS, DuplicateDayError, LoggedEntry, parse_day, signed
+from .qc_log import LABELS, DuplicateDayError, LoggedEntry, parse_day, signed, uncalibrated_refusal
 
 __all__ = ["register"]
 
@@ -71,13 +71,16 @@ def _cmd_add(args: argparse.Namespace) -> int:
         return _fail(f"give a SCAN, or all three typed values (missing: {', '.join(missing)})")
     if args.scan is None and (args.calibration or args.strip is not None or args.lot):
         return _fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
+    if args.scan is not None and args.calibration is None:
+        # The log refuses an uncalibrated read anyway (qc_log.read_strip); say so before the scan is analysed.
+        return _fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:
         from .core.calibration import load_calibration
         from .core.pipeline import analyze_scan
 
-        cal = load_calibration(args.calibration) if args.calibration is not None else None
-        calibration = cal.to_dict() if cal is not None else None
+        cal = load_calibration(args.calibration)
+        calibration = cal.to_dict()
         analysis = analyze_scan(args.scan, calibration=cal)
     values = None if analysis is not None else QCValues(*typed)
     with _open(args, create=args.new_processor) as archive:
@@ -324,7 +327,8 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add = command("add", _cmd_add, "add a day's QC entry from a scan or typed values")
     add.add_argument("scan", metavar="SCAN", nargs="?", help="scan of the day's processed QC strip")
     add.add_argument("--date", metavar="YYYY-MM-DD", help="day the strip was processed")
-    add.add_argument("--calibration", metavar="CAL.json", help="scanner calibration (from 'stripscan calibrate')")
+    add.add_argument("--calibration", metavar="CAL.json", help="scanner calibration (from 'stripscan calibrate'); needed with a "
+                     "SCAN: an uncalibrated read is not stored")
     add.add_argument("--strip", metavar="N", type=int, help="which strip of the scan, when it holds several")
     add.add_argument("--lot", metavar="ID", help="emulsion lot of the QC film: also keep the strip in the archive")
     for q in QUANTITIES:

@@ -77,6 +77,7 @@ __all__ = [
     "parse_day",
     "load_setup",
     "load_processor_log",
+    "uncalibrated_refusal",
     "read_strip",
     "add_day",
     "correct_entry",
@@ -448,8 +449,27 @@ def _pick_strip(analysis: Analysis, number: int | None) -> StripResult:
     raise ValueError(f"{name} has no strip {number}; its strips are numbered 1 to {len(analysis.strips)}")
 
 
+def uncalibrated_refusal(name: str) -> str:
+    """Why a scan read without a calibration is not stored in the QC log, and what to do instead.
+
+    Parameters
+    ----------
+    name : str
+        The scan's file name, to start the message with.
+    """
+    return (f"{name} was read without a calibration (direct mode: log10(I0/I) straight from the scanner, "
+            "capped by its flare), so its densities are not densitometer readings and would judge the scanner, "
+            "not the processor, in a log that cannot be changed; nothing was stored. Calibrate the scanner with "
+            "a reference step tablet ('stripscan calibrate') and give the calibration (--calibration CAL.json), "
+            "or type the densitometer's values (--base-fog, --mid-density, --density-difference)")
+
+
 def read_strip(analysis: Analysis, steps: QCSteps | None, *, strip: int | None = None) -> StripReading:
     """Base+fog, mid-density and density difference of the QC strip on an analysed scan.
+
+    Every scanned day passes through here, so this is where an uncalibrated
+    read is refused: the operating levels and control limits are in
+    densitometer density, and a scan in direct mode is not.
 
     Parameters
     ----------
@@ -464,9 +484,13 @@ def read_strip(analysis: Analysis, steps: QCSteps | None, *, strip: int | None =
     Raises
     ------
     ValueError
-        No strip, an unknown strip number, no base+fog, a kept step missing
-        or not usable on this strip.
+        A scan read in direct mode (no calibration), no strip, an unknown
+        strip number, no base+fog, a kept step missing or not usable on
+        this strip.
     """
+    # An analysis with no calibration summary at all was not calibrated either.
+    if analysis.calibration is None or analysis.calibration.get("mode") == "direct":
+        raise ValueError(uncalibrated_refusal(Path(analysis.scan.path).name))
     picked = _pick_strip(analysis, strip)
     where = f"{Path(analysis.scan.path).name}, strip {picked.index}"
     densities = [s.od if s.in_range and not s.excluded else math.nan for s in picked.steps]
@@ -612,7 +636,6 @@ def add_day(
     if analysis is not None:
         reading = read_strip(analysis, plog.steps_on(day) if plog else None, strip=strip)
         values = reading.values
-        notes += [w for w in analysis.warnings if w.startswith("UNCALIBRATED")]
         if reading.chosen_now:
             since = plog.step_restart(day) if plog else None
             choice = StepChoice(day, reading.steps, reading.source)

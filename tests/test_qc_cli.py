@@ -278,6 +278,17 @@ def test_scanned_days_keep_the_baseline_steps(capsys, archive, demo, tmp_path):
     assert snapshot.strip.index == 2 and snapshot.lot_id == "QC-LOT-7"
 
 
+def test_a_scan_without_a_calibration_is_refused_before_anything_is_stored(capsys, baseline, tmp_path):
+    strip = StripSpec(film=daily_film(0), center_mm=(25.0, 97.5), angle_deg=90.0)
+    scan = tmp_path / "daily.tif"
+    write_tiff(scan, simulate_scan([strip], platen_mm=(50.0, 195.0), dpi=150.0, scanner=scanner_for(302)))
+    line = refused(capsys, "qc", "add", scan, "--archive", baseline, "--processor", P, "--date", day(5))
+    # Direct mode reads log10(I0/I) capped by the scanner's flare, not densitometer density (common practice).
+    assert "daily.tif was read without a calibration" in line and "--calibration CAL.json" in line
+    assert "step tablet" in line and "--base-fog" in line and "nothing was stored" in line
+    assert stored_days(baseline) == [day(n) for n in range(5)]
+
+
 # --------------------------------------------------------------------------
 # The demo month, its status and its chart
 

@@ -400,6 +400,22 @@ def test_a_kept_step_outside_the_calibrated_range_is_refused(archive, demo, tmp_
         read_strip(analysis, QCSteps(steps.mid_step, beyond, steps.dd_low_step))
 
 
+def test_a_scan_read_without_a_calibration_is_refused_and_nothing_is_stored(archive, tmp_path):
+    baseline(archive)
+    # A linear 16-bit scan read in direct mode: log10(I0/I) straight from the scanner, no tablet.
+    analysis = analyze_scan(scan_of(tmp_path, daily_film(0), 260, "uncal.tif", noise_sd=0.0008))
+    assert analysis.calibration["mode"] == "direct"
+    # A flatbed scanner is not a densitometer: its flare caps dense steps, so only a tablet calibration
+    # gives densities the operating levels can be compared with (common practice).
+    for attempt in ({}, {"repeat": True}):
+        with pytest.raises(ValueError, match="uncal.tif was read without a calibration .*nothing was stored.*"
+                                             "reference step tablet.*--calibration.*type the densitometer's values"):
+            add_day(archive, P, day(5 if not attempt else 4), analysis=analysis, **attempt)
+    with pytest.raises(ValueError, match="without a calibration"):
+        read_strip(dataclasses.replace(analysis, calibration=None), None)
+    assert len(archive.list_qc_entries(P)) == 5 and load_processor_log(archive, P).setup.step_choices == ()
+
+
 def test_a_scan_with_no_strip_or_several_strips_is_refused_and_nothing_is_stored(archive, demo, tmp_path):
     baseline(archive)
     analysis = analyze_scan(scan_of(tmp_path, daily_film(0), 240, "e.tif"), calibration=load_calibration(demo.calibration))

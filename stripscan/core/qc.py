@@ -17,6 +17,8 @@ and DD.  All limits are site settings (:class:`QCLimits`).
 Boundaries are decided in decimal terms: deviations are rounded to
 ``1e-6`` OD and then compared with a tolerance of ``1e-9``.  Without this,
 1.35 - 1.20 (0.15000000000000013 in binary) would break a ±0.15 limit.
+The run and drift rules also ignore deviations and changes smaller than
+:data:`TREND_DEAD_BAND` (half a densitometer's 0.01 OD reading step).
 
 A baseline starts again after each :class:`QCEvent` (new chemistry, service,
 new film type...).  A box of new QC film is brought in with a
@@ -46,9 +48,11 @@ from stripscan import CAUTION
 
 __all__ = [
     "QUANTITIES",
+    "TREND_DEAD_BAND",
     "VERDICTS",
     "EVENT_KINDS",
     "ADVICE",
+    "WARNING_CAUSES",
     "QCLimits",
     "QCValues",
     "QCEntry",
@@ -79,12 +83,32 @@ STEP_RULES = ("closest", "bounded")
 TREND_RULE_NAMES = ("run", "drift", "two_warnings")
 BASE_FOG_RULES = ("new_mean", "shift")
 
+#: What is usually done next, by verdict (common practice).  A warning's
+#: advice starts with what raised it (:data:`WARNING_CAUSES`) and ends with
+#: ``"warning"`` when only the warning tier did, ``"trend"`` when a trend
+#: rule did.
 ADVICE = {
     "ok": "Within control limits: the processor may be used.",
-    "warning": "Near a control limit: watch the trend; repeat the strip if in doubt.",
+    "warning": "Repeat the strip if in doubt and watch the next strips.",
+    "trend": (
+        "The processor may be shifting: look for the cause (temperature, replenishment, chemistry) "
+        "before a control limit is reached; repeat the strip if in doubt."
+    ),
     "action": (
         "Outside a control limit: repeat the strip; if confirmed, stop clinical "
         "processing and correct the processor before patient films are processed."
+    ),
+}
+
+#: Why a strip within the control limits is a warning, in plain words: the
+#: warning tier on the strip itself (``"tier"``) or a trend rule, sized by
+#: the site's :class:`TrendRules`.
+WARNING_CAUSES = {
+    "tier": "the warning tier (this strip is past it)",
+    "run": "the run rule ({run_length} or more strips in a row on one side of the operating level)",
+    "drift": "the drift rule ({drift_length} or more strips in a row, each moving the same way)",
+    "two_warnings": (
+        "the repeated-warnings rule ({warning_count} of {warning_window} consecutive strips past the warning tier)"
     ),
 }
 
@@ -106,6 +130,15 @@ _EVENT_LABELS = {
 # binary noise without moving any decimal boundary.
 _DIGITS = 6
 _TOL = 1e-9
+
+#: Dead band of the run and drift rules, OD.  Densitometers read to 0.01 OD
+#: (common practice), so a deviation, or a change from one strip to the
+#: next, smaller than half of that is not a side of the level or a step in
+#: any direction: such a strip is on its level and breaks a run; such a
+#: change is flat and breaks a drift.  Without it a deviation of -0.001 OD
+#: (a level that is the mean of five strips rarely falls on a reading)
+#: counts as "below" and keeps a run alive after the processor is repaired.
+TREND_DEAD_BAND = 0.005
 
 
 # --------------------------------------------------------------------------
@@ -193,8 +226,10 @@ def _beyond(size: float, limit: float) -> bool:
     return size > limit + _TOL
 
 
-def _sign(value: float) -> int:
-    return 1 if value > _TOL else -1 if value < -_TOL else 0
+def _side(value: float) -> int:
+    """+1 or -1 for a deviation or change of at least :data:`TREND_DEAD_BAND`, 0 for a smaller one."""
+    edge = TREND_DEAD_BAND - _TOL
+    return 1 if value >= edge else -1 if value <= -edge else 0
 
 
 def _worse(a: str, b: str) -> str:
@@ -439,9 +474,11 @@ class TrendRules(_Record):
     only rises are reported, since a fall is never a fault):
 
     * ``run``: ``run_length`` strips in a row on the same side of the
-      operating level (a strip exactly at the level breaks the run);
+      operating level (a strip on its level, less than
+      :data:`TREND_DEAD_BAND` off, breaks the run);
     * ``drift``: ``drift_length`` strips in a row, each higher (or each
-      lower) than the one before (an unchanged value breaks the drift);
+      lower) than the one before (a flat step, a change of less than
+      :data:`TREND_DEAD_BAND`, breaks the drift);
     * ``two_warnings``: ``warning_count`` of ``warning_window`` consecutive
       strips past the warning tier on the same side.
 
@@ -845,12 +882,12 @@ def _streaks(flags: Sequence[bool]) -> list[tuple[int, int]]:
 
 
 def _run_spans(devs: Sequence[float], side: int, length: int) -> list[list[int]]:
-    spans = _streaks([_sign(d) == side for d in devs])
+    spans = _streaks([_side(d) == side for d in devs])
     return [list(range(a, b + 1)) for a, b in spans if b - a + 1 >= length]
 
 
 def _drift_spans(devs: Sequence[float], side: int, length: int) -> list[list[int]]:
-    steps = [False] + [_sign(devs[i] - devs[i - 1]) == side for i in range(1, len(devs))]
+    steps = [False] + [_side(devs[i] - devs[i - 1]) == side for i in range(1, len(devs))]
     # A stretch of steps a..b covers the strips a-1..b.
     return [list(range(a - 1, b + 1)) for a, b in _streaks(steps) if b - a + 2 >= length]
 
@@ -1062,6 +1099,14 @@ class QCLog(_Record):
             )
         return log._status(today)
 
+    def _warning_advice(self, past_tier: bool, fired: Sequence[TrendFinding]) -> str:
+        """What raised a warning (the warning tier, which trend rules) and what is usually done next."""
+        sizes = dataclasses.asdict(self.rules)
+        rules = [rule for rule in TREND_RULE_NAMES if any(f.rule == rule for f in fired)]
+        causes = [WARNING_CAUSES[c].format(**sizes) for c in (["tier"] if past_tier else []) + rules]
+        raised = ", ".join(causes[:-1]) + " and " + causes[-1] if len(causes) > 1 else causes[0]
+        return f"Warning, within the control limits, raised by {raised}. {ADVICE['trend' if rules else 'warning']}"
+
     def _status(self, today: datetime.date | None) -> ProcessorStatus:
         period = self.periods[-1] if self.periods else None
         days = period.days if period else ()
@@ -1102,7 +1147,9 @@ class QCLog(_Record):
         verdict = latest.verdict.verdict
         if fired:
             verdict = _worse(verdict, "warning")
-        advice = [ADVICE[verdict], *latest.verdict.reasons, *(f.message for f in fired), *extra, CAUTION]
+        headline = self._warning_advice(latest.verdict.verdict == "warning", fired) if verdict == "warning" \
+            else ADVICE[verdict]
+        advice = [headline, *latest.verdict.reasons, *(f.message for f in fired), *extra, CAUTION]
         return ProcessorStatus(
             **common, deviations=latest.verdict.deviations, verdict=verdict,
             rules_fired=tuple(f"{f.rule}:{f.quantity}" for f in fired),

@@ -11,8 +11,11 @@ same day hollow, a value corrected afterwards as a grey cross.
 
 The typed-day form stores a day's strip, or a repeat strip of the latest
 day; the correction form stores the right values of an entry (typed by its
-number, or picked by clicking its point) with the reason it was wrong.  A
-refused entry is explained under its button; nothing is stored then.
+number, or picked by clicking its point) with the reason it was wrong.  The
+log cannot be changed, so no number field starts with a value the user did
+not type or the chosen entry does not hold: the day's three fields start
+empty and are all required.  A refused entry is explained under its
+button; nothing is stored then.
 """
 
 from __future__ import annotations
@@ -26,12 +29,11 @@ from typing import Any
 
 import pyqtgraph as pg
 from PySide6.QtCore import QDate, Qt, Signal
-from PySide6.QtGui import QBrush, QColor, QPen
+from PySide6.QtGui import QBrush, QColor, QDoubleValidator, QPen
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
     QDateEdit,
-    QDoubleSpinBox,
     QFormLayout,
     QGraphicsRectItem,
     QGroupBox,
@@ -50,15 +52,24 @@ from ..archive import QcEntry as StoredEntry
 from ..core.qc import QUANTITIES, QCValues
 from ..qc_chart import (
     BANDS,
+    BASELINE_COLOUR,
+    BASELINE_OPACITY,
     CORRECTED_COLOUR,
+    EVENT_COLOUR,
+    LEGEND,
+    LEVEL_LINE,
+    LIMIT_LINE,
     MARKS,
-    SET_ASIDE,
     SET_ASIDE_SHIFT,
+    TREND_COLOUR,
+    WAITING_COLOUR,
+    WARNING_LINE,
     ChartData,
     ChartPoint,
     ChartSeries,
     chart_data,
     describe_rule,
+    legend_entries,
     y_span,
 )
 from ..qc_log import (
@@ -72,15 +83,15 @@ from ..qc_log import (
     status_text,
 )
 
-__all__ = ["QcPanel", "DayAxis"]
+__all__ = ["QcPanel", "DayAxis", "DensityEdit"]
 
 log = logging.getLogger(__name__)
 
 # pyqtgraph's names for the chart's shapes.
 _SYMBOLS = {"circle": "o", "triangle": "t1", "diamond": "d"}
-_GLYPHS = {"ok": "\u25cf", "warning": "\u25b2", "action": "\u25c6"}
-# Glyphs for the key under the plots: a hollow mark, a cross.
-_KEY_GLYPHS = {"repeated": "\u25cb", "corrected": "\u00d7"}
+_GLYPHS = {e.key: e.glyph for e in LEGEND}
+# Height of one row of trend-rule bars under a plot, as a share of the plot's half range.
+_LANE_ROW = 0.2
 
 
 class DayAxis(pg.AxisItem):
@@ -98,14 +109,60 @@ class DayAxis(pg.AxisItem):
         return out
 
 
-def _density_spin(start: float) -> QDoubleSpinBox:
-    spin = QDoubleSpinBox()
-    spin.setRange(0.0, 5.0)
-    spin.setDecimals(3)
-    spin.setSingleStep(0.01)
-    spin.setValue(start)
-    spin.setSuffix(" OD")
-    return spin
+class DensityEdit(QLineEdit):
+    """A density typed in OD (0 to 5, to 0.001), empty until one is typed.
+
+    The QC log cannot be changed, so a field never starts with a value the
+    user did not type: an empty field shows ``placeholder`` in grey and
+    :meth:`value` gives None for it.
+    """
+
+    def __init__(self, label: str, placeholder: str) -> None:
+        super().__init__()
+        self.label = label
+        validator = QDoubleValidator(0.0, 5.0, 3, self)
+        validator.setNotation(QDoubleValidator.Notation.StandardNotation)
+        self.setValidator(validator)
+        self.setPlaceholderText(placeholder)
+
+    def value(self) -> float | None:
+        """The typed density, OD; None when the field is empty.
+
+        Raises
+        ------
+        ValueError
+            A text that is not a density from 0 to 5 OD (the validator lets
+            such text stand while it is being typed).
+        """
+        text = self.text().strip()
+        if not text:
+            return None
+        number, ok = self.validator().locale().toDouble(text)
+        if not ok or not self.hasAcceptableInput():
+            raise ValueError(f"{self.label} {text!r} is not a density from 0 to 5 OD to 0.001")
+        return number
+
+    def setValue(self, value: float | None) -> None:  # noqa: N802 (Qt's name, as a spin box has)
+        """Show ``value`` to 0.001 OD, or empty the field for None."""
+        self.setText("" if value is None else self.validator().locale().toString(value, "f", 3))
+
+
+def _glyph_colour(entry: Any) -> str:
+    """The colour of a legend glyph: its entry's, or for the translucent shading, that shading on white.
+
+    The glyph is drawn at twice the shading's opacity (as the report's
+    legend swatches are), since a pale glyph on the window's grey is hard to see.
+    """
+    if entry.look != "shade":
+        return entry.colour
+    alpha = min(1.0, 2 * BASELINE_OPACITY)
+    grey = round(255 * (1 - alpha) + QColor(entry.colour).red() * alpha)
+    return QColor(grey, grey, grey).name()
+
+
+def _join(words: list[str]) -> str:
+    """'a', 'a and b', 'a, b and c'."""
+    return " and ".join(words) if len(words) < 3 else f"{', '.join(words[:-1])} and {words[-1]}"
 
 
 def _message(label: QLabel, text: str, *, ok: bool) -> None:
@@ -165,9 +222,10 @@ class QcPanel(QWidget):
             self.plots[q] = plot
         self.scatter: dict[str, pg.ScatterPlotItem] = {}
         self.set_aside: dict[str, pg.ScatterPlotItem] = {}
-        #: Says what hollow marks and crosses are, when the plots show any.
+        #: The legend of the plots, the same as the PNG chart's and the monthly report's.
         self.key_label = QLabel()
         self.key_label.setWordWrap(True)
+        self.key_label.setTextFormat(Qt.TextFormat.RichText)
         layout = QVBoxLayout(self)
         top = QHBoxLayout()
         top.addWidget(QLabel("Processor:"))
@@ -204,10 +262,10 @@ class QcPanel(QWidget):
                                      "Both strips are kept; the repeat is the day's value from then on.")
         self.repeat_check.toggled.connect(self._set_form_date)
         form.addRow("", self.repeat_check)
-        self.value_edits: dict[str, QDoubleSpinBox] = {}
-        for q, start in zip(QUANTITIES, (0.20, 1.20, 1.80)):
-            self.value_edits[q] = _density_spin(start)
-            form.addRow(LABELS[q].capitalize(), self.value_edits[q])
+        self.value_edits: dict[str, DensityEdit] = {}
+        for q in QUANTITIES:
+            self.value_edits[q] = DensityEdit(LABELS[q], "required")
+            form.addRow(f"{LABELS[q].capitalize()} (OD)", self.value_edits[q])
         self.note_edit = QLineEdit()
         self.note_edit.setPlaceholderText("remark for the day (optional)")
         self.action_edit = QLineEdit()
@@ -243,7 +301,12 @@ class QcPanel(QWidget):
         day = self.date_edit.date().toPython()
         repeat = self.repeat_check.isChecked()
         try:
-            values = QCValues(*(self.value_edits[q].value() for q in QUANTITIES))
+            typed = [self.value_edits[q].value() for q in QUANTITIES]
+            missing = [LABELS[q] for q, v in zip(QUANTITIES, typed) if v is None]
+            if missing:
+                raise ValueError(f"{_join(missing)} {'is' if len(missing) == 1 else 'are'} missing: type all "
+                                 "three values read on the densitometer")
+            values = QCValues(*typed)  # type: ignore[arg-type]
             with Archive.open(self.archive_path, create=False) as archive:
                 added = add_day(archive, processor, day, values=values, note=self.note_edit.text().strip(),
                                 action=self.action_edit.text().strip(), repeat=repeat)
@@ -255,8 +318,9 @@ class QcPanel(QWidget):
         log.info("QC day %s stored for %r from the panel (entry %s)", day, processor, added.entry.id)
         what = f"a repeat strip of {day.isoformat()}" if repeat else day.isoformat()
         _message(self.form_message, f"Stored {what} as entry {added.entry.id}.", ok=True)
-        self.note_edit.clear()
-        self.action_edit.clear()
+        # Emptied, so that the next day never inherits this day's numbers.
+        for edit in (*self.value_edits.values(), self.note_edit, self.action_edit):
+            edit.clear()
         self.repeat_check.setChecked(False)
         self.show_processor(processor)
         self.sigDayAdded.emit(processor, day.isoformat())
@@ -275,11 +339,12 @@ class QcPanel(QWidget):
         self.entry_label = QLabel()
         self.entry_label.setWordWrap(True)
         form.addRow("", self.entry_label)
-        self.fix_edits = {q: _density_spin(start) for q, start in zip(QUANTITIES, (0.20, 1.20, 1.80))}
-        for q, spin in self.fix_edits.items():
-            form.addRow(f"Right {LABELS[q]}", spin)
+        # Filled from the chosen entry only: empty where it has no value (or no entry is chosen).
+        self.fix_edits = {q: DensityEdit(f"right {LABELS[q]}", "none stored") for q in QUANTITIES}
+        for q, edit in self.fix_edits.items():
+            form.addRow(f"Right {LABELS[q]} (OD)", edit)
         self.reason_edit = QLineEdit()
-        self.reason_edit.setPlaceholderText("why the entry was wrong (needed)")
+        self.reason_edit.setPlaceholderText("why it was wrong (needed)")
         form.addRow("Reason", self.reason_edit)
         self.correct_button = QPushButton("Store correction")
         self.correct_button.clicked.connect(self.correct_chosen_entry)
@@ -297,22 +362,24 @@ class QcPanel(QWidget):
         entry = self._stored_entry(entry_id)
         if entry is None:
             self.entry_label.setText(f"No entry {entry_id} for this processor.")
+            for edit in self.fix_edits.values():
+                edit.clear()
             return
         state = self.plog.states[entry_id] if self.plog is not None else None
         fate = f"; corrected already by entry {state.corrected_by}" if state and state.corrected_by else ""
         self.entry_label.setText(f"{entry.date}, {entry.source}: " + ", ".join(
             f"{LABELS[q]} {getattr(entry, q):.3f}" for q in QUANTITIES if getattr(entry, q) is not None) + fate)
-        for q, spin in self.fix_edits.items():
-            if getattr(entry, q) is not None:
-                spin.setValue(getattr(entry, q))
+        for q, edit in self.fix_edits.items():
+            edit.setValue(getattr(entry, q))
 
     def correct_chosen_entry(self) -> bool:
         """Store the correction form's values for the chosen entry; True when stored.
 
         Only the numbers changed in the form are corrected (to the
-        form's 0.001 OD); a refusal (no reason, nothing changed, entry
-        corrected already) is explained under the button and nothing is
-        stored.
+        form's 0.001 OD); an emptied field keeps the stored value.  A
+        refusal (no reason, nothing changed, a number that is not a
+        density, entry corrected already) is explained under the button
+        and nothing is stored.
         """
         processor = self.processor_box.currentText()
         entry_id = self.entry_spin.value()
@@ -320,9 +387,10 @@ class QcPanel(QWidget):
         if self.archive_path is None or entry is None:
             _message(self.correct_message, f"entry {entry_id} is not in the QC log shown", ok=False)
             return False
-        changes = {q: spin.value() for q, spin in self.fix_edits.items()
-                   if getattr(entry, q) is None or round(spin.value(), 3) != round(getattr(entry, q), 3)}
         try:
+            typed = {q: edit.value() for q, edit in self.fix_edits.items()}
+            changes = {q: v for q, v in typed.items() if v is not None
+                       and (getattr(entry, q) is None or round(v, 3) != round(getattr(entry, q), 3))}
             with Archive.open(self.archive_path, create=False) as archive:
                 added = correct_entry(archive, entry_id, reason=self.reason_edit.text(), **changes)
         except (ArchiveError, ValueError, OSError) as exc:
@@ -412,11 +480,17 @@ class QcPanel(QWidget):
         self.data = chart_data(plog)
         for series in self.data.series:
             self._draw(series, self.data)
-        self.key_label.setText("   ".join(f"{_KEY_GLYPHS[kind]} {SET_ASIDE[kind].capitalize()}."
-                                          for kind in self.data.set_aside_kinds))
+        self.key_label.setText(self._legend_html(self.data))
 
     def _show_message(self, text: str) -> None:
         self.status_label.setText(html.escape(text))
+
+    @staticmethod
+    def _legend_html(data: ChartData) -> str:
+        """The shared legend (:func:`stripscan.qc_chart.legend_entries`), each entry with a glyph in its colour."""
+        return " &nbsp; ".join(
+            f"<b style='color:{_glyph_colour(e)}'>{html.escape(e.glyph)}</b>&nbsp;{html.escape(e.words)}"
+            for e in legend_entries(data))
 
     @staticmethod
     def _status_html(plog: Any) -> str:
@@ -438,6 +512,7 @@ class QcPanel(QWidget):
         return float((day - self.data.first).days)
 
     def _draw(self, series: ChartSeries, data: ChartData) -> None:
+        """Draw one quantity's plot with the marks, lines and shading of the shared legend."""
         plot = self.plots[series.quantity]
         self.axes[series.quantity].first = data.first
         span = y_span(series)
@@ -451,48 +526,29 @@ class QcPanel(QWidget):
             if zone is None or zone[0] is None:
                 continue
             a, b, kind = zone
-            rect = QGraphicsRectItem(x0, min(a, b), x1 - x0, abs(b - a))
-            rect.setPen(QPen(Qt.PenStyle.NoPen))
-            rect.setBrush(QBrush(QColor(BANDS[kind])))
-            rect.setZValue(-10)
-            plot.addItem(rect)
+            self._rect(plot, x0, min(a, b), x1 - x0, abs(b - a), QColor(BANDS[kind]), -10)
+        shade = QColor(BASELINE_COLOUR)
+        shade.setAlphaF(BASELINE_OPACITY)
         for period in data.periods:
-            for day in period.baseline_dates:
-                if data.first <= day <= data.last:
-                    rect = QGraphicsRectItem(self._x(day) - 0.5, -span, 1.0, 2 * span)
-                    rect.setPen(QPen(Qt.PenStyle.NoPen))
-                    rect.setBrush(QBrush(QColor(0, 0, 0, 18)))
-                    rect.setZValue(-9)
-                    plot.addItem(rect)
-        plot.addItem(pg.InfiniteLine(0.0, angle=0, movable=False, pen=pg.mkPen("#555555", width=1.5)))
-        for limit, colour, style in ((up_a, "#B03A12", Qt.PenStyle.DashLine), (low_a, "#B03A12", Qt.PenStyle.DashLine),
-                                     (up_w, "#B7860B", Qt.PenStyle.DotLine), (low_w, "#B7860B", Qt.PenStyle.DotLine)):
+            days = [self._x(d) for d in period.baseline_dates if data.first <= d <= data.last]
+            if days:
+                # A baseline's days are consecutive strips; one column over them, not one per day.
+                self._rect(plot, days[0] - 0.5, -span, days[-1] - days[0] + 1.0, 2 * span, shade, -9)
+        plot.addItem(pg.InfiniteLine(0.0, angle=0, movable=False, pen=pg.mkPen(LEVEL_LINE, width=1.5)))
+        for limit, colour, style in ((up_a, LIMIT_LINE, Qt.PenStyle.DashLine), (low_a, LIMIT_LINE, Qt.PenStyle.DashLine),
+                                     (up_w, WARNING_LINE, Qt.PenStyle.DotLine), (low_w, WARNING_LINE, Qt.PenStyle.DotLine)):
             if limit is not None:
                 plot.addItem(pg.InfiniteLine(limit, angle=0, movable=False, pen=pg.mkPen(colour, width=1.5, style=style)))
         for day, label in data.events:
             plot.addItem(pg.InfiniteLine(self._x(day) - 0.5, angle=90, movable=False, label=label.split(" on ")[0],
                                          labelOpts={"position": 0.9, "color": "#333333"},
-                                         pen=pg.mkPen("#444444", width=1.5, style=Qt.PenStyle.DashDotLine)))
+                                         pen=pg.mkPen(EVENT_COLOUR, width=1.5, style=Qt.PenStyle.DashDotLine)))
         for period in data.periods:
             pts = [p for p in series.points if period.first <= p.date <= period.last and p.deviation is not None]
             if len(pts) > 1:
                 plot.addItem(pg.PlotDataItem([self._x(p.date) for p in pts], [p.deviation for p in pts],
                                              pen=pg.mkPen("#888888", width=1)))
-        # Bars ending on one day share one label: stacked a few pixels apart, their words would overlap.
-        labels: dict[float, tuple[float, list[str]]] = {}
-        for row, finding in enumerate(f for f in data.findings if f.quantity == series.quantity):
-            y = -span * (0.95 - 0.065 * (row % 4))
-            days = [self._x(d) for d in finding.dates if data.first <= d <= data.last]
-            if days:
-                plot.addItem(pg.PlotDataItem([days[0] - 0.2, days[-1] + 0.2], [y, y],
-                                             pen=pg.mkPen("#8E4A7A", width=5)))
-                words = labels.setdefault(days[-1], (y, []))[1]
-                if describe_rule(finding) not in words:
-                    words.append(describe_rule(finding))
-        for end, (y, words) in labels.items():
-            label = pg.TextItem(", ".join(words), color="#8E4A7A", anchor=(0, 0.5))
-            label.setPos(end + 0.35, y)
-            plot.addItem(label)
+        bottom = self._draw_trends(plot, series, data, span, x0, x1)
         kept = pg.ScatterPlotItem(spots=[self._set_aside_spot(p, span) for p in series.set_aside
                                          if p.deviation is not None], hoverable=True, tip=self._tip(series))
         kept.sigClicked.connect(self._point_clicked)
@@ -501,17 +557,58 @@ class QcPanel(QWidget):
         spots = []
         for p in series.points:
             if p.deviation is None:
-                continue
-            colour, shape, size, _ = MARKS[p.verdict or "ok"]
-            spots.append({"pos": (self._x(p.date), p.deviation), "symbol": _SYMBOLS[shape], "size": 2 * size + 2,
-                          "brush": pg.mkBrush(colour), "pen": pg.mkPen("#1A1A1A", width=1),
-                          "data": (p.date.isoformat(), p.verdict, p.entry_id)})
+                # A day of a baseline in progress: not judged, marked on the level's line.
+                look = {"pos": (self._x(p.date), 0.0), "symbol": "+", "size": 11,
+                        "brush": pg.mkBrush(WAITING_COLOUR), "pen": pg.mkPen(WAITING_COLOUR, width=1)}
+            else:
+                colour, shape, size, _ = MARKS[p.verdict or "ok"]
+                look = {"pos": (self._x(p.date), p.deviation), "symbol": _SYMBOLS[shape], "size": 2 * size + 2,
+                        "brush": pg.mkBrush(colour), "pen": pg.mkPen("#1A1A1A", width=1)}
+            spots.append({**look, "data": (p.date.isoformat(), p.verdict, p.entry_id)})
         scatter = pg.ScatterPlotItem(spots=spots, hoverable=True, tip=self._tip(series))
         scatter.sigClicked.connect(self._point_clicked)
         plot.addItem(scatter)
         self.scatter[series.quantity] = scatter
-        plot.setYRange(-span, span, padding=0.02)
+        self._y_ticks(series.quantity, span)
+        plot.setYRange(bottom, span, padding=0.02)
         plot.setXRange(x0, x1, padding=0.01)
+
+    @staticmethod
+    def _rect(plot: pg.PlotItem, x: float, y: float, w: float, h: float, colour: QColor, z: float) -> None:
+        rect = QGraphicsRectItem(x, y, w, h)
+        rect.setPen(QPen(Qt.PenStyle.NoPen))
+        rect.setBrush(QBrush(colour))
+        rect.setZValue(z)
+        plot.addItem(rect)
+
+    def _draw_trends(self, plot: pg.PlotItem, series: ChartSeries, data: ChartData, span: float, x0: float,
+                     x1: float) -> float:
+        """Trend-rule bars in a lane under the plot, one row per rule; return the lane's foot (OD axis)."""
+        mine = [f for f in data.findings if f.quantity == series.quantity]
+        rules = [rule for rule in ("run", "drift", "two_warnings") if any(f.rule == rule for f in mine)]
+        if not rules:
+            return -span
+        # Below -span, apart from the points; each rule has a row, so no label lies over another row's bar.
+        row_h = _LANE_ROW * span
+        plot.addItem(pg.InfiniteLine(-span, angle=0, movable=False, pen=pg.mkPen("#BBBBBB", width=1)))
+        self._rect(plot, x0, -span - row_h * len(rules), x1 - x0, row_h * len(rules), QColor("white"), -8)
+        for finding in mine:
+            days = [self._x(d) for d in finding.dates if data.first <= d <= data.last]
+            if not days:
+                continue
+            y = -span - row_h * (rules.index(finding.rule) + 0.5)
+            plot.addItem(pg.PlotDataItem([days[0] - 0.2, days[-1] + 0.2], [y, y], pen=pg.mkPen(TREND_COLOUR, width=5)))
+            label = pg.TextItem(describe_rule(finding), color=TREND_COLOUR, anchor=(0, 0.5))
+            label.setPos(days[-1] + 0.35, y)
+            plot.addItem(label)
+        return -span - row_h * len(rules)
+
+    def _y_ticks(self, quantity: str, span: float) -> None:
+        """Deviation ticks within ±span only: the lane of trend bars under it is not a deviation."""
+        step = next(g for g in (0.01, 0.02, 0.05, 0.1, 0.2, 0.5) if span / g <= 3.01)
+        count = int(span / step + 1e-9)
+        ticks = [(k * step, f"{k * step:+.2f}" if k else "0") for k in range(-count, count + 1)]
+        self.plots[quantity].getAxis("left").setTicks([ticks, []])
 
     def _set_aside_spot(self, p: ChartPoint, span: float) -> dict[str, Any]:
         """A spot left of its day: a hollow mark of its tier for a repeated strip, a grey cross for a corrected one."""
@@ -542,8 +639,9 @@ class QcPanel(QWidget):
             words = "corrected, not used" if aside == "corrected" else VERDICT_WORDS.get(verdict, "baseline").lower()
             if aside == "repeated":
                 words += "; repeated the same day, not used"
-            # A corrected value is drawn at the plot's edge: its height is not its deviation.
-            dev = "" if aside == "corrected" else f" ({y:+.3f})"
+            # A corrected value is drawn at the plot's edge, a day still in its baseline on the level's line:
+            # neither height is a deviation.
+            dev = "" if aside == "corrected" or verdict is None else f" ({y:+.3f})"
             return f"{day}, entry {entry_id}: {series.label} {values[(day, entry_id)]:.3f} OD{dev}, {words}"
 
         return tip

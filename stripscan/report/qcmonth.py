@@ -20,22 +20,25 @@ repeated the same day (a hollow mark; the latest repeat is the day's value)
 and a value corrected afterwards (a grey cross; the correction counts),
 each with its entry number and what replaced it.
 
-Point marks follow the program's QC chart (:data:`stripscan.qc_chart.MARKS`):
+Marks, lines, shading and their legend are the program's QC chart's
+(:data:`stripscan.qc_chart.LEGEND`, :func:`stripscan.qc_chart.legend_entries`):
 a circle within limits, a triangle past the warning tier, a larger diamond
-past the control limit.
+past the control limit, hollow for a repeated strip, grey columns for the
+days that set the levels, bars for trend rules that fired.
 """
 
 from __future__ import annotations
 
 import calendar
 import datetime as dt
+import math
 import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Sequence
 
 from .canvas import Canvas, Column, draw_frame, write_pdf
-from .plot import COLOURS, HBand, Line, Note, Plot, Points, RefLine
+from .plot import COLOURS, Band, HBand, Line, Note, Plot, Points, RefLine
 from .provenance import calibration_brief
 from .qtsetup import ReportError
 
@@ -48,7 +51,6 @@ __all__ = ["QCMonth", "qc_month", "qc_month_plots", "qc_month_report_pdf", "CHAR
 
 #: Chart names (as the export command takes them) and the quantity each shows.
 CHARTS = {"base-fog": "base_fog", "mid-density": "mid_density", "density-difference": "density_difference"}
-_ZONES = {"warning": "#F3C969", "action": "#E8906C"}
 
 
 @dataclass(frozen=True)
@@ -166,6 +168,8 @@ def qc_month(archive: "Archive", processor: str, month: str, *, site: str = "") 
 
 def _limits_items(series: "ChartSeries") -> tuple[list[Any], float]:
     """Shaded zones and lines of a series' limits, and the largest limit (for the axis)."""
+    from ..qc_chart import BANDS, LIMIT_LINE, WARNING_LINE
+
     items: list[Any] = []
     reach = 0.0
     far = 10.0  # beyond any axis: the zone runs off the plot, where it is clipped
@@ -177,58 +181,121 @@ def _limits_items(series: "ChartSeries") -> tuple[list[Any], float]:
         action = abs(action)
         reach = max(reach, action)
         lo, hi = sorted((sign * action, sign * far))
-        items.append(HBand(lo, hi, colour=_ZONES["action"], opacity=0.28))
-        items.append(RefLine(sign * action, colour=COLOURS["red"], dash="dash", width_pt=0.9,
-                             label="control limit" if sign == 1 else ""))
+        items.append(HBand(lo, hi, colour=BANDS["action"], opacity=1.0))
+        items.append(RefLine(sign * action, colour=LIMIT_LINE, dash="dash", width_pt=0.9))
         if warning is not None:
             warning = abs(warning)
             lo, hi = sorted((sign * warning, sign * action))
-            items.append(HBand(lo, hi, colour=_ZONES["warning"], opacity=0.28))
-            items.append(RefLine(sign * warning, colour="#8a5a00", dash="dot", width_pt=0.8,
-                                 label="warning tier" if sign == 1 else ""))
+            items.append(HBand(lo, hi, colour=BANDS["warning"], opacity=1.0))
+            items.append(RefLine(sign * warning, colour=WARNING_LINE, dash="dot", width_pt=0.8))
     return items, reach
+
+
+def _runs(days: Sequence[int]) -> list[tuple[int, int]]:
+    """(first, last) of each stretch of consecutive days."""
+    runs: list[tuple[int, int]] = []
+    for day in sorted(days):
+        if runs and day == runs[-1][1] + 1:
+            runs[-1] = (runs[-1][0], day)
+        else:
+            runs.append((day, day))
+    return runs
+
+
+def _nan_joined(pieces: Sequence[tuple[float, ...]]) -> tuple[float, ...]:
+    """Pieces of one polyline or band, NaN between them (NaN breaks a Line or Band)."""
+    out: list[float] = []
+    for piece in pieces:
+        out += [*([math.nan] if out else []), *piece]
+    return tuple(out)
+
+
+def _legend_items(data: "ChartData") -> list[Any]:
+    """Label-only items (no data) that draw the shared legend (:func:`stripscan.qc_chart.legend_entries`)."""
+    from ..qc_chart import BASELINE_OPACITY, MARKS, legend_entries
+
+    items: list[Any] = []
+    for entry in legend_entries(data):
+        if entry.look in ("mark", "hollow"):
+            items.append(Points((), (), label=entry.words, colour=entry.colour, marker=entry.shape,
+                                filled=entry.look == "mark", size_pt=MARKS[entry.key if entry.look == "mark"
+                                                                             else "ok"][2] * 0.75))
+        elif entry.look in ("cross", "plus"):
+            items.append(Points((), (), label=entry.words, colour=entry.colour, marker=entry.look, size_pt=4))
+        elif entry.look == "shade":
+            # The swatch is drawn at twice a band's opacity: halve it to show the plots' own grey.
+            items.append(Band((), (), (), label=entry.words, colour=entry.colour, opacity=BASELINE_OPACITY / 2))
+        else:
+            items.append(Line((), (), label=entry.words, colour=entry.colour, dash=entry.dash,
+                              width_pt=3.0 if entry.look == "bar" else 0.9))
+    return items
 
 
 def _series_plot(data: "ChartData", series: "ChartSeries", first: dt.date, last: dt.date, *,
                  legend: bool) -> Plot:
-    from ..qc_chart import MARKS
+    from ..qc_chart import (
+        BASELINE_COLOUR,
+        BASELINE_OPACITY,
+        EVENT_COLOUR,
+        LEVEL_LINE,
+        MARKS,
+        TREND_COLOUR,
+        WAITING_COLOUR,
+        describe_rule,
+    )
 
     items, reach = _limits_items(series)
-    items.insert(0, RefLine(0.0, colour=COLOURS["ink"], dash="solid", width_pt=0.7, label="operating level"))
-    events = [(day, label) for day, label in data.events if first <= day <= last]
-    for number, (day, label) in enumerate(events):
-        legend_text = (f"event: {label}" if len(events) == 1 else "processor events") if number == 0 else ""
-        items.append(RefLine(float(day.day), vertical=True, colour=COLOURS["purple"], dash="dashdot",
-                             width_pt=1.0, label=legend_text))
+    items.insert(0, RefLine(0.0, colour=LEVEL_LINE, dash="solid", width_pt=0.7))
+    for day, _ in data.events:
+        if first <= day <= last:
+            # The baseline restarts from that day's strip on: the line sits at the day's left edge.
+            items.append(RefLine(day.day - 0.5, vertical=True, colour=EVENT_COLOUR, dash="dashdot", width_pt=1.0))
     judged = [p for p in series.points if p.deviation is not None]
     x = [float(p.date.day) for p in judged]
     y = [float(p.deviation) for p in judged]
+    repeated = [p for p in series.set_aside if p.set_aside == "repeated" and p.deviation is not None]
+    span = max([reach * 1.35, 0.05, *(abs(v) * 1.15 for v in (*y, *(p.deviation for p in repeated)))])
+    baseline = [d.day for p in data.periods for d in p.baseline_dates if first <= d <= last]
+    if baseline:
+        runs = _runs(baseline)
+        items.append(Band(_nan_joined([(a - 0.5, b + 0.5) for a, b in runs]),
+                          _nan_joined([(-span, -span)] * len(runs)), _nan_joined([(span, span)] * len(runs)),
+                          colour=BASELINE_COLOUR, opacity=BASELINE_OPACITY))
     items.append(Line(tuple(x), tuple(y), colour=COLOURS["grey"], width_pt=0.6))
     for verdict in ("ok", "warning", "action"):
-        chosen = [p for p in judged if p.verdict == verdict and not p.baseline]
-        colour, shape, size_px, words = MARKS[verdict]
+        chosen = [p for p in judged if p.verdict == verdict]
+        colour, shape, size_px, _ = MARKS[verdict]
         if chosen:
             items.append(Points(tuple(float(p.date.day) for p in chosen), tuple(p.deviation for p in chosen),
-                                label=words, colour=colour, marker=shape, size_pt=size_px * 0.75))
+                                colour=colour, marker=shape, size_pt=size_px * 0.75))
         if verdict == "action":
             items += [Note(float(p.date.day), p.deviation, f"{p.deviation:+.3f}", colour=COLOURS["red"],
                            side="above" if p.deviation > 0 else "below") for p in chosen]
-    baseline = [p for p in judged if p.baseline]
-    if baseline:
-        items.append(Points(tuple(float(p.date.day) for p in baseline), tuple(p.deviation for p in baseline),
-                            label="baseline day (sets the level)", colour=COLOURS["blue"], filled=False, size_pt=4))
     waiting = [p for p in series.points if p.deviation is None]
     if waiting:
         items.append(Points(tuple(float(p.date.day) for p in waiting), (0.0,) * len(waiting),
-                            label="baseline in progress (not judged)", colour=COLOURS["grey"], marker="plus",
-                            size_pt=4))
-    repeated = [p for p in series.set_aside if p.set_aside == "repeated" and p.deviation is not None]
-    span = max([reach * 1.35, 0.05, *(abs(v) * 1.15 for v in (*y, *(p.deviation for p in repeated)))])
+                            colour=WAITING_COLOUR, marker="plus", size_pt=4))
     items += _set_aside_items(series.set_aside, span)
+    # Trend findings on this quantity: bars under the days they cover, one row per rule, below every point
+    # (the axis is stretched down for them), so no bar or label hides a mark.
+    mine = [f for f in data.findings if f.quantity == series.quantity and any(first <= d <= last for d in f.dates)]
+    rules = [rule for rule in ("run", "drift", "two_warnings") if any(f.rule == rule for f in mine)]
+    foot = -span
+    if rules:
+        row_h = 0.14 * span
+        lowest = min([0.0, *y, *(p.deviation for p in repeated)])
+        foot = min(-span, lowest - 0.5 * row_h) - row_h * len(rules)
+        for finding in mine:
+            days = [d.day for d in finding.dates if first <= d <= last]
+            at = foot + row_h * (len(rules) - rules.index(finding.rule) - 0.5)
+            items.append(Line((days[0] - 0.2, days[-1] + 0.2), (at, at), colour=TREND_COLOUR, width_pt=2.5))
+            items.append(Note(days[-1] + 0.2, at, describe_rule(finding), colour=TREND_COLOUR, side="right"))
+    if legend:
+        items += _legend_items(data)
     ticks = [(float(d), str(d) if d == 1 or d % 5 == 0 or d == last.day else "") for d in range(1, last.day + 1)]
     return Plot(items=tuple(items), title=f"{series.label}: deviation from operating level",
                 x_label="day of the month" if legend else "", y_label="OD", x_range=(0.5, last.day + 0.5),
-                y_range=(-span, span), x_ticks=ticks, y_signed=True, y_decimals=2, legend=legend, font_pt=6.5,
+                y_range=(foot, span), x_ticks=ticks, y_signed=True, y_decimals=2, legend=legend, font_pt=6.5,
                 empty_text="no strip this month")
 
 
@@ -236,32 +303,28 @@ def _set_aside_items(points: Sequence["ChartPoint"], span: float) -> list[Any]:
     """Marks for entries kept but not used, a little left of their day.
 
     A repeated strip keeps the shape and colour of its own tier, hollow,
-    with the word "repeated" beside it (a hollow circle alone would read as
-    a baseline day); a corrected value is a grey cross, held inside the
-    plot: it was a slip, perhaps far off.
+    with the word "repeated" beside it; a corrected value is a grey cross,
+    held inside the plot: it was a slip, perhaps far off.
     """
-    from ..qc_chart import CORRECTED_COLOUR, MARKS, SET_ASIDE, SET_ASIDE_SHIFT
+    from ..qc_chart import CORRECTED_COLOUR, MARKS, SET_ASIDE_SHIFT
 
     items: list[Any] = []
     judged = [p for p in points if p.deviation is not None]
-    labelled = False
     for verdict in ("ok", "warning", "action"):
         chosen = [p for p in judged if p.set_aside == "repeated" and (p.verdict or "ok") == verdict]
         if not chosen:
             continue
         colour, shape, size_px, _ = MARKS[verdict]
         items.append(Points(tuple(p.date.day - SET_ASIDE_SHIFT for p in chosen), tuple(p.deviation for p in chosen),
-                            label="" if labelled else SET_ASIDE["repeated"], colour=colour, marker=shape,
-                            filled=False, size_pt=size_px * 0.75))
+                            colour=colour, marker=shape, filled=False, size_pt=size_px * 0.75))
         items += [Note(p.date.day - SET_ASIDE_SHIFT, p.deviation, "repeated", colour=COLOURS["grey"], side="left")
                   for p in chosen]
-        labelled = True
     corrected = [p for p in judged if p.set_aside == "corrected"]
     if corrected:
         edge = 0.97 * span
         items.append(Points(tuple(p.date.day - SET_ASIDE_SHIFT for p in corrected),
                             tuple(min(max(p.deviation, -edge), edge) for p in corrected),
-                            label=SET_ASIDE["corrected"], colour=CORRECTED_COLOUR, marker="cross", size_pt=4))
+                            colour=CORRECTED_COLOUR, marker="cross", size_pt=4))
     return items
 
 

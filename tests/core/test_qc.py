@@ -16,6 +16,7 @@ from hypothesis import strategies as st
 from stripscan import CAUTION
 from stripscan.core.qc import (
     ADVICE,
+    TREND_DEAD_BAND,
     CrossoverResult,
     OperatingLevels,
     ProcessorStatus,
@@ -294,6 +295,34 @@ def test_drift_of_four_or_with_a_pause_is_silent():
     assert findings_of([1.16, 1.18, 1.20, 1.20, 1.22]) == ()
 
 
+def test_a_deviation_smaller_than_half_a_densitometer_reading_is_on_the_level():
+    # Densitometers read to 0.01 OD (common practice): a deviation under half a reading, 0.005,
+    # is no side of the level, so it breaks a run; 0.005 itself is a reading away and counts.
+    assert TREND_DEAD_BAND == 0.005
+    assert findings_of([1.19] * 3 + [1.199] + [1.19] * 3) == ()
+    assert findings_of([1.19] * 3 + [1.2049] + [1.19] * 3) == ()
+    (run,) = findings_of([1.19] * 3 + [1.195] + [1.19] * 3)
+    assert run.rule == "run" and len(run.dates) == 7
+    # Seven strips a hair below their level are on it: no run, no warning after a repair.
+    assert findings_of([1.199] * 7) == ()
+
+
+def test_a_change_smaller_than_half_a_densitometer_reading_breaks_a_drift():
+    # A step of 0.004 OD reads as no change on a densitometer reading to 0.01 OD (common practice).
+    assert findings_of([1.16, 1.18, 1.184, 1.20, 1.22]) == ()
+    (drift,) = findings_of([1.16, 1.18, 1.185, 1.20, 1.22])
+    assert drift.rule == "drift" and len(drift.dates) == 5
+
+
+def test_a_strip_on_its_level_after_a_repair_clears_the_run_warning():
+    # Levels MD 1.21 (hand mean); seven strips 0.03 low fire the run of 7 (common practice, from memory);
+    # after the repair the strip reads 1.209, on its level within half a 0.01 OD reading.
+    low = series([1.18] * 7, start=5, dd=1.81)
+    assert QCLog([*BASELINE, *low]).status().rules_fired == ("run:mid_density",)
+    status = QCLog([*BASELINE, *low, entry(12, md=1.209, dd=1.81)]).status()
+    assert status.verdict == "ok" and status.rules_fired == ()
+
+
 def test_two_of_three_beyond_the_warning_tier_fires():
     # 2 of 3 past the ±0.10 tier on one side: common practice (control
     # charting zone rules), from memory. Days 1 and 3 are +0.11 and +0.12.
@@ -359,6 +388,40 @@ def test_a_trend_on_the_latest_strip_makes_it_a_warning():
     assert status.rules_fired == ("run:mid_density",)
     assert "above its operating level on 9 strips in a row (2025-03-06 to 2025-03-14)" in status.advice
     assert status.advice.endswith(CAUTION)
+
+
+def warning_headline(log: QCLog) -> str:
+    status = log.status()
+    assert status.verdict == "warning" and status.advice.endswith(CAUTION)
+    return status.advice.split(". ")[0]
+
+
+def test_a_warning_says_which_rule_raised_it():
+    # Levels MD 1.21, DD 1.81 (hand means above). The ±0.10 warning tier and the trend rules (run of 7,
+    # drift of 5, 2 of 3 past the tier) are common practice in control charting, from memory.
+    tier = warning_headline(QCLog([*BASELINE, entry(5, md=1.32, dd=1.81)]))
+    assert tier == "Warning, within the control limits, raised by the warning tier (this strip is past it)"
+    run = warning_headline(QCLog([*BASELINE, *series([1.17] * 7, start=5, dd=1.81)]))
+    assert run.endswith("raised by the run rule (7 or more strips in a row on one side of the operating level)")
+    drift = QCLog([*BASELINE, *series([1.22, 1.18, 1.16, 1.14, 1.12], start=5, dd=1.81)])
+    assert warning_headline(drift).endswith("raised by the drift rule (5 or more strips in a row, each moving the "
+                                            "same way)")
+    twice = QCLog([*BASELINE, *series([1.32, 1.25, 1.33], start=5, dd=1.81)])
+    assert warning_headline(twice).endswith("raised by the warning tier (this strip is past it) and the "
+                                            "repeated-warnings rule (2 of 3 consecutive strips past the warning tier)")
+    # Only a trend says the processor may be shifting; the tier alone asks for a watch and a repeat if in doubt.
+    assert ADVICE["trend"] in drift.status().advice and ADVICE["trend"] not in QCLog(
+        [*BASELINE, entry(5, md=1.32, dd=1.81)]).status().advice
+    resized = QCLog([*BASELINE, *series([1.17] * 4, start=5, dd=1.81)], rules=TrendRules(run_length=4))
+    assert "the run rule (4 or more strips in a row" in warning_headline(resized)
+
+
+def test_action_advice_stands_when_a_trend_fires_too():
+    # 21 CFR 900.12(e)(1): 0.16 off is past ±0.15; the run of 7 below fires on the same strip.
+    status = QCLog([*BASELINE, *series([1.17] * 6 + [1.05], start=5, dd=1.81)]).status()
+    assert status.verdict == "action" and "run:mid_density" in status.rules_fired
+    assert status.advice.startswith(ADVICE["action"]) and "stop clinical processing" in status.advice
+    assert "below its operating level on 7 strips in a row" in status.advice and status.advice.endswith(CAUTION)
 
 
 def test_baseline_in_progress_cannot_be_ok():

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime
+import html
 from pathlib import Path
 
 import pytest
@@ -12,7 +13,10 @@ from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.demo_data import demo_files
 from stripscan.gui.qc_panel import QcPanel
+from stripscan.qc_chart import SET_ASIDE, legend_entries
 from stripscan.qc_demo import build_demo_qc
+from stripscan.report.plot import Band, Line, Points
+from stripscan.report.qcmonth import qc_month, qc_month_plots
 
 
 @pytest.fixture(scope="module")
@@ -40,6 +44,11 @@ def panel(qtbot, archive_copy) -> QcPanel:
     return widget
 
 
+def type_day(panel: QcPanel, bf: float, md: float, dd: float) -> None:
+    for q, value in zip(("base_fog", "mid_density", "density_difference"), (bf, md, dd)):
+        panel.value_edits[q].setValue(value)
+
+
 def test_the_panel_shows_the_demo_processor_status(panel):
     assert panel.processor_box.currentText() == "Processor 1"
     text = panel.status_label.text()
@@ -63,7 +72,28 @@ def test_the_panel_shows_the_demo_processor_status(panel):
     assert len(tenth) == 1 and tenth[0].data()[1] == "ok"
     ordinary = [s for s in spots["density_difference"] if s.data()[1] == "ok"][0]
     assert ordinary.symbol() == "o" and ordinary.brush().color().name().upper() == "#0072B2"
-    assert "Strip repeated the same day: kept, not used" in panel.key_label.text()
+    assert html.escape(SET_ASIDE["repeated"]) in panel.key_label.text()
+
+
+def test_the_window_and_the_monthly_report_explain_the_same_marks_in_the_same_words(panel, archive_copy):
+    # One legend for the PNG chart, the PDF report and the window (a user review found three). The demo
+    # month has a point past each tier (21 CFR 900.12(e)(1) limits, ±0.10 warning tier: common practice),
+    # a repeated strip, an event, two baselines and trend findings: every entry of the legend but two.
+    entries = legend_entries(panel.data)
+    assert {e.key for e in entries} == {"ok", "warning", "action", "repeated", "level", "control_limit",
+                                        "warning_tier", "event", "baseline_days", "trend"}
+    key = panel.key_label.text()
+    assert all(f"{html.escape(e.glyph)}</b>&nbsp;{html.escape(e.words)}" in key for e in entries)
+    with Archive.open(archive_copy, read_only=True) as archive:
+        plots = qc_month_plots(qc_month(archive, "Processor 1", "2026-11"))
+    legend = [item for item in plots["density-difference"].items
+              if isinstance(item, (Points, Line, Band)) and item.label]
+    assert [item.label for item in legend] == [e.words for e in entries]
+    # The report draws no mark of its own beside them: the hollow circle means a repeated strip only.
+    marks = {(item.marker, item.filled, item.colour) for item in legend if isinstance(item, Points)}
+    assert ("circle", False, "#0072B2") in marks and len(marks) == 4
+    assert all(not item.label for plot in plots.values() for item in plot.items
+               if isinstance(item, Points) and item.x)
 
 
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
@@ -100,6 +130,7 @@ def test_the_form_adds_a_typed_day_and_refuses_a_duplicate(panel, qtbot, archive
                                                                        "typed from the panel")
     assert "latest strip 2026-12-01" in panel.status_label.text()
     assert len(panel.scatter["mid_density"].points()) == 30
+    type_day(panel, 0.19, 1.19, 1.89)
     panel.date_edit.setDate(QDate(2026, 12, 1))
     assert not panel.add_typed_day()
     message = panel.form_message.text()
@@ -109,6 +140,44 @@ def test_the_form_adds_a_typed_day_and_refuses_a_duplicate(panel, qtbot, archive
     assert "dates out of order" in panel.form_message.text()
     with Archive.open(archive_copy, read_only=True) as archive:
         assert len(archive.list_qc_entries("Processor 1")) == 31  # 29 days' strips, the demo's repeat, this one
+
+
+def test_the_day_form_starts_empty_and_refuses_missing_values(panel, qtbot, archive_copy):
+    # The QC log is never changed (21 CFR 900.12(e)(1) records are kept as measured): no number is invented.
+    assert [panel.value_edits[q].text() for q in panel.value_edits] == ["", "", ""]
+    assert all(edit.placeholderText() == "required" and edit.value() is None for edit in panel.value_edits.values())
+    qtbot.keyClicks(panel.value_edits["mid_density"], "1.19")
+    assert panel.value_edits["mid_density"].value() == pytest.approx(1.19)
+    assert not panel.add_typed_day()
+    message = panel.form_message.text()
+    assert message.startswith("Not stored: base+fog and density difference are missing")
+    qtbot.keyClicks(panel.value_edits["base_fog"], "0.19")
+    assert not panel.add_typed_day() and "density difference is missing" in panel.form_message.text()
+    qtbot.keyClicks(panel.value_edits["density_difference"], "7.5")
+    assert not panel.add_typed_day() and "density difference '7.5' is not a density from 0 to 5 OD" in \
+        panel.form_message.text()
+    with Archive.open(archive_copy, read_only=True) as archive:
+        assert len(archive.list_qc_entries("Processor 1")) == 30
+    panel.value_edits["density_difference"].setValue(1.89)
+    assert panel.add_typed_day()
+    with Archive.open(archive_copy, read_only=True) as archive:
+        last = archive.list_qc_entries("Processor 1")[-1]
+    assert (last.base_fog, last.mid_density, last.density_difference) == (0.19, 1.19, 1.89)
+    # Stored: the fields are emptied, so the next day cannot inherit these numbers.
+    assert [panel.value_edits[q].text() for q in panel.value_edits] == ["", "", ""]
+
+
+def test_the_correction_form_holds_only_the_chosen_entry_s_own_values(panel):
+    entry = panel.plog.entries[-1]
+    assert panel.entry_spin.value() == entry.id  # the latest entry, the one most often mistyped
+    assert [panel.fix_edits[q].value() for q in ("base_fog", "mid_density", "density_difference")] == \
+        pytest.approx([entry.base_fog, entry.mid_density, entry.density_difference], abs=5e-4)
+    panel.entry_spin.setValue(999)
+    assert all(edit.value() is None for edit in panel.fix_edits.values())
+    assert panel.reason_edit.placeholderText() == "why it was wrong (needed)"
+    # The placeholder fits its box, so nobody reads half an instruction.
+    metrics = panel.reason_edit.fontMetrics()
+    assert metrics.horizontalAdvance(panel.reason_edit.placeholderText()) < panel.reason_edit.width() - 8
 
 
 def test_the_form_stores_a_repeat_strip_that_counts_for_the_day(panel, qtbot, archive_copy):
@@ -129,6 +198,7 @@ def test_the_form_stores_a_repeat_strip_that_counts_for_the_day(panel, qtbot, ar
     assert "entry 30 (WITHIN LIMITS): repeated by entry 31, not used" in panel.status_label.text()
     assert len(panel.scatter["mid_density"].points()) == 29 and len(panel.set_aside["mid_density"].points()) == 2
     panel.repeat_check.setChecked(True)
+    type_day(panel, 0.19, 1.22, 1.90)
     panel.date_edit.setDate(QDate(2026, 11, 20))
     assert not panel.add_typed_day() and "a repeat strip of 2026-11-20 would re-judge" in panel.form_message.text()
 
@@ -152,7 +222,7 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
     assert fixed.mid_density == pytest.approx(wrong + 0.05) and kept.mid_density == pytest.approx(wrong)
     crosses = panel.set_aside["mid_density"].points()
     assert [s.data()[2:] for s in crosses if s.data()[3] == "corrected"] == [(12, "corrected")]
-    assert "Value corrected afterwards" in panel.key_label.text()
+    assert html.escape(SET_ASIDE["corrected"]) in panel.key_label.text()
     # Correcting it again, or nothing changed, or an entry that is not there: refused, never a crash.
     panel.entry_spin.setValue(12)
     panel.reason_edit.setText("again")

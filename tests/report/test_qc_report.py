@@ -90,7 +90,8 @@ def test_points_past_a_limit_are_marked_on_the_charts(qc_archive):
     baseline = np.mean([QC_DAYS[d][:3] for d in sorted(QC_DAYS)[:5]], axis=0)  # the five October strips
     worst = np.asarray(QC_DAYS["2026-11-12"][:3]) - baseline
     for name, deviation in zip(plots, worst):
-        marked = [item for item in plots[name].items if isinstance(item, Points) and item.label == "past the control limit"]
+        marked = [item for item in plots[name].items if isinstance(item, Points) and item.x
+                  and item.marker == "diamond" and item.filled]
         assert len(marked) == 1 and 12.0 in marked[0].x, name
         k = list(marked[0].x).index(12.0)
         assert marked[0].y[k] == pytest.approx(deviation, abs=1e-6)
@@ -156,8 +157,12 @@ def test_repeated_and_corrected_entries_are_shown_apart_and_not_used(qc_archive,
     assert row(repeat, "WITHIN LIMITS") in flat and squash(f"repeat of entry {first.id}") in flat
     assert "Typed in, 20 days" in table and "30 repeat" in table and "24 correction" in table
     plots = qc_month_plots(qc_month(qc_archive, PROCESSOR, "2026-11"))
-    marks = {item.label: item for item in plots["mid-density"].items if isinstance(item, Points) and item.label}
+    drawn = [item for item in plots["mid-density"].items if isinstance(item, Points) and item.x]
+    hollow = [item for item in drawn if not item.filled and item.marker != "cross"]
+    crosses = [item for item in drawn if item.marker == "cross"]
     # Each set-aside entry sits a quarter day left of its day, apart from the day's point in use.
-    assert marks[SET_ASIDE["repeated"]].x == (29.75,) and not marks[SET_ASIDE["repeated"]].filled
-    assert marks[SET_ASIDE["corrected"]].x == (23.75,) and marks[SET_ASIDE["corrected"]].marker == "cross"
-    assert marks[SET_ASIDE["corrected"]].y[0] == pytest.approx(1.00 - level[1], abs=1e-6)
+    assert [item.x for item in hollow] == [(29.75,)] and [item.x for item in crosses] == [(23.75,)]
+    assert crosses[0].y[0] == pytest.approx(1.00 - level[1], abs=1e-6)
+    # The legend (on the last chart) explains both, in the words of the program's QC chart.
+    legend = {item.label for item in plots["density-difference"].items if getattr(item, "label", "")}
+    assert {SET_ASIDE["repeated"], SET_ASIDE["corrected"]} <= legend
