@@ -11,8 +11,10 @@ from __future__ import annotations
 
 import datetime as dt
 import os
+import sqlite3
 import threading
 from collections.abc import Callable, Sequence
+from contextlib import closing
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -54,6 +56,18 @@ def demo_archive_path(folder: str | os.PathLike[str]) -> Path:
     return Path(folder) / DEMO_ARCHIVE_NAME
 
 
+def _remove_database(path: Path) -> None:
+    for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm"), Path(f"{path}-journal")):
+        leftover.unlink(missing_ok=True)
+
+
+def _copy_database(source: Path, target: Path) -> None:
+    """An SQLite file copied page by page (what its write-ahead log holds included)."""
+    with closing(sqlite3.connect(f"{source.absolute().as_uri()}?mode=ro", uri=True)) as src, \
+            closing(sqlite3.connect(target)) as dst:
+        src.backup(dst)
+
+
 def build_demo_workspace(folder: str | os.PathLike[str], files: Any, *, progress: Progress,
                          cancel: threading.Event | None = None) -> Path:
     """Build the demo lot archive, then the demo QC month into it; return the archive file.
@@ -68,32 +82,55 @@ def build_demo_workspace(folder: str | os.PathLike[str], files: Any, *, progress
         calibration the window uses.
     progress : callable
     cancel : threading.Event, optional
-        Set to stop the lot archive's build between two scans.
+        Set to stop the build (between two scans of the lot archive, before
+        and after the QC month); :class:`Cancelled` is raised then.
 
     Notes
     -----
-    An archive left by an earlier run in the same folder is kept and only
-    completed (the QC month added when missing): a second ``stripscan demo``
-    in a folder opens at once instead of refusing the existing file.
+    Everything is written to a staging file beside the archive, which is
+    renamed to the archive's name only when the lots and the QC month are
+    all in it: the archive file is complete or absent, never half built,
+    whether the work is cancelled, fails or the program is killed.  An
+    archive left by an earlier run in the same folder is kept and only
+    completed (the QC month added to a copy when missing): a second
+    ``stripscan demo`` in a folder opens at once instead of refusing the
+    existing file.
     """
     from ..archive.demo import build_demo_archive
     from ..qc_demo import DEMO_PROCESSOR, build_demo_qc
 
     target = demo_archive_path(folder)
 
-    def archive_progress(fraction: float, text: str) -> None:
+    def stop_if_cancelled(what: str) -> None:
         if cancel is not None and cancel.is_set():
-            raise Cancelled("the demo archive was not built: the window was closed")
+            raise Cancelled(f"{what}: the window was closed")
+
+    def archive_progress(fraction: float, text: str) -> None:
+        stop_if_cancelled("the demo archive was not built")
         progress(_ARCHIVE_SHARE * fraction, text)
 
-    if not target.is_file():
-        build_demo_archive(target, files, progress=archive_progress)
-    if cancel is not None and cancel.is_set():
-        raise Cancelled("the demo QC month was not added: the window was closed")
-    progress(_ARCHIVE_SHARE, "Adding a month of processor QC")
-    with Archive.open(target, create=False) as archive:
-        if not archive.list_qc_entries(DEMO_PROCESSOR):
-            build_demo_qc(archive, files)
+    if target.is_file():
+        with Archive.open(target, read_only=True) as archive:
+            if archive.list_qc_entries(DEMO_PROCESSOR):
+                progress(1.0, "Demo archive ready")
+                return target
+    staging = target.with_name(f".{target.name}.building")
+    _remove_database(staging)  # an earlier run's, interrupted
+    try:
+        if target.is_file():
+            _copy_database(target, staging)
+        else:
+            build_demo_archive(staging, files, progress=archive_progress)
+        stop_if_cancelled("the demo QC month was not added")
+        progress(_ARCHIVE_SHARE, "Adding a month of processor QC")
+        with Archive.open(staging, create=False) as archive:
+            if not archive.list_qc_entries(DEMO_PROCESSOR):
+                build_demo_qc(archive, files)
+        stop_if_cancelled("the demo archive was not kept")
+        os.replace(staging, target)
+    except BaseException:
+        _remove_database(staging)
+        raise
     progress(1.0, "Demo archive ready")
     return target
 

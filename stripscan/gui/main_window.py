@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (
 
 from .. import CAUTION, __version__
 from ..core.calibration import load_calibration
+from . import qtguard
 from .calibration_dialog import CalibrationDialog
 from .curve_view import CurveView
 from .errors import log_file, report_error, show_message
@@ -75,6 +76,11 @@ class _Banner(QFrame):
 class MainWindow(QMainWindow):
     """The workbench window.
 
+    Closing it while work is under way (a scan being read, the demo build,
+    a comparison, a file being written) asks that work to stop; the window
+    stays, greyed, and closes itself once the work has stopped, so nothing
+    the work reports to is torn down under it.
+
     Parameters
     ----------
     session : Session, optional
@@ -87,7 +93,10 @@ class MainWindow(QMainWindow):
         super().__init__()
         self.settings = settings or AppSettings()
         self.session = session or Session(max_calibration_age_days=self.settings.max_age_days())
+        # Garbage is freed on this (the GUI) thread only; see qtguard.
+        qtguard.start_gui_collector()
         self.runner = TaskRunner(self)
+        self._closing = False  # a close waits for the work under way (closeEvent)
         self.setWindowTitle("stripscan")
         self.setAcceptDrops(True)
         self.resize(1400, 900)
@@ -134,6 +143,8 @@ class MainWindow(QMainWindow):
         self.strips_dock = dock
         # The strips belong to the scan; the other pages get the whole width.
         self.workspace.pages.currentChanged.connect(lambda _: dock.setVisible(self.workspace.current_page() == "scan"))
+        for runner in (self.runner, self.workspace.runner):
+            runner.busy_changed.connect(self._work_changed)
 
         self.progress = TaskProgress(self.runner, 260)
         caution = QLabel(CAUTION)
@@ -263,12 +274,37 @@ class MainWindow(QMainWindow):
         self.right_splitter.setSizes([int(height * 0.52), height - int(height * 0.52)])
 
     def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
-        self.workspace.shut_down()
-        self.runner.wait(10_000)
+        self.workspace.shut_down()  # the demo build stops at its next step
         self.settings.set_window_state(self.saveGeometry(), self.saveState())
         self.settings.set_levels(*self.session.levels)
         self.settings.sync()
+        if self.work_running:
+            # Work still reports back to this window: the window stays (greyed, the event loop
+            # running) and closes itself once the work has stopped.  Nothing is torn down under a
+            # worker, and the UI thread never blocks waiting for one.
+            self._closing = True
+            self.setEnabled(False)
+            self.statusBar().showMessage("Closing once the work under way has stopped…")
+            event.ignore()
+            return
+        if self._closing:
+            self._closing = False
+            self.setEnabled(True)
         super().closeEvent(event)
+
+    @property
+    def work_running(self) -> bool:
+        """Whether work of this window (a scan being read, the demo build, a comparison, a file) is under way."""
+        return self.runner.busy or self.workspace.busy
+
+    def _work_changed(self, busy: bool) -> None:
+        if self._closing and not busy:
+            # After the finished work's own callback (it runs right after this signal).
+            QTimer.singleShot(0, self, self._close_if_idle)
+
+    def _close_if_idle(self) -> None:
+        if self._closing and not self.work_running:
+            self.close()
 
     # -- opening files ---------------------------------------------------------------------
     def ask_open(self) -> None:

@@ -83,17 +83,31 @@ def settings(tmp_path, monkeypatch):
     return AppSettings(tmp_path / "settings.ini")
 
 
+def close_window(qtbot, win, *, timeout: int = 60_000) -> None:
+    """Close ``win`` as a person would, wait until its work has stopped and it has closed, then delete it.
+
+    The window is deleted only after every worker that reports back to it
+    has finished, never under one; a window that does not close is a
+    failure of the test, not a hang of a later one.
+    """
+    from PySide6.QtCore import QEvent
+    from PySide6.QtWidgets import QApplication
+
+    win.close()
+    qtbot.waitUntil(lambda: not win.isVisible() and not win.work_running, timeout=timeout)
+    win.deleteLater()
+    QApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
+
+
 @pytest.fixture
 def window(qtbot, settings):
     from stripscan.gui.main_window import MainWindow
 
     win = MainWindow(settings=settings)
-    qtbot.addWidget(win)
     win.resize(1300, 850)
     win.show()
     yield win
-    win.runner.wait(10_000)
-    qtbot.wait(1)  # let queued results of finished work drain while the window exists
+    close_window(qtbot, win)
 
 
 @pytest.fixture

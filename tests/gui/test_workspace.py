@@ -8,22 +8,27 @@ archive API, :func:`compare_sets`, the QC log and the report functions.
 from __future__ import annotations
 
 import csv
+import gc
 import math
 import sys
+import threading
 import time
+import weakref
 from pathlib import Path
 from types import SimpleNamespace
 
+import pyqtgraph as pg
 import pytest
-from PySide6.QtCore import QTimer
+from PySide6.QtCore import QEvent, QObject, QThreadPool, QTimer
 from PySide6.QtGui import QImage
-from PySide6.QtWidgets import QApplication, QDialogButtonBox, QLabel, QMessageBox
+from PySide6.QtWidgets import QApplication, QDialogButtonBox, QLabel, QMenu, QMessageBox
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.archive.demo import DEMO_ARCHIVE_NAME
 from stripscan.compare_cli import SetLoader, parse_set
 from stripscan.core.compare import compare_sets
+from stripscan.gui import jobs, qtguard
 from stripscan.gui.app import open_demo, run_demo
 from stripscan.gui.compare_panel import COLUMNS
 from stripscan.gui.errors import setup_logging
@@ -32,6 +37,7 @@ from stripscan.gui.save_snapshot_dialog import SaveSnapshotDialog
 from stripscan.gui.settings import AppSettings
 from stripscan.gui.lot_choice import LotChoiceDialog
 from stripscan.gui.workspace import PAGES, archive_setting
+from stripscan.qc_demo import DEMO_PROCESSOR
 from stripscan.qc_log import VERDICT_WORDS, load_processor_log
 
 LOT_A, LOT_B = "M-2610-A", "M-2702-B"
@@ -54,6 +60,26 @@ def messages(window) -> list[QMessageBox]:
     return [box for box in window.findChildren(QMessageBox) if box.isVisible()]
 
 
+def close_and_delete(window, timeout: float = 120) -> None:
+    """Close ``window``, wait until it has closed itself once its work stopped, then delete it."""
+    window.close()
+    _wait(lambda: not window.isVisible() and not window.work_running, timeout)
+    window.deleteLater()
+    QApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
+
+
+def archive_contents(path: Path) -> tuple:
+    """Lots with their snapshot counts, and the demo processor's QC entries: what a complete demo archive holds."""
+    with Archive.open(path, read_only=True) as archive:
+        lots = tuple((s.lot.lot_id, s.snapshot_count) for s in archive.list_lots())
+        return lots, len(archive.list_qc_entries(DEMO_PROCESSOR))
+
+
+def leftovers(folder: Path) -> list[str]:
+    """Files of a build that did not finish (staging, partial, SQLite side files)."""
+    return sorted(p.name for p in folder.glob(".*") if p.is_file()) if folder.is_dir() else []
+
+
 @pytest.fixture(scope="module")
 def demo(qapp, tmp_path_factory):
     """The window after ``open_demo`` built the demo archive into its own folder (once for the module)."""
@@ -70,10 +96,9 @@ def demo(qapp, tmp_path_factory):
         files = open_demo(window, archive_folder=root / "demo")
         _wait(lambda: bool(ready) and not window.busy and not window.workspace.busy, 150)
         yield SimpleNamespace(window=window, workspace=window.workspace, folder=root / "demo", files=files,
-                              user_archive=user_archive, archive=Path(ready[0]))
-        window.close()
-        window.deleteLater()
-        QApplication.processEvents()
+                              user_archive=user_archive, archive=Path(ready[0]),
+                              contents=archive_contents(Path(ready[0])))
+        close_and_delete(window)
 
 
 def written(qtbot, workspace, start) -> Path:
@@ -267,14 +292,102 @@ def test_a_chosen_archive_is_remembered(qtbot, window, settings, tmp_path):
     assert again.workspace.archive_path == path and again.workspace.archive_panel.archive_path == path
 
 
-def test_closing_during_the_demo_build_stops_it(qtbot, window, tmp_path):
-    open_demo(window, archive_folder=tmp_path / "demo")
+def _reached(window, stage: str) -> bool:
+    ws = window.workspace
+    if stage == "at once":
+        return True
+    if stage == "between scans":
+        return ws.progress.value() > 0
+    if stage == "during the QC month":  # the lots are stored; the month is being added
+        return ws.progress.value() >= round(100 * jobs._ARCHIVE_SHARE)
+    return not ws.building  # "while comparing": built, the two lots' comparison under way
+
+
+@pytest.mark.parametrize("stage", ["at once", "between scans", "during the QC month", "while comparing"])
+def test_closing_during_the_demo_build_stops_it_and_keeps_no_half_archive(qtbot, window, tmp_path, demo,
+                                                                          stage):
+    folder = tmp_path / "demo"
+    open_demo(window, archive_folder=folder)
     assert window.workspace.building and window.workspace.busy
-    qtbot.waitUntil(lambda: window.workspace.progress.value() > 0, timeout=30_000)
+    qtbot.waitUntil(lambda: _reached(window, stage), timeout=120_000)
     window.close()
-    qtbot.waitUntil(lambda: not window.workspace.busy, timeout=30_000)
-    assert not (tmp_path / "demo" / DEMO_ARCHIVE_NAME).exists()
+    # The window stays until its work has stopped, then closes by itself; the UI thread never blocked.
+    qtbot.waitUntil(lambda: not window.isVisible(), timeout=120_000)
+    assert not window.work_running and QThreadPool.globalInstance().waitForDone(30_000)
+    archive = folder / DEMO_ARCHIVE_NAME
+    if stage in ("at once", "between scans"):
+        assert not archive.exists()  # stopped at the next scan
+    elif stage == "during the QC month":
+        # Stopped before it was kept, or (seen too late) kept whole: never lots without their month.
+        assert not archive.exists() or archive_contents(archive) == demo.contents
+    else:
+        assert archive_contents(archive) == demo.contents
+    assert leftovers(folder) == []
     assert not messages(window)
+
+
+def test_a_demo_build_cancelled_after_its_lots_leaves_no_archive(demo, tmp_path):
+    # The lot archive is complete (renamed into place) when the cancel is seen; the QC month is not
+    # in it yet.  Nothing that looks like a demo archive may be left.
+    from stripscan.archive.demo import demo_schedule
+
+    cancel = threading.Event()
+    readings: list[str] = []
+
+    def progress(fraction: float, text: str) -> None:
+        readings.append(text)
+        if sum(t.startswith("Reading ") for t in readings) == len(demo_schedule()):
+            cancel.set()  # at the last scan: seen at the lot archive's own "ready"
+
+    with pytest.raises(jobs.Cancelled):
+        jobs.build_demo_workspace(tmp_path, demo.files, progress=progress, cancel=cancel)
+    assert not (tmp_path / DEMO_ARCHIVE_NAME).exists() and leftovers(tmp_path) == []
+
+
+def _collect(*, progress) -> int:
+    """A garbage collection on a worker thread, as any allocation there may start one."""
+    return gc.collect()
+
+
+def test_a_worker_never_frees_the_windows_qt_objects(qtbot, window):
+    # The hang: a collection on a worker freed Qt objects of the GUI thread (a QObject's destructor
+    # in the worker waiting for Python's lock, a QMenu's on the GUI thread waiting for Qt's).
+    gui = threading.get_ident()
+    freed_on_gui: list[bool] = []
+
+    def note(_ref) -> None:
+        freed_on_gui.append(threading.get_ident() == gui)
+
+    class Outline:
+        """A reference cycle that owns Qt objects, as pyqtgraph's items and a replaced outline do."""
+
+        def __init__(self) -> None:
+            self.me = self
+            self.roi = pg.ROI((0, 0), (10, 10))
+            self.handles = [self.roi.addScaleHandle([1.0, 0.5], [0.0, 0.5]),
+                            self.roi.addRotateHandle([1.0, 1.0], [0.5, 0.5])]
+            self.menu = QMenu("Outline")
+            self.menu.addAction("Poke", self.poke)
+            self.receiver = QObject()
+
+        def poke(self) -> None:
+            """A slot."""
+
+    gc.disable()  # no automatic pass on this thread: the worker's collection meets the cycle first
+    try:
+        outline = Outline()
+        refs = [weakref.ref(o, note) for o in (outline.roi, *outline.handles, outline.menu, outline.receiver)]
+        del outline
+        done: list = []
+        window.workspace.runner.start(_collect, on_done=done.append, on_error=done.append)
+        qtbot.waitUntil(lambda: bool(done), timeout=30_000)
+        assert not isinstance(done[0], BaseException)
+        qtguard.collect_deferred()  # what the window's collector does every few seconds
+    finally:
+        gc.enable()
+    assert all(ref() is None for ref in refs)
+    assert len(freed_on_gui) == len(refs) and all(freed_on_gui)  # every one on the GUI thread
+    assert qtguard.start_gui_collector().isActive()  # the window keeps the GUI thread collecting
 
 
 def test_run_demo_keeps_settings_and_archive_in_its_folder(qapp, settings, tmp_path, monkeypatch):
@@ -282,12 +395,17 @@ def test_run_demo_keeps_settings_and_archive_in_its_folder(qapp, settings, tmp_p
     seen: dict = {}
 
     def check() -> None:
+        closing = seen.get("window")
+        if closing is not None:
+            if not closing.isVisible():  # it closed itself once its build had stopped
+                QApplication.exit(0)  # the module's demo window is still open: exec would wait for it
+            return
         for window in QApplication.topLevelWidgets():
             if isinstance(window, MainWindow) and window.isVisible() and window.workspace.building:
                 seen["archive"] = window.workspace.archive_path
                 seen["settings"] = window.settings.file
+                seen["window"] = window
                 window.close()
-                QApplication.quit()  # the module's demo window is still open: exec would wait for it
 
     timer = QTimer(qapp)
     timer.timeout.connect(check)
@@ -296,4 +414,8 @@ def test_run_demo_keeps_settings_and_archive_in_its_folder(qapp, settings, tmp_p
         assert run_demo(str(tmp_path)) == 0
     finally:
         timer.stop()
+    window = seen.pop("window")
     assert seen == {"archive": tmp_path / DEMO_ARCHIVE_NAME, "settings": tmp_path / "stripscan-demo.ini"}
+    assert not window.work_running  # closed only once its build had stopped: nothing half made is left
+    assert not (tmp_path / DEMO_ARCHIVE_NAME).exists() and leftovers(tmp_path) == []
+    close_and_delete(window)
