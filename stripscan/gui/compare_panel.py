@@ -117,7 +117,8 @@ class ComparePanel(QWidget):
         self.pair_choice = QComboBox()
         self.pair_choice.currentIndexChanged.connect(self._show_table)
         self.curve_plot = _plot("Mean curves, ±1 sd over the strips", "log relative exposure", "optical density")
-        self.delta_density_plot = _plot("Density difference, B − A", "log relative exposure", "ΔD (OD)")
+        # Not called "density difference": that is the QC figure in the table beside it.
+        self.delta_density_plot = _plot("ΔD = D_B − D_A at equal log E", "log relative exposure", "ΔD (OD)")
         self.shift_plot = _plot("Shift along log E, B − A (negative: B faster)", "net density (OD)", "Δlog E")
         self.table = QTableWidget(0, len(COLUMNS))
         self.table.setHorizontalHeaderLabels(list(COLUMNS))
