@@ -37,7 +37,8 @@ from .archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
 from .archive.cli import _fail, _guarded, _open
 from .core.qc import EVENT_KINDS, QUANTITIES, QCValues
-from .qc_log import LABELS, DuplicateDayError, LoggedEntry, parse_day, signed, uncalibrated_refusal
+from .qc_log import (VERDICT_WORDS, LABELS, DuplicateDayError, LoggedEntry, parse_day, signed,
+                     uncalibrated_refusal)
 
 __all__ = ["register"]
 
@@ -155,7 +156,7 @@ def _entry_row(item: LoggedEntry) -> list[str]:
     remark = "; ".join(t for t in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if t)
     values = [f"{getattr(e, q):.3f}" if getattr(e, q) is not None else "-" for q in QUANTITIES]
     devs = [signed(getattr(v.deviations, q)) if v else "-" for q in QUANTITIES]
-    verdict = "-" if item.set_aside == "corrected" else (v.verdict if v else "baseline")
+    verdict = "-" if item.set_aside == "corrected" else (VERDICT_WORDS[v.verdict] if v else "baseline")
     used = "yes" if item.state.in_use else "no"
     return [str(e.id), e.date, e.source, *values, *devs, verdict, used, remark]
 

@@ -166,7 +166,7 @@ def test_a_repeat_strip_is_kept_beside_the_first_and_judged_instead(capsys, base
     out = ok(capsys, "qc", "list", "--archive", baseline, "--processor", P)
     assert "6 day(s), 0 event(s); 7 entries kept, 1 repeat strip(s), 0 correction(s)" in out
     first = next(line for line in out.splitlines() if line.startswith("6 "))
-    assert "+0.160" in first and "action" in first and " no " in first and "repeated by entry 7, not used" in first
+    assert "+0.160" in first and " ACT " in first and " no " in first and "repeated by entry 7, not used" in first
     line = refused(capsys, "qc", "add", "--archive", baseline, "--processor", P, "--date", day(6), "--base-fog",
                    "0.18", "--mid-density", "1.2", "--density-difference", "1.8", "--repeat")
     assert "no QC entry for 2026-10-11 to repeat" in line
