@@ -266,6 +266,9 @@ class ScanView(QWidget):
         if self.roi is not None:
             self._apply_pending()
             self.plot.removeItem(self.roi)
+            # Qt deletes the outline and its handles; left to the garbage collector, several
+            # outlines freed in one pass crash (a handle deletes an object already gone).
+            self.roi.deleteLater()
             self.roi, self._roi_index = None, None
         index = self.session.selected
         if index is None or index >= len(self.session.strips):

@@ -352,3 +352,17 @@ def test_a_strip_drawn_without_base_fog_keeps_its_density_levels(qtbot, open_sca
     assert curve.low_line.value() == pytest.approx(figures.net_reference + 0.25)  # ISO 9236-1 default level
     curve.low_line.setValue(figures.net_reference + 0.50)  # what a drag does to the line
     assert session.levels[0] == pytest.approx(0.50)
+
+
+def test_the_replaced_outline_is_deleted_by_qt_not_left_to_the_collector(qtbot, open_scan, window, files):
+    # Outlines left to Python's collector were freed several at a time and crashed (a handle
+    # deleting an object already gone); Qt must delete the old one when another strip is chosen.
+    import shiboken6
+    from PySide6.QtCore import QCoreApplication, QEvent
+
+    open_scan(window, files.scan)
+    old = window.scan_view.roi
+    assert old is not None
+    window.session.select_next()
+    QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
+    assert window.scan_view.roi is not old and not shiboken6.isValid(old)
