@@ -65,6 +65,18 @@ def _read_exposure_table(path: str) -> tuple[float, ...]:
     return tuple(values)
 
 
+def stray_light_text(calibration) -> str:
+    """One line on the calibration's stray-light model."""
+    model = calibration.stray_light
+    if model is None:
+        return "Stray light: not modelled (no resolution known); strips are read as if in the tablet's surroundings"
+    reach = ", ".join(f"{100 * f:.3f} % over {s:g} mm" for s, f in zip(model.sigmas_mm, model.fractions) if f > 0)
+    lamp = "not measured (no open platen beside the tablet)" if model.lamp_span_mm is None else (
+        f"measured across {model.lamp_span_mm[0]:.0f}-{model.lamp_span_mm[1]:.0f} mm")
+    return (f"Stray light: {100 * model.total:.3f} % of the light spread ({reach or 'none found'}), "
+            f"±{100 * model.relative_sd:.0f} %; lamp {lamp}")
+
+
 def format_analysis(analysis) -> str:
     """Readable tables, one per strip."""
     from .core.calibration import ACCURACY_GOAL
@@ -77,7 +89,8 @@ def format_analysis(analysis) -> str:
     if cal and cal.get("mode") == "tablet":
         out.append(
             f"Calibration {cal['sha256'][:12]}: reads within ±{ACCURACY_GOAL:.2f} OD from "
-            f"{cal['od_min']:.2f} to {cal['od_max']:.2f} OD (made {cal['created'][:10]})"
+            f"{cal['od_min']:.2f} to {cal['od_max']:.2f} OD (made {cal['created'][:10]}"
+            + (", from the tablet on this scan)" if cal.get("tablet_on_scan") else ")")
         )
     else:
         out.append("Calibration: NONE (direct mode, uncalibrated log10(I0/I))")
@@ -85,12 +98,17 @@ def format_analysis(analysis) -> str:
         f = strip.figures
         out.append("")
         out.append(f"Strip {strip.index}: {strip.geometry.n_steps} steps, axis {strip.geometry.angle_deg:.1f}°")
-        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}  note")
+        stray = any(s.stray_light_share is not None for s in strip.steps)
+        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}"
+                   + (f" {'stray':>6}" if stray else "") + "  note")
         for s in strip.steps:
             note = step_flag(s, f)  # the window's and the reports' wording; the warnings below say why
             od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"
             sd = f"{s.od_sd:6.3f}" if math.isfinite(s.od_sd) else "     -"
-            out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}  {note}")
+            share = ""
+            if stray:
+                share = f" {100 * s.stray_light_share:5.1f}%" if s.stray_light_share is not None else "      -"
+            out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}{share}  {note}")
         out.append(f"  base+fog              {_fmt(f.base_fog, 3) if f.base_fog is not None else 'not read'}")
         out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
         out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
@@ -163,16 +181,31 @@ def _gradient_curve(strip) -> dict | None:
             "gradient": [round(float(v), 4) for v in curve.gradient(grid)]}
 
 
-def cmd_analyze(args) -> int:
-    from .core.calibration import load_calibration
+def analysis_from_args(args, path):
+    """Analyse one scan as the analysis options say; returns the analysis and the calibration used (or None).
+
+    With ``--tablet-certificate`` the calibration is the one fitted on the
+    tablet lying on the scan itself (also kept in the result's JSON).
+    """
+    from .core.calibration import Calibration, load_calibration, read_certificate
     from .core.pipeline import analyze_scan
 
+    tablet_certificate = getattr(args, "tablet_certificate", None)
+    if tablet_certificate and args.calibration:
+        raise CommandError("give --calibration or --tablet-certificate, not both")
     calibration = load_calibration(args.calibration) if args.calibration else None
-    options = _analysis_options(args)
+    certificate = read_certificate(tablet_certificate) if tablet_certificate else None
     analysis = analyze_scan(
-        args.scan, calibration=calibration, options=options, dpi=args.dpi, channel=args.channel,
-        flat_field_scan=args.flat_field,
+        path, calibration=calibration, options=_analysis_options(args), dpi=args.dpi, channel=args.channel,
+        flat_field_scan=args.flat_field, tablet_certificate=certificate,
     )
+    if certificate is not None:
+        calibration = Calibration.from_dict(analysis.calibration["fit"], source=str(path))
+    return analysis, calibration
+
+
+def cmd_analyze(args) -> int:
+    analysis, _ = analysis_from_args(args, args.scan)
     data = analysis.to_dict()
     for strip, out in zip(analysis.strips, data["strips"]):
         out["gradient_curve"] = _gradient_curve(strip)
@@ -212,15 +245,16 @@ def cmd_calibrate(args) -> int:
     for k, (step, density) in enumerate(zip(certificate.steps, certificate.densities)):
         reading = calibration.readings[k]
         res = calibration.residuals[k] if k < used else None
-        res_text = f"{res:+9.4f}" if res is not None else ("      end" if k < used else " not used")
+        res_text = f"{res:+9.4f}" if res is not None else ("    start" if k < used else " not used")
         print(f"  {step:>4} {density:9.3f} {reading['signal'] or float('nan'):9.5f} {res_text}")
     rms = calibration.rms_residual
-    print(f"Leave-one-out residual RMS within the valid range: {rms:.4f} OD" if rms is not None
-          else "Leave-one-out residual RMS within the valid range: n/a")
+    print(f"Held-out residual RMS within the valid range: {rms:.4f} OD" if rms is not None
+          else "Held-out residual RMS within the valid range: n/a")
     lo, hi = calibration.valid_od
     print(f"Reads within ±{ACCURACY_GOAL:.2f} OD from {lo:.2f} to {hi:.2f} OD; steps outside are flagged.")
     if calibration.lateral is not None:
         print(f"Lateral response: c = {calibration.lateral.c_per_mm2:.3g} OD/mm² across the carriage")
+    print(stray_light_text(calibration))
     for w in warnings:
         print(f"! {w}")
     print(f"Saved {args.output}")
@@ -229,6 +263,9 @@ def cmd_calibrate(args) -> int:
 
 def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--calibration", metavar="CAL.json", help="calibration from 'stripscan calibrate' (none: uncalibrated direct mode)")
+    p.add_argument("--tablet-certificate", metavar="CERT.csv",
+                   help="a reference tablet lies on this scan beside the strips: calibrate the scan with it "
+                        "(certified densities, CSV 'step,density'); the most robust way")
     p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted)")
     p.add_argument("--increment", type=float, default=0.15, metavar="LOGE", help="log exposure per step (default 0.15 = log10 √2)")
     p.add_argument("--exposures", metavar="FILE", help="per-step log exposure table from the sensitometer, one per line")

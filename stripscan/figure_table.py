@@ -26,7 +26,7 @@ from .core.curve import FigureSettings
 from .core.records import CurveFigures, StepDensity
 
 __all__ = [
-    "FigureRow", "figure_rows", "format_value", "step_flag", "UnitStyle",
+    "FigureRow", "figure_rows", "format_value", "step_flag", "STEP_FLAG_WORDS", "UnitStyle",
     "FIGURE_KEYS", "FIGURE_COLUMNS", "NOT_REACHED", "NOT_READ", "ABOVE_RANGE", "NO_VALUE",
 ]
 
@@ -272,12 +272,24 @@ def figure_rows(figures: CurveFigures | None, *, units: UnitStyle = "long",
     ]
 
 
+#: The short reason a table shows after "not used:", per ``StepDensity.flag``.
+STEP_FLAG_WORDS = {
+    "outside_range": "outside the calibrated range",
+    "too_noisy": "too noisy",
+    "saturated": "saturated",
+    "dark_floor": "at the dark floor",
+    "stray_light": "stray light",
+    "flare_plateau": "flare plateau",
+}
+
+
 def step_flag(step: StepDensity, figures: CurveFigures | None = None) -> str:
     """Why a step is not on the curve, or which QC role it plays; empty when neither.
 
-    ``not used`` covers every reason the reading kept the step off the
-    curve (outside the calibrated range, saturated, too noisy); the
-    analysis' warnings say which.  The roles ``MD``, ``DD high`` and
+    A step the reading kept off the curve says ``not used:`` and the reason
+    (``StepDensity.flag``: outside the calibrated range, too noisy,
+    saturated, at the dark floor, stray light, flare plateau); the
+    analysis' warnings say it in full.  The roles ``MD``, ``DD high`` and
     ``DD low`` need ``figures``.
     """
     if step.excluded:
@@ -285,7 +297,8 @@ def step_flag(step: StepDensity, figures: CurveFigures | None = None) -> str:
     if not math.isfinite(step.od):
         return "not read"
     if not step.in_range:
-        return "not used"
+        reason = STEP_FLAG_WORDS.get(step.flag, "")
+        return f"not used: {reason}" if reason else "not used"
     if figures is None:
         return ""
     roles = []

@@ -129,3 +129,19 @@ def test_window_without_a_display_is_a_plain_error(capsys, monkeypatch, argv):
     assert main(argv) == 1
     err = capsys.readouterr().err
     assert err.startswith("stripscan: error: the desktop window needs a graphical session") and err.count("\n") == 1
+
+
+def test_analyze_with_the_tablet_on_the_scan(tmp_path, capsys):
+    """`analyze SCAN --tablet-certificate CERT.csv`: the tablet beside the strips calibrates the scan."""
+    objects = [TabletSpec(densities=TABLET_OD, step_length_mm=7.5, center_mm=(25.0, 95.0), angle_deg=90.0),
+               StripSpec(film=FilmModel(), center_mm=(80.0, 100.0), angle_deg=90.0)]
+    write_tiff(tmp_path / "both.tif", simulate_scan(objects, platen_mm=(120.0, 200.0), dpi=150.0,
+                                                    scanner=ScannerModel(seed=9)))
+    write_certificate(tmp_path / "cert.csv", TABLET_OD)
+    assert main(["analyze", str(tmp_path / "both.tif"), "--tablet-certificate", str(tmp_path / "cert.csv")]) == 0
+    out = capsys.readouterr().out
+    assert "from the tablet on this scan" in out and "Strip 1:" in out and "Strip 2:" not in out
+    assert "UNCALIBRATED" not in out and "stray" in out
+    assert main(["analyze", str(tmp_path / "both.tif"), "--tablet-certificate", str(tmp_path / "cert.csv"),
+                 "--calibration", str(tmp_path / "cal.json")]) != 0
+    assert "not both" in capsys.readouterr().err

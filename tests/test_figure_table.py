@@ -121,6 +121,10 @@ def test_step_flags_say_why_a_step_is_off_the_curve_and_mark_the_qc_steps():
     assert step_flag(step(3, 0.2, excluded=True), f) == "excluded"
     assert step_flag(step(21, math.nan, in_range=False), f) == "not read"
     assert step_flag(step(20, 3.4, in_range=False), f) == "not used"
+    # The reading's own reason follows, in the table's short words.
+    flagged = dataclasses.replace(step(20, 3.4, in_range=False), flag="stray_light")
+    assert step_flag(flagged, f) == "not used: stray light"
+    assert step_flag(dataclasses.replace(flagged, flag="too_noisy"), f) == "not used: too noisy"
     # common practice: the mid-density (MD) step and the two density difference (DD) steps are marked
     assert step_flag(step(11, 1.23), f) == "MD"
     assert step_flag(step(13, 2.2), f) == "DD high"

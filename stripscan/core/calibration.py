@@ -37,6 +37,7 @@ import numpy as np
 from scipy.interpolate import PchipInterpolator
 
 from .records import StepReading, clean_float
+from .straylight import StrayLight
 
 __all__ = [
     "CalibrationError",
@@ -59,6 +60,9 @@ ACCURACY_GOAL = 0.02
 
 _FORMAT = "stripscan-calibration"
 _FORMAT_VERSION = 1
+#: Files with a stray-light model: their knots hold the light the sensor saw,
+#: which an older reader would take for certified densities, so they say so.
+_FORMAT_VERSION_STRAY = 2
 
 
 class CalibrationError(ValueError):
@@ -331,6 +335,14 @@ class Calibration:
     lateral : LateralCorrection or None
     flat_field_sha256 : str or None
     note : str
+    stray_light : StrayLight or None
+        The scanner's stray light and lamp, fitted on the tablet scan.  With
+        it, ``od`` holds the density the sensor *saw* at each knot (spread
+        light and lamp included), and a reading becomes a density only
+        after its own spread light is taken off.
+    tablet_spread : tuple of (float, float) or None
+        ``(certified density, spread light)`` of each used tablet step,
+        densest last: the surroundings the map was fitted in.
     """
 
     log_signal: tuple[float, ...]
@@ -353,6 +365,8 @@ class Calibration:
     lateral: LateralCorrection | None = None
     flat_field_sha256: str | None = None
     note: str = ""
+    stray_light: StrayLight | None = None
+    tablet_spread: tuple[tuple[float, float], ...] | None = None
     _interp: Any = field(default=None, compare=False, repr=False)
     _deriv: Any = field(default=None, compare=False, repr=False)
 
@@ -362,16 +376,11 @@ class Calibration:
         object.__setattr__(self, "_deriv", interp.derivative())
 
     # -- using the map ---------------------------------------------------
-    def density(self, signal: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
-        """Density for linear signal(s), and whether each lies in the valid range.
+    def seen_density(self, signal: np.ndarray | float) -> np.ndarray:
+        """Density the sensor saw for linear signal(s): the map alone, before any stray-light correction.
 
-        Outside the fitted signals the density is extended along the end
-        slopes (straight lines in log signal) and flagged out of range.
-
-        Returns
-        -------
-        od : ndarray of float
-        in_range : ndarray of bool
+        Outside the fitted signals the map is extended along its end slopes
+        (straight lines in log signal).
         """
         s = np.atleast_1d(np.asarray(signal, dtype=np.float64))
         x = np.log10(np.clip(s, 1e-9, None))
@@ -384,7 +393,66 @@ class Calibration:
         slope_light = (knots_od[-1] - knots_od[-2]) / (knots_x[-1] - knots_x[-2])
         od = np.where(low, knots_od[0] + slope_dense * (x - knots_x[0]), od)
         od = np.where(high, knots_od[-1] + slope_light * (x - knots_x[-1]), od)
-        od = np.where(np.isfinite(s), od, np.nan)
+        return np.where(np.isfinite(s), od, np.nan)
+
+    def light(self, signal: np.ndarray | float) -> np.ndarray:
+        """Light the sensor saw (1 = open platen at the tablet's place) for linear signal(s)."""
+        return 10.0 ** -self.seen_density(signal)
+
+    def light_slope(self, signal: np.ndarray | float) -> np.ndarray:
+        """d(light)/d(signal) at linear signal(s)."""
+        s = np.atleast_1d(np.asarray(signal, dtype=np.float64))
+        x = np.clip(np.log10(np.clip(s, 1e-9, None)), self.log_signal[0], self.log_signal[-1])
+        return -self.light(s) * self._deriv(x) / np.clip(s, 1e-9, None)
+
+    def reference_spread(self, od: np.ndarray | float) -> np.ndarray:
+        """Spread light the tablet had at density ``od`` (0 without a stray-light model)."""
+        if not self.tablet_spread:
+            return np.zeros(np.shape(np.atleast_1d(od)))
+        dens, spread = np.asarray(self.tablet_spread, dtype=np.float64).T
+        return np.interp(np.atleast_1d(np.asarray(od, dtype=np.float64)), dens, spread)
+
+    def density(
+        self, signal: np.ndarray | float, *, spread: np.ndarray | float | None = None, lamp: np.ndarray | float = 1.0
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Density for linear signal(s), and whether each lies in the valid range.
+
+        Parameters
+        ----------
+        signal : float or ndarray
+            Linear signal, 0..1 of full scale.
+        spread : float or ndarray, optional
+            Spread light at each reading's place (see
+            :mod:`stripscan.core.straylight`); by default the tablet's own at
+            the same density, i.e. the reading is taken to lie in surroundings
+            like the tablet's.  Ignored without a stray-light model.
+        lamp : float or ndarray
+            Relative lamp brightness at each reading's place.
+
+        Returns
+        -------
+        od : ndarray of float
+        in_range : ndarray of bool
+            False outside the valid range, and where the spread light
+            accounts for all the light seen.
+        """
+        seen = self.seen_density(signal)
+        if self.stray_light is None:
+            od = seen
+        else:
+            f = self.stray_light.total
+            light = 10.0 ** -seen / np.asarray(lamp, dtype=np.float64)
+            if spread is None:
+                # The tablet's own surroundings: its spread at the density read.
+                guess = -np.log10(np.clip(light, 1e-12, None))
+                for _ in range(3):
+                    spread_now = self.reference_spread(guess)
+                    guess = -np.log10(np.clip((light - spread_now) / (1.0 - f), 1e-12, None))
+                spread = self.reference_spread(guess)
+            transmitted = (light - np.asarray(spread, dtype=np.float64)) / (1.0 - f)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                od = np.where(transmitted > 0, -np.log10(np.where(transmitted > 0, transmitted, 1.0)), np.inf)
+            od = np.where(np.isfinite(seen), od, np.nan)
         lo, hi = self.valid_od
         tol = 1e-9
         in_range = np.isfinite(od) & (od >= lo - tol) & (od <= hi + tol)
@@ -409,13 +477,14 @@ class Calibration:
             "bits": self.bits,
             "tablet_scan_sha256": self.scan_sha256,
             "mode": "tablet",
+            "stray_light_fraction": None if self.stray_light is None else clean_float(self.stray_light.total, 6),
         }
 
     # -- serialisation ---------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
         return {
             "format": _FORMAT,
-            "format_version": _FORMAT_VERSION,
+            "format_version": _FORMAT_VERSION if self.stray_light is None else _FORMAT_VERSION_STRAY,
             "log_signal": list(self.log_signal),
             "od": list(self.od),
             "valid_od": list(self.valid_od),
@@ -436,6 +505,10 @@ class Calibration:
             "lateral": self.lateral.to_dict() if self.lateral else None,
             "flat_field_sha256": self.flat_field_sha256,
             "note": self.note,
+            **({} if self.stray_light is None else {
+                "stray_light": self.stray_light.to_dict(),
+                "tablet_spread": [list(pair) for pair in self.tablet_spread or ()],
+            }),
         }
 
     @property
@@ -448,7 +521,7 @@ class Calibration:
     def from_dict(cls, data: dict[str, Any], *, source: str = "<calibration>") -> "Calibration":
         if data.get("format") != _FORMAT:
             raise CalibrationError(f"{source}: not a stripscan calibration file")
-        if int(data.get("format_version", 0)) > _FORMAT_VERSION:
+        if int(data.get("format_version", 0)) > _FORMAT_VERSION_STRAY:
             raise CalibrationError(f"{source}: made by a newer stripscan (format {data['format_version']})")
         try:
             return cls(
@@ -472,6 +545,8 @@ class Calibration:
                 lateral=LateralCorrection.from_dict(data["lateral"]) if data.get("lateral") else None,
                 flat_field_sha256=data.get("flat_field_sha256"),
                 note=str(data.get("note", "")),
+                stray_light=StrayLight.from_dict(data["stray_light"]) if data.get("stray_light") else None,
+                tablet_spread=tuple((float(d), float(f)) for d, f in data.get("tablet_spread") or ()) or None,
             )
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None
@@ -509,15 +584,20 @@ def load_calibration(path: str | os.PathLike[str]) -> Calibration:
     return Calibration.from_dict(data, source=str(path))
 
 
-def _loo_residuals(x: np.ndarray, od: np.ndarray) -> list[float | None]:
-    """Leave-one-out residuals of a PCHIP curve; None for the end points."""
-    out: list[float | None] = [None]
-    for i in range(1, len(x) - 1):
+def _held_out_predictions(x: np.ndarray, od: np.ndarray) -> np.ndarray:
+    """Each knot predicted by a PCHIP curve through all the others.
+
+    Interior knots are interpolated (leave-one-out); the first knot — the
+    densest step, the top of the range — is extrapolated one-sidedly from
+    the rest, so the top of the range is tested too.  The last knot (the
+    lightest step, the bottom of the range) is returned as NaN: it is the
+    end the range starts from.
+    """
+    out = np.full(len(x), np.nan)
+    for i in range(0, len(x) - 1):
         keep = np.ones(len(x), dtype=bool)
         keep[i] = False
-        predicted = float(PchipInterpolator(x[keep], od[keep])(x[i]))
-        out.append(predicted - float(od[i]))
-    out.append(None)
+        out[i] = float(PchipInterpolator(x[keep], od[keep], extrapolate=True)(x[i]))
     return out
 
 
@@ -538,6 +618,8 @@ def fit_calibration(
     accuracy: float = ACCURACY_GOAL,
     max_saturated: float = 0.01,
     created: str | None = None,
+    stray_light: StrayLight | None = None,
+    seen: Sequence[tuple[float, float]] | None = None,
 ) -> Calibration:
     """Fit the signal-to-density map from a tablet's step readings.
 
@@ -548,9 +630,16 @@ def fit_calibration(
     certificate : Certificate
     accuracy : float
         Accuracy goal, OD; the valid range ends before the first step whose
-        leave-one-out residual exceeds it.
+        held-out residual exceeds it.
     max_saturated : float
         Largest fraction of saturated pixels a usable step may have.
+    stray_light : StrayLight, optional
+        The scanner's stray light, fitted on the same scan.
+    seen : sequence of (float, float), optional
+        With ``stray_light``: ``(lamp, spread)`` at each certificate step
+        (relative lamp brightness, spread light), so that the map's knots
+        hold the light the sensor saw there,
+        ``lamp * ((1 - f) 10**-D + spread)``.
     Other parameters record provenance.
 
     Raises
@@ -558,11 +647,23 @@ def fit_calibration(
     CalibrationError
         When the readings and certificate do not match, or fewer than four
         steps are usable.
+
+    Notes
+    -----
+    Residuals are held out: each step is predicted from a map fitted
+    without it and compared with its certified density — interior steps by
+    interpolation, the densest usable step by extrapolation from the
+    others, so that the top of the valid range is a density that was
+    tested, never merely the last step.  With a stray-light model the
+    prediction is turned into a density exactly as a reading is (its
+    spread light taken off), so the residual is in certified terms.
     """
     if len(readings) != len(certificate.densities):
         raise CalibrationError(
             f"the tablet shows {len(readings)} steps but the certificate lists {len(certificate.densities)}"
         )
+    if (stray_light is None) != (seen is None) or (seen is not None and len(seen) != len(readings)):
+        raise ValueError("give the stray-light model together with the lamp and spread of every step")
     signal = np.array([r.signal for r in readings], dtype=np.float64)
     sem = np.array([r.signal_sd / math.sqrt(max(r.pixels, 1)) for r in readings], dtype=np.float64)
     cert = np.asarray(certificate.densities, dtype=np.float64)
@@ -587,21 +688,33 @@ def fit_calibration(
             "distinct signals; check the scan settings "
             "(16-bit linear, automatic corrections off)"
         )
-    x = np.log10(signal[usable])[::-1]
-    od = cert[usable][::-1]
-    residuals_asc = _loo_residuals(x, od)
-    residuals = residuals_asc[::-1]  # back to step order
+    f = stray_light.total if stray_light is not None else 0.0
+    lamp = np.array([p[0] for p in seen], dtype=np.float64)[usable] if seen else np.ones(len(usable))
+    spread = np.array([p[1] for p in seen], dtype=np.float64)[usable] if seen else np.zeros(len(usable))
     used_cert = cert[usable]
-    # Valid range: from the lightest step up to the last step before the
-    # leave-one-out error first exceeds the goal.
-    # The tablet's own reading noise, carried through the map's slope, must
-    # also leave room for the goal (at k = 2): where the scanner's response
-    # flattens, a tiny signal error becomes a large density error.
+    seen_od = -np.log10(lamp * ((1.0 - f) * 10.0 ** -used_cert + spread))
+    x = np.log10(signal[usable])[::-1]
+    od = seen_od[::-1]
+    predicted_seen = _held_out_predictions(x, od)[::-1]  # back to step order
+    with np.errstate(divide="ignore", invalid="ignore"):
+        transmitted = (10.0 ** -predicted_seen / lamp - spread) / (1.0 - f)
+        predicted = np.where(transmitted > 0, -np.log10(np.where(transmitted > 0, transmitted, 1.0)), np.inf)
+    residuals: list[float | None] = [
+        None if np.isnan(p) else float(predicted[k] - used_cert[k]) for k, p in enumerate(predicted_seen)
+    ]
+    # The tablet's own reading noise, carried through the map's slope (and
+    # through the spread-light correction, which magnifies it by
+    # seen / (seen - spread)), must also leave room for the goal at k = 2:
+    # where the scanner's response flattens, a tiny signal error becomes a
+    # large density error.
     slopes = np.abs(PchipInterpolator(x, od).derivative()(x))[::-1]
-    noise_od = slopes * sem[usable] / (signal[usable] * math.log(10.0))
+    share = spread / ((1.0 - f) * 10.0 ** -used_cert + spread)
+    noise_od = slopes * sem[usable] / (signal[usable] * math.log(10.0)) / (1.0 - share)
+    # Valid range: from the lightest step up to the last step before the
+    # held-out error or the noise first exceeds the goal.
     valid_hi_index = len(usable) - 1
     for k, res in enumerate(residuals):
-        if (res is not None and abs(res) > accuracy) or 2.0 * noise_od[k] > accuracy:
+        if (res is not None and not abs(res) <= accuracy) or 2.0 * noise_od[k] > accuracy:
             valid_hi_index = max(0, k - 1)
             break
     valid = (float(used_cert[0]), float(used_cert[valid_hi_index]))
@@ -634,6 +747,10 @@ def fit_calibration(
         lateral=lateral,
         flat_field_sha256=flat_field_sha256,
         note=note,
+        stray_light=stray_light,
+        tablet_spread=(
+            tuple((float(d), float(sp)) for d, sp in zip(used_cert, spread)) if stray_light is not None else None
+        ),
     )
 
 

@@ -7,6 +7,7 @@ numbers.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 from dataclasses import dataclass
@@ -28,8 +29,16 @@ from .calibration import (
 from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
 from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
 from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
-from .sample import read_strip
+from .sample import read_area, read_strip
 from .scan import Scan, load_scan
+from .straylight import (
+    LAMP_REACH_MM,
+    fit_stray_light,
+    platen_observations,
+    reduce_scan,
+    spread_field,
+    Observation,
+)
 
 __all__ = [
     "AnalysisError",
@@ -38,7 +47,10 @@ __all__ = [
     "analyze_loaded",
     "calibrate_tablet",
     "check_exposure",
+    "CorrectedMap",
+    "density_map_for",
     "direct_mode_for",
+    "read_density",
     "read_found_strip",
     "strip_result",
 ]
@@ -51,6 +63,15 @@ UNCALIBRATED = (
 
 #: Largest fraction of saturated pixels a step may have and still be read.
 MAX_SATURATED = 0.01
+
+#: Base+fog read at different places on one scan should agree within this, OD
+#: (half the accuracy goal): more means the lamp or stray light differs there.
+BASE_FOG_SPREAD = 0.01
+
+
+#: Without a measured lamp profile, how far (mm) across the carriage a strip may
+#: lie from the tablet's place before a warning is given.
+LAMP_UNMEASURED_MM = 20.0
 
 
 class AnalysisError(ValueError):
@@ -210,12 +231,127 @@ def read_found_strip(scan: Scan, found: FoundStrip) -> tuple[list[StepReading], 
     return readings, bf, notes
 
 
+@dataclass(frozen=True)
+class CorrectedMap:
+    """A calibration with a stray-light model, applied to one scan.
+
+    Attributes
+    ----------
+    calibration : Calibration
+    field : SpreadField
+        The scan's own spread light and lamp profile.
+    """
+
+    calibration: Calibration
+    field: SpreadField
+
+    def summary(self) -> dict:
+        return self.calibration.summary()
+
+
+Mapping = Calibration | DirectMode | CorrectedMap
+
+
+def density_map_for(scan: Scan, calibration: Calibration | None, options: "AnalysisOptions") -> tuple[Mapping, list[str]]:
+    """How this scan's signals become densities: direct mode, or the calibration with this scan's stray light.
+
+    Returns
+    -------
+    mapping : Calibration, DirectMode or CorrectedMap
+    warnings : list of str
+        Scan-level warnings (an uncalibrated reading, another resolution,
+        stray light that cannot be computed).
+
+    Raises
+    ------
+    AnalysisError
+        When the scan and the calibration do not go together.
+    """
+    if calibration is None:
+        return direct_mode_for(scan, dark=options.dark, clear_area=options.clear_area), [UNCALIBRATED]
+    warnings = _check_compatible(scan, calibration)
+    if calibration.stray_light is None:
+        return calibration, warnings
+    if not scan.pixel_mm:
+        warnings.append(
+            "the scan's resolution is unknown, so its stray light cannot be computed; steps are read "
+            "as if they lay in the tablet's surroundings"
+        )
+        return calibration, warnings
+    field = spread_field(reduce_scan(scan), calibration.light, calibration.stray_light)
+    return CorrectedMap(calibration, field), warnings
+
+
+def _calibration_of(mapping: Mapping) -> Calibration | None:
+    if isinstance(mapping, CorrectedMap):
+        return mapping.calibration
+    return mapping if isinstance(mapping, Calibration) else None
+
+
+def read_density(
+    mapping: Mapping, reading: StepReading, pixel_mm: float | None
+) -> tuple[float, bool, float, float | None, str]:
+    """One reading as a density.
+
+    Returns
+    -------
+    od : float
+    in_range : bool
+        Inside the valid range (before the noise and stray-light checks).
+    correction_sd : float
+        Standard uncertainty of the stray-light correction, OD.
+    share : float or None
+        Share of the light seen that is spread light.
+    reason : str
+        A :data:`~stripscan.core.records.STEP_FLAGS` key when not in range.
+    """
+    calibration = _calibration_of(mapping)
+    signal = reading.signal
+    if not (math.isfinite(signal) and signal > 0 and reading.pixels > 0):
+        return float("nan"), False, 0.0, None, "not_read"
+    if calibration is None:
+        assert isinstance(mapping, DirectMode)
+        od, ok = mapping.density(signal)
+        reason = ""
+        if not ok[0]:
+            reason = "dark_floor" if signal - mapping.dark <= max(5.0 * mapping.floor_sd, 1e-5) else "outside_range"
+        return float(od[0]), bool(ok[0]), 0.0, None, reason
+    share, correction_sd = None, 0.0
+    if isinstance(mapping, CorrectedMap):
+        spread = mapping.field.at(reading.center_rc)
+        lamp = mapping.field.lamp_at(reading.center_rc)
+        od, ok = calibration.density(signal, spread=spread, lamp=lamp)
+        seen = float(calibration.light(signal)[0]) / lamp
+        share = min(max(spread / seen, 0.0), 1.0) if seen > 0 else 1.0
+        value = float(od[0])
+        if not math.isfinite(value):
+            return value, False, float("inf"), share, "stray_light"
+        # The map is exact for the tablet's surroundings; what the model adds
+        # or takes beyond them carries the model's relative uncertainty.
+        model = calibration.stray_light
+        assert model is not None
+        transmitted = (1.0 - model.total) * 10.0 ** -value
+        difference = abs(spread - float(calibration.reference_spread(value)[0]))
+        correction_sd = model.relative_sd * difference / (math.log(10.0) * transmitted)
+    else:
+        od, ok = calibration.density(signal)
+        value = float(od[0])
+        if calibration.stray_light is not None:
+            seen = float(calibration.light(signal)[0])
+            share = float(calibration.reference_spread(value)[0]) / seen if seen > 0 else None
+    if calibration.lateral is not None and pixel_mm and math.isfinite(value):
+        tablet_pixel_mm = 25.4 / calibration.dpi if calibration.dpi else pixel_mm
+        value -= calibration.lateral.offset_od(reading.center_rc, pixel_mm, calibration.tablet_center_rc,
+                                               tablet_pixel_mm)
+    return value, bool(ok[0]), correction_sd, share, "" if ok[0] else "outside_range"
+
+
 def strip_result(
     index: int,
     geometry: StripGeometry,
     readings: Sequence[StepReading],
     base_fog_reading: StepReading | None,
-    mapping: Calibration | DirectMode,
+    mapping: Mapping,
     options: AnalysisOptions,
     *,
     pixel_mm: float | None,
@@ -232,7 +368,8 @@ def strip_result(
     readings : sequence of StepReading
         Step 1 first.
     base_fog_reading : StepReading or None
-    mapping : Calibration or DirectMode
+    mapping : Calibration, DirectMode or CorrectedMap
+        From :func:`density_map_for`.
     options : AnalysisOptions
     pixel_mm : float or None
         Pixel pitch, for the lateral correction.
@@ -241,42 +378,32 @@ def strip_result(
     notes : sequence of str
         Warnings from locating the strip.
     """
+    calibration = _calibration_of(mapping)
     # Each strip says it for itself: a strip's warnings travel alone (the window's list, a snapshot).
-    warnings = ([] if isinstance(mapping, Calibration) else [UNCALIBRATED]) + list(notes)
+    warnings = ([] if calibration is not None else [UNCALIBRATED]) + list(notes)
     log_e = step_log_exposures(geometry.n_steps, options.increment, options.exposure_table)
-    signals = np.array([r.signal for r in readings], dtype=np.float64)
-    od, in_range = mapping.density(signals)
-    cal_sd = mapping.rms_residual if isinstance(mapping, Calibration) and mapping.rms_residual else 0.0
-
-    def lateral_offset(center_rc: tuple[float, float]) -> float:
-        """Density the lateral response adds at ``center_rc`` over the tablet's place (0 without one)."""
-        if not isinstance(mapping, Calibration) or mapping.lateral is None or not pixel_mm:
-            return 0.0
-        tablet_pixel_mm = 25.4 / mapping.dpi if mapping.dpi else pixel_mm
-        return mapping.lateral.offset_od(center_rc, pixel_mm, mapping.tablet_center_rc, tablet_pixel_mm)
-
+    cal_sd = calibration.rms_residual if calibration is not None and calibration.rms_residual else 0.0
     steps = []
-    saturated_steps, out_steps, noisy_steps = [], [], []
+    flagged: dict[str, list[int]] = {}
     for k, reading in enumerate(readings):
-        value = float(od[k])
-        ok = bool(in_range[k])
+        value, ok, correction_sd, share, reason = read_density(mapping, reading, pixel_mm)
         if reading.saturated_fraction > MAX_SATURATED:
-            ok = False
-            saturated_steps.append(reading.step)
-        if math.isfinite(value):
-            value -= lateral_offset(reading.center_rc)
-        if math.isfinite(reading.signal) and reading.signal > 0 and reading.pixels > 0:
-            rel = reading.signal_sd / math.sqrt(reading.pixels) / (reading.signal * math.log(10.0))
-            sd = math.hypot(mapping.slope(reading.signal) * rel, cal_sd)
-        else:
+            ok, reason = False, "saturated"
+        if reason == "not_read":
             sd = float("nan")
-            ok = False
-        if ok and 2.0 * sd > ACCURACY_GOAL:
-            # In range, but too noisy to claim the goal at k = 2.
-            ok = False
-            noisy_steps.append(reading.step)
-        elif not ok and reading.step not in saturated_steps:
-            out_steps.append(reading.step)
+        else:
+            rel = reading.signal_sd / math.sqrt(reading.pixels) / (reading.signal * math.log(10.0))
+            slope = (calibration or mapping).slope(reading.signal)  # type: ignore[union-attr]
+            # Taking spread light off magnifies the reading noise by seen / (seen - spread).
+            noise = slope * rel / (1.0 - share) if share is not None and share < 1.0 else slope * rel
+            sd = math.sqrt(noise**2 + cal_sd**2 + correction_sd**2)
+            if ok and 2.0 * math.hypot(noise, cal_sd) > ACCURACY_GOAL:
+                # In range, but too noisy to claim the goal at k = 2.
+                ok, reason = False, "too_noisy"
+            elif ok and 2.0 * sd > ACCURACY_GOAL:
+                ok, reason = False, "stray_light"
+        if not ok:
+            flagged.setdefault(reason, []).append(reading.step)
         steps.append(
             StepDensity(
                 step=reading.step,
@@ -287,31 +414,25 @@ def strip_result(
                 in_range=ok,
                 center_rc=reading.center_rc,
                 excluded=reading.step in excluded,
+                flag="" if ok else reason,
+                stray_light_share=share,
             )
         )
-    if saturated_steps:
-        warnings.append(f"{_list(saturated_steps)}: the scanner saturates; not used")
-    if out_steps and isinstance(mapping, Calibration):
-        lo, hi = mapping.valid_od
-        warnings.append(
-            f"{_list(out_steps)}: outside the calibrated range {lo:.2f}-{hi:.2f} OD; not used"
-        )
-    elif out_steps:
-        warnings.append(f"{_list(out_steps)}: at the scanner's dark floor or saturated; not used")
-    if noisy_steps:
-        warnings.append(
-            f"{_list(noisy_steps)}: reading noise too high to be within ±{ACCURACY_GOAL:.2f} OD; not used"
-        )
+    if calibration is None:
+        steps, plateau = _flare_plateau(steps)
+        if plateau:
+            flagged.setdefault("flare_plateau", []).extend(plateau)
+    warnings += _flag_warnings(flagged, calibration)
 
     base_fog = None
     if base_fog_reading is not None and math.isfinite(base_fog_reading.signal):
-        bf_od, bf_ok = mapping.density(base_fog_reading.signal)
-        value = float(bf_od[0])
-        value -= lateral_offset(base_fog_reading.center_rc)
-        if bool(bf_ok[0]) and base_fog_reading.saturated_fraction <= MAX_SATURATED:
+        value, bf_ok, correction_sd, _, _ = read_density(mapping, base_fog_reading, pixel_mm)
+        if bf_ok and base_fog_reading.saturated_fraction <= MAX_SATURATED and 2.0 * correction_sd <= ACCURACY_GOAL:
             base_fog = value
         else:
             warnings.append(f"base+fog ({value:.2f} OD) is outside the calibrated range; not used")
+    if isinstance(mapping, CorrectedMap) and pixel_mm:
+        warnings += _lamp_guard(mapping, geometry, pixel_mm)
     usable = [s.in_range and not s.excluded for s in steps]
     # A step past the range stays past it when a person excludes it too: the
     # film is denser than anything read, so Dmax is not stated.
@@ -337,6 +458,99 @@ def strip_result(
     )
 
 
+def _flag_warnings(flagged: dict[str, list[int]], calibration: Calibration | None) -> list[str]:
+    """One warning per reason, naming its steps."""
+    words = {
+        "saturated": "the scanner saturates",
+        "too_noisy": f"reading noise too high to be within ±{ACCURACY_GOAL:.2f} OD",
+        "stray_light": f"stray light from the surroundings too large to correct within ±{ACCURACY_GOAL:.2f} OD",
+        "dark_floor": "at the scanner's dark floor",
+        "flare_plateau": (
+            "the density no longer rises as the exposure step predicts (the scanner's flare plateau, or the "
+            "film's shoulder: without a calibration they cannot be told apart); not used, and not taken as Dmax"
+        ),
+    }
+    out = []
+    for reason in ("saturated", "outside_range", "dark_floor", "too_noisy", "stray_light", "flare_plateau"):
+        steps = flagged.get(reason)
+        if not steps:
+            continue
+        if reason == "outside_range":
+            if calibration is not None:
+                lo, hi = calibration.valid_od
+                out.append(f"{_list(steps)}: outside the calibrated range {lo:.2f}-{hi:.2f} OD; not used")
+            else:
+                out.append(f"{_list(steps)}: brighter than the open platen; not used")
+        elif reason == "flare_plateau":
+            out.append(f"{_list(steps)}: {words[reason]}")
+        else:
+            out.append(f"{_list(steps)}: {words[reason]}; not used")
+    return out
+
+
+#: In direct mode a step whose rise over the previous step is below this share
+#: of the strip's steepest rise, at a density above :data:`PLATEAU_MIN_OD`, is
+#: on a plateau (common practice: flare caps a flatbed's direct reading).
+PLATEAU_RISE = 0.25
+PLATEAU_MIN_OD = 1.5
+
+
+def _flare_plateau(steps: list[StepDensity]) -> tuple[list[StepDensity], list[int]]:
+    """Direct mode: take the dense steps whose density has stopped rising off the curve.
+
+    Walking down from the densest usable step, every step that rose less
+    than :data:`PLATEAU_RISE` of the strip's steepest step-to-step rise, at
+    a density above :data:`PLATEAU_MIN_OD`, is on the plateau, together
+    with every denser step.
+    """
+    usable = [s for s in steps if s.in_range and math.isfinite(s.od)]
+    if len(usable) < 4:
+        return steps, []
+    rises = [b.od - a.od for a, b in zip(usable, usable[1:])]
+    steepest = max(rises)
+    if steepest <= 0:
+        return steps, []
+    cut = None
+    for k in range(len(usable) - 1, 0, -1):
+        if usable[k].od > PLATEAU_MIN_OD and rises[k - 1] < PLATEAU_RISE * steepest:
+            cut = usable[k].step
+        else:
+            break
+    if cut is None:
+        return steps, []
+    out, plateau = [], []
+    for s in steps:
+        if s.step >= cut and s.in_range:
+            plateau.append(s.step)
+            s = dataclasses.replace(s, in_range=False, flag="flare_plateau")
+        out.append(s)
+    return out, plateau
+
+
+def _lamp_guard(mapping: CorrectedMap, geometry: StripGeometry, pixel_mm: float) -> list[str]:
+    """Warn when the strip lies across the carriage where the lamp was not measured."""
+    calibration, model = mapping.calibration, mapping.field.model
+    cols = [p[1] * pixel_mm for p in geometry.outline_rc()]
+    lo, hi = min(cols), max(cols)
+    if model.lamp_span_mm is not None:
+        a, b = model.lamp_span_mm
+        if lo < a - LAMP_REACH_MM or hi > b + LAMP_REACH_MM:
+            return [
+                f"the strip lies {lo:.0f}-{hi:.0f} mm across the carriage, but the lamp was measured only over "
+                f"{a:.0f}-{b:.0f} mm on the tablet scan; scan the tablet with open platen beside the strip's place"
+            ]
+        return []
+    tablet_pixel_mm = 25.4 / calibration.dpi if calibration.dpi else pixel_mm
+    x_tablet = calibration.tablet_center_rc[1] * tablet_pixel_mm
+    if max(abs(lo - x_tablet), abs(hi - x_tablet)) > LAMP_UNMEASURED_MM:
+        return [
+            f"the strip lies up to {max(abs(lo - x_tablet), abs(hi - x_tablet)):.0f} mm across the carriage from "
+            "where the tablet lay, and the lamp's profile was not measured (no open platen on the tablet scan); "
+            "place the strip where the tablet was, or calibrate with the tablet on the same scan"
+        ]
+    return []
+
+
 def _list(steps: Sequence[int]) -> str:
     """'step 3' or 'steps 3, 4, 5'."""
     word = "step" if len(steps) == 1 else "steps"
@@ -350,21 +564,29 @@ def analyze_loaded(
     options: AnalysisOptions = AnalysisOptions(),
     geometries: Sequence[StripGeometry] | None = None,
     excluded: dict[int, Sequence[int]] | None = None,
+    tablet_certificate: Certificate | None = None,
 ) -> Analysis:
     """Analyse a loaded scan; see :func:`analyze_scan`."""
     warnings: list[str] = []
     check_exposure(scan)
-    if calibration is None:
-        mapping: Calibration | DirectMode = direct_mode_for(scan, dark=options.dark, clear_area=options.clear_area)
-        warnings.append(UNCALIBRATED)
-    else:
-        warnings += _check_compatible(scan, calibration)
-        mapping = calibration
+    tablet_outline = None
+    if tablet_certificate is not None:
+        if calibration is not None:
+            raise AnalysisError(f"{scan.header.path}: give a calibration or a tablet on the scan, not both")
+        calibration, tablet, notes = calibrate_loaded(scan, tablet_certificate)
+        tablet_outline = tablet.geometry
+        warnings += [f"tablet on the scan: {n}" for n in notes]
+    mapping, notes = density_map_for(scan, calibration, options)
+    warnings += notes
     if geometries is None:
         try:
             found = locate_in_scan(scan, LocateOptions(n_steps=options.n_steps))
         except ValueError as exc:
             raise AnalysisError(f"{scan.header.path}: {exc}") from None
+        if tablet_outline is not None:
+            found = [f for f in found if not _same_piece(f.geometry, tablet_outline)]
+            if not found:
+                raise AnalysisError(f"{scan.header.path}: no strip was found beside the tablet")
     else:
         found = [
             FoundStrip(with_step_count(g, options.n_steps) if options.n_steps else g, (), False)
@@ -386,14 +608,44 @@ def analyze_loaded(
         )
         strips.append(result)
         warnings += [f"strip {index}: {w}" for w in result.warnings if w != UNCALIBRATED]  # said once above
+    warnings += _base_fog_spread(strips)
+    summary = mapping.summary()
+    if tablet_outline is not None:
+        # The result carries the whole fit: nothing else records this calibration.
+        summary = {**summary, "tablet_on_scan": True, "fit": calibration.to_dict()}
     return Analysis(
         scan=scan.info,
-        calibration=mapping.summary(),
+        calibration=summary,
         strips=tuple(strips),
         warnings=tuple(warnings),
         program_version=__version__,
         settings=options.to_dict(),
     )
+
+
+def _same_piece(a: StripGeometry, b: StripGeometry) -> bool:
+    """True when the centre of ``a``'s step band lies inside ``b``'s."""
+    r, c = a.point_rc(0.5 * a.length_px, 0.5 * a.band_width_px)
+    (r0, c0), (ar, ac), (nr, nc) = b.origin_rc, b.axis_rc, b.normal_rc
+    u = (r - r0) * ar + (c - c0) * ac
+    v = (r - r0) * nr + (c - c0) * nc
+    return 0.0 <= u <= b.length_px and 0.0 <= v <= b.band_width_px
+
+
+def _base_fog_spread(strips: Sequence[StripResult]) -> list[str]:
+    """Warn when the strips' base+fog differ across the platen by more than :data:`BASE_FOG_SPREAD`."""
+    read = [(s.index, s.figures.base_fog) for s in strips if s.figures.base_fog is not None]
+    if len(read) < 2:
+        return []
+    low = min(read, key=lambda p: p[1])
+    high = max(read, key=lambda p: p[1])
+    if high[1] - low[1] <= BASE_FOG_SPREAD:
+        return []
+    return [
+        f"base+fog differs by {high[1] - low[1]:.3f} OD between strip {low[0]} ({low[1]:.3f}) and strip "
+        f"{high[0]} ({high[1]:.3f}); if they are the same film, the lamp or the stray light differs between "
+        "their places on the platen"
+    ]
 
 
 def analyze_scan(
@@ -404,6 +656,7 @@ def analyze_scan(
     dpi: float | None = None,
     channel: str = "auto",
     flat_field_scan: str | os.PathLike[str] | None = None,
+    tablet_certificate: Certificate | None = None,
 ) -> Analysis:
     """Read every strip on a scan: densities per step, curve figures.
 
@@ -421,11 +674,15 @@ def analyze_scan(
         Channel rule, see :func:`stripscan.core.scan.load_scan`.
     flat_field_scan : path-like, optional
         Blank-platen scan of the same size to divide by.
+    tablet_certificate : Certificate, optional
+        A reference tablet lies on the same scan as the strips: it is found,
+        calibrates this scan (same lamp, same stray light, same moment) and
+        is left out of the strips.
     """
     scan = load_scan(path, dpi=dpi, channel=channel)
     if flat_field_scan is not None:
         scan = _apply_flat_field(scan, flat_field_scan, channel)
-    return analyze_loaded(scan, calibration=calibration, options=options)
+    return analyze_loaded(scan, calibration=calibration, options=options, tablet_certificate=tablet_certificate)
 
 
 def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: str) -> Scan:
@@ -435,6 +692,152 @@ def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: s
     except CalibrationError as exc:
         raise AnalysisError(f"{blank_path}: {exc}") from None
     return Scan.from_signal(corrected, scan.info)
+
+
+#: Sub-areas each tablet step is split into (along, across) to see how light varies inside it.
+_STEP_CELLS = (2, 4)
+
+
+def _tablet_areas(scan: Scan, geometry: StripGeometry, steps: Sequence[int]) -> list[Observation]:
+    """Each usable tablet step read in sub-areas (light varies inside a step only by stray light and lamp)."""
+    areas = []
+    n_u, n_v = _STEP_CELLS
+    for step in steps:
+        c0, c1, _, c3 = (np.asarray(p, dtype=np.float64) for p in geometry.step_box_rc(step))
+        e_u, e_v = (c1 - c0) / n_u, (c3 - c0) / n_v
+        rc, signal, sem = [], [], []
+        for i in range(n_u):
+            for j in range(n_v):
+                a = c0 + i * e_u + j * e_v
+                corners = [tuple(a), tuple(a + e_u), tuple(a + e_u + e_v), tuple(a + e_v)]
+                centre = a + 0.5 * (e_u + e_v)
+                reading, clipped = read_area(scan, None, corners, step=step, center_rc=(centre[0], centre[1]))
+                if clipped or not math.isfinite(reading.signal) or reading.pixels < 4:
+                    continue
+                rc.append(centre)
+                signal.append(reading.signal)
+                sem.append(reading.signal_sd / math.sqrt(reading.pixels))
+        if len(signal) >= 3:
+            areas.append(Observation(np.asarray(rc), np.asarray(signal), np.maximum(np.asarray(sem), 1e-9)))
+    return areas
+
+
+def _piece_mask(reduced, geometry: StripGeometry, margin_px: float) -> np.ndarray:
+    """Cells of a reduced scan that lie within ``margin_px`` of a piece's outline."""
+    rows, cols = np.meshgrid(reduced.rows_px, reduced.cols_px, indexing="ij")
+    (r0, c0), (ar, ac), (nr, nc) = geometry.origin_rc, geometry.axis_rc, geometry.normal_rc
+    u = (rows - r0) * ar + (cols - c0) * ac
+    v = (rows - r0) * nr + (cols - c0) * nc
+    return (u > -margin_px) & (u < geometry.length_px + margin_px) & (v > -margin_px) & (
+        v < geometry.band_width_px + margin_px)
+
+
+def fit_tablet(scan: Scan, geometry: StripGeometry, readings: Sequence[StepReading], certificate: Certificate,
+               **provenance) -> Calibration:
+    """Fit the calibration of a read tablet, with the scanner's stray light when the scan's resolution is known.
+
+    The map is fitted first as if there were no stray light; the stray light
+    and lamp are then fitted on the light's variations inside the tablet's
+    steps and over the open platen (see :mod:`stripscan.core.straylight`),
+    the map refitted on the light the sensor saw, and both once more.
+    """
+    calibration = fit_calibration(readings, certificate, **provenance)
+    if not scan.pixel_mm:
+        return calibration
+    reduced = reduce_scan(scan)
+    used = [r.step for r in readings if r.step not in calibration.excluded_steps and math.isfinite(r.signal)]
+    areas = _tablet_areas(scan, geometry, used)
+    # The tablet's clear ends are not open platen: keep its whole piece out of the platen cells.
+    tablet_cells = _piece_mask(reduced, geometry, 12.0 / scan.pixel_mm)
+    for _ in range(2):
+        platen = platen_observations(reduced, calibration.light, exclude=tablet_cells)
+        model, _info = fit_stray_light(reduced, calibration.light, calibration.light_slope, areas, platen=platen,
+                                       source="the tablet scan")
+        field = spread_field(reduced, calibration.light, model)
+        seen = [(field.lamp_at(r.center_rc), field.at(r.center_rc)) for r in readings]
+        calibration = fit_calibration(readings, certificate, stray_light=model, seen=seen, **provenance)
+    return calibration
+
+
+def _steps_fill_width(scan: Scan, geometry: StripGeometry) -> bool:
+    """True when a piece's steps run across its whole width, as a tablet's do.
+
+    The two long halves of the band are read step by step: on a tablet both
+    change along the piece alike; on a strip one half is the unexposed film
+    beside the steps, nearly flat.
+    """
+    profiles = []
+    for v0, v1 in ((0.1, 0.4), (0.6, 0.9)):
+        values = []
+        for step in range(1, geometry.n_steps + 1):
+            u0, u1 = (step - 0.8) * geometry.step_pitch_px, (step - 0.2) * geometry.step_pitch_px
+            w0, w1 = v0 * geometry.band_width_px, v1 * geometry.band_width_px
+            corners = [geometry.point_rc(u0, w0), geometry.point_rc(u1, w0), geometry.point_rc(u1, w1),
+                       geometry.point_rc(u0, w1)]
+            reading, clipped = read_area(scan, None, corners, step=step, center_rc=geometry.step_center_rc(step))
+            values.append(reading.signal if not clipped and reading.signal > 0 else np.nan)
+        profiles.append(np.log10(np.asarray(values, dtype=np.float64)))
+    spreads = [float(np.nanstd(p)) if np.isfinite(p).sum() >= 3 else 0.0 for p in profiles]
+    return max(spreads) > 0 and min(spreads) > 0.5 * max(spreads)
+
+
+def calibrate_loaded(scan: Scan, certificate: Certificate, *, lateral: LateralCorrection | None = None,
+                     flat_field_sha256: str | None = None, note: str = "") -> tuple[Calibration, FoundStrip, list[str]]:
+    """Locate a step tablet on a loaded scan, read it and fit the calibration; see :func:`calibrate_tablet`.
+
+    When the scan holds several pieces of film, the tablet is the one whose
+    steps fill its whole width (no unexposed film beside them); the longest
+    such piece if there are several.
+    """
+    path = scan.header.path
+    n = len(certificate.densities)
+    try:
+        check_exposure(scan)
+        found = locate_in_scan(scan, LocateOptions(n_steps=n, full_width_band=True))
+    except ValueError as exc:
+        raise CalibrationError(f"{path}: {exc}") from None
+    warnings = []
+    if len(found) > 1:
+        tablets = [f for f in found if _steps_fill_width(scan, f.geometry)]
+        if not tablets:
+            raise CalibrationError(
+                f"{path}: {len(found)} pieces of film were found but none is a step tablet (steps across the "
+                "whole width, no unexposed film beside them)"
+            )
+        if len(tablets) > 1:
+            warnings.append(f"{len(tablets)} tablet-like pieces found on the scan; the longest is taken as the tablet")
+        found = tablets
+    tablet = max(found, key=lambda f: f.geometry.length_px)
+    warnings += list(tablet.warnings)
+    readings, _, notes = read_strip(scan, None, tablet.geometry)
+    warnings += notes
+    centre = tablet.geometry.point_rc(0.5 * tablet.geometry.length_px, 0.5 * tablet.geometry.band_width_px)
+    try:
+        calibration = fit_tablet(
+            scan,
+            tablet.geometry,
+            readings,
+            certificate,
+            scan_sha256=scan.info.sha256,
+            scan_path=scan.info.path,
+            bits=scan.info.bits,
+            channel=scan.info.channel,
+            decoding=scan.info.decoding,
+            dpi=scan.info.dpi,
+            tablet_center_rc=centre,
+            lateral=lateral,
+            flat_field_sha256=flat_field_sha256,
+            note=note,
+        )
+    except CalibrationError as exc:
+        raise CalibrationError(f"{path}: {exc}") from None
+    if calibration.excluded_steps:
+        warnings.append(
+            f"tablet {_list(calibration.excluded_steps)} "
+            f"{'is' if len(calibration.excluded_steps) == 1 else 'are'} not distinguished by the scanner; "
+            f"the calibration ends at {calibration.covered_od[1]:.2f} OD"
+        )
+    return calibration, tablet, warnings
 
 
 def calibrate_tablet(
@@ -461,41 +864,4 @@ def calibrate_tablet(
     if flat_field_scan is not None:
         scan = _apply_flat_field(scan, flat_field_scan, channel)
         ff_sha = load_scan(flat_field_scan, channel=channel).info.sha256
-    n = len(certificate.densities)
-    try:
-        check_exposure(scan)
-        found = locate_in_scan(scan, LocateOptions(n_steps=n, full_width_band=True))
-    except ValueError as exc:
-        raise CalibrationError(f"{path}: {exc}") from None
-    warnings = []
-    if len(found) > 1:
-        warnings.append(f"{len(found)} pieces found on the tablet scan; the longest is taken as the tablet")
-    tablet = max(found, key=lambda f: f.geometry.length_px)
-    warnings += list(tablet.warnings)
-    readings, _, notes = read_strip(scan, None, tablet.geometry)
-    warnings += notes
-    centre = tablet.geometry.point_rc(0.5 * tablet.geometry.length_px, 0.5 * tablet.geometry.band_width_px)
-    try:
-        calibration = fit_calibration(
-            readings,
-            certificate,
-            scan_sha256=scan.info.sha256,
-            scan_path=scan.info.path,
-            bits=scan.info.bits,
-            channel=scan.info.channel,
-            decoding=scan.info.decoding,
-            dpi=scan.info.dpi,
-            tablet_center_rc=centre,
-            lateral=lateral,
-            flat_field_sha256=ff_sha,
-            note=note,
-        )
-    except CalibrationError as exc:
-        raise CalibrationError(f"{path}: {exc}") from None
-    if calibration.excluded_steps:
-        warnings.append(
-            f"tablet {_list(calibration.excluded_steps)} "
-            f"{'is' if len(calibration.excluded_steps) == 1 else 'are'} not distinguished by the scanner; "
-            f"the calibration ends at {calibration.covered_od[1]:.2f} OD"
-        )
-    return calibration, tablet, warnings
+    return calibrate_loaded(scan, certificate, lateral=lateral, flat_field_sha256=ff_sha, note=note)

@@ -26,6 +26,7 @@ __all__ = [
     "StripGeometry",
     "StepReading",
     "StepDensity",
+    "STEP_FLAGS",
     "CurveFigures",
     "StripResult",
     "Analysis",
@@ -258,6 +259,20 @@ class StepReading:
         return to_dict(dataclasses.asdict(self))
 
 
+#: Why a step's reading is not used (``StepDensity.flag``), in the words the
+#: window, the tables and the reports use.
+STEP_FLAGS = {
+    "": "",
+    "not_read": "not read",
+    "outside_range": "outside the calibrated range",
+    "saturated": "the scanner saturates",
+    "dark_floor": "at the scanner's dark floor",
+    "too_noisy": "reading noise too high for ±0.02 OD",
+    "stray_light": "stray light from the surroundings too large to correct within ±0.02 OD",
+    "flare_plateau": "density no longer rises with exposure (flare plateau or shoulder; uncalibrated)",
+}
+
+
 @dataclass(frozen=True)
 class StepDensity:
     """Calibrated optical density of one step.
@@ -282,6 +297,12 @@ class StepDensity:
     excluded : bool
         True when a person excluded the step (dust, damage); excluded steps
         are kept in the table but not used for the curve.
+    flag : str
+        Why the reading is not used, one of :data:`STEP_FLAGS`; empty when
+        it is used (``in_range`` True).
+    stray_light_share : float or None
+        Share of the light seen at the step that the stray-light model calls
+        spread light from the surroundings (0..1); None without a model.
     """
 
     step: int
@@ -292,6 +313,8 @@ class StepDensity:
     in_range: bool
     center_rc: tuple[float, float]
     excluded: bool = False
+    flag: str = ""
+    stray_light_share: float | None = None
 
     def to_dict(self) -> dict[str, Any]:
         row, col = self.center_rc
@@ -304,6 +327,8 @@ class StepDensity:
             "in_range": bool(self.in_range),
             "excluded": bool(self.excluded),
             "center_px": [clean_float(col, 2), clean_float(row, 2)],
+            "flag": self.flag,
+            "stray_light_share": clean_float(self.stray_light_share, 4),
         }
 
     @classmethod
@@ -319,6 +344,9 @@ class StepDensity:
             in_range=bool(data["in_range"]),
             center_rc=(float(y), float(x)),
             excluded=bool(data.get("excluded", False)),
+            # Results written before the reasons existed say only "not in range".
+            flag=str(data.get("flag", "" if data["in_range"] else "outside_range")),
+            stray_light_share=None if data.get("stray_light_share") is None else float(data["stray_light_share"]),
         )
 
 

@@ -206,7 +206,10 @@ class ScannerModel:
         gain * channel_gain * lamp(x) * warmup_gain * s ** response_gamma + dark_offset
 
     with ``lamp(x) = 1 - lamp_falloff * ((x - mid) / half) ** 2`` across the
-    carriage (columns), then noise of sd ``sqrt(noise_sd**2 + shot_noise**2 * signal)``,
+    carriage (columns) — centred on the scan itself, or, with
+    ``lamp_platen_mm``, on a platen of that width whose left edge is the
+    scan's first column (a real lamp is fixed to the platen, and a scan of
+    part of it starts at its corner) — then noise of sd ``sqrt(noise_sd**2 + shot_noise**2 * signal)``,
     clipping, encoding and quantisation to ``2**bits - 1``.
     """
 
@@ -228,6 +231,7 @@ class ScannerModel:
     hairs: int = 0  # thin dark curved lines
     seed: int = 0
     channel_gains: tuple[float, float, float] = (1.0, 0.99, 1.02)  # RGB only
+    lamp_platen_mm: float | None = None  # lamp centred on a platen this wide; None: on the scan itself
 
     def __post_init__(self) -> None:
         if self.bits not in (8, 16):
@@ -595,9 +599,15 @@ def _optics(T: np.ndarray, sc: ScannerModel, pitch: float) -> np.ndarray:
     return s
 
 
-def _lamp(col: ArrayLike, width: int, falloff: float) -> np.ndarray:
-    """Lamp profile across the carriage: 1 - falloff * ((x - mid) / half) ** 2."""
+def _lamp(col: ArrayLike, width: int, falloff: float, platen_px: float | None = None) -> np.ndarray:
+    """Lamp profile across the carriage: 1 - falloff * ((x - mid) / half) ** 2.
+
+    ``mid`` and ``half`` are the scan's own (width in columns), or those of
+    a platen ``platen_px`` columns wide that starts at column 0.
+    """
     x = np.asarray(col, dtype=np.float64)
+    if platen_px is not None:
+        return 1.0 - falloff * ((x + 0.5 - 0.5 * platen_px) / (0.5 * platen_px)) ** 2
     return 1.0 - falloff * ((x - 0.5 * (width - 1)) / (0.5 * width)) ** 2
 
 
@@ -622,7 +632,7 @@ def srgb_encode(linear: ArrayLike) -> np.ndarray:
 
 
 def expected_signal(T: ArrayLike, scanner: ScannerModel, *, col: ArrayLike | None = None, width: int | None = None,
-                    channel: int = 0) -> float | np.ndarray:
+                    channel: int = 0, dpi: float | None = None) -> float | np.ndarray:
     """Noiseless linear signal (0..1 of full scale, before encoding) for a uniform field of transmittance T.
 
     ``col`` (with the image ``width``) applies the lamp profile; without it the
@@ -632,21 +642,25 @@ def expected_signal(T: ArrayLike, scanner: ScannerModel, *, col: ArrayLike | Non
     if col is not None:
         if width is None:
             raise ValueError("give the image width with col")
-        lamp = _lamp(col, width, scanner.lamp_falloff)
+        if scanner.lamp_platen_mm is not None and dpi is None:
+            raise ValueError("give the dpi with col for a lamp fixed to the platen")
+        platen_px = scanner.lamp_platen_mm * dpi / 25.4 if scanner.lamp_platen_mm is not None else None
+        lamp = _lamp(col, width, scanner.lamp_falloff, platen_px)
     gain = scanner.gain * scanner.channel_gain(channel) * scanner.warmup_gain
     signal = np.clip(gain * lamp * np.power(np.asarray(T, dtype=np.float64), scanner.response_gamma)
                      + scanner.dark_offset, 0.0, 1.0)
     return float(signal) if signal.ndim == 0 else signal
 
 
-def _sensor(s: np.ndarray, sc: ScannerModel, rng: np.random.Generator) -> np.ndarray:
+def _sensor(s: np.ndarray, sc: ScannerModel, rng: np.random.Generator, pitch: float) -> np.ndarray:
     """Sensor response, noise, clipping, encoding and quantisation, a band of rows at a time.
 
     Consumes ``s``.  Noise is drawn band by band, channel by channel, so a
     seed gives the same image every time.
     """
     rows, cols = s.shape
-    lamp = _lamp(np.arange(cols), cols, sc.lamp_falloff).astype(np.float32)
+    platen_px = sc.lamp_platen_mm / pitch if sc.lamp_platen_mm is not None else None
+    lamp = _lamp(np.arange(cols), cols, sc.lamp_falloff, platen_px).astype(np.float32)
     gains = [np.float32(sc.gain * sc.channel_gain(ch) * sc.warmup_gain) * lamp for ch in range(sc.channels)]
     dtype, top = (np.uint8, 255) if sc.bits == 8 else (np.uint16, 65535)
     out = np.empty((rows, cols, 3) if sc.channels == 3 else (rows, cols), dtype=dtype)
@@ -713,7 +727,7 @@ def simulate_scan(
     defects = _add_defects(T, layouts, scanner, np.random.default_rng(defect_seed), pitch)
     s = _optics(T, scanner, pitch)
     del T
-    image = _sensor(s, scanner, np.random.default_rng(noise_seed))
+    image = _sensor(s, scanner, np.random.default_rng(noise_seed), pitch)
     truth = tuple(_truth(obj, lay) for obj, lay in zip(objects, layouts))
     return SimulatedScan(image=image, dpi=float(dpi), scanner=scanner, truth=truth, defects=tuple(defects))
 

@@ -30,7 +30,14 @@ import numpy as np
 from .. import __version__
 from ..core.calibration import Calibration, DirectMode
 from ..core.locate import LocateError, LocateOptions, locate_in_scan, with_step_count
-from ..core.pipeline import AnalysisOptions, analyze_loaded, direct_mode_for, read_found_strip, strip_result
+from ..core.pipeline import (
+    AnalysisOptions,
+    CorrectedMap,
+    check_exposure,
+    density_map_for,
+    read_found_strip,
+    strip_result,
+)
 from ..core.records import Analysis, StepReading, StripGeometry, StripResult
 from ..core.sample import read_strip
 from ..core.scan import Scan, load_scan
@@ -283,7 +290,7 @@ class Session:
         self.search_notes: tuple[str, ...] = ()
         self.calibration: Calibration | None = None
         self.calibration_path: str | None = None
-        self.mapping: Calibration | DirectMode | None = None
+        self.mapping: Calibration | DirectMode | CorrectedMap | None = None
         self.mapping_error: str | None = None
         self.mapping_warnings: tuple[str, ...] = ()
         self._strips: list[StripState] = []
@@ -533,15 +540,12 @@ class Session:
         if self.scan is None:
             return
         try:
-            # With no strips this only checks the scan against the calibration
-            # (bit depth, decoding, resolution) exactly as the command line does.
-            probe = analyze_loaded(self.scan, calibration=self.calibration, options=self.options, geometries=[])
-            self.mapping = (
-                self.calibration
-                if self.calibration is not None
-                else direct_mode_for(self.scan, dark=self.options.dark, clear_area=self.options.clear_area)
-            )
-            self.mapping_warnings = probe.warnings
+            # The core's own rules: direct mode, or the calibration with this
+            # scan's stray light; the same checks and warnings as the command line.
+            check_exposure(self.scan)
+            mapping, warnings = density_map_for(self.scan, self.calibration, self.options)
+            self.mapping = mapping
+            self.mapping_warnings = tuple(warnings)
         except ValueError as exc:
             self.mapping_error = str(exc)
 

@@ -133,14 +133,9 @@ def _open_archive(args: argparse.Namespace) -> Any:
 
 
 def _analysis(args: argparse.Namespace, source: Source) -> tuple[Any, Any]:
-    from ..cli import _analysis_options
-    from ..core.calibration import load_calibration
-    from ..core.pipeline import analyze_scan
+    from ..cli import analysis_from_args
 
-    calibration = load_calibration(args.calibration) if args.calibration else None
-    analysis = analyze_scan(source.path, calibration=calibration, options=_analysis_options(args), dpi=args.dpi,
-                            channel=args.channel, flat_field_scan=args.flat_field)
-    return analysis, calibration
+    return analysis_from_args(args, source.path)
 
 
 def _pick(strips: tuple[Any, ...], number: int | None, what: str) -> tuple[Any, ...]:

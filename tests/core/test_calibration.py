@@ -94,8 +94,23 @@ def test_ideal_scanner_maps_signal_to_density_by_definition():
     assert ok.all()
     # PCHIP through points on a straight line reproduces it: every residual is zero.
     assert cal.rms_residual == pytest.approx(0.0, abs=1e-12)
-    assert cal.residuals[0] is None and cal.residuals[-1] is None
+    # The lightest step starts the range (no residual); the densest is tested
+    # one-sidedly, extrapolated from the others (issue: a verified range top).
+    assert cal.residuals[0] is None and cal.residuals[-1] == pytest.approx(0.0, abs=1e-9)
     assert cal.valid_od == (0.05, 3.05)
+
+
+def test_range_top_is_tested_not_taken_on_trust():
+    """The densest usable step ends the range only when its one-sided residual is within the goal."""
+    signals = [10 ** -d for d in NOMINAL]
+    # The densest step reads 5 % too bright (stray light the map cannot know):
+    # extrapolated from the others it is predicted 0.021 OD too light.
+    signals[-1] *= 1.05
+    cal = fit(signals)
+    assert cal.residuals[-1] == pytest.approx(-math.log10(1.05), abs=2e-3)
+    # ±0.02 OD, the accuracy expected of a QC densitometer (common practice):
+    # the untested top would have been 3.05; the range now ends one step lower.
+    assert cal.valid_od == (0.05, 2.90)
 
 
 def test_nonlinear_scanner_is_undone_at_and_between_steps():

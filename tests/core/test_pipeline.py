@@ -26,9 +26,12 @@ from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec
 LINEAR16 = ScannerModel(bits=16, encoding="linear", channels=1, seed=21)
 SRGB8 = ScannerModel(bits=8, encoding="srgb", channels=3, seed=22)
 # Settings never used while developing: a more non-linear sensor, stronger lamp
-# falloff, more flare, a warm-up gain, and more noise.
+# falloff (fixed to a 216 mm platen, as a real lamp is: the tablet's 80 mm scan
+# and the strips' 120 mm scan both start at the platen's corner), more flare,
+# a warm-up gain, and more noise.
 OTHER16 = ScannerModel(bits=16, response_gamma=0.88, gain=0.85, lamp_falloff=0.03, flare_fraction=0.0008,
-                       dark_offset=0.006, noise_sd=0.002, warmup_gain=1.01, blur_sigma_px=1.1, seed=23)
+                       dark_offset=0.006, noise_sd=0.002, warmup_gain=1.01, blur_sigma_px=1.1, seed=23,
+                       lamp_platen_mm=216.0)
 FILMS = {
     "general": FilmModel(),
     "low-contrast": FilmModel(base_fog=0.21, dmax=3.3, log_e_mid=1.5, slope=3.2, asymmetry=1.1),
@@ -197,3 +200,32 @@ def test_every_direct_mode_strip_says_it_is_uncalibrated(tmp_path):
     analysis = analyze_scan(path)
     assert all(strip.warnings[0] == UNCALIBRATED for strip in analysis.strips)
     assert analysis.warnings.count(UNCALIBRATED) == 1 and not any("strip 1: UNCALIBRATED" in w for w in analysis.warnings)
+
+
+def test_direct_mode_takes_the_flare_plateau_off_the_curve(bench):
+    """Direct mode: dense steps capped by flare are not used, and are not Dmax (issue: flare plateau)."""
+    scanner = ScannerModel(bits=16, gain=0.95, dark_offset=0.0, response_gamma=1.0, lamp_falloff=0.0,
+                           flare_fraction=0.004, flare_sigma_mm=10.0, noise_sd=0.0003, shot_noise=0.0, seed=62)
+    dense = FilmModel(dmax=4.0, log_e_mid=1.5, slope=5.0)
+    path, sim = bench.scan([StripSpec(film=dense, center_mm=(60.0, 100.0), angle_deg=90.0)],
+                           scanner=scanner, dpi=150.0, platen_mm=(120.0, 200.0))
+    (strip,) = analyze_scan(path).strips
+    true = np.asarray(sim.truth[0]["od"])
+    plateau = [s for s in strip.steps if s.flag == "flare_plateau"]
+    assert plateau, "the steps above the flare cap should be flagged"
+    # Every flagged step is one whose true density lies well above what the scanner shows.
+    assert all(true[s.step - 1] > s.od + 0.1 for s in plateau)
+    assert strip.figures.dmax is None or strip.figures.dmax < min(s.od for s in plateau) + 1e-9
+    assert any("flare plateau" in w for w in strip.warnings)
+
+
+def test_every_unused_step_says_why_in_json(bench, match_strips):
+    cal = bench.calibration(LINEAR16, 200.0)
+    dense = FilmModel(dmax=4.2, log_e_mid=1.4, slope=5.0)
+    path, _ = bench.scan([StripSpec(film=dense, center_mm=(60.0, 100.0), angle_deg=90.0)],
+                         scanner=dataclasses.replace(LINEAR16, seed=63), dpi=200.0, platen_mm=(120.0, 200.0))
+    (strip,) = analyze_scan(path, calibration=cal).to_dict()["strips"]
+    for step in strip["steps"]:
+        assert (step["flag"] == "") == step["in_range"]
+        assert step["flag"] in ("", "outside_range", "too_noisy", "saturated", "stray_light", "not_read")
+        assert step["stray_light_share"] is None or 0.0 <= step["stray_light_share"] <= 1.0

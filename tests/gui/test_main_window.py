@@ -12,6 +12,7 @@ from PySide6.QtWidgets import QMessageBox
 
 from stripscan import CAUTION
 from stripscan.core.calibration import load_calibration
+from stripscan.core.pipeline import read_density
 from stripscan.core.curve import FigureSettings, compute_figures
 from stripscan.core.locate import locate_strips
 from stripscan.core.sample import read_strip
@@ -56,7 +57,7 @@ def test_dragging_a_density_level_updates_gradient_and_latitude(qtbot, open_scan
     assert session.levels == pytest.approx((0.60, 1.70))
     state = session.strips[session.selected]
     steps = state.result.steps
-    bf = float(session.mapping.density(state.base_fog_reading.signal)[0][0])
+    bf = read_density(session.mapping, state.base_fog_reading, session.scan.pixel_mm)[0]
     core = compute_figures([s.log_exposure for s in steps], [s.od for s in steps],
                            [s.in_range and not s.excluded for s in steps], base_fog=bf,
                            settings=FigureSettings(gradient_low=0.60, gradient_high=1.70))
