@@ -29,15 +29,19 @@ from typing import Any, NamedTuple, Sequence
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import ndimage
+from scipy.signal import fftconvolve
 
 from .records import StripGeometry
 
 __all__ = [
     "FilmModel", "StripSpec", "TabletSpec", "ScannerModel", "SimulatedScan", "simulate_scan",
-    "render_transmittance", "expected_signal", "srgb_encode", "write_tiff", "write_certificate",
+    "render_transmittance", "expected_signal", "srgb_encode", "write_tiff", "write_certificate", "FLARE_KERNELS",
 ]
 
 _CHUNK_ROWS = 256  # rows rendered at a time: bounds the temporaries for large boxes
+
+#: Shapes of the scanner's wide flare kernel (:class:`ScannerModel`).
+FLARE_KERNELS = ("gaussian", "exponential", "two_gaussian")
 
 
 # --------------------------------------------------------------------------- film
@@ -211,6 +215,19 @@ class ScannerModel:
     scan's first column (a real lamp is fixed to the platen, and a scan of
     part of it starts at its corner) — then noise of sd ``sqrt(noise_sd**2 + shot_noise**2 * signal)``,
     clipping, encoding and quantisation to ``2**bits - 1``.
+
+    The flare is ``s = (1 - f) T + f K * T`` with ``f = flare_fraction`` and a
+    wide kernel K of total weight 1 (a uniform field is unchanged), shaped by
+    ``flare_kernel``:
+
+    * ``"gaussian"``: a Gaussian of sd ``flare_sigma_mm``;
+    * ``"exponential"``: ``K(r) ∝ exp(-r / flare_sigma_mm)``, a long tail;
+    * ``"two_gaussian"``: 0.7 of a Gaussian of sd ``flare_sigma_mm / 2``
+      plus 0.3 of one of sd ``2 * flare_sigma_mm``.
+
+    The flare acts on T before the lamp profile (the lamp multiplies the
+    flared image), not on the light the lamp lets through: changing the order
+    would change every default image, which the sample scans and tests rely on.
     """
 
     bits: int = 16  # 8 or 16
@@ -221,7 +238,8 @@ class ScannerModel:
     gain: float = 0.92  # signal of the clear platen
     lamp_falloff: float = 0.015  # parabolic across the carriage (columns)
     flare_fraction: float = 0.0005  # fraction of light spread by a wide kernel (veiling glare)
-    flare_sigma_mm: float = 8.0
+    flare_sigma_mm: float = 8.0  # the kernel's scale, see flare_kernel
+    flare_kernel: str = "gaussian"  # or "exponential", "two_gaussian" (see the class notes)
     blur_sigma_px: float = 0.7  # optical blur
     noise_sd: float = 0.0015  # additive read noise, fraction of full scale
     shot_noise: float = 0.002  # signal-dependent noise
@@ -242,6 +260,10 @@ class ScannerModel:
             raise ValueError(f"channels must be 1 or 3, got {self.channels}")
         if not 0.0 <= self.flare_fraction < 1.0 or self.response_gamma <= 0:
             raise ValueError("need 0 <= flare_fraction < 1 and response_gamma > 0")
+        if self.flare_kernel not in FLARE_KERNELS:
+            raise ValueError(f"flare_kernel must be one of {', '.join(FLARE_KERNELS)}, got {self.flare_kernel!r}")
+        if self.flare_fraction > 0 and not self.flare_sigma_mm > 0:
+            raise ValueError(f"flare_sigma_mm must be positive, got {self.flare_sigma_mm}")
 
     def channel_gain(self, channel: int) -> float:
         return self.channel_gains[channel] if self.channels == 3 else 1.0
@@ -554,21 +576,62 @@ def _add_defects(T: np.ndarray, layouts: list[_Layout], sc: ScannerModel, rng: n
 # --------------------------------------------------------------------------- scanner pipeline
 
 
-def _wide_gaussian(image: np.ndarray, sigma_px: float) -> tuple[np.ndarray, np.ndarray]:
-    """A Gaussian of a wide kernel as two factors: ``rows @ across`` is the blurred image.
-
-    The Gaussian runs on a block-averaged image; the factors upsample it
-    bilinearly, so the full-resolution result is made a band at a time.
-    """
-    factor = max(1, int(sigma_px // 3))
+def _block_mean(image: np.ndarray, factor: int) -> np.ndarray:
+    """Means of ``factor`` x ``factor`` blocks (the last row and column of blocks may be smaller)."""
     small = image
     for axis in (0, 1):
         starts = np.arange(0, image.shape[axis], factor)
         counts = np.diff(np.append(starts, image.shape[axis])).astype(np.float32)
         small = np.add.reduceat(small, starts, axis=axis) / (counts[:, None] if axis == 0 else counts)
-    # The block mean is itself a box filter of variance factor**2 / 12: take it off the kernel.
-    sigma_small = math.sqrt(max(sigma_px**2 - factor**2 / 12.0, 0.0)) / factor
-    small = ndimage.gaussian_filter(small.astype(np.float32), sigma_small, mode="nearest")
+    return small
+
+
+def _exponential_kernel(scale: float, *, tail: float = 12.0, oversample: int = 5) -> np.ndarray:
+    """Discrete kernel ∝ exp(-r / scale) (r, scale in pixels), weights summing to 1.
+
+    Each weight is the kernel's mean over its pixel (``oversample`` points a
+    side), so the cusp at r = 0 is not over-weighted; it is cut off at
+    ``tail * scale``, where the weight left outside is (1 + tail) e**-tail
+    (below 1e-4 for 12).
+    """
+    radius = max(1, int(math.ceil(tail * scale)))
+    sub = (np.arange(oversample) + 0.5) / oversample - 0.5
+    x = (np.arange(-radius, radius + 1)[:, None] + sub[None, :]).ravel()
+    r = np.hypot(x[:, None], x[None, :])
+    n = 2 * radius + 1
+    kernel = np.exp(-r / scale).reshape(n, oversample, n, oversample).mean(axis=(1, 3))
+    return kernel / kernel.sum()
+
+
+def _wide_flare(image: np.ndarray, sc: ScannerModel, pitch: float) -> tuple[np.ndarray, np.ndarray]:
+    """The flare kernel applied to the image, as two factors: ``rows @ across`` is the result.
+
+    The kernel runs on a block-averaged image (blocks about a third of the
+    kernel's narrowest scale), the platen's edge continued outwards
+    (``nearest``); the factors upsample the result bilinearly, so the
+    full-resolution image is made a band at a time and the memory stays that
+    of the reduced image.
+    """
+    sigma_px = sc.flare_sigma_mm / pitch
+    narrowest = 0.5 * sigma_px if sc.flare_kernel == "two_gaussian" else sigma_px
+    factor = max(1, int(narrowest // 3))
+    small = _block_mean(image, factor)
+
+    def gaussian(sigma: float) -> np.ndarray:
+        # The block mean is itself a box filter of variance factor**2 / 12: take it off the kernel.
+        sigma_small = math.sqrt(max(sigma**2 - factor**2 / 12.0, 0.0)) / factor
+        return ndimage.gaussian_filter(small.astype(np.float32), sigma_small, mode="nearest")
+
+    if sc.flare_kernel == "gaussian":
+        small = gaussian(sigma_px)
+    elif sc.flare_kernel == "two_gaussian":
+        small = 0.7 * gaussian(0.5 * sigma_px) + 0.3 * gaussian(2.0 * sigma_px)
+    else:  # exponential: no separable form, so an FFT convolution of the reduced image
+        kernel = _exponential_kernel(sigma_px / factor)
+        pad = kernel.shape[0] // 2
+        padded = np.pad(small.astype(np.float64), pad, mode="edge")
+        small = fftconvolve(padded, kernel, mode="valid")
+    small = small.astype(np.float32)
 
     def upsample(n_full: int, n_small: int) -> np.ndarray:
         """(n_full, n_small) bilinear weights from block centres to full-resolution pixels."""
@@ -584,11 +647,11 @@ def _wide_gaussian(image: np.ndarray, sigma_px: float) -> tuple[np.ndarray, np.n
 
 
 def _optics(T: np.ndarray, sc: ScannerModel, pitch: float) -> np.ndarray:
-    """Optical blur, then veiling flare s = (1 - f) T + f * gaussian(T, flare_sigma).
+    """Optical blur, then veiling flare s = (1 - f) T + f * K(T), K the wide kernel of total weight 1.
 
     Without blur it works in place on T: the caller gives T up.
     """
-    flare = _wide_gaussian(T, sc.flare_sigma_mm / pitch) if sc.flare_fraction > 0 else None
+    flare = _wide_flare(T, sc, pitch) if sc.flare_fraction > 0 else None
     s = ndimage.gaussian_filter(T, sc.blur_sigma_px, mode="nearest") if sc.blur_sigma_px > 0 else T
     if flare is not None:
         rows, across = flare

@@ -8,10 +8,11 @@ import math
 
 import numpy as np
 import pytest
-from scipy import optimize
+from scipy import integrate, optimize, special
 
 from stripscan.core.records import StripGeometry
 from stripscan.core.simulate import (
+    FLARE_KERNELS,
     FilmModel,
     ScannerModel,
     StripSpec,
@@ -196,6 +197,63 @@ def test_flare_raises_a_dense_step_next_to_open_platen():
     assert 0.1 * 0.002 < extra < 0.002  # light leaks in from the bright surround, by less than f
 
 
+def edge_spread(kernel: str, r: float, sigma: float) -> float:
+    """Share of the flare kernel's weight lying beyond a straight edge at distance r (same units as sigma).
+
+    The Gaussian has a closed form; the other shapes are integrated numerically
+    over the half-plane with scipy (an independent reference, not the simulator's code).
+    """
+    if kernel == "gaussian":
+        return 0.5 * special.erfc(r / (sigma * math.sqrt(2.0)))  # 1-D normal tail (closed form)
+    if kernel == "exponential":
+        def weight(y, x):  # exp(-rho / sigma), whose integral over the plane is 2 pi sigma^2
+            return math.exp(-math.hypot(x, y) / sigma) / (2.0 * math.pi * sigma**2)
+        reach = 40.0 * sigma
+    else:
+        def weight(y, x):  # 0.7 N(sigma / 2) + 0.3 N(2 sigma), both normalised in 2-D
+            return sum(w * math.exp(-(x * x + y * y) / (2.0 * s * s)) / (2.0 * math.pi * s * s)
+                       for w, s in ((0.7, 0.5 * sigma), (0.3, 2.0 * sigma)))
+        reach = 20.0 * sigma
+    half, _ = integrate.dblquad(weight, r, r + reach, 0.0, reach, epsabs=1e-12)
+    return 2.0 * half  # y from -reach to reach, by symmetry
+
+
+@pytest.mark.parametrize("kernel", FLARE_KERNELS)
+@pytest.mark.parametrize("sigma_mm", [10.0, 25.0])
+def test_each_flare_kernel_leaves_a_uniform_field_unchanged(kernel, sigma_mm):
+    # s = (1 - f) T + f K * T with K of total weight 1: a uniform T comes through as it is.
+    sc = dataclasses.replace(IDEAL, flare_fraction=0.3, flare_sigma_mm=sigma_mm, flare_kernel=kernel)
+    open_platen = simulate_scan([], platen_mm=(120.0, 80.0), dpi=DPI, scanner=sc)
+    assert np.all(open_platen.image == 65535)
+    grey = TabletSpec(densities=(0.5,), end_density=0.5, step_length_mm=300.0, width_mm=300.0, end_margin_mm=0.0,
+                      center_mm=(60.0, 40.0))  # one film piece larger than the platen
+    covered = simulate_scan([grey], platen_mm=(120.0, 80.0), dpi=DPI, scanner=sc)
+    assert np.all(covered.image == round(65535 * 10**-0.5))  # ISO 5-2: T = 10**-D
+
+
+@pytest.mark.parametrize("kernel", FLARE_KERNELS)
+@pytest.mark.parametrize(("sigma_mm", "dpi"), [(10.0, 50.8), (25.0, 150.0)])
+def test_flare_edge_spread_matches_the_kernel(kernel, sigma_mm, dpi):
+    # Open platen left of x = 150 mm, opaque film (D 8) right of it: the light found in the dark half
+    # at distance r is f times the kernel's weight beyond the edge, its edge-spread function.
+    f = 0.5  # large, so the spread light stands well above the 16-bit quantisation
+    opaque = TabletSpec(densities=(8.0,), end_density=8.0, end_margin_mm=0.0, step_length_mm=400.0,
+                        width_mm=400.0, center_mm=(350.0, 50.0))
+    sc = dataclasses.replace(IDEAL, flare_fraction=f, flare_sigma_mm=sigma_mm, flare_kernel=kernel)
+    scan = simulate_scan([opaque], platen_mm=(300.0, 100.0), dpi=dpi, scanner=sc)
+    row = scan.image[scan.image.shape[0] // 2] / 65535.0
+    pitch = 25.4 / dpi
+    for r_sigma in (0.25, 0.5, 1.0, 2.0, 3.0, 5.0):
+        col = round((150.0 + r_sigma * sigma_mm) / pitch - 0.5)
+        r_mm = (col + 0.5) * pitch - 150.0  # the pixel centre's distance from the edge
+        want = f * edge_spread(kernel, r_mm, sigma_mm)
+        # The simulator convolves a block-reduced image (blocks of a third of the kernel's narrowest
+        # scale): within 0.5 % of the flare fraction everywhere along the tail.
+        assert row[col] == pytest.approx(want, abs=0.005 * f), (r_sigma, row[col], want)
+    # Far from the edge the dark side holds (nearly) no light and the open side nearly all of it.
+    assert row[-1] < 0.005 * f + 1e-6 and row[0] > 1.0 - 0.005 * f
+
+
 # ----------------------------------------------------------------------------- geometry
 
 
@@ -350,6 +408,10 @@ def test_invalid_settings():
         ScannerModel(bits=12)
     with pytest.raises(ValueError):
         ScannerModel(encoding="gamma")
+    with pytest.raises(ValueError, match="flare_kernel"):
+        ScannerModel(flare_kernel="lorentzian")
+    with pytest.raises(ValueError, match="flare_sigma_mm"):
+        ScannerModel(flare_fraction=0.001, flare_sigma_mm=0.0)
     with pytest.raises(ValueError):
         simulate_scan([strip(step_length_mm=0.2)], platen_mm=PLATEN, dpi=DPI)  # steps under 1 px
 
