@@ -74,7 +74,7 @@ def stray_light_text(calibration) -> str:
     lamp = "not measured (no open platen beside the tablet)" if model.lamp_span_mm is None else (
         f"measured across {model.lamp_span_mm[0]:.0f}-{model.lamp_span_mm[1]:.0f} mm")
     return (f"Stray light: {100 * model.total:.3f} % of the light spread ({reach or 'none found'}), "
-            f"±{100 * model.relative_sd:.0f} %; lamp {lamp}")
+            f"±{100 * model.fraction_sd:.3f} %; lamp {lamp}")
 
 
 def format_analysis(analysis) -> str:

@@ -340,9 +340,10 @@ class Calibration:
         it, ``od`` holds the density the sensor *saw* at each knot (spread
         light and lamp included), and a reading becomes a density only
         after its own spread light is taken off.
-    tablet_spread : tuple of (float, float) or None
-        ``(certified density, spread light)`` of each used tablet step,
-        densest last: the surroundings the map was fitted in.
+    tablet_spread : tuple of (float, float, float) or None
+        ``(certified density, spread light, spread per unit fraction)`` of
+        each used tablet step, densest last: the surroundings the map was
+        fitted in.
     """
 
     log_signal: tuple[float, ...]
@@ -366,7 +367,7 @@ class Calibration:
     flat_field_sha256: str | None = None
     note: str = ""
     stray_light: StrayLight | None = None
-    tablet_spread: tuple[tuple[float, float], ...] | None = None
+    tablet_spread: tuple[tuple[float, float, float], ...] | None = None
     _interp: Any = field(default=None, compare=False, repr=False)
     _deriv: Any = field(default=None, compare=False, repr=False)
 
@@ -405,12 +406,15 @@ class Calibration:
         x = np.clip(np.log10(np.clip(s, 1e-9, None)), self.log_signal[0], self.log_signal[-1])
         return -self.light(s) * self._deriv(x) / np.clip(s, 1e-9, None)
 
-    def reference_spread(self, od: np.ndarray | float) -> np.ndarray:
-        """Spread light the tablet had at density ``od`` (0 without a stray-light model)."""
+    def reference_spread(self, od: np.ndarray | float, *, unit: bool = False) -> np.ndarray:
+        """Spread light the tablet had at density ``od`` (0 without a stray-light model).
+
+        With ``unit``, the spread per unit fraction there instead.
+        """
         if not self.tablet_spread:
             return np.zeros(np.shape(np.atleast_1d(od)))
-        dens, spread = np.asarray(self.tablet_spread, dtype=np.float64).T
-        return np.interp(np.atleast_1d(np.asarray(od, dtype=np.float64)), dens, spread)
+        table = np.asarray(self.tablet_spread, dtype=np.float64)
+        return np.interp(np.atleast_1d(np.asarray(od, dtype=np.float64)), table[:, 0], table[:, 2 if unit else 1])
 
     def density(
         self, signal: np.ndarray | float, *, spread: np.ndarray | float | None = None, lamp: np.ndarray | float = 1.0
@@ -507,7 +511,7 @@ class Calibration:
             "note": self.note,
             **({} if self.stray_light is None else {
                 "stray_light": self.stray_light.to_dict(),
-                "tablet_spread": [list(pair) for pair in self.tablet_spread or ()],
+                "tablet_spread": [list(row) for row in self.tablet_spread or ()],
             }),
         }
 
@@ -546,7 +550,8 @@ class Calibration:
                 flat_field_sha256=data.get("flat_field_sha256"),
                 note=str(data.get("note", "")),
                 stray_light=StrayLight.from_dict(data["stray_light"]) if data.get("stray_light") else None,
-                tablet_spread=tuple((float(d), float(f)) for d, f in data.get("tablet_spread") or ()) or None,
+                tablet_spread=tuple((float(d), float(f), float(u)) for d, f, u in data.get("tablet_spread") or ())
+                or None,
             )
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None
@@ -619,7 +624,7 @@ def fit_calibration(
     max_saturated: float = 0.01,
     created: str | None = None,
     stray_light: StrayLight | None = None,
-    seen: Sequence[tuple[float, float]] | None = None,
+    seen: Sequence[tuple[float, float, float]] | None = None,
 ) -> Calibration:
     """Fit the signal-to-density map from a tablet's step readings.
 
@@ -635,11 +640,11 @@ def fit_calibration(
         Largest fraction of saturated pixels a usable step may have.
     stray_light : StrayLight, optional
         The scanner's stray light, fitted on the same scan.
-    seen : sequence of (float, float), optional
-        With ``stray_light``: ``(lamp, spread)`` at each certificate step
-        (relative lamp brightness, spread light), so that the map's knots
-        hold the light the sensor saw there,
-        ``lamp * ((1 - f) 10**-D + spread)``.
+    seen : sequence of (float, float, float), optional
+        With ``stray_light``: ``(lamp, spread, unit)`` at each certificate
+        step (relative lamp brightness, spread light, spread per unit
+        fraction), so that the map's knots hold the light the sensor saw
+        there, ``lamp * ((1 - f) 10**-D + spread)``.
     Other parameters record provenance.
 
     Raises
@@ -749,7 +754,8 @@ def fit_calibration(
         note=note,
         stray_light=stray_light,
         tablet_spread=(
-            tuple((float(d), float(sp)) for d, sp in zip(used_cert, spread)) if stray_light is not None else None
+            tuple((float(d), float(sp), float(seen[k][2])) for d, sp, k in zip(used_cert, spread, usable))
+            if seen is not None else None
         ),
     )
 

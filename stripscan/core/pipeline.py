@@ -32,6 +32,7 @@ from .records import Analysis, StepDensity, StepReading, StripGeometry, StripRes
 from .sample import read_area, read_strip
 from .scan import Scan, load_scan
 from .straylight import (
+    BASIS_SIGMA_MM,
     LAMP_REACH_MM,
     fit_stray_light,
     platen_observations,
@@ -68,6 +69,10 @@ MAX_SATURATED = 0.01
 #: (half the accuracy goal): more means the lamp or stray light differs there.
 BASE_FOG_SPREAD = 0.01
 
+
+#: Share of the spread light from beyond the scan's edges counted as its
+#: standard uncertainty (what lies there — lid, housing, more platen — is unknown).
+OUTSIDE_UNCERTAINTY = 0.5
 
 #: Without a measured lamp profile, how far (mm) across the carriage a strip may
 #: lie from the tablet's place before a warning is given.
@@ -331,8 +336,15 @@ def read_density(
         model = calibration.stray_light
         assert model is not None
         transmitted = (1.0 - model.total) * 10.0 ** -value
-        difference = abs(spread - float(calibration.reference_spread(value)[0]))
-        correction_sd = model.relative_sd * difference / (math.log(10.0) * transmitted)
+        # The kernel's shape: relative to the spread beyond the tablet's at this density.
+        shape = model.relative_sd * abs(spread - float(calibration.reference_spread(value)[0]))
+        # The fraction's own uncertainty, through the spread per unit fraction beyond the tablet's.
+        unit = mapping.field.unit_at(reading.center_rc) - float(calibration.reference_spread(value, unit=True)[0])
+        fraction = model.fraction_sd * abs(unit)
+        # Light from beyond the scan's edges is taken as the edge's own; what
+        # lies there is unknown, so half of it is counted as uncertain.
+        unknown = OUTSIDE_UNCERTAINTY * mapping.field.outside_at(reading.center_rc)
+        correction_sd = math.sqrt(shape**2 + fraction**2 + unknown**2) / (math.log(10.0) * transmitted)
     else:
         od, ok = calibration.density(signal)
         value = float(od[0])
@@ -698,12 +710,19 @@ def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: s
 _STEP_CELLS = (2, 4)
 
 
-def _tablet_areas(scan: Scan, geometry: StripGeometry, steps: Sequence[int]) -> list[Observation]:
-    """Each usable tablet step read in sub-areas (light varies inside a step only by stray light and lamp)."""
+def _step_areas(scan: Scan, geometry: StripGeometry, steps: Sequence[int]) -> list[Observation]:
+    """Each step (and the base+fog area, as step 0) read in sub-areas.
+
+    Light varies inside an area of one transmittance only by stray light
+    and the lamp, which is what the stray-light fit needs to see.
+    """
     areas = []
     n_u, n_v = _STEP_CELLS
-    for step in steps:
-        c0, c1, _, c3 = (np.asarray(p, dtype=np.float64) for p in geometry.step_box_rc(step))
+    boxes = [(step, geometry.step_box_rc(step)) for step in steps]
+    if 0 in steps and geometry.base_fog_box_rc() is not None:
+        boxes = [(s, b) for s, b in boxes if s != 0] + [(0, geometry.base_fog_box_rc())]
+    for step, box in boxes:
+        c0, c1, _, c3 = (np.asarray(p, dtype=np.float64) for p in box)
         e_u, e_v = (c1 - c0) / n_u, (c3 - c0) / n_v
         rc, signal, sem = [], [], []
         for i in range(n_u):
@@ -722,39 +741,52 @@ def _tablet_areas(scan: Scan, geometry: StripGeometry, steps: Sequence[int]) -> 
     return areas
 
 
-def _piece_mask(reduced, geometry: StripGeometry, margin_px: float) -> np.ndarray:
-    """Cells of a reduced scan that lie within ``margin_px`` of a piece's outline."""
+def _piece_mask(reduced, geometry: StripGeometry, margin_px: float, *, film: bool = False) -> np.ndarray:
+    """Cells of a reduced scan within ``margin_px`` of a step band (with ``film``, of its unexposed band too)."""
     rows, cols = np.meshgrid(reduced.rows_px, reduced.cols_px, indexing="ij")
     (r0, c0), (ar, ac), (nr, nc) = geometry.origin_rc, geometry.axis_rc, geometry.normal_rc
     u = (rows - r0) * ar + (cols - c0) * ac
     v = (rows - r0) * nr + (cols - c0) * nc
-    return (u > -margin_px) & (u < geometry.length_px + margin_px) & (v > -margin_px) & (
-        v < geometry.band_width_px + margin_px)
+    width = geometry.band_width_px
+    if film and geometry.base_fog_v_px is not None:
+        width = max(width, geometry.base_fog_v_px[1])
+    return (u > -margin_px) & (u < geometry.length_px + margin_px) & (v > -margin_px) & (v < width + margin_px)
 
 
 def fit_tablet(scan: Scan, geometry: StripGeometry, readings: Sequence[StepReading], certificate: Certificate,
-               **provenance) -> Calibration:
+               *, others: Sequence[StripGeometry] = (), **provenance) -> Calibration:
     """Fit the calibration of a read tablet, with the scanner's stray light when the scan's resolution is known.
 
     The map is fitted first as if there were no stray light; the stray light
-    and lamp are then fitted on the light's variations inside the tablet's
-    steps and over the open platen (see :mod:`stripscan.core.straylight`),
-    the map refitted on the light the sensor saw, and both once more.
+    and lamp are then fitted on the light's variations inside areas of one
+    transmittance — the tablet's steps, the steps and unexposed film of the
+    strips ``others`` on the same scan, the open platen
+    (see :mod:`stripscan.core.straylight`) — the map refitted on the light
+    the sensor saw, and both once more.
     """
     calibration = fit_calibration(readings, certificate, **provenance)
     if not scan.pixel_mm:
         return calibration
     reduced = reduce_scan(scan)
     used = [r.step for r in readings if r.step not in calibration.excluded_steps and math.isfinite(r.signal)]
-    areas = _tablet_areas(scan, geometry, used)
-    # The tablet's clear ends are not open platen: keep its whole piece out of the platen cells.
-    tablet_cells = _piece_mask(reduced, geometry, 12.0 / scan.pixel_mm)
+    areas = _step_areas(scan, geometry, used)
+    for other in others:
+        areas += _step_areas(scan, other, range(0, other.n_steps + 1))
+    # The pieces read step by step (the tablet's clear ends too) are kept out of the cell areas.
+    pieces = _piece_mask(reduced, geometry, 12.0 / scan.pixel_mm)
+    for other in others:
+        pieces |= _piece_mask(reduced, other, 3.0 / scan.pixel_mm, film=True)
+    # A kernel much wider than the scan spreads light mostly from beyond its edges, where
+    # nothing is seen: it cannot be told from a constant, so it is not offered to the fit.
+    side_mm = min(scan.shape) * scan.pixel_mm
+    sigmas = tuple(s for s in BASIS_SIGMA_MM if s <= side_mm / 3.0) or BASIS_SIGMA_MM[:1]
     for _ in range(2):
-        platen = platen_observations(reduced, calibration.light, exclude=tablet_cells)
-        model, _info = fit_stray_light(reduced, calibration.light, calibration.light_slope, areas, platen=platen,
-                                       source="the tablet scan")
+        platen = platen_observations(reduced, calibration.light, exclude=pieces)
+        model, _info = fit_stray_light(reduced, calibration.light, calibration.light_slope, areas,
+                                       platen=platen, sigmas_mm=sigmas,
+                                       code_step=scan.code_step, source="the tablet scan")
         field = spread_field(reduced, calibration.light, model)
-        seen = [(field.lamp_at(r.center_rc), field.at(r.center_rc)) for r in readings]
+        seen = [(field.lamp_at(r.center_rc), field.at(r.center_rc), field.unit_at(r.center_rc)) for r in readings]
         calibration = fit_calibration(readings, certificate, stray_light=model, seen=seen, **provenance)
     return calibration
 
@@ -778,7 +810,8 @@ def _steps_fill_width(scan: Scan, geometry: StripGeometry) -> bool:
             values.append(reading.signal if not clipped and reading.signal > 0 else np.nan)
         profiles.append(np.log10(np.asarray(values, dtype=np.float64)))
     spreads = [float(np.nanstd(p)) if np.isfinite(p).sum() >= 3 else 0.0 for p in profiles]
-    return max(spreads) > 0 and min(spreads) > 0.5 * max(spreads)
+    # A uniform piece (black film, clear film) changes along neither half.
+    return min(spreads) > 0.1 and min(spreads) > 0.5 * max(spreads)
 
 
 def calibrate_loaded(scan: Scan, certificate: Certificate, *, lateral: LateralCorrection | None = None,
@@ -797,7 +830,8 @@ def calibrate_loaded(scan: Scan, certificate: Certificate, *, lateral: LateralCo
     except ValueError as exc:
         raise CalibrationError(f"{path}: {exc}") from None
     warnings = []
-    if len(found) > 1:
+    several = len(found) > 1
+    if several:
         tablets = [f for f in found if _steps_fill_width(scan, f.geometry)]
         if not tablets:
             raise CalibrationError(
@@ -808,6 +842,15 @@ def calibrate_loaded(scan: Scan, certificate: Certificate, *, lateral: LateralCo
             warnings.append(f"{len(tablets)} tablet-like pieces found on the scan; the longest is taken as the tablet")
         found = tablets
     tablet = max(found, key=lambda f: f.geometry.length_px)
+    others: list[StripGeometry] = []
+    if several:
+        # The strips beside the tablet, found as strips: their steps and unexposed film
+        # are more areas of one transmittance each for the stray-light fit.
+        try:
+            others = [f.geometry for f in locate_in_scan(scan, LocateOptions())
+                      if not _same_piece(f.geometry, tablet.geometry) and not f.dense_end_cut]
+        except ValueError:
+            others = []
     warnings += list(tablet.warnings)
     readings, _, notes = read_strip(scan, None, tablet.geometry)
     warnings += notes
@@ -818,6 +861,7 @@ def calibrate_loaded(scan: Scan, certificate: Certificate, *, lateral: LateralCo
             tablet.geometry,
             readings,
             certificate,
+            others=others,
             scan_sha256=scan.info.sha256,
             scan_path=scan.info.path,
             bits=scan.info.bits,

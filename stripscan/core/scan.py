@@ -113,6 +113,20 @@ class Scan:
         # einsum's own loop, not a BLAS product that may wait on worker threads.
         return np.einsum("...c,c->...", values[..., : len(self._weights)], self._weights)
 
+    def code_step(self, signal: np.ndarray) -> np.ndarray:
+        """Signal between neighbouring stored codes at linear signal(s): the quantisation step.
+
+        0 for floating-point pixels.  Means of quantised pixels carry a bias of
+        a fraction of this step where the noise is smaller than it (8-bit
+        scans, dense areas), which no amount of averaging removes.
+        """
+        s = np.asarray(signal, dtype=np.float64)
+        if self._lut is None:
+            return np.zeros_like(s)
+        lut = self._lut.astype(np.float64)
+        k = np.clip(np.searchsorted(lut, s), 1, len(lut) - 1)
+        return lut[k] - lut[k - 1]
+
     def read_masked(self, top_left: tuple[int, int], mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Signal (float32) and saturation flags of the pixels selected by a window mask.
 

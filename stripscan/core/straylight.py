@@ -65,6 +65,7 @@ __all__ = [
     "StrayLight",
     "Observation",
     "fit_stray_light",
+    "platen_observations",
     "reduce_scan",
     "spread_field",
 ]
@@ -79,6 +80,9 @@ LAMP_SCALE_MM = 100.0
 #: the tablet's: the kernel's true shape is not a sum of our Gaussians
 #: (measured on simulated scans with exponential and two-width kernels).
 SHAPE_UNCERTAINTY = 0.15
+#: Share of a quantisation step that the mean of quantised pixels may be off by
+#: where the noise is below one step (a dither bias that averaging does not remove).
+QUANTISATION_BIAS = 0.15
 #: How far (mm) beyond the positions it was fitted over the lamp's quadratic is used.
 LAMP_REACH_MM = 5.0
 #: Samples per cell side when the scan is reduced (a stride through the pixels).
@@ -98,9 +102,14 @@ class StrayLight:
     fractions : tuple of float
         Fraction of the light each kernel spreads (same order), >= 0.
     relative_sd : float
-        Relative standard uncertainty of the spread light (the fit's own
-        and the kernel shape's), applied to the spread a scan has over what
-        the tablet had at the same density.
+        Relative standard uncertainty of the spread light from the kernel's
+        shape, applied to the spread a scan has over what the tablet had at
+        the same density.
+    fraction_sd : float
+        Standard uncertainty of the total fraction from the fit itself
+        (absolute), applied to the spread per unit fraction a scan has over
+        what the tablet had: it keeps a fraction fitted too small from
+        passing unseen.
     lamp : (float, float)
         ``(a, b)`` of the lamp profile ``1 + a u + b u**2``, u = x / 100 mm,
         x the position across the carriage (the image's columns) in mm.
@@ -116,6 +125,7 @@ class StrayLight:
     sigmas_mm: tuple[float, ...]
     fractions: tuple[float, ...]
     relative_sd: float
+    fraction_sd: float = 0.0
     lamp: tuple[float, float] = (0.0, 0.0)
     lamp_span_mm: tuple[float, float] | None = None
     cell_mm: float = CELL_MM
@@ -124,18 +134,30 @@ class StrayLight:
     def __post_init__(self) -> None:
         if len(self.sigmas_mm) != len(self.fractions) or not self.sigmas_mm:
             raise ValueError("stray light needs one fraction per kernel width")
-        values = (*self.sigmas_mm, *self.fractions, self.relative_sd, *self.lamp, self.cell_mm)
+        values = (*self.sigmas_mm, *self.fractions, self.relative_sd, self.fraction_sd, *self.lamp, self.cell_mm)
         if not all(math.isfinite(v) for v in values):
             raise ValueError("stray light values must be finite numbers")
         if min(self.sigmas_mm) <= 0 or min(self.fractions) < 0 or sum(self.fractions) >= 0.5:
             raise ValueError("kernel widths must be positive and fractions non-negative (total under 0.5)")
-        if self.relative_sd < 0 or self.cell_mm <= 0:
+        if self.relative_sd < 0 or self.fraction_sd < 0 or self.cell_mm <= 0:
             raise ValueError("uncertainty and cell size must be positive")
 
     @property
     def total(self) -> float:
         """Total fraction of the light spread, f."""
         return float(sum(self.fractions))
+
+    @property
+    def shape(self) -> tuple[float, ...]:
+        """Weights of the kernels in the spread per unit fraction (sum 1).
+
+        Without any spread found, the middle width stands in: the fit's own
+        uncertainty still needs a shape to act through.
+        """
+        if self.total > 0:
+            return tuple(f / self.total for f in self.fractions)
+        middle = len(self.sigmas_mm) // 2
+        return tuple(1.0 if k == middle else 0.0 for k in range(len(self.sigmas_mm)))
 
     def lamp_factor(self, x_mm: np.ndarray | float) -> np.ndarray:
         """Relative lamp brightness at x (mm across the carriage)."""
@@ -150,6 +172,7 @@ class StrayLight:
             "fractions": [float(f) for f in self.fractions],
             "total_fraction": self.total,
             "relative_sd": self.relative_sd,
+            "fraction_sd": self.fraction_sd,
             "lamp": list(self.lamp),
             "lamp_span_mm": list(self.lamp_span_mm) if self.lamp_span_mm else None,
             "cell_mm": self.cell_mm,
@@ -163,6 +186,7 @@ class StrayLight:
             sigmas_mm=tuple(float(v) for v in data["sigmas_mm"]),
             fractions=tuple(float(v) for v in data["fractions"]),
             relative_sd=float(data["relative_sd"]),
+            fraction_sd=float(data.get("fraction_sd", 0.0)),
             lamp=(float(data["lamp"][0]), float(data["lamp"][1])),
             lamp_span_mm=(float(span[0]), float(span[1])) if span else None,
             cell_mm=float(data.get("cell_mm", CELL_MM)),
@@ -279,10 +303,10 @@ class _Blur:
         # well under 1e-3 for sd >= 1 cell).
         self.transfer = [np.exp(-2.0 * math.pi**2 * s * s * (fr * fr + fc * fc)) for s in sig_cells]
 
-    def _spectrum(self, image: np.ndarray) -> np.ndarray:
-        padded = np.pad(image, self.pad, mode="edge")
+    def _spectrum(self, image: np.ndarray, mode: str = "edge") -> np.ndarray:
+        padded = np.pad(image, self.pad, mode=mode)
         padded = np.pad(padded, ((0, self.full[0] - padded.shape[0]), (0, self.full[1] - padded.shape[1])),
-                        mode="edge")
+                        mode=mode)
         return np.fft.rfft2(padded)
 
     def _back(self, spectrum: np.ndarray) -> np.ndarray:
@@ -294,8 +318,9 @@ class _Blur:
         spectrum = self._spectrum(image)
         return [self._back(spectrum * t) for t in self.transfer]
 
-    def weighted(self, image: np.ndarray, weights: Sequence[float]) -> np.ndarray:
-        spectrum = self._spectrum(image)
+    def weighted(self, image: np.ndarray, weights: Sequence[float], *, mode: str = "edge") -> np.ndarray:
+        """The weighted sum of the blurs; ``mode`` "constant" takes nothing from beyond the edges."""
+        spectrum = self._spectrum(image, mode)
         total = sum(w * t for w, t in zip(weights, self.transfer) if w > 0)
         if isinstance(total, int):
             return np.zeros(self.shape)
@@ -321,18 +346,36 @@ class SpreadField:
     ----------
     spread : ndarray, shape (R, C)
         Spread light per cell, in units of the open platen's light (lamp divided out).
+    unit : ndarray, shape (R, C)
+        Spread per unit fraction (the kernel's shape applied to the scan).
+    outside : ndarray, shape (R, C)
+        The part of ``spread`` that comes from beyond the scan's edges, where
+        the scan is taken to go on as its edge cells are; what really lies
+        there is not known, so this part is uncertain.
     reduced : ReducedScan
         The grid it lives on.
     model : StrayLight
     """
 
     spread: np.ndarray
+    unit: np.ndarray
+    outside: np.ndarray
     reduced: ReducedScan
     model: StrayLight
 
     def at(self, rc: tuple[float, float]) -> float:
         """Spread light at a full-scan position (bilinear between cell centres)."""
         value = ndimage.map_coordinates(self.spread, self.reduced.cells_of(rc), order=1, mode="nearest")
+        return float(value[0])
+
+    def unit_at(self, rc: tuple[float, float]) -> float:
+        """Spread per unit fraction at a full-scan position."""
+        value = ndimage.map_coordinates(self.unit, self.reduced.cells_of(rc), order=1, mode="nearest")
+        return float(value[0])
+
+    def outside_at(self, rc: tuple[float, float]) -> float:
+        """The part of :meth:`at` that comes from beyond the scan's edges."""
+        value = ndimage.map_coordinates(self.outside, self.reduced.cells_of(rc), order=1, mode="nearest")
         return float(value[0])
 
     def lamp_at(self, rc: tuple[float, float]) -> float:
@@ -369,7 +412,9 @@ def spread_field(reduced: ReducedScan, to_light: Callable[[np.ndarray], np.ndarr
     blur = _Blur(seen.shape, reduced.cell_mm, model.sigmas_mm)
     t = _invert(seen, blur, model.fractions)
     spread = blur.weighted(t, model.fractions)
-    return SpreadField(spread, reduced, model)
+    inside = blur.weighted(t, model.fractions, mode="constant")
+    unit = blur.weighted(t, model.shape)
+    return SpreadField(spread, unit, np.maximum(spread - inside, 0.0), reduced, model)
 
 
 # --------------------------------------------------------------------------- fit
@@ -426,6 +471,7 @@ def fit_stray_light(
     *,
     platen: Observation | None = None,
     sigmas_mm: Sequence[float] = BASIS_SIGMA_MM,
+    code_step: Callable[[np.ndarray], np.ndarray] | None = None,
     source: str = "",
 ) -> tuple[StrayLight, dict[str, Any]]:
     """Fit the stray light and lamp from light variations inside uniform areas.
@@ -444,6 +490,11 @@ def fit_stray_light(
         Open-platen cells (also a uniform area; they carry the lamp profile).
     sigmas_mm : sequence of float
         Kernel widths to build the model from.
+    code_step : callable, optional
+        Signal -> quantisation step of the scan at that signal; each
+        observation's uncertainty is floored at :data:`QUANTISATION_BIAS` of
+        it, since means of coarsely quantised pixels are biased by a
+        pattern that follows the signal level (8-bit scans).
     source : str
         Recorded with the model.
 
@@ -476,7 +527,8 @@ def fit_stray_light(
         rows_a, rows_b = [], []
         for g in groups:
             light = to_light(g.signal)
-            sd = np.abs(light_slope(g.signal)) * g.sem
+            sem = g.sem if code_step is None else np.hypot(g.sem, QUANTISATION_BIAS * code_step(g.signal))
+            sd = np.abs(light_slope(g.signal)) * sem
             u = g.rc[:, 1] * reduced.pixel_mm / LAMP_SCALE_MM
             coords = reduced.cells_of(g.rc)
             spreads = [ndimage.map_coordinates(b, coords, order=1, mode="nearest") for b in basis]
@@ -499,17 +551,15 @@ def fit_stray_light(
         dof = max(a.shape[0] - np.count_nonzero(np.abs(x) > 0), 1)
         chi2 = float(residual @ residual) / dof
         fractions = tuple(max(float(v), 0.0) for v in x[2:])  # the solver may return -1e-19
-        # Uncertainty of the total fraction: the free parameters' covariance,
-        # scaled by how well the model fits (chi2 per degree of freedom).
-        free = [0, 1] + [2 + i for i, v in enumerate(fractions) if v > 0]
+        # Uncertainty of the total fraction from the whole design, bounds ignored: how well
+        # the data pin the total down whatever the kernel's shape (a fraction held at its
+        # bound of 0 could as well be larger), scaled by how well the model fits.
         try:
-            cov = np.linalg.inv(a[:, free].T @ a[:, free]) * max(chi2, 1.0)
-            pick = np.array([1.0 if i >= 2 else 0.0 for i in free])
+            cov = np.linalg.pinv(a.T @ a) * max(chi2, 1.0)
+            pick = np.array([0.0, 0.0] + [1.0] * k)
             fraction_sd = float(math.sqrt(max(pick @ cov @ pick, 0.0)))
         except np.linalg.LinAlgError:
             fraction_sd = float("inf")
-        total = sum(fractions)
-        rel = fraction_sd / total if total > 0 else 0.0
         span = None
         if platen is not None and platen.signal.size >= 3:
             x_mm = platen.rc[:, 1] * reduced.pixel_mm
@@ -518,7 +568,8 @@ def fit_stray_light(
         model = StrayLight(
             tuple(float(s) for s in sigmas_mm),
             fractions,
-            float(math.hypot(min(rel, 1.0), SHAPE_UNCERTAINTY)),
+            SHAPE_UNCERTAINTY,
+            fraction_sd=fraction_sd if math.isfinite(fraction_sd) else _MAX_FRACTION,
             lamp=lamp,
             lamp_span_mm=span,
             cell_mm=reduced.cell_mm,

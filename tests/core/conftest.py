@@ -28,7 +28,9 @@ class Bench:
         key = (dataclasses.replace(scanner, seed=0, dust=0, scratches=0, hairs=0), dpi)
         if key not in self._cache:
             tablet = TabletSpec(densities=TABLET_OD, step_length_mm=7.5, center_mm=(40.0, 95.0), angle_deg=90.0)
-            sim = simulate_scan([tablet], platen_mm=(80.0, 190.0), dpi=dpi,
+            # The same scan area as the strips (same settings): the stray light is fitted on the whole
+            # of it, and a scan of another width would have another lamp in the simulator.
+            sim = simulate_scan([tablet], platen_mm=(120.0, 200.0), dpi=dpi,
                                 scanner=dataclasses.replace(key[0], seed=scanner.seed + 1000))
             path = self.folder / f"tablet_{len(self._cache)}.tif"
             write_tiff(path, sim)

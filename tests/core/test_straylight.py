@@ -79,7 +79,8 @@ def test_spread_field_equals_the_forward_models_spread():
 
 
 def test_model_round_trips_and_refuses_nonsense():
-    model = StrayLight((4.0, 16.0), (0.001, 0.002), 0.15, lamp=(0.01, -0.02), lamp_span_mm=(5.0, 200.0))
+    model = StrayLight((4.0, 16.0), (0.001, 0.002), 0.15, fraction_sd=0.0004, lamp=(0.01, -0.02),
+                       lamp_span_mm=(5.0, 200.0))
     assert StrayLight.from_dict(json.loads(json.dumps(model.to_dict()))) == model
     assert model.total == pytest.approx(0.003)
     with pytest.raises(ValueError):
@@ -107,7 +108,7 @@ def test_fit_recovers_a_known_fraction(tmp_path, fraction, sigma):
     assert model is not None
     # The total within twice the model's own stated uncertainty (and never off by half), and the
     # weight where the true kernel is (its mean width within a factor 2.5).
-    assert abs(model.total - fraction) <= 2.0 * model.relative_sd * model.total
+    assert abs(model.total - fraction) <= 2.0 * math.hypot(model.fraction_sd, model.relative_sd * model.total)
     assert model.total == pytest.approx(fraction, rel=0.5)
     mean_sigma = sum(s * f for s, f in zip(model.sigmas_mm, model.fractions)) / model.total
     assert sigma / 2.5 <= mean_sigma <= sigma * 2.5
