@@ -27,11 +27,13 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (
     QDialog,
     QFileDialog,
+    QFrame,
     QHBoxLayout,
     QMainWindow,
     QMenu,
     QMenuBar,
     QMessageBox,
+    QScrollArea,
     QSplitter,
     QStackedWidget,
     QTabWidget,
@@ -68,6 +70,8 @@ PAGES: tuple[tuple[str, str, str], ...] = (
 )
 _ARCHIVE_KEY = "archive/path"
 _ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
+_NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
+                 "strip: values read on a densitometer, or a strip of the scan open on the first page.")
 _NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or in the Compare menu) to set two "
                   "emulsion lots of the archive side by side, or compare a lot with the strips on the open scan.")
 
@@ -143,19 +147,28 @@ class Workspace(QObject):
             split.setSizes([680, 760])
         self.compare_panel = ComparePanel(())
         self.qc_panel = QcPanel(None)
+        # A day can be read off a strip of the open scan, with the calibration it was read with.
+        self.qc_panel.scan_source = self._scan_for_qc
+        session.events.connect_each(lambda *_: self.qc_panel.update_scan_strips(), "scan_loaded", "strips_changed",
+                                    "results_changed", "calibration_changed")
+        self.qc_panel.sigProcessorCreated.connect(self._processor_created)
         qc_page = QWidget()
         qc_layout = QVBoxLayout(qc_page)
         qc_layout.setContentsMargins(0, 0, 0, 4)
         # The typed-day form beside the charts, not under them: at 900 px high the three
         # charts need the height, and the form's few fields need no more than a column.
-        side = QVBoxLayout()
-        side.setContentsMargins(0, 44, 8, 0)
-        self.qc_panel.form_box.setFixedWidth(380)
-        side.addWidget(self.qc_panel.form_box)
-        side.addStretch(1)
+        # On a laptop screen the three forms are taller than the page: they scroll, the charts do not.
+        side = QScrollArea()
+        side.setWidgetResizable(True)
+        side.setFrameShape(QFrame.Shape.NoFrame)
+        side.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.qc_panel.form_box.setContentsMargins(0, 40, 8, 0)
+        side.setWidget(self.qc_panel.form_box)
+        side.setFixedWidth(400)
+        self.qc_side = side
         row = QHBoxLayout()
         row.addWidget(self.qc_panel, 1)
-        row.addLayout(side)
+        row.addWidget(side)
         qc_layout.addLayout(row, 1)
         # The panel's status carries the caution only once a processor is shown; the page always does.
         self.qc_caution = caution_label()
@@ -324,16 +337,28 @@ class Workspace(QObject):
             else:
                 self.qc_panel.set_archive(path)
             if self.qc_panel.processor_box.count() == 0:
-                self.qc_panel.status_label.setText(html.escape(
-                    f"No processor has QC strips in {path.name} yet. Record a processor's daily strips with "
-                    "“stripscan qc add”; its charts and status then show here."))
+                self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=f"{path.name} has no "
+                                                                                          "processor yet.")))
             return
-        # QcPanel opens the file for writing; a missing file must not be made just by looking.
+        # QcPanel opens the file for writing; a missing file must not be made just by looking
+        # (a new processor makes it, on purpose).
         self.qc_panel.archive_path = None
+        self.qc_panel.new_archive_path = path
         self.qc_panel.refresh()
-        where = f"No archive yet at {path}." if path is not None else "No archive chosen."
-        self.qc_panel.status_label.setText(html.escape(f"{where} A processor's QC log shows here once the "
-                                                       "archive holds its daily strips."))
+        where = f"No archive yet at {path}; it is made with the first processor or lot." if path is not None \
+            else "No archive chosen."
+        self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=where)))
+
+    def _scan_for_qc(self) -> tuple[Any, dict[str, Any] | None] | None:
+        analysis = self.session.analysis()
+        if analysis is None:
+            return None
+        return analysis, self.session.calibration.to_dict() if self.session.calibration is not None else None
+
+    def _processor_created(self, name: str) -> None:
+        if self.archive_path is not None and self.qc_panel.archive_path == self.archive_path:
+            self.archive_panel.set_archive(self.archive_path)  # the file may have just been made
+        self.status(f"Processor {name} is in {self.qc_panel.archive_path}: add its days on the processor QC page")
 
     def _archive_ready(self) -> bool:
         if self.building:
