@@ -133,7 +133,7 @@ class MainWindow(QMainWindow):
         layout.addWidget(main, 1)
         # The scan is the first of the pages; the lot archive, comparison and QC panels follow it.
         self.workspace = Workspace(self, self.session, self.settings, central)
-        self.setCentralWidget(self.workspace.pages)
+        self.setCentralWidget(self.workspace.widget)
         dock = QDockWidget("Strips", self)
         dock.setObjectName("strips_dock")
         dock.setWidget(self.strips_panel)

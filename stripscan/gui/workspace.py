@@ -49,6 +49,7 @@ from .compare_panel import ComparePanel
 from .errors import report_error, show_message
 from .exports import Exports
 from .lot_choice import LotChoiceDialog, caution_label
+from .notice import NoticeBar
 from .progress import TaskProgress
 from .qc_panel import QcPanel
 from .save_snapshot_dialog import SaveSnapshotDialog
@@ -138,6 +139,8 @@ class Workspace(QObject):
         self.comparison: jobs.ComparisonResult | None = None
         self.building = False
         self.dialog: QDialog | None = None
+        # The open scan's strips as last stored, the archive and the snapshot ids (see stored_snapshots).
+        self._last_stored: tuple[Any, Path | None, list[int]] | None = None
         # Set on closing: the demo build stops between two scans rather than outlive the window.
         self._cancel = threading.Event()
 
@@ -181,6 +184,14 @@ class Workspace(QObject):
         for name, title, _ in PAGES:
             if name in self.page_widgets:
                 self.pages.addTab(self.page_widgets[name], title)
+        #: What was just stored or written, over the pages until the next (the window's centre holds both).
+        self.notice = NoticeBar()
+        self.widget = QWidget()
+        centre = QVBoxLayout(self.widget)
+        centre.setContentsMargins(0, 0, 0, 0)
+        centre.setSpacing(2)
+        centre.addWidget(self.pages, 1)
+        centre.addWidget(self.notice)
 
         self.progress = TaskProgress(self.runner, 340)
         self.exports = Exports(self)
@@ -422,13 +433,32 @@ class Workspace(QObject):
             self.tell("No archive", "Choose the lot archive first (Archive menu).")
             return None
         dialog = self.archive_panel.save_dialog(analysis, self.session.calibration)
-        dialog.saved.connect(self._stored)
+        dialog.saved.connect(lambda lot, ids: self._stored(analysis, lot, ids))
         self.dialog = dialog
         return dialog
 
-    def _stored(self, lot: str, ids: list[int]) -> None:
+    def _stored(self, analysis: Any, lot: str, ids: list[int]) -> None:
         self._point_qc()  # the first snapshot may have made the file
-        self.status(f"Stored {len(ids)} snapshot{'s' if len(ids) != 1 else ''} of lot {lot} in {self.archive_path}")
+        self._last_stored = (analysis.strips, self.archive_path, list(ids))
+        n = len(ids)
+        which = f"snapshot {ids[0]}" if n == 1 else f"snapshots {min(ids)}–{max(ids)}"
+        text = f"Stored {n} snapshot{'s' if n != 1 else ''} of lot {lot} ({which}) in {self.archive_path}"
+        self.status(text)
+        self.notice.show_notice(text, [("Report of these strips (PDF)…", lambda: self.exports.ask_export("pdf")),
+                                       ("Show in the lot archive", lambda: self.show_page("archive"))])
+
+    def stored_snapshots(self, analysis: Any) -> list[int]:
+        """The snapshot ids of ``analysis``'s strips when they were stored as they are now (else empty).
+
+        A strip changed since (a step excluded, an outline moved) is a new
+        reading, not what the archive holds; so is another archive.
+        """
+        if self._last_stored is None:
+            return []
+        strips, path, ids = self._last_stored
+        same = (path == self.archive_path and len(strips) == len(analysis.strips)
+                and all(a is b for a, b in zip(strips, analysis.strips)))
+        return ids if same else []
 
     # -- comparing lots -------------------------------------------------------------------------------
     def _lots(self) -> list[str]:

@@ -112,3 +112,49 @@ def test_a_scan_in_direct_mode_is_not_stored_and_says_why(qtbot, open_scan, wind
     assert "Not stored" in panel.scan_message.text() and "without a calibration" in panel.scan_message.text()
     with Archive.open(window.workspace.archive_path, read_only=True) as stored:
         assert stored.list_qc_entries("P") == []
+
+
+def store_scan(window, lot: str, operator: str, processor: str | None = None) -> list[int]:
+    ws = window.workspace
+    ws.save_action.trigger()
+    dialog = ws.dialog
+    dialog.lot.setCurrentText(lot)
+    dialog.new_lot.setChecked(True)
+    dialog.operator.setCurrentText(operator)
+    if processor is not None:
+        dialog.processor.setCurrentText(processor)
+    dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    assert dialog.stored, "nothing was stored"
+    return [s.id for s in dialog.stored]
+
+
+def pdf_text(path) -> list[str]:
+    from pypdf import PdfReader
+
+    return [" ".join(page.extract_text().split()) for page in PdfReader(path).pages]
+
+
+def test_the_scan_report_after_storing_carries_what_was_stored(qtbot, open_scan, window, files, tmp_path):
+    """Item 2: after storing, the scan's report names the lot, operator and snapshot; item 10: a notice says so."""
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.scan)
+    ws = window.workspace
+    ids = store_scan(window, "M-2610-A", "M. Arden")
+    assert ws.notice.isVisible() and "Stored 2 snapshots of lot M-2610-A" in ws.notice.label.text()
+    assert str(ws.archive_path) in ws.notice.label.text()
+    with qtbot.waitSignal(ws.exports.file_written, timeout=30_000) as signal:
+        assert ws.exports.export("pdf", tmp_path / "report.pdf")
+    pages = pdf_text(signal.args[0])
+    assert len(pages) == 2
+    for page, snapshot in zip(pages, ids):
+        assert "M-2610-A" in page and "M. Arden" in page and f"snapshot {snapshot}" in page
+        assert "not archived" not in page
+    # The notice names the file written and offers to open it.
+    assert str(signal.args[0]) in ws.notice.label.text()
+    assert [b.text() for b in ws.notice.buttons] == ["Open it", "Show folder"]
+
+    # A step excluded after storing is a new reading: the report is of the scan as it stands, not archived.
+    window.session.set_excluded(0, 12)
+    with qtbot.waitSignal(ws.exports.file_written, timeout=30_000) as signal:
+        assert ws.exports.export("pdf", tmp_path / "changed.pdf")
+    assert all("not archived" in page for page in pdf_text(signal.args[0]))
