@@ -274,9 +274,10 @@ class CurveView(QWidget):
         x0 = figures.gamma_log_exposure
         y0 = float(curve(x0))
         self.max_slope_item.setData([x0], [y0])
-        # A short tangent shows what "maximum slope" means on the curve itself.
+        # A short tangent shows what "maximum slope" means on the curve itself, never past the usable steps.
         half = 0.12
-        self.tangent_item.setData([x0 - half, x0 + half], [y0 - figures.gamma * half, y0 + figures.gamma * half])
+        a, b = max(x0 - half, float(curve.log_exposure[0])), min(x0 + half, float(curve.log_exposure[-1]))
+        self.tangent_item.setData([a, b], [y0 + figures.gamma * (a - x0), y0 + figures.gamma * (b - x0)])
         if self._gradient_shown:
             grid, slope = curve.gradient_curve()
             self.gradient_curve.setData(grid, slope)

@@ -50,3 +50,33 @@ def test_a_long_trend_ticks_months(qtbot, one_day_archive):
     levels = axis.tickValues(start, start + 400 * 86_400, 600)
     labels = axis.tickStrings(levels[0][1], 1.0, levels[0][0])
     assert labels and all(re.fullmatch(r"[A-Z][a-z]{2} \d{4}", label) for label in labels), labels
+
+
+def test_excluding_the_step_below_the_last_usable_one_does_not_invent_a_steeper_gamma(qtbot, open_scan, window):
+    """Item 4: lot A strip 2 with step 12 excluded read gamma 5.50 (5.05 before) and drew a tangent to 3.1 OD.
+
+    Steps 14 and up lie beyond the calibrated range, so with step 12 excluded step 13 is the last usable step
+    and the curve is steepest there: its slope is the interpolant's end condition, not a measurement.  The
+    simulated film's true maximum slope is 5.10 at log E 1.69 (the demo scenario's model film, exact).
+    """
+    from stripscan.demo_data import demo_files
+
+    files = demo_files()
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.lot_a_scan)
+    session = window.session
+    before = session.result(1).figures
+    assert before.gamma == pytest.approx(5.10, rel=0.03)  # within 3 % of the model film's own
+    session.set_excluded(1, 12)
+    session.select(1)
+    after = session.result(1)
+    usable = [s.step for s in after.steps if s.in_range and not s.excluded]
+    assert usable[-1] == 13 and 12 not in usable
+    assert after.figures.gamma is None
+    assert any("gamma not stated" in note and "last usable step" in note for note in after.figures.notes)
+    tx, _ = window.curve_view.tangent_item.getData()
+    assert tx is None or len(tx) == 0
+    # Every tangent drawn stays within the usable steps (with steps 12 and 13 both in use).
+    session.set_excluded(1, 12, False)
+    tx, ty = window.curve_view.tangent_item.getData()
+    assert max(tx) <= 1.8 + 1e-9 and max(ty) < 3.05
