@@ -147,16 +147,24 @@ class MainWindow(QMainWindow):
             runner.busy_changed.connect(self._work_changed)
 
         self.progress = TaskProgress(self.runner, 260)
+        # The caution once, under every page, whole (wrapped on a narrow window, never clipped);
+        # the panels' own copies are for when they are used on their own.
         caution = QLabel(CAUTION)
-        caution.setStyleSheet("color: #6d4c00")
-        caution.setToolTip(CAUTION)
-        # Clipped rather than widening the window; it is shown in full under the figures.
+        caution.setWordWrap(True)
+        caution.setStyleSheet("color: #6d4c00; font-style: italic")
         caution.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
-        caution.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        caution.setContentsMargins(6, 0, 6, 0)
+        self.workspace.widget.layout().addWidget(caution)
+        for panel_caution in (self.figures.caution, self.workspace.archive_panel.caution,
+                              self.workspace.compare_panel.caution):
+            panel_caution.hide()
+        self.caution_label = caution
+        #: Which calibration is active, always in view (also after a restart).
+        self.calibration_status = QLabel()
+        self.calibration_status.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.statusBar().addPermanentWidget(self.progress)
         self.statusBar().addPermanentWidget(self.workspace.progress)
-        self.statusBar().addPermanentWidget(caution, 1)
-        self.caution_label = caution
+        self.statusBar().addPermanentWidget(self.calibration_status)
         self.scan_view.hint.connect(lambda text: self.statusBar().showMessage(text))
         self.strips_panel.draw_requested.connect(self.start_drawing)
         self.strips_panel.find_requested.connect(self.find_strips_again)
@@ -165,6 +173,7 @@ class MainWindow(QMainWindow):
         self._make_actions()
         ev = self.session.events
         ev.calibration_changed.connect(self._refresh_banner)
+        ev.calibration_changed.connect(self._show_calibration)
         ev.scan_loaded.connect(self._refresh_banner)
         ev.levels_changed.connect(lambda low, high: self.settings.set_levels(low, high))
         self._restore()
@@ -266,6 +275,7 @@ class MainWindow(QMainWindow):
                 self.settings.set_calibration_path(None)
                 report_error(self, "The saved calibration could not be used", exc)
         self._refresh_banner()
+        self._show_calibration()
 
     def _first_layout(self) -> None:
         width = self.splitter.width()
@@ -410,6 +420,20 @@ class MainWindow(QMainWindow):
         self.settings.set_calibration_path(path)
         what = f"calibration {Path(path).name}" if path else "direct mode (no calibration)"
         self.statusBar().showMessage(f"Now using {what}", 8000)
+
+    def _show_calibration(self) -> None:
+        """Name the active calibration in the status bar (its file, date and range), or say there is none."""
+        calibration, path = self.session.calibration, self.session.calibration_path
+        if calibration is None:
+            self.calibration_status.setText("<span style='color:#b71c1c'>No calibration: direct mode</span>")
+            self.calibration_status.setToolTip("Densities are uncalibrated scanner readings. "
+                                               "Calibration ▸ Calibration assistant… to make one.")
+            return
+        name = Path(path).name if path else "calibration (not saved)"
+        made = str(calibration.created)[:10]
+        low, high = calibration.valid_od
+        self.calibration_status.setText(f"Calibration: {name}, made {made}, {low:.2f}–{high:.2f} OD")
+        self.calibration_status.setToolTip(f"{path or ''}\nsha256 {calibration.sha256[:16]}…".strip())
 
     def _refresh_banner(self) -> None:
         lines = self.session.messages()

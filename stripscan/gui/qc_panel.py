@@ -51,6 +51,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from .. import CAUTION
 from . import qtguard  # noqa: F401  (before any signal is emitted)
 from ..archive import Archive, ArchiveError, Processor
 from ..archive import QcEntry as StoredEntry
@@ -321,6 +322,8 @@ class QcPanel(QWidget):
         self.scan_source: ScanSource | None = None
         #: The new-processor form opened last, for a test or a script to fill in.
         self.dialog: NewProcessorDialog | None = None
+        #: The status ends with the caution; a window that shows it under every page sets this False.
+        self.caution_in_status = True
         self.data: ChartData | None = None
         self.plog: ProcessorLog | None = None
         self.processor_box = QComboBox()
@@ -724,7 +727,10 @@ class QcPanel(QWidget):
             # The latest entry is the one most often found mistyped.
             self.entry_spin.setValue(max(e.id for e in plog.entries if e.id is not None))
             self._entry_chosen(self.entry_spin.value())
-        self.status_label.setText(self._status_html(plog))
+        status = self._status_html(plog)
+        if not self.caution_in_status:
+            status = status.replace(html.escape(CAUTION), "").replace(CAUTION, "")
+        self.status_label.setText(status)
         if not plog.log.entries:
             return
         self.data = chart_data(plog)

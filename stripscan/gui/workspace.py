@@ -48,7 +48,7 @@ from .archive_panel import ArchivePanel
 from .compare_panel import ComparePanel
 from .errors import report_error, show_message
 from .exports import Exports
-from .lot_choice import LotChoiceDialog, caution_label
+from .lot_choice import LotChoiceDialog
 from .notice import NoticeBar
 from .progress import TaskProgress
 from .qc_panel import QcPanel
@@ -173,10 +173,8 @@ class Workspace(QObject):
         row.addWidget(self.qc_panel, 1)
         row.addWidget(side)
         qc_layout.addLayout(row, 1)
-        # The panel's status carries the caution only once a processor is shown; the page always does.
-        self.qc_caution = caution_label()
-        self.qc_caution.setContentsMargins(8, 0, 8, 0)
-        qc_layout.addWidget(self.qc_caution)
+        # The window shows the caution under every page; the status need not repeat it.
+        self.qc_panel.caution_in_status = False
         self.page_widgets: dict[str, QWidget] = {"scan": scan_page, "archive": self.archive_panel,
                                                  "comparison": self.compare_panel, "qc": qc_page}
         self.pages = QTabWidget()

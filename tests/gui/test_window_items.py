@@ -80,3 +80,18 @@ def test_excluding_the_step_below_the_last_usable_one_does_not_invent_a_steeper_
     session.set_excluded(1, 12, False)
     tx, ty = window.curve_view.tangent_item.getData()
     assert max(tx) <= 1.8 + 1e-9 and max(ty) < 3.05
+
+
+def test_the_active_calibration_is_named_in_the_status_bar_also_after_a_restart(qtbot, window, files, settings):
+    """Item 10: once the no-calibration banner is gone, the status bar still says which calibration is active."""
+    from stripscan.gui.main_window import MainWindow
+
+    assert "No calibration" in window.calibration_status.text()
+    window.use_calibration_file(str(files.calibration))
+    text = window.calibration_status.text()
+    low, high = files.calibration_record.valid_od
+    assert files.calibration.name in text and f"{low:.2f}–{high:.2f} OD" in text
+    window.close()
+    again = MainWindow(settings=type(settings)(settings.file))
+    qtbot.addWidget(again)
+    assert files.calibration.name in again.calibration_status.text()
