@@ -114,6 +114,8 @@ class ComparePanel(QWidget):
         bold = QFont()
         bold.setBold(True)
         self.title.setFont(bold)
+        # A long title wraps: it must not set the width of the window.
+        self.title.setWordWrap(True)
         self.pair_choice = QComboBox()
         self.pair_choice.currentIndexChanged.connect(self._show_table)
         self.curve_plot = _plot("Mean curves, ±1 sd over the strips", "log relative exposure", "optical density")

@@ -16,13 +16,44 @@ from PySide6.QtWidgets import QCheckBox, QGraphicsItem, QHBoxLayout, QLabel, QVB
 
 from ..core.curve import strip_curve
 from ..core.records import StripResult
+from ..curve_marks import CURVE_MARKS, GLYPHS, CurveMark
 from .session import Session
 from .style import strip_colour
 
 __all__ = ["CurveView"]
 
-_LEVEL_PEN = pg.mkPen("#6a1b9a", width=2, style=Qt.PenStyle.DashLine)
+# pyqtgraph's names for the shapes and dashes of stripscan.curve_marks.
+_SYMBOLS = {"circle": "o", "square": "s", "triangle": "t1", "diamond": "d", "cross": "x"}
+_DASHES = {"solid": Qt.PenStyle.SolidLine, "dash": Qt.PenStyle.DashLine, "dot": Qt.PenStyle.DotLine,
+           "dashdot": Qt.PenStyle.DashDotLine}
+_LEVEL_PEN = pg.mkPen(CURVE_MARKS["levels"].colour, width=2, style=_DASHES[CURVE_MARKS["levels"].dash])
 _LEVEL_HOVER = pg.mkPen("#ab47bc", width=3)
+#: What the empty plot spans: a 21-step tablet's 0-3 log E, densities to 3.5 OD.
+EMPTY_RANGE = ((0.0, 3.0), (0.0, 3.5))
+
+
+def _points(mark: CurveMark, size: float, colour: str | None = None) -> pg.ScatterPlotItem:
+    colour = colour or mark.colour
+    return pg.ScatterPlotItem(size=size, symbol=_SYMBOLS[mark.shape],
+                              pen=pg.mkPen("#000000" if mark.filled and mark.shape != "cross" else colour,
+                                           width=1 if mark.filled else 1.5),
+                              brush=pg.mkBrush(colour) if mark.filled else pg.mkBrush(None))
+
+
+def _line_pen(mark: CurveMark, width: float) -> object:
+    return pg.mkPen(mark.colour, width=width, style=_DASHES[mark.dash])
+
+
+def legend_entry(mark: CurveMark, colour: str | None = None, words: str | None = None) -> str:
+    """One legend entry as rich text: the mark's glyph (or a line) in its colour, then its words."""
+    colour = colour or mark.colour
+    if mark.shape == "line":
+        glyph = {"solid": "━━", "dash": "╍╍", "dot": "┄┄",
+                 "dashdot": "━·━"}[mark.dash]
+    else:
+        glyph = GLYPHS[mark.shape][0 if mark.filled else 1]
+    return (f"<span style='white-space:nowrap'><b style='color:{colour}'>{glyph}</b>&nbsp;"
+            f"{words or mark.words}</span>")
 
 
 class _StripCurve:
@@ -31,13 +62,14 @@ class _StripCurve:
     def __init__(self, plot: pg.PlotItem, colour: str, *, main: bool) -> None:
         size = 8 if main else 6
         self.points = pg.ScatterPlotItem(size=size, pen=pg.mkPen(colour), brush=pg.mkBrush(colour))
-        self.unused = pg.ScatterPlotItem(size=size, symbol="x", pen=pg.mkPen("#9e9e9e", width=1.5),
-                                         brush=pg.mkBrush("#9e9e9e"))
+        # Steps not used and steps excluded by the user are marked apart (as on the scan and in reports).
+        self.unused = _points(CURVE_MARKS["unused"], size)
+        self.excluded = _points(CURVE_MARKS["excluded"], size + 2)
         self.bars = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.012,
                                     pen=pg.mkPen(colour, width=1))
         style = Qt.PenStyle.SolidLine if main else Qt.PenStyle.DashLine
         self.line = pg.PlotCurveItem(pen=pg.mkPen(colour, width=2 if main else 1.5, style=style))
-        self.items = (self.line, self.bars, self.unused, self.points)
+        self.items = (self.line, self.bars, self.unused, self.excluded, self.points)
         for item in self.items:
             # The selected strip stays on top of the strips drawn with it.
             item.setZValue(5 if main else 0)
@@ -45,16 +77,18 @@ class _StripCurve:
 
     def show(self, result: StripResult | None) -> None:
         if result is None:
-            for item in (self.points, self.unused, self.line):
+            for item in (self.points, self.unused, self.excluded, self.line):
                 item.setData([], [])
             self.bars.setData(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0))
             return
         used = [s for s in result.steps if s.in_range and not s.excluded and np.isfinite(s.od)]
-        other = [s for s in result.steps if s not in used and np.isfinite(s.od)]
+        other = [s for s in result.steps if s not in used and not s.excluded and np.isfinite(s.od)]
+        excluded = [s for s in result.steps if s.excluded and np.isfinite(s.od)]
         x = np.array([s.log_exposure for s in used])
         y = np.array([s.od for s in used])
         self.points.setData(x, y)
         self.unused.setData([s.log_exposure for s in other], [s.od for s in other])
+        self.excluded.setData([s.log_exposure for s in excluded], [s.od for s in excluded])
         sd = np.array([s.od_sd if np.isfinite(s.od_sd) else 0.0 for s in used])
         self.bars.setData(x=x, y=y, height=2.0 * sd)
         curve = strip_curve(result)
@@ -97,35 +131,40 @@ class CurveView(QWidget):
         self.plot.setLabel("left", "Optical density (OD)")
         self.plot.showGrid(x=True, y=True, alpha=0.15)
         self.plot.setMenuEnabled(False)
-        # Top left stays empty on a characteristic curve (low exposure sits at base+fog).
-        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt")
+        # Densities and log E are read as they are: a "(x0.001)" scale would hide the numbers people know.
+        for name in ("left", "bottom"):
+            self.plot.getAxis(name).enableAutoSIPrefix(False)
+        #: The legend, under the plot: never over the data (the shared marks of stripscan.curve_marks).
+        self.legend_label = QLabel()
+        self.legend_label.setWordWrap(True)
+        self.legend_label.setTextFormat(Qt.TextFormat.RichText)
+        self.legend_label.setStyleSheet("font-size: 8pt")
 
         self.latitude_region = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(106, 27, 154, 30),
                                                    pen=pg.mkPen(None))
         self.latitude_region.setZValue(-20)
         self.plot.addItem(self.latitude_region)
-        self.base_fog_line = pg.InfiniteLine(angle=0, movable=False,
-                                             pen=pg.mkPen("#757575", style=Qt.PenStyle.DotLine),
+        self.base_fog_line = pg.InfiniteLine(angle=0, movable=False, pen=_line_pen(CURVE_MARKS["base_fog"], 1),
                                              label="base+fog", labelOpts={"position": 0.04, "color": "#616161",
                                                                          "anchors": [(0, 1), (0, 1)]})
         self.plot.addItem(self.base_fog_line)
         self.main = _StripCurve(self.plot, strip_colour(0), main=True)
-        self.legend.addItem(self.main.points, "selected strip")
-        self.legend.addItem(self.main.unused, "step not on the curve")
         self.low_line = self._level_line()
         self.high_line = self._level_line()
-        self.gradient_item = pg.PlotCurveItem(pen=pg.mkPen("#6a1b9a", width=3))
+        self.gradient_item = pg.PlotCurveItem(pen=_line_pen(CURVE_MARKS["gradient"], 3))
         self.plot.addItem(self.gradient_item)
-        self.speed_item = pg.ScatterPlotItem(symbol="star", size=16, pen=pg.mkPen("#000000"),
-                                             brush=pg.mkBrush("#ffeb3b"))
-        self.max_slope_item = pg.ScatterPlotItem(symbol="t1", size=13, pen=pg.mkPen("#000000"),
-                                                 brush=pg.mkBrush("#26a69a"))
-        self.tangent_item = pg.PlotCurveItem(pen=pg.mkPen("#26a69a", width=1.5, style=Qt.PenStyle.DashDotLine))
-        for item in (self.speed_item, self.max_slope_item, self.tangent_item):
+        self.density_points_item = _points(CURVE_MARKS["density_points"], 11)
+        self.speed_item = _points(CURVE_MARKS["speed"], 14)
+        self.max_slope_item = _points(CURVE_MARKS["max_slope"], 13)
+        self.tangent_item = pg.PlotCurveItem(pen=_line_pen(CURVE_MARKS["tangent"], 1.5))
+        for item in (self.density_points_item, self.speed_item, self.max_slope_item, self.tangent_item):
+            item.setZValue(6)
             self.plot.addItem(item)
-        self.legend.addItem(self.gradient_item, "average gradient")
-        self.legend.addItem(self.speed_item, "speed point (net 1.00)")
-        self.legend.addItem(self.max_slope_item, "maximum slope")
+        self.empty_hint = pg.TextItem("Open a scan of strips (File ▸ Open, or drop it on the window):\n"
+                                      "each strip's characteristic curve is drawn here.",
+                                      color="#616161", anchor=(0.5, 0.5))
+        self.empty_hint.setPos(sum(EMPTY_RANGE[0]) / 2, sum(EMPTY_RANGE[1]) / 2)
+        self.plot.addItem(self.empty_hint)
         self.overlays: dict[int, _StripCurve] = {}
         self._syncing = False
         self._setup_gradient_axis()
@@ -133,7 +172,6 @@ class CurveView(QWidget):
         # many times a second while they stay the same (text drawing is the slow part).
         for name in ("left", "bottom", "right"):
             self.plot.getAxis(name).setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
-        self.legend.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
         self.show_gradient = QCheckBox("Gradient curve (right axis)")
         self.show_gradient.setToolTip("Show dD/d(log E) of the curve against a second axis")
@@ -151,6 +189,7 @@ class CurveView(QWidget):
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addWidget(self.readout)
         layout.addWidget(self.plot_widget, 1)
+        layout.addWidget(self.legend_label)
         layout.addLayout(bottom)
 
         # Moving a level changes figures only: the points and curves stay as they are.
@@ -178,7 +217,8 @@ class CurveView(QWidget):
         axis.linkToView(self.gradient_view)
         axis.setLabel("Gradient dD/d(log E)")
         self.gradient_view.setXLink(self.plot)
-        self.gradient_curve = pg.PlotCurveItem(pen=pg.mkPen("#26a69a", width=1.5, style=Qt.PenStyle.DashLine))
+        self.gradient_curve = pg.PlotCurveItem(pen=pg.mkPen(CURVE_MARKS["max_slope"].colour, width=1.5,
+                                                            style=Qt.PenStyle.DashLine))
         self.gradient_view.addItem(self.gradient_curve)
         self._gradient_shown = False
 
@@ -189,11 +229,6 @@ class CurveView(QWidget):
 
     def set_gradient_visible(self, shown: bool) -> None:
         """Show or hide the gradient curve and its axis."""
-        if shown != self._gradient_shown:
-            if shown:
-                self.legend.addItem(self.gradient_curve, "gradient (right axis)")
-            else:
-                self.legend.removeItem(self.gradient_curve)
         self._gradient_shown = shown
         self.plot.showAxis("right", shown)
         self.gradient_view.setVisible(shown)
@@ -215,17 +250,38 @@ class CurveView(QWidget):
         self._show_overlays()
         self._show_figures(result)
         self._show_slope(result)
+        self._show_legend(colour)
+        # Nothing to draw: fixed ranges in plain units and a hint, not pyqtgraph's ±0.5 around nothing.
+        empty = result is None and not self.overlays
+        self.empty_hint.setVisible(empty and self.session.scan is None)
+        if empty:
+            self.plot.disableAutoRange()
+            self.plot.setRange(xRange=EMPTY_RANGE[0], yRange=EMPTY_RANGE[1], padding=0.02)
+        else:
+            self.plot.enableAutoRange()
+
+    def _show_legend(self, colour: str) -> None:
+        """The legend under the plot: what is drawn now, in the marks the reports use too."""
+        m = CURVE_MARKS
+        entries = [legend_entry(m["step"], colour, f"step on the curve (strip {(self.session.selected or 0) + 1})"),
+                   legend_entry(m["unused"]), legend_entry(m["excluded"]), legend_entry(m["levels"]),
+                   legend_entry(m["density_points"]), legend_entry(m["gradient"]), legend_entry(m["speed"]),
+                   legend_entry(m["max_slope"])]
+        entries += [legend_entry(CurveMark(f"strip {k + 1}", strip_colour(k), "line", dash="dash"))
+                    for k in sorted(self.overlays)]
+        if self._gradient_shown:
+            entries.append(legend_entry(CurveMark("gradient dD/d(log E) (right axis)", m["max_slope"].colour, "line",
+                                                  dash="dash")))
+        self.legend_label.setText(" &nbsp; ".join(entries))
 
     def _show_overlays(self) -> None:
         wanted = {k for k in self.session.overlay if k != self.session.selected and k < len(self.session.strips)}
         for k in list(self.overlays):
             if k not in wanted:
                 self.overlays.pop(k).remove(self.plot)
-                self.legend.removeItem(f"strip {k + 1}")
         for k in sorted(wanted):
             if k not in self.overlays:
                 self.overlays[k] = _StripCurve(self.plot, strip_colour(k), main=False)
-                self.legend.addItem(self.overlays[k].points, f"strip {k + 1}")
             self.overlays[k].show(self.session.result(k))
 
     def _show_figures(self, result: StripResult | None) -> None:
@@ -251,10 +307,12 @@ class CurveView(QWidget):
         x2 = figures.gradient_high_log_exposure if figures else None
         if reference is not None and x1 is not None and x2 is not None:
             self.gradient_item.setData([x1, x2], [reference + low, reference + high])
+            self.density_points_item.setData([x1, x2], [reference + low, reference + high])
             self.latitude_region.setRegion((x1, x2))
             self.latitude_region.show()
         else:
             self.gradient_item.setData([], [])
+            self.density_points_item.setData([], [])
             self.latitude_region.hide()
         if reference is not None and figures.speed_log_exposure is not None:
             self.speed_item.setData([figures.speed_log_exposure],

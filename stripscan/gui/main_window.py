@@ -329,11 +329,13 @@ class MainWindow(QMainWindow):
             self.use_calibration_file(path)
             return
         self.statusBar().showMessage(f"Reading {path}…")
+        self.strips_panel.set_reading(Path(path).name)
         self.runner.start(load_and_find, path, n_steps=self.session.options.n_steps,
                           on_done=lambda loaded: self._loaded(path, loaded),
                           on_error=lambda exc: self._open_failed(path, exc), key="scan")
 
     def _loaded(self, path: str, loaded: LoadedScan) -> None:
+        self.strips_panel.set_reading(None)
         self.session.set_loaded(loaded)
         self.settings.add_recent(path)
         self.settings.set_last_folder(str(Path(path).parent))
@@ -347,6 +349,7 @@ class MainWindow(QMainWindow):
             show_message(self, "No densities for this scan", self.session.mapping_error)
 
     def _open_failed(self, path: str, error: BaseException) -> None:
+        self.strips_panel.set_reading(None)
         self.statusBar().showMessage(f"Could not open {Path(path).name}", 8000)
         report_error(self, "The scan could not be opened", error)
 
@@ -392,6 +395,8 @@ class MainWindow(QMainWindow):
     def open_calibration_assistant(self) -> CalibrationDialog:
         active = self.session.calibration_path or ""
         dialog = CalibrationDialog(self, start_folder=self.settings.last_folder(), active=active)
+        if self.session.scan is not None:
+            dialog.offer_scan(self.session.scan.info.path)
         dialog.calibration_saved.connect(self.use_calibration_file)
         dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         self.calibration_dialog = dialog

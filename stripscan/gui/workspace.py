@@ -35,7 +35,6 @@ from PySide6.QtWidgets import (
     QMessageBox,
     QScrollArea,
     QSplitter,
-    QStackedWidget,
     QTabWidget,
     QToolButton,
     QVBoxLayout,
@@ -155,6 +154,8 @@ class Workspace(QObject):
         session.events.connect_each(lambda *_: self.qc_panel.update_scan_strips(), "scan_loaded", "strips_changed",
                                     "results_changed", "calibration_changed")
         self.qc_panel.sigProcessorCreated.connect(self._processor_created)
+        session.events.connect_each(self.update_scan_actions, "scan_loaded", "strips_changed", "results_changed",
+                                    "calibration_changed")
         qc_page = QWidget()
         qc_layout = QVBoxLayout(qc_page)
         qc_layout.setContentsMargins(0, 0, 0, 4)
@@ -179,9 +180,19 @@ class Workspace(QObject):
                                                  "comparison": self.compare_panel, "qc": qc_page}
         self.pages = QTabWidget()
         self.pages.setDocumentMode(True)
+        # A tab widget is as wide as its widest page: each page but the scan scrolls when the window is
+        # narrower than it (1024 px), so the scan page keeps its room beside the strip list.
+        self._tab_widgets: dict[str, QWidget] = {}
         for name, title, _ in PAGES:
             if name in self.page_widgets:
-                self.pages.addTab(self.page_widgets[name], title)
+                tab = self.page_widgets[name]
+                if name != "scan":
+                    tab = QScrollArea()
+                    tab.setWidgetResizable(True)
+                    tab.setFrameShape(QFrame.Shape.NoFrame)
+                    tab.setWidget(self.page_widgets[name])
+                self._tab_widgets[name] = tab
+                self.pages.addTab(tab, title)
         #: What was just stored or written, over the pages until the next (the window's centre holds both).
         self.notice = NoticeBar()
         self.widget = QWidget()
@@ -194,6 +205,7 @@ class Workspace(QObject):
         self.progress = TaskProgress(self.runner, 340)
         self.exports = Exports(self)
         self._make_actions()
+        self.update_scan_actions()
         self.pages.setCornerWidget(self._corner(), Qt.Corner.TopRightCorner)
         self.pages.currentChanged.connect(self._corner_follow)
         self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
@@ -236,13 +248,37 @@ class Workspace(QObject):
                                       "One page per strip: curve, figures, steps, calibration")
         self.page_actions = {name: act(title, lambda n=name: self.show_page(n), f"Show the {title.lower()} page",
                                        shortcut) for name, title, shortcut in PAGES}
+        # Short words on the buttons beside the tabs (the menus keep the whole words), so that the tabs
+        # keep their names at 1024 px.
+        for action, short in ((self.save_action, "Store in archive…"), (self.scan_report_action, "Report (PDF)…"),
+                              (self.open_archive_action, "Open…"), (self.new_archive_action, "New…"),
+                              (self.snapshot_report_action, "Snapshot report (PDF)…"),
+                              (self.compare_lots_action, "Two lots…"),
+                              (self.compare_scan_action, "A lot and this scan…"),
+                              (self.comparison_report_action, "Report (PDF)…"),
+                              (self.qc_report_action, "Month report (PDF)…")):
+            action.setIconText(short)
+        # What needs a scan with strips is greyed out until one is read.
+        self._scan_actions = (self.save_action, self.scan_report_action, self.compare_scan_action,
+                              *self.export_menu_actions())
         self.export_menu = QMenu("E&xport")
-        for action in (self.steps_csv_action, self.figures_csv_action, self.curve_png_action, self.curve_svg_action):
+        for action in self.export_menu_actions():
             self.export_menu.addAction(action)
         # Greyed out while the demo archive is being built into the file they would use.
         self._archive_actions = (self.save_action, self.open_archive_action, self.new_archive_action,
                                  self.snapshot_report_action, self.qc_report_action, self.compare_lots_action,
                                  self.compare_scan_action)
+
+    def export_menu_actions(self) -> tuple[QAction, ...]:
+        """The Export menu's actions (files of the open scan)."""
+        return (self.steps_csv_action, self.figures_csv_action, self.curve_png_action, self.curve_svg_action)
+
+    def update_scan_actions(self, *_: object) -> None:
+        """Grey out what needs a scan with strips (storing, its report, exports) while there is none."""
+        analysis = self.session.analysis()
+        has_strips = analysis is not None and bool(analysis.strips)
+        for action in self._scan_actions:
+            action.setEnabled(has_strips and not (self.building and action in self._archive_actions))
 
     def fill_file_menu(self, menu: QMenu) -> None:
         """Add the exports of the scan page to the File menu."""
@@ -265,11 +301,22 @@ class Workspace(QObject):
             menu.addAction(action)
         menu.addSeparator()
 
-    def _corner(self) -> QStackedWidget:
+    def _corner(self) -> QWidget:
         # The tab row has room to the right: each page's own actions go there, no extra row is taken.
-        stack = QStackedWidget()
+        # Only the current page's row is shown, and only it takes room (a stacked widget is as wide as its
+        # widest row, which took the tabs' room at 1024 px).
+        stack = QWidget()
+        stack_layout = QHBoxLayout(stack)
+        stack_layout.setContentsMargins(0, 0, 0, 0)
+        self._corner_rows: list[QWidget] = []
+        # The scan's report and exports share one button: at 1024 px the tabs need the room.
+        self.files_menu = QMenu("Files", self.window)
+        self.files_menu.addAction(self.scan_report_action)
+        self.files_menu.addSeparator()
+        for action in self.export_menu_actions():
+            self.files_menu.addAction(action)
         rows: dict[str, Sequence[QAction | QMenu]] = {
-            "scan": (self.save_action, self.scan_report_action, self.export_menu),
+            "scan": (self.save_action, self.files_menu),
             "archive": (self.open_archive_action, self.new_archive_action, self.snapshot_report_action),
             "comparison": (self.compare_lots_action, self.compare_scan_action, self.comparison_report_action),
             "qc": (self.qc_report_action,),
@@ -286,8 +333,9 @@ class Workspace(QObject):
                 button = QToolButton()
                 button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
                 if isinstance(item, QMenu):
-                    button.setText("Export")
-                    button.setToolTip("Save the scan's steps, figures or curve plot as files")
+                    button.setText("Files")
+                    button.setToolTip("The report of the scan's strips (PDF), or its steps, figures or curve plot "
+                                      "as files")
                     button.setMenu(item)
                     button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
                 else:
@@ -295,12 +343,16 @@ class Workspace(QObject):
                 layout.addWidget(button)
                 buttons.append(button)
             self.corner_buttons[name] = buttons
-            stack.addWidget(row)
+            stack_layout.addWidget(row)
+            self._corner_rows.append(row)
         self._corner_stack = stack
+        self._corner_follow(0)
         return stack
 
     def _corner_follow(self, index: int) -> None:
-        self._corner_stack.setCurrentIndex(index)
+        for k, row in enumerate(self._corner_rows):
+            row.setVisible(k == index)
+        self.pages.setCornerWidget(self._corner_stack, Qt.Corner.TopRightCorner)  # the tab bar takes the room back
 
     # -- pages ------------------------------------------------------------------------------------
     def show_page(self, name: str) -> None:
@@ -311,11 +363,11 @@ class Workspace(QObject):
             name = "archive"
         elif name == "archive":
             panel.tabs.setCurrentWidget(panel.view)
-        self.pages.setCurrentWidget(self.page_widgets[name])
+        self.pages.setCurrentWidget(self._tab_widgets[name])
 
     def current_page(self) -> str:
         widget = self.pages.currentWidget()
-        return next(name for name, w in self.page_widgets.items() if w is widget)
+        return next(name for name, w in self._tab_widgets.items() if w is widget)
 
     def status(self, text: str, msecs: int = 8000) -> None:
         """A line in the status bar (``msecs`` 0: until the next)."""
@@ -548,6 +600,7 @@ class Workspace(QObject):
         self.building = False
         for action in self._archive_actions:
             action.setEnabled(True)
+        self.update_scan_actions()
 
     def _demo_built(self, path: Path) -> None:
         self._demo_done()

@@ -95,3 +95,126 @@ def test_the_active_calibration_is_named_in_the_status_bar_also_after_a_restart(
     again = MainWindow(settings=type(settings)(settings.file))
     qtbot.addWidget(again)
     assert files.calibration.name in again.calibration_status.text()
+
+
+def test_the_empty_curve_has_plain_units_and_a_hint(qtbot, window):
+    """Item 6: before a scan the curve read ±400 '(OD) (x0.001)'; now 0-3 log E, 0-3.5 OD and a hint."""
+    from PySide6.QtWidgets import QApplication
+
+    view = window.curve_view
+    QApplication.processEvents()
+    (x0, x1), (y0, y1) = view.plot.viewRange()
+    assert -0.1 < x0 <= 0.0 and 3.0 <= x1 < 3.1 and -0.1 < y0 <= 0.0 and 3.5 <= y1 < 3.6
+    for name in ("left", "bottom"):
+        axis = view.plot.getAxis(name)
+        assert "x0.001" not in axis.labelString() and axis.autoSIPrefixScale == 1.0
+    assert view.empty_hint.isVisible() and "Open a scan" in view.empty_hint.toPlainText()
+
+
+def test_the_calibration_assistant_before_a_fit_shows_no_band_and_plain_axes(qtbot, window):
+    """Item 6: before a fit the assistant's chart ran 0.1-0.9 'Tablet step' with a band over the empty chart."""
+    dialog = window.open_calibration_assistant()
+    assert not dialog.valid_band.isVisible()
+    for plot in dialog.findChildren(type(window.curve_view.plot_widget)):
+        for name in ("left", "bottom"):
+            axis = plot.getPlotItem().getAxis(name)
+            assert axis.autoSIPrefixScale == 1.0
+    dialog.reject()
+
+
+def test_the_curve_legend_lies_outside_the_data_and_marks_excluded_and_unused_apart(qtbot, open_scan, window,
+                                                                                     files):
+    """Items 7, 9 and issue 13 item 6: one set of marks, the legend under the plot."""
+    from stripscan.curve_marks import CURVE_MARKS
+    from stripscan.report import curve_plot
+
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.scan)
+    view = window.curve_view
+    assert not any(type(item).__name__ == "LegendItem" for item in view.plot.items + view.plot.vb.addedItems)
+    assert view.legend_label.isVisible()
+    assert view.plot_widget.geometry().bottom() <= view.legend_label.geometry().top()
+    text = view.legend_label.text()
+    for key in ("unused", "excluded", "density_points", "gradient", "speed", "max_slope"):
+        assert CURVE_MARKS[key].words in text
+    result = window.session.result()
+    step = [s.step for s in result.steps if s.in_range][3]
+    window.session.set_excluded(window.session.selected, step)
+    excluded_x, _ = view.main.excluded.getData()
+    unused_x, _ = view.main.unused.getData()
+    result = window.session.result()
+    assert list(excluded_x) == [result.steps[step - 1].log_exposure]
+    assert list(unused_x) == [s.log_exposure for s in result.steps if not s.in_range and not s.excluded]
+    assert view.main.excluded.opts["symbol"] == "x" and view.main.unused.opts["symbol"] == "o"
+    # The report draws the same things with the same shapes, colours and words.
+    plot = curve_plot(result)
+    marks = {item.label.split(" (")[0]: item for item in plot.items if getattr(item, "label", "")}
+    assert marks[CURVE_MARKS["excluded"].words].marker == "cross"
+    assert marks[CURVE_MARKS["excluded"].words].colour == CURVE_MARKS["excluded"].colour
+    assert marks[CURVE_MARKS["speed"].words].marker == "diamond" == CURVE_MARKS["speed"].shape
+    assert view.speed_item.opts["symbol"] == "d"
+    assert marks[CURVE_MARKS["density_points"].words].marker == "square" and view.density_points_item.opts["symbol"] == "s"
+    assert result.figures.gamma is not None
+    assert any(getattr(item, "label", "").startswith(CURVE_MARKS["max_slope"].words) and item.marker == "triangle"
+               for item in plot.items) and view.max_slope_item.opts["symbol"] == "t1"
+
+
+def test_the_step_table_explains_its_flags_and_ticks_only_steps_on_the_curve(qtbot, open_scan, window, files):
+    """Item 9: a step outside the calibrated range showed ticked yet 'not used'; MD, DD low, DD high unexplained."""
+    from PySide6.QtCore import Qt
+
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.scan)
+    table = window.step_table
+    result = window.session.result()
+    out = [s for s in result.steps if not s.in_range]
+    assert out, "the fixture's dense steps lie beyond the calibrated range"
+    item = table.table.item(out[0].step - 1, 0)
+    assert item.checkState() == Qt.CheckState.Unchecked and not item.flags() & Qt.ItemFlag.ItemIsEnabled
+    assert table.table.item(out[0].step - 1, 4).text() == "not used"
+    key = table.key.text()
+    # Common practice targets for processor QC: mid-density near 1.20, density difference steps near 2.20 and 0.45.
+    assert "MD: mid-density step (closest to 1.20 OD)" in key and "2.20 and 0.45 OD" in key and "not used" in key
+
+
+@pytest.mark.parametrize("size", [(1366, 768), (1024, 700)])
+def test_every_page_fits_a_laptop_screen(qtbot, window, size):
+    """Item 8: at 1024 x 700 the tabs shrank to 'Scan and curv' with scroll arrows and the caution was cut."""
+    from PySide6.QtWidgets import QApplication
+
+    window.resize(*size)
+    for name in ("scan", "archive", "comparison", "qc"):
+        window.workspace.show_page(name)
+        QApplication.processEvents()
+        assert window.width() <= size[0] and window.height() <= size[1], name
+        bar = window.workspace.pages.tabBar()
+        assert bar.sizeHint().width() <= bar.width(), name  # every tab title whole, no scroll arrows
+        caution = window.caution_label
+        assert caution.isVisible() and caution.heightForWidth(caution.width()) <= caution.height(), name
+
+
+def test_what_needs_a_scan_is_greyed_out_until_one_is_read(qtbot, open_scan, window, files):
+    """Item 13: 'Save strips to the archive' and the report were enabled with no scan loaded."""
+    ws = window.workspace
+    needs_scan = (ws.save_action, ws.scan_report_action, ws.steps_csv_action, ws.curve_png_action)
+    assert not any(action.isEnabled() for action in needs_scan)
+    open_scan(window, files.scan)
+    assert all(action.isEnabled() for action in needs_scan)
+    assert window.progress.minimumWidth() >= 200  # the task's words fit on one line
+
+
+def test_the_assistant_explains_the_missing_end_bars_and_offers_the_open_scan(qtbot, open_scan, window, files):
+    """Item 11: no bar for steps 1 and 21 without a word; the open tablet scan was not offered."""
+    open_scan(window, files.tablet)
+    dialog = window.open_calibration_assistant()
+    assert dialog.scan_edit.text() == str(files.tablet)
+    dialog.certificate_edit.setText(str(files.certificate))
+    dialog.fit_button.click()
+    qtbot.waitUntil(lambda: dialog.fit is not None, timeout=30_000)
+    assert dialog.valid_band.isVisible()
+    none = [k + 1 for k, r in enumerate(dialog.fit.calibration.residuals) if r is None]
+    assert none == [1, 21]  # leave-one-out cannot predict the end steps without extrapolating
+    assert "No bar for steps 1, 21" in dialog.residual_note.text() and "extrapolate" in dialog.residual_note.text()
+    low, high = dialog.residual_plot.viewRange()[1]
+    assert high > 0.02 * 1.4  # the +0.02 OD goal line and its label lie inside the plot
+    dialog.reject()
