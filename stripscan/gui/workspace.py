@@ -206,7 +206,7 @@ class Workspace(QObject):
         self.exports = Exports(self)
         self._make_actions()
         self.update_scan_actions()
-        self.pages.setCornerWidget(self._corner(), Qt.Corner.TopRightCorner)
+        self._corner()  # set as the tab bar's corner widget by _corner_follow
         self.pages.currentChanged.connect(self._corner_follow)
         self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
 
@@ -352,7 +352,9 @@ class Workspace(QObject):
     def _corner_follow(self, index: int) -> None:
         for k, row in enumerate(self._corner_rows):
             row.setVisible(k == index)
-        self.pages.setCornerWidget(self._corner_stack, Qt.Corner.TopRightCorner)  # the tab bar takes the room back
+        # Set again, so that the tab bar gives back or takes the room (Qt hides the widget it replaces).
+        self.pages.setCornerWidget(self._corner_stack, Qt.Corner.TopRightCorner)
+        self._corner_stack.show()
 
     # -- pages ------------------------------------------------------------------------------------
     def show_page(self, name: str) -> None:

@@ -189,6 +189,9 @@ def test_every_page_fits_a_laptop_screen(qtbot, window, size):
         assert window.width() <= size[0] and window.height() <= size[1], name
         bar = window.workspace.pages.tabBar()
         assert bar.sizeHint().width() <= bar.width(), name  # every tab title whole, no scroll arrows
+        buttons = window.workspace.corner_buttons[name]
+        assert buttons and all(b.isVisible() and b.width() >= b.sizeHint().width() for b in buttons), name
+        assert all(b.mapTo(window, b.rect().topRight()).x() <= window.width() for b in buttons), name
         caution = window.caution_label
         assert caution.isVisible() and caution.heightForWidth(caution.width()) <= caution.height(), name
 
