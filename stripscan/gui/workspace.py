@@ -44,7 +44,7 @@ from PySide6.QtWidgets import (
 from ..archive import Archive, default_archive_path
 from . import jobs
 from .archive_panel import ArchivePanel
-from .compare_panel import ComparePanel
+from .compare_panel import ComparePanel, plain_names
 from .errors import report_error, show_message
 from .exports import Exports
 from .lot_choice import LotChoiceDialog
@@ -575,8 +575,8 @@ class Workspace(QObject):
         if show:
             self.show_page("comparison")
         first = result.comparisons[0]
-        self.status(f"Compared {first.b.name} with {first.a.name}" + (f"; {'; '.join(result.notes)}"
-                                                                          if result.notes else ""), 12000)
+        self.status(plain_names(f"Compared {first.b.name} with {first.a.name}"
+                                + (f"; {'; '.join(result.notes)}" if result.notes else "")), 12000)
         self.comparison_shown.emit()
 
     # -- the demo ---------------------------------------------------------------------------------------------

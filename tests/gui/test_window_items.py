@@ -221,3 +221,26 @@ def test_the_assistant_explains_the_missing_end_bars_and_offers_the_open_scan(qt
     low, high = dialog.residual_plot.viewRange()[1]
     assert high > 0.02 * 1.4  # the +0.02 OD goal line and its label lie inside the plot
     dialog.reject()
+
+
+def test_the_comparison_page_speaks_plain_words(qtbot, open_scan, window, files, make_strip_scan, tmp_path):
+    """Item 14: 'lot:M-2610-A' (command-line syntax), '0 strip(s)' and 'D_B − D_A' on the comparison page."""
+    from PySide6.QtWidgets import QDialogButtonBox
+
+    from tests.gui.test_whole_job import LOT_B_FILMS, store
+
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.scan)
+    store(window, "M-2610-A", "M. Arden", dt.date(2026, 11, 2))
+    open_scan(window, make_strip_scan(tmp_path / "b.tif", LOT_B_FILMS, seed=3).path)
+    store(window, "M-2702-B", "M. Arden", dt.date(2026, 11, 3))
+    ws = window.workspace
+    with qtbot.waitSignal(ws.comparison_shown, timeout=30_000):
+        ws.compare_lots("M-2610-A", "M-2702-B")
+    panel = ws.compare_panel
+    shown = " ".join([panel.title.text(), panel.notes.text(), window.statusBar().currentMessage(),
+                      panel.delta_density_plot.getPlotItem().titleLabel.text])
+    assert "lot:" not in shown and "strip(s)" not in shown and "D_B" not in shown and "_A" not in shown
+    assert "lot M-2702-B (B, 2 strips) against lot M-2610-A (A, 2 strips)" in panel.title.text()
+    assert "D(B) − D(A)" in panel.delta_density_plot.getPlotItem().titleLabel.text
+    assert "not read on every set (read on 0 of the 2 strips" in panel.notes.text()
