@@ -105,6 +105,9 @@ class Exports(QObject):
     def _ask_path(self, title: str, default: str, kinds: str) -> str:
         folder = Path(self.ws.settings.last_folder() or Path.home())
         path, _ = QFileDialog.getSaveFileName(self.ws.window, title, str(folder / default), kinds)
+        if path:
+            # The next report is offered in the same folder.
+            self.ws.settings.set_last_folder(str(Path(path).parent))
         return path
 
     def ask_export(self, kind: str) -> None:

@@ -69,6 +69,7 @@ PAGES: tuple[tuple[str, str, str], ...] = (
     ("qc", "Processor QC", "Ctrl+5"),
 )
 _ARCHIVE_KEY = "archive/path"
+_OPERATOR_KEY = "archive/operator"
 _ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
 _NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
                  "strip: values read on a densitometer, or a strip of the scan open on the first page.")
@@ -485,6 +486,11 @@ class Workspace(QObject):
             self.tell("No archive", "Choose the lot archive first (Archive menu).")
             return None
         dialog = self.archive_panel.save_dialog(analysis, self.session.calibration)
+        # The operator is remembered from the last store: most days the same person reads the strips.
+        last_operator = str(self.settings.qsettings.value(_OPERATOR_KEY, "") or "")
+        if last_operator and not dialog.operator.currentText():
+            dialog.operator.setCurrentText(last_operator)
+        dialog.saved.connect(lambda lot, ids: self.settings.qsettings.setValue(_OPERATOR_KEY, dialog.form().operator))
         dialog.saved.connect(lambda lot, ids: self._stored(analysis, lot, ids))
         self.dialog = dialog
         return dialog

@@ -244,3 +244,55 @@ def test_the_comparison_page_speaks_plain_words(qtbot, open_scan, window, files,
     assert "lot M-2702-B (B, 2 strips) against lot M-2610-A (A, 2 strips)" in panel.title.text()
     assert "D(B) − D(A)" in panel.delta_density_plot.getPlotItem().titleLabel.text
     assert "not read on every set (read on 0 of the 2 strips" in panel.notes.text()
+
+
+def test_the_save_form_suggests_the_lot_remembers_the_operator_and_keeps_a_film_type(qtbot, open_scan, window,
+                                                                                       files, tmp_path):
+    """Item 12: lot from 'lot_M-2610-A_…', operator remembered, required fields marked, a film-type field."""
+    import shutil
+
+    from PySide6.QtWidgets import QDialogButtonBox, QLabel
+
+    from stripscan.gui.save_snapshot_dialog import lot_from_file_name
+
+    assert lot_from_file_name("sample_scans/lot_M-2610-A_three_strips.tif") == "M-2610-A"
+    assert lot_from_file_name("two_strips.tif") == ""
+    named = tmp_path / "lot_M-2610-A_three_strips.tif"
+    shutil.copyfile(files.scan, named)
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, named)
+    ws = window.workspace
+    dialog = ws.save_to_archive()
+    assert dialog.lot.currentText() == "M-2610-A" and dialog.new_lot.isChecked()
+    assert "file name" in dialog.lot_hint.text()
+    labels = [label.text() for label in dialog.findChildren(QLabel)]
+    assert "Emulsion lot: *" in labels and "Operator: *" in labels and "* required" in labels
+    dialog.film_type.setCurrentText("Blue-base green-sensitive")
+    dialog.operator.setCurrentText("M. Arden")
+    dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    assert dialog.stored
+    with Archive.open(ws.archive_path, read_only=True) as archive:
+        assert archive.get_lot("M-2610-A").film_type == "Blue-base green-sensitive"
+    again = ws.save_to_archive()
+    assert again.operator.currentText() == "M. Arden"  # remembered
+    assert again.film_type.currentText() == "Blue-base green-sensitive" and not again.film_type.isEnabled()
+    assert not again.new_lot.isChecked()
+    again.reject()
+
+
+def test_report_save_dialogs_remember_the_last_folder(qtbot, window, tmp_path, monkeypatch):
+    """Item 12: the report save dialogs always started in the same folder."""
+    from PySide6.QtWidgets import QFileDialog
+
+    asked: list[str] = []
+    chosen = tmp_path / "reports" / "one.pdf"
+
+    def fake(parent, title, start, kinds):
+        asked.append(start)
+        return str(chosen), kinds
+
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", staticmethod(fake))
+    exports = window.workspace.exports
+    assert exports._ask_path("Save", "first.pdf", "PDF files (*.pdf)") == str(chosen)
+    exports._ask_path("Save", "second.pdf", "PDF files (*.pdf)")
+    assert asked[1] == str(chosen.parent / "second.pdf")
