@@ -11,10 +11,20 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import QCheckBox, QGraphicsItem, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+from PySide6.QtCore import QEvent, QObject, Qt, Signal
+from PySide6.QtGui import QKeyEvent
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QDoubleSpinBox,
+    QGraphicsItem,
+    QHBoxLayout,
+    QLabel,
+    QPushButton,
+    QVBoxLayout,
+    QWidget,
+)
 
-from ..core.curve import strip_curve
+from ..core.curve import FigureSettings, strip_curve
 from ..core.records import StripResult
 from ..curve_marks import CURVE_MARKS, GLYPHS, CurveMark
 from .session import Session
@@ -179,23 +189,52 @@ class CurveView(QWidget):
         self.readout = QLabel()
         self.readout.setWordWrap(True)
         self.readout.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        hint = QLabel("Drag the dashed lines to move the two density levels.")
+        # The levels typed, as well as dragged (ISO 9236-1's 0.25 and 2.00 by the reset button).
+        self.level_edits: dict[str, QDoubleSpinBox] = {}
+        for name, tip in (("low", "Lower net density of the average gradient and latitude"),
+                          ("high", "Upper net density of the average gradient and latitude")):
+            edit = QDoubleSpinBox()
+            edit.setRange(0.01, 4.0)
+            edit.setDecimals(2)
+            edit.setSingleStep(0.01)
+            edit.setKeyboardTracking(False)
+            edit.setToolTip(tip)
+            edit.valueChanged.connect(lambda value, n=name: self._level_typed(n, value))
+            self.level_edits[name] = edit
+        defaults = FigureSettings()
+        self.reset_levels = QPushButton(f"Reset to {defaults.gradient_low:.2f} / {defaults.gradient_high:.2f}")
+        self.reset_levels.setToolTip("The net densities of ISO 9236-1's average gradient")
+        self.reset_levels.clicked.connect(lambda: self.session.set_levels(defaults.gradient_low, defaults.gradient_high))
+        hint = QLabel("Density levels (net OD): drag a dashed line, or click it and press ↑/↓, or type")
         hint.setStyleSheet("color: #616161")
         hint.setWordWrap(True)
         bottom = QHBoxLayout()
         bottom.addWidget(hint, 1)
         bottom.addWidget(self.show_gradient)
+        levels = QHBoxLayout()
+        levels.addWidget(self.level_edits["low"])
+        levels.addWidget(QLabel("and"))
+        levels.addWidget(self.level_edits["high"])
+        levels.addWidget(self.reset_levels)
+        levels.addStretch(1)
+        #: The level the arrow keys move: the one clicked or dragged last.
+        self.chosen_level: pg.InfiniteLine | None = None
         layout = QVBoxLayout(self)
         layout.setContentsMargins(2, 2, 2, 2)
         layout.addWidget(self.readout)
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.legend_label)
         layout.addLayout(bottom)
+        layout.addLayout(levels)
+        # Arrow keys on the plot move the chosen level (the plot's own view would take them otherwise).
+        self.plot_widget.installEventFilter(self)
 
         # Moving a level changes figures only: the points and curves stay as they are.
         session.events.connect_each(self.refresh, "strips_changed", "results_changed", "strip_changed",
                                     "selection_changed", "overlay_changed")
         session.events.levels_changed.connect(lambda low, high: self._show_figures(self.session.result()))
+        session.events.levels_changed.connect(lambda low, high: self._show_level_values())
+        self._show_level_values()
         self.set_gradient_visible(False)
         self.refresh()
 
@@ -204,8 +243,9 @@ class CurveView(QWidget):
                                label="", labelOpts={"position": 0.97, "color": "#4a148c",
                                                     "fill": pg.mkBrush(255, 255, 255, 210),
                                                     "anchors": [(1, 1), (1, 1)]})
-        line.setToolTip("Drag to move this density level")
+        line.setToolTip("Drag to move this density level, or click it and press ↑/↓ (Shift: larger steps)")
         line.sigPositionChanged.connect(self._line_moved)
+        line.sigClicked.connect(lambda item, *_: self.choose_level(item))
         self.plot.addItem(line)
         return line
 
@@ -361,9 +401,58 @@ class CurveView(QWidget):
         )
 
     # -- view → model -------------------------------------------------------------------
+    def _show_level_values(self) -> None:
+        low, high = self.session.levels
+        for name, value in (("low", low), ("high", high)):
+            edit = self.level_edits[name]
+            edit.blockSignals(True)
+            edit.setValue(value)
+            edit.blockSignals(False)
+
+    def _level_typed(self, name: str, value: float) -> None:
+        self.session.set_levels(**{name: value})
+        self._show_level_values()  # the session may have kept the levels apart
+
+    def choose_level(self, line: pg.InfiniteLine) -> None:
+        """Make ``line`` (low_line or high_line) the level the arrow keys move, and take the keyboard focus."""
+        self.chosen_level = line
+        for item in (self.low_line, self.high_line):
+            item.setPen(_LEVEL_HOVER if item is line else _LEVEL_PEN)
+        self.plot_widget.setFocus()
+
+    def nudge_level(self, steps: int, size: float = 0.01) -> None:
+        """Move the chosen level by ``steps`` × ``size`` OD of net density."""
+        if self.chosen_level is None:
+            return
+        low, high = self.session.levels
+        if self.chosen_level is self.low_line:
+            self.session.set_levels(low=round(low + steps * size, 6))
+        else:
+            self.session.set_levels(high=round(high + steps * size, 6))
+        self.levels_dragged.emit(*self.session.levels)
+
+    def eventFilter(self, watched: QObject, event: QEvent) -> bool:  # noqa: N802 (Qt's name)
+        if watched is self.plot_widget and event.type() == QEvent.Type.KeyPress and self._arrow(event):
+            return True
+        return super().eventFilter(watched, event)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802 (Qt's name)
+        if not self._arrow(event):
+            super().keyPressEvent(event)
+
+    def _arrow(self, event: QKeyEvent) -> bool:
+        key = event.key()
+        if self.chosen_level is None or key not in (Qt.Key.Key_Up, Qt.Key.Key_Down):
+            return False
+        size = 0.05 if event.modifiers() & Qt.KeyboardModifier.ShiftModifier else 0.01
+        self.nudge_level(1 if key == Qt.Key.Key_Up else -1, size)
+        event.accept()
+        return True
+
     def _line_moved(self, line: pg.InfiniteLine) -> None:
         if self._syncing:
             return
+        self.chosen_level = line
         result = self.session.result()
         reference = result.figures.net_reference if result is not None else None
         if reference is None:

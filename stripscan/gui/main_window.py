@@ -130,6 +130,12 @@ class MainWindow(QMainWindow):
         layout = QVBoxLayout(central)
         layout.setContentsMargins(4, 4, 4, 0)
         layout.addWidget(self.banner)
+        #: What to click next while a strip is drawn by hand (and what came of it), over the scan.
+        self.scan_hint = QLabel()
+        self.scan_hint.setWordWrap(True)
+        self.scan_hint.setStyleSheet("background: #e8f0fe; border: 1px solid #7aa7e8; padding: 4px; color: #0d2a57")
+        self.scan_hint.hide()
+        layout.addWidget(self.scan_hint)
         layout.addWidget(main, 1)
         # The scan is the first of the pages; the lot archive, comparison and QC panels follow it.
         self.workspace = Workspace(self, self.session, self.settings, central)
@@ -165,7 +171,7 @@ class MainWindow(QMainWindow):
         self.statusBar().addPermanentWidget(self.progress)
         self.statusBar().addPermanentWidget(self.workspace.progress)
         self.statusBar().addPermanentWidget(self.calibration_status)
-        self.scan_view.hint.connect(lambda text: self.statusBar().showMessage(text))
+        self.scan_view.hint.connect(self._show_scan_hint)
         self.strips_panel.draw_requested.connect(self.start_drawing)
         self.strips_panel.find_requested.connect(self.find_strips_again)
         self.curve_view.show_gradient.toggled.connect(self.settings.set_show_gradient)
@@ -231,6 +237,9 @@ class MainWindow(QMainWindow):
         settings = bar.addMenu("Se&ttings")
         self._action(settings, "&Analysis settings…", self.open_options)
         help_menu = bar.addMenu("&Help")
+        self._action(help_menu, "&Getting started", self.show_getting_started, QKeySequence.StandardKey.HelpContents)
+        self._action(help_menu, "&Keyboard shortcuts", self.show_shortcuts)
+        help_menu.addSeparator()
         self._action(help_menu, "&About stripscan", self.show_about)
         self._fill_recent()
 
@@ -383,6 +392,11 @@ class MainWindow(QMainWindow):
         if notes:
             show_message(self, "No strip found", "\n".join(notes), icon=QMessageBox.Icon.Information)
 
+    def _show_scan_hint(self, text: str) -> None:
+        self.statusBar().showMessage(text)
+        self.scan_hint.setText(text)
+        self.scan_hint.setVisible(bool(text))
+
     def start_drawing(self) -> None:
         try:
             self.scan_view.start_drawing()
@@ -487,6 +501,52 @@ class MainWindow(QMainWindow):
 
         dialog.accepted.connect(accepted)
         dialog.open()
+
+    def show_getting_started(self) -> QMessageBox:
+        """The job in five steps, in the window's own words."""
+        return show_message(
+            self, "Getting started",
+            "1. Calibrate: Calibration ▸ Calibration assistant… (Ctrl+K). Pick the scan of your reference step "
+            "tablet and its certificate, locate and fit, then save and use the calibration. The status bar names "
+            "the calibration in use.\n\n"
+            "2. Read: File ▸ Open a scan… (Ctrl+O), or drop the file on the window. Strips are found by "
+            "themselves; Strip ▸ Draw a strip by hand (Ctrl+D) outlines one they missed. Untick a step in the "
+            "Steps tab (or double-click it on the scan) to leave it off the curve.\n\n"
+            "3. Store: Archive ▸ Save strips to the archive… keeps each strip as a snapshot of its emulsion lot; "
+            "Report of this scan's strips (PDF) then names the lot, the operator and the dates.\n\n"
+            "4. Compare: Compare ▸ Compare two lots… sets a new lot against the current one, with replicate "
+            "statistics and verdicts against tolerances.\n\n"
+            "5. Processor QC: on the Processor QC page (Ctrl+5), New processor… starts a processor's log; add "
+            "each day's strip as values read on a densitometer or off a strip of the open scan. The first five "
+            "days set the operating levels; the status says WITHIN LIMITS, WARNING or ACT.\n\n"
+            f"Caution: {CAUTION}",
+            icon=QMessageBox.Icon.Information,
+        )
+
+    def shortcuts(self) -> list[tuple[str, str]]:
+        """Every menu action with a shortcut: (keys, what it does), in menu order."""
+        out: list[tuple[str, str]] = []
+
+        def walk(menu) -> None:
+            for action in menu.actions():
+                if action.menu() is not None:
+                    walk(action.menu())
+                elif not action.shortcut().isEmpty():
+                    keys = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+                    out.append((keys, action.text().replace("&", "").rstrip("…").strip()))
+
+        for top in self.menuBar().actions():
+            if top.menu() is not None:
+                walk(top.menu())
+        return out
+
+    def show_shortcuts(self) -> QMessageBox:
+        """The keyboard shortcuts of the menus, and the keys that work on the curve and the scan."""
+        lines = [f"{keys}\t{what}" for keys, what in self.shortcuts()]
+        lines += ["", "On the curve: click a density level, then ↑/↓ nudge it by 0.01 (Shift: 0.05).",
+                  "On the scan: double-click a step to leave it off the curve or take it back; "
+                  "Esc or a right click cancels drawing a strip."]
+        return show_message(self, "Keyboard shortcuts", "\n".join(lines), icon=QMessageBox.Icon.Information)
 
     def show_about(self) -> QMessageBox:
         where = log_file()

@@ -64,7 +64,7 @@ log = logging.getLogger(__name__)
 PAGES: tuple[tuple[str, str, str], ...] = (
     ("scan", "Scan and curve", "Ctrl+1"),
     ("archive", "Lot archive", "Ctrl+2"),
-    ("trend", "Trends over time", "Ctrl+3"),
+    ("trend", "Lot archive ▸ Trend", "Ctrl+3"),
     ("comparison", "Lot comparison", "Ctrl+4"),
     ("qc", "Processor QC", "Ctrl+5"),
 )

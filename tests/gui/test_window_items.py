@@ -296,3 +296,53 @@ def test_report_save_dialogs_remember_the_last_folder(qtbot, window, tmp_path, m
     assert exports._ask_path("Save", "first.pdf", "PDF files (*.pdf)") == str(chosen)
     exports._ask_path("Save", "second.pdf", "PDF files (*.pdf)")
     assert asked[1] == str(chosen.parent / "second.pdf")
+
+
+def test_the_density_levels_can_be_typed_reset_and_nudged_with_the_keys(qtbot, open_scan, window, files):
+    """Item 16: the levels could only be dragged."""
+    from PySide6.QtCore import Qt
+
+    window.use_calibration_file(str(files.calibration))
+    open_scan(window, files.scan)
+    view, session = window.curve_view, window.session
+    view.level_edits["low"].setValue(0.30)
+    view.level_edits["high"].setValue(1.80)
+    assert session.levels == pytest.approx((0.30, 1.80))
+    # ISO 9236-1: the average gradient between net densities 0.25 and 2.00.
+    view.reset_levels.click()
+    assert session.levels == pytest.approx((0.25, 2.00))
+    assert view.level_edits["high"].value() == pytest.approx(2.00)
+    view.choose_level(view.high_line)
+    qtbot.keyClick(view.plot_widget, Qt.Key.Key_Down)
+    assert session.levels == pytest.approx((0.25, 1.99))
+    qtbot.keyClick(view.plot_widget, Qt.Key.Key_Up, Qt.KeyboardModifier.ShiftModifier)
+    assert session.levels == pytest.approx((0.25, 2.04))
+    assert view.level_edits["high"].value() == pytest.approx(2.04)
+    assert session.result().figures.settings["gradient_high"] == pytest.approx(2.04)
+
+
+def test_help_has_getting_started_and_the_shortcuts_and_drawing_says_what_to_click(qtbot, open_scan, window,
+                                                                                  files):
+    """Item 15: Help had only About; 'Draw a strip…' gave no instruction; View named a tab that does not exist."""
+    from PySide6.QtWidgets import QApplication
+
+    help_menu = next(a.menu() for a in window.menuBar().actions() if a.text() == "&Help")
+    assert [a.text() for a in help_menu.actions() if a.text()] == ["&Getting started", "&Keyboard shortcuts",
+                                                                   "&About stripscan"]
+    started = window.show_getting_started()
+    for word in ("Calibrate", "Open a scan", "Save strips to the archive", "Compare two lots", "New processor"):
+        assert word in started.text()
+    started.close()
+    keys = dict((what, k) for k, what in window.shortcuts())
+    assert keys["Open a scan"] and keys["Calibration assistant"] and keys["Processor QC"]
+    shortcuts = window.show_shortcuts()
+    assert "Ctrl+K" in shortcuts.text() and "↑/↓" in shortcuts.text()
+    shortcuts.close()
+    view_menu = next(a.menu() for a in window.menuBar().actions() if a.text() == "&View")
+    tabs = [window.workspace.pages.tabText(k) for k in range(window.workspace.pages.count())]
+    for action in view_menu.actions()[:5]:
+        assert action.text() in tabs or action.text().split(" ▸ ")[0] in tabs, action.text()
+    open_scan(window, files.scan)
+    window.start_drawing()
+    QApplication.processEvents()
+    assert window.scan_hint.isVisible() and "Click the outer corner of step 1" in window.scan_hint.text()
