@@ -183,7 +183,7 @@ class CurveView(QWidget):
         for name in ("left", "bottom", "right"):
             self.plot.getAxis(name).setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
-        self.show_gradient = QCheckBox("Gradient curve (right axis)")
+        self.show_gradient = QCheckBox("Gradient curve")
         self.show_gradient.setToolTip("Show dD/d(log E) of the curve against a second axis")
         self.show_gradient.toggled.connect(self.set_gradient_visible)
         self.readout = QLabel()
@@ -202,21 +202,22 @@ class CurveView(QWidget):
             edit.valueChanged.connect(lambda value, n=name: self._level_typed(n, value))
             self.level_edits[name] = edit
         defaults = FigureSettings()
-        self.reset_levels = QPushButton(f"Reset to {defaults.gradient_low:.2f} / {defaults.gradient_high:.2f}")
-        self.reset_levels.setToolTip("The net densities of ISO 9236-1's average gradient")
+        self.reset_levels = QPushButton("Reset")
+        self.reset_levels.setToolTip(f"Back to net {defaults.gradient_low:.2f} and {defaults.gradient_high:.2f}, "
+                                     "ISO 9236-1's average gradient")
         self.reset_levels.clicked.connect(lambda: self.session.set_levels(defaults.gradient_low, defaults.gradient_high))
-        hint = QLabel("Density levels (net OD): drag a dashed line, or click it and press ↑/↓, or type")
-        hint.setStyleSheet("color: #616161")
-        hint.setWordWrap(True)
+        # One row under the legend: the plot keeps the height on a 700-px screen.
+        hint = QLabel("Levels, net OD:")
+        hint.setToolTip("The two density levels of the average gradient and latitude: drag a dashed line, "
+                        "or click it and press ↑/↓ (Shift: 0.05), or type them here")
         bottom = QHBoxLayout()
-        bottom.addWidget(hint, 1)
+        bottom.addWidget(hint)
+        bottom.addWidget(self.level_edits["low"])
+        bottom.addWidget(QLabel("and"))
+        bottom.addWidget(self.level_edits["high"])
+        bottom.addWidget(self.reset_levels)
+        bottom.addStretch(1)
         bottom.addWidget(self.show_gradient)
-        levels = QHBoxLayout()
-        levels.addWidget(self.level_edits["low"])
-        levels.addWidget(QLabel("and"))
-        levels.addWidget(self.level_edits["high"])
-        levels.addWidget(self.reset_levels)
-        levels.addStretch(1)
         #: The level the arrow keys move: the one clicked or dragged last.
         self.chosen_level: pg.InfiniteLine | None = None
         layout = QVBoxLayout(self)
@@ -225,7 +226,6 @@ class CurveView(QWidget):
         layout.addWidget(self.plot_widget, 1)
         layout.addWidget(self.legend_label)
         layout.addLayout(bottom)
-        layout.addLayout(levels)
         # Arrow keys on the plot move the chosen level (the plot's own view would take them otherwise).
         self.plot_widget.installEventFilter(self)
 
