@@ -84,7 +84,7 @@ def _plot(title: str, x_label: str, y_label: str) -> pg.PlotWidget:
     for side in ("left", "bottom"):
         # Differences of a few hundredths read best as they are, not as "x0.001".
         item.getAxis(side).enableAutoSIPrefix(False)
-    item.addLegend(offset=(8, 8))
+    item.addLegend(offset=(8, 8), brush=pg.mkBrush(255, 255, 255, 235), pen=pg.mkPen("#9e9e9e"))
     return widget
 
 

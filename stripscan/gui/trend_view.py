@@ -73,6 +73,7 @@ class DateDayAxis(pg.AxisItem):
 
     def __init__(self) -> None:
         super().__init__(orientation="bottom")
+        self.enableAutoSIPrefix(False)  # seconds since 1970 are not to be scaled ("x1e+09")
 
     def tickValues(self, minVal: float, maxVal: float, size: float) -> list:  # noqa: N802 (Qt name)
         if not (math.isfinite(minVal) and math.isfinite(maxVal)) or maxVal <= minVal:
@@ -149,7 +150,9 @@ class TrendView(QWidget):
         self.plot.setLabel("bottom", "Film date (processing)")
         # Densities read as OD: a "(x0.001)" scale on the axis would hide the unit people know.
         self.plot.getAxis("left").enableAutoSIPrefix(False)
-        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt")
+        # On a white background with a frame: never read through the points under it.
+        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt", brush=pg.mkBrush(255, 255, 255, 235),
+                                          pen=pg.mkPen("#9e9e9e"))
         self.empty = QLabel()
         self.empty.setStyleSheet("color: #8a4b00")
         self.empty.setWordWrap(True)

@@ -40,6 +40,9 @@ def test_the_trend_of_snapshots_of_one_day_has_a_date_axis(qtbot, one_day_archiv
     assert "2 Nov" in labels
     assert all(re.fullmatch(r"\d{1,2} [A-Z][a-z]{2}", label) for label in labels), labels
     assert high - low >= 2 * 86_400  # a day either side of the day of the points
+    assert axis.autoSIPrefixScale == 1.0 and "x1e" not in axis.labelString()
+    # Item 7: the legend on a background of its own, not read through the points.
+    assert view.legend.opts["brush"].color().alpha() > 200
 
 
 def test_a_long_trend_ticks_months(qtbot, one_day_archive):
