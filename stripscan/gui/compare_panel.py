@@ -221,6 +221,10 @@ class ComparePanel(QWidget):
                                          brush=pg.mkBrush(0, 114, 178, 25), pen=pg.mkPen(None))
             region.setToolTip(f"speed tolerance {speed.tolerance.text() if speed.tolerance else ''}")
             shift_item.addItem(region)
+        # With one comparison the titles say what the line is; a legend would only hide a small plot's data.
+        for item in (dd_item, shift_item):
+            if item.legend is not None:
+                item.legend.setVisible(len(self._comparisons) > 1)
         for k, c in enumerate(self._comparisons, start=1):
             x = np.asarray(c.a.density_curve.x, float)
             dd = np.asarray(c.delta_density, float)

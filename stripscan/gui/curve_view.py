@@ -30,7 +30,7 @@ from ..curve_marks import CURVE_MARKS, GLYPHS, CurveMark
 from .session import Session
 from .style import strip_colour
 
-__all__ = ["CurveView"]
+__all__ = ["CurveView", "EMPTY_RANGE", "mark_points", "mark_pen", "legend_entry"]
 
 # pyqtgraph's names for the shapes and dashes of stripscan.curve_marks.
 _SYMBOLS = {"circle": "o", "square": "s", "triangle": "t1", "diamond": "d", "cross": "x"}
@@ -42,7 +42,8 @@ _LEVEL_HOVER = pg.mkPen("#ab47bc", width=3)
 EMPTY_RANGE = ((0.0, 3.0), (0.0, 3.5))
 
 
-def _points(mark: CurveMark, size: float, colour: str | None = None) -> pg.ScatterPlotItem:
+def mark_points(mark: CurveMark, size: float, colour: str | None = None) -> pg.ScatterPlotItem:
+    """Points drawn with ``mark``'s shape and colour (filled: with a black rim)."""
     colour = colour or mark.colour
     return pg.ScatterPlotItem(size=size, symbol=_SYMBOLS[mark.shape],
                               pen=pg.mkPen("#000000" if mark.filled and mark.shape != "cross" else colour,
@@ -50,7 +51,8 @@ def _points(mark: CurveMark, size: float, colour: str | None = None) -> pg.Scatt
                               brush=pg.mkBrush(colour) if mark.filled else pg.mkBrush(None))
 
 
-def _line_pen(mark: CurveMark, width: float) -> object:
+def mark_pen(mark: CurveMark, width: float) -> object:
+    """A pen in ``mark``'s colour and dash."""
     return pg.mkPen(mark.colour, width=width, style=_DASHES[mark.dash])
 
 
@@ -73,8 +75,8 @@ class _StripCurve:
         size = 8 if main else 6
         self.points = pg.ScatterPlotItem(size=size, pen=pg.mkPen(colour), brush=pg.mkBrush(colour))
         # Steps not used and steps excluded by the user are marked apart (as on the scan and in reports).
-        self.unused = _points(CURVE_MARKS["unused"], size)
-        self.excluded = _points(CURVE_MARKS["excluded"], size + 2)
+        self.unused = mark_points(CURVE_MARKS["unused"], size)
+        self.excluded = mark_points(CURVE_MARKS["excluded"], size + 2)
         self.bars = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.012,
                                     pen=pg.mkPen(colour, width=1))
         style = Qt.PenStyle.SolidLine if main else Qt.PenStyle.DashLine
@@ -154,19 +156,19 @@ class CurveView(QWidget):
                                                    pen=pg.mkPen(None))
         self.latitude_region.setZValue(-20)
         self.plot.addItem(self.latitude_region)
-        self.base_fog_line = pg.InfiniteLine(angle=0, movable=False, pen=_line_pen(CURVE_MARKS["base_fog"], 1),
+        self.base_fog_line = pg.InfiniteLine(angle=0, movable=False, pen=mark_pen(CURVE_MARKS["base_fog"], 1),
                                              label="base+fog", labelOpts={"position": 0.04, "color": "#616161",
                                                                          "anchors": [(0, 1), (0, 1)]})
         self.plot.addItem(self.base_fog_line)
         self.main = _StripCurve(self.plot, strip_colour(0), main=True)
         self.low_line = self._level_line()
         self.high_line = self._level_line()
-        self.gradient_item = pg.PlotCurveItem(pen=_line_pen(CURVE_MARKS["gradient"], 3))
+        self.gradient_item = pg.PlotCurveItem(pen=mark_pen(CURVE_MARKS["gradient"], 3))
         self.plot.addItem(self.gradient_item)
-        self.density_points_item = _points(CURVE_MARKS["density_points"], 11)
-        self.speed_item = _points(CURVE_MARKS["speed"], 14)
-        self.max_slope_item = _points(CURVE_MARKS["max_slope"], 13)
-        self.tangent_item = pg.PlotCurveItem(pen=_line_pen(CURVE_MARKS["tangent"], 1.5))
+        self.density_points_item = mark_points(CURVE_MARKS["density_points"], 11)
+        self.speed_item = mark_points(CURVE_MARKS["speed"], 14)
+        self.max_slope_item = mark_points(CURVE_MARKS["max_slope"], 13)
+        self.tangent_item = pg.PlotCurveItem(pen=mark_pen(CURVE_MARKS["tangent"], 1.5))
         for item in (self.density_points_item, self.speed_item, self.max_slope_item, self.tangent_item):
             item.setZValue(6)
             self.plot.addItem(item)

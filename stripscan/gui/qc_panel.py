@@ -706,6 +706,7 @@ class QcPanel(QWidget):
         self.key_label.clear()
         self.data = self.plog = None
         self.month_box.clear()
+        self._empty_ranges()
         if processor is None or self.archive_path is None:
             self._show_message("No processor chosen.")
             return
@@ -737,6 +738,13 @@ class QcPanel(QWidget):
         for series in self.data.series:
             self._draw(series, self.data)
         self.key_label.setText(self._legend_html(self.data))
+
+    def _empty_ranges(self) -> None:
+        """Before any day: deviations of ±0.20 OD with the control limits' own ticks, not 0-1 around nothing."""
+        for q, plot in self.plots.items():
+            plot.setYRange(-0.2, 0.2, padding=0.02)
+            plot.setXRange(-0.5, 30.5, padding=0)
+            self._y_ticks(q, 0.2)
 
     def _show_message(self, text: str) -> None:
         self.status_label.setText(html.escape(text))

@@ -349,3 +349,29 @@ def test_help_has_getting_started_and_the_shortcuts_and_drawing_says_what_to_cli
     window.start_drawing()
     QApplication.processEvents()
     assert window.scan_hint.isVisible() and "Click the outer corner of step 1" in window.scan_hint.text()
+
+
+def test_every_empty_curve_and_chart_has_plain_units_and_the_shared_marks(qtbot, window):
+    """Item 6 and issue 13 item 6 on the other pages: the stored curve and the QC charts before any data."""
+    from PySide6.QtWidgets import QApplication
+
+    from stripscan.curve_marks import CURVE_MARKS
+
+    ws = window.workspace
+    from stripscan.gui.archive_panel import _StoredCurve
+
+    curve = ws.archive_panel.findChild(_StoredCurve)
+    QApplication.processEvents()
+    plot = curve.getPlotItem()
+    assert plot.getAxis("left").autoSIPrefixScale == 1.0 and plot.getAxis("bottom").autoSIPrefixScale == 1.0
+    (x0, x1), (y0, y1) = plot.viewRange()
+    assert x0 > -0.2 and x1 < 3.2 and y0 > -0.2 and y1 < 3.7
+    labels = [label.text for _, label in plot.legend.items]
+    assert CURVE_MARKS["speed"].words in labels and CURVE_MARKS["excluded"].words in labels
+    assert curve.speed.opts["symbol"] == "d"
+    ws.show_page("qc")
+    QApplication.processEvents()
+    for q, chart in ws.qc_panel.plots.items():
+        low, high = chart.viewRange()[1]
+        # 21 CFR 900.12(e)(1) control limits of ±0.15 lie inside the empty chart's range.
+        assert -0.25 < low < -0.15 and 0.15 < high < 0.25, q
