@@ -454,7 +454,10 @@ class QcPanel(QWidget):
         log.info("QC day %s stored for %r from the panel (entry %s)", day, processor, added.entry.id)
         what = f"a repeat strip of {day.isoformat()}" if repeat else day.isoformat()
         _message(self.form_message, f"Stored {what} as entry {added.entry.id}.", ok=True)
-        # Emptied, so that the next day never inherits this day's numbers.
+        return self._day_stored(processor, day)
+
+    def _day_stored(self, processor: str, day: datetime.date) -> bool:
+        # Emptied, so that the next day never inherits this day's numbers or remarks.
         for edit in (*self.value_edits.values(), self.note_edit, self.action_edit):
             edit.clear()
         self.repeat_check.setChecked(False)
@@ -535,12 +538,7 @@ class QcPanel(QWidget):
             f"{LABELS[q]} {getattr(values, q):.3f}" for q in QUANTITIES) + "."]
         words += [f"{note[0].upper()}{note[1:]}." for note in added.notes]
         _message(self.scan_message, " ".join(words), ok=True)
-        for edit in (self.note_edit, self.action_edit):
-            edit.clear()
-        self.repeat_check.setChecked(False)
-        self.show_processor(processor)
-        self.sigDayAdded.emit(processor, day.isoformat())
-        return True
+        return self._day_stored(processor, day)
 
     # ------------------------------------------------------------- a new processor
 

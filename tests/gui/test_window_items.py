@@ -199,12 +199,16 @@ def test_every_page_fits_a_laptop_screen(qtbot, window, size):
         assert caution.isVisible() and caution.heightForWidth(caution.width()) <= caution.height(), name
 
 
-def test_what_needs_a_scan_is_greyed_out_until_one_is_read(qtbot, open_scan, window, files):
+def test_what_needs_a_scan_is_greyed_out_until_one_is_read(qtbot, window, files):
     """Item 13: 'Save strips to the archive' and the report were enabled with no scan loaded."""
     ws = window.workspace
     needs_scan = (ws.save_action, ws.scan_report_action, ws.steps_csv_action, ws.curve_png_action)
     assert not any(action.isEnabled() for action in needs_scan)
-    open_scan(window, files.scan)
+    window.open_path(str(files.scan))
+    # While the scan is read, the strip list says so (it showed the previous scan's strips as if current).
+    assert not window.strips_panel.list.isEnabled() and "Reading two_strips.tif" in window.strips_panel.details.text()
+    qtbot.waitUntil(lambda: not window.busy, timeout=20_000)
+    assert window.strips_panel.list.isEnabled()
     assert all(action.isEnabled() for action in needs_scan)
     assert window.progress.minimumWidth() >= 200  # the task's words fit on one line
 
