@@ -396,6 +396,9 @@ class MainWindow(QMainWindow):
         self.statusBar().showMessage(text)
         self.scan_hint.setText(text)
         self.scan_hint.setVisible(bool(text))
+        if text and not text.startswith("Click"):
+            # What came of it stays a while; what to click next stays until it is done.
+            QTimer.singleShot(10_000, self, lambda t=text: self.scan_hint.text() == t and self.scan_hint.hide())
 
     def start_drawing(self) -> None:
         try:
