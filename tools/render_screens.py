@@ -4,14 +4,17 @@ Usage::
 
     python tools/render_screens.py [FOLDER] [--docs]
 
-FOLDER defaults to ``renders/``.  The window is rendered at 1440 x 900 with
-each page in front (scan and curve, lot archive, trend, lot comparison,
-processor QC) over the demo archive, built as ``stripscan demo`` builds it
-(in a scratch folder), then each part and dialog on its own.  ``--docs``
-also writes the documentation's screenshots to ``docs/screens/``
-(``main-window.png``, ``archive.png``, ``comparison.png``, ``qc.png``, each
-kept under 300 KB).  No display is needed: Qt's offscreen platform is used
-unless one is set.
+FOLDER defaults to ``renders/``.  The window is rendered at the sizes it
+must work at, a 1366 x 768 laptop screen and 1024 x 700 (one subfolder
+each, ``1366x768/`` and ``1024x700/``), with each page in front (scan and
+curve, lot archive, trend, lot comparison, processor QC): first as a new
+user meets it, empty, on an archive that does not exist yet
+(``empty-*.png``), then filled, over the demo archive built as
+``stripscan demo`` builds it (in a scratch folder).  Each part and dialog
+is then drawn on its own.  ``--docs`` also writes the documentation's
+screenshots to ``docs/screens/`` (``main-window.png``, ``archive.png``,
+``comparison.png``, ``qc.png``, at 1366 x 768, each kept under 300 KB).
+No display is needed: Qt's offscreen platform is used unless one is set.
 """
 
 from __future__ import annotations
@@ -82,28 +85,68 @@ def save_small(widget: QWidget, path: Path, limit: int = DOCS_LIMIT) -> Path:
     return path
 
 
-def render(folder: Path, *, docs: bool = False, size: tuple[int, int] = (1440, 900)) -> list[Path]:
+#: The window sizes it must work at: a laptop screen, and the least it must stay usable at.
+SIZES = ((1366, 768), (1024, 700))
+PAGE_FILES = (("scan", "main-window.png"), ("archive", "archive.png"), ("trend", "trend.png"),
+              ("comparison", "comparison.png"), ("qc", "qc.png"))
+
+
+def _pages(app: QApplication, window: MainWindow, folder: Path, prefix: str = "") -> list[Path]:
+    written = []
+    for page, name in PAGE_FILES:
+        window.workspace.show_page(page)
+        _settle(app)
+        written.append(_save(window, folder / f"{prefix}{name}"))
+    window.workspace.show_page("scan")
+    _settle(app)
+    return written
+
+
+def render_empty(folder: Path, sizes=SIZES) -> list[Path]:
+    """Every page of a first start: no scan, no calibration, an archive not made yet."""
+    app = make_app()
+    scratch = Path(tempfile.mkdtemp(prefix="stripscan-render-empty-"))
+    os.environ["STRIPSCAN_ARCHIVE"] = str(scratch / "archive.sqlite3")
+    window = MainWindow(settings=AppSettings(scratch / "settings.ini"))
+    window.show()
+    written = []
+    for width, height in sizes:
+        window.resize(width, height)
+        _settle(app)
+        written += _pages(app, window, folder / f"{width}x{height}", "empty-")
+    dialog = window.open_calibration_assistant()
+    dialog.resize(*sizes[0])
+    _settle(app)
+    written.append(_save(dialog, folder / "calibration-assistant-empty.png"))
+    dialog.reject()
+    window.close()
+    return written
+
+
+def render(folder: Path, *, docs: bool = False, sizes=SIZES) -> list[Path]:
     """Render every view; returns the files written."""
     app = make_app()
+    written = render_empty(folder, sizes)
     scratch = Path(tempfile.mkdtemp(prefix="stripscan-render-"))
     # Never the user's archive, even for a look: the window starts on the demo's own file.
     os.environ["STRIPSCAN_ARCHIVE"] = str(scratch / "no-user-archive.sqlite3")
     window = MainWindow(settings=AppSettings(scratch / "settings.ini"))
-    window.resize(*size)
+    window.resize(*sizes[0])
     window.show()
     files = open_demo(window, archive_folder=scratch / "demo")
     workspace = window.workspace
     _settle(app, window.runner)
     _settle(app, workspace.runner, seconds=180.0)
     session = window.session
-    written = []
-    for page, name in (("scan", "main-window.png"), ("archive", "archive.png"), ("trend", "trend.png"),
-                       ("comparison", "comparison.png"), ("qc", "qc.png")):
-        workspace.show_page(page)
+    for width, height in reversed(sizes):  # the first size last: the parts below are drawn at it
+        window.resize(width, height)
         _settle(app)
-        written.append(_save(window, folder / name))
-        if docs and page in DOCS_PAGES:
-            written.append(save_small(window, DOCS / DOCS_PAGES[page]))
+        written += _pages(app, window, folder / f"{width}x{height}")
+        if docs and (width, height) == sizes[0]:
+            for page, name in DOCS_PAGES.items():
+                workspace.show_page(page)
+                _settle(app)
+                written.append(save_small(window, DOCS / name))
     workspace.show_page("scan")
     _settle(app)
 

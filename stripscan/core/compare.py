@@ -961,8 +961,8 @@ def compare_sets(
             )
         for row in rows:
             if row.verdict == "missing":
-                pair_notes.append(f"{row.label}: not read on every set ({row.a.n} strip(s) of {a.name!r}, "
-                                  f"{row.b.n} of {b.name!r})")
+                pair_notes.append(f"{row.label}: not read on every set (read on {row.a.n} of the {a.n} strips of "
+                                  f"{a.name!r} and {row.b.n} of the {b.n} of {b.name!r})")
         _, da, _ = a.density_curve.arrays()
         _, db, _ = b.density_curve.arrays()
         _, ea, _ = a.exposure_curve.arrays()

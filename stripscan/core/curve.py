@@ -310,6 +310,14 @@ def compute_figures(
         # A curve that nowhere rises has no contrast to state.
         gamma = gamma_at = None
         notes.append("gamma: the curve does not rise anywhere (is the strip reversed?)")
+    elif gamma is not None and gamma_at in (float(curve.log_exposure[0]), float(curve.log_exposure[-1])):
+        # Steepest at an end of the usable steps: the slope there is set by the interpolant's end condition,
+        # not by a step beyond it, and may read well above the film's (a step excluded in the steep part,
+        # the next denser steps beyond the calibrated range).  The maximum was not measured; say so.
+        where = "last" if gamma_at == float(curve.log_exposure[-1]) else "first"
+        notes.append(f"gamma not stated: the curve is steepest at its {where} usable step (log E {gamma_at:.2f}), "
+                     "where no step beyond bounds the slope")
+        gamma = gamma_at = None
 
     if beyond_range_denser:
         dmax = None

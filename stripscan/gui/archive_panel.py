@@ -38,6 +38,8 @@ from .. import CAUTION
 from ..archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary
 from ..core.records import Analysis
 from ..core.curve import strip_curve
+from ..curve_marks import CURVE_MARKS
+from .curve_view import EMPTY_RANGE, mark_pen, mark_points
 from .errors import report_error
 from .figures_panel import VALUE_ROLE
 from .save_snapshot_dialog import CalibrationLike, SaveSnapshotDialog
@@ -189,32 +191,47 @@ class _StoredCurve(pg.PlotWidget):
         plot.setLabel("left", "Optical density (OD)")
         plot.showGrid(x=True, y=True, alpha=0.15)
         plot.setMenuEnabled(False)
-        legend = plot.addLegend(offset=(10, 10), labelTextSize="8pt")
+        # The marks and words of the window's curve and the reports (stripscan.curve_marks); the legend on a
+        # background of its own, and plain units on the axes.
+        for side in ("left", "bottom"):
+            plot.getAxis(side).enableAutoSIPrefix(False)
+        legend = plot.addLegend(offset=(10, 10), labelTextSize="8pt", brush=pg.mkBrush(255, 255, 255, 235),
+                                pen=pg.mkPen("#9e9e9e"))
         colour = strip_colour(0)
         self.line = pg.PlotCurveItem(pen=pg.mkPen(colour, width=2))
         self.bars = pg.ErrorBarItem(x=np.zeros(0), y=np.zeros(0), height=np.zeros(0), beam=0.012,
                                     pen=pg.mkPen(colour, width=1))
         self.points = pg.ScatterPlotItem(size=8, pen=pg.mkPen(colour), brush=pg.mkBrush(colour))
-        self.unused = pg.ScatterPlotItem(size=8, symbol="x", pen=pg.mkPen("#9e9e9e", width=1.5),
-                                         brush=pg.mkBrush("#9e9e9e"))
-        self.gradient = pg.PlotCurveItem(pen=pg.mkPen("#6a1b9a", width=3))
-        self.speed = pg.ScatterPlotItem(symbol="star", size=16, pen=pg.mkPen("#000000"), brush=pg.mkBrush("#ffeb3b"))
-        self.base_fog = pg.InfiniteLine(angle=0, movable=False, pen=pg.mkPen("#757575", style=Qt.PenStyle.DotLine))
-        for item in (self.base_fog, self.line, self.bars, self.unused, self.points, self.gradient, self.speed):
+        self.unused = mark_points(CURVE_MARKS["unused"], 8)
+        self.excluded = mark_points(CURVE_MARKS["excluded"], 10)
+        self.gradient = pg.PlotCurveItem(pen=mark_pen(CURVE_MARKS["gradient"], 3))
+        self.speed = mark_points(CURVE_MARKS["speed"], 14)
+        self.base_fog = pg.InfiniteLine(angle=0, movable=False, pen=mark_pen(CURVE_MARKS["base_fog"], 1))
+        for item in (self.base_fog, self.line, self.bars, self.unused, self.excluded, self.points, self.gradient,
+                     self.speed):
             plot.addItem(item)
-        legend.addItem(self.points, "step on the curve (±1 sd)")
-        legend.addItem(self.unused, "step not on the curve")
-        legend.addItem(self.gradient, "average gradient")
-        legend.addItem(self.speed, "speed point")
+        legend.addItem(self.points, f"{CURVE_MARKS['step'].words} (±1 sd)")
+        legend.addItem(self.unused, CURVE_MARKS["unused"].words)
+        legend.addItem(self.excluded, CURVE_MARKS["excluded"].words)
+        legend.addItem(self.gradient, CURVE_MARKS["gradient"].words)
+        legend.addItem(self.speed, CURVE_MARKS["speed"].words)
+        plot.setRange(xRange=EMPTY_RANGE[0], yRange=EMPTY_RANGE[1], padding=0.02)
 
     def show_strip(self, snapshot: Snapshot | None) -> None:
         strip = snapshot.strip if snapshot is not None else None
         steps = strip.steps if strip is not None else ()
         used = [s for s in steps if s.in_range and not s.excluded and np.isfinite(s.od)]
-        other = [s for s in steps if s not in used and np.isfinite(s.od)]
+        other = [s for s in steps if s not in used and not s.excluded and np.isfinite(s.od)]
+        excluded = [s for s in steps if s.excluded and np.isfinite(s.od)]
         x, y = np.array([s.log_exposure for s in used]), np.array([s.od for s in used])
         self.points.setData(x, y)
         self.unused.setData([s.log_exposure for s in other], [s.od for s in other])
+        self.excluded.setData([s.log_exposure for s in excluded], [s.od for s in excluded])
+        plot = self.getPlotItem()
+        if steps:
+            plot.enableAutoRange()
+        else:
+            plot.setRange(xRange=EMPTY_RANGE[0], yRange=EMPTY_RANGE[1], padding=0.02)
         sd = np.array([s.od_sd if np.isfinite(s.od_sd) else 0.0 for s in used])
         self.bars.setData(x=x, y=y, height=2.0 * sd)
         curve = strip_curve(strip) if strip is not None else None

@@ -80,6 +80,10 @@ def fit_tablet(
     return TabletFit(calibration, certificate, tablet, tuple(warnings), display, levels)
 
 
+#: The fit plot's log10 signal axis before a fit: a 16-bit scanner's range.
+_EMPTY_SIGNAL = (0.0, 5.0)
+
+
 def default_save_path(scan_path: str | os.PathLike[str]) -> str:
     """Where a new calibration is offered to be saved: beside the tablet scan."""
     path = Path(scan_path)
@@ -160,6 +164,13 @@ class CalibrationDialog(QDialog):
         self.valid_band = pg.LinearRegionItem(orientation="horizontal", movable=False,
                                               brush=pg.mkBrush(0, 150, 136, 40), pen=pg.mkPen(None))
         self.fit_plot.addItem(self.valid_band)
+        self.valid_band.hide()  # until a fit gives the range
+        for plot_item in (self.fit_plot,):
+            for name in ("left", "bottom"):
+                plot_item.getAxis(name).enableAutoSIPrefix(False)
+        # Before a fit: a 16-bit scanner's signal range and the densities of a tablet, not 0-1 around nothing.
+        self.fit_plot.setXRange(*_EMPTY_SIGNAL, padding=0)
+        self.fit_plot.setYRange(0.0, 3.5, padding=0)
         self.fit_curve = pg.PlotCurveItem(pen=pg.mkPen("#0072B2", width=2))
         self.fit_points = pg.ScatterPlotItem(size=8, pen=pg.mkPen("#0072B2"), brush=pg.mkBrush("#0072B2"))
         self.fit_unused = pg.ScatterPlotItem(size=9, symbol="x", pen=pg.mkPen("#D55E00", width=1.5))
@@ -167,6 +178,7 @@ class CalibrationDialog(QDialog):
             self.fit_plot.addItem(item)
         self.residual_plot = self.plots.addPlot(row=1, col=0)
         self.residual_plot.setTitle("Leave-one-out residual per step")
+        self.residual_plot.getAxis("bottom").enableAutoSIPrefix(False)
         self.residual_plot.setLabel("bottom", "Tablet step")
         self.residual_plot.setLabel("left", "Predicted − certified (OD)")
         self.residual_plot.getAxis("left").enableAutoSIPrefix(False)
@@ -177,7 +189,14 @@ class CalibrationDialog(QDialog):
             self.residual_plot.addItem(pg.InfiniteLine(
                 pos=sign * ACCURACY_GOAL, angle=0, pen=pg.mkPen("#D55E00", style=Qt.PenStyle.DashLine),
                 label=f"{sign * ACCURACY_GOAL:+.2f} OD goal" if sign > 0 else None,
-                labelOpts={"position": 0.08, "color": "#D55E00", "anchors": [(0, 1), (0, 1)]}))
+                # Under its line, inside the plot: above it the label was cut at the plot's top.
+                labelOpts={"position": 0.02, "color": "#D55E00", "anchors": [(0, 0), (0, 0)]}))
+        self.residual_plot.setXRange(0.5, 21.5, padding=0)
+        self.residual_plot.setYRange(-2 * ACCURACY_GOAL, 2 * ACCURACY_GOAL, padding=0)
+        #: Says why a step has no bar (the lightest and densest steps cannot be left out and predicted).
+        self.residual_note = QLabel()
+        self.residual_note.setWordWrap(True)
+        self.residual_note.setStyleSheet("color: #555555")
         self.plots.ci.layout.setRowStretchFactor(0, 3)
         self.plots.ci.layout.setRowStretchFactor(1, 2)
 
@@ -213,10 +232,18 @@ class CalibrationDialog(QDialog):
         layout.addLayout(grid)
         layout.addWidget(self.progress)
         layout.addWidget(splitter, 1)
+        layout.addWidget(self.residual_note)
         layout.addWidget(self.summary)
         layout.addLayout(save_row)
 
     # -- files ---------------------------------------------------------------------
+    def offer_scan(self, path: str | os.PathLike[str]) -> None:
+        """Fill in the scan open in the window as the tablet scan, when none is chosen yet."""
+        if not self.scan_edit.text().strip():
+            self.scan_edit.setText(str(path))
+            self.summary.setText(f"The scan open in the window ({Path(path).name}) is filled in as the tablet scan; "
+                                 "pick another if it is not the tablet. Then pick the certificate, and locate and fit.")
+
     def set_files(self, scan: str | os.PathLike[str], certificate: str | os.PathLike[str]) -> None:
         self.scan_edit.setText(str(scan))
         self.certificate_edit.setText(str(certificate))
@@ -292,7 +319,8 @@ class CalibrationDialog(QDialog):
         self.tablet_labels = []
         for step in range(1, g.n_steps + 1):
             r, c = g.step_center_rc(step)
-            label = pg.TextItem(str(step), color="#ffffff", anchor=(0.5, 0.5))
+            # White on a dark patch: readable on the light steps as on the dark ones.
+            label = pg.TextItem(str(step), color="#ffffff", anchor=(0.5, 0.5), fill=pg.mkBrush(0, 0, 0, 170))
             label.setPos(c, r)
             plot.addItem(label)
             self.tablet_labels.append(label)
@@ -311,12 +339,19 @@ class CalibrationDialog(QDialog):
         od, _ = cal.density(10.0 ** grid)
         self.fit_curve.setData(grid, od)
         self.valid_band.setRegion(cal.valid_od)
+        self.valid_band.show()
         steps = [k + 1 for k, r in enumerate(cal.residuals) if r is not None]
         heights = [r for r in cal.residuals if r is not None]
         self.residual_bars.setOpts(x=steps, height=heights, width=0.6)
         self.residual_plot.setXRange(0.5, len(densities) + 0.5)
-        top = max([abs(h) for h in heights] + [ACCURACY_GOAL]) * 1.3
+        top = max([abs(h) for h in heights] + [1.5 * ACCURACY_GOAL]) * 1.3
         self.residual_plot.setYRange(-top, top)
+        none = [k + 1 for k, r in enumerate(cal.residuals) if r is None]
+        self.residual_note.setText(
+            f"No bar for step{'s' if len(none) > 1 else ''} {', '.join(map(str, none))}: left out, "
+            f"{'they lie' if len(none) > 1 else 'it lies'} beyond the range of the other steps, so the fit "
+            "would extrapolate to predict it; the calibration is valid only between the lightest and densest "
+            "steps used." if none else "")
 
     # -- accepting ---------------------------------------------------------------------
     def save_and_use(self) -> str | None:

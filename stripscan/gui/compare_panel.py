@@ -5,7 +5,7 @@ A standalone widget over comparisons already made by the core
 It draws, at a glance:
 
 * every set's mean characteristic curve with a ±1 sd band over its strips;
-* the density difference ΔD = D_B − D_A against log E;
+* the density difference ΔD = D(B) − D(A) against log E;
 * the shift Δlog E = log E_B − log E_A against net density (negative: B
   needs less exposure there, it is faster), with the speed tolerance shaded;
 * the table of figures with B − A, its 95 % interval, the tolerance and the
@@ -18,6 +18,7 @@ changes a comparison.
 
 from __future__ import annotations
 
+import re
 from collections.abc import Sequence
 
 import numpy as np
@@ -41,7 +42,7 @@ from PySide6.QtWidgets import (
 from ..core.compare import Comparison, FigureRow
 from .style import caution_label, notes_label, strip_colour
 
-__all__ = ["ComparePanel", "COLUMNS", "VERDICT_COLOURS"]
+__all__ = ["ComparePanel", "plain_names", "COLUMNS", "VERDICT_COLOURS"]
 
 #: Table columns, left to right.
 COLUMNS = ("Figure", "A mean ± sd (n)", "B mean ± sd (n)", "B − A", "95 % interval", "Tolerance of B − A",
@@ -83,8 +84,13 @@ def _plot(title: str, x_label: str, y_label: str) -> pg.PlotWidget:
     for side in ("left", "bottom"):
         # Differences of a few hundredths read best as they are, not as "x0.001".
         item.getAxis(side).enableAutoSIPrefix(False)
-    item.addLegend(offset=(8, 8))
+    item.addLegend(offset=(8, 8), brush=pg.mkBrush(255, 255, 255, 235), pen=pg.mkPen("#9e9e9e"))
     return widget
+
+
+def plain_names(text: str) -> str:
+    """Set names as a person reads them: ``lot:M-2610-A`` (the command line's way to name a set) as ``lot M-2610-A``."""
+    return re.sub(r"'?\blot:([^\s',()]+)'?", r"lot \1", text)
 
 
 class ComparePanel(QWidget):
@@ -114,11 +120,13 @@ class ComparePanel(QWidget):
         bold = QFont()
         bold.setBold(True)
         self.title.setFont(bold)
+        # A long title wraps: it must not set the width of the window.
+        self.title.setWordWrap(True)
         self.pair_choice = QComboBox()
         self.pair_choice.currentIndexChanged.connect(self._show_table)
         self.curve_plot = _plot("Mean curves, ±1 sd over the strips", "log relative exposure", "optical density")
         # Not called "density difference": that is the QC figure in the table beside it.
-        self.delta_density_plot = _plot("ΔD = D_B − D_A at equal log E", "log relative exposure", "ΔD (OD)")
+        self.delta_density_plot = _plot("ΔD = D(B) − D(A) at equal log E", "log relative exposure", "ΔD (OD)")
         self.shift_plot = _plot("Shift along log E, B − A (negative: B faster)", "net density (OD)", "Δlog E")
         self.table = QTableWidget(0, len(COLUMNS))
         self.table.setHorizontalHeaderLabels(list(COLUMNS))
@@ -175,7 +183,7 @@ class ComparePanel(QWidget):
         self.pair_choice.blockSignals(True)
         self.pair_choice.clear()
         for c in self._comparisons:
-            self.pair_choice.addItem(f"{c.b.name} against {c.a.name}")
+            self.pair_choice.addItem(plain_names(f"{c.b.name} against {c.a.name}"))
         self.pair_choice.blockSignals(False)
         self.pair_choice.setVisible(len(self._comparisons) > 1)
         if not self._comparisons:
@@ -201,7 +209,7 @@ class ComparePanel(QWidget):
                 lower = pg.PlotDataItem(x[banded], mean[banded] - sd[banded], pen=None)
                 colour.setAlpha(70)
                 item.addItem(pg.FillBetweenItem(upper, lower, brush=QBrush(colour)))
-            item.addItem(pg.PlotDataItem(x[ok], mean[ok], pen=_pen(k), name=f"{s.name} ({s.n} strips)"))
+            item.addItem(pg.PlotDataItem(x[ok], mean[ok], pen=_pen(k), name=plain_names(f"{s.name} ({s.n} strips)")))
 
     def _draw_differences(self) -> None:
         dd_item, shift_item = self.delta_density_plot.getPlotItem(), self.shift_plot.getPlotItem()
@@ -213,22 +221,26 @@ class ComparePanel(QWidget):
                                          brush=pg.mkBrush(0, 114, 178, 25), pen=pg.mkPen(None))
             region.setToolTip(f"speed tolerance {speed.tolerance.text() if speed.tolerance else ''}")
             shift_item.addItem(region)
+        # With one comparison the titles say what the line is; a legend would only hide a small plot's data.
+        for item in (dd_item, shift_item):
+            if item.legend is not None:
+                item.legend.setVisible(len(self._comparisons) > 1)
         for k, c in enumerate(self._comparisons, start=1):
             x = np.asarray(c.a.density_curve.x, float)
             dd = np.asarray(c.delta_density, float)
             ok = _finite(x, dd)
-            dd_item.addItem(pg.PlotDataItem(x[ok], dd[ok], pen=_pen(k), name=c.b.name))
+            dd_item.addItem(pg.PlotDataItem(x[ok], dd[ok], pen=_pen(k), name=plain_names(c.b.name)))
             net = np.asarray(c.a.exposure_curve.x, float)
             shift = np.asarray(c.delta_log_exposure, float)
             ok = _finite(net, shift)
-            shift_item.addItem(pg.PlotDataItem(net[ok], shift[ok], pen=_pen(k), name=c.b.name))
+            shift_item.addItem(pg.PlotDataItem(net[ok], shift[ok], pen=_pen(k), name=plain_names(c.b.name)))
 
     def _show_table(self, index: int) -> None:
         if not 0 <= index < len(self._comparisons):
             return
         c = self._comparisons[index]
-        self.title.setText(f"{c.b.name} (B, {c.b.n} strips) against {c.a.name} (A, {c.a.n} strips): "
-                           "differences B − A, relative speed positive = B faster")
+        self.title.setText(plain_names(f"{c.b.name} (B, {c.b.n} strips) against {c.a.name} (A, {c.a.n} strips): "
+                                       "differences B − A, relative speed positive = B faster"))
         self.table.setRowCount(len(c.rows))
         for r, row in enumerate(c.rows):
             cells = row.cells()
@@ -239,7 +251,7 @@ class ComparePanel(QWidget):
             st = c.qc_steps
             notes.insert(0, f"Mid-density at step {st.mid_step}, density difference at step {st.dd_high_step} − "
                             f"step {st.dd_low_step} on every strip (chosen on {c.a.name}).")
-        self.notes.setText("\n".join(notes))
+        self.notes.setText(plain_names("\n".join(notes)))
 
     @staticmethod
     def _item(row: FigureRow, key: str, text: str) -> QTableWidgetItem:

@@ -60,6 +60,7 @@ class Exports(QObject):
     def _written(self, what: str, path: Path) -> None:
         log.info("%s written to %s", what, path)
         self.ws.status(f"The {what} is saved: {path}", 12000)
+        self.ws.notice.show_file(f"The {what} is saved", path)
         self.file_written.emit(str(path))
 
     def _analysis(self):
@@ -90,7 +91,13 @@ class Exports(QObject):
             self._write("curve plot", path, jobs.save_curve_picture, strip, title=title,
                         calibration=analysis.calibration)
         elif kind == "pdf":
-            self._write("scan report", path, jobs.save_scan_report, analysis, calibration=self.ws.session.calibration)
+            stored = self.ws.stored_snapshots(analysis)
+            if stored:
+                # Stored as it is now: the report carries what the archive holds (lot, operator, dates).
+                self._write("scan report", path, jobs.save_stored_scan_report, self.ws.archive_path, stored)
+            else:
+                self._write("scan report", path, jobs.save_scan_report, analysis,
+                            calibration=self.ws.session.calibration)
         else:
             raise ValueError(f"unknown export {kind!r}")
         return True
@@ -98,6 +105,9 @@ class Exports(QObject):
     def _ask_path(self, title: str, default: str, kinds: str) -> str:
         folder = Path(self.ws.settings.last_folder() or Path.home())
         path, _ = QFileDialog.getSaveFileName(self.ws.window, title, str(folder / default), kinds)
+        if path:
+            # The next report is offered in the same folder.
+            self.ws.settings.set_last_folder(str(Path(path).parent))
         return path
 
     def ask_export(self, kind: str) -> None:

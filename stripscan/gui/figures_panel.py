@@ -26,6 +26,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from ..core.curve import FigureSettings
+from ..core.records import StripResult
 from .session import Session
 from .tables import STEP_COLUMNS, figure_rows, step_rows, step_table_text
 from .style import caution_label, notes_label
@@ -121,6 +123,20 @@ class FiguresPanel(QWidget):
         raise KeyError(key)
 
 
+def _step_key(result: StripResult | None) -> str:
+    """What the tick and the flags of the step table mean, with the targets the strip was read with."""
+    defaults = FigureSettings()
+    given = result.figures.settings if result is not None else {}
+
+    def target(name: str) -> float:
+        return float(given.get(name, getattr(defaults, name)))
+
+    return (f"Ticked: on the curve (untick to leave a step off). MD: mid-density step (closest to "
+            f"{target('mid_density_target'):.2f} OD); DD high, DD low: the steps of the density difference "
+            f"(closest to {target('dd_high_target'):.2f} and {target('dd_low_target'):.2f} OD); not used: outside "
+            "the calibrated range, too noisy or saturated (the notes say which); excluded: left off by you.")
+
+
 class StepTable(QWidget):
     """Step, log E, OD, uncertainty and flag of each step of the selected strip.
 
@@ -151,8 +167,12 @@ class StepTable(QWidget):
         self.save_button.clicked.connect(self._ask_save)
         QShortcut(QKeySequence.StandardKey.Copy, self.table, self.copy,
                   context=Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        #: What the tick and the flags mean (the flags' words are figure_table.step_flag's).
+        self.key = QLabel()
+        self.key.setWordWrap(True)
+        self.key.setStyleSheet("color: #555555; font-size: 8pt")
         buttons = QHBoxLayout()
-        buttons.addStretch(1)
+        buttons.addWidget(self.key, 1)
         buttons.addWidget(self.copy_button)
         buttons.addWidget(self.save_button)
         layout = QVBoxLayout(self)
@@ -180,7 +200,13 @@ class StepTable(QWidget):
                     colour = QColor("#b35c00")
                 for col, text in enumerate(cells):
                     item = _read_only(text)
-                    if col == 0:
+                    if col == 0 and not step.excluded and not step.in_range:
+                        # The program keeps it off the curve: no tick, and none to give (its flag says why).
+                        item.setFlags(item.flags() & ~Qt.ItemFlag.ItemIsEnabled)
+                        item.setCheckState(Qt.CheckState.Unchecked)
+                        item.setToolTip(f"Step {step.step} is not on the curve: {cells[-1]}; it cannot be ticked.")
+                        item.setData(VALUE_ROLE, step.step)
+                    elif col == 0:
                         item.setFlags(item.flags() | Qt.ItemFlag.ItemIsUserCheckable)
                         item.setCheckState(Qt.CheckState.Unchecked if step.excluded else Qt.CheckState.Checked)
                         item.setData(VALUE_ROLE, step.step)
@@ -196,6 +222,7 @@ class StepTable(QWidget):
         enabled = result is not None
         self.copy_button.setEnabled(enabled)
         self.save_button.setEnabled(enabled)
+        self.key.setText(_step_key(result))
 
     def _item_changed(self, item: QTableWidgetItem) -> None:
         if self._filling or item.column() != 0 or self.session.selected is None:

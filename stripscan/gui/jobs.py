@@ -35,6 +35,7 @@ __all__ = [
     "save_curve_picture",
     "save_scan_report",
     "save_snapshot_report",
+    "save_stored_scan_report",
     "save_comparison_report",
     "save_qc_month_report",
 ]
@@ -254,6 +255,27 @@ def save_snapshot_report(archive_path: str | os.PathLike[str], snapshot_id: int,
     progress(0.2, "Drawing the report")
     with Archive.open(archive_path, read_only=True) as archive:
         return snapshot_report_pdf(snapshot_id, path, archive=archive)
+
+
+def save_stored_scan_report(archive_path: str | os.PathLike[str], snapshot_ids: Sequence[int],
+                            path: str | os.PathLike[str], *, progress: Progress) -> Path:
+    """One report page per strip of a scan just stored, each as its snapshot (lot, operator, processor, dates).
+
+    The pages are those :func:`stripscan.report.snapshot_report_pdf` draws,
+    in one file, so the scan's report names what the archive holds.
+    """
+    import dataclasses
+    from pathlib import PurePath
+
+    from ..report import report_from_snapshot, write_pdf
+
+    progress(0.2, "Drawing the report")
+    with Archive.open(archive_path, read_only=True) as archive:
+        snapshots = [archive.get_snapshot(i) for i in snapshot_ids]
+        pages = [dataclasses.replace(report_from_snapshot(s, archive=archive), n_strips=len(snapshots))
+                 for s in snapshots]
+    name = PurePath(snapshots[0].scan.path).name if snapshots else ""
+    return write_pdf(pages, path, title=f"stripscan strip report - {name}")
 
 
 def save_comparison_report(result: ComparisonResult, path: str | os.PathLike[str], *, progress: Progress) -> Path:

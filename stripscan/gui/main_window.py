@@ -130,10 +130,16 @@ class MainWindow(QMainWindow):
         layout = QVBoxLayout(central)
         layout.setContentsMargins(4, 4, 4, 0)
         layout.addWidget(self.banner)
+        #: What to click next while a strip is drawn by hand (and what came of it), over the scan.
+        self.scan_hint = QLabel()
+        self.scan_hint.setWordWrap(True)
+        self.scan_hint.setStyleSheet("background: #e8f0fe; border: 1px solid #7aa7e8; padding: 4px; color: #0d2a57")
+        self.scan_hint.hide()
+        layout.addWidget(self.scan_hint)
         layout.addWidget(main, 1)
         # The scan is the first of the pages; the lot archive, comparison and QC panels follow it.
         self.workspace = Workspace(self, self.session, self.settings, central)
-        self.setCentralWidget(self.workspace.pages)
+        self.setCentralWidget(self.workspace.widget)
         dock = QDockWidget("Strips", self)
         dock.setObjectName("strips_dock")
         dock.setWidget(self.strips_panel)
@@ -147,17 +153,25 @@ class MainWindow(QMainWindow):
             runner.busy_changed.connect(self._work_changed)
 
         self.progress = TaskProgress(self.runner, 260)
+        # The caution once, under every page, whole (wrapped on a narrow window, never clipped);
+        # the panels' own copies are for when they are used on their own.
         caution = QLabel(CAUTION)
-        caution.setStyleSheet("color: #6d4c00")
-        caution.setToolTip(CAUTION)
-        # Clipped rather than widening the window; it is shown in full under the figures.
+        caution.setWordWrap(True)
+        caution.setStyleSheet("color: #6d4c00; font-style: italic")
         caution.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Preferred)
-        caution.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        caution.setContentsMargins(6, 0, 6, 0)
+        self.workspace.widget.layout().addWidget(caution)
+        for panel_caution in (self.figures.caution, self.workspace.archive_panel.caution,
+                              self.workspace.compare_panel.caution):
+            panel_caution.hide()
+        self.caution_label = caution
+        #: Which calibration is active, always in view (also after a restart).
+        self.calibration_status = QLabel()
+        self.calibration_status.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.statusBar().addPermanentWidget(self.progress)
         self.statusBar().addPermanentWidget(self.workspace.progress)
-        self.statusBar().addPermanentWidget(caution, 1)
-        self.caution_label = caution
-        self.scan_view.hint.connect(lambda text: self.statusBar().showMessage(text))
+        self.statusBar().addPermanentWidget(self.calibration_status)
+        self.scan_view.hint.connect(self._show_scan_hint)
         self.strips_panel.draw_requested.connect(self.start_drawing)
         self.strips_panel.find_requested.connect(self.find_strips_again)
         self.curve_view.show_gradient.toggled.connect(self.settings.set_show_gradient)
@@ -165,6 +179,7 @@ class MainWindow(QMainWindow):
         self._make_actions()
         ev = self.session.events
         ev.calibration_changed.connect(self._refresh_banner)
+        ev.calibration_changed.connect(self._show_calibration)
         ev.scan_loaded.connect(self._refresh_banner)
         ev.levels_changed.connect(lambda low, high: self.settings.set_levels(low, high))
         self._restore()
@@ -222,6 +237,9 @@ class MainWindow(QMainWindow):
         settings = bar.addMenu("Se&ttings")
         self._action(settings, "&Analysis settings…", self.open_options)
         help_menu = bar.addMenu("&Help")
+        self._action(help_menu, "&Getting started", self.show_getting_started, QKeySequence.StandardKey.HelpContents)
+        self._action(help_menu, "&Keyboard shortcuts", self.show_shortcuts)
+        help_menu.addSeparator()
         self._action(help_menu, "&About stripscan", self.show_about)
         self._fill_recent()
 
@@ -266,6 +284,7 @@ class MainWindow(QMainWindow):
                 self.settings.set_calibration_path(None)
                 report_error(self, "The saved calibration could not be used", exc)
         self._refresh_banner()
+        self._show_calibration()
 
     def _first_layout(self) -> None:
         width = self.splitter.width()
@@ -319,11 +338,13 @@ class MainWindow(QMainWindow):
             self.use_calibration_file(path)
             return
         self.statusBar().showMessage(f"Reading {path}…")
+        self.strips_panel.set_reading(Path(path).name)
         self.runner.start(load_and_find, path, n_steps=self.session.options.n_steps,
                           on_done=lambda loaded: self._loaded(path, loaded),
                           on_error=lambda exc: self._open_failed(path, exc), key="scan")
 
     def _loaded(self, path: str, loaded: LoadedScan) -> None:
+        self.strips_panel.set_reading(None)
         self.session.set_loaded(loaded)
         self.settings.add_recent(path)
         self.settings.set_last_folder(str(Path(path).parent))
@@ -337,6 +358,7 @@ class MainWindow(QMainWindow):
             show_message(self, "No densities for this scan", self.session.mapping_error)
 
     def _open_failed(self, path: str, error: BaseException) -> None:
+        self.strips_panel.set_reading(None)
         self.statusBar().showMessage(f"Could not open {Path(path).name}", 8000)
         report_error(self, "The scan could not be opened", error)
 
@@ -370,6 +392,14 @@ class MainWindow(QMainWindow):
         if notes:
             show_message(self, "No strip found", "\n".join(notes), icon=QMessageBox.Icon.Information)
 
+    def _show_scan_hint(self, text: str) -> None:
+        self.statusBar().showMessage(text)
+        self.scan_hint.setText(text)
+        self.scan_hint.setVisible(bool(text))
+        if text and not text.startswith("Click"):
+            # What came of it stays a while; what to click next stays until it is done.
+            QTimer.singleShot(10_000, self, lambda t=text: self.scan_hint.text() == t and self.scan_hint.hide())
+
     def start_drawing(self) -> None:
         try:
             self.scan_view.start_drawing()
@@ -382,6 +412,8 @@ class MainWindow(QMainWindow):
     def open_calibration_assistant(self) -> CalibrationDialog:
         active = self.session.calibration_path or ""
         dialog = CalibrationDialog(self, start_folder=self.settings.last_folder(), active=active)
+        if self.session.scan is not None:
+            dialog.offer_scan(self.session.scan.info.path)
         dialog.calibration_saved.connect(self.use_calibration_file)
         dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         self.calibration_dialog = dialog
@@ -410,6 +442,20 @@ class MainWindow(QMainWindow):
         self.settings.set_calibration_path(path)
         what = f"calibration {Path(path).name}" if path else "direct mode (no calibration)"
         self.statusBar().showMessage(f"Now using {what}", 8000)
+
+    def _show_calibration(self) -> None:
+        """Name the active calibration in the status bar (its file, date and range), or say there is none."""
+        calibration, path = self.session.calibration, self.session.calibration_path
+        if calibration is None:
+            self.calibration_status.setText("<span style='color:#b71c1c'>No calibration: direct mode</span>")
+            self.calibration_status.setToolTip("Densities are uncalibrated scanner readings. "
+                                               "Calibration ▸ Calibration assistant… to make one.")
+            return
+        name = Path(path).name if path else "calibration (not saved)"
+        made = str(calibration.created)[:10]
+        low, high = calibration.valid_od
+        self.calibration_status.setText(f"Calibration: {name}, made {made}, {low:.2f}–{high:.2f} OD")
+        self.calibration_status.setToolTip(f"{path or ''}\nsha256 {calibration.sha256[:16]}…".strip())
 
     def _refresh_banner(self) -> None:
         lines = self.session.messages()
@@ -458,6 +504,52 @@ class MainWindow(QMainWindow):
 
         dialog.accepted.connect(accepted)
         dialog.open()
+
+    def show_getting_started(self) -> QMessageBox:
+        """The job in five steps, in the window's own words."""
+        return show_message(
+            self, "Getting started",
+            "1. Calibrate: Calibration ▸ Calibration assistant… (Ctrl+K). Pick the scan of your reference step "
+            "tablet and its certificate, locate and fit, then save and use the calibration. The status bar names "
+            "the calibration in use.\n\n"
+            "2. Read: File ▸ Open a scan… (Ctrl+O), or drop the file on the window. Strips are found by "
+            "themselves; Strip ▸ Draw a strip by hand (Ctrl+D) outlines one they missed. Untick a step in the "
+            "Steps tab (or double-click it on the scan) to leave it off the curve.\n\n"
+            "3. Store: Archive ▸ Save strips to the archive… keeps each strip as a snapshot of its emulsion lot; "
+            "Report of this scan's strips (PDF) then names the lot, the operator and the dates.\n\n"
+            "4. Compare: Compare ▸ Compare two lots… sets a new lot against the current one, with replicate "
+            "statistics and verdicts against tolerances.\n\n"
+            "5. Processor QC: on the Processor QC page (Ctrl+5), New processor… starts a processor's log; add "
+            "each day's strip as values read on a densitometer or off a strip of the open scan. The first five "
+            "days set the operating levels; the status says WITHIN LIMITS, WARNING or ACT.\n\n"
+            f"Caution: {CAUTION}",
+            icon=QMessageBox.Icon.Information,
+        )
+
+    def shortcuts(self) -> list[tuple[str, str]]:
+        """Every menu action with a shortcut: (keys, what it does), in menu order."""
+        out: list[tuple[str, str]] = []
+
+        def walk(menu) -> None:
+            for action in menu.actions():
+                if action.menu() is not None:
+                    walk(action.menu())
+                elif not action.shortcut().isEmpty():
+                    keys = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+                    out.append((keys, action.text().replace("&", "").rstrip("…").strip()))
+
+        for top in self.menuBar().actions():
+            if top.menu() is not None:
+                walk(top.menu())
+        return out
+
+    def show_shortcuts(self) -> QMessageBox:
+        """The keyboard shortcuts of the menus, and the keys that work on the curve and the scan."""
+        lines = [f"{keys}\t{what}" for keys, what in self.shortcuts()]
+        lines += ["", "On the curve: click a density level, then ↑/↓ nudge it by 0.01 (Shift: 0.05).",
+                  "On the scan: double-click a step to leave it off the curve or take it back; "
+                  "Esc or a right click cancels drawing a strip."]
+        return show_message(self, "Keyboard shortcuts", "\n".join(lines), icon=QMessageBox.Icon.Information)
 
     def show_about(self) -> QMessageBox:
         where = log_file()

@@ -16,7 +16,7 @@ class TaskProgress(QProgressBar):
     ----------
     runner : TaskRunner
     width : int
-        Widest it may get, in pixels (the status bar's caution keeps the rest).
+        Widest it may get, in pixels.
     parent : QWidget, optional
     """
 
@@ -24,6 +24,8 @@ class TaskProgress(QProgressBar):
         super().__init__(parent)
         self.setRange(0, 100)
         self.setMaximumWidth(width)
+        # Room for the task's words on one line: a narrow bar wrapped and clipped them.
+        self.setMinimumWidth(min(width, 220))
         self.hide()
         runner.busy_changed.connect(self._busy)
         runner.progress.connect(self._progress)

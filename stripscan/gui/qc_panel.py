@@ -9,8 +9,10 @@ PNG chart (:data:`stripscan.qc_chart.MARKS`: shape *and* colour).  Entries
 kept but not used are drawn as the chart draws them: a strip repeated the
 same day hollow, a value corrected afterwards as a grey cross.
 
-The typed-day form stores a day's strip, or a repeat strip of the latest
-day; the correction form stores the right values of an entry (typed by its
+A processor is made on the panel ("New processor…": its name, the QC film
+it is checked with and its limits).  The typed-day form stores a day's
+strip, or a repeat strip of the latest day, from values typed in or read
+off a strip of the scan open in the window (:attr:`QcPanel.scan_source`); the correction form stores the right values of an entry (typed by its
 number, or picked by clicking its point) with the reason it was wrong.  The
 log cannot be changed, so no number field starts with a value the user did
 not type or the chosen entry does not hold: the day's three fields start
@@ -24,6 +26,7 @@ import datetime
 import html
 import logging
 import os
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
@@ -34,6 +37,8 @@ from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
     QDateEdit,
+    QDialog,
+    QDialogButtonBox,
     QFormLayout,
     QGraphicsRectItem,
     QGroupBox,
@@ -46,10 +51,12 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from .. import CAUTION
 from . import qtguard  # noqa: F401  (before any signal is emitted)
-from ..archive import Archive, ArchiveError
+from ..archive import Archive, ArchiveError, Processor
 from ..archive import QcEntry as StoredEntry
-from ..core.qc import QUANTITIES, QCValues
+from ..core.qc import QUANTITIES, QCLimits, QCValues
+from ..core.records import Analysis
 from ..qc_chart import (
     BANDS,
     BASELINE_COLOUR,
@@ -77,13 +84,14 @@ from ..qc_log import (
     VERDICT_WORDS,
     DuplicateDayError,
     ProcessorLog,
+    QcSetup,
     add_day,
     correct_entry,
     load_processor_log,
     status_text,
 )
 
-__all__ = ["QcPanel", "DayAxis", "DensityEdit"]
+__all__ = ["QcPanel", "DayAxis", "DensityEdit", "NewProcessorDialog", "ScanSource", "create_processor"]
 
 log = logging.getLogger(__name__)
 
@@ -170,6 +178,120 @@ def _message(label: QLabel, text: str, *, ok: bool) -> None:
     label.setText(text if ok else f"Not stored: {text}")
 
 
+#: What :attr:`QcPanel.scan_source` gives: the open scan's analysis and the full calibration it used
+#: (None in direct mode), or None when no scan is open.
+ScanSource = Callable[[], "tuple[Analysis, dict[str, Any] | None] | None"]
+
+#: The key of a processor's QC settings that holds the film type its QC strips are cut from.
+FILM_TYPE_KEY = "qc_film_type"
+
+
+def create_processor(path: str | os.PathLike[str], name: str, *, film_type: str = "",
+                     limits: QCLimits | None = None) -> QcSetup:
+    """Add a processor to the archive at ``path`` (made when missing) and start its QC log.
+
+    Parameters
+    ----------
+    path : path-like
+        The archive file.
+    name : str
+        The processor's name; it must be new.
+    film_type : str
+        The QC film its daily strips are cut from (kept with its QC settings).
+    limits : QCLimits, optional
+        Control limits and warning tiers (default 21 CFR 900.12(e)(1) with a ±0.10 warning tier).
+
+    Raises
+    ------
+    ValueError, ArchiveError
+        A name missing or taken, limits that do not hold; nothing is stored.
+    """
+    name = name.strip()
+    if not name:
+        raise ValueError("type the processor's name")
+    # Everything is checked before the first write, so a refusal leaves the archive as it was.
+    setup = QcSetup(limits=limits or QCLimits(), extra={FILM_TYPE_KEY: film_type.strip()} if film_type.strip() else {})
+    record = Processor(name)
+    with Archive.open(path, create=True) as archive:
+        if any(p.name == name for p in archive.list_processors()):
+            raise ValueError(f"processor {name!r} is in the archive already; choose it in the list")
+        archive.add_processor(record)
+        archive.set_qc_settings(name, setup.to_settings())
+    return setup
+
+
+class NewProcessorDialog(QDialog):
+    """The short form that makes a processor: its name, QC film type and limits.
+
+    Parameters
+    ----------
+    panel : QcPanel
+        Where the processor is stored and then shown.
+    """
+
+    def __init__(self, panel: "QcPanel") -> None:
+        super().__init__(panel)
+        self.setWindowTitle("New processor")
+        self.panel = panel
+        self.name_edit = QLineEdit()
+        self.name_edit.setPlaceholderText("required, e.g. the room it stands in")
+        self.film_edit = QLineEdit()
+        self.film_edit.setPlaceholderText("optional: the film the daily QC strips are cut from")
+        defaults = QCLimits()
+        self.action_edit = DensityEdit("control limit", f"{defaults.md_dd_action:.2f}")
+        self.action_edit.setValue(defaults.md_dd_action)
+        self.action_edit.setToolTip("± OD around the operating level for mid-density and density difference "
+                                    "(21 CFR 900.12(e)(1): 0.15)")
+        self.warning_check = QCheckBox("Warning tier ±")
+        self.warning_check.setChecked(defaults.md_dd_warning is not None)
+        self.warning_edit = DensityEdit("warning tier", "0.10")
+        self.warning_edit.setValue(defaults.md_dd_warning)
+        self.warning_check.toggled.connect(self.warning_edit.setEnabled)
+        self.fog_edit = DensityEdit("base+fog limit", f"{defaults.base_fog_action:.2f}")
+        self.fog_edit.setValue(defaults.base_fog_action)
+        self.fog_edit.setToolTip("How far base+fog may rise above its operating level (21 CFR 900.12(e)(1): 0.03)")
+        form = QFormLayout()
+        form.addRow("Name *", self.name_edit)
+        form.addRow("QC film type", self.film_edit)
+        form.addRow("Control limit ± (OD)", self.action_edit)
+        form.addRow(self.warning_check, self.warning_edit)
+        form.addRow("Base+fog rise limit (OD)", self.fog_edit)
+        self.message = QLabel("The first five days set the operating levels; * required.")
+        self.message.setWordWrap(True)
+        self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Ok | QDialogButtonBox.StandardButton.Cancel)
+        self.buttons.button(QDialogButtonBox.StandardButton.Ok).setText("Create processor")
+        self.buttons.accepted.connect(self.create)
+        self.buttons.rejected.connect(self.reject)
+        layout = QVBoxLayout(self)
+        layout.addLayout(form)
+        layout.addWidget(self.message)
+        layout.addWidget(self.buttons)
+
+    def limits(self) -> QCLimits:
+        """The limits typed, checked by the core's own record."""
+        defaults = QCLimits()
+        action = self.action_edit.value()
+        fog = self.fog_edit.value()
+        warning = self.warning_edit.value() if self.warning_check.isChecked() else None
+        if self.warning_check.isChecked() and warning is None:
+            raise ValueError("type the warning tier, or untick it")
+        return QCLimits(md_dd_action=defaults.md_dd_action if action is None else action, md_dd_warning=warning,
+                        base_fog_action=defaults.base_fog_action if fog is None else fog)
+
+    def create(self) -> bool:
+        """Store the processor and show it on the panel; True when stored (a refusal is said in the form)."""
+        try:
+            limits = self.limits()
+        except ValueError as exc:
+            _message(self.message, str(exc), ok=False)
+            return False
+        if not self.panel.create_processor(self.name_edit.text(), film_type=self.film_edit.text(), limits=limits,
+                                           message=self.message):
+            return False
+        self.accept()
+        return True
+
+
 class QcPanel(QWidget):
     """A processor's QC: three stacked deviation plots, today's status and forms for a typed day and a correction.
 
@@ -189,16 +311,28 @@ class QcPanel(QWidget):
 
     sigDayAdded = Signal(str, str)
     sigEntryCorrected = Signal(str, int)
+    sigProcessorCreated = Signal(str)
 
     def __init__(self, archive_path: str | os.PathLike[str] | None = None, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.archive_path: Path | None = None
+        #: Where a new processor makes the archive when :attr:`archive_path` is None (no file yet).
+        self.new_archive_path: Path | None = None
+        #: The scan open in the window, for a day read off one of its strips (None: no window gives one).
+        self.scan_source: ScanSource | None = None
+        #: The new-processor form opened last, for a test or a script to fill in.
+        self.dialog: NewProcessorDialog | None = None
+        #: The status ends with the caution; a window that shows it under every page sets this False.
+        self.caution_in_status = True
         self.data: ChartData | None = None
         self.plog: ProcessorLog | None = None
         self.processor_box = QComboBox()
         self.processor_box.currentTextChanged.connect(self._processor_chosen)
         self.refresh_button = QPushButton("Reload")
         self.refresh_button.clicked.connect(self.refresh)
+        self.new_processor_button = QPushButton("New processor…")
+        self.new_processor_button.setToolTip("Start the QC log of a processor: its name, QC film and limits")
+        self.new_processor_button.clicked.connect(self.ask_new_processor)
         #: Month of the QC report, among the months the shown processor has entries in (newest first).
         self.month_box = QComboBox()
         self.month_box.setToolTip("The month the QC report (PDF) covers")
@@ -230,6 +364,7 @@ class QcPanel(QWidget):
         top = QHBoxLayout()
         top.addWidget(QLabel("Processor:"))
         top.addWidget(self.processor_box, 1)
+        top.addWidget(self.new_processor_button)
         top.addWidget(QLabel("Report month:"))
         top.addWidget(self.month_box)
         top.addWidget(self.refresh_button)
@@ -242,6 +377,7 @@ class QcPanel(QWidget):
         forms = QVBoxLayout(self.form_box)
         forms.setContentsMargins(0, 0, 0, 0)
         forms.addWidget(self._make_form())
+        forms.addWidget(self._make_scan_form())
         forms.addWidget(self._make_correction_form())
         layout.addWidget(self.form_box)
         if archive_path is not None:
@@ -296,7 +432,7 @@ class QcPanel(QWidget):
         """
         processor = self.processor_box.currentText()
         if self.archive_path is None or not processor:
-            _message(self.form_message, "choose an archive and a processor first", ok=False)
+            _message(self.form_message, "create a processor first (New processor…)", ok=False)
             return False
         day = self.date_edit.date().toPython()
         repeat = self.repeat_check.isChecked()
@@ -318,12 +454,127 @@ class QcPanel(QWidget):
         log.info("QC day %s stored for %r from the panel (entry %s)", day, processor, added.entry.id)
         what = f"a repeat strip of {day.isoformat()}" if repeat else day.isoformat()
         _message(self.form_message, f"Stored {what} as entry {added.entry.id}.", ok=True)
-        # Emptied, so that the next day never inherits this day's numbers.
+        return self._day_stored(processor, day)
+
+    def _day_stored(self, processor: str, day: datetime.date) -> bool:
+        # Emptied, so that the next day never inherits this day's numbers or remarks.
         for edit in (*self.value_edits.values(), self.note_edit, self.action_edit):
             edit.clear()
         self.repeat_check.setChecked(False)
         self.show_processor(processor)
         self.sigDayAdded.emit(processor, day.isoformat())
+        return True
+
+    # ------------------------------------------------ a day read off the open scan
+
+    def _make_scan_form(self) -> QGroupBox:
+        box = QGroupBox("…or read the day off a strip of the open scan")
+        form = QFormLayout(box)
+        self.scan_strip_box = QComboBox()
+        self.scan_strip_box.setToolTip("The QC strip among the open scan's strips; read with the active calibration "
+                                       "at the steps the processor keeps (chosen on its first scanned strip)")
+        form.addRow("Strip", self.scan_strip_box)
+        self.add_scan_button = QPushButton("Add day from the strip")
+        self.add_scan_button.clicked.connect(lambda: self.add_scanned_day())
+        self.scan_message = QLabel()
+        self.scan_message.setWordWrap(True)
+        form.addRow(self.add_scan_button, self.scan_message)
+        self.update_scan_strips()
+        return box
+
+    def _open_scan(self) -> tuple[Analysis, dict[str, Any] | None] | None:
+        source = self.scan_source() if self.scan_source is not None else None
+        return source if source is not None and source[0].strips else None
+
+    def update_scan_strips(self) -> None:
+        """List the open scan's strips in the scanned-day form (the window calls it when the scan changes)."""
+        chosen = self.scan_strip_box.currentData()
+        self.scan_strip_box.clear()
+        source = self._open_scan()
+        if source is None:
+            self.scan_strip_box.addItem("no scan open", None)
+        else:
+            name = Path(source[0].scan.path).name
+            for strip in source[0].strips:
+                self.scan_strip_box.addItem(f"{name}, strip {strip.index}", strip.index)
+            index = self.scan_strip_box.findData(chosen)
+            self.scan_strip_box.setCurrentIndex(max(index, 0))
+        self.scan_strip_box.setEnabled(source is not None)
+        self.add_scan_button.setEnabled(source is not None)
+
+    def add_scanned_day(self, strip: int | None = None) -> bool:
+        """Store the day read off a strip of the open scan (the form's date, note and repeat); True when stored.
+
+        Parameters
+        ----------
+        strip : int, optional
+            Strip number on the scan; default the one chosen in the form.
+        """
+        processor = self.processor_box.currentText()
+        source = self._open_scan()
+        if source is None:
+            _message(self.scan_message, "open a scan of the day's QC strip first", ok=False)
+            return False
+        if self.archive_path is None or not processor:
+            _message(self.scan_message, "create a processor first (New processor…)", ok=False)
+            return False
+        analysis, calibration = source
+        number = strip if strip is not None else self.scan_strip_box.currentData()
+        day = self.date_edit.date().toPython()
+        repeat = self.repeat_check.isChecked()
+        try:
+            with Archive.open(self.archive_path, create=False) as archive:
+                added = add_day(archive, processor, day, analysis=analysis, strip=number, calibration=calibration,
+                                note=self.note_edit.text().strip(), action=self.action_edit.text().strip(),
+                                repeat=repeat)
+        except (ArchiveError, ValueError, OSError) as exc:
+            hint = " Tick 'Repeat strip of the day' to keep it as a repeat." if isinstance(exc, DuplicateDayError) else ""
+            _message(self.scan_message, f"{exc}.{hint}", ok=False)
+            return False
+        log.info("QC day %s stored for %r from strip %s of %s (entry %s)", day, processor, number,
+                 analysis.scan.path, added.entry.id)
+        values = added.entry
+        words = [f"Stored {day.isoformat()} as entry {added.entry.id}: " + ", ".join(
+            f"{LABELS[q]} {getattr(values, q):.3f}" for q in QUANTITIES) + "."]
+        words += [f"{note[0].upper()}{note[1:]}." for note in added.notes]
+        _message(self.scan_message, " ".join(words), ok=True)
+        return self._day_stored(processor, day)
+
+    # ------------------------------------------------------------- a new processor
+
+    def ask_new_processor(self) -> NewProcessorDialog:
+        """Open the form that makes a processor."""
+        dialog = NewProcessorDialog(self)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        self.dialog = dialog
+        dialog.destroyed.connect(lambda: setattr(self, "dialog", None))
+        dialog.open()
+        return dialog
+
+    def create_processor(self, name: str, *, film_type: str = "", limits: QCLimits | None = None,
+                         message: QLabel | None = None) -> bool:
+        """Make the processor ``name`` (and the archive file if there is none yet), then show it; True when made.
+
+        A refusal is said in ``message`` (default: under the typed-day form); nothing is stored then.
+        """
+        path = self.archive_path or self.new_archive_path
+        label = message if message is not None else self.form_message
+        if path is None:
+            _message(label, "choose or make a lot archive first (Archive menu)", ok=False)
+            return False
+        try:
+            create_processor(path, name, film_type=film_type, limits=limits)
+        except (ArchiveError, ValueError, OSError) as exc:
+            _message(label, str(exc), ok=False)
+            return False
+        name = name.strip()
+        log.info("processor %r made from the QC panel in %s", name, path)
+        if self.archive_path != Path(path):
+            self.archive_path = Path(path)
+        self.refresh()
+        self.show_processor(name)
+        _message(self.form_message, f"Processor {name!r} is ready: add its first day's values.", ok=True)
+        self.sigProcessorCreated.emit(name)
         return True
 
     # ----------------------------------------------------- the correction form
@@ -453,6 +704,7 @@ class QcPanel(QWidget):
         self.key_label.clear()
         self.data = self.plog = None
         self.month_box.clear()
+        self._empty_ranges()
         if processor is None or self.archive_path is None:
             self._show_message("No processor chosen.")
             return
@@ -474,13 +726,23 @@ class QcPanel(QWidget):
             # The latest entry is the one most often found mistyped.
             self.entry_spin.setValue(max(e.id for e in plog.entries if e.id is not None))
             self._entry_chosen(self.entry_spin.value())
-        self.status_label.setText(self._status_html(plog))
+        status = self._status_html(plog)
+        if not self.caution_in_status:
+            status = status.replace(html.escape(CAUTION), "").replace(CAUTION, "")
+        self.status_label.setText(status)
         if not plog.log.entries:
             return
         self.data = chart_data(plog)
         for series in self.data.series:
             self._draw(series, self.data)
         self.key_label.setText(self._legend_html(self.data))
+
+    def _empty_ranges(self) -> None:
+        """Before any day: deviations of ±0.20 OD with the control limits' own ticks, not 0-1 around nothing."""
+        for q, plot in self.plots.items():
+            plot.setYRange(-0.2, 0.2, padding=0.02)
+            plot.setXRange(-0.5, 30.5, padding=0)
+            self._y_ticks(q, 0.2)
 
     def _show_message(self, text: str) -> None:
         self.status_label.setText(html.escape(text))
@@ -501,9 +763,12 @@ class QcPanel(QWidget):
             head, colour, glyph = VERDICT_WORDS[status.verdict], MARKS[status.verdict][0], _GLYPHS[status.verdict]
         lines = status_text(plog, status).splitlines()
         body = "<br>".join(html.escape(line.strip()) for line in lines[1:])
-        when = status.latest_date.isoformat() if status.latest_date else "no strip yet"
+        when = f"latest strip {status.latest_date.isoformat()}" if status.latest_date else "no strip yet"
+        film = plog.setup.extra.get(FILM_TYPE_KEY)
+        if film:
+            when += f"; QC film {film}"
         return (f"<b style='color:{colour}; font-size:13pt'>{glyph} {html.escape(plog.processor)}: {head}</b> "
-                f"<span>(latest strip {when})</span><br>{body}")
+                f"<span>({html.escape(when)})</span><br>{body}")
 
     # ------------------------------------------------------------ drawing
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import datetime as dt
 import os
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Union
@@ -32,12 +33,13 @@ from PySide6.QtWidgets import (
 )
 
 from .. import CAUTION
-from ..archive import Archive, Snapshot
+from ..archive import Archive, EmulsionLot, FilmType, Snapshot, snapshots_from_analysis
 from ..core.calibration import Calibration
 from ..core.records import Analysis
 from .errors import report_error, show_message
 
-__all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "NONE"]
+__all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "NONE",
+           "lot_from_file_name"]
 
 #: What the processor and sensitometer pickers show for "not recorded".
 NONE = "(not recorded)"
@@ -58,6 +60,8 @@ class SaveForm:
     operator : str
     exposed_on, processed_on, scanned_on : datetime.date
     notes : str
+    film_type : str
+        Film type of a new lot (kept with the lot); an existing lot keeps its own.
     """
 
     lot: str
@@ -69,6 +73,7 @@ class SaveForm:
     processed_on: dt.date
     scanned_on: dt.date
     notes: str = ""
+    film_type: str = ""
 
     def details(self) -> dict[str, Any]:
         """The snapshot fields :meth:`Archive.add_analysis` takes as ``**details``."""
@@ -85,6 +90,10 @@ class ArchiveChoices:
     processors: tuple[str, ...] = ()
     sensitometers: tuple[str, ...] = ()
     operators: tuple[str, ...] = ()
+    #: Each lot's film type as stored ("" when none).
+    film_types: tuple[tuple[str, str], ...] = ()
+    #: The film types the archive knows.
+    film_type_names: tuple[str, ...] = ()
 
 
 def read_choices(path: str | os.PathLike[str] | None) -> ArchiveChoices:
@@ -94,9 +103,18 @@ def read_choices(path: str | os.PathLike[str] | None) -> ArchiveChoices:
     with Archive.open(path, read_only=True) as archive:
         operators = sorted({s.operator for s in archive.list_snapshots(include_retired=True,
                                                                         include_superseded=True) if s.operator})
-        return ArchiveChoices(tuple(s.lot.lot_id for s in archive.list_lots()),
+        lots = archive.list_lots()
+        return ArchiveChoices(tuple(s.lot.lot_id for s in lots),
                               tuple(p.name for p in archive.list_processors()),
-                              tuple(s.sensitometer_id for s in archive.list_sensitometers()), tuple(operators))
+                              tuple(s.sensitometer_id for s in archive.list_sensitometers()), tuple(operators),
+                              tuple((s.lot.lot_id, s.lot.film_type or "") for s in lots),
+                              tuple(f.name for f in archive.list_film_types()))
+
+
+def lot_from_file_name(path: str | os.PathLike[str]) -> str:
+    """The lot named in a scan's file name (``lot_M-2610-A_three_strips.tif`` → ``M-2610-A``); "" when none."""
+    match = re.search(r"(?:^|[_\s-])lot[_\s-]+([A-Za-z0-9][A-Za-z0-9.-]*[A-Za-z0-9])", Path(path).stem, re.IGNORECASE)
+    return match.group(1) if match else ""
 
 
 def check_form(form: SaveForm, *, strips: int, known_lots: tuple[str, ...], today: dt.date) -> list[str]:
@@ -186,6 +204,16 @@ class SaveSnapshotDialog(QDialog):
         self.lot.lineEdit().setPlaceholderText("choose, or type a new lot's id")
         self.lot.setToolTip("The emulsion lot printed on the film box")
         self.new_lot = QCheckBox("New lot: add it to the archive")
+        #: The lot's film type: typed for a new lot, shown (not changed) for a lot in the archive.
+        self.film_type = QComboBox()
+        self.film_type.setEditable(True)
+        self.film_type.addItems(list(self.choices.film_type_names))
+        self.film_type.setCurrentText("")
+        self.film_type.lineEdit().setPlaceholderText("optional, for a new lot: the film's type as on the box")
+        self.lot_hint = QLabel()
+        self.lot_hint.setStyleSheet("color: #555555")
+        self.lot_hint.setWordWrap(True)
+        self.lot.currentTextChanged.connect(self._lot_changed)
         self.processor = QComboBox()
         self.processor.addItems([*self.choices.processors, NONE])
         self.sensitometer = QComboBox()
@@ -201,11 +229,13 @@ class SaveSnapshotDialog(QDialog):
         self.notes.setPlaceholderText("optional")
 
         form = QFormLayout()
-        form.addRow("Emulsion lot:", self.lot)
+        form.addRow("Emulsion lot: *", self.lot)
+        form.addRow("", self.lot_hint)
         form.addRow("", self.new_lot)
+        form.addRow("Film type:", self.film_type)
         form.addRow("Processor:", self.processor)
         form.addRow("Sensitometer:", self.sensitometer)
-        form.addRow("Operator:", self.operator)
+        form.addRow("Operator: *", self.operator)
         form.addRow("Exposed on:", self.exposed_on)
         form.addRow("Processed on:", self.processed_on)
         form.addRow("Scanned on:", self.scanned_on)
@@ -221,12 +251,34 @@ class SaveSnapshotDialog(QDialog):
         caution = QLabel(CAUTION)
         caution.setWordWrap(True)
         caution.setStyleSheet("color: #6d4c00; font-style: italic")
+        required = QLabel("* required")
+        required.setStyleSheet("color: #555555")
         layout = QVBoxLayout(self)
         layout.addWidget(self.summary)
         layout.addLayout(form)
+        layout.addWidget(required)
         layout.addWidget(caution)
         layout.addWidget(self.buttons)
         self.resize(520, self.sizeHint().height())
+        # A lot named in the scan's file name is offered (to be checked, never stored unseen).
+        suggested = lot_from_file_name(analysis.scan.path) if analysis is not None else ""
+        if suggested:
+            self.lot.setCurrentText(suggested)
+            self.new_lot.setChecked(suggested not in self.choices.lots)
+            self.lot_hint.setText("Suggested from the scan's file name: check it against the film box.")
+        self._lot_changed(self.lot.currentText())
+
+    def _lot_changed(self, text: str) -> None:
+        known = dict(self.choices.film_types)
+        lot = text.strip()
+        if lot in known:
+            self.film_type.setCurrentText(known[lot])
+            self.film_type.setEnabled(False)
+            self.film_type.setToolTip("The lot's film type as stored in the archive")
+        elif not self.film_type.isEnabled():
+            self.film_type.setCurrentText("")
+            self.film_type.setEnabled(True)
+            self.film_type.setToolTip("Kept with the new lot")
 
     @property
     def strip_count(self) -> int:
@@ -258,7 +310,7 @@ class SaveSnapshotDialog(QDialog):
                         processor=picked(self.processor), sensitometer=picked(self.sensitometer),
                         operator=self.operator.currentText().strip(), exposed_on=_day(self.exposed_on),
                         processed_on=_day(self.processed_on), scanned_on=_day(self.scanned_on),
-                        notes=self.notes.text().strip())
+                        notes=self.notes.text().strip(), film_type=self.film_type.currentText().strip())
 
     def set_dates(self, exposed: dt.date, processed: dt.date | None = None, scanned: dt.date | None = None) -> None:
         """Set the three dates (processing and scan default to the exposure day)."""
@@ -283,8 +335,23 @@ class SaveSnapshotDialog(QDialog):
             self._refuse("\n".join(f"• {p}" for p in problems))
             return False
         assert self.analysis is not None  # check_form refuses an analysis without strips
+        new_lot_record = new_film_type = None
+        if form.new_lot and form.film_type and form.lot not in self.choices.lots:
+            try:
+                new_lot_record = EmulsionLot(form.lot, film_type=form.film_type)
+                new_film_type = None if form.film_type in self.choices.film_type_names else FilmType(form.film_type)
+                # Every strip is checked before the lot is written, so a refusal leaves the archive as it was.
+                snapshots_from_analysis(self.analysis, form.lot, calibration=_calibration_dict(self.calibration),
+                                        **form.details())
+            except (TypeError, ValueError) as exc:
+                report_error(self, "Nothing was stored", exc)
+                return False
         try:
             with Archive.open(self.archive_path) as archive:
+                if new_lot_record is not None and form.lot not in [s.lot.lot_id for s in archive.list_lots()]:
+                    if new_film_type is not None and form.film_type not in [f.name for f in archive.list_film_types()]:
+                        archive.add_film_type(new_film_type)
+                    archive.add_lot(new_lot_record)
                 self.stored = archive.add_analysis(
                     self.analysis, form.lot, calibration=_calibration_dict(self.calibration),
                     create_missing=form.new_lot, **form.details())

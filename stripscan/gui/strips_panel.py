@@ -89,6 +89,16 @@ class StripsPanel(QWidget):
         session.events.levels_changed.connect(lambda low, high: self._later.start())
         self.refresh()
 
+    def set_reading(self, name: str | None) -> None:
+        """While a new scan is read: the old strips greyed out and the list says which file is coming (None: done)."""
+        self.list.setEnabled(name is None)
+        for button in (self.draw_button, self.remove_button, self.find_button):
+            button.setEnabled(name is None and button.isEnabled())
+        if name is not None:
+            self.details.setText(f"Reading {name}… the strips shown are the previous scan's until it is read.")
+        else:
+            self.refresh()
+
     def sizeHint(self) -> QSize:  # noqa: N802 (Qt's name)
         return QSize(240, 400)
 

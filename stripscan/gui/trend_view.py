@@ -9,6 +9,7 @@ the legend still reads for people who do not see the colours apart.
 from __future__ import annotations
 
 import datetime as dt
+import math
 import os
 import time
 from pathlib import Path
@@ -54,6 +55,60 @@ def day_seconds(day: str) -> float:
     return time.mktime((date.year, date.month, date.day, 12, 0, 0, 0, 0, -1))
 
 
+_DAY = 86_400.0
+
+
+class DateDayAxis(pg.AxisItem):
+    """A date axis that ticks whole days only (at :func:`day_seconds`), labelled '2 Nov' or 'Nov 2026'.
+
+    pyqtgraph's own date axis ticks hours and seconds when the points span
+    less than a day (snapshots of one day): its labels then read as
+    clock times, not dates.  Here the finest tick is one day; wider
+    spans tick every 2, 7 or 14 days, or at the first day of every 1, 3,
+    6 or 12 months.
+    """
+
+    #: Least width of one tick label, px.
+    LABEL_PX = 64
+
+    def __init__(self) -> None:
+        super().__init__(orientation="bottom")
+        self.enableAutoSIPrefix(False)  # seconds since 1970 are not to be scaled ("x1e+09")
+
+    def tickValues(self, minVal: float, maxVal: float, size: float) -> list:  # noqa: N802 (Qt name)
+        if not (math.isfinite(minVal) and math.isfinite(maxVal)) or maxVal <= minVal:
+            return []
+        fits = max(1, int(size / self.LABEL_PX))
+        days = (maxVal - minVal) / _DAY
+        first = dt.date.fromtimestamp(max(minVal, 0.0))
+        last = dt.date.fromtimestamp(max(maxVal, 0.0))
+        for step in (1, 2, 7, 14):
+            if days / step <= fits:
+                start = first - dt.timedelta(days=first.toordinal() % step)
+                values = [day_seconds((start + dt.timedelta(days=k)).isoformat())
+                          for k in range(0, (last - start).days + 1, step)]
+                return [(step * _DAY, [v for v in values if minVal <= v <= maxVal])]
+        for months in (1, 3, 6, 12):
+            if days / (30.44 * months) <= fits:
+                break
+        values, year, month = [], first.year, first.month
+        month -= (month - 1) % months
+        while (year, month) <= (last.year, last.month):
+            v = day_seconds(f"{year:04d}-{month:02d}-01")
+            if minVal <= v <= maxVal:
+                values.append(v)
+            month += months
+            year, month = year + (month - 1) // 12, (month - 1) % 12 + 1
+        return [(months * 30.44 * _DAY, values)]
+
+    def tickStrings(self, values: list, scale: float, spacing: float) -> list[str]:  # noqa: N802 (Qt name)
+        out = []
+        for v in values:
+            day = dt.date.fromtimestamp(v)
+            out.append(f"{day.strftime('%b')} {day.year}" if spacing > 20 * _DAY else f"{day.day} {day.strftime('%b')}")
+        return out
+
+
 class TrendView(QWidget):
     """The trend of one figure for the lots ticked in the list.
 
@@ -88,14 +143,16 @@ class TrendView(QWidget):
         self.lots.setSpacing(2)
         self.lots.setFixedHeight(40)
         self.lots.itemChanged.connect(self.redraw)
-        self.plot_widget = pg.PlotWidget(axisItems={"bottom": pg.DateAxisItem(orientation="bottom")})
+        self.plot_widget = pg.PlotWidget(axisItems={"bottom": DateDayAxis()})
         self.plot = self.plot_widget.getPlotItem()
         self.plot.showGrid(x=True, y=True, alpha=0.15)
         self.plot.setMenuEnabled(False)
         self.plot.setLabel("bottom", "Film date (processing)")
         # Densities read as OD: a "(x0.001)" scale on the axis would hide the unit people know.
         self.plot.getAxis("left").enableAutoSIPrefix(False)
-        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt")
+        # On a white background with a frame: never read through the points under it.
+        self.legend = self.plot.addLegend(offset=(10, 10), labelTextSize="8pt", brush=pg.mkBrush(255, 255, 255, 235),
+                                          pen=pg.mkPen("#9e9e9e"))
         self.empty = QLabel()
         self.empty.setStyleSheet("color: #8a4b00")
         self.empty.setWordWrap(True)
@@ -258,6 +315,10 @@ class TrendView(QWidget):
             self.empty.setText("")
         self.empty.setVisible(bool(self.empty.text()))
         self.plot.enableAutoRange()
+        if points:
+            # At least a day either side: a single day's snapshots still sit on a date axis with its day ticked.
+            x = [day_seconds(p.date) for p in points]
+            self.plot.setXRange(min(x) - _DAY, max(x) + _DAY, padding=0.02)
 
     def _clicked(self, item: pg.ScatterPlotItem, spots: list, event: object = None) -> None:
         if len(spots):

@@ -27,13 +27,14 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (
     QDialog,
     QFileDialog,
+    QFrame,
     QHBoxLayout,
     QMainWindow,
     QMenu,
     QMenuBar,
     QMessageBox,
+    QScrollArea,
     QSplitter,
-    QStackedWidget,
     QTabWidget,
     QToolButton,
     QVBoxLayout,
@@ -43,10 +44,11 @@ from PySide6.QtWidgets import (
 from ..archive import Archive, default_archive_path
 from . import jobs
 from .archive_panel import ArchivePanel
-from .compare_panel import ComparePanel
+from .compare_panel import ComparePanel, plain_names
 from .errors import report_error, show_message
 from .exports import Exports
-from .lot_choice import LotChoiceDialog, caution_label
+from .lot_choice import LotChoiceDialog
+from .notice import NoticeBar
 from .progress import TaskProgress
 from .qc_panel import QcPanel
 from .save_snapshot_dialog import SaveSnapshotDialog
@@ -62,12 +64,15 @@ log = logging.getLogger(__name__)
 PAGES: tuple[tuple[str, str, str], ...] = (
     ("scan", "Scan and curve", "Ctrl+1"),
     ("archive", "Lot archive", "Ctrl+2"),
-    ("trend", "Trends over time", "Ctrl+3"),
+    ("trend", "Lot archive ▸ Trend", "Ctrl+3"),
     ("comparison", "Lot comparison", "Ctrl+4"),
     ("qc", "Processor QC", "Ctrl+5"),
 )
 _ARCHIVE_KEY = "archive/path"
+_OPERATOR_KEY = "archive/operator"
 _ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
+_NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
+                 "strip: values read on a densitometer, or a strip of the scan open on the first page.")
 _NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or in the Compare menu) to set two "
                   "emulsion lots of the archive side by side, or compare a lot with the strips on the open scan.")
 
@@ -134,6 +139,8 @@ class Workspace(QObject):
         self.comparison: jobs.ComparisonResult | None = None
         self.building = False
         self.dialog: QDialog | None = None
+        # The open scan's strips as last stored, the archive and the snapshot ids (see stored_snapshots).
+        self._last_stored: tuple[Any, Path | None, list[int]] | None = None
         # Set on closing: the demo build stops between two scans rather than outlive the window.
         self._cancel = threading.Event()
 
@@ -143,36 +150,64 @@ class Workspace(QObject):
             split.setSizes([680, 760])
         self.compare_panel = ComparePanel(())
         self.qc_panel = QcPanel(None)
+        # A day can be read off a strip of the open scan, with the calibration it was read with.
+        self.qc_panel.scan_source = self._scan_for_qc
+        session.events.connect_each(lambda *_: self.qc_panel.update_scan_strips(), "scan_loaded", "strips_changed",
+                                    "results_changed", "calibration_changed")
+        self.qc_panel.sigProcessorCreated.connect(self._processor_created)
+        session.events.connect_each(self.update_scan_actions, "scan_loaded", "strips_changed", "results_changed",
+                                    "calibration_changed")
         qc_page = QWidget()
         qc_layout = QVBoxLayout(qc_page)
         qc_layout.setContentsMargins(0, 0, 0, 4)
         # The typed-day form beside the charts, not under them: at 900 px high the three
         # charts need the height, and the form's few fields need no more than a column.
-        side = QVBoxLayout()
-        side.setContentsMargins(0, 44, 8, 0)
-        self.qc_panel.form_box.setFixedWidth(380)
-        side.addWidget(self.qc_panel.form_box)
-        side.addStretch(1)
+        # On a laptop screen the three forms are taller than the page: they scroll, the charts do not.
+        side = QScrollArea()
+        side.setWidgetResizable(True)
+        side.setFrameShape(QFrame.Shape.NoFrame)
+        side.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.qc_panel.form_box.setContentsMargins(0, 40, 8, 0)
+        side.setWidget(self.qc_panel.form_box)
+        side.setFixedWidth(400)
+        self.qc_side = side
         row = QHBoxLayout()
         row.addWidget(self.qc_panel, 1)
-        row.addLayout(side)
+        row.addWidget(side)
         qc_layout.addLayout(row, 1)
-        # The panel's status carries the caution only once a processor is shown; the page always does.
-        self.qc_caution = caution_label()
-        self.qc_caution.setContentsMargins(8, 0, 8, 0)
-        qc_layout.addWidget(self.qc_caution)
+        # The window shows the caution under every page; the status need not repeat it.
+        self.qc_panel.caution_in_status = False
         self.page_widgets: dict[str, QWidget] = {"scan": scan_page, "archive": self.archive_panel,
                                                  "comparison": self.compare_panel, "qc": qc_page}
         self.pages = QTabWidget()
         self.pages.setDocumentMode(True)
+        # A tab widget is as wide as its widest page: each page but the scan scrolls when the window is
+        # narrower than it (1024 px), so the scan page keeps its room beside the strip list.
+        self._tab_widgets: dict[str, QWidget] = {}
         for name, title, _ in PAGES:
             if name in self.page_widgets:
-                self.pages.addTab(self.page_widgets[name], title)
+                tab = self.page_widgets[name]
+                if name != "scan":
+                    tab = QScrollArea()
+                    tab.setWidgetResizable(True)
+                    tab.setFrameShape(QFrame.Shape.NoFrame)
+                    tab.setWidget(self.page_widgets[name])
+                self._tab_widgets[name] = tab
+                self.pages.addTab(tab, title)
+        #: What was just stored or written, over the pages until the next (the window's centre holds both).
+        self.notice = NoticeBar()
+        self.widget = QWidget()
+        centre = QVBoxLayout(self.widget)
+        centre.setContentsMargins(0, 0, 0, 0)
+        centre.setSpacing(2)
+        centre.addWidget(self.pages, 1)
+        centre.addWidget(self.notice)
 
         self.progress = TaskProgress(self.runner, 340)
         self.exports = Exports(self)
         self._make_actions()
-        self.pages.setCornerWidget(self._corner(), Qt.Corner.TopRightCorner)
+        self.update_scan_actions()
+        self._corner()  # set as the tab bar's corner widget by _corner_follow
         self.pages.currentChanged.connect(self._corner_follow)
         self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
 
@@ -214,13 +249,37 @@ class Workspace(QObject):
                                       "One page per strip: curve, figures, steps, calibration")
         self.page_actions = {name: act(title, lambda n=name: self.show_page(n), f"Show the {title.lower()} page",
                                        shortcut) for name, title, shortcut in PAGES}
+        # Short words on the buttons beside the tabs (the menus keep the whole words), so that the tabs
+        # keep their names at 1024 px.
+        for action, short in ((self.save_action, "Store in archive…"), (self.scan_report_action, "Report (PDF)…"),
+                              (self.open_archive_action, "Open…"), (self.new_archive_action, "New…"),
+                              (self.snapshot_report_action, "Snapshot report (PDF)…"),
+                              (self.compare_lots_action, "Two lots…"),
+                              (self.compare_scan_action, "A lot and this scan…"),
+                              (self.comparison_report_action, "Report (PDF)…"),
+                              (self.qc_report_action, "Month report (PDF)…")):
+            action.setIconText(short)
+        # What needs a scan with strips is greyed out until one is read.
+        self._scan_actions = (self.save_action, self.scan_report_action, self.compare_scan_action,
+                              *self.export_menu_actions())
         self.export_menu = QMenu("E&xport")
-        for action in (self.steps_csv_action, self.figures_csv_action, self.curve_png_action, self.curve_svg_action):
+        for action in self.export_menu_actions():
             self.export_menu.addAction(action)
         # Greyed out while the demo archive is being built into the file they would use.
         self._archive_actions = (self.save_action, self.open_archive_action, self.new_archive_action,
                                  self.snapshot_report_action, self.qc_report_action, self.compare_lots_action,
                                  self.compare_scan_action)
+
+    def export_menu_actions(self) -> tuple[QAction, ...]:
+        """The Export menu's actions (files of the open scan)."""
+        return (self.steps_csv_action, self.figures_csv_action, self.curve_png_action, self.curve_svg_action)
+
+    def update_scan_actions(self, *_: object) -> None:
+        """Grey out what needs a scan with strips (storing, its report, exports) while there is none."""
+        analysis = self.session.analysis()
+        has_strips = analysis is not None and bool(analysis.strips)
+        for action in self._scan_actions:
+            action.setEnabled(has_strips and not (self.building and action in self._archive_actions))
 
     def fill_file_menu(self, menu: QMenu) -> None:
         """Add the exports of the scan page to the File menu."""
@@ -243,11 +302,22 @@ class Workspace(QObject):
             menu.addAction(action)
         menu.addSeparator()
 
-    def _corner(self) -> QStackedWidget:
+    def _corner(self) -> QWidget:
         # The tab row has room to the right: each page's own actions go there, no extra row is taken.
-        stack = QStackedWidget()
+        # Only the current page's row is shown, and only it takes room (a stacked widget is as wide as its
+        # widest row, which took the tabs' room at 1024 px).
+        stack = QWidget()
+        stack_layout = QHBoxLayout(stack)
+        stack_layout.setContentsMargins(0, 0, 0, 0)
+        self._corner_rows: list[QWidget] = []
+        # The scan's report and exports share one button: at 1024 px the tabs need the room.
+        self.files_menu = QMenu("Files", self.window)
+        self.files_menu.addAction(self.scan_report_action)
+        self.files_menu.addSeparator()
+        for action in self.export_menu_actions():
+            self.files_menu.addAction(action)
         rows: dict[str, Sequence[QAction | QMenu]] = {
-            "scan": (self.save_action, self.scan_report_action, self.export_menu),
+            "scan": (self.save_action, self.files_menu),
             "archive": (self.open_archive_action, self.new_archive_action, self.snapshot_report_action),
             "comparison": (self.compare_lots_action, self.compare_scan_action, self.comparison_report_action),
             "qc": (self.qc_report_action,),
@@ -264,8 +334,9 @@ class Workspace(QObject):
                 button = QToolButton()
                 button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
                 if isinstance(item, QMenu):
-                    button.setText("Export")
-                    button.setToolTip("Save the scan's steps, figures or curve plot as files")
+                    button.setText("Files")
+                    button.setToolTip("The report of the scan's strips (PDF), or its steps, figures or curve plot "
+                                      "as files")
                     button.setMenu(item)
                     button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
                 else:
@@ -273,12 +344,18 @@ class Workspace(QObject):
                 layout.addWidget(button)
                 buttons.append(button)
             self.corner_buttons[name] = buttons
-            stack.addWidget(row)
+            stack_layout.addWidget(row)
+            self._corner_rows.append(row)
         self._corner_stack = stack
+        self._corner_follow(0)
         return stack
 
     def _corner_follow(self, index: int) -> None:
-        self._corner_stack.setCurrentIndex(index)
+        for k, row in enumerate(self._corner_rows):
+            row.setVisible(k == index)
+        # Set again, so that the tab bar gives back or takes the room (Qt hides the widget it replaces).
+        self.pages.setCornerWidget(self._corner_stack, Qt.Corner.TopRightCorner)
+        self._corner_stack.show()
 
     # -- pages ------------------------------------------------------------------------------------
     def show_page(self, name: str) -> None:
@@ -289,11 +366,11 @@ class Workspace(QObject):
             name = "archive"
         elif name == "archive":
             panel.tabs.setCurrentWidget(panel.view)
-        self.pages.setCurrentWidget(self.page_widgets[name])
+        self.pages.setCurrentWidget(self._tab_widgets[name])
 
     def current_page(self) -> str:
         widget = self.pages.currentWidget()
-        return next(name for name, w in self.page_widgets.items() if w is widget)
+        return next(name for name, w in self._tab_widgets.items() if w is widget)
 
     def status(self, text: str, msecs: int = 8000) -> None:
         """A line in the status bar (``msecs`` 0: until the next)."""
@@ -324,16 +401,28 @@ class Workspace(QObject):
             else:
                 self.qc_panel.set_archive(path)
             if self.qc_panel.processor_box.count() == 0:
-                self.qc_panel.status_label.setText(html.escape(
-                    f"No processor has QC strips in {path.name} yet. Record a processor's daily strips with "
-                    "“stripscan qc add”; its charts and status then show here."))
+                self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=f"{path.name} has no "
+                                                                                          "processor yet.")))
             return
-        # QcPanel opens the file for writing; a missing file must not be made just by looking.
+        # QcPanel opens the file for writing; a missing file must not be made just by looking
+        # (a new processor makes it, on purpose).
         self.qc_panel.archive_path = None
+        self.qc_panel.new_archive_path = path
         self.qc_panel.refresh()
-        where = f"No archive yet at {path}." if path is not None else "No archive chosen."
-        self.qc_panel.status_label.setText(html.escape(f"{where} A processor's QC log shows here once the "
-                                                       "archive holds its daily strips."))
+        where = f"No archive yet at {path}; it is made with the first processor or lot." if path is not None \
+            else "No archive chosen."
+        self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=where)))
+
+    def _scan_for_qc(self) -> tuple[Any, dict[str, Any] | None] | None:
+        analysis = self.session.analysis()
+        if analysis is None:
+            return None
+        return analysis, self.session.calibration.to_dict() if self.session.calibration is not None else None
+
+    def _processor_created(self, name: str) -> None:
+        if self.archive_path is not None and self.qc_panel.archive_path == self.archive_path:
+            self.archive_panel.set_archive(self.archive_path)  # the file may have just been made
+        self.status(f"Processor {name} is in {self.qc_panel.archive_path}: add its days on the processor QC page")
 
     def _archive_ready(self) -> bool:
         if self.building:
@@ -397,13 +486,37 @@ class Workspace(QObject):
             self.tell("No archive", "Choose the lot archive first (Archive menu).")
             return None
         dialog = self.archive_panel.save_dialog(analysis, self.session.calibration)
-        dialog.saved.connect(self._stored)
+        # The operator is remembered from the last store: most days the same person reads the strips.
+        last_operator = str(self.settings.qsettings.value(_OPERATOR_KEY, "") or "")
+        if last_operator and not dialog.operator.currentText():
+            dialog.operator.setCurrentText(last_operator)
+        dialog.saved.connect(lambda lot, ids: self.settings.qsettings.setValue(_OPERATOR_KEY, dialog.form().operator))
+        dialog.saved.connect(lambda lot, ids: self._stored(analysis, lot, ids))
         self.dialog = dialog
         return dialog
 
-    def _stored(self, lot: str, ids: list[int]) -> None:
+    def _stored(self, analysis: Any, lot: str, ids: list[int]) -> None:
         self._point_qc()  # the first snapshot may have made the file
-        self.status(f"Stored {len(ids)} snapshot{'s' if len(ids) != 1 else ''} of lot {lot} in {self.archive_path}")
+        self._last_stored = (analysis.strips, self.archive_path, list(ids))
+        n = len(ids)
+        which = f"snapshot {ids[0]}" if n == 1 else f"snapshots {min(ids)}–{max(ids)}"
+        text = f"Stored {n} snapshot{'s' if n != 1 else ''} of lot {lot} ({which}) in {self.archive_path}"
+        self.status(text)
+        self.notice.show_notice(text, [("Report of these strips (PDF)…", lambda: self.exports.ask_export("pdf")),
+                                       ("Show in the lot archive", lambda: self.show_page("archive"))])
+
+    def stored_snapshots(self, analysis: Any) -> list[int]:
+        """The snapshot ids of ``analysis``'s strips when they were stored as they are now (else empty).
+
+        A strip changed since (a step excluded, an outline moved) is a new
+        reading, not what the archive holds; so is another archive.
+        """
+        if self._last_stored is None:
+            return []
+        strips, path, ids = self._last_stored
+        same = (path == self.archive_path and len(strips) == len(analysis.strips)
+                and all(a is b for a, b in zip(strips, analysis.strips)))
+        return ids if same else []
 
     # -- comparing lots -------------------------------------------------------------------------------
     def _lots(self) -> list[str]:
@@ -468,8 +581,8 @@ class Workspace(QObject):
         if show:
             self.show_page("comparison")
         first = result.comparisons[0]
-        self.status(f"Compared {first.b.name} with {first.a.name}" + (f"; {'; '.join(result.notes)}"
-                                                                          if result.notes else ""), 12000)
+        self.status(plain_names(f"Compared {first.b.name} with {first.a.name}"
+                                + (f"; {'; '.join(result.notes)}" if result.notes else "")), 12000)
         self.comparison_shown.emit()
 
     # -- the demo ---------------------------------------------------------------------------------------------
@@ -495,6 +608,7 @@ class Workspace(QObject):
         self.building = False
         for action in self._archive_actions:
             action.setEnabled(True)
+        self.update_scan_actions()
 
     def _demo_built(self, path: Path) -> None:
         self._demo_done()

@@ -3,7 +3,7 @@
 One A4 page per pair (set B against the first set A), drawn from the
 core's :class:`~stripscan.core.compare.Comparison`: the overlay of the two
 mean characteristic curves with ±1 sd bands; the density difference
-ΔD(log E) = D_B − D_A and the shift Δlog E(net density) = log E_B − log E_A
+ΔD(log E) = D(B) − D(A) and the shift Δlog E(net density) = log E(B) − log E(A)
 beside each other; the table of figures (mean ± sd (n) of each set, B − A,
 its 95 % interval, the tolerance and the verdict, as the compare command
 prints them); notes, the tolerances' sources, the calibrations' provenance
@@ -77,7 +77,7 @@ def comparison_plots(comparison: Comparison) -> dict[str, Plot]:
         items=(RefLine(0.0, colour=COLOURS["ink"], dash="solid", width_pt=0.6),
                Line(tuple(x), tuple(c.delta_density), label=f"D({c.b.name}) \u2212 D({c.a.name})", colour=_B,
                     width_pt=1.3)),
-        title="\u0394D = D_B \u2212 D_A along log E",
+        title="\u0394D = D(B) \u2212 D(A) along log E",
         x_label="log relative exposure (log E)", y_label="\u0394D (OD)", y_signed=True,
         empty_text="the mean curves do not overlap",
     )

@@ -24,6 +24,7 @@ import numpy as np
 
 from ..core.curve import CharacteristicCurve
 from ..core.records import Analysis, ScanInfo, StripResult
+from ..curve_marks import CURVE_MARKS as MARK
 from ..figure_table import figure_rows, format_value, step_flag
 from .canvas import Canvas, Column, draw_frame, write_pdf
 from .plot import COLOURS, Line, Plot, Points, RefLine
@@ -137,15 +138,19 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
     unused = [s for s in strip.steps if not s.in_range and not s.excluded and math.isfinite(s.od)]
     excluded = [s for s in strip.steps if s.excluded and math.isfinite(s.od)]
     items: list[Any] = []
+    # Marks, colours and words as the window draws them (stripscan.curve_marks).
     if f.base_fog is not None:
-        items.append(RefLine(f.base_fog, label=f"base+fog {f.base_fog:.3f} OD", dash="dot"))
+        items.append(RefLine(f.base_fog, label=f"base+fog {f.base_fog:.3f} OD", colour=MARK["base_fog"].colour,
+                             dash=MARK["base_fog"].dash))
     if valid_od is not None:
         items.append(RefLine(valid_od[1], label=f"top of calibrated range {valid_od[1]:.2f} OD",
                              colour=COLOURS["red"], dash="dashdot"))
+    curve = None
     if len(used) >= 2:
         curve = CharacteristicCurve([s.log_exposure for s in used], [s.od for s in used])
         grid = np.linspace(curve.log_exposure[0], curve.log_exposure[-1], 300)
-        items.append(Line(tuple(grid), tuple(curve(grid)), label="curve through the usable steps", width_pt=1.3))
+        items.append(Line(tuple(grid), tuple(curve(grid)), label=MARK["curve"].words, colour=MARK["curve"].colour,
+                          width_pt=1.3))
     low_net = float(f.settings.get("gradient_low", 0.25))
     high_net = float(f.settings.get("gradient_high", 2.0))
     reference = f.net_reference  # base+fog, or the lightest step when none was read (a note says so)
@@ -153,25 +158,31 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
         x1, x2 = f.gradient_low_log_exposure, f.gradient_high_log_exposure
         y1, y2 = reference + low_net, reference + high_net
         if f.average_gradient is not None:
-            reach = 0.12
-            slope = (y2 - y1) / (x2 - x1)
-            items.append(Line((x1 - reach, x2 + reach), (y1 - slope * reach, y2 + slope * reach),
-                              label=f"average gradient {f.average_gradient:.2f}", colour=COLOURS["orange"],
-                              width_pt=0.9, dash="dash"))
-        items.append(Points((x1, x2), (y1, y2), label=f"density points (net {low_net:.2f} and {high_net:.2f})",
-                            colour=COLOURS["orange"], marker="diamond", size_pt=5.5))
+            items.append(Line((x1, x2), (y1, y2), label=f"{MARK['gradient'].words} {f.average_gradient:.2f}",
+                              colour=MARK["gradient"].colour, width_pt=1.1, dash=MARK["gradient"].dash))
+        items.append(Points((x1, x2), (y1, y2),
+                            label=f"{MARK['density_points'].words} (net {low_net:.2f} and {high_net:.2f})",
+                            colour=MARK["density_points"].colour, marker=MARK["density_points"].shape,
+                            filled=MARK["density_points"].filled, size_pt=5.0))
     if reference is not None and f.speed_log_exposure is not None:
         net = float(f.settings.get("speed_net_density", 1.0))
-        items.append(Points((f.speed_log_exposure,), (reference + net,), label=f"speed point (net {net:.2f})",
-                            colour=COLOURS["green"], marker="triangle", size_pt=5.5))
-    items.append(Points(tuple(s.log_exposure for s in used), tuple(s.od for s in used), label="step on the curve",
-                        size_pt=3.6))
+        items.append(Points((f.speed_log_exposure,), (reference + net,),
+                            label=f"{MARK['speed'].words} (net {net:.2f})", colour=MARK["speed"].colour,
+                            marker=MARK["speed"].shape, size_pt=5.5))
+    if curve is not None and f.gamma is not None and f.gamma_log_exposure is not None:
+        items.append(Points((f.gamma_log_exposure,), (float(curve(f.gamma_log_exposure)),),
+                            label=f"{MARK['max_slope'].words} {f.gamma:.2f}", colour=MARK["max_slope"].colour,
+                            marker=MARK["max_slope"].shape, size_pt=5.0))
+    items.append(Points(tuple(s.log_exposure for s in used), tuple(s.od for s in used), label=MARK["step"].words,
+                        colour=MARK["step"].colour, size_pt=3.6))
     if unused:
         items.append(Points(tuple(s.log_exposure for s in unused), tuple(s.od for s in unused),
-                            label="step not used", colour=COLOURS["grey"], filled=False, size_pt=3.6))
+                            label=MARK["unused"].words, colour=MARK["unused"].colour, marker=MARK["unused"].shape,
+                            filled=MARK["unused"].filled, size_pt=3.6))
     if excluded:
         items.append(Points(tuple(s.log_exposure for s in excluded), tuple(s.od for s in excluded),
-                            label="step excluded", colour=COLOURS["red"], marker="cross", size_pt=3.6))
+                            label=MARK["excluded"].words, colour=MARK["excluded"].colour,
+                            marker=MARK["excluded"].shape, size_pt=3.6))
     log_e = [s.log_exposure for s in strip.steps]
     densities = [s.od for s in strip.steps if math.isfinite(s.od)] + ([valid_od[1]] if valid_od else [])
     top = max(densities, default=3.0)
