@@ -327,3 +327,50 @@ def test_crossover_bad_input_stores_nothing(capsys, tmp_path, extra, setup, mess
     assert code == 1 and message in err, err
     with Archive.open(path, read_only=True) as archive:
         assert archive.list_crossovers() == [] and archive.list_qc_events() == []
+
+
+def _shaded_pixels(png: Path) -> int:
+    """Pixels of the grey that marks the days that set the operating levels (over white)."""
+    import imageio.v3 as iio
+
+    from stripscan.qc_chart import BASELINE_COLOUR, BASELINE_OPACITY
+
+    grey = int(BASELINE_COLOUR[1:3], 16)
+    shade = round(255 + (grey - 255) * BASELINE_OPACITY)  # #808080 at 0.2 over white: #E6E6E6
+    rgb = iio.imread(png)[..., :3].astype(int)
+    return int((np.abs(rgb - shade).max(axis=-1) <= 1).sum())
+
+
+def test_days_after_a_crossover_are_not_shaded_as_setting_the_levels(capsys, tmp_path):
+    """Issue 13, wrong output 1: after a crossover the chart, the monthly report and the window shade only
+    days that really set the operating levels; the crossover's levels were set by no day of December."""
+    path = crossover_archive(tmp_path / "qc.sqlite3")
+    code, _, err = run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}",
+                       "--new", f"lot:{LOT_B}", "--date", DAY, "--archive", path)
+    assert code == 0, err
+    for date in ("2026-12-01", "2026-12-02"):
+        code, _, err = run(capsys, "qc", "add", "--archive", path, "--processor", PROCESSOR, "--date", date,
+                           "--base-fog", "0.21", "--mid-density", "1.29", "--density-difference", "1.78")
+        assert code == 0, err
+    pictures = {}
+    for month in ("2026-11", "2026-12"):
+        pictures[month] = tmp_path / f"{month}.png"
+        code, _, err = run(capsys, "qc", "chart", "--archive", path, "--processor", PROCESSOR, "--month", month,
+                           "-o", pictures[month])
+        assert code == 0, err
+    # November's five baseline days (FDA guidance for MQSA: levels from 5 days) are shaded; December's days,
+    # judged against levels a crossover set, are not, and the legend does not speak of shaded days.
+    # (Thin grid lines come near the shade's grey too; a shaded day column is some 10^5 pixels.)
+    assert _shaded_pixels(pictures["2026-11"]) > 100_000
+    assert _shaded_pixels(pictures["2026-12"]) < 20_000
+    from stripscan.qc_chart import chart_data, legend_entries
+    from stripscan.qc_log import load_processor_log
+
+    with Archive.open(path, read_only=True) as archive:
+        plog = load_processor_log(archive, PROCESSOR)
+    december = chart_data(plog, month="2026-12")
+    assert [p.baseline_dates for p in december.periods] == [()]
+    # The monthly report and the window draw from the same chart data and legend.
+    assert "baseline_days" not in {e.key for e in legend_entries(december)}
+    november = chart_data(plog, month="2026-11")
+    assert november.periods[0].baseline_dates == tuple(datetime.date(2026, 11, d) for d in range(2, 7))

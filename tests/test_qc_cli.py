@@ -142,6 +142,26 @@ def test_an_event_restarts_the_baseline_and_limits_show(capsys, baseline):
     assert status(capsys, baseline)["operating_levels"]["mid_density"] == pytest.approx(1.52)
 
 
+def test_qc_list_gives_the_verdict_qc_add_and_qc_status_gave(capsys, baseline):
+    """Issue 13, wrong output 5: ``qc list`` and ``qc status`` share one verdict, trend rules included."""
+    said = {}
+    # Density difference falls 0.01 a strip from its level 1.80: each strip alone is within ±0.10, but
+    # five strips in a row, each lower, fire the drift rule (drift of 5, common practice, from memory).
+    for n, dd in zip(range(5, 10), (1.79, 1.78, 1.77, 1.76, 1.75)):
+        out = add(capsys, baseline, n, 0.18, 1.20, dd)
+        said[day(n)] = out.splitlines()[1].split(": ")[1].split(" (")[0]
+        on = json.loads(ok(capsys, "qc", "status", "--archive", baseline, "--processor", P, "--json", "--on", day(n)))
+        assert {"ok": "WITHIN LIMITS", "warning": "WARNING"}[on["latest"]["verdict"]] == said[day(n)]
+    assert said == {day(5): "WITHIN LIMITS", day(6): "WITHIN LIMITS", day(7): "WITHIN LIMITS",
+                    day(8): "WARNING", day(9): "WARNING"}
+    listed = {}
+    for line in ok(capsys, "qc", "list", "--archive", baseline, "--processor", P).splitlines():
+        cells = line.split()
+        if len(cells) > 2 and cells[1] in said:
+            listed[cells[1]] = "WARNING" if "WARNING" in line else "WITHIN LIMITS" if "WITHIN LIMITS" in line else "?"
+    assert listed == said
+
+
 # --------------------------------------------------------------------------
 # Repeat strips and corrections
 

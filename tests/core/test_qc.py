@@ -382,7 +382,9 @@ def test_a_trend_on_the_latest_strip_makes_it_a_warning():
     # run of 7 (common practice in control charting, from memory). DD sits
     # on its level, so it has no run.
     log = QCLog([*BASELINE, *series([1.23] * 7, start=5, dd=1.81)])
-    assert log.days[-1].verdict.verdict == "ok"
+    # One verdict, computed once: the day's own verdict counts the trend rules as the status does.
+    assert log.days[-1].verdict.verdict == "warning" and log.days[-1].verdict.rules == ("run:mid_density",)
+    assert log.days[-1].verdict.reasons == ()  # the strip alone is within the warning tier
     status = log.status()
     assert status.verdict == "warning"
     assert status.rules_fired == ("run:mid_density",)
