@@ -238,7 +238,8 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--mid-target", type=float, default=1.20, help="density the mid-density step is chosen near (1.20)")
     p.add_argument("--dd-high", type=float, default=2.20, help="high density-difference target (2.20)")
     p.add_argument("--dd-low", type=float, default=0.45, help="low density-difference target (0.45)")
-    p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen")
+    p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen: closest = the steps closest to both targets; bounded = the "
+                   "high step closest to its target, the low step the lightest at or above its target")
     p.add_argument("--reference-speed", type=float, metavar="LOGE", help="speed point of a reference film, for relative speed")
     p.add_argument("--dark", type=float, default=0.0, help="direct mode: the scanner's dark signal, 0..1 of full scale")
     p.add_argument("--clear-area", metavar="X0,Y0,X1,Y1", help="direct mode: a clear area (px) whose signal is I0")

@@ -129,3 +129,26 @@ def test_window_without_a_display_is_a_plain_error(capsys, monkeypatch, argv):
     assert main(argv) == 1
     err = capsys.readouterr().err
     assert err.startswith("stripscan: error: the desktop window needs a graphical session") and err.count("\n") == 1
+
+
+def test_bounded_rule_bounds_only_the_low_density_difference_step(capsys):
+    """Issue 13, wrong output 7: the "bounded" density-difference rule bounds only the low step (closest to
+    0.45 but not less); the high step is the one closest to 2.20, as with the plain rule."""
+    from stripscan.demo_data import demo_files
+
+    demo = demo_files()
+    assert main(["analyze", str(demo.lot_a_scan), "--calibration", str(demo.calibration), "--dd-rule", "bounded",
+                 "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    for strip in data["strips"]:
+        usable = {s["step"]: s["od"] for s in strip["steps"] if s["in_range"]}
+        metrics = strip["metrics"]
+        # Common practice, from memory (no published QC manual checked): high step closest to 2.20 OD ...
+        high = min(usable, key=lambda k: (abs(usable[k] - 2.20), k))
+        # ... low step the lightest at or above 0.45 OD.
+        low = min((k for k in usable if usable[k] >= 0.45), key=lambda k: (usable[k], k))
+        assert (metrics["dd_high_step"], metrics["dd_low_step"]) == (high, low)
+        assert metrics["density_difference"] == pytest.approx(usable[high] - usable[low], abs=1e-4)
+    # On these films the step closest to 2.20 lies above it, which a cap at 2.20 would have passed over.
+    assert any(s["od"] > 2.20 for strip in data["strips"] for s in strip["steps"]
+               if s["step"] == strip["metrics"]["dd_high_step"])

@@ -678,16 +678,14 @@ def closest_step(densities: Sequence[float], target: float) -> int:
     return int(np.argmin(distance)) + 1
 
 
-def _bounded_step(d: np.ndarray, target: float, *, densest_below: bool) -> int:
+def _lightest_not_below(d: np.ndarray, target: float) -> int:
+    """1-based step of the lowest density at or above ``target`` (closest to it but not less)."""
     rounded = np.round(d, _DIGITS)
     with np.errstate(invalid="ignore"):
-        allowed = rounded <= target + _TOL if densest_below else rounded >= target - _TOL
+        allowed = rounded >= target - _TOL
     if not allowed.any():
-        side = "at or below" if densest_below else "at or above"
-        raise ValueError(f"no step has a density {side} {target:g}")
-    # argmax/argmin keep the first, i.e. lower, step on ties.
-    if densest_below:
-        return int(np.argmax(np.where(allowed, rounded, -np.inf))) + 1
+        raise ValueError(f"no step has a density at or above {target:g}")
+    # argmin keeps the first, i.e. lower, step on ties.
     return int(np.argmin(np.where(allowed, rounded, np.inf))) + 1
 
 
@@ -712,9 +710,11 @@ def choose_qc_steps(
         Density-difference targets, OD gross.
     rule : {"closest", "bounded"}
         ``"closest"``: the steps closest to each target.  ``"bounded"`` (used
-        by some procedures): the densest step not above ``dd_high_target``
-        and the lightest not below ``dd_low_target``.  The mid-density step
-        is always the closest to ``mid_target``.
+        by some procedures; from memory, no published manual checked): the
+        high step is still the closest to ``dd_high_target``, and only the
+        low step is bounded: the lightest step not below ``dd_low_target``
+        (closest to it but not less).  The mid-density step is always the
+        closest to ``mid_target``.
 
     Returns
     -------
@@ -735,11 +735,11 @@ def choose_qc_steps(
     if np.isinf(d).any():
         raise ValueError(f"density of step {int(np.flatnonzero(np.isinf(d))[0]) + 1} is infinite")
     mid = closest_step(d, mid_target)
+    high = closest_step(d, dd_high_target)
     if rule == "closest":
-        high, low = closest_step(d, dd_high_target), closest_step(d, dd_low_target)
+        low = closest_step(d, dd_low_target)
     else:
-        high = _bounded_step(d, dd_high_target, densest_below=True)
-        low = _bounded_step(d, dd_low_target, densest_below=False)
+        low = _lightest_not_below(d, dd_low_target)
     if high <= low:
         raise ValueError(
             f"cannot form a density difference: high step {high} (OD {d[high - 1]:.3f}) is not "
