@@ -152,3 +152,34 @@ def test_bounded_rule_bounds_only_the_low_density_difference_step(capsys):
     # On these films the step closest to 2.20 lies above it, which a cap at 2.20 would have passed over.
     assert any(s["od"] > 2.20 for strip in data["strips"] for s in strip["steps"]
                if s["step"] == strip["metrics"]["dd_high_step"])
+
+
+@pytest.fixture(scope="module")
+def demo_lot_archive(tmp_path_factory):
+    """The demo's two lots stored from their scans, three strips each (snapshots 1-3: A, 4-6: B)."""
+    from stripscan.demo_data import demo_files
+
+    demo = demo_files()
+    path = tmp_path_factory.mktemp("lots") / "lots.sqlite3"
+    for lot, scan in (("M-2610-A", demo.lot_a_scan), ("M-2702-B", demo.lot_b_scan)):
+        assert main(["archive", "add", str(scan), "--lot", lot, "--calibration", str(demo.calibration),
+                     "--processor", "Processor 1", "--processed", "2026-11-19", "--archive", str(path)]) == 0
+    return path
+
+
+def test_archive_show_prints_only_that_strips_warnings(capsys, demo_lot_archive):
+    """Issue 13, wrong output 4: ``archive show`` of strip 1 of a scan prints strip 1's warnings, not those of
+    strips 2 and 3 kept with the scan."""
+    from stripscan.archive import Archive
+
+    capsys.readouterr()
+    with Archive.open(demo_lot_archive, read_only=True) as archive:
+        first = archive.get_snapshot(1)
+    assert first.strip.index == 1 and any(w.startswith("strip 2: ") for w in first.warnings)
+    assert main(["archive", "show", "1", "--archive", str(demo_lot_archive)]) == 0
+    shown = [line.strip()[2:] for line in capsys.readouterr().out.splitlines() if line.strip().startswith("! ")]
+    assert shown and not any(line.startswith("strip ") for line in shown)
+    assert set(first.strip.warnings) <= set(shown)
+    # Nothing that is only another strip's: every line is scan-wide or strip 1's own.
+    scan_wide = {w for w in first.warnings if not w.startswith("strip ")}
+    assert set(shown) <= scan_wide | set(first.strip.warnings)

@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import CAUTION
+from ..core.records import warnings_of_strip
 from ..figure_table import step_flag
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
@@ -168,7 +169,8 @@ def _cmd_show(args: argparse.Namespace) -> int:
     _print_table(["  step", "log E", "OD", "+/- OD", "flag"],
                  [[f"  {st.step}", _number(st.log_exposure, 2), _number(st.od), _number(st.od_sd, 4),
                    step_flag(st, f)] for st in s.strip.steps])
-    for warning in s.warnings:
+    # Only this strip's warnings: the scan's copy of the others' is left out.
+    for warning in warnings_of_strip(s.warnings, s.strip):
         print(f"  ! {warning}")
     if len(chain) > 1:
         print("  revisions: " + " -> ".join(str(c.id) for c in chain))

@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING, Any, Sequence
 import numpy as np
 
 from ..core.curve import CharacteristicCurve
-from ..core.records import Analysis, ScanInfo, StripResult
+from ..core.records import Analysis, ScanInfo, StripResult, warnings_of_strip
 from ..figure_table import figure_rows, format_value, step_flag
 from .canvas import Canvas, Column, draw_frame, write_pdf
 from .plot import COLOURS, Line, Plot, Points, RefLine
@@ -107,12 +107,7 @@ class StripReport:
             out.append("The calibration of these densities is not recorded.")
         if self.context.status and self.context.status != "current":
             out.append(f"This snapshot is {self.context.status}.")
-        prefix = f"strip {self.strip.index}: "
-        for text in (*self.warnings, *self.strip.warnings, *self.strip.figures.notes):
-            if text.startswith("strip "):
-                if not text.startswith(prefix):
-                    continue  # another strip's warning
-                text = text[len(prefix):]
+        for text in (*warnings_of_strip(self.warnings, self.strip), *self.strip.figures.notes):
             if text not in out:
                 out.append(text)
         out += [f"Note: {note}" for note in self.context.notes]
