@@ -98,8 +98,9 @@ def format_analysis(analysis) -> str:
             out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
         low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
         out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, 2)}")
-        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)} at log E {_fmt(f.gamma_log_exposure, 2)}")
-        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2)} log E")
+        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, 2)}" if f.gamma is not None else ""
+        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)}{gamma_at}")
+        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2, ' log E')}")
         if f.mid_density_step is not None:
             out.append(f"  mid-density           {_fmt(f.mid_density, 2)} (step {f.mid_density_step})")
         if f.density_difference is not None:

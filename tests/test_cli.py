@@ -183,3 +183,30 @@ def test_archive_show_prints_only_that_strips_warnings(capsys, demo_lot_archive)
     # Nothing that is only another strip's: every line is scan-wide or strip 1's own.
     scan_wide = {w for w in first.warnings if not w.startswith("strip ")}
     assert set(shown) <= scan_wide | set(first.strip.warnings)
+
+
+def test_dense_steps_clipped_at_the_dark_floor_are_not_called_saturated(tmp_path, capsys):
+    """Issue 13, wrong output 8: dense steps crushed to the file's bottom code sit at the scanner's dark floor;
+    they are not "the scanner saturates" (which is clear film clipped at full scale)."""
+    # No dark offset and no flare: the dense steps' signal, 10^-4 of full scale and less, sinks into the read
+    # noise and is clipped at code 0 (simulator ground truth).
+    film = FilmModel(dmax=4.2)
+    scan = tmp_path / "dense.tif"
+    write_tiff(scan, simulate_scan([StripSpec(film=film, center_mm=(30.0, 100.0), angle_deg=90.0)],
+                                   platen_mm=(60.0, 200.0), dpi=150.0,
+                                   scanner=ScannerModel(dark_offset=0.0, flare_fraction=0.0, seed=4)))
+    assert main(["analyze", str(scan), "--steps", "21"]) == 0
+    out = capsys.readouterr().out
+    assert "at the scanner's dark floor (too dense to read" in out
+    assert "saturates" not in out
+
+
+def test_a_latitude_not_reached_reads_as_plain_words(files, capsys):
+    """Issue 13, wrong output 8: "latitude not reached", not "latitude not reached log E"."""
+    # A film that never reaches net density 2.00 (ISO 9236-1's upper point): no latitude to read.
+    flat = FilmModel(dmax=1.9, log_e_mid=1.5, slope=4.0)
+    write_tiff(files / "flat2.tif", simulate_scan([StripSpec(film=flat, center_mm=(60.0, 100.0), angle_deg=90.0)],
+                                                  platen_mm=(120.0, 200.0), dpi=150.0, scanner=ScannerModel(seed=3)))
+    assert main(["analyze", str(files / "flat2.tif"), "--steps", "21"]) == 0
+    lines = [line.split() for line in capsys.readouterr().out.splitlines() if line.strip().startswith("latitude")]
+    assert lines == [["latitude", "not", "reached"]]

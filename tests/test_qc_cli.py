@@ -121,7 +121,7 @@ def test_status_of_every_processor(capsys, baseline):
     data = json.loads(ok(capsys, "qc", "status", "--archive", baseline, "--json"))
     assert [d["processor"] for d in data] == [P, "Darkroom C"]
     assert data[0]["latest"]["verdict"] == "ok"
-    assert data[1]["baseline"] == {"in_progress": True, "days": 1, "needed": 5} and data[1]["operating_levels"] is None
+    assert data[1]["baseline"] == {"in_progress": True, "days": 1, "needed": 5, "set_by": None} and data[1]["operating_levels"] is None
     out = ok(capsys, "qc", "status", "--archive", baseline)
     assert f"{P}: WITHIN LIMITS" in out and "Darkroom C: BASELINE IN PROGRESS" in out
 
@@ -160,6 +160,31 @@ def test_qc_list_gives_the_verdict_qc_add_and_qc_status_gave(capsys, baseline):
         if len(cells) > 2 and cells[1] in said:
             listed[cells[1]] = "WARNING" if "WARNING" in line else "WITHIN LIMITS" if "WITHIN LIMITS" in line else "?"
     assert listed == said
+
+
+def test_status_words_with_no_strip_and_after_a_complete_baseline(capsys, baseline):
+    """Issue 13, wrong output 8: "(no strip yet)", not "(latest strip no strip yet)"; and the status JSON's
+    baseline counts the strips that set the levels once it is complete, not 0."""
+    data = status(capsys, baseline)
+    # FDA guidance for MQSA: operating levels from the first 5 days.
+    assert data["baseline"] == {"in_progress": False, "days": 5, "needed": 5, "set_by": "baseline"}
+    ok(capsys, "qc", "event", "--archive", baseline, "--processor", "Darkroom C", "--new-processor",
+       "--date", day(0), "--kind", "service")
+    out = ok(capsys, "qc", "status", "--archive", baseline, "--processor", "Darkroom C")
+    assert out.startswith("Darkroom C: BASELINE IN PROGRESS (no strip yet)")
+    assert "latest strip no strip" not in out
+    assert status(capsys, baseline, "Darkroom C")["baseline"] == {"in_progress": True, "days": 0, "needed": 5,
+                                                                  "set_by": None}
+
+
+def test_a_missing_archive_says_how_one_is_made(capsys, tmp_path):
+    """Issue 13, wrong output 8: ``qc add`` on a missing archive file says more than "X does not exist": that
+    --new-processor starts one, or how else an archive is made."""
+    missing = tmp_path / "typo.sqlite3"
+    line = refused(capsys, "qc", "add", "--archive", missing, "--processor", P, "--date", day(0), "--base-fog", 0.18,
+                   "--mid-density", 1.20, "--density-difference", 1.80)
+    assert f"{missing} does not exist" in line and "--new-processor" in line and "archive add" in line
+    assert not missing.exists()  # nothing is made without --new-processor
 
 
 # --------------------------------------------------------------------------

@@ -61,7 +61,18 @@ def _open(args: argparse.Namespace, *, create: bool) -> Archive:
     # Reading commands never create a file: a mistyped --archive path must
     # say so rather than show an empty archive.
     path = args.archive if args.archive is not None else default_archive_path()
+    if not create and not Path(path).expanduser().exists():
+        raise ArchiveError(_NO_ARCHIVE.format(path=Path(path).expanduser()))
     return Archive.open(path, create=create)
+
+
+#: What a reading command says when the archive file is not there, and how one is made.
+_NO_ARCHIVE = (
+    "{path} does not exist: there is no archive there yet (check --archive or $STRIPSCAN_ARCHIVE). An archive "
+    "is made by the first command that stores something in it: 'stripscan archive add SCAN --lot ID', or "
+    "'stripscan qc add|event|limits --processor P --new-processor ...' to start a processor's QC log, or "
+    "'stripscan qc demo' for the invented demo"
+)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:

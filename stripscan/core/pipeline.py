@@ -289,8 +289,7 @@ def strip_result(
                 excluded=reading.step in excluded,
             )
         )
-    if saturated_steps:
-        warnings.append(f"{_list(saturated_steps)}: the scanner saturates; not used")
+    warnings += _clipped_warnings(readings, saturated_steps)
     if out_steps and isinstance(mapping, Calibration):
         lo, hi = mapping.valid_od
         warnings.append(
@@ -335,6 +334,26 @@ def strip_result(
         figures=figures,
         warnings=tuple(warnings),
     )
+
+
+def _clipped_warnings(readings: Sequence[StepReading], clipped: Sequence[int]) -> list[str]:
+    """Say which clipped steps sit at the dark floor (dense film) and which at full scale (clear film).
+
+    A step's pixels count as clipped at either end of the file's codes
+    (:attr:`StepReading.saturated_fraction`); a dense step crushed to the
+    bottom code is not the scanner saturating, and the advice differs.
+    """
+    signal = {r.step: r.signal for r in readings}
+    # Mid-scale splits the two ends: a step clipped at the bottom code reads near 0.
+    dark = [k for k in clipped if not (signal.get(k, 0.0) >= 0.5)]
+    bright = [k for k in clipped if k not in dark]
+    out = []
+    if dark:
+        out.append(f"{_list(dark)}: at the scanner's dark floor (too dense to read: the signal is clipped "
+                   "at the bottom code); not used")
+    if bright:
+        out.append(f"{_list(bright)}: the scanner saturates (the signal is clipped at full scale); not used")
+    return out
 
 
 def _list(steps: Sequence[int]) -> str:

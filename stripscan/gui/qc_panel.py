@@ -79,6 +79,7 @@ from ..qc_log import (
     ProcessorLog,
     add_day,
     correct_entry,
+    latest_words,
     load_processor_log,
     status_text,
 )
@@ -501,9 +502,8 @@ class QcPanel(QWidget):
             head, colour, glyph = VERDICT_WORDS[status.verdict], MARKS[status.verdict][0], _GLYPHS[status.verdict]
         lines = status_text(plog, status).splitlines()
         body = "<br>".join(html.escape(line.strip()) for line in lines[1:])
-        when = status.latest_date.isoformat() if status.latest_date else "no strip yet"
         return (f"<b style='color:{colour}; font-size:13pt'>{glyph} {html.escape(plog.processor)}: {head}</b> "
-                f"<span>(latest strip {when})</span><br>{body}")
+                f"<span>({latest_words(status)})</span><br>{body}")
 
     # ------------------------------------------------------------ drawing
 
