@@ -317,6 +317,20 @@ def _require_display() -> None:
             "the desktop window needs a graphical session (no DISPLAY or WAYLAND_DISPLAY is set); "
             "the command line works without one: see 'stripscan --help'"
         )
+    if not os.environ.get("WAYLAND_DISPLAY") and not _xcb_cursor_found():
+        # On X11 Qt uses its xcb platform, which will not start without this library (and aborts the process).
+        raise CommandError(
+            "the desktop window needs the libxcb-cursor library for Qt's xcb platform, which is not installed; "
+            "install the package libxcb-cursor0 (Debian, Ubuntu: sudo apt install libxcb-cursor0; elsewhere "
+            "xcb-util-cursor); the command line works without it: see 'stripscan --help'"
+        )
+
+
+def _xcb_cursor_found() -> bool:
+    """Whether the X11 cursor library Qt's xcb platform loads is on this machine."""
+    import ctypes.util
+
+    return ctypes.util.find_library("xcb-cursor") is not None
 
 
 def cmd_demo(args) -> int:

@@ -210,3 +210,38 @@ def test_a_latitude_not_reached_reads_as_plain_words(files, capsys):
     assert main(["analyze", str(files / "flat2.tif"), "--steps", "21"]) == 0
     lines = [line.split() for line in capsys.readouterr().out.splitlines() if line.strip().startswith("latitude")]
     assert lines == [["latitude", "not", "reached"]]
+
+
+def test_window_without_the_xcb_cursor_library_names_the_package(capsys, monkeypatch):
+    """Issue 13, missing 5: on an X11 desktop without libxcb-cursor Qt's xcb platform aborts the process; the
+    command names the package instead, as the README's Quick start and window section do."""
+    monkeypatch.delenv("QT_QPA_PLATFORM", raising=False)
+    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+    monkeypatch.setenv("DISPLAY", ":0")
+    monkeypatch.setattr("sys.platform", "linux")
+    monkeypatch.setattr("stripscan.cli._xcb_cursor_found", lambda: False)
+    assert main([]) == 1
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "libxcb-cursor0" in err
+
+
+def test_readme_says_what_the_window_needs_and_where_the_archive_lives(monkeypatch, tmp_path):
+    """Issue 13, missing 5: the README's Quick start and window section name the display, the package
+    ``libxcb-cursor0`` and the default archive's place, which is where the program puts it."""
+    from pathlib import Path
+
+    from stripscan.archive import default_archive_path
+
+    readme = (Path(__file__).parent.parent / "README.md").read_text(encoding="utf-8")
+    quick = readme.split("## Quick start", 1)[1].split("\n## ", 1)[0]
+    window = readme.split("## The desktop window", 1)[1].split("\n## ", 1)[0]
+    for section in (quick, window):
+        assert "libxcb-cursor0" in section and "graphical session" in section
+    monkeypatch.delenv("STRIPSCAN_ARCHIVE", raising=False)
+    monkeypatch.delenv("XDG_DATA_HOME", raising=False)
+    monkeypatch.setattr("sys.platform", "linux")
+    monkeypatch.setenv("HOME", str(tmp_path))
+    where = "~/" + default_archive_path().relative_to(tmp_path).as_posix()
+    assert where == "~/.local/share/stripscan/archive.sqlite3"  # XDG base directory specification default
+    assert f"`{where.rsplit('/', 1)[0]}/`" in window and "`archive.sqlite3` there" in window
+    assert "logs/stripscan.log" in window

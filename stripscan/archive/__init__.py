@@ -36,11 +36,12 @@ from .records import (
     calibration_hash,
     snapshots_from_analysis,
 )
-from .store import Archive, default_archive_path
+from .store import Archive, default_archive_path, user_data_folder
 
 __all__ = [
     "Archive",
     "default_archive_path",
+    "user_data_folder",
     "ArchiveError",
     "ArchiveBusyError",
     "ArchiveConflictError",

@@ -114,23 +114,31 @@ _REFERENCE: dict[type, tuple[str, str, str]] = {
 }
 
 
-def default_archive_path() -> Path:
-    """Where the archive lives unless a path is given.
+def user_data_folder() -> Path:
+    """The one folder of the user's stripscan data: the default archive and the window's log.
 
-    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise the user's data folder:
-    ``$XDG_DATA_HOME/stripscan/archive.sqlite3`` (``~/.local/share`` when
+    ``$XDG_DATA_HOME/stripscan`` (``~/.local/share/stripscan`` when
     XDG_DATA_HOME is unset or not absolute, as the XDG base directory
     specification asks), or ``%LOCALAPPDATA%\\stripscan`` on Windows.
     """
-    override = os.environ.get("STRIPSCAN_ARCHIVE")
-    if override:
-        return Path(override).expanduser()
     if sys.platform == "win32":
         base = Path(os.environ.get("LOCALAPPDATA") or Path.home() / "AppData" / "Local")
     else:
         xdg = os.environ.get("XDG_DATA_HOME", "")
         base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".local" / "share"
-    return base / "stripscan" / "archive.sqlite3"
+    return base / "stripscan"
+
+
+def default_archive_path() -> Path:
+    """Where the archive lives unless a path is given.
+
+    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise ``archive.sqlite3`` in
+    :func:`user_data_folder` (``~/.local/share/stripscan/archive.sqlite3``).
+    """
+    override = os.environ.get("STRIPSCAN_ARCHIVE")
+    if override:
+        return Path(override).expanduser()
+    return user_data_folder() / "archive.sqlite3"
 
 
 def _marked_read_only(path: Path) -> bool:
