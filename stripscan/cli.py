@@ -17,7 +17,7 @@ import numpy as np
 from typing import Callable, Sequence
 
 from . import CAUTION, __version__
-from .figure_table import step_flag
+from .figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 
 EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
@@ -85,7 +85,10 @@ def format_analysis(analysis) -> str:
         f = strip.figures
         out.append("")
         out.append(f"Strip {strip.index}: {strip.geometry.n_steps} steps, axis {strip.geometry.angle_deg:.1f}°")
-        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}  note")
+        sd_title = uncertainty_title("± sd", strip)
+        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {sd_title:>6} {'pixels':>7}  note")
+        if read_in_direct_mode(strip):
+            out.append(f"  ({NOISE_ONLY_NOTE})")
         for s in strip.steps:
             note = step_flag(s, f)  # the window's and the reports' wording; the warnings below say why
             od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"

@@ -245,3 +245,13 @@ def test_readme_says_what_the_window_needs_and_where_the_archive_lives(monkeypat
     assert where == "~/.local/share/stripscan/archive.sqlite3"  # XDG base directory specification default
     assert f"`{where.rsplit('/', 1)[0]}/`" in window and "`archive.sqlite3` there" in window
     assert "logs/stripscan.log" in window
+
+
+def test_direct_mode_uncertainty_column_says_what_it_leaves_out(files, capsys):
+    """Issue 13, missing 4: without a calibration the ± sd column says it is the reading noise only and leaves
+    out the error of having no calibration (not only the UNCALIBRATED banner says so)."""
+    assert main(["analyze", str(files / "strips.tif"), "--steps", "21"]) == 0
+    out = capsys.readouterr().out
+    header = [line for line in out.splitlines() if line.split()[:1] == ["step"]]
+    assert header and all("± sd, noise only" in line for line in header)
+    assert "leaves out the error of having no calibration" in out

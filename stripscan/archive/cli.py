@@ -17,7 +17,7 @@ from typing import Any
 
 from .. import CAUTION
 from ..core.records import warnings_of_strip
-from ..figure_table import step_flag
+from ..figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -177,7 +177,9 @@ def _cmd_show(args: argparse.Namespace) -> int:
     print(f"  mid-density {_number(f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); density "
           f"difference {_number(f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
           f"{f.dd_low_step or '-'})")
-    _print_table(["  step", "log E", "OD", "+/- OD", "flag"],
+    if read_in_direct_mode(s.strip):
+        print(f"  ({NOISE_ONLY_NOTE})")
+    _print_table(["  step", "log E", "OD", uncertainty_title("+/- OD", s.strip), "flag"],
                  [[f"  {st.step}", _number(st.log_exposure, 2), _number(st.od), _number(st.od_sd, 4),
                    step_flag(st, f)] for st in s.strip.steps])
     # Only this strip's warnings: the scan's copy of the others' is left out.
