@@ -374,3 +374,30 @@ def test_days_after_a_crossover_are_not_shaded_as_setting_the_levels(capsys, tmp
     assert "baseline_days" not in {e.key for e in legend_entries(december)}
     november = chart_data(plog, month="2026-11")
     assert november.periods[0].baseline_dates == tuple(datetime.date(2026, 11, d) for d in range(2, 7))
+
+
+def test_a_comparison_says_when_lot_and_processing_day_are_mixed(capsys, tmp_path):
+    """Issue 13, missing 3: when every strip of lot A was processed on other days than lot B's, the lot
+    comparison says the difference may be the processor's, not the film's."""
+    shared = crossover_archive(tmp_path / "shared.sqlite3")  # both lots processed together on 2026-11-20
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", shared)
+    assert code == 0, err
+    assert "lot and processing day are mixed" not in out
+    apart = tmp_path / "apart.sqlite3"
+    with Archive.open(apart) as archive:
+        reference_data(archive)
+        archive.add_snapshots([
+            NewSnapshot(lot, scan_info(f"{lot}-{k}"), hand_strip(k + 1, base_fog=bf, mid=md, dd=dd),
+                        processor=PROCESSOR, processed_on=day)
+            for lot, rows, day in ((LOT_A, OLD, "2026-11-18"), (LOT_B, NEW, "2026-11-20"))
+            for k, (bf, md, dd) in enumerate(rows)])
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", apart)
+    assert code == 0, err
+    # Common practice: films are compared on strips processed together, or the processor's drift is in it.
+    note = [line for line in out.splitlines() if "lot and processing day are mixed" in line]
+    assert len(note) == 1 and "2026-11-18" in note[0] and "2026-11-20" in note[0]
+    assert "may be the processor's" in note[0]
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", apart, "--json")
+    assert code == 0, err
+    (pair,) = json.loads(out)["comparisons"]
+    assert any("lot and processing day are mixed" in n for n in pair["notes"])
