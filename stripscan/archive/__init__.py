@@ -32,6 +32,7 @@ from .records import (
     Snapshot,
     SnapshotNote,
     SnapshotSummary,
+    StepReadings,
     TrendPoint,
     calibration_hash,
     snapshots_from_analysis,
@@ -63,6 +64,7 @@ __all__ = [
     "SnapshotNote",
     "SnapshotSummary",
     "TrendPoint",
+    "StepReadings",
     "calibration_hash",
     "snapshots_from_analysis",
 ]

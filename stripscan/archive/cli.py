@@ -136,11 +136,27 @@ def _cmd_list(args: argparse.Namespace) -> int:
             archive.get_lot(args.lot)  # an unknown lot is a mistake to name, not an empty list
         rows = archive.list_snapshots(args.lot, args.processor, include_retired=args.all,
                                       include_superseded=args.all)
-    table = [[str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
-              *(_number(getattr(r, name)) for name in FIGURES), _status(r, r.superseded_by)] for r in rows]
-    _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in FIGURES), "status"],
-                 table)
-    print(f"{len(rows)} snapshot(s)")
+        readings = archive.step_readings(args.lot, args.processor, at_lot_steps=not args.own_steps,
+                                         include_retired=args.all, include_superseded=args.all)
+    # Mid-density and density difference go with the steps they were read at, so strips read at
+    # different steps are never set side by side unmarked.
+    plain = [n for n in FIGURES if n not in ("mid_density", "density_difference")]
+    table = []
+    for r in rows:
+        qc = readings.get(r.id)
+        md_step = str(qc.mid_step) if qc and qc.mid_step is not None else "-"
+        dd_steps = f"{qc.dd_high_step}-{qc.dd_low_step}" if qc and qc.dd_high_step is not None else "-"
+        table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
+                      *(_number(getattr(r, name)) for name in plain),
+                      _number(qc.mid_density if qc else None), md_step,
+                      _number(qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+    _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
+                  _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
+                  "status"], table)
+    print(f"{len(rows)} snapshot(s); " + (
+        "mid-density and density difference at each strip's own steps" if args.own_steps else
+        "mid-density and density difference at each lot's kept steps (those its first snapshot chose, as the "
+        "trends read them; --own-steps for each strip's own)"))
     return 0
 
 
@@ -278,6 +294,9 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")
     listing.add_argument("--processor", metavar="P", help="only this processor")
     listing.add_argument("--all", action="store_true", help="include retired and revised snapshots")
+    listing.add_argument("--own-steps", action="store_true",
+                         help="mid-density and density difference at the steps each strip chose itself (default: "
+                              "at the lot's kept steps, those its first snapshot chose, as the trends use)")
 
     show = command("show", _cmd_show, "show one snapshot")
     show.add_argument("id", metavar="ID", type=int, help="snapshot number")
