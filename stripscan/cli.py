@@ -233,7 +233,8 @@ def cmd_calibrate(args) -> int:
 
 def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--calibration", metavar="CAL.json", help="calibration from 'stripscan calibrate' (none: uncalibrated direct mode)")
-    p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted)")
+    p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted); checked against the measured step pitch and "
+                   "the film's length, with a warning when it cannot be right")
     p.add_argument("--increment", type=float, default=0.15, metavar="LOGE", help="log exposure per step (default 0.15 = log10 √2)")
     p.add_argument("--exposures", metavar="FILE", help="per-step log exposure table from the sensitometer, one per line")
     p.add_argument("--air-kerma", metavar="FILE", help="per-step air kerma in µGy, one per line (gives ISO speed)")

@@ -255,3 +255,48 @@ def test_direct_mode_uncertainty_column_says_what_it_leaves_out(files, capsys):
     header = [line for line in out.splitlines() if line.split()[:1] == ["step"]]
     assert header and all("± sd, noise only" in line for line in header)
     assert "leaves out the error of having no calibration" in out
+
+
+@pytest.fixture(scope="module")
+def calibration_file(files):
+    cal = files / "cal_checks.json"
+    assert main(["calibrate", str(files / "tablet.tif"), "--densities", str(files / "cert.csv"), "-o", str(cal)]) == 0
+    return cal
+
+
+def _strip_warnings(files, calibration_file, capsys, scan, *extra) -> list[list[str]]:
+    assert main(["analyze", str(files / scan), "--calibration", str(calibration_file), "--json", *extra]) == 0
+    return [s["warnings"] for s in json.loads(capsys.readouterr().out)["strips"]]
+
+
+def test_a_wrong_step_count_is_warned_of_not_read_as_a_whole_strip(files, calibration_file, capsys):
+    """Issue 13, wrong output 2: ``--steps 11`` on 21-step strips reads the 11 densest steps as a whole strip;
+    the count is checked against the measured pitch and the film's length, and step 1 far above base+fog and
+    steps far from their targets are warned of."""
+    capsys.readouterr()
+    for warnings in _strip_warnings(files, calibration_file, capsys, "strips.tif", "--steps", "11"):
+        text = " ".join(warnings)
+        assert "11 steps were given, but the film has room for about" in text
+        # Common practice: a sensitometric strip's step 1 lies in the toe, near base+fog.
+        assert "step 1 reads" in text and "above base+fog" in text
+        # Common practice: density difference low step closest to 0.45 OD; none is near it here.
+        assert "density-difference low step (step 1," in text and "from its target 0.45" in text
+    # The right count, given or counted, warns of none of this (simulator ground truth: 21 steps).
+    for extra in ((), ("--steps", "21")):
+        for warnings in _strip_warnings(files, calibration_file, capsys, "strips.tif", *extra):
+            text = " ".join(warnings)
+            assert "were given" not in text and "step 1 reads" not in text and "from its target" not in text
+
+
+def test_dmax_below_the_density_difference_high_target_is_warned_of(files, calibration_file, capsys):
+    """Issue 13, wrong output 2: a film whose Dmax is below the density-difference high target (2.20) puts the
+    high step on the shoulder, below its target; that is said, not left silent."""
+    low = FilmModel(dmax=1.95, log_e_mid=1.4, slope=5.0)  # simulator ground truth: never denser than 1.95 OD
+    write_tiff(files / "low_dmax.tif", simulate_scan([StripSpec(film=low, center_mm=(60.0, 100.0), angle_deg=90.0)],
+                                                     platen_mm=(120.0, 200.0), dpi=150.0,
+                                                     scanner=ScannerModel(seed=5)))
+    capsys.readouterr()
+    (warnings,) = _strip_warnings(files, calibration_file, capsys, "low_dmax.tif", "--steps", "21")
+    note = [w for w in warnings if w.startswith("Dmax (")]
+    assert len(note) == 1 and "below the density-difference high target 2.20" in note[0]
+    assert "lands on the shoulder" in note[0]

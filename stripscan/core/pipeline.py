@@ -25,6 +25,7 @@ from .calibration import (
     fit_calibration,
     flat_field,
 )
+from .checks import reading_notes
 from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
 from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
 from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
@@ -326,6 +327,7 @@ def strip_result(
         beyond_range_denser=densest_unusable,
     )
     warnings += list(figures.notes)
+    warnings += reading_notes(steps, figures)  # a wrong step count or unreached targets, never silent
     return StripResult(
         index=index,
         geometry=geometry,
