@@ -42,7 +42,7 @@ from .errors import report_error
 from .figures_panel import VALUE_ROLE
 from .save_snapshot_dialog import CalibrationLike, SaveSnapshotDialog
 from .style import strip_colour
-from .tables import STEP_COLUMNS, figure_rows, step_rows
+from .tables import STEP_COLUMNS, figure_rows, step_columns, step_rows
 from .tasks import TaskRunner
 from .trend_view import TrendView
 
@@ -303,8 +303,9 @@ class SnapshotView(QWidget):
         levels = (f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)) if f else (0.25, 2.0)
         _fill(self.figures, [[_cell(r.label, r.key), _cell(r.text, r.value, right=True), _cell(r.unit or "—")]
                              for r in figure_rows(f, levels)])
-        _fill(self.steps, [[_cell(c, right=k in (1, 2, 3)) for k, c in enumerate(row)]
-                           for row in step_rows(snapshot.strip if snapshot else None)])
+        strip = snapshot.strip if snapshot else None
+        self.steps.setHorizontalHeaderLabels(list(step_columns(strip)))  # "noise only" when read uncalibrated
+        _fill(self.steps, [[_cell(c, right=k in (1, 2, 3)) for k, c in enumerate(row)] for row in step_rows(strip)])
         _fill(self.provenance, [[_cell(k), _cell(v)] for k, v in (provenance_rows(record) if record else [])])
         self.provenance.resizeRowsToContents()
         self._show_history(record)

@@ -360,3 +360,19 @@ def test_the_lot_table_shows_steps_and_reads_a_lot_at_its_kept_steps(qtbot, pane
     row = shown_ids(table).index(snapshot.id)
     assert table.item(row, md_step).text() == str(snapshot.figures.mid_density_step)
     assert table.item(row, md).data(VALUE_ROLE) == pytest.approx(snapshot.figures.mid_density, abs=1e-4)
+
+
+def test_a_snapshot_read_without_calibration_says_its_uncertainty_is_noise_only(qtbot, panel: ArchivePanel,
+                                                                                 archive_path: Path) -> None:
+    """Issue 13, missing 4: a stored direct-mode reading's step table says its uncertainty is the reading noise
+    only, without the error of having no calibration."""
+    direct = analyze_scan(demo_files().lot_b_scan, options=AnalysisOptions(n_steps=21))
+    with Archive.open(archive_path) as archive:
+        (stored, *_) = archive.add_analysis(direct, "M-2702-B")
+        calibrated_id = archive.list_snapshots("M-2702-B")[0].id
+    panel.refresh()
+    assert panel.open_snapshot(stored.id)
+    column = [panel.view.steps.horizontalHeaderItem(k).text() for k in range(panel.view.steps.columnCount())]
+    assert "Uncertainty (OD), noise only" in column
+    assert panel.open_snapshot(calibrated_id)
+    assert panel.view.steps.horizontalHeaderItem(3).text() == "Uncertainty (OD)"
