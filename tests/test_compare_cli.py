@@ -401,3 +401,30 @@ def test_a_comparison_says_when_lot_and_processing_day_are_mixed(capsys, tmp_pat
     assert code == 0, err
     (pair,) = json.loads(out)["comparisons"]
     assert any("lot and processing day are mixed" in n for n in pair["notes"])
+
+
+def test_the_window_shades_no_day_after_a_crossover(capsys, tmp_path, qtbot):
+    """Issue 13, wrong output 1, in the window: the QC page shades the baseline days that set the first levels,
+    and no day judged against levels a crossover set."""
+    from PySide6.QtWidgets import QGraphicsRectItem
+
+    from stripscan.gui.qc_panel import QcPanel
+    from stripscan.qc_chart import BASELINE_OPACITY
+
+    path = crossover_archive(tmp_path / "qc.sqlite3")
+    assert run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}", "--new", f"lot:{LOT_B}",
+               "--date", DAY, "--archive", path)[0] == 0
+    for date in ("2026-12-01", "2026-12-02"):
+        assert run(capsys, "qc", "add", "--archive", path, "--processor", PROCESSOR, "--date", date, "--base-fog",
+                   "0.21", "--mid-density", "1.29", "--density-difference", "1.78")[0] == 0
+    panel = QcPanel(path)
+    qtbot.addWidget(panel)
+    panel.resize(1000, 900)
+    panel.show()
+    assert [p.baseline_dates for p in panel.data.periods] == [
+        tuple(datetime.date(2026, 11, d) for d in range(2, 7)), ()]
+    for plot in panel.plots.values():
+        shaded = [item for item in plot.items if isinstance(item, QGraphicsRectItem)
+                  and abs(item.brush().color().alphaF() - BASELINE_OPACITY) < 0.01]
+        assert len(shaded) == 1  # November's five baseline days, one column
+    panel.grab().save(str(tmp_path / "qc-page.png"))
