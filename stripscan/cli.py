@@ -331,10 +331,19 @@ def _require_display() -> None:
 
 
 def _xcb_cursor_found() -> bool:
-    """Whether the X11 cursor library Qt's xcb platform loads is on this machine."""
+    """Whether the X11 cursor library Qt's xcb platform loads is on this machine.
+
+    Asked of the dynamic loader itself, as Qt will ask it: a library the
+    loader finds is there, wherever it was installed.
+    """
+    import ctypes
     import ctypes.util
 
-    return ctypes.util.find_library("xcb-cursor") is not None
+    try:
+        ctypes.CDLL("libxcb-cursor.so.0")
+        return True
+    except OSError:
+        return ctypes.util.find_library("xcb-cursor") is not None
 
 
 def cmd_demo(args) -> int:
