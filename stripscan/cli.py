@@ -17,7 +17,7 @@ import numpy as np
 from typing import Callable, Sequence
 
 from . import CAUTION, __version__
-from .figure_table import step_flag
+from .figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 
 EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
@@ -99,8 +99,11 @@ def format_analysis(analysis) -> str:
         out.append("")
         out.append(f"Strip {strip.index}: {strip.geometry.n_steps} steps, axis {strip.geometry.angle_deg:.1f}°")
         stray = any(s.stray_light_share is not None for s in strip.steps)
-        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {'± sd':>6} {'pixels':>7}"
+        sd_title = uncertainty_title("± sd", strip)
+        out.append(f"  {'step':>4} {'log E':>6} {'OD':>6} {sd_title:>6} {'pixels':>7}"
                    + (f" {'stray':>6}" if stray else "") + "  note")
+        if read_in_direct_mode(strip):
+            out.append(f"  ({NOISE_ONLY_NOTE})")
         for s in strip.steps:
             note = step_flag(s, f)  # the window's and the reports' wording; the warnings below say why
             od = f"{s.od:6.3f}" if math.isfinite(s.od) else "     -"
@@ -116,8 +119,9 @@ def format_analysis(analysis) -> str:
             out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
         low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
         out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, 2)}")
-        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)} at log E {_fmt(f.gamma_log_exposure, 2)}")
-        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2)} log E")
+        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, 2)}" if f.gamma is not None else ""
+        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)}{gamma_at}")
+        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2, ' log E')}")
         if f.mid_density_step is not None:
             out.append(f"  mid-density           {_fmt(f.mid_density, 2)} (step {f.mid_density_step})")
         if f.density_difference is not None:
@@ -266,7 +270,8 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--tablet-certificate", metavar="CERT.csv",
                    help="a reference tablet lies on this scan beside the strips: calibrate the scan with it "
                         "(certified densities, CSV 'step,density'); the most robust way")
-    p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted)")
+    p.add_argument("--steps", type=int, metavar="N", help="number of steps per strip (default: counted); checked against the measured step pitch and "
+                   "the film's length, with a warning when it cannot be right")
     p.add_argument("--increment", type=float, default=0.15, metavar="LOGE", help="log exposure per step (default 0.15 = log10 √2)")
     p.add_argument("--exposures", metavar="FILE", help="per-step log exposure table from the sensitometer, one per line")
     p.add_argument("--air-kerma", metavar="FILE", help="per-step air kerma in µGy, one per line (gives ISO speed)")
@@ -275,7 +280,8 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--mid-target", type=float, default=1.20, help="density the mid-density step is chosen near (1.20)")
     p.add_argument("--dd-high", type=float, default=2.20, help="high density-difference target (2.20)")
     p.add_argument("--dd-low", type=float, default=0.45, help="low density-difference target (0.45)")
-    p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen")
+    p.add_argument("--dd-rule", choices=("closest", "bounded"), default="closest", help="how density-difference steps are chosen: closest = the steps closest to both targets; bounded = the "
+                   "high step closest to its target, the low step the lightest at or above its target")
     p.add_argument("--reference-speed", type=float, metavar="LOGE", help="speed point of a reference film, for relative speed")
     p.add_argument("--dark", type=float, default=0.0, help="direct mode: the scanner's dark signal, 0..1 of full scale")
     p.add_argument("--clear-area", metavar="X0,Y0,X1,Y1", help="direct mode: a clear area (px) whose signal is I0")
@@ -352,6 +358,29 @@ def _require_display() -> None:
             "the desktop window needs a graphical session (no DISPLAY or WAYLAND_DISPLAY is set); "
             "the command line works without one: see 'stripscan --help'"
         )
+    if not os.environ.get("WAYLAND_DISPLAY") and not _xcb_cursor_found():
+        # On X11 Qt uses its xcb platform, which will not start without this library (and aborts the process).
+        raise CommandError(
+            "the desktop window needs the libxcb-cursor library for Qt's xcb platform, which is not installed; "
+            "install the package libxcb-cursor0 (Debian, Ubuntu: sudo apt install libxcb-cursor0; elsewhere "
+            "xcb-util-cursor); the command line works without it: see 'stripscan --help'"
+        )
+
+
+def _xcb_cursor_found() -> bool:
+    """Whether the X11 cursor library Qt's xcb platform loads is on this machine.
+
+    Asked of the dynamic loader itself, as Qt will ask it: a library the
+    loader finds is there, wherever it was installed.
+    """
+    import ctypes
+    import ctypes.util
+
+    try:
+        ctypes.CDLL("libxcb-cursor.so.0")
+        return True
+    except OSError:
+        return ctypes.util.find_library("xcb-cursor") is not None
 
 
 def cmd_demo(args) -> int:

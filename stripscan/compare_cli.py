@@ -274,7 +274,7 @@ class SetLoader:
         self.archived[spec.text] = (frozenset(s.date for s in snapshots), frozenset(lots))
         source = f"archive {archive.path}, lot {', '.join(lots)}, snapshots {', '.join(str(i) for i in ids)}"
         return StripSet(spec.text, tuple(s.strip for s in snapshots), tuple(f"snapshot {s.id}" for s in snapshots),
-                        source)
+                        source, tuple(s.processed_on for s in snapshots))
 
     def _lot(self, spec: SetSpec, processor: str | None, date: str | None) -> StripSet:
         archive = self._open_archive()

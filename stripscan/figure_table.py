@@ -23,10 +23,11 @@ from dataclasses import dataclass
 from typing import Any, Callable, Literal, Mapping, Sequence
 
 from .core.curve import FigureSettings
-from .core.records import CurveFigures, StepDensity
+from .core.records import CurveFigures, StepDensity, StripResult
 
 __all__ = [
     "FigureRow", "figure_rows", "format_value", "step_flag", "STEP_FLAG_WORDS", "UnitStyle",
+    "NOISE_ONLY_NOTE", "read_in_direct_mode", "uncertainty_title",
     "FIGURE_KEYS", "FIGURE_COLUMNS", "NOT_REACHED", "NOT_READ", "ABOVE_RANGE", "NO_VALUE",
 ]
 
@@ -309,3 +310,23 @@ def step_flag(step: StepDensity, figures: CurveFigures | None = None) -> str:
     if step.step == figures.dd_low_step:
         roles.append("DD low")
     return ", ".join(roles)
+
+
+#: What a step's ± sd leaves out when the strip was read without a calibration (direct mode), said
+#: beside the uncertainty column of every step table (the window's, the command line's, the reports').
+NOISE_ONLY_NOTE = (
+    "noise only: read without a calibration (direct mode), the ± sd is the reading noise alone and leaves "
+    "out the error of having no calibration (the scanner's flare and response, larger on denser steps)"
+)
+
+
+def read_in_direct_mode(strip: StripResult | None) -> bool:
+    """Whether the strip was read without a calibration (its warnings carry the UNCALIBRATED one)."""
+    from .core.pipeline import UNCALIBRATED
+
+    return strip is not None and UNCALIBRATED in strip.warnings
+
+
+def uncertainty_title(title: str, strip: StripResult | None) -> str:
+    """The uncertainty column's title for ``strip``: ``title``, plus ", noise only" in direct mode."""
+    return f"{title}, noise only" if read_in_direct_mode(strip) else title

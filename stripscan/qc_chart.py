@@ -242,7 +242,8 @@ def chart_data(plog: ProcessorLog, *, month: str | None = None) -> ChartData:
         days = [d for d in period.days if first <= d.entry.date <= last]
         if not days:
             continue
-        baseline = tuple(d.entry.date for d in period.days[: plog.log.n_days]) if period.levels else ()
+        # Only strips that really set the levels: none when a crossover brought them.
+        baseline = tuple(d.entry.date for d in period.setting_days)
         label = (period.levels.reason if period.levels else
                  f"baseline in progress ({len(period.days)} of {plog.log.n_days} days)")
         periods.append(ChartPeriod(days[0].entry.date, days[-1].entry.date, period.levels, baseline, label))

@@ -166,7 +166,11 @@ def _event_row(event: Any, width: int) -> list[str]:
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
-    """List a processor's QC entries (repeats and corrections too) with deviations and verdicts, and its events."""
+    """List a processor's QC entries (repeats and corrections too) with deviations and verdicts, and its events.
+
+    A day's verdict is the one 'qc add' and 'qc status' gave it: the control limits, the warning tier and
+    the trend rules that fired on that day.
+    """
     from .qc_log import load_processor_log
 
     _processor(args)
@@ -356,7 +360,8 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     status.add_argument("--json", action="store_true", help="print the status as JSON")
     status.add_argument("--on", metavar="YYYY-MM-DD", help="status as it stood on that day")
 
-    command("list", _cmd_list, "list a processor's QC days and events")
+    command("list", _cmd_list, "list a processor's QC days and events, each day with the verdict the status gave "
+                               "it (trend rules included)")
 
     chart = command("chart", _cmd_chart, "draw the QC chart to a PNG file")
     chart.add_argument("-o", "--output", metavar="FILE.png", type=Path, help="the PNG file to write (needed)")

@@ -85,6 +85,7 @@ __all__ = [
     "set_limits",
     "status_json",
     "status_text",
+    "latest_words",
     "signed",
 ]
 
@@ -785,7 +786,8 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
     one of ok / warning / action, ``rules``, ``reasons``, ``advice``,
     ``entries``: every entry stored for that day with ``entry`` id,
     ``kind``, ``in_use``, ``verdict`` and ``standing`` in words);
-    ``baseline``; ``limits``; ``steps``; ``caution``.
+    ``baseline`` (``in_progress``, ``days``, ``needed``, ``set_by``: see
+    :func:`_baseline_json`); ``limits``; ``steps``; ``caution``.
     """
     status = status or plog.status()
     levels = status.levels
@@ -813,13 +815,28 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
                          "standing": item.standing()}
                         for item in _day_entries(plog, status.latest_date)],
         },
-        "baseline": {"in_progress": status.baseline_in_progress, "days": status.baseline_days,
-                     "needed": plog.setup.baseline_days},
+        "baseline": _baseline_json(plog, status),
         "limits": plog.setup.limits.to_dict(),
         "steps": steps.to_dict() if steps else None,
         "notes": list(plog.notes),
         "caution": CAUTION,
     }
+
+
+def _baseline_json(plog: ProcessorLog, status: ProcessorStatus) -> dict[str, Any]:
+    """The baseline of the levels in force: strips so far or strips that set them, and what set them.
+
+    ``days`` counts the strips of the baseline in progress, or, once the
+    levels are set, the strips averaged for them (0 when a crossover set
+    them); ``set_by`` is ``"baseline"``, ``"crossover"`` or null while in progress.
+    """
+    if status.baseline_in_progress or not plog.log.periods:
+        return {"in_progress": True, "days": status.baseline_days, "needed": plog.setup.baseline_days,
+                "set_by": None}
+    period = plog.log.periods[-1]
+    set_by = "crossover" if period.event is not None and period.event.levels is not None else "baseline"
+    return {"in_progress": False, "days": len(period.setting_days), "needed": plog.setup.baseline_days,
+            "set_by": set_by}
 
 
 def _day_entries(plog: ProcessorLog, day: datetime.date | None) -> tuple[LoggedEntry, ...]:
@@ -832,12 +849,16 @@ def signed(value: float) -> str:
     return f"{round(value, 3) + 0.0:+.3f}"
 
 
+def latest_words(status: ProcessorStatus) -> str:
+    """``"latest strip YYYY-MM-DD"``, or ``"no strip yet"`` when no strip is recorded."""
+    return f"latest strip {status.latest_date.isoformat()}" if status.latest_date else "no strip yet"
+
+
 def status_text(plog: ProcessorLog, status: ProcessorStatus | None = None) -> str:
     """The status in plain lines: verdict, numbers, rules fired, advice (ending with the caution)."""
     status = status or plog.status()
-    when = status.latest_date.isoformat() if status.latest_date else "no strip yet"
     head = "BASELINE IN PROGRESS" if status.baseline_in_progress else VERDICT_WORDS[status.verdict]
-    lines = [f"{plog.processor}: {head} (latest strip {when})"]
+    lines = [f"{plog.processor}: {head} ({latest_words(status)})"]
     if status.levels is not None:
         lv = status.levels
         lines.append(f"  operating levels ({lv.reason}, set {lv.established.isoformat()}): "

@@ -327,3 +327,104 @@ def test_crossover_bad_input_stores_nothing(capsys, tmp_path, extra, setup, mess
     assert code == 1 and message in err, err
     with Archive.open(path, read_only=True) as archive:
         assert archive.list_crossovers() == [] and archive.list_qc_events() == []
+
+
+def _shaded_pixels(png: Path) -> int:
+    """Pixels of the grey that marks the days that set the operating levels (over white)."""
+    import imageio.v3 as iio
+
+    from stripscan.qc_chart import BASELINE_COLOUR, BASELINE_OPACITY
+
+    grey = int(BASELINE_COLOUR[1:3], 16)
+    shade = round(255 + (grey - 255) * BASELINE_OPACITY)  # #808080 at 0.2 over white: #E6E6E6
+    rgb = iio.imread(png)[..., :3].astype(int)
+    return int((np.abs(rgb - shade).max(axis=-1) <= 1).sum())
+
+
+def test_days_after_a_crossover_are_not_shaded_as_setting_the_levels(capsys, tmp_path):
+    """Issue 13, wrong output 1: after a crossover the chart, the monthly report and the window shade only
+    days that really set the operating levels; the crossover's levels were set by no day of December."""
+    path = crossover_archive(tmp_path / "qc.sqlite3")
+    code, _, err = run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}",
+                       "--new", f"lot:{LOT_B}", "--date", DAY, "--archive", path)
+    assert code == 0, err
+    for date in ("2026-12-01", "2026-12-02"):
+        code, _, err = run(capsys, "qc", "add", "--archive", path, "--processor", PROCESSOR, "--date", date,
+                           "--base-fog", "0.21", "--mid-density", "1.29", "--density-difference", "1.78")
+        assert code == 0, err
+    pictures = {}
+    for month in ("2026-11", "2026-12"):
+        pictures[month] = tmp_path / f"{month}.png"
+        code, _, err = run(capsys, "qc", "chart", "--archive", path, "--processor", PROCESSOR, "--month", month,
+                           "-o", pictures[month])
+        assert code == 0, err
+    # November's five baseline days (FDA guidance for MQSA: levels from 5 days) are shaded; December's days,
+    # judged against levels a crossover set, are not, and the legend does not speak of shaded days.
+    # (Thin grid lines come near the shade's grey too; a shaded day column is some 10^5 pixels.)
+    assert _shaded_pixels(pictures["2026-11"]) > 100_000
+    assert _shaded_pixels(pictures["2026-12"]) < 20_000
+    from stripscan.qc_chart import chart_data, legend_entries
+    from stripscan.qc_log import load_processor_log
+
+    with Archive.open(path, read_only=True) as archive:
+        plog = load_processor_log(archive, PROCESSOR)
+    december = chart_data(plog, month="2026-12")
+    assert [p.baseline_dates for p in december.periods] == [()]
+    # The monthly report and the window draw from the same chart data and legend.
+    assert "baseline_days" not in {e.key for e in legend_entries(december)}
+    november = chart_data(plog, month="2026-11")
+    assert november.periods[0].baseline_dates == tuple(datetime.date(2026, 11, d) for d in range(2, 7))
+
+
+def test_a_comparison_says_when_lot_and_processing_day_are_mixed(capsys, tmp_path):
+    """Issue 13, missing 3: when every strip of lot A was processed on other days than lot B's, the lot
+    comparison says the difference may be the processor's, not the film's."""
+    shared = crossover_archive(tmp_path / "shared.sqlite3")  # both lots processed together on 2026-11-20
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", shared)
+    assert code == 0, err
+    assert "lot and processing day are mixed" not in out
+    apart = tmp_path / "apart.sqlite3"
+    with Archive.open(apart) as archive:
+        reference_data(archive)
+        archive.add_snapshots([
+            NewSnapshot(lot, scan_info(f"{lot}-{k}"), hand_strip(k + 1, base_fog=bf, mid=md, dd=dd),
+                        processor=PROCESSOR, processed_on=day)
+            for lot, rows, day in ((LOT_A, OLD, "2026-11-18"), (LOT_B, NEW, "2026-11-20"))
+            for k, (bf, md, dd) in enumerate(rows)])
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", apart)
+    assert code == 0, err
+    # Common practice: films are compared on strips processed together, or the processor's drift is in it.
+    note = [line for line in out.splitlines() if "lot and processing day are mixed" in line]
+    assert len(note) == 1 and "2026-11-18" in note[0] and "2026-11-20" in note[0]
+    assert "may be the processor's" in note[0]
+    code, out, err = run(capsys, "compare", f"lot:{LOT_A}", f"lot:{LOT_B}", "--archive", apart, "--json")
+    assert code == 0, err
+    (pair,) = json.loads(out)["comparisons"]
+    assert any("lot and processing day are mixed" in n for n in pair["notes"])
+
+
+def test_the_window_shades_no_day_after_a_crossover(capsys, tmp_path, qtbot):
+    """Issue 13, wrong output 1, in the window: the QC page shades the baseline days that set the first levels,
+    and no day judged against levels a crossover set."""
+    from PySide6.QtWidgets import QGraphicsRectItem
+
+    from stripscan.gui.qc_panel import QcPanel
+    from stripscan.qc_chart import BASELINE_OPACITY
+
+    path = crossover_archive(tmp_path / "qc.sqlite3")
+    assert run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}", "--new", f"lot:{LOT_B}",
+               "--date", DAY, "--archive", path)[0] == 0
+    for date in ("2026-12-01", "2026-12-02"):
+        assert run(capsys, "qc", "add", "--archive", path, "--processor", PROCESSOR, "--date", date, "--base-fog",
+                   "0.21", "--mid-density", "1.29", "--density-difference", "1.78")[0] == 0
+    panel = QcPanel(path)
+    qtbot.addWidget(panel)
+    panel.resize(1000, 900)
+    panel.show()
+    assert [p.baseline_dates for p in panel.data.periods] == [
+        tuple(datetime.date(2026, 11, d) for d in range(2, 7)), ()]
+    for plot in panel.plots.values():
+        shaded = [item for item in plot.items if isinstance(item, QGraphicsRectItem)
+                  and abs(item.brush().color().alphaF() - BASELINE_OPACITY) < 0.01]
+        assert len(shaded) == 1  # November's five baseline days, one column
+    panel.grab().save(str(tmp_path / "qc-page.png"))

@@ -121,7 +121,7 @@ def test_status_of_every_processor(capsys, baseline):
     data = json.loads(ok(capsys, "qc", "status", "--archive", baseline, "--json"))
     assert [d["processor"] for d in data] == [P, "Darkroom C"]
     assert data[0]["latest"]["verdict"] == "ok"
-    assert data[1]["baseline"] == {"in_progress": True, "days": 1, "needed": 5} and data[1]["operating_levels"] is None
+    assert data[1]["baseline"] == {"in_progress": True, "days": 1, "needed": 5, "set_by": None} and data[1]["operating_levels"] is None
     out = ok(capsys, "qc", "status", "--archive", baseline)
     assert f"{P}: WITHIN LIMITS" in out and "Darkroom C: BASELINE IN PROGRESS" in out
 
@@ -140,6 +140,51 @@ def test_an_event_restarts_the_baseline_and_limits_show(capsys, baseline):
     add(capsys, baseline, 6, 0.18, 1.52, 1.80)
     add(capsys, baseline, 7, 0.18, 1.54, 1.80)
     assert status(capsys, baseline)["operating_levels"]["mid_density"] == pytest.approx(1.52)
+
+
+def test_qc_list_gives_the_verdict_qc_add_and_qc_status_gave(capsys, baseline):
+    """Issue 13, wrong output 5: ``qc list`` and ``qc status`` share one verdict, trend rules included."""
+    said = {}
+    # Density difference falls 0.01 a strip from its level 1.80: each strip alone is within ±0.10, but
+    # five strips in a row, each lower, fire the drift rule (drift of 5, common practice, from memory).
+    for n, dd in zip(range(5, 10), (1.79, 1.78, 1.77, 1.76, 1.75)):
+        out = add(capsys, baseline, n, 0.18, 1.20, dd)
+        said[day(n)] = out.splitlines()[1].split(": ")[1].split(" (")[0]
+        on = json.loads(ok(capsys, "qc", "status", "--archive", baseline, "--processor", P, "--json", "--on", day(n)))
+        assert {"ok": "WITHIN LIMITS", "warning": "WARNING"}[on["latest"]["verdict"]] == said[day(n)]
+    assert said == {day(5): "WITHIN LIMITS", day(6): "WITHIN LIMITS", day(7): "WITHIN LIMITS",
+                    day(8): "WARNING", day(9): "WARNING"}
+    listed = {}
+    for line in ok(capsys, "qc", "list", "--archive", baseline, "--processor", P).splitlines():
+        cells = line.split()
+        if len(cells) > 2 and cells[1] in said:
+            listed[cells[1]] = "WARNING" if "WARNING" in line else "WITHIN LIMITS" if "WITHIN LIMITS" in line else "?"
+    assert listed == said
+
+
+def test_status_words_with_no_strip_and_after_a_complete_baseline(capsys, baseline):
+    """Issue 13, wrong output 8: "(no strip yet)", not "(latest strip no strip yet)"; and the status JSON's
+    baseline counts the strips that set the levels once it is complete, not 0."""
+    data = status(capsys, baseline)
+    # FDA guidance for MQSA: operating levels from the first 5 days.
+    assert data["baseline"] == {"in_progress": False, "days": 5, "needed": 5, "set_by": "baseline"}
+    ok(capsys, "qc", "event", "--archive", baseline, "--processor", "Darkroom C", "--new-processor",
+       "--date", day(0), "--kind", "service")
+    out = ok(capsys, "qc", "status", "--archive", baseline, "--processor", "Darkroom C")
+    assert out.startswith("Darkroom C: BASELINE IN PROGRESS (no strip yet)")
+    assert "latest strip no strip" not in out
+    assert status(capsys, baseline, "Darkroom C")["baseline"] == {"in_progress": True, "days": 0, "needed": 5,
+                                                                  "set_by": None}
+
+
+def test_a_missing_archive_says_how_one_is_made(capsys, tmp_path):
+    """Issue 13, wrong output 8: ``qc add`` on a missing archive file says more than "X does not exist": that
+    --new-processor starts one, or how else an archive is made."""
+    missing = tmp_path / "typo.sqlite3"
+    line = refused(capsys, "qc", "add", "--archive", missing, "--processor", P, "--date", day(0), "--base-fog", 0.18,
+                   "--mid-density", 1.20, "--density-difference", 1.80)
+    assert f"{missing} does not exist" in line and "--new-processor" in line and "archive add" in line
+    assert not missing.exists()  # nothing is made without --new-processor
 
 
 # --------------------------------------------------------------------------

@@ -481,7 +481,7 @@ def test_status_survives_closing_and_reopening_the_archive(tmp_path):
         assert plog.log.days[5].verdict.verdict == "action"  # 21 CFR 900.12(e)(1): +0.16 past ±0.15
         assert plog.log.entries[5].action == "thermostat reset"
     assert before["latest"]["verdict"] == "warning" and before["baseline"] == {"in_progress": True, "days": 1,
-                                                                               "needed": 5}
+                                                                               "needed": 5, "set_by": None}
 
 
 def test_status_json_carries_the_promised_keys(archive):

@@ -32,15 +32,17 @@ from .records import (
     Snapshot,
     SnapshotNote,
     SnapshotSummary,
+    StepReadings,
     TrendPoint,
     calibration_hash,
     snapshots_from_analysis,
 )
-from .store import Archive, default_archive_path
+from .store import Archive, default_archive_path, user_data_folder
 
 __all__ = [
     "Archive",
     "default_archive_path",
+    "user_data_folder",
     "ArchiveError",
     "ArchiveBusyError",
     "ArchiveConflictError",
@@ -62,6 +64,7 @@ __all__ = [
     "SnapshotNote",
     "SnapshotSummary",
     "TrendPoint",
+    "StepReadings",
     "calibration_hash",
     "snapshots_from_analysis",
 ]

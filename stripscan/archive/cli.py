@@ -16,7 +16,8 @@ from pathlib import Path
 from typing import Any
 
 from .. import CAUTION
-from ..figure_table import step_flag
+from ..core.records import warnings_of_strip
+from ..figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -60,7 +61,18 @@ def _open(args: argparse.Namespace, *, create: bool) -> Archive:
     # Reading commands never create a file: a mistyped --archive path must
     # say so rather than show an empty archive.
     path = args.archive if args.archive is not None else default_archive_path()
+    if not create and not Path(path).expanduser().exists():
+        raise ArchiveError(_NO_ARCHIVE.format(path=Path(path).expanduser()))
     return Archive.open(path, create=create)
+
+
+#: What a reading command says when the archive file is not there, and how one is made.
+_NO_ARCHIVE = (
+    "{path} does not exist: there is no archive there yet (check --archive or $STRIPSCAN_ARCHIVE). An archive "
+    "is made by the first command that stores something in it: 'stripscan archive add SCAN --lot ID', or "
+    "'stripscan qc add|event|limits --processor P --new-processor ...' to start a processor's QC log, or "
+    "'stripscan qc demo' for the invented demo"
+)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
@@ -124,11 +136,27 @@ def _cmd_list(args: argparse.Namespace) -> int:
             archive.get_lot(args.lot)  # an unknown lot is a mistake to name, not an empty list
         rows = archive.list_snapshots(args.lot, args.processor, include_retired=args.all,
                                       include_superseded=args.all)
-    table = [[str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
-              *(_number(getattr(r, name)) for name in FIGURES), _status(r, r.superseded_by)] for r in rows]
-    _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in FIGURES), "status"],
-                 table)
-    print(f"{len(rows)} snapshot(s)")
+        readings = archive.step_readings(args.lot, args.processor, at_lot_steps=not args.own_steps,
+                                         include_retired=args.all, include_superseded=args.all)
+    # Mid-density and density difference go with the steps they were read at, so strips read at
+    # different steps are never set side by side unmarked.
+    plain = [n for n in FIGURES if n not in ("mid_density", "density_difference")]
+    table = []
+    for r in rows:
+        qc = readings.get(r.id)
+        md_step = str(qc.mid_step) if qc and qc.mid_step is not None else "-"
+        dd_steps = f"{qc.dd_high_step}-{qc.dd_low_step}" if qc and qc.dd_high_step is not None else "-"
+        table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
+                      *(_number(getattr(r, name)) for name in plain),
+                      _number(qc.mid_density if qc else None), md_step,
+                      _number(qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+    _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
+                  _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
+                  "status"], table)
+    print(f"{len(rows)} snapshot(s); " + (
+        "mid-density and density difference at each strip's own steps" if args.own_steps else
+        "mid-density and density difference at each lot's kept steps (those its first snapshot chose, as the "
+        "trends read them; --own-steps for each strip's own)"))
     return 0
 
 
@@ -165,10 +193,13 @@ def _cmd_show(args: argparse.Namespace) -> int:
     print(f"  mid-density {_number(f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); density "
           f"difference {_number(f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
           f"{f.dd_low_step or '-'})")
-    _print_table(["  step", "log E", "OD", "+/- OD", "flag"],
+    if read_in_direct_mode(s.strip):
+        print(f"  ({NOISE_ONLY_NOTE})")
+    _print_table(["  step", "log E", "OD", uncertainty_title("+/- OD", s.strip), "flag"],
                  [[f"  {st.step}", _number(st.log_exposure, 2), _number(st.od), _number(st.od_sd, 4),
                    step_flag(st, f)] for st in s.strip.steps])
-    for warning in s.warnings:
+    # Only this strip's warnings: the scan's copy of the others' is left out.
+    for warning in warnings_of_strip(s.warnings, s.strip):
         print(f"  ! {warning}")
     if len(chain) > 1:
         print("  revisions: " + " -> ".join(str(c.id) for c in chain))
@@ -263,6 +294,9 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")
     listing.add_argument("--processor", metavar="P", help="only this processor")
     listing.add_argument("--all", action="store_true", help="include retired and revised snapshots")
+    listing.add_argument("--own-steps", action="store_true",
+                         help="mid-density and density difference at the steps each strip chose itself (default: "
+                              "at the lot's kept steps, those its first snapshot chose, as the trends use)")
 
     show = command("show", _cmd_show, "show one snapshot")
     show.add_argument("id", metavar="ID", type=int, help="snapshot number")

@@ -46,6 +46,7 @@ __all__ = [
     "SnapshotNote",
     "LotSummary",
     "TrendPoint",
+    "StepReadings",
     "QcEntry",
     "QcEntryState",
     "qc_entry_states",
@@ -609,6 +610,20 @@ class TrendPoint(NamedTuple):
     value: float
     lot: str
     snapshot_id: int
+
+
+class StepReadings(NamedTuple):
+    """A snapshot's mid-density and density difference with the steps they were read at.
+
+    ``None`` where a step is not known or not usable on the strip (outside
+    the calibrated range or excluded).  Densities OD, steps 1-based.
+    """
+
+    mid_step: int | None
+    mid_density: float | None
+    dd_high_step: int | None
+    dd_low_step: int | None
+    density_difference: float | None
 
 
 def _check_id(value: Any, what: str) -> None:

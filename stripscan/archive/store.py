@@ -56,6 +56,7 @@ from .records import (
     Snapshot,
     SnapshotNote,
     SnapshotSummary,
+    StepReadings,
     TrendPoint,
     calibration_hash,
     calibration_text,
@@ -114,23 +115,37 @@ _REFERENCE: dict[type, tuple[str, str, str]] = {
 }
 
 
-def default_archive_path() -> Path:
-    """Where the archive lives unless a path is given.
+def user_data_folder() -> Path:
+    """The one folder of the user's stripscan data: the default archive and the window's log.
 
-    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise the user's data folder:
-    ``$XDG_DATA_HOME/stripscan/archive.sqlite3`` (``~/.local/share`` when
+    ``$XDG_DATA_HOME/stripscan`` (``~/.local/share/stripscan`` when
     XDG_DATA_HOME is unset or not absolute, as the XDG base directory
     specification asks), or ``%LOCALAPPDATA%\\stripscan`` on Windows.
     """
-    override = os.environ.get("STRIPSCAN_ARCHIVE")
-    if override:
-        return Path(override).expanduser()
     if sys.platform == "win32":
         base = Path(os.environ.get("LOCALAPPDATA") or Path.home() / "AppData" / "Local")
     else:
         xdg = os.environ.get("XDG_DATA_HOME", "")
         base = Path(xdg) if xdg and os.path.isabs(xdg) else Path.home() / ".local" / "share"
-    return base / "stripscan" / "archive.sqlite3"
+    return base / "stripscan"
+
+
+# A step is read only where it was in the calibrated range and not excluded (a join on snapshot_steps
+# aliased {0}, the step number a parameter).
+_USABLE_STEP = ("{0}.snapshot_id = s.id AND {0}.step = ? AND {0}.in_range = 1 AND {0}.excluded = 0 "
+                "AND {0}.od IS NOT NULL")
+
+
+def default_archive_path() -> Path:
+    """Where the archive lives unless a path is given.
+
+    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise ``archive.sqlite3`` in
+    :func:`user_data_folder` (``~/.local/share/stripscan/archive.sqlite3``).
+    """
+    override = os.environ.get("STRIPSCAN_ARCHIVE")
+    if override:
+        return Path(override).expanduser()
+    return user_data_folder() / "archive.sqlite3"
 
 
 def _marked_read_only(path: Path) -> bool:
@@ -774,12 +789,55 @@ class Archive:
             f"ORDER BY {_DAY}, s.id LIMIT 1", (lot,))
         return tuple(int(step) for step in rows[0]) if rows else None  # type: ignore[return-value]
 
+    def step_readings(self, lot: str | None = None, processor: str | None = None, *, at_lot_steps: bool = True,
+                      include_retired: bool = False, include_superseded: bool = False) -> dict[int, StepReadings]:
+        """Mid-density and density difference of each listed snapshot, with the steps read, by snapshot id.
+
+        Parameters
+        ----------
+        lot, processor : str, optional
+            As :meth:`list_snapshots`, which lists the same snapshots.
+        at_lot_steps : bool
+            True: read every strip of a lot at the lot's kept steps
+            (:meth:`lot_qc_steps`, as :meth:`trend` does), so that a lot's
+            strips compare; False: each strip at the steps it chose itself.
+        include_retired, include_superseded : bool
+            As :meth:`list_snapshots`.
+        """
+        where, params = self._filters(lot=[lot] if lot is not None else None, processor=processor,
+                                      include_retired=include_retired, include_superseded=include_superseded)
+        if not at_lot_steps:
+            own = "json_extract(d.strip_json, '$.metrics.{}')"
+            rows = self._query(
+                f"SELECT s.id, {own.format('mid_density_step')}, s.mid_density, {own.format('dd_high_step')}, "
+                f"{own.format('dd_low_step')}, s.density_difference FROM snapshots s "
+                f"JOIN snapshot_data d ON d.snapshot_id = s.id LEFT JOIN snapshots n ON n.revises = s.id{where}",
+                params)
+            return {row[0]: StepReadings(*row[1:]) for row in rows}
+        out: dict[int, StepReadings] = {}
+        lots = [row[0] for row in self._query(
+            f"SELECT DISTINCT s.lot_id FROM snapshots s LEFT JOIN snapshots n ON n.revises = s.id{where}", params)]
+        for name in lots:
+            steps = self.lot_qc_steps(name)
+            lot_where = where + (" AND " if where else " WHERE ") + "s.lot_id = ?"
+            if steps is None:
+                rows = self._query(f"SELECT s.id FROM snapshots s LEFT JOIN snapshots n ON n.revises = s.id"
+                                   f"{lot_where}", [*params, name])
+                out.update({row[0]: StepReadings(None, None, None, None, None) for row in rows})
+                continue
+            joins = " ".join(f"LEFT JOIN snapshot_steps {t} ON {_USABLE_STEP.format(t)}" for t in "abc")
+            rows = self._query(f"SELECT s.id, a.od, b.od, c.od FROM snapshots s {joins} "
+                               f"LEFT JOIN snapshots n ON n.revises = s.id{lot_where}", [*steps, *params, name])
+            for sid, mid, high, low in rows:
+                dd = high - low if high is not None and low is not None else None
+                out[sid] = StepReadings(steps[0], mid, steps[1], steps[2], dd)
+        return out
+
     def _trend_at_fixed_steps(self, figure: str, lots: Sequence[str] | None, *, processor: str | None,
                               include_retired: bool) -> list[TrendPoint]:
         if lots is None:
             lots = [row[0] for row in self._query("SELECT DISTINCT lot_id FROM snapshots ORDER BY lot_id")]
-        # A step is read only where it was in the calibrated range and not excluded.
-        usable = "{0}.snapshot_id = s.id AND {0}.step = ? AND {0}.in_range = 1 AND {0}.excluded = 0 AND {0}.od IS NOT NULL"
+        usable = _USABLE_STEP
         points: list[TrendPoint] = []
         for lot in lots:
             steps = self.lot_qc_steps(lot)

@@ -57,6 +57,7 @@ from .records import StripResult, clean_float
 
 __all__ = [
     "CompareError",
+    "processing_days_note",
     "FIGURES",
     "FIGURE_INFO",
     "VERDICTS",
@@ -374,12 +375,16 @@ class StripSet:
         (default ``"strip <index>"``).
     source : str
         Where the strips came from, in plain words.
+    processed_on : tuple of str or None
+        Day each strip was processed (``YYYY-MM-DD``), when known; empty
+        when no day is known for any strip.
     """
 
     name: str
     strips: tuple[StripResult, ...]
     labels: tuple[str, ...] = ()
     source: str = ""
+    processed_on: tuple[str | None, ...] = ()
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "strips", tuple(self.strips))
@@ -387,15 +392,42 @@ class StripSet:
         if len(labels) != len(self.strips):
             raise ValueError(f"set {self.name!r}: {len(labels)} labels for {len(self.strips)} strips")
         object.__setattr__(self, "labels", labels)
+        days = tuple(self.processed_on)
+        if days and len(days) != len(self.strips):
+            raise ValueError(f"set {self.name!r}: {len(days)} processing days for {len(self.strips)} strips")
+        object.__setattr__(self, "processed_on", days)
 
     def to_dict(self) -> dict[str, Any]:
         return {"name": self.name, "source": self.source, "labels": list(self.labels),
-                "strips": [s.to_dict() for s in self.strips]}
+                "strips": [s.to_dict() for s in self.strips], "processed_on": list(self.processed_on)}
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any]) -> "StripSet":
         return cls(data["name"], tuple(StripResult.from_dict(s) for s in data["strips"]),
-                   tuple(data.get("labels", ())), data.get("source", ""))
+                   tuple(data.get("labels", ())), data.get("source", ""), tuple(data.get("processed_on", ())))
+
+
+def processing_days_note(a: StripSet, b: StripSet) -> str | None:
+    """A warning when lot and processing day are mixed: no strip of A shares a processing day with B's.
+
+    Two films are compared fairly only when their strips went through the
+    processor together (common practice): otherwise the processor's own
+    change from day to day is in the difference.  Said only when the day
+    of every strip of both sets is known.
+
+    Returns
+    -------
+    str or None
+        The warning, or None when the sets share a day or a day is unknown.
+    """
+    days_a, days_b = set(a.processed_on), set(b.processed_on)
+    if not a.processed_on or not b.processed_on or None in days_a | days_b or days_a & days_b:
+        return None
+    listed = {s.name: ", ".join(sorted(d for d in days if d)) for s, days in ((a, days_a), (b, days_b))}
+    return (f"lot and processing day are mixed: every strip of {a.name!r} was processed on {listed[a.name]}, "
+            f"every strip of {b.name!r} on {listed[b.name]}, never on the same day; the difference may be the "
+            "processor's (its change from day to day), not the film's. Process strips of both films together "
+            "on the same day to compare the films")
 
 
 def mean_step_densities(strips: Sequence[StripResult]) -> np.ndarray:
@@ -954,6 +986,9 @@ def compare_sets(
             a.figures["relative_speed_percent"], b.figures["relative_speed_percent"], by_figure["speed_log_exposure"])
         rows = [by_figure[f] for f in FIGURES]
         pair_notes = [*general, *per_set[0], *per_set[k]]
+        mixed = processing_days_note(sets[0], sets[k])
+        if mixed is not None:
+            pair_notes.insert(0, mixed)
         if min(a.n, b.n) == 1:
             pair_notes.append(
                 f"set {(a if a.n == 1 else b).name!r} has a single strip: no interval and no verdict against "

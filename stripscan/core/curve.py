@@ -71,8 +71,9 @@ class FigureSettings:
     dd_high_target, dd_low_target : float
         Gross densities for the density difference steps (common practice: 2.20, 0.45).
     dd_rule : {"closest", "bounded"}
-        ``closest``: steps closest to the targets; ``bounded``: the densest
-        step not above the high target and the lightest not below the low one.
+        ``closest``: steps closest to the targets; ``bounded``: the high step
+        closest to the high target, the low step the lightest not below the
+        low target (from memory).
     reference_speed_log_exposure : float or None
         Speed point of a reference film; gives relative speed in percent.
     """

@@ -36,6 +36,7 @@ __all__ = [
     "locate_in_scan",
     "geometry_from_outline",
     "with_step_count",
+    "given_count_notes",
     "working_factor",
 ]
 
@@ -217,6 +218,39 @@ def _choose_count(visible: int, room: float, fixed: int | None) -> tuple[int, li
     return count, notes
 
 
+def given_count_notes(n_steps: int, *, visible: int, room: float, pitch_mm: float) -> list[str]:
+    """Warnings when a step count given by hand disagrees with the film: a wrong ``--steps`` reads nonsense.
+
+    Steps are numbered from the dense end at the measured pitch, so a count
+    smaller than the film holds reads only its densest steps as if they were
+    a whole strip (step 1 is then far from the least exposed step).  A larger
+    count is already reported as not fitting on the film.
+
+    Parameters
+    ----------
+    n_steps : int
+        The count given.
+    visible : int
+        Steps whose edges stand out along the film, counted from the dense end.
+    room : float
+        How many steps of the measured pitch fit between the dense end and
+        the film's light end.
+    pitch_mm : float
+        The measured step pitch, mm.
+    """
+    # More distinct edges than steps given is sure; the room alone is not, since unexposed film often
+    # runs on past step 1 (a few steps' worth): only a film with room for far more steps counts.
+    if visible <= n_steps and room <= 1.4 * n_steps + 1.0:
+        return []
+    holds = int(round(room))
+    return [
+        f"{n_steps} steps were given, but the film has room for about {holds} steps of the measured pitch "
+        f"({pitch_mm:.1f} mm; {visible} of them show distinct edges): only the {n_steps} densest are read and "
+        "numbered from 1, so step 1 is not the least exposed step and every log E is shifted; check the step "
+        "count (--steps), or leave it out to count the steps"
+    ]
+
+
 def _piece_geometry(
     dens: np.ndarray,
     coords: tuple[np.ndarray, np.ndarray],
@@ -321,6 +355,8 @@ def _piece_geometry(
         raise ValueError("fewer than three distinct steps along the film")
     n_steps, count_notes = _choose_count(visible, room, opts.n_steps)
     notes += count_notes
+    if opts.n_steps is not None:
+        notes += given_count_notes(opts.n_steps, visible=visible, room=room, pitch_mm=pitch * pixel_mm)
     start = end - n_steps * pitch
     if start < u_lo - 0.5 * pitch:
         notes.append(

@@ -26,6 +26,7 @@ from .calibration import (
     fit_calibration,
     flat_field,
 )
+from .checks import reading_notes
 from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
 from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
 from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
@@ -400,7 +401,9 @@ def strip_result(
     for k, reading in enumerate(readings):
         value, ok, correction_sd, share, reason = read_density(mapping, reading, pixel_mm)
         if reading.saturated_fraction > MAX_SATURATED:
-            ok, reason = False, "saturated"
+            # Clipped at one end of the codes: a dense step crushed to the bottom code is
+            # not the scanner saturating, and the advice differs (mid-scale splits the ends).
+            ok, reason = False, "saturated" if reading.signal >= 0.5 else "dark_floor"
         if reason == "not_read":
             sd = float("nan")
         else:
@@ -460,6 +463,7 @@ def strip_result(
         beyond_range_denser=densest_unusable,
     )
     warnings += list(figures.notes)
+    warnings += reading_notes(steps, figures)  # a wrong step count or unreached targets, never silent
     return StripResult(
         index=index,
         geometry=geometry,
@@ -473,10 +477,10 @@ def strip_result(
 def _flag_warnings(flagged: dict[str, list[int]], calibration: Calibration | None) -> list[str]:
     """One warning per reason, naming its steps."""
     words = {
-        "saturated": "the scanner saturates",
+        "saturated": "the scanner saturates (the signal is clipped at full scale)",
         "too_noisy": f"reading noise too high to be within ±{ACCURACY_GOAL:.2f} OD",
         "stray_light": f"stray light from the surroundings too large to correct within ±{ACCURACY_GOAL:.2f} OD",
-        "dark_floor": "at the scanner's dark floor",
+        "dark_floor": "at the scanner's dark floor (too dense to read: the signal is clipped at the bottom code)",
         "flare_plateau": (
             "the density no longer rises as the exposure step predicts (the scanner's flare plateau, or the "
             "film's shoulder: without a calibration they cannot be told apart); not used, and not taken as Dmax"

@@ -455,15 +455,23 @@ class DayVerdict(_Record):
         control limit).
     reasons : tuple of str
         One plain sentence per quantity past a tier.
+    rules : tuple of str
+        ``"rule:quantity"`` for each trend rule that fired on this day's
+        strip.  A day judged within its period (:attr:`QCLog.days`) carries
+        them, and its ``verdict`` is then at least ``"warning"``: the one
+        verdict the status, the list, the chart and the reports show.
+        :func:`evaluate_day` alone judges the strip only and leaves it empty.
     """
 
     deviations: QCValues
     verdict: str
     reasons: tuple[str, ...] = ()
+    rules: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         _check_choice("verdict", self.verdict, VERDICTS)
         _set(self, "reasons", tuple(self.reasons))
+        _set(self, "rules", tuple(self.rules))
 
 
 @dataclass(frozen=True)
@@ -567,6 +575,19 @@ class LevelPeriod(_Record):
     def baseline_in_progress(self) -> bool:
         return self.levels is None
 
+    @property
+    def setting_days(self) -> tuple[QCDay, ...]:
+        """The days whose strips set the period's operating levels, oldest first.
+
+        The first ``n_days`` strips of a baseline; none when the levels came
+        with the event that opened the period (a crossover moves the levels
+        by the films' difference: no day of this period set them), and none
+        while the baseline is in progress.
+        """
+        if self.levels is None or (self.event is not None and self.event.levels is not None):
+            return ()
+        return self.days[: self.n_days]
+
 
 @dataclass(frozen=True)
 class ProcessorStatus(_Record):
@@ -657,16 +678,14 @@ def closest_step(densities: Sequence[float], target: float) -> int:
     return int(np.argmin(distance)) + 1
 
 
-def _bounded_step(d: np.ndarray, target: float, *, densest_below: bool) -> int:
+def _lightest_not_below(d: np.ndarray, target: float) -> int:
+    """1-based step of the lowest density at or above ``target`` (closest to it but not less)."""
     rounded = np.round(d, _DIGITS)
     with np.errstate(invalid="ignore"):
-        allowed = rounded <= target + _TOL if densest_below else rounded >= target - _TOL
+        allowed = rounded >= target - _TOL
     if not allowed.any():
-        side = "at or below" if densest_below else "at or above"
-        raise ValueError(f"no step has a density {side} {target:g}")
-    # argmax/argmin keep the first, i.e. lower, step on ties.
-    if densest_below:
-        return int(np.argmax(np.where(allowed, rounded, -np.inf))) + 1
+        raise ValueError(f"no step has a density at or above {target:g}")
+    # argmin keeps the first, i.e. lower, step on ties.
     return int(np.argmin(np.where(allowed, rounded, np.inf))) + 1
 
 
@@ -691,9 +710,11 @@ def choose_qc_steps(
         Density-difference targets, OD gross.
     rule : {"closest", "bounded"}
         ``"closest"``: the steps closest to each target.  ``"bounded"`` (used
-        by some procedures): the densest step not above ``dd_high_target``
-        and the lightest not below ``dd_low_target``.  The mid-density step
-        is always the closest to ``mid_target``.
+        by some procedures; from memory, no published manual checked): the
+        high step is still the closest to ``dd_high_target``, and only the
+        low step is bounded: the lightest step not below ``dd_low_target``
+        (closest to it but not less).  The mid-density step is always the
+        closest to ``mid_target``.
 
     Returns
     -------
@@ -714,11 +735,11 @@ def choose_qc_steps(
     if np.isinf(d).any():
         raise ValueError(f"density of step {int(np.flatnonzero(np.isinf(d))[0]) + 1} is infinite")
     mid = closest_step(d, mid_target)
+    high = closest_step(d, dd_high_target)
     if rule == "closest":
-        high, low = closest_step(d, dd_high_target), closest_step(d, dd_low_target)
+        low = closest_step(d, dd_low_target)
     else:
-        high = _bounded_step(d, dd_high_target, densest_below=True)
-        low = _bounded_step(d, dd_low_target, densest_below=False)
+        low = _lightest_not_below(d, dd_low_target)
     if high <= low:
         raise ValueError(
             f"cannot form a density difference: high step {high} (OD {d[high - 1]:.3f}) is not "
@@ -983,6 +1004,61 @@ def apply_trend_rules(
     return tuple(findings)
 
 
+def _ending_streak(flags: Sequence[bool]) -> list[int]:
+    """Length of the stretch of True that ends at each index (0 where False)."""
+    lengths, count = [], 0
+    for flag in flags:
+        count = count + 1 if flag else 0
+        lengths.append(count)
+    return lengths
+
+
+def _fires_on(rule: str, devs: Sequence[float], side: int, rules: TrendRules, warning: float | None) -> list[bool]:
+    """Whether ``rule`` fires on each strip over the strips up to it, as the status said on its day.
+
+    The same arithmetic as :func:`_rule_spans` seen from each strip's day: a
+    run or drift that has reached its length on this strip, or this strip
+    past the warning tier with enough others in its window.  The first strips
+    of a run are therefore not warnings after the fact.
+    """
+    if rule == "run":
+        return [n >= rules.run_length for n in _ending_streak([_side(d) == side for d in devs])]
+    if rule == "drift":
+        moves = [False] + [_side(devs[i] - devs[i - 1]) == side for i in range(1, len(devs))]
+        # n moves in a row cover n + 1 strips.
+        return [n > 0 and n + 1 >= rules.drift_length for n in _ending_streak(moves)]
+    if warning is None:
+        return [False] * len(devs)
+    flagged = [_beyond(side * d, warning) for d in devs]
+    window = rules.warning_window
+    return [flag and sum(flagged[max(0, i - window + 1): i + 1]) >= rules.warning_count
+            for i, flag in enumerate(flagged)]
+
+
+def _fired_each_day(
+    history: Sequence[QCEntry], levels: OperatingLevels, rules: TrendRules, limits: QCLimits
+) -> list[tuple[str, ...]]:
+    """``"rule:quantity"`` of the trend rules that fire on each strip (see :func:`_fires_on`)."""
+    all_devs = [_deviations(e.values, levels) for e in history]
+    fired: list[list[str]] = [[] for _ in history]
+    for rule in rules.rules:
+        for q in rules.quantities:
+            devs = [getattr(d, q) for d in all_devs]
+            warning = limits.base_fog_warning if q == "base_fog" else limits.md_dd_warning
+            for side in (1,) if q == "base_fog" else (1, -1):
+                for i, fires in enumerate(_fires_on(rule, devs, side, rules, warning)):
+                    if fires and f"{rule}:{q}" not in fired[i]:
+                        fired[i].append(f"{rule}:{q}")
+    return [tuple(f) for f in fired]
+
+
+def _with_trends(verdict: DayVerdict, fired: tuple[str, ...]) -> DayVerdict:
+    """A strip's verdict raised by the trend rules that fired on its day: at least a warning, rules named."""
+    if not fired:
+        return verdict
+    return dataclasses.replace(verdict, verdict=_worse(verdict.verdict, "warning"), rules=fired)
+
+
 # --------------------------------------------------------------------------
 # The log
 
@@ -1048,8 +1124,10 @@ class QCLog(_Record):
             levels = None
         if levels is None:
             return LevelPeriod(event, None, self.n_days, tuple(QCDay(e, None) for e in entries))
-        days = tuple(QCDay(e, evaluate_day(e.values, levels, self.limits)) for e in entries)
         findings = apply_trend_rules(entries, levels, self.rules, limits=self.limits)
+        fired = _fired_each_day(entries, levels, self.rules, self.limits)
+        days = tuple(QCDay(e, _with_trends(evaluate_day(e.values, levels, self.limits), f))
+                     for e, f in zip(entries, fired))
         return LevelPeriod(event, levels, self.n_days, days, findings)
 
     @cached_property
@@ -1143,11 +1221,12 @@ class QCLog(_Record):
                 **common, deviations=None, verdict="warning", rules_fired=(),
                 advice=" ".join([headline, CAUTION]), levels=period.levels,
             )
-        fired = tuple(f for f in period.findings if latest.entry.date in f.dates)
+        fired = tuple(f for f in period.findings
+                      if latest.entry.date in f.dates and f"{f.rule}:{f.quantity}" in latest.verdict.rules)
+        # The day's verdict already counts the trend rules (computed once, in _period);
+        # a warning's tier reasons say whether the strip itself was past the warning tier.
         verdict = latest.verdict.verdict
-        if fired:
-            verdict = _worse(verdict, "warning")
-        headline = self._warning_advice(latest.verdict.verdict == "warning", fired) if verdict == "warning" \
+        headline = self._warning_advice(bool(latest.verdict.reasons), fired) if verdict == "warning" \
             else ADVICE[verdict]
         advice = [headline, *latest.verdict.reasons, *(f.message for f in fired), *extra, CAUTION]
         return ProcessorStatus(

@@ -18,8 +18,9 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import re
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Sequence
 
 __all__ = [
     "ScanInfo",
@@ -32,6 +33,7 @@ __all__ = [
     "Analysis",
     "to_dict",
     "clean_float",
+    "warnings_of_strip",
 ]
 
 
@@ -508,3 +510,33 @@ class Analysis:
             program_version=data.get("program_version", ""),
             settings=dict(data.get("settings", {})),
         )
+
+
+def warnings_of_strip(scan_warnings: Sequence[str], strip: StripResult) -> list[str]:
+    """One strip's warnings out of a whole scan's: the scan-wide ones and the strip's own, once each.
+
+    A scan's warnings repeat each strip's as ``"strip N: ..."``
+    (:func:`stripscan.core.pipeline.analyze_loaded`); those of other strips
+    are left out and this strip's lose the prefix.
+
+    Parameters
+    ----------
+    scan_warnings : sequence of str
+        :attr:`Analysis.warnings` (or a snapshot's stored copy of them).
+    strip : StripResult
+
+    Returns
+    -------
+    list of str
+        Scan-wide warnings first, then the strip's own, without repeats.
+    """
+    prefix = f"strip {strip.index}: "
+    out: list[str] = []
+    for text in (*scan_warnings, *strip.warnings):
+        if re.match(r"strip \d+: ", text):
+            if not text.startswith(prefix):
+                continue  # another strip's warning
+            text = text[len(prefix):]
+        if text not in out:
+            out.append(text)
+    return out

@@ -35,7 +35,7 @@ from PySide6.QtWidgets import (
 )
 
 from .. import CAUTION
-from ..archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary
+from ..archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary, StepReadings
 from ..core.records import Analysis
 from ..core.curve import strip_curve
 from ..curve_marks import CURVE_MARKS
@@ -44,7 +44,7 @@ from .errors import report_error
 from .figures_panel import VALUE_ROLE
 from .save_snapshot_dialog import CalibrationLike, SaveSnapshotDialog
 from .style import strip_colour
-from .tables import STEP_COLUMNS, figure_rows, step_rows
+from .tables import STEP_COLUMNS, figure_rows, step_columns, step_rows
 from .tasks import TaskRunner
 from .trend_view import TrendView
 
@@ -56,9 +56,10 @@ ID_ROLE = Qt.ItemDataRole.UserRole + 2
 # (title, SnapshotSummary field, digits) of the snapshot list.
 _SUMMARY_COLUMNS: tuple[tuple[str, str, int], ...] = (
     ("Base+fog", "base_fog", 3), ("Speed", "speed_log_exposure", 3),
-    ("Avg. grad.", "average_gradient", 2), ("Mid-dens.", "mid_density", 3),
-    ("Dens. diff.", "density_difference", 3),
+    ("Avg. grad.", "average_gradient", 2),
 )
+#: Mid-density and density difference go with the steps they were read at (Archive.step_readings).
+_STEP_READING_COLUMNS = ("Mid-dens.", "MD step", "Dens. diff.", "DD steps")
 
 
 @dataclass(frozen=True)
@@ -319,8 +320,9 @@ class SnapshotView(QWidget):
         levels = (f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)) if f else (0.25, 2.0)
         _fill(self.figures, [[_cell(r.label, r.key), _cell(r.text, r.value, right=True), _cell(r.unit or "—")]
                              for r in figure_rows(f, levels)])
-        _fill(self.steps, [[_cell(c, right=k in (1, 2, 3)) for k, c in enumerate(row)]
-                           for row in step_rows(snapshot.strip if snapshot else None)])
+        strip = snapshot.strip if snapshot else None
+        self.steps.setHorizontalHeaderLabels(list(step_columns(strip)))  # "noise only" when read uncalibrated
+        _fill(self.steps, [[_cell(c, right=k in (1, 2, 3)) for k, c in enumerate(row)] for row in step_rows(strip)])
         _fill(self.provenance, [[_cell(k), _cell(v)] for k, v in (provenance_rows(record) if record else [])])
         self.provenance.resizeRowsToContents()
         self._show_history(record)
@@ -412,8 +414,14 @@ class ArchivePanel(QWidget):
         self.show_all = QCheckBox("Also corrected and retired")
         self.show_all.setToolTip("List snapshots that a revision corrects or that were retired, too")
         self.show_all.toggled.connect(self._fill_snapshots)
+        self.own_steps = QCheckBox("Each strip's own steps")
+        self.own_steps.setToolTip(
+            "Mid-density and density difference at the steps each strip chose for itself. Unticked, every strip "
+            "of the lot is read at the lot's kept steps (those its first snapshot chose), as the trends are, so "
+            "that its strips compare")
+        self.own_steps.toggled.connect(self._fill_snapshots)
         self.snapshot_table = _table(["No.", "Date", "Strip", "Operator", *(t for t, _, _ in _SUMMARY_COLUMNS),
-                                      "Status"])
+                                      *_STEP_READING_COLUMNS, "Status"])
         self.snapshot_table.cellDoubleClicked.connect(lambda row, _col: self.open_selected())
         self.open_button = QPushButton("Open the snapshot")
         self.open_button.clicked.connect(self.open_selected)
@@ -430,6 +438,7 @@ class ArchivePanel(QWidget):
         head.addWidget(self.refresh_button)
         listing = QHBoxLayout()
         listing.addWidget(self.snapshot_title, 1)
+        listing.addWidget(self.own_steps)
         listing.addWidget(self.show_all)
         left = QWidget()
         left_layout = QVBoxLayout(left)
@@ -512,11 +521,14 @@ class ArchivePanel(QWidget):
     def _fill_snapshots(self, *_: object) -> None:
         lot = self.selected_lot()
         self.snapshots = []
+        readings: dict[int, StepReadings] = {}
         if lot is not None and self.archive_path is not None and self.archive_path.is_file():
             every = self.show_all.isChecked()
             try:
                 with Archive.open(self.archive_path, read_only=True) as archive:
                     self.snapshots = archive.list_snapshots(lot, include_retired=every, include_superseded=every)
+                    readings = archive.step_readings(lot, at_lot_steps=not self.own_steps.isChecked(),
+                                                     include_retired=every, include_superseded=every)
             except Exception as exc:  # shown, never fatal
                 report_error(self, f"The snapshots of lot {lot} could not be read", exc)
         rows = []
@@ -525,6 +537,12 @@ class ArchivePanel(QWidget):
                      _cell(_or_dash(s.operator))]
             cells += [_cell(_number(getattr(s, name), digits), getattr(s, name), right=True)
                       for _, name, digits in _SUMMARY_COLUMNS]
+            qc = readings.get(s.id, StepReadings(None, None, None, None, None))
+            dd_steps = f"{qc.dd_high_step}−{qc.dd_low_step}" if qc.dd_high_step is not None else "—"
+            cells += [_cell(_number(qc.mid_density, 3), qc.mid_density, right=True),
+                      _cell(_or_dash(qc.mid_step), qc.mid_step, right=True),
+                      _cell(_number(qc.density_difference, 3), qc.density_difference, right=True),
+                      _cell(dd_steps, right=True)]
             cells.append(_cell(status_text(s, s.superseded_by)))
             if not s.current:
                 for cell in cells:

@@ -11,8 +11,10 @@ from pathlib import Path
 from types import TracebackType
 from typing import Callable
 
-from PySide6.QtCore import QStandardPaths, Qt
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication, QMessageBox, QWidget
+
+from ..archive import user_data_folder
 
 __all__ = ["LOG_FILE_NAME", "default_log_dir", "setup_logging", "log_file", "show_message", "report_error",
            "install_excepthook", "excepthook_guard"]
@@ -24,12 +26,15 @@ _handler: logging.Handler | None = None
 
 
 def default_log_dir() -> Path:
-    """``$STRIPSCAN_LOG_DIR``, else the platform's per-user data folder."""
+    """``$STRIPSCAN_LOG_DIR``, else ``logs`` beside the default archive, in the one user data folder.
+
+    (``~/.local/share/stripscan/logs`` on Linux: see
+    :func:`stripscan.archive.user_data_folder`.)
+    """
     env = os.environ.get("STRIPSCAN_LOG_DIR")
     if env:
         return Path(env)
-    place = QStandardPaths.writableLocation(QStandardPaths.StandardLocation.AppLocalDataLocation)
-    return Path(place or Path.home() / ".stripscan") / "logs"
+    return user_data_folder() / "logs"
 
 
 def setup_logging(folder: str | os.PathLike[str] | None = None) -> Path:

@@ -28,8 +28,9 @@ from PySide6.QtWidgets import (
 
 from ..core.curve import FigureSettings
 from ..core.records import StripResult
+from ..figure_table import NOISE_ONLY_NOTE, read_in_direct_mode
 from .session import Session
-from .tables import STEP_COLUMNS, figure_rows, step_rows, step_table_text
+from .tables import STEP_COLUMNS, figure_rows, step_columns, step_rows, step_table_text
 from .style import caution_label, notes_label
 
 __all__ = ["FiguresPanel", "StepTable", "VALUE_ROLE"]
@@ -188,6 +189,10 @@ class StepTable(QWidget):
     def refresh(self, *_: object) -> None:
         result = self.session.result()
         rows = step_rows(result)
+        # Read without a calibration, the uncertainty column holds the reading noise only: its title says so.
+        self.table.setHorizontalHeaderLabels(list(step_columns(result)))
+        column = STEP_COLUMNS.index("Uncertainty (OD)")
+        self.table.horizontalHeaderItem(column).setToolTip(NOISE_ONLY_NOTE if read_in_direct_mode(result) else "")
         self._filling = True
         try:
             self.table.setRowCount(len(rows))

@@ -87,6 +87,7 @@ from ..qc_log import (
     QcSetup,
     add_day,
     correct_entry,
+    latest_words,
     load_processor_log,
     status_text,
 )
@@ -763,12 +764,12 @@ class QcPanel(QWidget):
             head, colour, glyph = VERDICT_WORDS[status.verdict], MARKS[status.verdict][0], _GLYPHS[status.verdict]
         lines = status_text(plog, status).splitlines()
         body = "<br>".join(html.escape(line.strip()) for line in lines[1:])
-        when = f"latest strip {status.latest_date.isoformat()}" if status.latest_date else "no strip yet"
+        when = latest_words(status)
         film = plog.setup.extra.get(FILM_TYPE_KEY)
         if film:
-            when += f"; QC film {film}"
+            when += f"; QC film {html.escape(film)}"
         return (f"<b style='color:{colour}; font-size:13pt'>{glyph} {html.escape(plog.processor)}: {head}</b> "
-                f"<span>({html.escape(when)})</span><br>{body}")
+                f"<span>({when})</span><br>{body}")
 
     # ------------------------------------------------------------ drawing
 

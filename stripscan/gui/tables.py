@@ -15,9 +15,9 @@ import io
 
 from .. import figure_table
 from ..core.records import CurveFigures, StripResult
-from ..figure_table import FIGURE_KEYS, NO_VALUE, FigureRow, format_value, step_flag
+from ..figure_table import FIGURE_KEYS, NO_VALUE, FigureRow, format_value, step_flag, uncertainty_title
 
-__all__ = ["FigureRow", "figure_rows", "STEP_COLUMNS", "step_rows", "step_table_text"]
+__all__ = ["FigureRow", "figure_rows", "STEP_COLUMNS", "step_columns", "step_rows", "step_table_text"]
 
 
 def figure_rows(figures: CurveFigures | None, levels: tuple[float, float]) -> list[FigureRow]:
@@ -45,6 +45,11 @@ def figure_rows(figures: CurveFigures | None, levels: tuple[float, float]) -> li
 STEP_COLUMNS = ("Step", "Log E", "OD", "Uncertainty (OD)", "Flag")
 
 
+def step_columns(result: StripResult | None) -> tuple[str, ...]:
+    """:data:`STEP_COLUMNS`, the uncertainty's title saying "noise only" for a strip read in direct mode."""
+    return tuple(uncertainty_title(c, result) if c.startswith("Uncertainty") else c for c in STEP_COLUMNS)
+
+
 def _number(value: float) -> str:
     return format_value(value, 3, missing=NO_VALUE)
 
@@ -61,6 +66,6 @@ def step_table_text(result: StripResult | None, *, delimiter: str = "\t") -> str
     """The step table with its header, tab-separated (clipboard) or as CSV (``delimiter=","``)."""
     out = io.StringIO()
     writer = csv.writer(out, delimiter=delimiter, lineterminator="\n")
-    writer.writerow(STEP_COLUMNS)
+    writer.writerow(step_columns(result))
     writer.writerows(step_rows(result))
     return out.getvalue()

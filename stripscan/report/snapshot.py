@@ -23,9 +23,9 @@ from typing import TYPE_CHECKING, Any, Sequence
 import numpy as np
 
 from ..core.curve import CharacteristicCurve
-from ..core.records import Analysis, ScanInfo, StripResult
+from ..core.records import Analysis, ScanInfo, StripResult, warnings_of_strip
 from ..curve_marks import CURVE_MARKS as MARK
-from ..figure_table import figure_rows, format_value, step_flag
+from ..figure_table import NOISE_ONLY_NOTE, figure_rows, format_value, read_in_direct_mode, step_flag
 from .canvas import Canvas, Column, draw_frame, write_pdf
 from .plot import COLOURS, Line, Plot, Points, RefLine
 from .provenance import calibration_lines, is_uncalibrated, valid_range, when
@@ -108,12 +108,7 @@ class StripReport:
             out.append("The calibration of these densities is not recorded.")
         if self.context.status and self.context.status != "current":
             out.append(f"This snapshot is {self.context.status}.")
-        prefix = f"strip {self.strip.index}: "
-        for text in (*self.warnings, *self.strip.warnings, *self.strip.figures.notes):
-            if text.startswith("strip "):
-                if not text.startswith(prefix):
-                    continue  # another strip's warning
-                text = text[len(prefix):]
+        for text in (*warnings_of_strip(self.warnings, self.strip), *self.strip.figures.notes):
             if text not in out:
                 out.append(text)
         out += [f"Note: {note}" for note in self.context.notes]
@@ -389,6 +384,15 @@ _FIGURE_COLUMNS = (Column("Figure", 29), Column("Value", 21, "right"), Column("U
                    Column("Definition", 96))
 _STEP_NOTE = ("OD gross, incl. base+fog; \u00b1 sd standard uncertainty; not used: outside the calibrated "
               "range, saturated or too noisy")
+
+
+def _step_note(report: StripReport) -> str:
+    """The note under the step table; read without a calibration, its ± sd is the reading noise only."""
+    if not read_in_direct_mode(report.strip):
+        return _STEP_NOTE
+    return _STEP_NOTE.replace("\u00b1 sd standard uncertainty", f"\u00b1 sd {NOISE_ONLY_NOTE}")
+
+
 #: Preferred and least height of the curve beside the step table, mm.
 _BAND, _LEAST_BAND = 84.0, 52.0
 #: Room kept for flags and warnings: their heading and a few lines, mm.
@@ -409,7 +413,7 @@ def _draw_page(report: StripReport, canvas: Canvas) -> None:
     # Measure first, so that a long header block takes its room from the curve, never from the flags.
     section = _section(c, 0.0, "x", draw=False)
     fixed = (_identity(report, c, top, draw=False) + 2.0 + 4 * section
-             + c.text_height(table_w, _STEP_NOTE, size=5.5, max_lines=2) + 2.5
+             + c.text_height(table_w, _step_note(report), size=5.5, max_lines=5) + 2.5
              + c.table(0, 0, _FIGURE_COLUMNS, fig_rows, size=7.5, max_lines=2, draw=False) + 2.0
              + c.fields(0, 0, c.content_width, lines, key_width=27.0, size=7.5, max_lines=2, draw=False) + 2.0)
     band = max(_LEAST_BAND, min(_BAND, bottom - top - fixed - _FLAGS_ROOM))
@@ -424,7 +428,8 @@ def _draw_page(report: StripReport, canvas: Canvas) -> None:
            curve_plot(report.strip, valid_od=valid_range(report.calibration)))
     c.table(c.right - table_w, y, _STEP_COLUMNS, rows, size=size, row_colours=colours)
     y += band + 1.0
-    y += c.text(c.right - table_w, y, table_w, _STEP_NOTE, size=5.5, colour=COLOURS["grey"], max_lines=2) + 1.5
+    y += c.text(c.right - table_w, y, table_w, _step_note(report), size=5.5, colour=COLOURS["grey"],
+                max_lines=5) + 1.5
 
     y += _section(c, y, "Figures")
     missing = [COLOURS["red"] if r.value is None else None for r in figures]

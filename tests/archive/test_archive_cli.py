@@ -44,7 +44,7 @@ def test_list_shows_current_snapshots(stocked: Path, capsys: pytest.CaptureFixtu
     out = _lines(capsys.readouterr().out)
     assert out[0].split()[:5] == ["id", "date", "lot", "processor", "strip"]
     assert [line.split()[0] for line in out[1:-1]] == ["1", "6", "4", "5"]  # film-date order
-    assert out[-1] == "4 snapshot(s)"
+    assert out[-1].startswith("4 snapshot(s); ")
     assert main(["archive", "list", "--all", "--lot", LOTS[1].lot_id, "--archive", str(stocked)]) == 0
     out = _lines(capsys.readouterr().out)
     rows = {line.split()[0]: line for line in out[1:-1]}
@@ -145,7 +145,7 @@ def test_damaged_or_missing_archive_is_named(tmp_path: Path, capsys: pytest.Capt
     assert capsys.readouterr().err.rstrip("\n").startswith(f"stripscan: error: {damaged} is not an SQLite database")
     missing = tmp_path / "typo.sqlite3"
     assert main(["archive", "lots", "--archive", str(missing)]) == 1
-    assert capsys.readouterr().err == f"stripscan: error: {missing} does not exist\n"
+    assert capsys.readouterr().err.startswith(f"stripscan: error: {missing} does not exist: there is no archive")
     assert not missing.exists()  # reading commands never create an archive
 
 
@@ -168,3 +168,41 @@ def test_add_refuses_a_bad_calibration_file_or_date(stocked: Path, tmp_path: Pat
     with pytest.raises(SystemExit):
         main(["archive", "add", "scan.tif", "--lot", "ALD-1", "--exposed", "3/10/2024"])
     assert "is not a date written YYYY-MM-DD" in capsys.readouterr().err
+
+
+def _columns(text: str) -> list[dict[str, str]]:
+    """The rows of a printed table by column title (titles are set apart by two spaces or more)."""
+    import re
+
+    lines = _lines(text)
+    starts = [m.start() for m in re.finditer(r"(?:^|(?<=  ))\S", lines[0])]
+    bounds = list(zip(starts, [*starts[1:], None]))
+    titles = [lines[0][a:b].strip() for a, b in bounds]
+    return [{t: line[a:b].strip() for t, (a, b) in zip(titles, bounds)} for line in lines[1:-1]]
+
+
+def test_list_shows_the_steps_and_reads_a_lot_at_its_kept_steps(archive: Archive, archive_path: Path,
+                                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    """Issue 13, wrong output 3: ``archive list`` shows the step numbers of mid-density and density difference,
+    and by default reads every strip of a lot at the lot's kept steps (as the trends do)."""
+    lot = LOTS[0].lot_id
+    # The first strip chooses its steps; a faster later strip picks neighbouring steps on its own.
+    archive.add_snapshot(make_draft(0, strip=make_strip(1, centre=1.55)))
+    archive.add_snapshot(make_draft(1, strip=make_strip(1, centre=1.30)))
+    first, later = (archive.get_snapshot(i) for i in (1, 2))
+    assert first.figures.mid_density_step != later.figures.mid_density_step
+    kept = (first.figures.mid_density_step, first.figures.dd_high_step, first.figures.dd_low_step)
+    assert main(["archive", "list", "--lot", lot, "--archive", str(archive_path)]) == 0
+    out = capsys.readouterr().out
+    rows = {r["id"]: r for r in _columns(out)}
+    assert "lot's kept steps" in out
+    od = {s.step: s.od for s in later.strip.steps}
+    for row in rows.values():
+        assert (row["MD step"], row["DD steps"]) == (str(kept[0]), f"{kept[1]}-{kept[2]}")
+    assert float(rows["2"]["mid-dens"]) == pytest.approx(od[kept[0]], abs=1e-3)
+    assert float(rows["2"]["dens diff"]) == pytest.approx(od[kept[1]] - od[kept[2]], abs=1e-3)  # 3 decimals shown
+    # Each strip's own choice, on request, with its own step numbers beside.
+    assert main(["archive", "list", "--lot", lot, "--own-steps", "--archive", str(archive_path)]) == 0
+    rows = {r["id"]: r for r in _columns(capsys.readouterr().out)}
+    assert rows["2"]["MD step"] == str(later.figures.mid_density_step)
+    assert float(rows["2"]["mid-dens"]) == pytest.approx(later.figures.mid_density, abs=5e-4)

@@ -56,11 +56,14 @@ def test_hand_worked_straight_line_strip():
 
 
 def test_bounded_density_difference_rule():
-    # Same strip; bounded rule (some QC procedures): high step the densest not above 2.20
-    # -> step 7 (2.0); low step the lightest not below 0.45 -> step 2 (0.5); DD = 1.5.
+    # Same strip; bounded rule (some QC procedures, from memory): high step closest to 2.20 -> step 8
+    # (2.3); low step the lightest not below 0.45 -> step 2 (0.5); DD = 1.8.
     log_e = step_log_exposures(21)
     f = figures(log_e, 0.20 + 2.0 * log_e, base_fog=0.20, settings=FigureSettings(dd_rule="bounded"))
-    assert (f.dd_high_step, f.dd_low_step, f.density_difference) == (7, 2, pytest.approx(1.5))
+    assert (f.dd_high_step, f.dd_low_step, f.density_difference) == (8, 2, pytest.approx(1.8))
+    # Densities 0.14, 0.44, 0.74, ...: closest to 0.45 is step 2 (0.44, below it); bounded takes step 3 (0.74).
+    f = figures(log_e, 0.14 + 2.0 * log_e, base_fog=0.14, settings=FigureSettings(dd_rule="bounded"))
+    assert (f.dd_high_step, f.dd_low_step) == (8, 3)  # 2.24 is closest to 2.20, above it
 
 
 def test_two_step_gradient_is_delta_d_over_log10_two():

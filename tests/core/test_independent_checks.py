@@ -615,9 +615,10 @@ def test_qc_step_choice_on_a_hand_strip():
     assert steps.mid_step == 6  # |1.14-1.20| = 0.06 beats |1.58-1.20| = 0.38
     assert steps.dd_high_step == 8  # |2.05-2.20| = 0.15 beats |2.41-2.20| = 0.21
     assert steps.dd_low_step == 4  # |0.48-0.45| = 0.03 beats |0.31-0.45| = 0.14
-    # REFERENCES: some procedures bound the steps instead (high not above 2.20, low not below 0.45).
+    # Some procedures bound the low step only (from memory): high closest to 2.20, low closest to 0.45 but
+    # not below it.
     bounded = choose_qc_steps([0.19, 0.22, 0.31, 0.44, 0.79, 1.14, 1.58, 2.25, 2.41], rule="bounded")
-    assert (bounded.dd_high_step, bounded.dd_low_step) == (7, 5)  # 1.58 (2.25 > 2.20); 0.79 (0.44 < 0.45)
+    assert (bounded.dd_high_step, bounded.dd_low_step) == (8, 5)  # 2.25 (0.05 off 2.20); 0.79 (0.44 < 0.45)
 
 
 def test_crossover_moves_levels_by_the_mean_difference():

@@ -114,7 +114,9 @@ def test_saturated_dense_steps_are_flagged(bench, match_strips):
     true = np.asarray(sim.truth[0]["od"])
     flags = np.array([s.in_range for s in strip.steps])
     assert not flags[true > 3.5].any()
-    assert any("saturates" in w or "outside the calibrated range" in w for w in strip.warnings)
+    # Code 0 is the dark floor, not saturation (issue 13, wrong output 8).
+    assert any("dark floor" in w or "outside the calibrated range" in w for w in strip.warnings)
+    assert not any("saturates" in w for w in strip.warnings)
 
 
 def test_direct_mode_reads_a_linear_scan_and_says_uncalibrated(bench, match_strips):

@@ -152,9 +152,10 @@ def test_closest_steps_on_a_21_step_strip():
 
 
 def test_bounded_steps_on_a_21_step_strip():
-    # common practice (some procedures): densest not above 2.20 -> step 14
-    # (2.04); lightest not below 0.45 -> step 8 (0.58). MD stays step 11.
-    assert choose_qc_steps(STRIP, rule="bounded") == QCSteps(11, 14, 8)
+    # Some procedures (from memory): DD high still the closest to 2.20 -> step 15
+    # (2.27; no cap at 2.20); lightest not below 0.45 -> step 8 (0.58, where the
+    # closest is step 7, 0.44). MD stays step 11.
+    assert choose_qc_steps(STRIP, rule="bounded") == QCSteps(11, 15, 8)
 
 
 def test_bounded_steps_include_a_density_exactly_on_the_bound():
@@ -189,7 +190,7 @@ def test_qc_values_read_the_chosen_steps():
         ([], {}, "at least 2 readable steps"),
         ([0.2, float("inf")], {}, "step 2 is infinite"),
         ([0.1, 0.2, 0.3], {"rule": "bounded"}, "no step has a density at or above 0.45"),
-        ([2.3, 2.5, 2.7], {"rule": "bounded"}, "no step has a density at or below 2.2"),
+        ([2.3, 2.5, 2.7], {"rule": "bounded"}, "cannot form a density difference"),
         (STRIP[::-1], {}, "cannot form a density difference"),
     ],
 )
@@ -382,7 +383,9 @@ def test_a_trend_on_the_latest_strip_makes_it_a_warning():
     # run of 7 (common practice in control charting, from memory). DD sits
     # on its level, so it has no run.
     log = QCLog([*BASELINE, *series([1.23] * 7, start=5, dd=1.81)])
-    assert log.days[-1].verdict.verdict == "ok"
+    # One verdict, computed once: the day's own verdict counts the trend rules as the status does.
+    assert log.days[-1].verdict.verdict == "warning" and log.days[-1].verdict.rules == ("run:mid_density",)
+    assert log.days[-1].verdict.reasons == ()  # the strip alone is within the warning tier
     status = log.status()
     assert status.verdict == "warning"
     assert status.rules_fired == ("run:mid_density",)

@@ -49,3 +49,22 @@ def test_run_gui_opens_the_window_on_a_scan(qapp, settings, files, monkeypatch):
     finally:
         timer.stop()
     assert seen["strips"] == 2 and not seen["calibrated"]  # settings in tmp_path: no calibration chosen yet
+
+
+def test_the_log_and_the_default_archive_share_one_data_folder(tmp_path, monkeypatch):
+    """Issue 13, wrong output 8: the window's log goes to ``logs`` in the same user data folder as the default
+    archive (``~/.local/share/stripscan``), and the archive stays where existing users have it."""
+    from stripscan.archive import default_archive_path
+    from stripscan.gui.errors import default_log_dir, setup_logging
+
+    for name in ("STRIPSCAN_LOG_DIR", "STRIPSCAN_ARCHIVE"):
+        monkeypatch.delenv(name, raising=False)
+    monkeypatch.setattr(sys, "platform", "linux")
+    monkeypatch.setenv("XDG_DATA_HOME", str(tmp_path / "share"))
+    # XDG base directory specification: $XDG_DATA_HOME/<program>.
+    assert default_archive_path() == tmp_path / "share" / "stripscan" / "archive.sqlite3"
+    assert default_log_dir() == tmp_path / "share" / "stripscan" / "logs"
+    try:
+        assert setup_logging() == tmp_path / "share" / "stripscan" / "logs" / "stripscan.log"
+    finally:
+        setup_logging(tmp_path / "elsewhere")

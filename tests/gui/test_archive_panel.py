@@ -17,6 +17,7 @@ from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.demo_data import demo_files
 from stripscan.gui.archive_panel import ArchivePanel
+from stripscan.gui.figures_panel import VALUE_ROLE
 from stripscan.gui.save_snapshot_dialog import SaveForm, SaveSnapshotDialog, check_form
 from stripscan.gui.tables import figure_rows
 from stripscan.gui.trend_view import TrendView
@@ -103,7 +104,8 @@ def test_selecting_a_lot_lists_its_snapshots(qtbot, panel: ArchivePanel, archive
     assert shown_ids(panel.snapshot_table) == [s.id for s in everything]
     retired = [k for k, s in enumerate(everything) if s.retired_at is not None]
     assert len(retired) == 1
-    assert panel.snapshot_table.item(retired[0], 9).text().startswith("retired")
+    status = panel.snapshot_table.columnCount() - 1
+    assert panel.snapshot_table.item(retired[0], status).text().startswith("retired")
 
 
 def test_opening_a_snapshot_shows_its_stored_figures_and_provenance(qtbot, panel: ArchivePanel,
@@ -330,3 +332,47 @@ def test_the_demo_archive_is_built_off_the_ui_thread_and_shown(qtbot, tmp_path: 
     qtbot.waitUntil(lambda: bool(messages(widget)), timeout=5000)
     assert "already exists" in messages(widget)[0].text()
     assert widget.archive_path == path
+
+
+def test_the_lot_table_shows_steps_and_reads_a_lot_at_its_kept_steps(qtbot, panel: ArchivePanel,
+                                                                      archive_path: Path, tmp_path: Path) -> None:
+    """Issue 13, wrong output 3: the lot archive table shows the steps beside mid-density and density
+    difference, and by default reads every strip of the lot at the lot's kept steps, as the trends do; a strip
+    that chose a neighbouring step on its own (1.51 at step 12 beside 0.93 at step 11) no longer looks apart."""
+    with Archive.open(archive_path, read_only=True) as archive:
+        odd = [s for s in archive.list_snapshots() if archive.lot_qc_steps(s.lot_id) is not None
+               and archive.get_snapshot(s.id).figures.mid_density_step != archive.lot_qc_steps(s.lot_id)[0]]
+        assert odd, "the demo archive holds a strip that picks another mid-density step on its own"
+        snapshot = archive.get_snapshot(odd[0].id)
+        kept = archive.lot_qc_steps(snapshot.lot_id)
+    panel.select_lot(snapshot.lot_id)
+    table = panel.snapshot_table
+    titles = [table.horizontalHeaderItem(k).text() for k in range(table.columnCount())]
+    md, md_step, dd, dd_steps = (titles.index(t) for t in ("Mid-dens.", "MD step", "Dens. diff.", "DD steps"))
+    row = shown_ids(table).index(snapshot.id)
+    assert {table.item(k, md_step).text() for k in range(table.rowCount())} == {str(kept[0])}
+    assert {table.item(k, dd_steps).text() for k in range(table.rowCount())} == {f"{kept[1]}−{kept[2]}"}
+    od = {s.step: s.od for s in snapshot.strip.steps}
+    assert table.item(row, md).data(VALUE_ROLE) == pytest.approx(od[kept[0]], abs=1e-4)
+    assert table.item(row, dd).data(VALUE_ROLE) == pytest.approx(od[kept[1]] - od[kept[2]], abs=1e-4)
+    panel.grab().save(str(tmp_path / "lot-table.png"))
+    panel.own_steps.setChecked(True)
+    row = shown_ids(table).index(snapshot.id)
+    assert table.item(row, md_step).text() == str(snapshot.figures.mid_density_step)
+    assert table.item(row, md).data(VALUE_ROLE) == pytest.approx(snapshot.figures.mid_density, abs=1e-4)
+
+
+def test_a_snapshot_read_without_calibration_says_its_uncertainty_is_noise_only(qtbot, panel: ArchivePanel,
+                                                                                 archive_path: Path) -> None:
+    """Issue 13, missing 4: a stored direct-mode reading's step table says its uncertainty is the reading noise
+    only, without the error of having no calibration."""
+    direct = analyze_scan(demo_files().lot_b_scan, options=AnalysisOptions(n_steps=21))
+    with Archive.open(archive_path) as archive:
+        (stored, *_) = archive.add_analysis(direct, "M-2702-B")
+        calibrated_id = archive.list_snapshots("M-2702-B")[0].id
+    panel.refresh()
+    assert panel.open_snapshot(stored.id)
+    column = [panel.view.steps.horizontalHeaderItem(k).text() for k in range(panel.view.steps.columnCount())]
+    assert "Uncertainty (OD), noise only" in column
+    assert panel.open_snapshot(calibrated_id)
+    assert panel.view.steps.horizontalHeaderItem(3).text() == "Uncertainty (OD)"

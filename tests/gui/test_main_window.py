@@ -367,3 +367,18 @@ def test_the_replaced_outline_is_deleted_by_qt_not_left_to_the_collector(qtbot, 
     window.session.select_next()
     QCoreApplication.sendPostedEvents(None, QEvent.Type.DeferredDelete)
     assert window.scan_view.roi is not old and not shiboken6.isValid(old)
+
+
+def test_direct_mode_uncertainty_column_says_noise_only(qtbot, open_scan, window, files, tmp_path):
+    """Issue 13, missing 4: read without a calibration, the step table's uncertainty column says it holds the
+    reading noise only, leaving out the error of having no calibration, not only the banner does."""
+    open_scan(window, files.scan)
+    header = window.step_table.table.horizontalHeaderItem(3)
+    assert header.text() == "Uncertainty (OD), noise only"
+    assert "error of having no calibration" in header.toolTip()
+    rows = window.step_table.save_csv(tmp_path / "direct.csv").read_text(encoding="utf-8").splitlines()
+    assert rows[0] == "Step,Log E,OD,\"Uncertainty (OD), noise only\",Flag"
+    window.step_table.grab().save(str(tmp_path / "direct-steps.png"))
+    # With a calibration the column is the plain uncertainty again.
+    calibrated(open_scan, window, files)
+    assert window.step_table.table.horizontalHeaderItem(3).text() == "Uncertainty (OD)"

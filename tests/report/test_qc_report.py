@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import datetime
+
 import numpy as np
 import pytest
 from report_support import PROCESSOR, QC_DAYS, SCENARIO, image_array, pdf_pages
@@ -9,7 +11,7 @@ from report_support import PROCESSOR, QC_DAYS, SCENARIO, image_array, pdf_pages
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveLookupError
 from stripscan.cli import main
-from stripscan.qc_log import VERDICT_WORDS
+from stripscan.qc_log import VERDICT_WORDS, load_processor_log
 from stripscan.report import ReportError, render_page
 from stripscan.report.plot import Points
 from stripscan.report.qcmonth import qc_month, qc_month_plots, qc_month_report_pdf
@@ -24,6 +26,7 @@ def expected_rows(archive: Archive) -> dict[str, str]:
     (common practice), limits ±0.15 for mid-density and density difference and +0.03 for
     base+fog (21 CFR 900.12(e)(1)), warning tier ±0.10 (common practice)."""
     entries = {e.date: e for e in archive.list_qc_entries(PROCESSOR)}
+    plog = load_processor_log(archive, PROCESSOR)
     values = {day: (e.base_fog, e.mid_density, e.density_difference) for day, e in entries.items()}
     first_baseline = sorted(values)[:5]                     # before any event
     second_baseline = [d for d in sorted(values) if d >= "2026-11-17"][:5]  # after the new chemistry
@@ -38,6 +41,9 @@ def expected_rows(archive: Archive) -> dict[str, str]:
             verdict = "warning"
         else:
             verdict = "ok"
+        if verdict == "ok" and plog.status(datetime.date.fromisoformat(day)).rules_fired:
+            # Issue 13, item 5: one verdict — a trend rule that fired on the day makes it a warning there too.
+            verdict = "warning"
         bf, md, dd = values[day]
         rows[day] = (f"{day} {entries[day].source} {bf:.3f} {dev[0] + 0.0:+.3f} {md:.3f} {dev[1] + 0.0:+.3f} "
                      f"{dd:.3f} {dev[2] + 0.0:+.3f} {VERDICT_WORDS[verdict]}")
