@@ -238,5 +238,5 @@ def test_every_unused_step_says_why_in_json(bench, match_strips):
     (strip,) = analyze_scan(path, calibration=cal).to_dict()["strips"]
     for step in strip["steps"]:
         assert (step["flag"] == "") == step["in_range"]
-        assert step["flag"] in ("", "outside_range", "too_noisy", "saturated", "stray_light", "not_read")
+        assert step["flag"] in ("", "outside_range", "too_noisy", "saturated", "dark_floor", "stray_light", "not_read")
         assert step["stray_light_share"] is None or 0.0 <= step["stray_light_share"] <= 1.0
