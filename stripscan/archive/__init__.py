@@ -13,8 +13,11 @@ from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
     ArchiveError,
+    ArchiveIntegrityError,
     ArchiveLookupError,
     ArchiveReadOnlyError,
+    DuplicateDayError,
+    OutOfOrderError,
 )
 from .records import (
     FIGURES,
@@ -46,6 +49,9 @@ __all__ = [
     "ArchiveConflictError",
     "ArchiveLookupError",
     "ArchiveReadOnlyError",
+    "ArchiveIntegrityError",
+    "DuplicateDayError",
+    "OutOfOrderError",
     "FIGURES",
     "Crossover",
     "EmulsionLot",
