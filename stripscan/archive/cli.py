@@ -242,6 +242,11 @@ def _cmd_import(args: argparse.Namespace) -> int:
     added = ", ".join(f"{n} {k.replace('_', ' ')}" for k, n in report.added.items() if n) or "nothing new"
     same = sum(report.unchanged.values())
     print(f"imported {report.source}: {added}" + (f"; {same} item(s) were already present" if same else ""))
+    if report.entered_late:
+        print(f"note: QC entr{'y' if len(report.entered_late) == 1 else 'ies'} "
+              f"{', '.join(map(str, report.entered_late))} of the file are dated before days already in the log "
+              "and are not marked as entered late there; stored marked as entered late: the days after them are "
+              "judged again (see 'stripscan qc list')")
     return 0
 
 
