@@ -94,6 +94,8 @@ def _cmd_add(args: argparse.Namespace) -> int:
         except DuplicateDayError as exc:
             raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
         except OutOfOrderError as exc:
+            if args.repeat:
+                raise OutOfOrderError(f"{exc}; nothing was stored") from None
             # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
             raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
     for note in added.notes:

@@ -788,7 +788,7 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
     baseline); ``latest`` (``date``, ``values``, ``deviations``, ``verdict``
     one of ok / warning / action, ``rules``, ``reasons``, ``advice``,
     ``entries``: every entry stored for that day with ``entry`` id,
-    ``kind``, ``in_use``, ``verdict`` and ``standing`` in words);
+    ``kind``, ``in_use``, ``entered_late``, ``verdict`` and ``standing`` in words);
     ``baseline``; ``limits``; ``steps``; ``caution``.
     """
     status = status or plog.status()
@@ -812,6 +812,7 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
             "reasons": list(reasons),
             "advice": status.advice,
             "entries": [{"entry": item.entry.id, "kind": item.entry.kind, "in_use": item.state.in_use,
+                         "entered_late": item.entry.entered_late,
                          # A value corrected as a slip is not a reading to judge.
                          "verdict": item.verdict.verdict if item.verdict and item.set_aside != "corrected" else None,
                          "standing": item.standing()}

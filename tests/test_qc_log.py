@@ -263,7 +263,7 @@ def test_repeats_are_refused_where_they_would_rewrite_or_invent_a_day(archive):
         typed(archive, 2, md=1.25)
     with pytest.raises(ArchiveConflictError, match="no QC entry for 2026-10-08 to repeat"):
         typed(archive, 3, repeat=True)
-    with pytest.raises(ValueError, match="dates out of order: a repeat strip of 2026-10-06 is before"):
+    with pytest.raises(ValueError, match="dates out of order: a repeat strip of 2026-10-06 would re-judge"):
         typed(archive, 1, repeat=True)
     assert len(archive.list_qc_entries(P)) == 3
 

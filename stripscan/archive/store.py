@@ -1120,10 +1120,13 @@ class Archive:
         holders = [e for e in day if e.id not in {x.corrects for x in day}]
         latest = self._qc_latest_day(conn, entry.processor, entry.corrects)
         back_dated = not entry.entered_late and latest is not None and entry.date < latest
-        if back_dated and late == "refuse" and entry.corrects is None:
-            what = f"a repeat strip of {entry.date}" if entry.repeat_of is not None else entry.date
+        if back_dated and late != "mark" and entry.repeat_of is not None:
             raise OutOfOrderError(
-                f"{self.path}: dates out of order: {what} is before processor {entry.processor!r}'s latest QC "
+                f"{self.path}: dates out of order: a repeat strip of {entry.date} would re-judge the days after it; "
+                f"only the latest day ({latest}) of processor {entry.processor!r} takes a repeat")
+        if back_dated and late == "refuse" and entry.corrects is None:
+            raise OutOfOrderError(
+                f"{self.path}: dates out of order: {entry.date} is before processor {entry.processor!r}'s latest QC "
                 f"entry ({latest}); a missed day is entered late on purpose (stored marked as entered late, "
                 "and the days after it are judged again)")
         if entry.kind == "first strip" and holders:

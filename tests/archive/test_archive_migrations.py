@@ -195,7 +195,7 @@ def test_version_2_archive_reaches_version_4_intact_chained_and_with_its_setting
         kept = archive.get_qc_settings(PROCESSORS[0].name)
         assert (kept.settings, kept.updated_at, kept.reason, kept.id) == (settings, "2024-06-03T08:00:00Z", "", 1)
         assert [e.kind for e in archive.list_qc_events()] == ["service"]
-        with pytest.raises(ArchiveConflictError, match="dates out of order: a repeat strip of 2024-06-04 is before"):
+        with pytest.raises(ArchiveConflictError, match="dates out of order: a repeat strip of 2024-06-04 would re-judge"):
             archive.add_qc_entry(QcEntry(PROCESSORS[0].name, "2024-06-04", 0.19, 1.2, 1.8), repeat=True)
         late = archive.add_qc_entry(QcEntry(PROCESSORS[1].name, "2024-06-01", 0.19, 1.2, 1.8), late=True)
         assert late.entered_late
