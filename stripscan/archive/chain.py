@@ -128,9 +128,14 @@ def append(conn: sqlite3.Connection, kind: str, key: Any) -> None:
                  (seq + 1, kind, key, content, _link(previous, kind, key, content)))
 
 
+def _only_stored(kind: str) -> str:
+    # A retirement is stored where a snapshot has its retirement columns filled.
+    return " WHERE retired_at IS NOT NULL" if kind == "retirement" else ""
+
+
 def _stored_keys(conn: sqlite3.Connection, kind: str) -> Iterator[str]:
     table, column, _ = KINDS[kind]
-    where = " WHERE retired_at IS NOT NULL" if kind == "retirement" else ""
+    where = _only_stored(kind)
     order = "id" if kind in _INTEGER_KEYS else column
     for (key,) in conn.execute(f"SELECT {column} FROM {table}{where} ORDER BY {order}"):
         yield str(key)
@@ -179,7 +184,11 @@ class ChainReport:
 
 
 def _name(kind: str, key: str) -> str:
-    return f"{KINDS[kind][2]} {key}"
+    return f"{KINDS[kind][2] if kind in KINDS else kind} {key}"
+
+
+def _record(seq: int, kind: str, key: str) -> str:
+    return f"record {seq} of the chain ({_name(kind, key)})"
 
 
 def verify(conn: sqlite3.Connection) -> ChainReport:
@@ -193,7 +202,7 @@ def verify(conn: sqlite3.Connection) -> ChainReport:
 
     previous, expected_seq = GENESIS, 1
     for seq, kind, key, content, chained in rows:
-        where = f"record {seq} of the chain ({_name(kind, key) if kind in KINDS else kind + ' ' + key})"
+        where = _record(seq, kind, key)
         if seq != expected_seq:
             return report(f"{where}: record {expected_seq} is missing from the chain", seq)
         if kind not in KINDS or chained != _link(previous, kind, key, content):
@@ -227,7 +236,7 @@ def check_head(conn: sqlite3.Connection) -> str | None:
     if rows:
         seq, kind, key, content, chained = rows[0]
         previous = rows[1][4] if len(rows) > 1 else GENESIS
-        name = f"record {seq} of the chain ({_name(kind, key) if kind in KINDS else kind + ' ' + key})"
+        name = _record(seq, kind, key)
         if kind not in KINDS or chained != _link(previous, kind, key, content):
             return f"{name}: its chain hash does not follow from the record before it"
         if content_sha256(conn, kind, key) != content:
@@ -235,8 +244,7 @@ def check_head(conn: sqlite3.Connection) -> str | None:
     chained_count = conn.execute("SELECT count(*) FROM (SELECT DISTINCT kind, key FROM record_chain)").fetchone()[0]
     stored = 0
     for kind, (table, _, _) in KINDS.items():
-        where = " WHERE retired_at IS NOT NULL" if kind == "retirement" else ""
-        stored += conn.execute(f"SELECT count(*) FROM {table}{where}").fetchone()[0]
+        stored += conn.execute(f"SELECT count(*) FROM {table}{_only_stored(kind)}").fetchone()[0]
     if stored != chained_count:
         return f"{stored} records are stored but {chained_count} are in the chain"
     return None

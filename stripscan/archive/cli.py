@@ -152,11 +152,15 @@ def _cmd_add(args: argparse.Namespace) -> int:
               "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
               "with calibrated ones")
     for snapshot in stored:
-        f = snapshot.figures
-        print(f"snapshot {snapshot.id}: lot {snapshot.lot_id}, strip {snapshot.strip.index}, "
-              f"base+fog {_number(f.base_fog)}, mid-density {_number(f.mid_density)}, "
-              f"density difference {_number(f.density_difference)}, speed {_number(f.speed_log_exposure)}")
+        print(f"snapshot {snapshot.id}: {_stored_line(snapshot)}")
     return 0
+
+
+def _stored_line(snapshot: Snapshot) -> str:
+    f = snapshot.figures
+    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_number(f.base_fog)}, mid-density "
+            f"{_number(f.mid_density)}, density difference {_number(f.density_difference)}, speed "
+            f"{_number(f.speed_log_exposure)}")
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
@@ -294,10 +298,8 @@ def _cmd_revise(args: argparse.Namespace) -> int:
                                   new_sensitometer=sensitometer)
     if sensitometer is not None:
         print(f"note: {_sensitometer_note(sensitometer)}")
-    f = revision.figures
-    print(f"snapshot {revision.id} revises snapshot {args.id} ({revision.revision_reason}): lot {revision.lot_id}, "
-          f"strip {revision.strip.index}, base+fog {_number(f.base_fog)}, mid-density {_number(f.mid_density)}, "
-          f"density difference {_number(f.density_difference)}; snapshot {args.id} is kept, marked revised")
+    print(f"snapshot {revision.id} revises snapshot {args.id} ({revision.revision_reason}): "
+          f"{_stored_line(revision)}; snapshot {args.id} is kept, marked revised")
     return 0
 
 
