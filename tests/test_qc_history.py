@@ -246,3 +246,28 @@ def test_qc_limits_keeps_the_settings_before_with_their_time_and_reason(capsys, 
     assert rows[2].settings["limits"]["md_dd_action"] == pytest.approx(0.12)
     shown = ok(capsys, "qc", "limits", "--archive", archive, "--processor", P, "--history")
     assert "site programme asks for a tighter warning tier" in shown and "changed: md_dd_action 0.12" in shown
+
+
+def test_late_days_date_corrections_and_settings_history_survive_export_and_import(capsys, archive, tmp_path):
+    """Export format 3 carries what schema 4 added; importing it into an empty archive gives the same log."""
+    add(capsys, archive, 0, "--new-processor")
+    add(capsys, archive, 2)
+    ok(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date", "2062-10-08", "--base-fog", "0.18",
+       "--mid-density", "1.2", "--density-difference", "1.8")
+    with Archive.open(archive) as opened:
+        wrong = opened.list_qc_entries(P)[-1].id
+    ok(capsys, "qc", "correct", wrong, "--archive", archive, "--date", day(3), "--reason", "year typed wrong")
+    add(capsys, archive, 1, "--late")
+    add(capsys, archive, 4)
+    ok(capsys, "qc", "limits", "--archive", archive, "--processor", P, "--md-dd", "0.12", "--reason", "local rule")
+    data = _export(capsys, archive, tmp_path / "all.json")
+    assert data["format_version"] == 3 and len(data["qc_settings"]) == 2
+    copy = tmp_path / "copy.sqlite3"
+    out = ok(capsys, "archive", "import", "--archive", copy, tmp_path / "all.json")
+    assert "entered late" not in out  # the late day was marked in the file already
+    with Archive.open(archive) as original, Archive.open(copy) as imported:
+        assert imported.list_qc_entries() == original.list_qc_entries()
+        assert imported.qc_settings_history() == original.qc_settings_history()
+        assert imported.verify().ok
+    again = ok(capsys, "archive", "import", "--archive", copy, tmp_path / "all.json")
+    assert "nothing new" in again
