@@ -332,6 +332,8 @@ _HOLDS_DAY = "NOT EXISTS (SELECT 1 FROM qc_entries c WHERE c.corrects = e.id)"
 _V4 = (
     "ALTER TABLE qc_entries ADD COLUMN entered_late INTEGER NOT NULL DEFAULT 0 CHECK (entered_late IN (0, 1))",
     "DROP INDEX qc_entries_first_strip",
+    # What that unique index gave the day and date-order look-ups, without the uniqueness a moved date breaks.
+    "CREATE INDEX qc_entries_day ON qc_entries(processor, date)",
     "DROP TRIGGER qc_entries_one_first_strip",
     "DROP TRIGGER qc_entries_same_day",
     f"""CREATE TRIGGER qc_entries_one_entry_a_day BEFORE INSERT ON qc_entries
