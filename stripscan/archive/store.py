@@ -15,7 +15,13 @@ Processor QC entries are kept the same way: a second strip of a day is a
 *repeat* linked to the day's entry (:meth:`Archive.add_qc_entry` with
 ``repeat=True``), a wrongly entered value is fixed by a *correction* that
 names the entry and a reason (:meth:`Archive.add_qc_correction`), and
-nothing stored is changed or deleted.
+nothing stored is changed or deleted.  Entries go in date order, checked
+inside the write transaction; a missed day is stored late on purpose
+(``late=True``) and marked as entered late.
+
+Every stored record also joins a hash chain (:mod:`.chain`) in the same
+transaction: :meth:`Archive.verify` names the first record changed outside
+stripscan, and opening the file checks the chain's head cheaply.
 """
 
 from __future__ import annotations
