@@ -114,6 +114,9 @@ def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sens
         known = next((s for s in archive.list_sensitometers() if s.sensitometer_id == args.sensitometer), None)
         if table is None and known is not None:
             table = known.log_exposures
+        elif known is not None and tuple(table) != known.log_exposures:  # type: ignore[arg-type]
+            raise ValueError(f"{args.exposures}: the step table differs from the one stored for sensitometer "
+                             f"{args.sensitometer!r}; name another sensitometer, or leave out --exposures")
     n_steps = args.steps if args.steps is not None or table is None else len(table)
     options = AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table,
                               figures=FigureSettings(gradient_low=args.low, gradient_high=args.high))

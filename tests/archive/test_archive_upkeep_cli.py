@@ -102,6 +102,11 @@ def test_archive_add_reads_with_the_sensitometers_table_and_keeps_its_name(files
     # A second scan names the stored sensitometer only; its table is used again.
     _run(capsys, "archive", "add", files.lot_b_scan, "--archive", path, "--lot", "M-2702-B", "--calibration",
          files.calibration, "--sensitometer", "S-7")
+    other = tmp_path / "other.txt"
+    other.write_text("\n".join(f"{v:.4f}" for v in np.arange(21) * 0.15) + "\n", encoding="utf-8")
+    line = _refused(capsys, "archive", "add", files.lot_b_scan, "--archive", path, "--lot", "M-2702-B",
+                    "--calibration", files.calibration, "--sensitometer", "S-7", "--exposures", other)
+    assert "differs from the one stored for sensitometer 'S-7'" in line
     with Archive.open(path) as archive:
         assert archive.get_sensitometer("S-7").log_exposures == tuple(table)
         snapshots = archive.all_snapshots()
