@@ -5,14 +5,15 @@
     stripscan qc add --processor P --date YYYY-MM-DD SCAN --calibration CAL.json [--strip N] [--lot ID]
     stripscan qc add --processor P --date YYYY-MM-DD --base-fog X --mid-density Y --density-difference Z
     stripscan qc add ... --repeat          (a second strip of the latest day; it then counts for the day)
-    stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--note T]
-                         [--action T] --reason TEXT
+    stripscan qc add ... --late            (a missed earlier day, stored marked as entered late)
+    stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--date D]
+                         [--note T] [--action T] --reason TEXT
     stripscan qc status [--processor P] [--json] [--on YYYY-MM-DD]
     stripscan qc list --processor P
     stripscan qc chart --processor P -o FILE.png [--month YYYY-MM]
     stripscan qc event --processor P --date YYYY-MM-DD --kind KIND [--note TEXT]
     stripscan qc limits --processor P [--md-dd 0.15] [--warning 0.10 | --no-warning] [--base-fog 0.03]
-                        [--baseline-days 5]
+                        [--baseline-days 5] [--reason TEXT]
     stripscan qc demo --archive PATH
 
 Every command takes ``--archive PATH``; reading commands never create the
@@ -37,6 +38,7 @@ from .archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
 from .archive.cli import _fail, _guarded, _open
 from .core.qc import EVENT_KINDS, QUANTITIES, QCValues
+from .archive import OutOfOrderError
 from .qc_log import (VERDICT_WORDS, LABELS, DuplicateDayError, LoggedEntry, parse_day, signed,
                      uncalibrated_refusal)
 
@@ -88,9 +90,14 @@ def _cmd_add(args: argparse.Namespace) -> int:
         try:
             added = add_day(archive, args.processor, day, values=values, analysis=analysis, strip=args.strip,
                             calibration=calibration, lot=args.lot, note=args.note or "", action=args.action or "",
-                            new_processor=args.new_processor, repeat=args.repeat)
+                            new_processor=args.new_processor, repeat=args.repeat, late=args.late)
         except DuplicateDayError as exc:
-            raise DuplicateDayError(f"{archive.path}: {exc} (give --repeat); nothing was stored") from None
+            raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
+        except OutOfOrderError as exc:
+            if args.repeat:
+                raise OutOfOrderError(f"{exc}; nothing was stored") from None
+            # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
+            raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
     for note in added.notes:
         print(f"note: {note}")
     e = added.entry
@@ -99,6 +106,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
         s = added.reading.steps
         where = f" at steps {s.mid_step} (mid-density), {s.dd_high_step} - {s.dd_low_step} (density difference)"
     kind = f", repeat of entry {e.repeat_of}" if e.repeat_of is not None else ""
+    kind += ", entered late" if e.entered_late else ""
     print(f"stored entry {e.id}: {args.processor!r} {e.date} ({e.source}{where}{kind}): "
           + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES))
     print(status_text(added.plog, added.plog.status(day)))
@@ -117,12 +125,13 @@ def _cmd_correct(args: argparse.Namespace) -> int:
         old = archive.get_qc_entry(args.entry)
         added = correct_entry(archive, args.entry, reason=args.reason, base_fog=args.base_fog,
                               mid_density=args.mid_density, density_difference=args.density_difference,
-                              note=args.note, action=args.action)
+                              note=args.note, action=args.action,
+                              date=_day(args.date) if args.date is not None else None)
     e = added.entry
     changed = [f"{LABELS[q]} {getattr(e, q):.3f} (was {getattr(old, q):.3f})" for q in QUANTITIES
                if getattr(e, q) != getattr(old, q) and None not in (getattr(e, q), getattr(old, q))]
-    changed += [f"{k} {getattr(e, k)!r}" for k in ("note", "action") if getattr(e, k) != getattr(old, k)]
-    print(f"stored entry {e.id}: correction of entry {e.corrects} ({e.processor!r}, {e.date}): "
+    changed += [f"{k} {getattr(e, k)!r}" for k in ("date", "note", "action") if getattr(e, k) != getattr(old, k)]
+    print(f"stored entry {e.id}: correction of entry {e.corrects} ({e.processor!r}, {old.date}): "
           f"{', '.join(changed)}; reason: {e.reason}")
     for note in added.notes:
         print(f"note: {note}")
@@ -257,10 +266,12 @@ def _cmd_limits(args: argparse.Namespace) -> int:
         changes["md_dd_warning"] = None
     with _open(args, create=bool(changes) and args.new_processor) as archive:
         if changes or args.new_processor:
-            setup = set_limits(archive, args.processor, new_processor=args.new_processor, **changes)
+            setup = set_limits(archive, args.processor, new_processor=args.new_processor, reason=args.reason or "",
+                               **changes)
         else:
             archive.get_processor(args.processor)
             setup = load_setup(archive, args.processor)
+        history = archive.qc_settings_history(args.processor)
     lim = setup.limits
     warn = f"±{lim.md_dd_warning:.3f}" if lim.md_dd_warning is not None else "none"
     bf_warn = f"+{lim.base_fog_warning:.3f}" if lim.base_fog_warning is not None else "none"
@@ -275,8 +286,12 @@ def _cmd_limits(args: argparse.Namespace) -> int:
         s = choice.steps
         print(f"  QC steps from {choice.since.isoformat()}: mid-density step {s.mid_step}, density difference "
               f"step {s.dd_high_step} - step {s.dd_low_step} (chosen on {choice.chosen_on})")
+    if args.history:
+        for row in history:
+            print(f"  settings of {row.updated_at}: {row.reason or '(no reason kept)'}")
     if changes:
-        print("  every stored day is judged again with these settings")
+        print("  every stored day is judged again with these settings; the settings before are kept "
+              "(qc limits --history)")
     return 0
 
 
@@ -344,6 +359,9 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--repeat", action="store_true",
                      help="a repeat strip of the latest day: kept beside the day's entry, and the day's value from "
                           "now on (the earlier strip is kept and shown, not used)")
+    add.add_argument("--late", action="store_true",
+                     help="a missed day before the latest one, entered now: stored marked as entered late with "
+                          "the time it was entered; levels, limits and trend rules take the days in date order")
 
     correct = command("correct", _cmd_correct, "correct a wrongly entered QC entry, with a reason",
                       processor="none")
@@ -351,6 +369,8 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     for q in QUANTITIES:
         correct.add_argument(f"--{q.replace('_', '-')}", metavar="OD", type=_number, dest=q,
                              help=f"the right {LABELS[q]} (kept as it was when not given)")
+    correct.add_argument("--date", metavar="YYYY-MM-DD", help="the right date (a day's single strip moves to a day "
+                         "without an entry; moved before the latest day, it is marked entered late)")
     correct.add_argument("--note", metavar="TEXT", help="the right remark")
     correct.add_argument("--action", metavar="TEXT", help="the right corrective action")
     correct.add_argument("--reason", metavar="TEXT", help="why the entry was wrong (needed)")
@@ -385,6 +405,10 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     limits.add_argument("--baseline-days", metavar="N", type=int, help="strips averaged for the levels (5)")
     limits.add_argument("--run", metavar="N", type=int, help="strips on one side of the level that make a run (7)")
     limits.add_argument("--drift", metavar="N", type=int, help="strips each higher (or lower) that make a drift (5)")
+    limits.add_argument("--reason", metavar="TEXT", help="why the settings change, kept with them (default: the "
+                        "changes in words); the settings before are kept")
+    limits.add_argument("--history", action="store_true", help="also list every settings change with its time "
+                        "and reason")
 
     command("demo", _cmd_demo, "fill an archive with the invented demo month", processor="none")
     return parser

@@ -12,13 +12,17 @@ This module joins the two and adds the rules that need both:
   in the settings with that day's entry, and used unchanged afterwards;
 * entries go in date order, one first strip per day, and an event may not
   be dated before the latest entry (it would silently re-judge days
-  already reported);
+  already reported).  A missed day may be entered later on purpose
+  (``late=True``): it is stored marked as entered late, with the time it
+  was entered, and levels, limits and trend rules take the days in date
+  order.  The archive checks the order inside the write transaction, so
+  two writers at once cannot both pass it;
 * a second strip of the latest day is stored as a *repeat*; the day's
   value is then the repeat's (common practice: the repeat confirms or
   clears the first result), and the first strip is kept and shown, not
   used.  A wrongly entered value is fixed by a *correction* (same
-  processor and day, with a reason); the corrected entry is kept and
-  shown, not used.  Only each day's entry in use reaches the core;
+  processor, with a reason; it may also fix a wrong date); the corrected
+  entry is kept and shown, not used.  Only each day's entry in use reaches the core;
 * a ``crossover`` event takes the new operating levels of the crossover
   record stored for that processor and day, when there is one.
 
@@ -42,7 +46,7 @@ from pathlib import Path
 from typing import Any
 
 from stripscan import CAUTION
-from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError, NewSnapshot, Processor
+from stripscan.archive import Archive, ArchiveLookupError, DuplicateDayError, NewSnapshot, Processor
 from stripscan.archive import QcEntry as StoredEntry
 from stripscan.archive.records import QcEntryState, qc_entry_states
 from stripscan.core.qc import (
@@ -237,6 +241,8 @@ class LoggedEntry:
         """What the entry is and what became of it, in words ('' for a plain day's strip in use)."""
         e, state = self.entry, self.state
         words = []
+        if e.entered_late:
+            words.append(f"entered late{' on ' + e.recorded_at[:10] if e.recorded_at else ''}")
         if e.repeat_of is not None:
             words.append(f"repeat of entry {e.repeat_of}")
         if e.corrects is not None:
@@ -288,8 +294,9 @@ class ProcessorLog:
 
     @property
     def latest_day(self) -> datetime.date | None:
-        """The latest day with any stored entry."""
-        return max((parse_day(e.date) for e in self.entries), default=None)
+        """The latest day with a stored entry that nothing corrects (a correction may have moved a wrong date)."""
+        return max((parse_day(e.date) for e in self.entries
+                    if self.states[e.id].corrected_by is None), default=None)  # type: ignore[index]
 
     def status(self, today: datetime.date | None = None) -> ProcessorStatus:
         """Today's status (the core's :meth:`QCLog.status`)."""
@@ -547,29 +554,6 @@ def _require_processor(archive: Archive, processor: str, new_processor: bool) ->
     return Processor(processor)
 
 
-class DuplicateDayError(ArchiveConflictError):
-    """A day's first strip when the day has one already; a second strip of the day is a repeat."""
-
-
-def _check_new_day(plog: ProcessorLog | None, processor: str, day: datetime.date, repeat: bool) -> None:
-    latest = plog.latest_day if plog else None
-    when = day.isoformat()
-    if repeat:
-        if latest is None or day > latest:
-            raise ValueError(f"processor {processor!r} has no QC entry for {when} to repeat; a day's first strip "
-                             "is stored as it is, not as a repeat")
-        if day < latest:
-            raise ValueError(f"dates out of order: a repeat strip of {when} would re-judge the days after it; "
-                             f"only the latest day ({latest.isoformat()}) of processor {processor!r} takes a repeat")
-        return
-    if latest is None:
-        return
-    if day == latest:
-        raise DuplicateDayError(f"processor {processor!r} already has a QC entry for {when} (duplicate day): to keep "
-                                "a second strip of that day, store it as a repeat strip, which then counts for the day")
-    if day < latest:
-        raise ValueError(f"dates out of order: {when} is before processor {processor!r}'s latest "
-                         f"QC entry ({latest.isoformat()}); entries are added in date order")
 
 
 def _provenance(note: str, source: str) -> str:
@@ -591,6 +575,7 @@ def add_day(
     action: str = "",
     new_processor: bool = False,
     repeat: bool = False,
+    late: bool = False,
 ) -> AddedDay:
     """Store one day's QC entry, typed in or read off a scan, in one transaction.
 
@@ -617,11 +602,16 @@ def add_day(
     repeat : bool
         A repeat strip of the latest day: stored beside the day's entry,
         which is kept, and used as the day's value from now on.
+    late : bool
+        A missed day entered after later days: stored marked as entered
+        late; the days after it are judged again in date order.
 
     Raises
     ------
     DuplicateDayError
         A second strip of a day not declared a repeat.
+    OutOfOrderError
+        A day before the latest one without ``late``.
     ValueError, ArchiveError
         With a one-line message; nothing is stored.
     """
@@ -631,9 +621,9 @@ def add_day(
         raise ValueError("--lot keeps the scanned strip in the archive; it needs a scan")
     add_processor = _require_processor(archive, processor, new_processor)
     plog = None if add_processor else load_processor_log(archive, processor)
-    _check_new_day(plog, processor, day, repeat)
     setup = plog.setup if plog else QcSetup()
     settings, reading, snapshot, notes = None, None, None, []
+    settings_reason = "QC log started"
     if analysis is not None:
         reading = read_strip(analysis, plog.steps_on(day) if plog else None, strip=strip)
         values = reading.values
@@ -641,6 +631,7 @@ def add_day(
             since = plog.step_restart(day) if plog else None
             choice = StepChoice(day, reading.steps, reading.source)
             settings = dataclasses.replace(setup, step_choices=(*setup.step_choices, choice)).to_settings()
+            settings_reason = f"QC steps chosen on {reading.source}"
             notes.append(f"QC steps chosen on this strip{' (after the ' + since.isoformat() + ' event)' if since else ''} "
                          f"and kept from now on: mid-density step {reading.steps.mid_step}, density difference "
                          f"step {reading.steps.dd_high_step} - step {reading.steps.dd_low_step}")
@@ -662,24 +653,29 @@ def add_day(
     entry = StoredEntry(processor, day.isoformat(), values.base_fog, values.mid_density, values.density_difference,
                         "scan" if analysis is not None else "manual", note=note, action=action)
     stored = archive.add_qc_day(entry, repeat=repeat, new_processor=add_processor, snapshot=snapshot,
-                                settings=settings)
+                                settings=settings, settings_reason=settings_reason, late=late)
     after = load_processor_log(archive, processor)
     if add_processor is not None:
         notes.insert(0, f"processor {processor!r} was not in the archive; added it and started its QC log")
     if stored.repeat_of is not None:
         notes.append(f"stored as a repeat strip of {stored.date}: entry {stored.repeat_of} is kept and shown, and "
                      "this strip is the day's value from now on")
+    if stored.entered_late:
+        notes.append(f"stored marked as entered late ({stored.recorded_at}): the days after {stored.date} are "
+                     "judged again with it, in date order")
     return AddedDay(stored, reading, after, after.status(), tuple(notes))
 
 
 def correct_entry(archive: Archive, entry_id: int, *, reason: str, base_fog: float | None = None,
                   mid_density: float | None = None, density_difference: float | None = None,
-                  note: str | None = None, action: str | None = None) -> AddedDay:
+                  note: str | None = None, action: str | None = None,
+                  date: datetime.date | None = None) -> AddedDay:
     """Correct a wrongly entered QC entry, keeping the wrong one for the audit trail.
 
-    A new entry of the same processor and day is stored that names the
-    entry it corrects and why; from then on it counts instead of that
-    entry, and every day is judged again.
+    A new entry of the same processor is stored that names the entry it
+    corrects and why; from then on it counts instead of that entry, and
+    every day is judged again.  With ``date`` it moves the entry to the
+    right day (a day's single strip, to a day without an entry).
 
     Parameters
     ----------
@@ -692,6 +688,8 @@ def correct_entry(archive: Archive, entry_id: int, *, reason: str, base_fog: flo
         The right values, OD; those not given are kept.
     note, action : str, optional
         A new remark or corrective action; kept when not given.
+    date : datetime.date, optional
+        The right date, when the entry's date was wrong.
 
     Raises
     ------
@@ -701,11 +699,12 @@ def correct_entry(archive: Archive, entry_id: int, *, reason: str, base_fog: flo
     if not isinstance(reason, str) or not reason.strip():
         raise ValueError(f"QC entry {entry_id} is corrected only with a reason: say why it was wrong")
     changes = {k: v for k, v in (("base_fog", base_fog), ("mid_density", mid_density),
-                                 ("density_difference", density_difference), ("note", note), ("action", action))
+                                 ("density_difference", density_difference), ("note", note), ("action", action),
+                                 ("date", date.isoformat() if date is not None else None))
                if v is not None}
     if not changes:
         raise ValueError(f"give the right value(s) for QC entry {entry_id}: base+fog, mid-density, density "
-                         "difference, note or action")
+                         "difference, date, note or action")
     old = archive.get_qc_entry(entry_id)
     numbers = {q: changes.get(q, getattr(old, q)) for q in QUANTITIES}
     if None not in numbers.values():
@@ -716,6 +715,9 @@ def correct_entry(archive: Archive, entry_id: int, *, reason: str, base_fog: flo
     stored = archive.add_qc_correction(entry_id, reason, **changes)
     after = load_processor_log(archive, stored.processor)
     notes = [f"entry {entry_id} of {old.date} is kept and shown as corrected by entry {stored.id}; it no longer counts"]
+    if stored.date != old.date:
+        notes.append(f"the strip now counts for {stored.date}; {old.date} has no entry of it any more"
+                     + (" (marked as entered late: the days after it are judged again)" if stored.entered_late else ""))
     if not after.states[stored.id].in_use:  # type: ignore[index]
         notes.append(f"entry {entry_id}'s strip was repeated the same day: the repeat still counts for {old.date}")
     return AddedDay(stored, None, after, after.status(), tuple(notes))
@@ -734,25 +736,24 @@ def add_event(archive: Archive, processor: str, day: datetime.date, kind: str, n
     if kind not in EVENT_KINDS:
         raise ValueError(f"unknown event kind {kind!r}; expected one of: {', '.join(EVENT_KINDS)}")
     add_processor = _require_processor(archive, processor, new_processor)
-    if add_processor is None:
-        latest = load_processor_log(archive, processor).latest_entry
-        if latest is not None and day < latest.date:
-            raise ValueError(f"dates out of order: the event of {day.isoformat()} is before processor "
-                             f"{processor!r}'s latest QC entry ({latest.date.isoformat()}); it would re-judge "
-                             "days already reported")
-    else:
+    if add_processor is not None:
         archive.add_processor(add_processor)
+    # The archive refuses a date before the latest entry inside the write (it would re-judge days already reported).
     archive.add_qc_event(processor, day.isoformat(), kind, note)
     return load_processor_log(archive, processor)
 
 
 def set_limits(archive: Archive, processor: str, *, md_dd_action: Any = _KEEP, md_dd_warning: Any = _KEEP,
                base_fog_action: Any = _KEEP, base_fog_warning: Any = _KEEP, baseline_days: Any = _KEEP,
-               run_length: Any = _KEEP, drift_length: Any = _KEEP, new_processor: bool = False) -> QcSetup:
+               run_length: Any = _KEEP, drift_length: Any = _KEEP, new_processor: bool = False,
+               reason: str = "") -> QcSetup:
     """Change a processor's limits, baseline length or trend-rule sizes; arguments not given stay.
 
     ``md_dd_warning=None`` or ``base_fog_warning=None`` removes that warning
-    tier.  Every stored day is judged again with the new settings.
+    tier.  Every stored day is judged again with the new settings.  The
+    settings before are kept (``Archive.qc_settings_history``): the change is
+    a new row with its time and ``reason`` (when none is given, the changes
+    themselves in words).
     """
     add_processor = _require_processor(archive, processor, new_processor)
     setup = QcSetup() if add_processor else load_setup(archive, processor)
@@ -765,7 +766,10 @@ def set_limits(archive: Archive, processor: str, *, md_dd_action: Any = _KEEP, m
         baseline_days=setup.baseline_days if baseline_days is _KEEP else baseline_days)
     if add_processor is not None:
         archive.add_processor(add_processor)
-    archive.set_qc_settings(processor, setup.to_settings())
+    changed = ", ".join(f"{k} {v}" for k, v in {**limits, **sizes}.items())
+    if baseline_days is not _KEEP:
+        changed = ", ".join(filter(None, (changed, f"baseline_days {baseline_days}")))
+    archive.set_qc_settings(processor, setup.to_settings(), reason.strip() or f"changed: {changed or 'nothing'}")
     return setup
 
 
@@ -785,7 +789,7 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
     baseline); ``latest`` (``date``, ``values``, ``deviations``, ``verdict``
     one of ok / warning / action, ``rules``, ``reasons``, ``advice``,
     ``entries``: every entry stored for that day with ``entry`` id,
-    ``kind``, ``in_use``, ``verdict`` and ``standing`` in words);
+    ``kind``, ``in_use``, ``entered_late``, ``verdict`` and ``standing`` in words);
     ``baseline`` (``in_progress``, ``days``, ``needed``, ``set_by``: see
     :func:`_baseline_json`); ``limits``; ``steps``; ``caution``.
     """
@@ -810,6 +814,7 @@ def status_json(plog: ProcessorLog, status: ProcessorStatus | None = None) -> di
             "reasons": list(reasons),
             "advice": status.advice,
             "entries": [{"entry": item.entry.id, "kind": item.entry.kind, "in_use": item.state.in_use,
+                         "entered_late": item.entry.entered_late,
                          # A value corrected as a slip is not a reading to judge.
                          "verdict": item.verdict.verdict if item.verdict and item.set_aside != "corrected" else None,
                          "standing": item.standing()}

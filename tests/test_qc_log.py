@@ -255,13 +255,13 @@ def test_levels_and_trend_rules_use_the_repeat_not_the_first_strip(archive):
 
 
 def test_repeats_are_refused_where_they_would_rewrite_or_invent_a_day(archive):
-    with pytest.raises(ValueError, match="has no QC entry for 2026-10-05 to repeat"):
+    with pytest.raises(ArchiveConflictError, match="has no QC entry for 2026-10-05 to repeat"):
         typed(archive, 0, repeat=True)
     baseline(archive, 3)
     with pytest.raises(DuplicateDayError, match="already has a QC entry for 2026-10-07 .*duplicate day.* as a "
                                                 "repeat strip"):
         typed(archive, 2, md=1.25)
-    with pytest.raises(ValueError, match="no QC entry for 2026-10-08 to repeat"):
+    with pytest.raises(ArchiveConflictError, match="no QC entry for 2026-10-08 to repeat"):
         typed(archive, 3, repeat=True)
     with pytest.raises(ValueError, match="dates out of order: a repeat strip of 2026-10-06 would re-judge"):
         typed(archive, 1, repeat=True)

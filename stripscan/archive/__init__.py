@@ -13,8 +13,11 @@ from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
     ArchiveError,
+    ArchiveIntegrityError,
     ArchiveLookupError,
     ArchiveReadOnlyError,
+    DuplicateDayError,
+    OutOfOrderError,
 )
 from .records import (
     FIGURES,
@@ -48,6 +51,9 @@ __all__ = [
     "ArchiveConflictError",
     "ArchiveLookupError",
     "ArchiveReadOnlyError",
+    "ArchiveIntegrityError",
+    "DuplicateDayError",
+    "OutOfOrderError",
     "FIGURES",
     "Crossover",
     "EmulsionLot",

@@ -9,6 +9,7 @@ handler returns the exit status.  Failures print one line
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import sys
 from collections.abc import Callable, Sequence
@@ -19,7 +20,7 @@ from .. import CAUTION
 from ..core.records import warnings_of_strip
 from ..figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from .errors import ArchiveError
-from .records import FIGURES, Snapshot, SnapshotSummary, check_day
+from .records import FIGURES, NewSnapshot, Sensitometer, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
 
 __all__ = ["register"]
@@ -95,17 +96,58 @@ def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
         print("  ".join(str(c).ljust(w) for c, w in zip(line, widths)).rstrip())
 
 
-def _cmd_add(args: argparse.Namespace) -> int:
-    """Analyse a scan and store one snapshot per strip."""
+def _exposure_table(path: Path) -> tuple[float, ...]:
+    from stripscan.cli import CommandError, _read_exposure_table
+
     try:
-        from stripscan.core.calibration import load_calibration
-        from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-    except ImportError as exc:
-        return _fail(f"scan analysis is not available in this installation ({exc})")
+        return _read_exposure_table(str(path))
+    except CommandError as exc:
+        raise ValueError(str(exc)) from None
+
+
+def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sensitometer | None]:
+    """Analyse ``args.scan`` with the options ``archive add`` and ``archive revise`` share.
+
+    Returns the analysis, the calibration used (or None) and a sensitometer
+    to store with the snapshots (or None).  ``--sensitometer`` names a
+    stored sensitometer whose step table is used unless ``--exposures`` is
+    given; one not stored yet is stored with the table the strips were read
+    with (``--exposures``, or ``--increment`` per step).
+    """
+    from stripscan.core.calibration import load_calibration
+    from stripscan.core.curve import FigureSettings
+    from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None
+    table = _exposure_table(args.exposures) if args.exposures is not None else None
+    known = None
+    if args.sensitometer is not None:
+        known = next((s for s in archive.list_sensitometers() if s.sensitometer_id == args.sensitometer), None)
+        if table is None and known is not None:
+            table = known.log_exposures
+        elif known is not None and tuple(table) != known.log_exposures:  # type: ignore[arg-type]
+            raise ValueError(f"{args.exposures}: the step table differs from the one stored for sensitometer "
+                             f"{args.sensitometer!r}; name another sensitometer, or leave out --exposures")
+    n_steps = args.steps if args.steps is not None or table is None else len(table)
+    options = AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table,
+                              figures=FigureSettings(gradient_low=args.low, gradient_high=args.high))
+    analysis = analyze_scan(args.scan, calibration=calibration, options=options)
+    new = None
+    if args.sensitometer is not None and known is None and analysis.strips:
+        new = Sensitometer(args.sensitometer, log_exposures=tuple(s.log_exposure for s in analysis.strips[0].steps))
+    return analysis, calibration, new
+
+
+def _sensitometer_note(new: Sensitometer) -> str:
+    return (f"sensitometer {new.sensitometer_id!r} was not in the archive; added it with the "
+            f"{len(new.log_exposures)}-step log exposure table these strips were read with")
+
+
+def _cmd_add(args: argparse.Namespace) -> int:
+    """Analyse a scan and store one snapshot per strip."""
     with _open(args, create=True) as archive:
-        analysis = analyze_scan(args.scan, calibration=calibration, options=AnalysisOptions(n_steps=args.steps))
+        analysis, calibration, sensitometer = _analyse(args, archive)
         new = []
         if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
             new.append(f"lot {args.lot!r}")
@@ -114,19 +156,26 @@ def _cmd_add(args: argparse.Namespace) -> int:
         stored = archive.add_analysis(
             analysis, args.lot, calibration=calibration.to_dict() if calibration is not None else None,
             create_missing=True, processor=args.processor, operator=args.operator or "",
-            exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "")
+            exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "",
+            sensitometer=args.sensitometer, new_sensitometer=sensitometer)
     for item in new:
         print(f"note: {item} was not in the archive; added it with no further details")
+    if sensitometer is not None:
+        print(f"note: {_sensitometer_note(sensitometer)}")
     if calibration is None:
         print("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
               "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
               "with calibrated ones")
     for snapshot in stored:
-        f = snapshot.figures
-        print(f"snapshot {snapshot.id}: lot {snapshot.lot_id}, strip {snapshot.strip.index}, "
-              f"base+fog {_number(f.base_fog)}, mid-density {_number(f.mid_density)}, "
-              f"density difference {_number(f.density_difference)}, speed {_number(f.speed_log_exposure)}")
+        print(f"snapshot {snapshot.id}: {_stored_line(snapshot)}")
     return 0
+
+
+def _stored_line(snapshot: Snapshot) -> str:
+    f = snapshot.figures
+    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_number(f.base_fog)}, mid-density "
+            f"{_number(f.mid_density)}, density difference {_number(f.density_difference)}, speed "
+            f"{_number(f.speed_log_exposure)}")
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
@@ -231,6 +280,11 @@ def _cmd_import(args: argparse.Namespace) -> int:
     added = ", ".join(f"{n} {k.replace('_', ' ')}" for k, n in report.added.items() if n) or "nothing new"
     same = sum(report.unchanged.values())
     print(f"imported {report.source}: {added}" + (f"; {same} item(s) were already present" if same else ""))
+    if report.entered_late:
+        print(f"note: QC entr{'y' if len(report.entered_late) == 1 else 'ies'} "
+              f"{', '.join(map(str, report.entered_late))} of the file are dated before days already in the log "
+              "and are not marked as entered late there; stored marked as entered late: the days after them are "
+              "judged again (see 'stripscan qc list')")
     return 0
 
 
@@ -239,6 +293,80 @@ def _cmd_backup(args: argparse.Namespace) -> int:
     with _open(args, create=False) as archive:
         written = archive.backup(args.dest, overwrite=args.overwrite)
     print(f"backed up {archive.path} to {written}")
+    return 0
+
+
+def _cmd_revise(args: argparse.Namespace) -> int:
+    """Correct a snapshot: store a revision with a reason; the old snapshot stays readable, marked revised."""
+    with _open(args, create=False) as archive:
+        old = archive.get_snapshot(args.id)
+        draft = NewSnapshot(
+            lot_id=old.lot_id, scan=old.scan, strip=old.strip, processor=old.processor,
+            sensitometer=old.sensitometer,
+            calibration=archive.get_calibration(old.calibration_hash) if old.calibration_hash else None,
+            operator=old.operator, exposed_on=old.exposed_on, processed_on=old.processed_on,
+            scanned_on=old.scanned_on, settings=old.settings, warnings=old.warnings,
+            program_version=old.program_version, notes=old.notes, preview_png=old.preview_png)
+        changes = {k: v for k, v in (("lot_id", args.lot), ("processor", args.processor),
+                                     ("sensitometer", args.sensitometer), ("operator", args.operator),
+                                     ("exposed_on", args.exposed), ("processed_on", args.processed),
+                                     ("scanned_on", args.scanned), ("notes", args.note)) if v is not None}
+        sensitometer = None
+        if args.scan is not None:
+            analysis, calibration, sensitometer = _analyse(args, archive)
+            index = args.strip if args.strip is not None else old.strip.index
+            strip = next((s for s in analysis.strips if s.index == index), None)
+            if strip is None:
+                raise ValueError(f"{args.scan} has no strip {index} (it holds {len(analysis.strips)}); "
+                                 "say which with --strip N")
+            changes.update(scan=analysis.scan, strip=strip, settings=dict(analysis.settings),
+                           warnings=tuple(analysis.warnings), program_version=analysis.program_version,
+                           calibration=calibration.to_dict() if calibration is not None else analysis.calibration,
+                           preview_png=None)
+        elif any(v is not None for v in (args.calibration, args.exposures, args.strip)):
+            raise ValueError("--calibration, --exposures and --strip apply when the scan is read again; give SCAN")
+        if not changes:
+            raise ValueError(f"snapshot {args.id}: say what the revision changes (a detail such as --processed, "
+                             "or SCAN to read the strip again)")
+        revision = archive.revise(args.id, dataclasses.replace(draft, **changes), args.reason or "",
+                                  new_sensitometer=sensitometer)
+    if sensitometer is not None:
+        print(f"note: {_sensitometer_note(sensitometer)}")
+    print(f"snapshot {revision.id} revises snapshot {args.id} ({revision.revision_reason}): "
+          f"{_stored_line(revision)}; snapshot {args.id} is kept, marked revised")
+    return 0
+
+
+def _cmd_retire(args: argparse.Namespace) -> int:
+    """Withdraw a snapshot from listings and trends, with a reason; it stays readable ('archive show')."""
+    with _open(args, create=False) as archive:
+        retired = archive.retire(args.id, args.reason or "")
+    print(f"snapshot {retired.id} retired {retired.retired_at}: {retired.retired_reason}; "
+          "it stays in the archive, left out of listings, trends and comparisons")
+    return 0
+
+
+def _cmd_lot(args: argparse.Namespace) -> int:
+    """Store an emulsion lot's film type, expiry date and date received (a new lot is added)."""
+    with _open(args, create=True) as archive:
+        lot = archive.update_lot(args.lot, film_type=args.film_type, expiry_date=args.expires,
+                                 received_date=args.received, notes=args.note, create_missing=True)
+    print(f"lot {lot.lot_id}: film type {lot.film_type or '-'}; expires {lot.expiry_date or '-'}; "
+          f"received {lot.received_date or '-'}" + (f"; {lot.notes}" if lot.notes else ""))
+    return 0
+
+
+def _cmd_verify(args: argparse.Namespace) -> int:
+    """Check every stored record against the archive's hash chain; name the first one that does not match."""
+    path = args.archive if args.archive is not None else default_archive_path()
+    with Archive.open(path, create=False, check_chain=False) as archive:
+        report = archive.verify()
+    if not report.ok:
+        return _fail(f"{archive.path}: {report.problem}")
+    print(f"{archive.path}: all {report.records} records match the hash chain")
+    print(f"  head: record {report.head_seq}, sha256 {report.head_sha256}")
+    print("  (this detects changes made outside stripscan; it cannot prevent them. Keep the head line elsewhere "
+          "to show later that the chain up to it was not rebuilt)")
     return 0
 
 
@@ -288,7 +416,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--processed", metavar="DATE", type=_date, help="processing date, YYYY-MM-DD")
     add.add_argument("--scanned", metavar="DATE", type=_date, help="scan date, YYYY-MM-DD")
     add.add_argument("--note", metavar="TEXT", help="free text kept with each snapshot")
-    add.add_argument("--steps", metavar="N", type=int, help="number of steps on the strip")
+    _reading_arguments(add)
 
     listing = command("list", _cmd_list, "list snapshots")
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")
@@ -315,4 +443,48 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     backup.add_argument("--overwrite", action="store_true", help="replace DEST if it exists")
 
     command("lots", _cmd_lots, "list emulsion lots")
+
+    lot = command("lot", _cmd_lot, "store a lot's film type, expiry date and date received")
+    lot.add_argument("lot", metavar="ID", help="emulsion lot id (added when new)")
+    lot.add_argument("--film-type", metavar="NAME", help="kind of film (added to the archive when new)")
+    lot.add_argument("--expires", metavar="DATE", type=_date, help="expiry date on the box, YYYY-MM-DD")
+    lot.add_argument("--received", metavar="DATE", type=_date, help="date the box arrived, YYYY-MM-DD")
+    lot.add_argument("--note", metavar="TEXT", help="free text kept with the lot")
+
+    revise = command("revise", _cmd_revise, "correct a snapshot by storing a revision, with a reason")
+    revise.add_argument("id", metavar="ID", type=int, help="snapshot number (the latest of its chain)")
+    revise.add_argument("scan", metavar="SCAN", type=Path, nargs="?",
+                        help="read the strip again from this scan (default: keep the stored reading)")
+    revise.add_argument("--reason", metavar="TEXT", required=True, help="why the snapshot is corrected (needed)")
+    revise.add_argument("--strip", metavar="N", type=int, help="which strip of SCAN (default: the same number)")
+    revise.add_argument("--lot", metavar="ID", help="the right emulsion lot")
+    revise.add_argument("--processor", metavar="P", help="the right processor")
+    revise.add_argument("--calibration", metavar="CAL.json", type=Path, help="with SCAN: scanner calibration")
+    revise.add_argument("--operator", metavar="NAME", help="the right operator")
+    revise.add_argument("--exposed", metavar="DATE", type=_date, help="the right exposure date")
+    revise.add_argument("--processed", metavar="DATE", type=_date, help="the right processing date")
+    revise.add_argument("--scanned", metavar="DATE", type=_date, help="the right scan date")
+    revise.add_argument("--note", metavar="TEXT", help="the right free text")
+    _reading_arguments(revise)
+
+    retire = command("retire", _cmd_retire, "withdraw a snapshot from listings and trends, with a reason")
+    retire.add_argument("id", metavar="ID", type=int, help="snapshot number (the latest of its chain)")
+    retire.add_argument("--reason", metavar="TEXT", required=True, help="why it no longer counts (needed)")
+
+    command("verify", _cmd_verify, "check every stored record against the hash chain")
     return parser
+
+
+def _reading_arguments(parser: argparse.ArgumentParser) -> None:
+    """How the strips are read, as ``stripscan analyze`` takes it (``archive add`` and ``archive revise``)."""
+    parser.add_argument("--steps", metavar="N", type=int, help="number of steps on the strip")
+    parser.add_argument("--increment", type=float, default=0.15, metavar="LOGE",
+                        help="log exposure per step (default 0.15 = log10 √2)")
+    parser.add_argument("--exposures", metavar="FILE", type=Path,
+                        help="per-step log exposure table from the sensitometer, one per line")
+    parser.add_argument("--sensitometer", metavar="ID",
+                        help="sensitometer used: its stored step table is used (unless --exposures); a new one is "
+                             "added with the table the strips were read with")
+    parser.add_argument("--low", type=float, default=0.25,
+                        help="lower net density for average gradient and latitude (ISO 9236-1: 0.25)")
+    parser.add_argument("--high", type=float, default=2.00, help="upper net density (ISO 9236-1: 2.00)")

@@ -13,6 +13,9 @@ __all__ = [
     "ArchiveReadOnlyError",
     "ArchiveConflictError",
     "ArchiveLookupError",
+    "ArchiveIntegrityError",
+    "DuplicateDayError",
+    "OutOfOrderError",
 ]
 
 
@@ -34,3 +37,18 @@ class ArchiveConflictError(ArchiveError):
 
 class ArchiveLookupError(ArchiveError, LookupError):
     """A snapshot, lot, processor or other item is not in the archive."""
+
+
+class ArchiveIntegrityError(ArchiveError):
+    """The stored history does not match its hash chain: it was changed outside stripscan."""
+
+
+class DuplicateDayError(ArchiveConflictError):
+    """A day's first strip when the day has one already; a second strip of the day is a repeat."""
+
+
+class OutOfOrderError(ArchiveConflictError, ValueError):
+    """A QC entry or event dated before the latest day of its processor's log, not declared entered late.
+
+    Also a ValueError, as the date-order refusal was before the archive itself checked it.
+    """

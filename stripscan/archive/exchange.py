@@ -20,7 +20,7 @@ from typing import IO, TYPE_CHECKING, Any
 
 from stripscan import __version__
 
-from .errors import ArchiveConflictError, ArchiveError, ArchiveLookupError
+from .errors import ArchiveConflictError, ArchiveError, ArchiveLookupError, OutOfOrderError
 from .records import (
     FIGURE_UNITS,
     FIGURES,
@@ -47,9 +47,12 @@ __all__ = ["EXPORT_FORMAT", "EXPORT_FORMAT_VERSION", "export_data", "export_json
 EXPORT_FORMAT = "stripscan lot archive"
 #: Version 2 gives QC entries their id, recording time and repeat/correction
 #: links.  Version 1 files (QC entries without ids) are still read: their
-#: entries are each a day's first strip and get new ids.
-EXPORT_FORMAT_VERSION = 2
-_READABLE_VERSIONS = (1, 2)
+#: entries are each a day's first strip and get new ids.  Version 3 adds
+#: ``entered_late`` to QC entries, lets a correction carry another date, and
+#: lists every QC settings row (with ``id`` and ``reason``), not only the
+#: latest.
+EXPORT_FORMAT_VERSION = 3
+_READABLE_VERSIONS = (1, 2, 3)
 
 # Sections in the order they must be stored: everything a row refers to
 # comes before the row (lots need film types, snapshots need lots...).
@@ -120,7 +123,7 @@ def export_data(archive: "Archive") -> dict[str, Any]:
             "calibrations": calibrations,
             "snapshots": [r.to_dict() for r in archive.all_snapshots()],
             "snapshot_notes": [r.to_dict() for r in archive.list_notes()],
-            "qc_settings": [r.to_dict() for r in archive.list_qc_settings()],
+            "qc_settings": [r.to_dict() for r in archive.qc_settings_history()],
             "qc_entries": [r.to_dict() for r in archive.list_qc_entries()],
             "qc_events": [r.to_dict() for r in archive.list_qc_events()],
             "crossovers": [r.to_dict() for r in archive.list_crossovers()],
@@ -222,7 +225,10 @@ def _stored_twin(archive: "Archive", section: str, record: Any) -> tuple[str, An
     if section == "snapshot_notes":
         return f"note {record.id}", next((n for n in archive.list_notes() if n.id == record.id), None)
     if section == "qc_settings":
-        return f"QC settings of {record.processor!r}", archive.get_qc_settings(record.processor)
+        if record.id is None:  # a file of format 2 or older: the settings in force
+            return f"QC settings of {record.processor!r}", archive.get_qc_settings(record.processor)
+        return (f"QC settings row {record.id} of {record.processor!r}",
+                next((r for r in archive.qc_settings_history(record.processor) if r.id == record.id), None))
     if section == "qc_entries":
         return _stored_qc_twin(archive, record)
     if section == "qc_events":
@@ -245,7 +251,7 @@ def _stored_qc_twin(archive: "Archive", record: QcEntry) -> tuple[str, Any]:
             None if first is None else dataclasses.replace(first, id=None, recorded_at=None))
 
 
-def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: Any) -> None:
+def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: Any) -> Any:
     if section in ("film_types", "emulsion_lots", "processors", "sensitometers"):
         archive._insert_reference(conn, record)
     elif section == "calibrations":
@@ -259,25 +265,50 @@ def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: 
     elif section == "qc_settings":
         archive._insert_qc_settings(conn, record)
     elif section == "qc_entries":
-        archive._insert_qc_entry(conn, record)
+        # The same date-order rule as entry, checked as the file's entries are stored in id order; an entry
+        # dated before a day already in the log is stored marked as entered late, never silently.
+        return archive._insert_qc_entry(conn, record, late="mark")
     elif section == "qc_events":
         archive._insert_qc_event(conn, record)
     else:
         archive._insert_crossover(conn, record)
+    return record
 
 
-def _comparable(item: Any) -> Any:
+# What a file of an older format cannot say, left out when comparing with what is stored.
+_NOT_IN_OLD_FORMATS = {"qc_entries": ("entered_late",), "qc_settings": ("id", "reason")}
+
+
+def _comparable(item: Any, section: str = "", old_format: bool = False) -> Any:
     # JSON form: NaN densities read back as NaN, which never equals itself.
-    return item.to_dict() if hasattr(item, "to_dict") else item
+    data = item.to_dict() if hasattr(item, "to_dict") else item
+    if old_format and section in _NOT_IN_OLD_FORMATS:
+        data = {k: v for k, v in data.items() if k not in _NOT_IN_OLD_FORMATS[section]}
+    return data
+
+
+def _check_not_back_dated(path: Path, latest: dict[str, str | None], section: str, record: Any) -> None:
+    """An event or crossover of the file dated before the latest QC day already stored would re-judge it."""
+    day = latest.get(record.processor)
+    if day is not None and record.date < day:
+        what = "QC event" if section == "qc_events" else "crossover"
+        raise OutOfOrderError(f"{path}: cannot import {what} {record.id} of {record.date}: it is dated before "
+                              f"processor {record.processor!r}'s latest QC entry ({day}) and would re-judge days "
+                              "already reported; nothing was imported")
 
 
 def import_json(archive: "Archive", path: Path) -> ImportReport:
     """Add the contents of an export file to ``archive``, all in one transaction."""
     path = path.expanduser().absolute()
-    parsed = _parse_sections(path, _read_export(path))
+    data = _read_export(path)
+    old_format = data.get("format_version") != EXPORT_FORMAT_VERSION
+    parsed = _parse_sections(path, data)
     added = {section: 0 for section, _ in _SECTIONS}
     unchanged = dict(added)
+    late: list[int] = []
     with archive._writing(f"import {path}") as conn:
+        # The log's latest day before the import, for the file's events and crossovers.
+        latest = {p.name: archive._qc_latest_day(conn, p.name) for p in archive.list_processors()}
         for section, _ in _SECTIONS:
             records = parsed[section]
             if section == "snapshots":
@@ -289,17 +320,21 @@ def import_json(archive: "Archive", path: Path) -> ImportReport:
             for record in records:
                 what, stored = _stored_twin(archive, section, record)
                 if stored is None:
+                    if section in ("qc_events", "crossovers"):
+                        _check_not_back_dated(path, latest, section, record)
                     try:
-                        _insert(archive, conn, section, record)
+                        result = _insert(archive, conn, section, record)
                     except ArchiveError as exc:
                         raise type(exc)(f"{path}: cannot import {what}: {exc}; nothing was imported") from None
+                    if section == "qc_entries" and result.entered_late and not record.entered_late:
+                        late.append(result.id)
                     added[section] += 1
-                elif _comparable(stored) == _comparable(record):
+                elif _comparable(stored, section, old_format) == _comparable(record, section, old_format):
                     unchanged[section] += 1
                 else:
                     raise ArchiveConflictError(
                         f"{path}: {what} differs from the one already in {archive.path}; nothing was imported")
-    return ImportReport(str(path), added, unchanged)
+    return ImportReport(str(path), added, unchanged, tuple(late))
 
 
 def _cell(value: Any) -> Any:

@@ -13,13 +13,21 @@ Rules for whoever adds a step
   ``snapshots_frozen`` trigger with the new column in its list, otherwise
   the new column would be open to UPDATE.  (A test walks the table's
   columns to catch this.)
+* From version 4 on every record is in the hash chain (:mod:`.chain`),
+  whose content hash covers every non-NULL column: a step that adds a
+  column to a chained table gives it a NULL default, or old records would
+  no longer match.
 """
 
 from __future__ import annotations
 
+import sqlite3
+from collections.abc import Callable
 from dataclasses import dataclass
 
-__all__ = ["Migration", "MIGRATIONS", "LATEST_VERSION", "APPLICATION_ID"]
+from . import chain
+
+__all__ = ["Migration", "MIGRATIONS", "LATEST_VERSION", "APPLICATION_ID", "CHAIN_VERSION"]
 
 #: Written to ``PRAGMA application_id`` so a stripscan archive can be told
 #: from any other SQLite file ("SSAR" in ASCII).
@@ -33,6 +41,8 @@ class Migration:
     version: int
     summary: str
     statements: tuple[str, ...]
+    #: Run after the statements, in the same transaction, for what SQL alone cannot do.
+    code: Callable[[sqlite3.Connection], None] | None = None
 
 
 _V1 = (
@@ -289,10 +299,116 @@ _V3 = (
     BEGIN SELECT RAISE(ABORT, 'a repeat or a correction names an entry of the same processor and day'); END""",
 )
 
+def _no_change(table: str, what: str) -> tuple[str, ...]:
+    """Triggers that keep a table's rows as stored: no UPDATE, no DELETE, no INSERT OR REPLACE of an id."""
+    return (
+        f"""CREATE TRIGGER {table}_no_update BEFORE UPDATE ON {table}
+        BEGIN SELECT RAISE(ABORT, '{what} are never changed; store a new one instead'); END""",
+        f"""CREATE TRIGGER {table}_no_delete BEFORE DELETE ON {table}
+        BEGIN SELECT RAISE(ABORT, '{what} are never deleted'); END""",
+        f"""CREATE TRIGGER {table}_no_replace BEFORE INSERT ON {table}
+        WHEN EXISTS (SELECT 1 FROM {table} WHERE id = NEW.id)
+        BEGIN SELECT RAISE(ABORT, '{what} are never replaced'); END""",
+    )
+
+
+# An entry "holds" its day while nothing corrects it: a correction may move
+# a wrongly dated entry to another day, which frees the old one.
+_HOLDS_DAY = "NOT EXISTS (SELECT 1 FROM qc_entries c WHERE c.corrects = e.id)"
+
+# v4: a QC history that cannot be rewritten unseen.
+# * QC entries: ``entered_late`` marks an entry stored after a later day of
+#   its processor (a missed day entered late, or a correction that moves a
+#   wrong date back); such an entry is refused unless marked.  A correction
+#   may fix the date: it names the entry it corrects and carries the right
+#   date, and the old day is free again.
+# * Events and crossovers can no longer be changed or deleted.
+# * QC settings become a history: every change is a new row with its time
+#   and reason; the latest row of a processor is in force.
+# * Lots may have their film type, expiry and received dates filled in
+#   later; the lot's key never changes.
+# * ``record_chain``: the hash chain over every stored record (see chain.py),
+#   built here for the records already stored.
+_V4 = (
+    "ALTER TABLE qc_entries ADD COLUMN entered_late INTEGER NOT NULL DEFAULT 0 CHECK (entered_late IN (0, 1))",
+    "DROP INDEX qc_entries_first_strip",
+    # What that unique index gave the day and date-order look-ups, without the uniqueness a moved date breaks.
+    "CREATE INDEX qc_entries_day ON qc_entries(processor, date)",
+    "DROP TRIGGER qc_entries_one_first_strip",
+    "DROP TRIGGER qc_entries_same_day",
+    f"""CREATE TRIGGER qc_entries_one_entry_a_day BEFORE INSERT ON qc_entries
+    WHEN NEW.repeat_of IS NULL
+        AND (NEW.corrects IS NULL OR NOT EXISTS (SELECT 1 FROM qc_entries
+            WHERE id = NEW.corrects AND date = NEW.date))
+        AND EXISTS (SELECT 1 FROM qc_entries e WHERE e.processor = NEW.processor AND e.date = NEW.date
+            AND {_HOLDS_DAY})
+    BEGIN SELECT RAISE(ABORT, 'one QC entry in use per processor and day; store a repeat or a correction instead');
+    END""",
+    """CREATE TRIGGER qc_entries_links BEFORE INSERT ON qc_entries
+    WHEN (NEW.repeat_of IS NOT NULL AND NOT EXISTS (SELECT 1 FROM qc_entries
+            WHERE id = NEW.repeat_of AND processor = NEW.processor AND date = NEW.date))
+        OR (NEW.corrects IS NOT NULL AND NOT EXISTS (SELECT 1 FROM qc_entries
+            WHERE id = NEW.corrects AND processor = NEW.processor))
+    BEGIN SELECT RAISE(ABORT, 'a repeat names an entry of the same processor and day, a correction one of the same processor');
+    END""",
+    f"""CREATE TRIGGER qc_entries_late BEFORE INSERT ON qc_entries
+    WHEN NEW.entered_late = 0
+        AND NOT (NEW.corrects IS NOT NULL AND EXISTS (SELECT 1 FROM qc_entries WHERE id = NEW.corrects
+            AND date = NEW.date))
+        AND EXISTS (SELECT 1 FROM qc_entries e WHERE e.processor = NEW.processor
+        AND e.date > NEW.date AND e.id IS NOT NEW.corrects AND {_HOLDS_DAY})
+    BEGIN SELECT RAISE(ABORT, 'a QC entry dated before the latest day of its processor is stored marked as entered late');
+    END""",
+    *_no_change("qc_events", "QC events"),
+    *_no_change("crossovers", "crossover records"),
+    "ALTER TABLE qc_settings RENAME TO qc_settings_v3",
+    """CREATE TABLE qc_settings (
+        id INTEGER PRIMARY KEY,
+        processor TEXT NOT NULL REFERENCES processors(name),
+        settings_json TEXT NOT NULL CHECK (json_valid(settings_json)),
+        updated_at TEXT NOT NULL,
+        reason TEXT NOT NULL DEFAULT ''
+    )""",
+    """INSERT INTO qc_settings (processor, settings_json, updated_at)
+    SELECT processor, settings_json, updated_at FROM qc_settings_v3 ORDER BY updated_at, processor""",
+    "DROP TABLE qc_settings_v3",
+    "CREATE INDEX qc_settings_processor ON qc_settings(processor, id)",
+    *_no_change("qc_settings", "QC settings rows"),
+    """CREATE TRIGGER emulsion_lots_key BEFORE UPDATE OF lot_id ON emulsion_lots
+    BEGIN SELECT RAISE(ABORT, 'a lot id is never changed'); END""",
+    """CREATE TRIGGER emulsion_lots_no_delete BEFORE DELETE ON emulsion_lots
+    BEGIN SELECT RAISE(ABORT, 'a lot is never deleted'); END""",
+    """CREATE TABLE record_chain (
+        seq INTEGER PRIMARY KEY CHECK (seq > 0),
+        kind TEXT NOT NULL,
+        key TEXT NOT NULL,
+        content_sha256 TEXT NOT NULL CHECK (length(content_sha256) = 64),
+        chain_sha256 TEXT NOT NULL CHECK (length(chain_sha256) = 64)
+    )""",
+    "CREATE INDEX record_chain_record ON record_chain(kind, key)",
+    """CREATE TRIGGER record_chain_no_update BEFORE UPDATE ON record_chain
+    BEGIN SELECT RAISE(ABORT, 'the record chain is never changed'); END""",
+    """CREATE TRIGGER record_chain_no_delete BEFORE DELETE ON record_chain
+    BEGIN SELECT RAISE(ABORT, 'the record chain is never changed'); END""",
+    """CREATE TRIGGER record_chain_in_order BEFORE INSERT ON record_chain
+    WHEN NEW.seq IS NOT (SELECT coalesce(max(seq), 0) + 1 FROM record_chain)
+    BEGIN SELECT RAISE(ABORT, 'the record chain only grows at its end'); END""",
+)
+
+
+def _chain_stored_records(conn: sqlite3.Connection) -> None:
+    chain.append_all(conn)
+
+
 MIGRATIONS: tuple[Migration, ...] = (
     Migration(1, "lots, processors, sensitometers, calibrations, snapshots, processor QC", _V1),
     Migration(2, "notes on snapshots; index by processor", _V2),
     Migration(3, "QC entries: ids, repeat strips, corrections, no changes", _V3),
+    Migration(4, "late QC entries, date corrections, settings history, frozen events and crossovers, hash chain",
+              _V4, _chain_stored_records),
 )
+
+#: The first schema version with the hash chain.
+CHAIN_VERSION = 4
 
 LATEST_VERSION = MIGRATIONS[-1].version

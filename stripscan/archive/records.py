@@ -659,6 +659,13 @@ class QcEntry(_Plain):
         For a correction: the entry whose values it replaces.
     reason : str or None
         Why the correction was made (set exactly when ``corrects`` is).
+        A correction may also fix the date: it then carries the right date
+        and the corrected entry's day is free again.
+    entered_late : bool
+        Stored after a later day of the same processor was already in the
+        log (a missed day entered late, or a date corrected backwards);
+        ``recorded_at`` says when.  Levels, limits and trend rules take the
+        days in date order all the same.
     """
 
     processor: str
@@ -675,9 +682,13 @@ class QcEntry(_Plain):
     repeat_of: int | None = None
     corrects: int | None = None
     reason: str | None = None
+    entered_late: bool = False
 
     def __post_init__(self) -> None:
         _check_name(self.processor, "processor")
+        if self.entered_late not in (True, False):  # 0 and 1 as SQLite returns them are fine
+            raise ValueError(f"entered_late must be true or false, not {self.entered_late!r}")
+        _set(self, "entered_late", bool(self.entered_late))
         if self.date is None:
             raise ValueError("a QC entry needs a date")
         check_day(self.date, "QC date")
@@ -741,7 +752,8 @@ def qc_entry_states(entries: Iterable[QcEntry]) -> dict[int, QcEntryState]:
     """The state of every stored entry, by id.
 
     A day's strips are taken in the order they were stored; a correction
-    belongs to the strip of the entry it corrects.  The day's value is the
+    belongs to the strip of the entry it corrects, and the strip belongs to
+    the day of its latest correction (a correction may fix a wrong date).  The day's value is the
     latest strip's latest correction (common practice: a repeat strip
     confirms or clears the first result).
 
@@ -765,7 +777,8 @@ def qc_entry_states(entries: Iterable[QcEntry]) -> dict[int, QcEntryState]:
     later: dict[int, int] = {}
     days: dict[tuple[str, str], set[int]] = {}
     for i, e in by_id.items():
-        days.setdefault((e.processor, e.date), set()).add(strips[i])
+        if i not in corrected_by:  # the chain's latest entry says which day the strip is of
+            days.setdefault((e.processor, e.date), set()).add(strips[i])
     for firsts in days.values():
         ordered = sorted(firsts)
         later.update(zip(ordered, ordered[1:]))
@@ -793,14 +806,30 @@ class QcEvent(_Plain):
 
 @dataclass(frozen=True)
 class QcSettings(_Plain):
-    """A processor's QC settings (operating levels, control limits, steps) as plain JSON."""
+    """A processor's QC settings (operating levels, control limits, steps) as plain JSON.
+
+    Settings are never changed in place: every change is a new row with its
+    time and reason, and a processor's latest row is in force.
+
+    Attributes
+    ----------
+    reason : str
+        Why the settings were changed ('' for rows from before the archive
+        kept a reason).
+    id : int or None
+        Archive-wide number of the row; None before it is stored.
+    """
 
     processor: str
     settings: dict[str, Any]
     updated_at: str
+    reason: str = ""
+    id: int | None = None
 
     def __post_init__(self) -> None:
         _check_name(self.processor, "processor")
+        _check_text(self.reason, "reason for the settings change")
+        _check_id(self.id, "QC settings id")
         if not isinstance(self.settings, dict):
             raise ValueError("QC settings must be a JSON object (dict)")
         canonical_json(self.settings)
@@ -831,6 +860,8 @@ class ImportReport(_Plain):
     source: str
     added: dict[str, int]
     unchanged: dict[str, int]
+    #: QC entries of the file dated before a day already in the log, stored marked as entered late.
+    entered_late: tuple[int, ...] = ()
 
 
 def snapshots_from_analysis(analysis: Analysis, lot_id: str, *, calibration: dict[str, Any] | None = None,

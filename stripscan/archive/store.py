@@ -15,7 +15,13 @@ Processor QC entries are kept the same way: a second strip of a day is a
 *repeat* linked to the day's entry (:meth:`Archive.add_qc_entry` with
 ``repeat=True``), a wrongly entered value is fixed by a *correction* that
 names the entry and a reason (:meth:`Archive.add_qc_correction`), and
-nothing stored is changed or deleted.
+nothing stored is changed or deleted.  Entries go in date order, checked
+inside the write transaction; a missed day is stored late on purpose
+(``late=True``) and marked as entered late.
+
+Every stored record also joins a hash chain (:mod:`.chain`) in the same
+transaction: :meth:`Archive.verify` names the first record changed outside
+stripscan, and opening the file checks the chain's head cheaply.
 """
 
 from __future__ import annotations
@@ -32,14 +38,18 @@ from typing import Any, Callable
 
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
+from . import chain
 from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
     ArchiveError,
+    ArchiveIntegrityError,
     ArchiveLookupError,
     ArchiveReadOnlyError,
+    DuplicateDayError,
+    OutOfOrderError,
 )
-from .migrations import APPLICATION_ID, LATEST_VERSION, MIGRATIONS
+from .migrations import APPLICATION_ID, CHAIN_VERSION, LATEST_VERSION, MIGRATIONS
 from .records import (
     FIGURES,
     Crossover,
@@ -93,9 +103,14 @@ def _insert_sql(table: str, columns: Sequence[str]) -> str:
     return f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})"
 
 
-# What a correction of a QC entry may change; a wrong processor or date is another matter.
+# What a correction of a QC entry may change; a wrong processor is another matter.
 _QC_DENSITIES = ("base_fog", "mid_density", "density_difference")
-_QC_CORRECTABLE = (*_QC_DENSITIES, "note", "action")
+_QC_CORRECTABLE = (*_QC_DENSITIES, "date", "note", "action")
+
+# The latest day of a processor's log: of entries nothing corrects (a
+# correction may have moved a wrongly dated entry to another day).
+_QC_LATEST_DAY = ("SELECT max(e.date) FROM qc_entries e WHERE e.processor = ? AND e.id IS NOT ? "
+                  "AND NOT EXISTS (SELECT 1 FROM qc_entries c WHERE c.corrects = e.id)")
 
 _STEP_COLUMNS = ("snapshot_id", "step", "log_exposure", "od", "od_sd", "pixels", "in_range", "excluded")
 
@@ -113,6 +128,11 @@ _REFERENCE: dict[type, tuple[str, str, str]] = {
     Processor: ("processors", "name", "processor"),
     Sensitometer: ("sensitometers", "sensitometer_id", "sensitometer"),
 }
+# Their kind in the hash chain.
+_CHAIN_KIND = {FilmType: "film_type", EmulsionLot: "lot", Processor: "processor", Sensitometer: "sensitometer"}
+
+# Marks "leave as it is" where None is a value.
+_KEEP: Any = object()
 
 
 def user_data_folder() -> Path:
@@ -190,7 +210,7 @@ class Archive:
     @classmethod
     def open(cls, path: str | os.PathLike[str] | None = None, *,
              busy_timeout_ms: int = DEFAULT_BUSY_TIMEOUT_MS, read_only: bool = False,
-             create: bool = True) -> "Archive":
+             create: bool = True, check_chain: bool = True) -> "Archive":
         """Open (or create) an archive file and bring its schema up to date.
 
         Parameters
@@ -204,6 +224,10 @@ class Archive:
             Open for reading only.
         create : bool
             Create the file (and its folders) when it does not exist.
+        check_chain : bool
+            Check the head of the hash chain and that every stored record is
+            in it (cheap); False only to open a file whose chain is broken,
+            to look at it with :meth:`verify`.
 
         Raises
         ------
@@ -213,6 +237,9 @@ class Archive:
             to a newer stripscan, or cannot be created.
         ArchiveBusyError
             When another program holds the write lock during an upgrade.
+        ArchiveIntegrityError
+            When the stored history does not match its hash chain (a change
+            made outside stripscan); :meth:`verify` names the record.
         """
         if isinstance(busy_timeout_ms, bool) or not isinstance(busy_timeout_ms, int) or busy_timeout_ms < 0:
             raise ValueError(f"busy_timeout_ms must be a whole number of milliseconds >= 0, not {busy_timeout_ms!r}")
@@ -235,6 +262,8 @@ class Archive:
         archive = cls(conn, path, read_only=read_only, busy_timeout_ms=busy_timeout_ms)
         try:
             archive._prepare()
+            if check_chain:
+                archive._check_chain_head()
         except BaseException:
             archive.close()
             raise
@@ -299,6 +328,8 @@ class Archive:
                 if conn.execute("PRAGMA user_version").fetchone()[0] < migration.version:
                     for statement in migration.statements:
                         conn.execute(statement)
+                    if migration.code is not None:
+                        migration.code(conn)
                     if migration.version == 1:
                         conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
                     conn.execute(f"PRAGMA user_version = {migration.version}")
@@ -307,6 +338,42 @@ class Archive:
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
                 raise
+
+    def _check_chain_head(self) -> None:
+        if self.schema_version < CHAIN_VERSION:
+            return
+        with self._reading():
+            try:
+                problem = chain.check_head(self._c)
+            except sqlite3.Error as exc:
+                raise self._translate(exc, "check its record chain") from None
+        if problem is not None:
+            raise ArchiveIntegrityError(
+                f"{self.path}: the stored history does not match its hash chain ({problem}): it was changed "
+                "outside stripscan; 'stripscan archive verify' names the first record that does not match")
+
+    def verify(self) -> chain.ChainReport:
+        """Walk the whole hash chain and report the first stored record that does not match.
+
+        Returns
+        -------
+        ChainReport
+            Records walked, the chain's head (number and hash) and the first
+            problem in words, None when every record matches.  It detects a
+            change made outside stripscan; it cannot prevent one.
+        """
+        if self.schema_version < CHAIN_VERSION:
+            raise ArchiveError(f"{self.path} uses schema version {self.schema_version}, before the hash chain; "
+                               "open it once with write access to upgrade it")
+        with self._reading():
+            try:
+                return chain.verify(self._c)
+            except sqlite3.Error as exc:
+                raise self._translate(exc, "verify it") from None
+
+    def _chain(self, conn: sqlite3.Connection, kind: str, key: Any) -> None:
+        """Add the record just written to the hash chain, in the same transaction."""
+        chain.append(conn, kind, key)
 
     def close(self) -> None:
         """Close the file; calling it again does nothing."""
@@ -450,6 +517,7 @@ class Archive:
         row = self._reference_row(record)
         conn.execute(f"INSERT INTO {table} ({', '.join(row)}) VALUES ({', '.join('?' for _ in row)})",
                      tuple(row.values()))
+        self._chain(conn, _CHAIN_KIND[type(record)], key)
 
     def _add_reference(self, record: Any) -> Any:
         _, column, word = _REFERENCE[type(record)]
@@ -506,6 +574,53 @@ class Archive:
     def list_sensitometers(self) -> list[Sensitometer]:
         return self._list_reference(Sensitometer)
 
+    def update_lot(self, lot_id: str, *, film_type: str | None = None, expiry_date: str | None = None,
+                   received_date: str | None = None, notes: str | None = None,
+                   create_missing: bool = False) -> EmulsionLot:
+        """Fill in or change a lot's details; what is not given (None) stays as stored.
+
+        Parameters
+        ----------
+        lot_id : str
+            The lot (its id never changes).
+        film_type : str, optional
+            The kind of film; must be stored (see :meth:`add_film_type`)
+            unless ``create_missing``.
+        expiry_date, received_date : str, optional
+            ``YYYY-MM-DD``: the expiry date printed on the box, the day the
+            box arrived.
+        notes : str, optional
+            Free text.
+        create_missing : bool
+            Add the lot, and a bare film type, when not stored yet.
+
+        Returns
+        -------
+        EmulsionLot
+            The lot as stored now.  Each change is a new record of the hash chain.
+        """
+        with self._writing(f"store the details of lot {lot_id!r}") as conn:
+            exists = self._exists("emulsion_lots", "lot_id", lot_id)
+            if not exists and not create_missing:
+                raise self._missing("lot", lot_id)
+            old = self._get_reference(EmulsionLot, lot_id) if exists else EmulsionLot(lot_id)
+            given = {"film_type": film_type, "expiry_date": expiry_date, "received_date": received_date,
+                     "notes": notes}
+            new = self._checked(f"store the details of lot {lot_id!r}", EmulsionLot,
+                                **{**old.to_dict(), **{k: v for k, v in given.items() if v is not None}})
+            if new.film_type is not None and not self._exists("film_types", "name", new.film_type):
+                if not create_missing:
+                    raise self._missing("film type", new.film_type)
+                self._insert_reference(conn, FilmType(new.film_type))
+            if not exists:
+                self._insert_reference(conn, new)
+            elif new != old:
+                conn.execute("UPDATE emulsion_lots SET film_type = ?, expiry_date = ?, received_date = ?, notes = ? "
+                             "WHERE lot_id = ?", (new.film_type, new.expiry_date, new.received_date, new.notes,
+                                                  lot_id))
+                self._chain(conn, "lot", lot_id)
+            return new
+
     def list_lots(self) -> list[LotSummary]:
         """Every lot with the count and first/last film date of its current snapshots."""
         rows = self._rows(
@@ -526,6 +641,7 @@ class Archive:
         if not self._exists("calibrations", "hash", digest):
             conn.execute("INSERT INTO calibrations (hash, json) VALUES (?, ?)",
                          (digest, calibration_text(calibration)))
+            self._chain(conn, "calibration", digest)
         return digest
 
     def add_calibration(self, calibration: dict[str, Any]) -> str:
@@ -610,6 +726,9 @@ class Archive:
             _insert_sql("snapshot_steps", _STEP_COLUMNS),
             [(snapshot.id, s["step"], s["log_exposure"], s["od"], s["od_sd"], s["pixels"],
               int(s["in_range"]), int(s["excluded"])) for s in steps])
+        self._chain(conn, "snapshot", snapshot.id)
+        if snapshot.retired_at is not None:
+            self._chain(conn, "retirement", snapshot.id)
 
     def _store_new(self, conn: sqlite3.Connection, draft: NewSnapshot, *, create_missing: bool,
                    revises: int | None = None, reason: str | None = None) -> int:
@@ -646,26 +765,36 @@ class Archive:
         """
         return self.add_snapshots([draft], create_missing=create_missing)[0]
 
-    def add_snapshots(self, drafts: Iterable[NewSnapshot], *, create_missing: bool = False) -> list[Snapshot]:
-        """Store several readings in one transaction: all of them or none."""
+    def add_snapshots(self, drafts: Iterable[NewSnapshot], *, create_missing: bool = False,
+                      new_sensitometer: Sensitometer | None = None) -> list[Snapshot]:
+        """Store several readings in one transaction: all of them or none.
+
+        ``new_sensitometer`` is stored first, in the same transaction, for
+        readings that name a sensitometer the archive does not know yet.
+        """
         with self._writing("add snapshots") as conn:
+            if new_sensitometer is not None:
+                self._insert_reference(conn, new_sensitometer)
             ids = [self._store_new(conn, draft, create_missing=create_missing) for draft in drafts]
             return [self._load_snapshot(i) for i in ids]
 
     def add_analysis(self, analysis: Analysis, lot_id: str, *, calibration: dict[str, Any] | None = None,
-                     create_missing: bool = False, **details: Any) -> list[Snapshot]:
+                     create_missing: bool = False, new_sensitometer: Sensitometer | None = None,
+                     **details: Any) -> list[Snapshot]:
         """Store every strip of an analysed scan as one snapshot each, in one transaction.
 
         ``calibration`` is the full calibration used (see
         :func:`~stripscan.archive.records.snapshots_from_analysis`);
-        ``details`` are :class:`NewSnapshot` fields such as ``processor``,
-        ``operator``, ``exposed_on``, ``processed_on`` or ``notes``.
+        ``new_sensitometer`` a sensitometer to store with them (see
+        :meth:`add_snapshots`); ``details`` are :class:`NewSnapshot` fields
+        such as ``processor``, ``sensitometer``, ``operator``,
+        ``exposed_on``, ``processed_on`` or ``notes``.
         """
         try:
             drafts = snapshots_from_analysis(analysis, lot_id, calibration=calibration, **details)
         except (TypeError, ValueError) as exc:
             raise ArchiveError(f"{self.path}: cannot store {analysis.scan.path}: {exc}") from None
-        return self.add_snapshots(drafts, create_missing=create_missing)
+        return self.add_snapshots(drafts, create_missing=create_missing, new_sensitometer=new_sensitometer)
 
     def _snapshot_from_row(self, row: Sequence[Any]) -> Snapshot:
         data = dict(zip((*_SNAPSHOT_COLUMNS, *_DATA_COLUMNS), row))
@@ -886,7 +1015,8 @@ class Archive:
             raise ArchiveError(f"{self.path}: a snapshot is {doing} only with a reason")
         return reason.strip()
 
-    def revise(self, snapshot_id: int, new_record: NewSnapshot, reason: str) -> Snapshot:
+    def revise(self, snapshot_id: int, new_record: NewSnapshot, reason: str, *,
+               new_sensitometer: Sensitometer | None = None) -> Snapshot:
         """Correct a snapshot by storing ``new_record`` as its revision.
 
         The old snapshot stays as it was and readable; listings and trends
@@ -903,6 +1033,8 @@ class Archive:
         reason = self._reason(reason, "revised")
         with self._writing(f"revise snapshot {snapshot_id}") as conn:
             self._require_latest(conn, snapshot_id, "revised")
+            if new_sensitometer is not None:
+                self._insert_reference(conn, new_sensitometer)
             new_id = self._store_new(conn, new_record, create_missing=False, revises=snapshot_id, reason=reason)
             return self._load_snapshot(new_id)
 
@@ -917,6 +1049,7 @@ class Archive:
             self._require_latest(conn, snapshot_id, "retired")
             conn.execute("UPDATE snapshots SET retired_at = ?, retired_reason = ? WHERE id = ?",
                          (utc_now(), reason, snapshot_id))
+            self._chain(conn, "retirement", snapshot_id)
             return self._load_snapshot(snapshot_id)
 
     def history(self, snapshot_id: int) -> list[Snapshot]:
@@ -946,10 +1079,10 @@ class Archive:
             self._insert_note(conn, note)
             return note
 
-    @staticmethod
-    def _insert_note(conn: sqlite3.Connection, note: SnapshotNote) -> None:
+    def _insert_note(self, conn: sqlite3.Connection, note: SnapshotNote) -> None:
         conn.execute("INSERT INTO snapshot_notes (id, snapshot_id, created_at, author, text) VALUES (?, ?, ?, ?, ?)",
                      (note.id, note.snapshot_id, note.created_at, note.author, note.text))
+        self._chain(conn, "note", note.id)
 
     def list_notes(self, snapshot_id: int | None = None) -> list[SnapshotNote]:
         """Notes of one snapshot (or all notes), oldest first."""
@@ -978,6 +1111,22 @@ class Archive:
         states = qc_entry_states(day)
         return next(e for e in day if states[e.id].in_use)  # type: ignore[index]
 
+    @staticmethod
+    def _qc_latest_day(conn: sqlite3.Connection, processor: str, leaving: int | None = None) -> str | None:
+        """The latest day of a processor's log, as it stands inside the caller's transaction.
+
+        ``leaving`` is an entry about to be corrected: it no longer holds its day.
+        """
+        return conn.execute(_QC_LATEST_DAY, (processor, leaving)).fetchone()[0]
+
+    def _check_not_back_dated(self, conn: sqlite3.Connection, processor: str, date: str, what: str) -> None:
+        """Refuse an event or crossover dated before the latest QC day: it would re-judge days already reported."""
+        latest = self._qc_latest_day(conn, processor)
+        if latest is not None and date < latest:
+            raise OutOfOrderError(f"{self.path}: dates out of order: the {what} of {date} is before processor "
+                                  f"{processor!r}'s latest QC entry ({latest}); it would re-judge days already "
+                                  "reported")
+
     def _qc_target(self, entry: QcEntry, day: list[QcEntry], link: int, doing: str) -> QcEntry:
         """The entry of ``entry``'s own processor and day that ``link`` names."""
         target = next((e for e in day if e.id == link), None)
@@ -986,32 +1135,85 @@ class Archive:
                                        f"{entry.processor!r} on {entry.date}; {doing} names an entry of its own day")
         return target
 
-    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry) -> QcEntry:
-        """Check ``entry`` against its day and write it; an entry without an id gets the next one."""
+    def _check_qc_correction(self, conn: sqlite3.Connection, entry: QcEntry, day: list[QcEntry]) -> QcEntry:
+        """The entry ``entry`` corrects, checked: same processor, not corrected yet, a moved day left whole."""
+        target = next((e for e in day if e.id == entry.corrects), None)
+        if target is None:
+            rows = self._rows("SELECT * FROM qc_entries WHERE id = ?", (entry.corrects,))
+            target = QcEntry(**dict(rows[0])) if rows else None
+            if target is None or target.processor != entry.processor:
+                raise ArchiveConflictError(f"{self.path}: QC entry {entry.corrects} is not an entry of processor "
+                                           f"{entry.processor!r}; a correction names an entry of its own processor")
+        old_day = day if target.date == entry.date else self._qc_day(conn, target.processor, target.date)
+        states = qc_entry_states(old_day)
+        corrected_by = states[target.id].corrected_by  # type: ignore[index]
+        if corrected_by is not None:
+            raise ArchiveConflictError(f"{self.path}: QC entry {target.id} was already corrected by entry "
+                                       f"{corrected_by}; correct that one instead")
+        if target.date != entry.date:
+            strip = states[target.id].strip  # type: ignore[index]
+            if any(s.strip != strip for s in states.values()):
+                raise ArchiveConflictError(
+                    f"{self.path}: {target.date} of processor {entry.processor!r} holds a repeat strip; only a "
+                    "day's single strip can be moved to another date")
+            if any(e.id not in {x.corrects for x in day} for e in day):
+                raise DuplicateDayError(
+                    f"{self.path}: processor {entry.processor!r} already has a QC entry for {entry.date}; a "
+                    "correction moves an entry only to a day without one")
+        return target
+
+    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry, *, late: str = "refuse") -> QcEntry:
+        """Check ``entry`` against its processor's log and write it, in the caller's transaction.
+
+        The date-order rule is checked here, inside the write transaction, so
+        that two writers at once cannot both pass it.
+
+        Parameters
+        ----------
+        late : str
+            What to do with an entry dated before the log's latest day and not
+            marked entered late: ``"refuse"`` it, ``"allow"`` it (a missed day
+            entered late on purpose) or ``"mark"`` it (an import); both of the
+            latter store it marked as entered late.  A correction that keeps
+            its entry's date is not late.
+        """
         self._check_qc_processor(entry.processor)
         if entry.snapshot_id is not None and not self._exists("snapshots", "id", entry.snapshot_id):
             raise self._missing("snapshot", entry.snapshot_id)
         day = self._qc_day(conn, entry.processor, entry.date)
-        if entry.kind == "first strip" and day:
-            raise ArchiveConflictError(
+        holders = [e for e in day if e.id not in {x.corrects for x in day}]
+        latest = self._qc_latest_day(conn, entry.processor, entry.corrects)
+        back_dated = not entry.entered_late and latest is not None and entry.date < latest
+        if back_dated and late != "mark" and entry.repeat_of is not None:
+            raise OutOfOrderError(
+                f"{self.path}: dates out of order: a repeat strip of {entry.date} would re-judge the days after it; "
+                f"only the latest day ({latest}) of processor {entry.processor!r} takes a repeat")
+        if back_dated and late == "refuse" and entry.corrects is None:
+            raise OutOfOrderError(
+                f"{self.path}: dates out of order: {entry.date} is before processor {entry.processor!r}'s latest QC "
+                f"entry ({latest}); a missed day is entered late on purpose (stored marked as entered late, "
+                "and the days after it are judged again)")
+        if entry.kind == "first strip" and holders:
+            raise DuplicateDayError(
                 f"{self.path}: processor {entry.processor!r} already has a QC entry for {entry.date} (duplicate "
-                "day); a second strip of that day is stored as a repeat, a wrongly entered value as a correction")
+                "day); a second strip of that day is stored as a repeat strip (which then counts for the day), a "
+                "wrongly entered value as a correction")
         if entry.repeat_of is not None:
             target = self._qc_target(entry, day, entry.repeat_of, "a repeat")
             in_use = self._qc_in_use(day)
             if target.id != in_use.id:
                 raise ArchiveConflictError(f"{self.path}: QC entry {target.id} is no longer the one in use for "
                                            f"{entry.date} (entry {in_use.id} is); a repeat follows the entry in use")
+        same_day_fix = False
         if entry.corrects is not None:
-            target = self._qc_target(entry, day, entry.corrects, "a correction")
-            corrected_by = qc_entry_states(day)[target.id].corrected_by  # type: ignore[index]
-            if corrected_by is not None:
-                raise ArchiveConflictError(f"{self.path}: QC entry {target.id} was already corrected by entry "
-                                           f"{corrected_by}; correct that one instead")
+            same_day_fix = self._check_qc_correction(conn, entry, day).date == entry.date
+        if back_dated and not same_day_fix:
+            entry = dataclasses.replace(entry, entered_late=True)
         if entry.id is None:
             entry = dataclasses.replace(entry, id=self._next_id(conn, "qc_entries"))
         row = entry.to_dict()
         conn.execute(_insert_sql("qc_entries", tuple(row)), tuple(row.values()))
+        self._chain(conn, "qc_entry", entry.id)
         return entry
 
     def _new_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry, repeat: bool) -> QcEntry:
@@ -1028,7 +1230,7 @@ class Archive:
                                        "to repeat; store the day's first strip without calling it a repeat")
         return dataclasses.replace(entry, recorded_at=utc_now(), repeat_of=self._qc_in_use(day).id)
 
-    def add_qc_entry(self, entry: QcEntry, *, repeat: bool = False) -> QcEntry:
+    def add_qc_entry(self, entry: QcEntry, *, repeat: bool = False, late: bool = False) -> QcEntry:
         """Store one QC strip's densities for a processor and day; return the entry as stored.
 
         Parameters
@@ -1039,18 +1241,27 @@ class Archive:
             A second (third...) strip of a day that has an entry already: it is
             linked to the day's entry in use and replaces it as the day's value.
             Without it a second entry on the same day is refused.
+        late : bool
+            A missed day entered after later days: stored marked as entered
+            late.  Without it an entry dated before the log's latest day is
+            refused.
 
         Raises
         ------
+        DuplicateDayError
+            A second entry for the day not declared a repeat.
+        OutOfOrderError
+            An entry dated before the log's latest day, without ``late``.
         ArchiveConflictError
-            A second entry for the day not declared a repeat, or a repeat of a
-            day with no entry.
+            A repeat of a day with no entry.
         """
         with self._writing(f"add the QC entry of {entry.date}") as conn:
-            return self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat))
+            return self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat),
+                                         late="allow" if late else "refuse")
 
     def add_qc_day(self, entry: QcEntry, *, repeat: bool = False, new_processor: Processor | None = None,
-                   snapshot: NewSnapshot | None = None, settings: dict[str, Any] | None = None) -> QcEntry:
+                   snapshot: NewSnapshot | None = None, settings: dict[str, Any] | None = None,
+                   settings_reason: str = "", late: bool = False) -> QcEntry:
         """Store one day's QC entry together with what belongs to it, in one transaction.
 
         Parameters
@@ -1068,7 +1279,11 @@ class Archive:
             that is not stored yet is added bare.
         settings : dict, optional
             The processor's QC settings to store with the day (for instance
-            the QC steps chosen on this strip); they replace the stored ones.
+            the QC steps chosen on this strip); a new settings row.
+        settings_reason : str
+            Why the settings changed, kept with them.
+        late : bool
+            A missed day entered late (see :meth:`add_qc_entry`).
 
         Returns
         -------
@@ -1081,18 +1296,18 @@ class Archive:
             if snapshot is not None:
                 entry = QcEntry(**{**entry.to_dict(), "source": "scan",
                                    "snapshot_id": self._store_new(conn, snapshot, create_missing=True)})
-            entry = self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat))
+            entry = self._insert_qc_entry(conn, self._new_qc_entry(conn, entry, repeat),
+                                          late="allow" if late else "refuse")
             if settings is not None:
-                self._replace_qc_settings(conn, entry.processor, settings)
+                self._replace_qc_settings(conn, entry.processor, settings, settings_reason)
         return entry
 
     def add_qc_correction(self, entry_id: int, reason: str, **changes: Any) -> QcEntry:
         """Correct a wrongly entered QC entry: store a new entry that replaces its values.
 
         The corrected entry stays as it was, readable and marked corrected;
-        the correction keeps its processor and date and names it.  A
-        correction can itself be corrected (a chain); an entry is corrected
-        once.
+        the correction names it.  A correction can itself be corrected (a
+        chain); an entry is corrected once.
 
         Parameters
         ----------
@@ -1102,9 +1317,11 @@ class Archive:
             Why (needed).
         **changes
             New ``base_fog``, ``mid_density``, ``density_difference``,
-            ``note`` or ``action``; what is not given is kept.  A changed
-            density makes the correction a typed value (source ``"manual"``,
-            no snapshot).
+            ``date``, ``note`` or ``action``; what is not given is kept.  A
+            changed density makes the correction a typed value (source
+            ``"manual"``, no snapshot).  A new ``date`` moves a day's single
+            strip to a day that has no entry (a year typed wrong, say); moved
+            before the log's latest day, it is marked entered late.
 
         Returns
         -------
@@ -1119,12 +1336,12 @@ class Archive:
         ArchiveLookupError
             No entry ``entry_id``.
         ArchiveConflictError
-            The entry was corrected already.
+            The entry was corrected already, or the new date has an entry.
         """
         unknown = sorted(set(changes) - set(_QC_CORRECTABLE))
         if unknown:
             raise ArchiveError(f"{self.path}: a correction changes {', '.join(_QC_CORRECTABLE)} only, "
-                               f"not {', '.join(unknown)} (a wrong processor or date is not corrected this way)")
+                               f"not {', '.join(unknown)} (a wrong processor is not corrected this way)")
         if not isinstance(reason, str) or not reason.strip():
             raise ArchiveError(f"{self.path}: QC entry {entry_id} is corrected only with a reason")
         with self._writing(f"correct QC entry {entry_id}") as conn:
@@ -1135,8 +1352,8 @@ class Archive:
             typed = {"source": "manual", "snapshot_id": None} if changed.keys() & set(_QC_DENSITIES) else {}
             correction = self._checked(f"correct QC entry {entry_id}", QcEntry, **{
                 **old.to_dict(), **changed, **typed, "id": None, "recorded_at": utc_now(), "repeat_of": None,
-                "corrects": old.id, "reason": reason.strip()})
-            return self._insert_qc_entry(conn, correction)
+                "corrects": old.id, "reason": reason.strip(), "entered_late": False})
+            return self._insert_qc_entry(conn, correction, late="allow")
 
     def _load_qc_entry(self, entry_id: int) -> QcEntry:
         rows = self._rows("SELECT * FROM qc_entries WHERE id = ?", (entry_id,))
@@ -1162,10 +1379,18 @@ class Archive:
                 self._rows(f"SELECT * FROM qc_entries{where} ORDER BY processor, date, id", params)]
 
     def add_qc_event(self, processor: str, date: str, kind: str, note: str = "") -> QcEvent:
-        """Record something that happened to a processor (chemistry change, service, ...)."""
+        """Record something that happened to a processor (chemistry change, service, ...).
+
+        Raises
+        ------
+        OutOfOrderError
+            When dated before the processor's latest QC entry: it would
+            re-judge days already reported.  Checked inside the write.
+        """
         with self._writing(f"add a QC event for {processor!r}") as conn:
             event = self._checked("add QC event", QcEvent, self._next_id(conn, "qc_events"), processor, date,
                                   kind, note)
+            self._check_not_back_dated(conn, processor, date, "event")
             self._insert_qc_event(conn, event)
             return event
 
@@ -1173,43 +1398,75 @@ class Archive:
         self._check_qc_processor(event.processor)
         conn.execute("INSERT INTO qc_events (id, processor, date, kind, note) VALUES (?, ?, ?, ?, ?)",
                      (event.id, event.processor, event.date, event.kind, event.note))
+        self._chain(conn, "qc_event", event.id)
 
     def list_qc_events(self, processor: str | None = None) -> list[QcEvent]:
         where, params = (" WHERE processor = ?", (processor,)) if processor is not None else ("", ())
         return [QcEvent(**dict(row)) for row in
                 self._rows(f"SELECT * FROM qc_events{where} ORDER BY processor, date, id", params)]
 
-    def set_qc_settings(self, processor: str, settings: dict[str, Any]) -> QcSettings:
-        """Store (or replace) a processor's QC settings: operating levels, limits, steps."""
-        with self._writing(f"store QC settings for {processor!r}") as conn:
-            return self._replace_qc_settings(conn, processor, settings)
+    def set_qc_settings(self, processor: str, settings: dict[str, Any], reason: str = "") -> QcSettings:
+        """Store a processor's new QC settings (operating levels, limits, steps) as a new row.
 
-    def _replace_qc_settings(self, conn: sqlite3.Connection, processor: str, settings: dict[str, Any]) -> QcSettings:
-        record = self._checked("store QC settings", QcSettings, processor, settings, utc_now())
-        conn.execute("DELETE FROM qc_settings WHERE processor = ?", (processor,))
-        self._insert_qc_settings(conn, record)
+        The rows before stay: :meth:`qc_settings_history` lists them.  Settings
+        equal to those in force store nothing and return the row in force.
+
+        Parameters
+        ----------
+        processor : str
+        settings : dict
+            JSON-ready settings.
+        reason : str
+            Why they change, kept with them.
+        """
+        with self._writing(f"store QC settings for {processor!r}") as conn:
+            return self._replace_qc_settings(conn, processor, settings, reason)
+
+    def _replace_qc_settings(self, conn: sqlite3.Connection, processor: str, settings: dict[str, Any],
+                             reason: str = "") -> QcSettings:
+        record = self._checked("store QC settings", QcSettings, processor, settings, utc_now(), reason.strip())
+        current = self.get_qc_settings(processor)
+        if current is not None and canonical_json(current.settings) == canonical_json(record.settings):
+            return current
+        return self._insert_qc_settings(conn, record)
+
+    def _insert_qc_settings(self, conn: sqlite3.Connection, record: QcSettings) -> QcSettings:
+        self._check_qc_processor(record.processor)
+        if record.id is None:
+            record = dataclasses.replace(record, id=self._next_id(conn, "qc_settings"))
+        conn.execute("INSERT INTO qc_settings (id, processor, settings_json, updated_at, reason) VALUES (?, ?, ?, ?, ?)",
+                     (record.id, record.processor, canonical_json(record.settings), record.updated_at, record.reason))
+        self._chain(conn, "qc_settings", record.id)
         return record
 
-    def _insert_qc_settings(self, conn: sqlite3.Connection, record: QcSettings) -> None:
-        self._check_qc_processor(record.processor)
-        conn.execute("INSERT INTO qc_settings (processor, settings_json, updated_at) VALUES (?, ?, ?)",
-                     (record.processor, canonical_json(record.settings), record.updated_at))
+    _SETTINGS_SELECT = "SELECT processor, settings_json, updated_at, reason, id FROM qc_settings"
+
+    def _settings(self, where: str = "", params: Sequence[Any] = ()) -> list[QcSettings]:
+        return [QcSettings(p, json.loads(s), u, r, i) for p, s, u, r, i in
+                self._query(f"{self._SETTINGS_SELECT}{where} ORDER BY processor, id", params)]
 
     def get_qc_settings(self, processor: str) -> QcSettings | None:
-        """A processor's QC settings, or None when none are stored."""
-        rows = self._query("SELECT processor, settings_json, updated_at FROM qc_settings WHERE processor = ?",
-                           (processor,))
-        return QcSettings(rows[0][0], json.loads(rows[0][1]), rows[0][2]) if rows else None
+        """A processor's QC settings in force (its latest row), or None when none are stored."""
+        rows = self._settings(" WHERE id = (SELECT max(id) FROM qc_settings WHERE processor = ?)", (processor,))
+        return rows[0] if rows else None
 
     def list_qc_settings(self) -> list[QcSettings]:
-        return [QcSettings(p, json.loads(s), u) for p, s, u in
-                self._query("SELECT processor, settings_json, updated_at FROM qc_settings ORDER BY processor")]
+        """The settings in force for each processor that has any, by processor."""
+        return self._settings(" WHERE id IN (SELECT max(id) FROM qc_settings GROUP BY processor)")
+
+    def qc_settings_history(self, processor: str | None = None) -> list[QcSettings]:
+        """Every settings row ever stored (of one processor, or all), oldest first per processor."""
+        return self._settings(" WHERE processor = ?", (processor,)) if processor is not None else self._settings()
 
     def add_crossover(self, processor: str, date: str, record: dict[str, Any]) -> Crossover:
-        """Store a crossover (old lot against new lot) as plain JSON."""
+        """Store a crossover (old lot against new lot) as plain JSON.
+
+        Refused (:class:`OutOfOrderError`) when dated before the processor's latest QC entry.
+        """
         with self._writing(f"add a crossover for {processor!r}") as conn:
             crossover = self._checked("add crossover", Crossover, self._next_id(conn, "crossovers"), processor,
                                       date, record)
+            self._check_not_back_dated(conn, processor, date, "crossover")
             self._insert_crossover(conn, crossover)
             return crossover
 
@@ -1233,6 +1490,7 @@ class Archive:
         with self._writing(f"store the crossover of {date} for {processor!r}") as conn:
             crossover = self._checked("add crossover", Crossover, self._next_id(conn, "crossovers"), processor,
                                       date, record)
+            self._check_not_back_dated(conn, processor, date, "crossover")
             self._insert_crossover(conn, crossover)
             event = self._checked("add QC event", QcEvent, self._next_id(conn, "qc_events"), processor, date,
                                   "crossover", note(crossover.id))
@@ -1243,6 +1501,7 @@ class Archive:
         self._check_qc_processor(crossover.processor)
         conn.execute("INSERT INTO crossovers (id, processor, date, record_json) VALUES (?, ?, ?, ?)",
                      (crossover.id, crossover.processor, crossover.date, canonical_json(crossover.record)))
+        self._chain(conn, "crossover", crossover.id)
 
     def list_crossovers(self, processor: str | None = None) -> list[Crossover]:
         where, params = (" WHERE processor = ?", (processor,)) if processor is not None else ("", ())

@@ -171,3 +171,22 @@ def test_it_refuses_an_existing_file_and_leaves_it_alone(tmp_path: Path) -> None
         build_demo_archive(existing)
     assert existing.read_bytes() == b"someone's file"
     assert not (tmp_path / "demo_scans").exists()
+
+
+def test_the_demo_archive_and_its_qc_month_verify_clean(demo: Path, tmp_path: Path,
+                                                       capsys: pytest.CaptureFixture[str]) -> None:
+    """Issue 15 item 20: the demo archive, with the demo QC month added, walks its hash chain clean."""
+    import shutil
+
+    from stripscan.cli import main
+
+    copy = tmp_path / "demo-with-qc.sqlite3"
+    shutil.copyfile(demo, copy)
+    assert main(["qc", "demo", "--archive", str(copy)]) == 0
+    capsys.readouterr()
+    assert main(["archive", "verify", "--archive", str(copy)]) == 0
+    out = capsys.readouterr().out
+    with Archive.open(copy) as archive:
+        report = archive.verify()
+        stored = len(archive.all_snapshots()) + len(archive.list_qc_entries())
+    assert report.ok and report.records > stored and f"all {report.records} records match" in out

@@ -67,7 +67,7 @@ def test_export_then_import_reproduces_the_archive_exactly(filled: Archive, arch
     assert report.added["snapshots"] == 9 and report.added["calibrations"] == 2
     assert sum(report.unchanged.values()) == 0
     data = json.loads(exported.read_text(encoding="utf-8"))
-    assert data["format"] == "stripscan lot archive" and data["format_version"] == 2
+    assert data["format"] == "stripscan lot archive" and data["format_version"] == 3
     # Ids, times and links of the QC log go along, so repeats and corrections come back as they were.
     assert [(e["id"], e["repeat_of"], e["corrects"]) for e in data["qc_entries"]] == [
         (1, None, None), (2, None, None), (4, 2, None), (3, None, None), (5, None, 3)]

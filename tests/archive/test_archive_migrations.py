@@ -174,3 +174,43 @@ def test_a_failed_qc_rebuild_leaves_the_version_2_file_as_it_was(v2_archive: Pat
         assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
         assert conn.execute("SELECT type, name, sql FROM sqlite_master ORDER BY name").fetchall() == schema
         assert conn.execute("SELECT rowid, * FROM qc_entries ORDER BY rowid").fetchall() == rows
+
+
+def test_version_2_archive_reaches_version_4_intact_chained_and_with_its_settings(v2_archive: Path) -> None:
+    """Schema 4 (issue 15 items 16-20): old QC rows, settings, events and snapshots carried over unchanged;
+    every record chained; the old rows are not marked late even where an older stripscan stored them out of
+    date order; new entries follow the date-order rule."""
+    settings = {"limits": {"md_dd_action": 0.15}}
+    with raw_connection(v2_archive) as conn:
+        conn.execute("INSERT INTO qc_settings (processor, settings_json, updated_at) VALUES (?, ?, ?)",
+                     (PROCESSORS[0].name, canonical_json(settings), "2024-06-03T08:00:00Z"))
+        conn.execute("INSERT INTO qc_events (id, processor, date, kind) VALUES (1, ?, '2024-06-02', 'service')",
+                     (PROCESSORS[0].name,))
+        snapshots_before = conn.execute("SELECT * FROM snapshots").fetchall()
+        steps_before = conn.execute("SELECT * FROM snapshot_steps ORDER BY snapshot_id, step").fetchall()
+    with Archive.open(v2_archive) as archive:
+        assert archive.schema_version == LATEST_VERSION == 4
+        assert archive.verify().ok
+        assert [e.entered_late for e in archive.list_qc_entries()] == [False] * len(V2_QC_ROWS)
+        kept = archive.get_qc_settings(PROCESSORS[0].name)
+        assert (kept.settings, kept.updated_at, kept.reason, kept.id) == (settings, "2024-06-03T08:00:00Z", "", 1)
+        assert [e.kind for e in archive.list_qc_events()] == ["service"]
+        with pytest.raises(ArchiveConflictError, match="dates out of order: a repeat strip of 2024-06-04 would re-judge"):
+            archive.add_qc_entry(QcEntry(PROCESSORS[0].name, "2024-06-04", 0.19, 1.2, 1.8), repeat=True)
+        late = archive.add_qc_entry(QcEntry(PROCESSORS[1].name, "2024-06-01", 0.19, 1.2, 1.8), late=True)
+        assert late.entered_late
+        archive.set_qc_settings(PROCESSORS[0].name, {"limits": {"md_dd_action": 0.12}}, "tighter")
+        assert [r.reason for r in archive.qc_settings_history(PROCESSORS[0].name)] == ["", "tighter"]
+        assert archive.verify().ok
+    with raw_connection(v2_archive) as conn:
+        assert conn.execute("SELECT * FROM snapshots").fetchall() == snapshots_before
+        assert conn.execute("SELECT * FROM snapshot_steps ORDER BY snapshot_id, step").fetchall() == steps_before
+        kinds = dict(conn.execute("SELECT kind, count(*) FROM record_chain GROUP BY kind").fetchall())
+    assert kinds == {"film_type": 1, "lot": 1, "processor": 2, "snapshot": 1, "qc_entry": len(V2_QC_ROWS) + 1,
+                     "qc_settings": 2, "qc_event": 1}
+
+
+def test_version_1_archive_is_chained_on_upgrade(v1_archive: Path) -> None:
+    with Archive.open(v1_archive) as archive:
+        report = archive.verify()
+    assert report.ok and report.records == 4  # film type, lot, processor, snapshot

@@ -25,7 +25,7 @@ _UTC = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}\.\d{6}Z")
 
 def _bare(entry: QcEntry) -> QcEntry:
     """The entry as a caller hands it in: without the id and time the archive gives it."""
-    return dataclasses.replace(entry, id=None, recorded_at=None)
+    return dataclasses.replace(entry, id=None, recorded_at=None, entered_late=False)
 
 
 def test_daily_entries_are_listed_by_processor_and_date(archive: Archive) -> None:
@@ -36,8 +36,10 @@ def test_daily_entries_are_listed_by_processor_and_date(archive: Archive) -> Non
         QcEntry(NORTH, "2024-10-01", 0.19, 1.22, 1.85, "scan", snapshot.id),
         QcEntry(NORTH, "2024-10-03", 0.21, 1.41, 2.02, "manual", action="developer temperature checked: 35.6 degC"),
     ]
-    stored = [archive.add_qc_entry(entry) for entry in entries]
+    stored = [archive.add_qc_entry(entry, late=True) for entry in entries]
     assert [_bare(e) for e in stored] == entries
+    # Only North's 1 October came after a later day of its processor (issue 13, backfilling).
+    assert [e.entered_late for e in stored] == [False, False, True, False]
     assert [e.id for e in stored] == [1, 2, 3, 4] and all(_UTC.fullmatch(e.recorded_at) for e in stored)
     assert [_bare(e) for e in archive.list_qc_entries(NORTH)] == \
         sorted((e for e in entries if e.processor == NORTH), key=lambda e: e.date)
@@ -57,7 +59,7 @@ def test_a_second_entry_for_the_same_day_is_a_duplicate(archive: Archive, archiv
     archive.add_qc_entry(QcEntry(SOUTH, "2024-10-01", 0.18, 1.20, 1.80))  # other processor, same day: fine
     with raw_connection(archive_path) as conn:
         # The rule is in the file too, through a trigger (SQLite docs, see the module notes).
-        with pytest.raises(sqlite3.IntegrityError, match="one first QC strip per processor and day"):
+        with pytest.raises(sqlite3.IntegrityError, match="one QC entry in use per processor and day"):
             conn.execute("INSERT INTO qc_entries (processor, date, source) VALUES (?, '2024-10-01', 'manual')", (NORTH,))
     assert [e.mid_density for e in archive.list_qc_entries(NORTH)] == [1.22]
 
@@ -150,7 +152,7 @@ def test_a_correction_keeps_the_wrong_entry_and_names_it_with_a_reason(archive: 
 @pytest.mark.parametrize("changes, reason, message", [
     ({"mid_density": 1.21}, " ", "QC entry 1 is corrected only with a reason"),
     ({"mid_density": 1.22}, "typo", "the correction of QC entry 1 changes nothing"),
-    ({"date": "2024-10-03"}, "wrong day", "not date .*wrong processor or date is not corrected this way"),
+    ({"processor": SOUTH}, "wrong room", "not processor .*wrong processor is not corrected this way"),
     ({"mid_density": float("nan")}, "typo", "cannot correct QC entry 1: mid_density must be a finite number"),
 ])
 def test_unfit_corrections_are_refused_and_store_nothing(archive: Archive, changes: dict, reason: str,
@@ -234,13 +236,13 @@ def test_qc_entries_are_never_updated_deleted_or_replaced(logged: Path) -> None:
         for sql, message in (
                 # Two guards apply here; SQLite does not promise which fires first.
                 ("INSERT OR REPLACE INTO qc_entries SELECT * FROM qc_entries WHERE id = 4",
-                 "never replaced|one first QC strip"),
+                 "never replaced|one QC entry in use"),
                 (f"INSERT OR REPLACE INTO qc_entries ({listed}) SELECT {listed} FROM qc_entries WHERE id = 2",
                  "never replaced; an entry is repeated once"),
                 (f"INSERT OR REPLACE INTO qc_entries ({listed}) SELECT {listed} FROM qc_entries WHERE id = 3",
                  "never replaced; an entry is repeated once and corrected once"),
                 (f"INSERT OR REPLACE INTO qc_entries ({listed}) SELECT {listed} FROM qc_entries WHERE id = 4",
-                 "one first QC strip per processor and day")):
+                 "one QC entry in use per processor and day")):
             with pytest.raises(sqlite3.IntegrityError, match=message):
                 conn.execute(sql)
         assert conn.execute("SELECT * FROM qc_entries ORDER BY id").fetchall() == before
@@ -250,9 +252,9 @@ def test_links_stay_within_one_processor_and_day_even_through_raw_sql(logged: Pa
     with raw_connection(logged) as conn:
         for sql in ("INSERT INTO qc_entries (processor, date, source, repeat_of) VALUES ('South room', "
                     "'2024-10-01', 'manual', 2)",
-                    "INSERT INTO qc_entries (processor, date, source, corrects, reason) VALUES ('North room', "
+                    "INSERT INTO qc_entries (processor, date, source, corrects, reason) VALUES ('South room', "
                     "'2024-10-02', 'manual', 2, 'typo')"):
-            with pytest.raises(sqlite3.IntegrityError, match="names an entry of the same processor and day"):
+            with pytest.raises(sqlite3.IntegrityError, match="names an entry of the same processor"):
                 conn.execute(sql)
         # SQLite docs (lang_createtable.html): a CHECK constraint refuses a row where it is false.
         with pytest.raises(sqlite3.IntegrityError, match="CHECK constraint failed"):
