@@ -16,6 +16,7 @@ it ``run_all.py``) uses it too.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import gc
 import hashlib
 import tempfile
@@ -48,6 +49,12 @@ class ScanTiming:
     hash_s: float
     analyse_s: float
     peak_bytes: int | None  # None when memory was not traced
+    analyse_plain_s: float | None = None  # the same analysis with the calibration's stray-light model taken out
+
+    @property
+    def stray_light_cost(self) -> float | None:
+        """Analysis time with the stray-light correction ÷ without it."""
+        return None if not self.analyse_plain_s else self.analyse_s / self.analyse_plain_s
 
     @property
     def analyse_per_read(self) -> float:
@@ -99,6 +106,9 @@ def measure_scan(
         digest = best_of(1, lambda: hashlib.sha256(path.read_bytes()).hexdigest())
         found: list[int] = []
         analyse = best_of(repeat, lambda: found.append(len(analyze_scan(path, calibration=cal).strips)))
+        # The same work without the stray-light correction (the map alone): what the correction costs.
+        plain_cal = dataclasses.replace(cal, stray_light=None, tablet_spread=None)
+        plain = best_of(repeat, lambda: analyze_scan(path, calibration=plain_cal))
         if set(found) != {len(strips)}:
             raise RuntimeError(f"{path.name}: found {sorted(set(found))} strips, expected {len(strips)}")
         peak = None
@@ -110,7 +120,7 @@ def measure_scan(
                 _, peak = tracemalloc.get_traced_memory()
             finally:
                 tracemalloc.stop()
-        yield ScanTiming(dpi, compression, cols, rows, len(strips), image_bytes, read, digest, analyse, peak)
+        yield ScanTiming(dpi, compression, cols, rows, len(strips), image_bytes, read, digest, analyse, peak, plain)
         path.unlink()  # at 1200 dpi each file is hundreds of MB
 
 

@@ -2,7 +2,7 @@
 
 The user picks the scan of the reference step tablet and its certificate,
 sees where the tablet was found, the fitted signal-to-density curve with
-each step's leave-one-out residual and the valid density range, then saves
+each step's held-out residual and the valid density range, then saves
 the calibration and makes it the active one.
 """
 
@@ -177,7 +177,7 @@ class CalibrationDialog(QDialog):
         for item in (self.fit_curve, self.fit_points, self.fit_unused):
             self.fit_plot.addItem(item)
         self.residual_plot = self.plots.addPlot(row=1, col=0)
-        self.residual_plot.setTitle("Leave-one-out residual per step")
+        self.residual_plot.setTitle("Held-out residual per step")
         self.residual_plot.getAxis("bottom").enableAutoSIPrefix(False)
         self.residual_plot.setLabel("bottom", "Tablet step")
         self.residual_plot.setLabel("left", "Predicted − certified (OD)")
@@ -193,7 +193,7 @@ class CalibrationDialog(QDialog):
                 labelOpts={"position": 0.02, "color": "#D55E00", "anchors": [(0, 0), (0, 0)]}))
         self.residual_plot.setXRange(0.5, 21.5, padding=0)
         self.residual_plot.setYRange(-2 * ACCURACY_GOAL, 2 * ACCURACY_GOAL, padding=0)
-        #: Says why a step has no bar (the lightest and densest steps cannot be left out and predicted).
+        #: Says why a step has no bar (the lightest starts the range) and how the densest is tested.
         self.residual_note = QLabel()
         self.residual_note.setWordWrap(True)
         self.residual_note.setStyleSheet("color: #555555")
@@ -294,7 +294,7 @@ class CalibrationDialog(QDialog):
         cal = fit.calibration
         lo, hi = cal.valid_od
         rms = "—" if cal.rms_residual is None else f"{cal.rms_residual:.4f}"
-        text = (f"<b>Valid density range {lo:.2f} – {hi:.2f} OD</b> · RMS leave-one-out residual {rms} OD · "
+        text = (f"<b>Valid density range {lo:.2f} – {hi:.2f} OD</b> · RMS held-out residual {rms} OD · "
                 f"{len(cal.log_signal)} of {len(fit.certificate.densities)} tablet steps used · "
                 f"{cal.bits}-bit {cal.decoding} scan at {cal.dpi or 0:g} dpi")
         if fit.warnings:
@@ -347,11 +347,18 @@ class CalibrationDialog(QDialog):
         top = max([abs(h) for h in heights] + [1.5 * ACCURACY_GOAL]) * 1.3
         self.residual_plot.setYRange(-top, top)
         none = [k + 1 for k, r in enumerate(cal.residuals) if r is None]
-        self.residual_note.setText(
-            f"No bar for step{'s' if len(none) > 1 else ''} {', '.join(map(str, none))}: left out, "
-            f"{'they lie' if len(none) > 1 else 'it lies'} beyond the range of the other steps, so the fit "
-            "would extrapolate to predict it; the calibration is valid only between the lightest and densest "
-            "steps used." if none else "")
+        note = []
+        if none:
+            note.append(
+                f"No bar for step{'s' if len(none) > 1 else ''} {', '.join(map(str, none))}: the lightest step "
+                "starts the range, and predicting it from the others would extrapolate past them.")
+        if len(cal.residuals) > 1 and cal.residuals[-1] is not None:
+            note.append(f"Step {len(cal.residuals)}, the densest used, is predicted by extending the map from the "
+                        "others, so the top of the range is a tested density.")
+        if cal.excluded_steps:
+            note.append(f"Not used: step{'s' if len(cal.excluded_steps) > 1 else ''} "
+                        f"{', '.join(map(str, cal.excluded_steps))} (the scanner does not tell them apart).")
+        self.residual_note.setText(" ".join(note))
 
     # -- accepting ---------------------------------------------------------------------
     def save_and_use(self) -> str | None:

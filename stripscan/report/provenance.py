@@ -2,7 +2,7 @@
 
 A report states its calibration's provenance: the tablet scan it was
 fitted on, the certificate, when, the density range the tablet covered and
-the range read within the accuracy goal, and the leave-one-out residual.
+the range read within the accuracy goal, the held-out residual, and the stray light.
 A calibration reaches the reports in one of three shapes, and all three
 are handled:
 
@@ -122,7 +122,7 @@ def calibration_lines(calibration: dict[str, Any] | None, digest: str | None = N
     lines.append(("Density range", f"tablet covers {_span(covered)}; read within \u00b1{ACCURACY_GOAL:.2f} OD "
                                    f"from {valid_text}"))
     rms = calibration.get("rms_residual")
-    lines.append(("Residual RMS", f"{_od(rms, 4)} OD (leave-one-out, tablet steps in the valid range)" if rms is not None
+    lines.append(("Residual RMS", f"{_od(rms, 4)} OD (held out, tablet steps in the valid range)" if rms is not None
                   else "not available (too few tablet steps)"))
     settings = []
     if calibration.get("bits"):
@@ -135,6 +135,18 @@ def calibration_lines(calibration: dict[str, Any] | None, digest: str | None = N
         settings.append(f"{float(calibration['dpi']):g} dpi")
     extra = ", ".join(settings)
     lines.append(("Calibration id", f"sha256 {short_hash(digest)}" + (f"; scanned {extra}" if extra else "")))
+    stray = calibration.get("stray_light")
+    if isinstance(stray, dict):
+        lamp = ("lamp measured across the carriage" if stray.get("lamp_span_mm")
+                else "lamp not measured (no open platen beside the tablet)")
+        lines.append(("Stray light", f"{100 * float(stray.get('total_fraction', 0.0)):.3f} % of the light spread "
+                                     f"(±{100 * float(stray.get('fraction_sd', 0.0)):.3f} %), corrected on every "
+                                     f"scan; {lamp}"))
+    elif calibration.get("stray_light_fraction") is not None:
+        lines.append(("Stray light", f"{100 * float(calibration['stray_light_fraction']):.3f} % of the light spread, "
+                                     "corrected on every scan"))
+    if calibration.get("tablet_on_scan"):
+        lines.append(("Tablet", "on the same scan as the strips"))
     if full and calibration.get("flat_field_sha256"):
         lines.append(("Flat field", f"blank scan sha256 {short_hash(calibration['flat_field_sha256'])}"))
     if full and calibration.get("note"):
