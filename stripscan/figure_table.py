@@ -275,7 +275,7 @@ def figure_rows(figures: CurveFigures | None, *, units: UnitStyle = "long",
 
 #: The short reason a table shows after "not used:", per ``StepDensity.flag``.
 STEP_FLAG_WORDS = {
-    "outside_range": "outside the calibrated range",
+    "outside_range": "outside range",
     "too_noisy": "too noisy",
     "saturated": "saturated",
     "dark_floor": "at the dark floor",

@@ -58,6 +58,10 @@ __all__ = [
 #: Accuracy expected of a film-QC densitometer, OD (common practice).
 ACCURACY_GOAL = 0.02
 
+#: How far below the lightest tablet step a reading still counts as in range, OD: half
+#: the accuracy goal, a short extension of the map where it is straightest.
+LIGHT_END_TOLERANCE = 0.5 * ACCURACY_GOAL
+
 _FORMAT = "stripscan-calibration"
 _FORMAT_VERSION = 1
 #: Files with a stray-light model: their knots hold the light the sensor saw,
@@ -406,15 +410,16 @@ class Calibration:
         x = np.clip(np.log10(np.clip(s, 1e-9, None)), self.log_signal[0], self.log_signal[-1])
         return -self.light(s) * self._deriv(x) / np.clip(s, 1e-9, None)
 
-    def reference_spread(self, od: np.ndarray | float, *, unit: bool = False) -> np.ndarray:
+    def reference_spread(self, od: np.ndarray | float, *, part: str = "spread") -> np.ndarray:
         """Spread light the tablet had at density ``od`` (0 without a stray-light model).
 
-        With ``unit``, the spread per unit fraction there instead.
+        ``part`` "unit" gives the spread per unit fraction there instead.
         """
         if not self.tablet_spread:
             return np.zeros(np.shape(np.atleast_1d(od)))
         table = np.asarray(self.tablet_spread, dtype=np.float64)
-        return np.interp(np.atleast_1d(np.asarray(od, dtype=np.float64)), table[:, 0], table[:, 2 if unit else 1])
+        column = {"spread": 1, "unit": 2}[part]
+        return np.interp(np.atleast_1d(np.asarray(od, dtype=np.float64)), table[:, 0], table[:, column])
 
     def density(
         self, signal: np.ndarray | float, *, spread: np.ndarray | float | None = None, lamp: np.ndarray | float = 1.0
@@ -459,7 +464,9 @@ class Calibration:
             od = np.where(np.isfinite(seen), od, np.nan)
         lo, hi = self.valid_od
         tol = 1e-9
-        in_range = np.isfinite(od) & (od >= lo - tol) & (od <= hi + tol)
+        # The lightest step starts the range, and the map is at its surest there: a reading a
+        # little lighter (the tablet's own lightest step, read back with its noise) is in range.
+        in_range = np.isfinite(od) & (od >= lo - LIGHT_END_TOLERANCE) & (od <= hi + tol)
         return od, in_range
 
     def slope(self, signal: float) -> float:
@@ -550,8 +557,7 @@ class Calibration:
                 flat_field_sha256=data.get("flat_field_sha256"),
                 note=str(data.get("note", "")),
                 stray_light=StrayLight.from_dict(data["stray_light"]) if data.get("stray_light") else None,
-                tablet_spread=tuple((float(d), float(f), float(u)) for d, f, u in data.get("tablet_spread") or ())
-                or None,
+                tablet_spread=tuple(tuple(float(v) for v in row) for row in data.get("tablet_spread") or ()) or None,
             )
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None

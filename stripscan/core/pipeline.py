@@ -340,10 +340,11 @@ def read_density(
         # The kernel's shape: relative to the spread beyond the tablet's at this density.
         shape = model.relative_sd * abs(spread - float(calibration.reference_spread(value)[0]))
         # The fraction's own uncertainty, through the spread per unit fraction beyond the tablet's.
-        unit = mapping.field.unit_at(reading.center_rc) - float(calibration.reference_spread(value, unit=True)[0])
+        unit = mapping.field.unit_at(reading.center_rc) - float(calibration.reference_spread(value, part="unit")[0])
         fraction = model.fraction_sd * abs(unit)
-        # Light from beyond the scan's edges is taken as the edge's own; what
-        # lies there is unknown, so half of it is counted as uncertain.
+        # Light from beyond the scan's edges is taken as the edge's own; what lies there is
+        # unknown, so half of it is counted as uncertain (also where the tablet had as much:
+        # what lies beyond the edge differs from one place to another).
         unknown = OUTSIDE_UNCERTAINTY * mapping.field.outside_at(reading.center_rc)
         correction_sd = math.sqrt(shape**2 + fraction**2 + unknown**2) / (math.log(10.0) * transmitted)
     else:

@@ -81,7 +81,7 @@ def fit_tablet(
 
 
 #: The fit plot's log10 signal axis before a fit: a 16-bit scanner's range.
-_EMPTY_SIGNAL = (0.0, 5.0)
+_EMPTY_SIGNAL = (-4.0, 0.0)  # log10 of a signal 0..1 of full scale: 4 decades
 
 
 def default_save_path(scan_path: str | os.PathLike[str]) -> str:
@@ -297,6 +297,9 @@ class CalibrationDialog(QDialog):
         text = (f"<b>Valid density range {lo:.2f} – {hi:.2f} OD</b> · RMS held-out residual {rms} OD · "
                 f"{len(cal.log_signal)} of {len(fit.certificate.densities)} tablet steps used · "
                 f"{cal.bits}-bit {cal.decoding} scan at {cal.dpi or 0:g} dpi")
+        if cal.stray_light is not None:
+            text += (f" · stray light {100 * cal.stray_light.total:.3f} % "
+                     f"(±{100 * cal.stray_light.fraction_sd:.3f} %), corrected on every scan")
         if fit.warnings:
             text += "<br>" + "<br>".join(f"• {w}" for w in fit.warnings)
         self.summary.setText(text)
@@ -340,6 +343,10 @@ class CalibrationDialog(QDialog):
         self.fit_curve.setData(grid, od)
         self.valid_band.setRegion(cal.valid_od)
         self.valid_band.show()
+        # The empty plot's fixed axes give way to the fitted tablet's own span.
+        xs = [p[0] for p in used + unused] + [float(grid[0]), float(grid[-1])]
+        self.fit_plot.setXRange(min(xs), max(xs), padding=0.05)
+        self.fit_plot.setYRange(0.0, max(max(densities), cal.valid_od[1]) + 0.2, padding=0)
         steps = [k + 1 for k, r in enumerate(cal.residuals) if r is not None]
         heights = [r for r in cal.residuals if r is not None]
         self.residual_bars.setOpts(x=steps, height=heights, width=0.6)

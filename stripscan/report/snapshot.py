@@ -108,10 +108,11 @@ class StripReport:
             out.append("The calibration of these densities is not recorded.")
         if self.context.status and self.context.status != "current":
             out.append(f"This snapshot is {self.context.status}.")
+        # What people wrote (notes, a revision's reason) before what the reading found.
+        out += [f"Note: {note}" for note in self.context.notes]
         for text in (*warnings_of_strip(self.warnings, self.strip), *self.strip.figures.notes):
             if text not in out:
                 out.append(text)
-        out += [f"Note: {note}" for note in self.context.notes]
         return out
 
     def draw(self, canvas: Canvas) -> None:
@@ -379,11 +380,12 @@ def _step_rows(report: StripReport) -> tuple[list[list[str]], list[str | None]]:
 
 
 _STEP_COLUMNS = (Column("Step", 9, "right"), Column("log E", 11, "right"), Column("OD", 12, "right"),
-                 Column("\u00b1 sd", 11, "right"), Column("Flag", 21))
+                 Column("\u00b1 sd", 11, "right"), Column("Flag", 30))
 _FIGURE_COLUMNS = (Column("Figure", 29), Column("Value", 21, "right"), Column("Unit", 36),
                    Column("Definition", 96))
 _STEP_NOTE = ("OD gross, incl. base+fog; \u00b1 sd standard uncertainty; not used: outside the calibrated "
-              "range, saturated or too noisy")
+              "range, too noisy, saturated, at the dark floor, or stray light too large to correct (the "
+              "warnings say more)")
 
 
 def _step_note(report: StripReport) -> str:
@@ -446,7 +448,11 @@ def _draw_flags(c: Canvas, y: float, bottom: float, flags: Sequence[str]) -> Non
     if not flags:
         c.text(c.left, y, c.content_width, "None.", size=7.5)
         return
+    # Every flag belongs on the page: a smaller type first, cutting the list only as a last resort.
     size = 7.5
+    while size > 5.5 and sum(c.text_height(c.content_width - 4.0, f, size=size, max_lines=3)
+                             for f in flags) > bottom - y:
+        size -= 0.5
     for number, flag in enumerate(flags):
         left = len(flags) - number
         height = c.text_height(c.content_width - 4.0, flag, size=size, max_lines=3)

@@ -210,3 +210,22 @@ def test_a_calibration_and_a_tablet_on_the_scan_together_are_refused(tmp_path):
     cal, _, _ = calibrate_tablet(tablet_scan(tmp_path, scanner), Certificate(tuple(range(1, 22)), TABLET_OD))
     with pytest.raises(ValueError, match="not both"):
         analyze_scan(path, calibration=cal, tablet_certificate=Certificate(tuple(range(1, 22)), TABLET_OD))
+
+
+def test_the_tablet_read_with_its_own_calibration_is_in_range_throughout(tmp_path):
+    """Issue 14 item 5: the tablet's step 1 sets the range's lower end, so reading it back is in range."""
+    scanner = ScannerModel(flare_fraction=0.001, flare_sigma_mm=16.0, seed=21)
+    path = tablet_scan(tmp_path, scanner)
+    cal, _, _ = calibrate_tablet(path, Certificate(tuple(range(1, 22)), TABLET_OD))
+    (strip,) = analyze_scan(path, calibration=cal).strips
+    lo, hi = cal.valid_od
+    for step in strip.steps:
+        # Steps are numbered from the dense end; a tablet has no unexposed band, so compare by density.
+        certified = min(TABLET_OD, key=lambda d: abs(d - step.od))
+        if lo <= certified <= hi:
+            # In range — or, at the dense end, flagged for its noise (with the calibration's own
+            # RMS added) or for the unknown light from beyond the scan's edge.
+            assert step.in_range or step.flag in ("too_noisy", "stray_light"), (step.step, step.od, step.flag)
+            assert abs(step.od - certified) <= 0.01  # its own surroundings: the map is exact there
+    lightest = min(strip.steps, key=lambda s: s.od)
+    assert lightest.in_range and lightest.od == pytest.approx(TABLET_OD[0], abs=0.01)
