@@ -13,7 +13,6 @@ import os
 import sys
 from pathlib import Path
 
-import numpy as np
 from typing import Callable, Sequence
 
 from . import CAUTION, __version__
@@ -174,6 +173,8 @@ def _analysis_options(args):
 
 def _gradient_curve(strip) -> dict | None:
     """The gradient curve (dD/dlog E) of a strip's usable steps, every 0.05 log E."""
+    import numpy as np
+
     from .core.curve import strip_curve
 
     curve = strip_curve(strip)

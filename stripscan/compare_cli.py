@@ -58,21 +58,13 @@ import sys
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from . import CAUTION, __version__
-from .core.compare import (
-    DEFAULT_TOLERANCES,
-    FIGURE_INFO,
-    FIGURES,
-    Comparison,
-    CompareError,
-    StripSet,
-    Tolerance,
-    compare_sets,
-    mean_step_densities,
-    strip_qc_values,
-)
+from .core.compare_table import DEFAULT_TOLERANCES, FIGURE_INFO, FIGURES, Tolerance
+
+if TYPE_CHECKING:
+    from .core.compare import Comparison, StripSet
 
 __all__ = [
     "SetError",
@@ -242,6 +234,7 @@ class SetLoader:
 
     def _scan(self, spec: SetSpec) -> StripSet:
         from .core.calibration import load_calibration
+        from .core.compare import StripSet
         from .core.pipeline import AnalysisOptions, analyze_scan
 
         if self.calibration_path is not None and self._calibration is None:
@@ -265,6 +258,8 @@ class SetLoader:
         return StripSet(spec.text, chosen, tuple(f"strip {s.index}" for s in chosen), source)
 
     def _snapshots(self, spec: SetSpec, ids: Sequence[int]) -> StripSet:
+        from .core.compare import StripSet
+
         archive = self._open_archive()
         snapshots = [archive.get_snapshot(i) for i in ids]
         for s in snapshots:
@@ -392,6 +387,8 @@ def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse
 
 def cmd_compare(args: argparse.Namespace) -> int:
     """Compare sets of strips: every set against the first."""
+    from .core.compare import CompareError, compare_sets
+
     if len(args.sets) < 2:
         raise CompareError(f"compare needs at least two sets, got {len(args.sets)}: {args.sets[0]}")
     specs = [parse_set(text) for text in args.sets]
@@ -458,6 +455,7 @@ def levels_in_force(archive: Any, processor: str, date: datetime.date, *,
 
 def _steps_in_use(log: Any, levels: Any, old: StripSet, date: datetime.date) -> tuple[Any, str]:
     from .core.qc import choose_qc_steps
+    from .core.compare import mean_step_densities
 
     steps = log.steps_on(date)
     if steps is not None:
@@ -493,6 +491,8 @@ def store_crossover(archive: Any, processor: str, date: str, record: dict[str, A
 
 
 def _qc_values(s: StripSet, steps: Any) -> list[Any]:
+    from .core.compare import strip_qc_values
+
     values = []
     for label, strip in zip(s.labels, s.strips):
         try:

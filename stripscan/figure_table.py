@@ -22,7 +22,7 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable, Literal, Mapping, Sequence
 
-from .core.curve import FigureSettings
+from .core.figure_settings import FigureSettings
 from .core.records import CurveFigures, StepDensity, StripResult
 
 __all__ = [

@@ -31,16 +31,17 @@ import argparse
 import json
 from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from . import CAUTION
 from .archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
 from .archive.cli import _fail, _guarded, _open
-from .core.qc import EVENT_KINDS, QUANTITIES, QCValues
-from .archive import OutOfOrderError
-from .qc_log import (VERDICT_WORDS, LABELS, DuplicateDayError, LoggedEntry, parse_day, signed,
-                     uncalibrated_refusal)
+from .core.qc_names import EVENT_KINDS, LABELS, QUANTITIES, VERDICT_WORDS
+from .archive import DuplicateDayError, OutOfOrderError
+
+if TYPE_CHECKING:
+    from .qc_log import LoggedEntry
 
 __all__ = ["register"]
 
@@ -56,12 +57,15 @@ def _processor(args: argparse.Namespace) -> str:
 def _day(text: str | None, what: str = "--date") -> Any:
     if text is None:
         raise ValueError(f"{what} is needed (YYYY-MM-DD)")
+    from .qc_log import parse_day
+
     return parse_day(text, what)
 
 
 def _cmd_add(args: argparse.Namespace) -> int:
     """Add a day's QC entry, read off a scan or typed in from a densitometer."""
-    from .qc_log import add_day, status_text
+    from .core.qc import QCValues
+    from .qc_log import add_day, status_text, uncalibrated_refusal
 
     _processor(args)
     day = _day(args.date)
@@ -161,6 +165,8 @@ def _cmd_status(args: argparse.Namespace) -> int:
 
 
 def _entry_row(item: LoggedEntry) -> list[str]:
+    from .qc_log import signed
+
     e, v = item.entry, item.verdict
     remark = "; ".join(t for t in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if t)
     values = [f"{getattr(e, q):.3f}" if getattr(e, q) is not None else "-" for q in QUANTITIES]

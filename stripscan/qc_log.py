@@ -66,6 +66,7 @@ from stripscan.core.qc import (
     evaluate_day,
     qc_values_from_steps,
 )
+from stripscan.core.qc_names import LABELS, VERDICT_WORDS
 from stripscan.core.records import Analysis, StripResult
 
 __all__ = [
@@ -93,10 +94,6 @@ __all__ = [
     "signed",
 ]
 
-LABELS = {"base_fog": "base+fog", "mid_density": "mid-density", "density_difference": "density difference"}
-
-#: How each verdict is shown to a person.
-VERDICT_WORDS = {"ok": "WITHIN LIMITS", "warning": "WARNING", "action": "ACT"}
 
 # Marks "leave as it is" in set_limits, where None means "no warning tier".
 _KEEP: Any = object()

@@ -24,14 +24,14 @@ within about 1 %, where plain PCHIP slopes read it up to 6 % high.  Figures foll
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
-from typing import Any, Sequence
+from typing import Sequence
 
 import numpy as np
 from scipy.interpolate import CubicHermiteSpline, CubicSpline
 from scipy.optimize import brentq
 
 from .calibration import ACCURACY_GOAL
+from .figure_settings import FigureSettings
 from .qc import choose_qc_steps, closest_step
 from .records import CurveFigures, StripResult
 
@@ -53,48 +53,6 @@ DEFAULT_INCREMENT = 0.15
 
 #: Net density at which ISO 9236-1 reads the air kerma K_S of ISO speed S = 1 mGy / K_S.
 ISO_SPEED_NET_DENSITY = 1.00
-
-
-@dataclass(frozen=True)
-class FigureSettings:
-    """Targets for the figures (all densities OD).
-
-    Attributes
-    ----------
-    gradient_low, gradient_high : float
-        Net densities between which average gradient and latitude are read
-        (ISO 9236-1: 0.25 and 2.00).
-    speed_net_density : float
-        Net density of the speed point (ISO 9236-1: 1.00).
-    mid_density_target : float
-        Gross density the mid-density step is chosen near (common practice: 1.20).
-    dd_high_target, dd_low_target : float
-        Gross densities for the density difference steps (common practice: 2.20, 0.45).
-    dd_rule : {"closest", "bounded"}
-        ``closest``: steps closest to the targets; ``bounded``: the high step
-        closest to the high target, the low step the lightest not below the
-        low target (from memory).
-    reference_speed_log_exposure : float or None
-        Speed point of a reference film; gives relative speed in percent.
-    """
-
-    gradient_low: float = 0.25
-    gradient_high: float = 2.00
-    speed_net_density: float = 1.00
-    mid_density_target: float = 1.20
-    dd_high_target: float = 2.20
-    dd_low_target: float = 0.45
-    dd_rule: str = "closest"
-    reference_speed_log_exposure: float | None = None
-
-    def __post_init__(self) -> None:
-        if not self.gradient_high > self.gradient_low:
-            raise ValueError("the upper density point must be above the lower one")
-        if self.dd_rule not in ("closest", "bounded"):
-            raise ValueError("dd_rule must be 'closest' or 'bounded'")
-
-    def to_dict(self) -> dict[str, Any]:
-        return dict(self.__dict__)
 
 
 def step_log_exposures(n_steps: int, increment: float = DEFAULT_INCREMENT, table: Sequence[float] | None = None) -> np.ndarray:

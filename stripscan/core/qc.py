@@ -46,6 +46,8 @@ import numpy as np
 
 from stripscan import CAUTION
 
+from .qc_names import BASE_FOG_RULES, EVENT_KINDS, QUANTITIES, SOURCES, STEP_RULES, TREND_RULE_NAMES, VERDICTS
+
 __all__ = [
     "QUANTITIES",
     "TREND_DEAD_BAND",
@@ -75,13 +77,6 @@ __all__ = [
     "crossover",
 ]
 
-QUANTITIES = ("base_fog", "mid_density", "density_difference")
-VERDICTS = ("ok", "warning", "action")
-SOURCES = ("scan", "manual")
-EVENT_KINDS = ("new_chemistry", "service", "new_film_type", "new_sensitometer", "crossover", "other")
-STEP_RULES = ("closest", "bounded")
-TREND_RULE_NAMES = ("run", "drift", "two_warnings")
-BASE_FOG_RULES = ("new_mean", "shift")
 
 #: What is usually done next, by verdict (common practice).  A warning's
 #: advice starts with what raised it (:data:`WARNING_CAUSES`) and ends with
