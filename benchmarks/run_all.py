@@ -19,6 +19,10 @@ noisy: the seconds vary, the ratios less):
    the median ÷ a 16 ms frame (target ≤ 1), Qt offscreen;
 5. the archive's listing and trend queries over 10,000 snapshots, best
    time ÷ 100 ms (target ≤ 1).
+6. the start-up of ``stripscan --help`` ÷ the start-up of
+   ``python -c "import numpy"``, each the best of 5 fresh processes taken
+   in turn (target ≤ 2): building the command line must not import the
+   heavy libraries.
 
 The table gives each figure's measured value, target, ratio and whether it
 meets the target.  ``--quick`` takes fewer repeats and only 600 dpi, for a
@@ -37,6 +41,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import subprocess
 import sys
 import time
 import traceback
@@ -60,6 +65,8 @@ PEAK_PER_IMAGE = 3.0
 FRAME_MS = 16.0
 ARCHIVE_MS = 1000 * bench_archive.TARGET_S
 ARCHIVE_SNAPSHOTS = 10_000
+STARTUP_PER_NUMPY = 2.0
+STARTUP_RUNS = 5
 COMPRESSION_NAMES = {"none": "uncompressed", "zlib": "zlib", "lzw": "LZW"}
 
 
@@ -140,6 +147,26 @@ def archive_figures(snapshots: int, repeat: int) -> list[Figure]:
             for q in timing.queries]
 
 
+def startup_figures(runs: int = STARTUP_RUNS) -> list[Figure]:
+    """Figure 6: best start-up of ``stripscan --help`` against the best of ``python -c "import numpy"``.
+
+    Both run as fresh processes of this interpreter, taken in turn so that
+    both see the same load; the checkout's own ``stripscan`` comes first on
+    the path.
+    """
+    root = HERE.parent
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, (str(root), os.environ.get("PYTHONPATH")))))
+    commands = {"help": [sys.executable, "-m", "stripscan", "--help"], "numpy": [sys.executable, "-c", "import numpy"]}
+    best = {name: float("inf") for name in commands}
+    for _ in range(runs):
+        for name, command in commands.items():
+            start = time.perf_counter()
+            subprocess.run(command, check=True, stdout=subprocess.DEVNULL, env=env, cwd=root)
+            best[name] = min(best[name], time.perf_counter() - start)
+    return [Figure("start-up of 'stripscan --help' ÷ 'python -c \"import numpy\"'", 1000 * best["help"], "ms",
+                   1000 * best["numpy"], "import numpy", STARTUP_PER_NUMPY, note=f"best of {runs} runs each")]
+
+
 def format_table(figures: Sequence[Figure]) -> str:
     """Figure, measured value, target, ratio, meets/misses, note: one aligned row each."""
     rows = [("figure", "measured", "target", "ratio", "verdict", "note")]
@@ -168,6 +195,7 @@ def main(argv: list[str] | None = None) -> int:
         print(f"[{time.perf_counter() - started:6.1f} s] {message}", file=sys.stderr, flush=True)
 
     pieces: list[tuple[str, Callable[[], list[Figure]]]] = [
+        ("start-up", startup_figures),
         ("analysis", lambda: analysis_figures((600.0,) if args.quick else (600.0, 1200.0), 1 if args.quick else 3,
                                               progress=progress)),
         ("archive", lambda: archive_figures(ARCHIVE_SNAPSHOTS, 3 if args.quick else 7)),

@@ -71,3 +71,15 @@ def test_table_has_a_row_per_figure_with_its_verdict(run_all: ModuleType, figure
     for row, figure in zip(rows, figures):
         assert row.startswith(figure.figure)
         assert {True: "meets", False: "misses", None: "—"}[figure.meets] in row.split()
+
+
+def test_startup_piece_times_both_processes(run_all: ModuleType) -> None:
+    # Figure 6: one row, the start-up of 'stripscan --help' against the start-up of numpy, both measured.
+    (figure,) = run_all.startup_figures(runs=1)
+    record = figure.to_dict()
+    assert set(record) == RECORD_KEYS
+    assert "stripscan --help" in record["figure"] and record["reference_name"] == "import numpy"
+    assert record["unit"] == "ms" and record["limit"] == 2.0
+    for key in ("value", "reference", "ratio"):
+        assert math.isfinite(record[key]) and record[key] > 0, (key, record)
+    assert record["meets"] is (record["ratio"] <= 2.0)
