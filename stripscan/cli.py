@@ -44,10 +44,9 @@ def _write_text_atomic(path: Path, text: str) -> None:
 
 def _read_exposure_table(path: str) -> tuple[float, ...]:
     """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
-    try:
-        lines = Path(path).read_text(encoding="utf-8").splitlines()
-    except OSError as exc:
-        raise CommandError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    from .core.calibration import read_table_text
+
+    lines = read_table_text(path, "step table", "one number per step, one per line").splitlines()
     values = []
     for lineno, line in enumerate(lines, start=1):
         text = line.split("#", 1)[0].strip()
@@ -55,11 +54,14 @@ def _read_exposure_table(path: str) -> tuple[float, ...]:
             continue
         cell = text.split(",")[-1].strip()
         try:
-            values.append(float(cell))
+            value = float(cell)
         except ValueError:
             if not values:  # a header row
                 continue
             raise CommandError(f"{path}, line {lineno}: {cell!r} is not a number") from None
+        if not math.isfinite(value):
+            raise CommandError(f"{path}, line {lineno}: {cell!r} is not a finite number")
+        values.append(value)
     if len(values) < 2:
         raise CommandError(f"{path}: an exposure table needs one log exposure per step")
     return tuple(values)

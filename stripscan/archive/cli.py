@@ -92,8 +92,9 @@ def _cmd_add(args: argparse.Namespace) -> int:
         return _fail(f"scan analysis is not available in this installation ({exc})")
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None
+    # Read the scan before opening the archive: a bad scan leaves no new, empty archive file behind.
+    analysis = analyze_scan(args.scan, calibration=calibration, options=AnalysisOptions(n_steps=args.steps))
     with _open(args, create=True) as archive:
-        analysis = analyze_scan(args.scan, calibration=calibration, options=AnalysisOptions(n_steps=args.steps))
         new = []
         if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
             new.append(f"lot {args.lot!r}")

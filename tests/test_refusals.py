@@ -1,0 +1,187 @@
+"""What stripscan refuses: a matrix of bad input through the command line.
+
+Each row is something a physicist might feed the program by mistake, or an
+edited file: every one ends in exit status 1, one line on stderr naming the
+file (or the option) and the problem, and nothing written.  The rows that
+were accepted before, or crashed, are the items of the bad-input issue;
+``tests/core/test_bad_input.py`` keeps the scan files that were already
+refused cleanly.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+import pytest
+
+from stripscan.cli import main
+from stripscan.core.calibration import load_calibration, save_calibration
+from stripscan.demo_data import demo_files
+
+
+def run(argv, capsys):
+    code = main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def one_line(err: str, *parts: str) -> bool:
+    return err.count("\n") == 1 and err.startswith("stripscan: error: ") and all(p in err for p in parts)
+
+
+@pytest.fixture(scope="module")
+def demo():
+    return demo_files()
+
+
+@pytest.fixture
+def saved_calibration(tmp_path, demo) -> Path:
+    """A calibration as 'stripscan calibrate' writes it today (with its own sha256)."""
+    path = tmp_path / "calibration.json"
+    save_calibration(load_calibration(demo.calibration), path)
+    return path
+
+
+# ------------------------------------------------------------- certificates
+
+CERTIFICATES = {
+    # issue item 1: OverflowError, and a 3 GB set of step numbers
+    "step inf": ("1,0.05\ninf,0.30\n3,0.60\n", "line 2: step 'inf' is not a whole number"),
+    "step 1e12": ("1,0.05\n1e12,0.30\n3,0.60\n", "line 2: step '1e12' is beyond the 100 steps"),
+    # item 21: a message that did not name the file
+    "step nan": ("1,0.05\nnan,0.30\n3,0.60\n", "line 2: step 'nan' is not a whole number"),
+    # item 8: NaN uncertainty written into the calibration
+    "uncertainty nan": ("1,0.05,0.01\n2,0.30,nan\n3,0.60,0.01\n", "line 2: uncertainty 'nan' is not a plausible"),
+    "uncertainty negative": ("1,0.05,0.01\n2,0.30,-0.01\n3,0.60,0.01\n", "line 2: uncertainty '-0.01'"),
+}
+
+
+@pytest.mark.parametrize("case", list(CERTIFICATES))
+def test_a_bad_certificate_is_refused_by_line(tmp_path, capsys, demo, case):
+    text, message = CERTIFICATES[case]
+    cert = tmp_path / "certificate.csv"
+    cert.write_text(text, encoding="utf-8")
+    out = tmp_path / "cal.json"
+    code, _, err = run(["calibrate", demo.tablet_scan, "--densities", cert, "-o", out], capsys)
+    assert code == 1 and one_line(err, str(cert), message), err
+    assert not out.exists()
+
+
+def test_a_certificate_shorter_than_the_tablet_names_the_missing_steps(tmp_path, capsys, demo):
+    # issue item 7: 5 certified steps for a 21-step tablet were fitted, and every strip step read "not used"
+    cert = tmp_path / "five.csv"
+    cert.write_text("\n".join(demo.certificate.read_text(encoding="utf-8").splitlines()[:8]) + "\n", encoding="utf-8")
+    out = tmp_path / "cal.json"
+    code, _, err = run(["calibrate", demo.tablet_scan, "--densities", cert, "-o", out], capsys)
+    assert code == 1 and one_line(err, "shows 21 steps", "lists 5", "steps 6 to 21 are missing"), err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("encoding", ["latin-1", "utf-16"])
+def test_a_certificate_saved_as_latin1_or_utf16_is_read(tmp_path, capsys, demo, encoding):
+    # item 21: these were called "not a text file"; a spreadsheet writes both
+    text = demo.certificate.read_text(encoding="utf-8").replace("# Step tablet", "# Step tablet, réf.")
+    cert = tmp_path / "certificate.csv"
+    cert.write_bytes(text.encode(encoding))
+    out = tmp_path / "cal.json"
+    code, stdout, err = run(["calibrate", demo.tablet_scan, "--densities", cert, "-o", out], capsys)
+    assert code == 0 and "Tablet: 21 certified steps" in stdout, err
+
+
+def test_a_binary_file_as_certificate_is_refused(tmp_path, capsys, demo):
+    cert = tmp_path / "certificate.csv"
+    cert.write_bytes(b"\x89PNG\r\n\x1a\n\x00\x00\x00\rIHDR")
+    code, _, err = run(["calibrate", demo.tablet_scan, "--densities", cert, "-o", tmp_path / "c.json"], capsys)
+    assert code == 1 and one_line(err, str(cert), "not a text file"), err
+
+
+# ------------------------------------------------------------- calibrations
+
+def _edit(data: dict, key: str, value) -> dict:
+    data[key] = value
+    return data
+
+
+CALIBRATION_EDITS = {
+    # issue item 2: TypeError, AttributeError, and a traceback after -o was written
+    "format_version null": (lambda d: _edit(d, "format_version", None), "format_version is None"),
+    "format_version list": (lambda d: _edit(d, "format_version", [1]), "format_version is [1]"),
+    "format_version text": (lambda d: _edit(d, "format_version", "one"), "format_version is 'one'"),
+    "certificate text": (lambda d: _edit(d, "certificate", "none"), "certificate is 'none'"),
+    "valid_od NaN": (lambda d: _edit(d, "valid_od", [float("nan"), 2.0]), "valid_od[0] is nan"),
+    # issue item 6: a reversed od list stored base+fog 2.90 with exit 0
+    "od reversed": (lambda d: _edit(d, "od", d["od"][::-1]), "od does not fall as the signal rises"),
+    "log_signal with null": (lambda d: _edit(d, "log_signal", [None, *d["log_signal"][1:]]), "log_signal[0] is None"),
+    "valid range beyond the knots": (lambda d: _edit(d, "valid_od", [0.0, 9.0]), "does not lie within"),
+    "certificate steps with a gap": (
+        lambda d: _edit(d, "certificate", {**d["certificate"], "steps": [1, 3, *d["certificate"]["steps"][2:]]}),
+        "certificate's steps do not run 1..N"),
+}
+
+
+@pytest.mark.parametrize("case", list(CALIBRATION_EDITS))
+def test_an_edited_calibration_is_refused_before_anything_is_written(tmp_path, capsys, demo, case):
+    edit, message = CALIBRATION_EDITS[case]
+    data = edit(json.loads(demo.calibration.read_text(encoding="utf-8")))
+    cal = tmp_path / "calibration.json"
+    cal.write_text(json.dumps(data), encoding="utf-8")
+    out = tmp_path / "result.json"
+    code, _, err = run(["analyze", demo.daily_scans[0][1], "--calibration", cal, "-o", out], capsys)
+    assert code == 1 and one_line(err, str(cal), message), err
+    assert not out.exists()
+
+
+def test_a_calibration_edited_after_saving_fails_its_own_hash(tmp_path, capsys, demo, saved_calibration):
+    data = json.loads(saved_calibration.read_text(encoding="utf-8"))
+    assert len(data["sha256"]) == 64
+    data["valid_od"][1] = round(data["valid_od"][1] - 0.5, 3)  # still a plausible range: only the hash tells
+    saved_calibration.write_text(json.dumps(data), encoding="utf-8")
+    code, _, err = run(["analyze", demo.daily_scans[0][1], "--calibration", saved_calibration], capsys)
+    assert code == 1 and one_line(err, str(saved_calibration), "no longer matches the sha256"), err
+
+
+def test_a_saved_calibration_reads_back_and_unknown_keys_are_kept_out_of_the_way(tmp_path, capsys, demo,
+                                                                                   saved_calibration):
+    data = json.loads(saved_calibration.read_text(encoding="utf-8"))
+    assert load_calibration(saved_calibration).sha256 == data["sha256"]
+    del data["sha256"]
+    data["a_later_field"] = {"fraction": 0.01}  # a newer stripscan may add fields
+    saved_calibration.write_text(json.dumps(data), encoding="utf-8")
+    code, out, err = run(["analyze", demo.daily_scans[0][1], "--calibration", saved_calibration], capsys)
+    assert code == 0 and "Strip 1" in out, err
+
+
+def test_json_nested_deeply_is_refused(tmp_path, capsys, demo):
+    cal = tmp_path / "deep.json"
+    cal.write_text("[" * 200_000 + "]" * 200_000, encoding="utf-8")
+    code, _, err = run(["analyze", demo.daily_scans[0][1], "--calibration", cal], capsys)
+    assert code == 1 and one_line(err, str(cal), "nested too deeply"), err
+
+
+# ------------------------------------------------------------- analysis options
+
+@pytest.mark.parametrize("steps", ["0", "-5", "100000"])
+def test_an_impossible_step_count_is_refused(tmp_path, capsys, demo, steps):
+    # issue item 9: 0-step snapshots were stored; --steps 100000 stored 300 000 rows
+    archive = tmp_path / "archive.sqlite3"
+    code, _, err = run(["archive", "add", demo.daily_scans[0][1], "--lot", "L1", "--archive", archive,
+                        f"--steps={steps}"], capsys)
+    assert code == 1 and one_line(err, "step count", "2 to 100", steps), err
+    assert not archive.exists()
+    code, _, err = run(["analyze", demo.daily_scans[0][1], f"--steps={steps}"], capsys)
+    assert code == 1 and one_line(err, "step count"), err
+
+
+def test_nan_in_an_exposure_table_is_refused_by_line(tmp_path, capsys, demo):
+    table = tmp_path / "exposures.txt"
+    table.write_text("0.0\nnan\n0.30\n", encoding="utf-8")
+    code, _, err = run(["analyze", demo.daily_scans[0][1], "--exposures", table], capsys)
+    assert code == 1 and one_line(err, str(table), "line 2", "not a finite number"), err
+
+
+@pytest.mark.parametrize("option", ["--increment=nan", "--low=nan", "--dark=inf"])
+def test_nan_options_are_refused(capsys, demo, option):
+    code, _, err = run(["analyze", demo.daily_scans[0][1], option], capsys)
+    assert code == 1 and one_line(err), err
