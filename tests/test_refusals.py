@@ -185,3 +185,117 @@ def test_nan_in_an_exposure_table_is_refused_by_line(tmp_path, capsys, demo):
 def test_nan_options_are_refused(capsys, demo, option):
     code, _, err = run(["analyze", demo.daily_scans[0][1], option], capsys)
     assert code == 1 and one_line(err), err
+
+
+# ------------------------------------------------------------- scan files
+
+def _grey8(demo) -> "np.ndarray":
+    import numpy as np
+    import tifffile
+
+    image = tifffile.imread(demo.daily_scans[0][1])
+    return (np.clip(image / 65535.0, 0, 1) ** (1 / 2.2) * 255).astype(np.uint8)
+
+
+def test_a_palette_tiff_reads_as_its_colours(tmp_path, demo):
+    # issue item 11: the colour map was ignored and the palette indices read as grey levels
+    import numpy as np
+    import tifffile
+
+    from stripscan.core.scan import load_scan
+
+    grey = _grey8(demo)
+    tifffile.imwrite(tmp_path / "grey.tif", grey)
+    ramp = (np.arange(256) * 257).astype(np.uint16)
+    # indices into a reversed grey colour map: index k shows grey level 255 - k
+    tifffile.imwrite(tmp_path / "palette.tif", (255 - grey).astype(np.uint8), photometric="palette",
+                     colormap=np.tile(ramp[::-1], (3, 1)))
+    expected = load_scan(tmp_path / "grey.tif")
+    palette = load_scan(tmp_path / "palette.tif")
+    assert palette.info.bits == 8 and np.array_equal(palette.signal, expected.signal)
+
+
+def test_a_coloured_palette_tiff_reads_its_rgb(tmp_path):
+    import numpy as np
+    import tifffile
+
+    from stripscan.core.scan import load_scan
+
+    colours = np.zeros((3, 256), np.uint16)
+    colours[0, 1], colours[1, 1], colours[2, 1] = 65000, 0, 0  # index 1 is red; 65000 is no 8-bit level x 257
+    tifffile.imwrite(tmp_path / "palette.tif", np.ones((32, 32), np.uint8), photometric="palette", colormap=colours)
+    scan = load_scan(tmp_path / "palette.tif", channel="red")
+    assert scan.info.bits == 16 and float(scan.signal.mean()) == pytest.approx(65000 / 65535)  # linear 16-bit
+
+
+def _cli_scan_case(tmp_path, capsys, path, *parts):
+    out = tmp_path / "result.json"
+    code, _, err = run(["analyze", path, "-o", out], capsys)
+    assert code == 1 and one_line(err, str(path), *parts), err
+    assert not out.exists()
+
+
+def test_a_multi_page_tiff_is_refused_but_a_preview_page_is_not_counted(tmp_path, capsys, demo):
+    # issue item 11: only page 1 was read, silently
+    import numpy as np
+    import tifffile
+
+    image = tifffile.imread(demo.daily_scans[0][1])
+    tifffile.imwrite(tmp_path / "two.tif", np.stack([image, image]), photometric="minisblack")
+    _cli_scan_case(tmp_path, capsys, tmp_path / "two.tif", "holds 2 images", "one scan per file")
+    with tifffile.TiffWriter(tmp_path / "preview.tif") as tif:
+        tif.write(image, photometric="minisblack", resolution=(300, 300), resolutionunit="INCH")
+        tif.write(image[::8, ::8], photometric="minisblack", subfiletype=1)  # a reduced-resolution preview
+    code, out, err = run(["analyze", tmp_path / "preview.tif"], capsys)
+    assert code == 0 and "Strip 1" in out, err
+
+
+def test_a_cmyk_tiff_is_refused_by_its_colour_model(tmp_path, capsys):
+    # issue item 21: reported as "film was seen but no steps"
+    import numpy as np
+    import tifffile
+
+    tifffile.imwrite(tmp_path / "cmyk.tif", np.zeros((64, 64, 4), np.uint8), photometric="separated")
+    _cli_scan_case(tmp_path, capsys, tmp_path / "cmyk.tif", "CMYK")
+
+
+def test_tifffile_log_lines_stay_off_the_terminal(tmp_path, capsys):
+    # issue item 21: nine lines of tifffile's log on stderr for a 200-byte file
+    import numpy as np
+    import tifffile
+
+    tifffile.imwrite(tmp_path / "whole.tif", np.zeros((64, 64), np.uint16), description="a scan")
+    (tmp_path / "cut.tif").write_bytes((tmp_path / "whole.tif").read_bytes()[:200])
+    # A process of its own: pytest's log capture would hide what logging prints on a terminal.
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-m", "stripscan", "analyze", str(tmp_path / "cut.tif")],
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 1 and one_line(done.stderr, "cut.tif", "cannot be read as an image"), done.stderr
+
+
+def test_an_image_above_the_pixel_limit_is_refused_before_decoding(tmp_path, capsys, monkeypatch, demo):
+    # issue item 3: a deflate-compressed 40 960 x 40 960 page grew to 6 GB; the limit is read from the header
+    import numpy as np
+    import tifffile
+
+    from stripscan.core.scan import DEFAULT_MAX_PIXELS
+
+    assert DEFAULT_MAX_PIXELS > 10_000 * 14_000  # an A4 page at 1200 dpi, common practice
+    bomb = tmp_path / "bomb.tif"
+    tifffile.imwrite(bomb, np.zeros((2000, 2000), np.uint16), compression="zlib", tile=(256, 256))
+    assert bomb.stat().st_size < 200_000
+    monkeypatch.setenv("STRIPSCAN_MAX_PIXELS", "1000000")
+    _cli_scan_case(tmp_path, capsys, bomb, "2000 x 2000 pixels", "STRIPSCAN_MAX_PIXELS")
+    png = tmp_path / "bomb.png"
+    import imageio.v3 as iio
+
+    iio.imwrite(png, np.zeros((2000, 2000), np.uint8))
+    _cli_scan_case(tmp_path, capsys, png, "2000 x 2000 pixels")
+    monkeypatch.setenv("STRIPSCAN_MAX_PIXELS", "lots")
+    code, _, err = run(["analyze", demo.daily_scans[0][1]], capsys)
+    assert code == 1 and one_line(err, "STRIPSCAN_MAX_PIXELS='lots'"), err
+    monkeypatch.delenv("STRIPSCAN_MAX_PIXELS")
+    code, _, err = run(["analyze", demo.daily_scans[0][1]], capsys)
+    assert code == 0, err
