@@ -299,3 +299,19 @@ def test_an_image_above_the_pixel_limit_is_refused_before_decoding(tmp_path, cap
     monkeypatch.delenv("STRIPSCAN_MAX_PIXELS")
     code, _, err = run(["analyze", demo.daily_scans[0][1]], capsys)
     assert code == 0, err
+
+
+# ------------------------------------------------------------- compare sets
+
+def test_a_huge_snapshot_range_is_refused_at_once(tmp_path, capsys, demo):
+    # issue item 4: 4 GB in 23 s expanding the range
+    archive = tmp_path / "archive.sqlite3"
+    code, _, err = run(["compare", "snapshot:1-99999999999999999999", "snapshot:1", "--archive", archive], capsys)
+    assert code == 1 and one_line(err, "snapshot:1-99999999999999999999", "at most 1000"), err
+
+
+def test_strips_missing_from_a_scan_are_listed_briefly(capsys, demo):
+    # issue item 4: '#1-100000' printed a 689 kB line
+    scan = demo.lot_a_scan
+    code, _, err = run(["compare", f"scan:{scan}#1-1000", f"scan:{scan}#1"], capsys)
+    assert code == 1 and one_line(err, "has 3 strip(s), no strip 4, 5, 6", "and 987 more") and len(err) < 400, err
