@@ -10,6 +10,7 @@ import argparse
 import json
 import math
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -24,6 +25,41 @@ EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
 class CommandError(Exception):
     """A user-facing failure: printed as one line, exit status 1."""
+
+
+# C0 and C1 control characters but tab and line feed (escape sequences that
+# clear a terminal, move its cursor or set its title), and directional marks
+# that turn the text around them.
+_TERMINAL_UNSAFE = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029"
+                              "\u202a-\u202e\u2066-\u2069]")
+
+
+def terminal_safe(text: str) -> str:
+    """``text`` with control characters and directional marks written as ``\\uXXXX``.
+
+    Names stored before they were refused at entry, file names and text
+    from files are printed this way, so they show what they hold instead of
+    acting on the terminal.  Inside JSON strings the same form is a valid
+    escape of the same character.
+    """
+    return _TERMINAL_UNSAFE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
+
+
+class _TerminalSafe:
+    """A text stream that writes :func:`terminal_safe` text to another one."""
+
+    def __init__(self, stream) -> None:
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        return self._stream.write(terminal_safe(text))
+
+    def writelines(self, lines) -> None:
+        for line in lines:
+            self.write(line)
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
 
 
 def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
@@ -347,6 +383,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         except CommandError as exc:
             print(f"stripscan: error: {exc}", file=sys.stderr)
             return EXIT_ERROR
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = _TerminalSafe(streams[0]), _TerminalSafe(streams[1])
+    try:
+        return _run(parser, argv)
+    finally:
+        sys.stdout, sys.stderr = streams
+
+
+def _run(parser: argparse.ArgumentParser, argv: list[str]) -> int:
     args = parser.parse_args(argv)
     func: Callable | None = getattr(args, "func", None)
     if func is None:

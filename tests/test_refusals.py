@@ -315,3 +315,181 @@ def test_strips_missing_from_a_scan_are_listed_briefly(capsys, demo):
     scan = demo.lot_a_scan
     code, _, err = run(["compare", f"scan:{scan}#1-1000", f"scan:{scan}#1"], capsys)
     assert code == 1 and one_line(err, "has 3 strip(s), no strip 4, 5, 6", "and 987 more") and len(err) < 400, err
+
+
+# ------------------------------------------------------------- the archive
+
+@pytest.fixture
+def stored(tmp_path, capsys, demo) -> Path:
+    """An archive holding the demo lot A scan's three strips (calibrated)."""
+    archive = tmp_path / "archive.sqlite3"
+    code, _, err = run(["archive", "add", demo.lot_a_scan, "--lot", "M-2610-A", "--calibration", demo.calibration,
+                        "--processor", "Processor 1", "--archive", archive], capsys)
+    assert code == 0, err
+    return archive
+
+
+def _count(archive: Path) -> int:
+    from stripscan.archive import Archive
+
+    with Archive.open(archive, read_only=True) as opened:
+        return len(opened.list_snapshots(include_retired=True, include_superseded=True))
+
+
+def test_the_same_scan_added_twice_needs_again(stored, capsys, demo):
+    # issue item 14: stored twice with no warning; a retry after a lost acknowledgement doubled n
+    argv = ["archive", "add", demo.lot_a_scan, "--lot", "M-2610-A", "--calibration", demo.calibration,
+            "--archive", stored]
+    code, _, err = run(argv, capsys)
+    assert code == 1 and one_line(err, "is stored already", "strip 1 as snapshot 1", "--again"), err
+    assert _count(stored) == 3
+    code, out, err = run([*argv, "--again"], capsys)
+    assert code == 0 and "snapshot 6" in out, err
+    assert _count(stored) == 6
+
+
+def test_a_bad_scan_leaves_no_new_archive_file(tmp_path, capsys, demo):
+    # issue item 15: a bad scan with a new --archive path left an empty archive behind
+    bad = tmp_path / "not a scan.tif"
+    bad.write_text("step,density\n", encoding="utf-8")
+    archive = tmp_path / "new" / "archive.sqlite3"
+    code, _, err = run(["archive", "add", bad, "--lot", "L1", "--archive", archive], capsys)
+    assert code == 1 and one_line(err, str(bad)), err
+    assert not archive.exists()
+    export = tmp_path / "export.json"
+    export.write_text('{"format": "stripscan lot archive", "format_version": 2, "snapshots": 3}', encoding="utf-8")
+    code, _, err = run(["archive", "import", export, "--archive", archive], capsys)
+    assert code == 1 and one_line(err, "snapshots must be a list"), err
+    assert not archive.exists() and not Path(f"{archive}-wal").exists()
+
+
+NAMES = {
+    "ANSI clear screen in a lot": (["--lot", "L\x1b[2J1"], "lot id", "control character (U+001B)"),
+    "OSC window title in an operator": (["--lot", "L1", "--operator", "A\x1b]0;owned\x07"], "operator",
+                                        "control character"),
+    "right-to-left override in a processor": (["--lot", "L1", "--processor", "P\u202e1"], "processor",
+                                              "hidden directional mark (U+202E)"),
+    "a lot name of 100 kB": (["--lot", "L" * 100_000], "lot id", "at most 80 are kept"),
+}
+
+
+@pytest.mark.parametrize("case", list(NAMES))
+def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys, demo, case):
+    # issue items 12 and 5
+    options, *parts = NAMES[case]
+    archive = tmp_path / "archive.sqlite3"
+    code, out, err = run(["archive", "add", demo.lot_a_scan, "--calibration", demo.calibration, *options,
+                          "--archive", archive], capsys)
+    assert code == 1 and one_line(err, str(archive), *parts), err
+    assert "\x1b" not in err + out and "\u202e" not in err + out and len(err) < 600
+    assert not archive.exists()
+
+
+def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys):
+    # issue item 12: names stored by an older stripscan are printed escaped, never raw
+    import sqlite3
+
+    with sqlite3.connect(stored) as raw:  # as an older version stored it
+        raw.execute("INSERT INTO emulsion_lots (lot_id, notes) VALUES (?, '')", ("OLD\x1b]0;title\x07\u202e",))
+    code, out, err = run(["archive", "lots", "--archive", stored], capsys)
+    assert code == 0 and "OLD\\u001b]0;title\\u0007\\u202e" in out, err
+    assert "\x1b" not in out and "\u202e" not in out
+
+
+DATES_AND_VALUES = {
+    "processed in 9999": (["archive", "add", "@scan", "--lot", "L1", "--processed", "9999-12-31"],
+                          "processed date 9999-12-31 lies outside 1970-01-01 .."),
+    "exposed in year 1": (["archive", "add", "@scan", "--lot", "L1", "--exposed", "0001-01-01"],
+                          "exposed date 0001-01-01 lies outside"),
+    "exposed after processed": (["archive", "add", "@scan", "--lot", "L1", "--exposed", "2026-11-03",
+                                 "--processed", "2026-11-02"],
+                                "processed on 2026-11-02, before it was exposed on 2026-11-03"),
+    "typed OD -0.5": (["qc", "add", "--processor", "P1", "--new-processor", "--date", "2026-11-02",
+                       "--base-fog=-0.5", "--mid-density", "1.2", "--density-difference", "1.9"],
+                      "base+fog -0.5 OD lies outside the plausible 0 .. 1.5 OD"),
+    "typed OD 50": (["qc", "add", "--processor", "P1", "--new-processor", "--date", "2026-11-02",
+                     "--base-fog", "0.2", "--mid-density", "50", "--density-difference", "1.9"],
+                    "mid-density 50.0 OD lies outside the plausible 0 .. 5 OD"),
+    "typed OD 1e300": (["qc", "add", "--processor", "P1", "--new-processor", "--date", "2026-11-02",
+                        "--base-fog", "0.2", "--mid-density", "1.2", "--density-difference", "1e300"],
+                       "density difference 1e+300 OD lies outside"),
+}
+
+
+@pytest.mark.parametrize("case", list(DATES_AND_VALUES))
+def test_implausible_dates_and_densities_are_refused_with_the_range(tmp_path, capsys, demo, case):
+    # issue item 13: stored forever with exit 0
+    argv, message = DATES_AND_VALUES[case]
+    archive = tmp_path / "archive.sqlite3"
+    argv = [demo.lot_a_scan if a == "@scan" else a for a in argv]
+    extra = ["--calibration", demo.calibration] if argv[0] == "archive" else []
+    code, _, err = run([*argv, *extra, "--archive", archive], capsys)
+    assert code == 1 and one_line(err, message), err
+    assert not archive.exists()
+
+
+def _export(tmp_path, capsys, archive) -> dict:
+    path = tmp_path / "export.json"
+    code, _, err = run(["archive", "export", "--format", "json", "-o", path, "--archive", archive], capsys)
+    assert code == 0, err
+    return json.loads(path.read_text(encoding="utf-8"))
+
+
+def _forge(snapshot: dict, what: str) -> None:
+    metrics = snapshot["strip"]["metrics"]
+    if what == "mid-density moved":
+        metrics["mid_density"] = 0.5
+    elif what == "NaN figure":
+        metrics["gamma"] = float("nan")
+    elif what == "no steps":
+        snapshot["strip"]["steps"] = []
+    elif what == "speed moved":
+        metrics["speed_log_exposure"] += 0.3
+    else:
+        raise AssertionError(what)
+
+
+@pytest.mark.parametrize("what", ["mid-density moved", "NaN figure", "no steps", "speed moved"])
+def test_an_import_with_forged_figures_is_refused(tmp_path, capsys, stored, what):
+    # issue item 10: a mid-density of 0.500 while its step read 0.986, NaN figures, no steps: accepted
+    data = _export(tmp_path, capsys, stored)
+    snapshot = data["snapshots"][0]
+    _forge(snapshot, what)
+    snapshot["id"] = 99  # a new snapshot to the receiving archive
+    forged = tmp_path / "forged.json"
+    forged.write_text(json.dumps(data), encoding="utf-8")
+    code, _, err = run(["archive", "import", forged, "--archive", stored], capsys)
+    assert code == 1 and one_line(err, str(forged), "snapshot 99", "nothing was imported"), err
+    assert _count(stored) == 3
+
+
+def test_an_honest_export_imports_into_a_new_archive(tmp_path, capsys, stored):
+    data = _export(tmp_path, capsys, stored)
+    path = tmp_path / "export.json"
+    other = tmp_path / "other.sqlite3"
+    code, out, err = run(["archive", "import", path, "--archive", other], capsys)
+    assert code == 0 and "3 snapshots" in out, err
+    assert len(data["snapshots"]) == _count(other) == 3
+
+
+def test_an_export_nested_deeply_is_refused(tmp_path, capsys, stored):
+    deep = tmp_path / "deep.json"
+    deep.write_text("[" * 200_000 + "]" * 200_000, encoding="utf-8")
+    code, _, err = run(["archive", "import", deep, "--archive", stored], capsys)
+    assert code == 1 and one_line(err, str(deep), "nested too deeply"), err
+
+
+def test_a_reader_leaving_early_is_no_error_after_the_write(tmp_path, demo):
+    # issue item 21: 'archive add ... | true' said "Broken pipe", exit 1, though the write committed
+    import subprocess
+    import sys
+
+    archive = tmp_path / "archive.sqlite3"
+    process = subprocess.Popen([sys.executable, "-m", "stripscan", "archive", "add", str(demo.lot_a_scan),
+                                "--lot", "M-2610-A", "--calibration", str(demo.calibration), "--archive",
+                                str(archive)], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    process.stdout.close()  # as '| true' does
+    with process.stderr:
+        err = process.stderr.read().decode()
+    assert process.wait(timeout=120) == 0 and err == "", err
+    assert _count(archive) == 3

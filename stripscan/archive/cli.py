@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -17,6 +18,7 @@ from typing import Any
 
 from .. import CAUTION
 from ..figure_table import step_flag
+from .entry_checks import remove_if_unused, stored_strips_of_scan
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -38,12 +40,29 @@ def _fail(message: str) -> int:
     return 1
 
 
+def _quiet_stdout() -> None:
+    """Point stdout at devnull, so that the interpreter's last flush does not fail again."""
+    try:
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
+
+
 def _guarded(handler: _Handler) -> _Handler:
     def run(args: argparse.Namespace) -> int:
         try:
             return handler(args)
+        except BrokenPipeError:
+            # The reader went away (``... | true``).  These commands print only
+            # after their write committed, so nothing failed: say nothing.
+            _quiet_stdout()
+            return 0
         except (ArchiveError, ValueError, OSError) as exc:
+            _forget_new_archive(args)
             return _fail(str(exc))
+        except BaseException:
+            _forget_new_archive(args)
+            raise
     run.__doc__ = handler.__doc__
     return run
 
@@ -60,7 +79,16 @@ def _open(args: argparse.Namespace, *, create: bool) -> Archive:
     # Reading commands never create a file: a mistyped --archive path must
     # say so rather than show an empty archive.
     path = args.archive if args.archive is not None else default_archive_path()
+    if create and not Path(path).expanduser().exists():
+        args.new_archive_file = Path(path).expanduser().absolute()
     return Archive.open(path, create=create)
+
+
+def _forget_new_archive(args: argparse.Namespace) -> None:
+    """A command that failed leaves no new, empty archive file behind."""
+    created = getattr(args, "new_archive_file", None)
+    if created is not None:
+        remove_if_unused(created)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
@@ -95,6 +123,8 @@ def _cmd_add(args: argparse.Namespace) -> int:
     # Read the scan before opening the archive: a bad scan leaves no new, empty archive file behind.
     analysis = analyze_scan(args.scan, calibration=calibration, options=AnalysisOptions(n_steps=args.steps))
     with _open(args, create=True) as archive:
+        if not args.again:
+            _refuse_stored_scan(archive, analysis)
         new = []
         if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
             new.append(f"lot {args.lot!r}")
@@ -116,6 +146,21 @@ def _cmd_add(args: argparse.Namespace) -> int:
               f"base+fog {_number(f.base_fog)}, mid-density {_number(f.mid_density)}, "
               f"density difference {_number(f.density_difference)}, speed {_number(f.speed_log_exposure)}")
     return 0
+
+
+def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
+    """A scan whose strips are stored already is stored again only when asked (``--again``).
+
+    The same file added twice, or a retry after a lost acknowledgement,
+    would count its strips twice in every trend and comparison.
+    """
+    read = {strip.index for strip in analysis.strips}
+    stored = [(i, k) for i, k in stored_strips_of_scan(archive._c, analysis.scan.sha256) if k in read]
+    if stored:
+        shown = ", ".join(f"strip {k} as snapshot {i}" for i, k in stored[:5])
+        more = f" and {len(stored) - 5} more" if len(stored) > 5 else ""
+        raise ArchiveError(f"{archive.path}: {analysis.scan.path} (sha256 {analysis.scan.sha256[:12]}...) is "
+                           f"stored already: {shown}{more}; nothing was stored (give --again to store it again)")
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
@@ -259,6 +304,8 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--scanned", metavar="DATE", type=_date, help="scan date, YYYY-MM-DD")
     add.add_argument("--note", metavar="TEXT", help="free text kept with each snapshot")
     add.add_argument("--steps", metavar="N", type=int, help="number of steps on the strip")
+    add.add_argument("--again", action="store_true",
+                     help="store the scan even if the archive holds its strips already (same file, sha256)")
 
     listing = command("list", _cmd_list, "list snapshots")
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")

@@ -32,6 +32,7 @@ from typing import Any, Callable
 
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
+from .entry_checks import check_note, check_qc_entry, check_reference, check_snapshot
 from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
@@ -428,6 +429,7 @@ class Archive:
     def _insert_reference(self, conn: sqlite3.Connection, record: Any) -> None:
         table, column, word = _REFERENCE[type(record)]
         key = getattr(record, column)
+        check_reference(self.path, record)
         if self._exists(table, column, key):
             raise ArchiveConflictError(f"{self.path}: {word} {key!r} is already in the archive")
         if isinstance(record, EmulsionLot) and record.film_type is not None:
@@ -565,6 +567,7 @@ class Archive:
     def _insert_snapshot(self, conn: sqlite3.Connection, snapshot: Snapshot, *,
                          create_missing: bool = False) -> None:
         """Write one snapshot, its step table and figure columns (inside a transaction)."""
+        check_snapshot(self.path, snapshot)
         self._check_links(conn, snapshot, create_missing)
         strip = snapshot.strip.to_dict()
         steps = strip["steps"]
@@ -885,6 +888,7 @@ class Archive:
                 raise self._missing("snapshot", snapshot_id)
             note = self._checked("add note", SnapshotNote, self._next_id(conn, "snapshot_notes"), snapshot_id,
                                  utc_now(), text, author)
+            check_note(self.path, note)
             self._insert_note(conn, note)
             return note
 
@@ -930,6 +934,7 @@ class Archive:
 
     def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry) -> QcEntry:
         """Check ``entry`` against its day and write it; an entry without an id gets the next one."""
+        check_qc_entry(self.path, entry)
         self._check_qc_processor(entry.processor)
         if entry.snapshot_id is not None and not self._exists("snapshots", "id", entry.snapshot_id):
             raise self._missing("snapshot", entry.snapshot_id)
