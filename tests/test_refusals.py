@@ -493,3 +493,40 @@ def test_a_reader_leaving_early_is_no_error_after_the_write(tmp_path, demo):
         err = process.stderr.read().decode()
     assert process.wait(timeout=120) == 0 and err == "", err
     assert _count(archive) == 3
+
+
+def test_an_archive_locked_by_another_program_says_so(stored, capsys):
+    # issue item 21: an exclusive lock held by another program was reported as "is damaged"
+    import sqlite3
+
+    from stripscan.archive import Archive, ArchiveBusyError
+
+    other = sqlite3.connect(stored, isolation_level=None)
+    try:
+        other.execute("PRAGMA locking_mode = EXCLUSIVE")
+        other.execute("BEGIN EXCLUSIVE")  # SQLite docs (lang_transaction.html): no other connection may read
+        with pytest.raises(ArchiveBusyError, match="is busy: another program .* try again"):
+            Archive.open(stored, busy_timeout_ms=50)
+    finally:
+        other.close()
+
+
+def test_an_archive_on_read_only_media_can_be_listed(tmp_path, stored, demo):
+    # issue item 21: on a read-only file system 'archive list' said "is damaged: unable to open database file"
+    import shutil
+    import subprocess
+    import sys
+
+    if shutil.which("unshare") is None:
+        pytest.skip("needs unshare(1) to mount a read-only file system")
+    media = tmp_path / "media"
+    media.mkdir()
+    script = (f"mount -t tmpfs none '{media}' && cp '{stored}' '{media}/a.sqlite3' && "
+              f"mount -o remount,ro '{media}' && cd '{Path.cwd()}' && "
+              f"'{sys.executable}' -m stripscan archive list --archive '{media}/a.sqlite3' && "
+              f"'{sys.executable}' -m stripscan archive add '{demo.lot_b_scan}' --lot L --archive '{media}/a.sqlite3'")
+    done = subprocess.run(["unshare", "-m", "sh", "-c", script], capture_output=True, text=True, timeout=300)
+    if "mount" in done.stderr and "3 snapshot(s)" not in done.stdout:
+        pytest.skip(f"cannot mount here: {done.stderr.strip()}")
+    assert "3 snapshot(s)" in done.stdout, done.stderr
+    assert done.returncode == 1 and one_line(done.stderr, "is read-only: cannot add snapshots"), done.stderr

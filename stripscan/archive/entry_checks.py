@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import os
 import sqlite3
 import unicodedata
 from pathlib import Path
@@ -39,6 +40,7 @@ __all__ = [
     "check_qc_entry",
     "check_imported_figures",
     "stored_strips_of_scan",
+    "on_read_only_media",
     "remove_if_unused",
 ]
 
@@ -263,6 +265,18 @@ def stored_strips_of_scan(connection: sqlite3.Connection, sha256: str) -> list[t
     rows = connection.execute("SELECT id, strip_index FROM snapshots WHERE scan_sha256 = ? ORDER BY id",
                               (sha256,)).fetchall()
     return [(int(i), int(k)) for i, k in rows]
+
+
+def on_read_only_media(path: Path) -> bool:
+    """Whether ``path`` lies on a file system mounted read-only (a CD, a locked card, a read-only share).
+
+    Such a file cannot change while it is open, so SQLite may read it
+    without the lock files it could not create there (``immutable``).
+    """
+    try:
+        return bool(os.statvfs(path).f_flag & os.ST_RDONLY)
+    except (OSError, AttributeError):  # no such file yet, or no statvfs (Windows)
+        return False
 
 
 def remove_if_unused(path: Path) -> bool:

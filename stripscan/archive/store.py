@@ -32,7 +32,7 @@ from typing import Any, Callable
 
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
-from .entry_checks import check_note, check_qc_entry, check_reference, check_snapshot
+from .entry_checks import check_note, check_qc_entry, check_reference, check_snapshot, on_read_only_media
 from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
@@ -214,7 +214,9 @@ class Archive:
                 raise ArchiveError(f"{path}: cannot create its folder: {exc.strerror or exc}") from None
         read_only = read_only or _marked_read_only(path)
         try:
-            conn = sqlite3.connect(_sqlite_uri(path, "ro" if read_only else "rwc"), uri=True,
+            mode = "ro" if read_only else "rwc"
+            conn = sqlite3.connect(_sqlite_uri(path, mode) + ("&immutable=1" if on_read_only_media(path) else ""),
+                                   uri=True,
                                    timeout=busy_timeout_ms / 1000.0, isolation_level=None)
         except sqlite3.Error as exc:
             raise ArchiveError(f"{path}: cannot open: {exc}") from None
@@ -236,7 +238,7 @@ class Archive:
             except sqlite3.DatabaseError as exc:
                 if (getattr(exc, "sqlite_errorcode", 0) & 0xFF) == _SQLITE_NOTADB:
                     raise ArchiveError(f"{self.path} is not an SQLite database: {exc}") from None
-                raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+                raise self._translate(exc, "open it") from None
             self._check_integrity()
             version = conn.execute("PRAGMA user_version").fetchone()[0]
             app_id = conn.execute("PRAGMA application_id").fetchone()[0]
@@ -265,7 +267,7 @@ class Archive:
             problems = [" ".join(str(row[0]).split()) for row in conn.execute("PRAGMA integrity_check")]
             broken = conn.execute("PRAGMA foreign_key_check").fetchall()
         except sqlite3.DatabaseError as exc:
-            raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+            raise self._translate(exc, "open it") from None
         if problems != ["ok"]:
             shown = "; ".join(problems[:10]) + (f"; ... {len(problems) - 10} more" if len(problems) > 10 else "")
             raise ArchiveError(f"{self.path} is damaged: {shown}")
