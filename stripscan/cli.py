@@ -74,7 +74,10 @@ def _write_text_atomic(path: Path, text: str) -> None:
         tmp.write_text(text, encoding="utf-8")
         os.replace(tmp, path)
     except OSError as exc:
-        tmp.unlink(missing_ok=True)
+        try:
+            tmp.unlink(missing_ok=True)
+        except OSError:  # a read-only folder refuses even that; nothing was left there
+            pass
         raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
 
 

@@ -530,3 +530,28 @@ def test_an_archive_on_read_only_media_can_be_listed(tmp_path, stored, demo):
         pytest.skip(f"cannot mount here: {done.stderr.strip()}")
     assert "3 snapshot(s)" in done.stdout, done.stderr
     assert done.returncode == 1 and one_line(done.stderr, "is read-only: cannot add snapshots"), done.stderr
+
+
+def test_writing_into_a_read_only_folder_or_a_full_disk_names_the_file_and_the_cause(tmp_path, demo):
+    # issue item 21: '-o' into a read-only folder named 'x.json.partial'; a full disk during 'report'
+    # read "Qt could not start page 3"
+    import shutil
+    import subprocess
+    import sys
+
+    if shutil.which("unshare") is None:
+        pytest.skip("needs unshare(1) to mount small and read-only file systems")
+    ro, full = tmp_path / "ro", tmp_path / "full"
+    ro.mkdir()
+    full.mkdir()
+    python = f"cd '{Path.cwd()}' && '{sys.executable}' -m stripscan"
+    script = (f"mount -t tmpfs -o ro none '{ro}' && mount -t tmpfs -o size=8k none '{full}' && "
+              f"{python} analyze '{demo.lot_a_scan}' -o '{ro}/x.json' > /dev/null; "
+              f"{python} report '{demo.lot_a_scan}' --calibration '{demo.calibration}' -o '{full}/r.pdf'")
+    done = subprocess.run(["unshare", "-m", "sh", "-c", script], capture_output=True, text=True, timeout=300)
+    if "mount" in done.stderr:
+        pytest.skip(f"cannot mount here: {done.stderr.strip()}")
+    assert len(done.stderr.splitlines()) == 2, done.stderr
+    first, second = done.stderr.splitlines()
+    assert first == f"stripscan: error: {ro}/x.json: cannot write (Read-only file system)"
+    assert second.startswith(f"stripscan: error: {full}/r.pdf: cannot write: the disk is full"), second

@@ -571,7 +571,10 @@ def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> 
             os.fsync(fh.fileno())
         os.replace(tmp, path)
     except OSError as exc:
-        tmp.unlink(missing_ok=True)
+        try:
+            tmp.unlink(missing_ok=True)
+        except OSError:  # a read-only folder refuses even that; nothing was left there
+            pass
         raise CalibrationError(f"{path}: cannot write the calibration ({exc.strerror or exc})") from None
 
 

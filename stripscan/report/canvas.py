@@ -346,11 +346,24 @@ def write_pdf(pages: Sequence[Page], path: str | os.PathLike[str], *, title: str
         try:
             for number, page in enumerate(pages, start=1):
                 if number > 1 and not writer.newPage():
-                    raise ReportError(f"{target}: Qt could not start page {number}")
+                    raise ReportError(_write_failure(target, f"Qt could not start page {number}"))
                 page.draw(Canvas(painter, page_no=number, page_count=len(pages), generated=generated))
         finally:
-            painter.end()
+            finished = painter.end()
+        if not finished:
+            raise ReportError(_write_failure(target, "Qt could not finish the document"))
     return target
+
+
+def _write_failure(target: Path, what: str) -> str:
+    """Why Qt could not write a document: Qt only says that it failed; a full disk is the usual cause."""
+    import shutil
+
+    try:
+        full = shutil.disk_usage(target.parent).free < (1 << 20)
+    except OSError:
+        full = False
+    return f"{target}: cannot write: the disk is full ({what})" if full else f"{target}: {what}"
 
 
 def render_page(page: Page, *, dpi: float = 100.0, page_no: int = 1, page_count: int = 1,
