@@ -555,3 +555,53 @@ def test_writing_into_a_read_only_folder_or_a_full_disk_names_the_file_and_the_c
     first, second = done.stderr.splitlines()
     assert first == f"stripscan: error: {ro}/x.json: cannot write (Read-only file system)"
     assert second.startswith(f"stripscan: error: {full}/r.pdf: cannot write: the disk is full"), second
+
+
+# ------------------------------------------------------------- kept clean
+
+def _kept_clean_cases(tmp: Path, demo) -> dict:
+    (tmp / "text.txt").write_text("hello\n", encoding="utf-8")
+    (tmp / "export.json").write_text('{"format": "something else"}', encoding="utf-8")
+    (tmp / "broken.json").write_text('{"format": ', encoding="utf-8")
+    (tmp / "falling.csv").write_text("1,0.30\n2,0.20\n3,0.60\n", encoding="utf-8")
+    (tmp / "twice.csv").write_text("1,0.05\n1,0.30\n2,0.60\n3,0.9\n", encoding="utf-8")
+    (tmp / "gap.csv").write_text("1,0.05\n2,0.30\n4,0.60\n", encoding="utf-8")
+    (tmp / "words.txt").write_text("0.0\n0.15\nabc\n", encoding="utf-8")
+    scan, tablet = demo.daily_scans[0][1], demo.tablet_scan
+    return {
+        "scan missing": (["analyze", tmp / "none.tif"], "none.tif: no such file"),
+        "scan is a folder": (["analyze", tmp], "is a folder"),
+        "calibration missing": (["analyze", scan, "--calibration", tmp / "none.json"], "no such calibration file"),
+        "calibration not JSON": (["analyze", scan, "--calibration", tmp / "text.txt"], "invalid JSON"),
+        "certificate missing": (["calibrate", tablet, "--densities", tmp / "none.csv", "-o", tmp / "c.json"],
+                                "no such certificate file"),
+        "certificate densities falling": (["calibrate", tablet, "--densities", tmp / "falling.csv", "-o",
+                                           tmp / "c.json"], "densities must increase"),
+        "certificate step twice": (["calibrate", tablet, "--densities", tmp / "twice.csv", "-o", tmp / "c.json"],
+                                   "listed twice"),
+        "certificate step missing": (["calibrate", tablet, "--densities", tmp / "gap.csv", "-o", tmp / "c.json"],
+                                     "step 3 is missing"),
+        "exposure table with a word": (["analyze", scan, "--exposures", tmp / "words.txt"], "'abc' is not a number"),
+        "clear area malformed": (["analyze", scan, "--clear-area", "1,2,3"], "--clear-area wants X0,Y0,X1,Y1"),
+        "archive missing": (["archive", "list", "--archive", tmp / "none.sqlite3"], "does not exist"),
+        "archive is a text file": (["archive", "list", "--archive", tmp / "text.txt"], "not an SQLite database"),
+        "import of another JSON": (["archive", "import", tmp / "export.json", "--archive", tmp / "a.sqlite3"],
+                                   "is not a stripscan archive export"),
+        "import of broken JSON": (["archive", "import", tmp / "broken.json", "--archive", tmp / "a.sqlite3"],
+                                  "is not valid JSON"),
+        "compare of no set": (["compare", "nothing-here", "lot:A"], "no such file, and not a set"),
+    }
+
+
+KEPT_CLEAN = ["scan missing", "scan is a folder", "calibration missing", "calibration not JSON",
+              "certificate missing", "certificate densities falling", "certificate step twice",
+              "certificate step missing", "exposure table with a word", "clear area malformed", "archive missing",
+              "archive is a text file", "import of another JSON", "import of broken JSON", "compare of no set"]
+
+
+@pytest.mark.parametrize("case", KEPT_CLEAN)
+def test_what_was_refused_cleanly_stays_so(tmp_path, capsys, demo, case):
+    argv, message = _kept_clean_cases(tmp_path, demo)[case]
+    code, _, err = run(argv, capsys)
+    assert code == 1 and one_line(err, message), err
+    assert not (tmp_path / "c.json").exists() and not (tmp_path / "a.sqlite3").exists()
