@@ -219,12 +219,11 @@ def cmd_analyze(args) -> int:
         out["gradient_curve"] = _gradient_curve(strip)
     data["caution"] = CAUTION
     text = json.dumps(data, indent=1, ensure_ascii=False)
+    # Everything printed is made before the file is written: a failure leaves no file behind.
+    shown = text if args.json else format_analysis(analysis)
     if args.output:
         _write_text_atomic(Path(args.output), text + "\n")
-    if args.json:
-        print(text)
-    else:
-        print(format_analysis(analysis))
+    print(shown)
     return EXIT_OK
 
 

@@ -214,9 +214,8 @@ class Archive:
                 raise ArchiveError(f"{path}: cannot create its folder: {exc.strerror or exc}") from None
         read_only = read_only or _marked_read_only(path)
         try:
-            mode = "ro" if read_only else "rwc"
-            conn = sqlite3.connect(_sqlite_uri(path, mode) + ("&immutable=1" if on_read_only_media(path) else ""),
-                                   uri=True,
+            uri = _sqlite_uri(path, "ro" if read_only else "rwc") + ("&immutable=1" if on_read_only_media(path) else "")
+            conn = sqlite3.connect(uri, uri=True,
                                    timeout=busy_timeout_ms / 1000.0, isolation_level=None)
         except sqlite3.Error as exc:
             raise ArchiveError(f"{path}: cannot open: {exc}") from None

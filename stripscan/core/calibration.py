@@ -108,6 +108,15 @@ class Certificate:
         return cls(tuple(data["steps"]), tuple(data["densities"]), tuple(unc) if unc else None, data.get("source", ""))
 
 
+def _csv_rows(text: str, source: str):
+    """CSV rows of ``text``, lines ended by LF, CR LF or a lone CR; csv's own errors name the source."""
+    reader = csv.reader(io.StringIO(text, newline=None))
+    try:
+        yield from reader
+    except csv.Error as exc:
+        raise CalibrationError(f"{source}, line {reader.line_num}: not CSV text ({exc})") from None
+
+
 def parse_certificate(text: str, *, source: str = "<certificate>") -> Certificate:
     """Parse our certificate CSV.
 
@@ -123,8 +132,7 @@ def parse_certificate(text: str, *, source: str = "<certificate>") -> Certificat
     """
     rows: dict[int, tuple[float, float | None]] = {}
     has_unc = None
-    reader = csv.reader(io.StringIO(text))
-    for lineno, row in enumerate(reader, start=1):
+    for lineno, row in enumerate(_csv_rows(text, source), start=1):
         cells = [c.strip() for c in row]
         if not cells or all(not c for c in cells) or cells[0].startswith("#"):
             continue
