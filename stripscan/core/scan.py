@@ -343,7 +343,7 @@ def pixel_limit() -> int:
 def _check_pixels(path: Path, width: int, height: int, limit: int) -> None:
     if width * height > limit:
         raise ScanError(
-            f"{path}: the image is {width} x {height} pixels ({width * height / 1e6:.3g} million), more than the "
+            f"{path}: the image is {width} x {height} pixels ({width * height / 1e6:,.1f} million), more than the "
             f"{limit / 1e6:g} million stripscan reads (set {MAX_PIXELS_VARIABLE} to allow larger scans)")
 
 
