@@ -229,6 +229,24 @@ def test_the_archive_refusing_a_save_leaves_nothing_stored(qtbot, panel: Archive
     assert stored_count(archive_path) == before
 
 
+@pytest.mark.parametrize("lot, says", [("M-\x1b[2J", "control character (U+001B)"),
+                                       ("M-2801\u202eC", "hidden directional mark (U+202E)"),
+                                       ("M" * 81, "at most 80 are kept")])
+def test_a_lot_name_the_archive_refuses_is_explained_and_nothing_stored(qtbot, panel: ArchivePanel,
+                                                                        archive_path: Path, analysis, lot: str,
+                                                                        says: str) -> None:
+    # bad-input issue items 5 and 12: such names were stored and echoed raw
+    result, calibration = analysis
+    before = stored_count(archive_path)
+    dialog = panel.save_dialog(result, calibration)
+    fill(dialog, lot)
+    dialog.new_lot.setChecked(True)
+    assert not dialog.save()
+    shown = messages(dialog)
+    assert len(shown) == 1 and says in shown[0].text() and "\x1b" not in shown[0].text()
+    assert dialog.isVisible() and stored_count(archive_path) == before
+
+
 def test_dates_out_of_order_or_ahead_are_refused() -> None:
     day = dt.date(2026, 11, 24)
     form = SaveForm("M-2702-B", False, None, None, "J. Solberg", day, day, day)
