@@ -18,7 +18,7 @@ from typing import Any
 
 from .. import CAUTION
 from ..figure_table import step_flag
-from .entry_checks import remove_if_unused, stored_strips_of_scan
+from .entry_checks import already_stored, describe_stored, remove_if_unused
 from .errors import ArchiveError
 from .records import FIGURES, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -149,18 +149,12 @@ def _cmd_add(args: argparse.Namespace) -> int:
 
 
 def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
-    """A scan whose strips are stored already is stored again only when asked (``--again``).
-
-    The same file added twice, or a retry after a lost acknowledgement,
-    would count its strips twice in every trend and comparison.
-    """
-    read = {strip.index for strip in analysis.strips}
-    stored = [(i, k) for i, k in stored_strips_of_scan(archive._c, analysis.scan.sha256) if k in read]
+    """A scan whose strips are stored already is stored again only when asked (``--again``)."""
+    stored = already_stored(archive, analysis)
     if stored:
-        shown = ", ".join(f"strip {k} as snapshot {i}" for i, k in stored[:5])
-        more = f" and {len(stored) - 5} more" if len(stored) > 5 else ""
         raise ArchiveError(f"{archive.path}: {analysis.scan.path} (sha256 {analysis.scan.sha256[:12]}...) is "
-                           f"stored already: {shown}{more}; nothing was stored (give --again to store it again)")
+                           f"stored already: {describe_stored(stored)}; nothing was stored "
+                           "(give --again to store it again)")
 
 
 def _cmd_list(args: argparse.Namespace) -> int:

@@ -21,10 +21,15 @@ import os
 import sqlite3
 import unicodedata
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+from stripscan.core.records import Analysis
 
 from .errors import ArchiveError
 from .records import EmulsionLot, FilmType, Processor, QcEntry, Sensitometer, Snapshot, SnapshotNote
+
+if TYPE_CHECKING:
+    from .store import Archive
 
 __all__ = [
     "NAME_MAX_CHARS",
@@ -39,7 +44,8 @@ __all__ = [
     "check_note",
     "check_qc_entry",
     "check_imported_figures",
-    "stored_strips_of_scan",
+    "already_stored",
+    "describe_stored",
     "on_read_only_media",
     "remove_if_unused",
 ]
@@ -260,11 +266,24 @@ def check_imported_figures(path: Path, snapshot: Snapshot) -> None:
             edited(name.replace("_", " "), value, round(expected, 4))
 
 
-def stored_strips_of_scan(connection: sqlite3.Connection, sha256: str) -> list[tuple[int, int]]:
-    """``(snapshot id, strip index)`` of every snapshot already stored from the scan with this sha256."""
-    rows = connection.execute("SELECT id, strip_index FROM snapshots WHERE scan_sha256 = ? ORDER BY id",
-                              (sha256,)).fetchall()
-    return [(int(i), int(k)) for i, k in rows]
+def already_stored(archive: "Archive", analysis: Analysis) -> list[tuple[int, int]]:
+    """``(snapshot id, strip index)`` of the analysis' strips the archive holds already.
+
+    The same scan file (same sha256) and strip: adding a scan twice, or a
+    retry after a lost acknowledgement, would count its strips twice in
+    every trend and comparison, so both the command line (``--again``) and
+    the window ask before storing them once more.
+    """
+    read = {strip.index for strip in analysis.strips}
+    rows = archive._query("SELECT id, strip_index FROM snapshots WHERE scan_sha256 = ? ORDER BY id",
+                          (analysis.scan.sha256,))
+    return [(int(i), int(k)) for i, k in rows if k in read]
+
+
+def describe_stored(stored: list[tuple[int, int]], shown: int = 5) -> str:
+    """``strip 1 as snapshot 4, strip 2 as snapshot 5`` (the first few, and how many more)."""
+    text = ", ".join(f"strip {k} as snapshot {i}" for i, k in stored[:shown])
+    return text + (f" and {len(stored) - shown} more" if len(stored) > shown else "")
 
 
 def on_read_only_media(path: Path) -> bool:

@@ -348,3 +348,22 @@ def test_the_demo_archive_is_built_off_the_ui_thread_and_shown(qtbot, tmp_path: 
     qtbot.waitUntil(lambda: bool(messages(widget)), timeout=5000)
     assert "already exists" in messages(widget)[0].text()
     assert widget.archive_path == path
+
+
+def test_a_scan_held_already_is_stored_again_only_when_ticked(qtbot, panel: ArchivePanel, archive_path: Path,
+                                                             analysis) -> None:
+    # bad-input issue item 14: the same scan saved twice counted its strips twice, with no word
+    result, calibration = analysis
+    first = panel.save_dialog(result, calibration)
+    fill(first, "M-2702-B")
+    assert first.save()
+    before = stored_count(archive_path)
+    dialog = panel.save_dialog(result, calibration)
+    fill(dialog, "M-2702-B")
+    assert not dialog.save()
+    shown = messages(dialog)
+    assert len(shown) == 1 and f"strip 1 as snapshot {first.stored[0].id}" in shown[0].text()
+    assert dialog.again.isVisible() and stored_count(archive_path) == before
+    shown[0].close()
+    dialog.again.setChecked(True)
+    assert dialog.save() and stored_count(archive_path) == before + 3
