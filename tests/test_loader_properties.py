@@ -1,12 +1,13 @@
 """The loaders meet generated files and answer only with the program's own errors.
 
-Hypothesis edits valid calibration JSON, certificate CSV and archive export
-JSON the way a hand, a script or a damaged copy might: any field set to any
-JSON value (NaN and infinity included), fields dropped, lists cut or
-reordered, whole files of arbitrary JSON or bytes.  Whatever comes out,
-reading it either works, and what was read is usable, or raises the
-program's own error naming the file (``CalibrationError``,
-``ArchiveError``); anything else would reach the user as a traceback.
+Hypothesis edits valid calibration JSON and archive export JSON the way a
+hand, a script or a damaged copy might: any field set to any JSON value
+(NaN and infinity included), fields dropped, lists cut or reordered, whole
+files of arbitrary JSON.  Whatever comes out, reading it either works, and
+what was read is usable, or raises the program's own error naming the file
+(``CalibrationError``, ``ArchiveError``); anything else would reach the
+user as a traceback.  Certificate CSV files of any bytes are fed in
+``tests/core/test_damaged_files.py``.
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ from hypothesis import strategies as st
 
 from stripscan.archive import Archive, ArchiveError
 from stripscan.cli import main
-from stripscan.core.calibration import CalibrationError, load_calibration, read_certificate
+from stripscan.core.calibration import CalibrationError, load_calibration
 from stripscan.demo_data import demo_files
 
 _SCALARS = st.one_of(
@@ -110,27 +111,6 @@ def test_any_json_as_a_calibration_is_refused_by_name(tmp_path, document):
     path = tmp_path / "calibration.json"
     path.write_text(json.dumps(document), encoding="utf-8")
     _load_calibration_or_refuse(path)
-
-
-@_SETTINGS
-@given(raw=st.one_of(st.binary(max_size=300),
-                     st.builds(lambda lines, encoding: "\n".join(lines).encode(encoding, errors="replace"),
-                               st.lists(st.one_of(st.builds(lambda s, d, u: f"{s},{d},{u}", _SCALARS, _SCALARS,
-                                                            _SCALARS),
-                                                  st.text(max_size=20)), max_size=12),
-                               st.sampled_from(["utf-8", "utf-16", "latin-1", "cp1252"]))))
-def test_any_bytes_as_a_certificate_are_read_or_refused_by_name(tmp_path, raw):
-    path = tmp_path / "certificate.csv"
-    path.write_bytes(raw)
-    try:
-        certificate = read_certificate(path)
-    except CalibrationError as exc:
-        assert str(path) in str(exc)
-        return
-    assert list(certificate.steps) == list(range(1, len(certificate.steps) + 1))
-    assert all(math.isfinite(d) for d in certificate.densities)
-    assert all(b > a for a, b in zip(certificate.densities, certificate.densities[1:]))
-    assert certificate.uncertainties is None or all(math.isfinite(u) for u in certificate.uncertainties)
 
 
 @pytest.fixture(scope="module")
