@@ -586,35 +586,6 @@ def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> 
         raise CalibrationError(f"{path}: cannot write the calibration ({exc.strerror or exc})") from None
 
 
-#: Largest calibration file read, bytes (a 100-step calibration is about 20 kB).
-MAX_CALIBRATION_BYTES = 4 << 20
-
-
-def load_calibration(path: str | os.PathLike[str]) -> Calibration:
-    """Read a calibration JSON file, checked with :func:`check_calibration_data`."""
-    path = Path(path)
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read(MAX_CALIBRATION_BYTES + 1)
-        if len(raw) > MAX_CALIBRATION_BYTES:
-            raise CalibrationError(f"{path}: over {MAX_CALIBRATION_BYTES >> 20} MB, too large for a calibration file")
-        data = json.loads(raw.decode("utf-8"))
-    except FileNotFoundError:
-        raise CalibrationError(f"{path}: no such calibration file") from None
-    except IsADirectoryError:
-        raise CalibrationError(f"{path}: is a folder, not a calibration file") from None
-    except (UnicodeDecodeError, json.JSONDecodeError):
-        raise CalibrationError(f"{path}: not a calibration file (invalid JSON)") from None
-    except RecursionError:
-        raise CalibrationError(f"{path}: not a calibration file (JSON nested too deeply)") from None
-    except OSError as exc:
-        raise CalibrationError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    if not isinstance(data, dict):
-        raise CalibrationError(f"{path}: not a stripscan calibration file")
-    check_calibration_data(data, source=str(path))
-    return Calibration.from_dict(data, source=str(path))
-
-
 def _json_hash(data: dict[str, Any]) -> str:
     # As Calibration.sha256: canonical JSON of the content.
     text = json.dumps(data, sort_keys=True, separators=(",", ":"))
@@ -732,6 +703,35 @@ def _check_certificate_data(certificate: Any, fail: Any) -> None:
     if unc is not None and (not isinstance(unc, list) or len(unc) != len(steps) or not all(
             isinstance(u, (int, float)) and not isinstance(u, bool) and math.isfinite(u) and u >= 0 for u in unc)):
         fail("the certificate's uncertainties are not one finite number per step")
+
+
+#: Largest calibration file read, bytes (a 100-step calibration is about 20 kB).
+MAX_CALIBRATION_BYTES = 4 << 20
+
+
+def load_calibration(path: str | os.PathLike[str]) -> Calibration:
+    """Read a calibration JSON file, checked with :func:`check_calibration_data`."""
+    path = Path(path)
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read(MAX_CALIBRATION_BYTES + 1)
+        if len(raw) > MAX_CALIBRATION_BYTES:
+            raise CalibrationError(f"{path}: over {MAX_CALIBRATION_BYTES >> 20} MB, too large for a calibration file")
+        data = json.loads(raw.decode("utf-8"))
+    except FileNotFoundError:
+        raise CalibrationError(f"{path}: no such calibration file") from None
+    except IsADirectoryError:
+        raise CalibrationError(f"{path}: is a folder, not a calibration file") from None
+    except (UnicodeDecodeError, json.JSONDecodeError):
+        raise CalibrationError(f"{path}: not a calibration file (invalid JSON)") from None
+    except RecursionError:
+        raise CalibrationError(f"{path}: not a calibration file (JSON nested too deeply)") from None
+    except OSError as exc:
+        raise CalibrationError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    if not isinstance(data, dict):
+        raise CalibrationError(f"{path}: not a stripscan calibration file")
+    check_calibration_data(data, source=str(path))
+    return Calibration.from_dict(data, source=str(path))
 
 
 def _loo_residuals(x: np.ndarray, od: np.ndarray) -> list[float | None]:

@@ -130,6 +130,29 @@ def _check_options(options: "AnalysisOptions") -> None:
             raise AnalysisError(f"the figure setting {name} must be a finite number, not {value!r}")
 
 
+def _check_tablet_count(scan: Scan, certificate: Certificate) -> None:
+    """Refuse a certificate with fewer steps than the tablet on ``scan`` shows.
+
+    The tablet's steps are counted first; forcing a 21-step tablet into the
+    5 steps of a wrong certificate would fit a map to readings that straddle
+    several steps each.  A tablet may show fewer steps than certified (the
+    densest ones melt together on a scanner with flare), so only a count
+    above the certificate's is refused.  A scan where no tablet is found is
+    left to the calibration itself to explain.
+    """
+    certified = len(certificate.densities)
+    try:
+        found = locate_in_scan(scan, LocateOptions(full_width_band=True))
+    except ValueError:
+        return
+    counted = max((f.geometry.n_steps for f in found), default=0)
+    if counted > certified:
+        raise CalibrationError(
+            f"{scan.header.path}: the tablet shows {counted} steps but the certificate {certificate.source} lists "
+            f"{certified}; steps {certified + 1} to {counted} are missing from it (is it the certificate of this "
+            "tablet?)")
+
+
 def direct_mode_for(
     scan: Scan, *, dark: float = 0.0, clear_area: tuple[int, int, int, int] | None = None
 ) -> DirectMode:
@@ -469,22 +492,6 @@ def _apply_flat_field(scan: Scan, blank_path: str | os.PathLike[str], channel: s
     return Scan.from_signal(corrected, scan.info)
 
 
-def _check_tablet_count(scan: Scan, certified: int, certificate: str) -> None:
-    """Refuse a certificate with fewer steps than the tablet shows.
-
-    The tablet's steps are counted first; forcing a 21-step tablet into the
-    5 steps of a wrong certificate would fit a map to readings that straddle
-    several steps each.  A tablet may show fewer steps than certified (the
-    densest ones melt together on a scanner with flare), so only a count
-    above the certificate's is refused.
-    """
-    counted = max((f.geometry.n_steps for f in locate_in_scan(scan, LocateOptions(full_width_band=True))), default=0)
-    if counted > certified:
-        raise CalibrationError(
-            f"the tablet shows {counted} steps but the certificate {certificate} lists {certified}; steps "
-            f"{certified + 1} to {counted} are missing from it (is it the certificate of this tablet?)")
-
-
 def calibrate_tablet(
     path: str | os.PathLike[str],
     certificate: Certificate,
@@ -505,6 +512,7 @@ def calibrate_tablet(
     warnings : list of str
     """
     scan = load_scan(path, dpi=dpi, channel=channel)
+    _check_tablet_count(scan, certificate)
     ff_sha = None
     if flat_field_scan is not None:
         scan = _apply_flat_field(scan, flat_field_scan, channel)
@@ -512,7 +520,6 @@ def calibrate_tablet(
     n = len(certificate.densities)
     try:
         check_exposure(scan)
-        _check_tablet_count(scan, n, certificate.source)
         found = locate_in_scan(scan, LocateOptions(n_steps=n, full_width_band=True))
     except ValueError as exc:
         raise CalibrationError(f"{path}: {exc}") from None
