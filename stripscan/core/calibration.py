@@ -633,8 +633,8 @@ def check_calibration_data(data: dict[str, Any], *, source: str = "<calibration>
     version = data.get("format_version")
     if isinstance(version, bool) or not isinstance(version, int) or version < 1:
         fail(f"format_version is {version!r}, not a version number of this file format")
-    if version > _FORMAT_VERSION:
-        fail(f"made by a newer stripscan (format {version})")
+    # A newer format is refused by Calibration.from_dict, which knows which
+    # formats this version reads.
     log_signal = numbers("log_signal", low=4)
     od = numbers("od", size=len(log_signal))
     if any(b <= a for a, b in zip(log_signal, log_signal[1:])):
@@ -644,10 +644,13 @@ def check_calibration_data(data: dict[str, Any], *, source: str = "<calibration>
              "the file was edited or damaged")
     if log_signal[-1] > 0.01 or not (-0.1 <= od[-1] and od[0] <= 8.0):
         fail("the knots lie outside signals 0..1 or densities -0.1..8 OD")
-    for name in ("valid_od", "covered_od"):
-        lo, hi = numbers(name, size=2, low=2)
-        if not (od[-1] - 1e-6 <= lo <= hi <= od[0] + 1e-6):
-            fail(f"{name} {lo:g}..{hi:g} does not lie within the calibrated densities {od[-1]:g}..{od[0]:g}")
+    low, high = numbers("covered_od", size=2, low=2)
+    # In format 1 the knots are the certified densities the fit covers.
+    if version == 1 and not (od[-1] - 1e-6 <= low <= high <= od[0] + 1e-6):
+        fail(f"covered_od {low:g}..{high:g} does not lie within the calibrated densities {od[-1]:g}..{od[0]:g}")
+    lo, hi = numbers("valid_od", size=2, low=2)
+    if not (low - 1e-6 <= lo <= hi <= high + 1e-6):
+        fail(f"valid_od {lo:g}..{hi:g} does not lie within the covered densities {low:g}..{high:g}")
     residuals = data.get("residuals")
     if not isinstance(residuals, list) or len(residuals) > MAX_STEPS:
         fail("residuals is missing or not a list")
