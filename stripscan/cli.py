@@ -10,6 +10,7 @@ import argparse
 import json
 import math
 import os
+import re
 import sys
 from pathlib import Path
 
@@ -25,6 +26,41 @@ class CommandError(Exception):
     """A user-facing failure: printed as one line, exit status 1."""
 
 
+# C0 and C1 control characters but tab and line feed (escape sequences that
+# clear a terminal, move its cursor or set its title), and directional marks
+# that turn the text around them.
+_TERMINAL_UNSAFE = re.compile("[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029"
+                              "\u202a-\u202e\u2066-\u2069]")
+
+
+def terminal_safe(text: str) -> str:
+    """``text`` with control characters and directional marks written as ``\\uXXXX``.
+
+    Names stored before they were refused at entry, file names and text
+    from files are printed this way, so they show what they hold instead of
+    acting on the terminal.  Inside JSON strings the same form is a valid
+    escape of the same character.
+    """
+    return _TERMINAL_UNSAFE.sub(lambda m: f"\\u{ord(m.group()):04x}", text)
+
+
+class _TerminalSafe:
+    """A text stream that writes :func:`terminal_safe` text to another one."""
+
+    def __init__(self, stream) -> None:
+        self._stream = stream
+
+    def write(self, text: str) -> int:
+        return self._stream.write(terminal_safe(text))
+
+    def writelines(self, lines) -> None:
+        for line in lines:
+            self.write(line)
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
+
+
 def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
     if value is None or (isinstance(value, float) and not math.isfinite(value)):
         return "not reached"
@@ -37,16 +73,18 @@ def _write_text_atomic(path: Path, text: str) -> None:
         tmp.write_text(text, encoding="utf-8")
         os.replace(tmp, path)
     except OSError as exc:
-        tmp.unlink(missing_ok=True)
+        try:
+            tmp.unlink(missing_ok=True)
+        except OSError:  # a read-only folder refuses even that; nothing was left there
+            pass
         raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
 
 
 def _read_exposure_table(path: str) -> tuple[float, ...]:
     """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
-    try:
-        lines = Path(path).read_text(encoding="utf-8").splitlines()
-    except OSError as exc:
-        raise CommandError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    from .core.calibration import read_table_text
+
+    lines = read_table_text(path, "step table", "one number per step, one per line").splitlines()
     values = []
     for lineno, line in enumerate(lines, start=1):
         text = line.split("#", 1)[0].strip()
@@ -54,11 +92,14 @@ def _read_exposure_table(path: str) -> tuple[float, ...]:
             continue
         cell = text.split(",")[-1].strip()
         try:
-            values.append(float(cell))
+            value = float(cell)
         except ValueError:
             if not values:  # a header row
                 continue
             raise CommandError(f"{path}, line {lineno}: {cell!r} is not a number") from None
+        if not math.isfinite(value):
+            raise CommandError(f"{path}, line {lineno}: {cell!r} is not a finite number")
+        values.append(value)
     if len(values) < 2:
         raise CommandError(f"{path}: an exposure table needs one log exposure per step")
     return tuple(values)
@@ -216,12 +257,11 @@ def cmd_analyze(args) -> int:
         out["gradient_curve"] = _gradient_curve(strip)
     data["caution"] = CAUTION
     text = json.dumps(data, indent=1, ensure_ascii=False)
+    # Everything printed is made before the file is written: a failure leaves no file behind.
+    shown = text if args.json else format_analysis(analysis)
     if args.output:
         _write_text_atomic(Path(args.output), text + "\n")
-    if args.json:
-        print(text)
-    else:
-        print(format_analysis(analysis))
+    print(shown)
     return EXIT_OK
 
 
@@ -412,6 +452,15 @@ def main(argv: Sequence[str] | None = None) -> int:
         except CommandError as exc:
             print(f"stripscan: error: {exc}", file=sys.stderr)
             return EXIT_ERROR
+    streams = sys.stdout, sys.stderr
+    sys.stdout, sys.stderr = _TerminalSafe(streams[0]), _TerminalSafe(streams[1])
+    try:
+        return _run(parser, argv)
+    finally:
+        sys.stdout, sys.stderr = streams
+
+
+def _run(parser: argparse.ArgumentParser, argv: list[str]) -> int:
     args = parser.parse_args(argv)
     func: Callable | None = getattr(args, "func", None)
     if func is None:

@@ -92,18 +92,35 @@ _NUMBERS = re.compile(r"^\d+(-\d+)?(,\d+(-\d+)?)*$")
 _SYNTAX = "write scan:PATH[#1,3], snapshot:ID[,ID...] or lot:LOT"
 
 
+#: Most strips or snapshots one set may name: a comparison of more is a
+#: slip of the keyboard (``1-100000``), not a set of strips.
+MOST_IN_A_SET = 1000
+
+
+def _short_list(numbers: Sequence[int], shown: int = 10) -> str:
+    """``1, 2, 3`` or, for a long list, its first numbers and how many more."""
+    text = ", ".join(map(str, numbers[:shown]))
+    return text + (f" and {len(numbers) - shown} more" if len(numbers) > shown else "")
+
+
 def _numbers(text: str, what: str, spec: str) -> tuple[int, ...]:
-    """``1,3-5`` -> (1, 3, 4, 5), in the order written, each once."""
+    """``1,3-5`` -> (1, 3, 4, 5), in the order written, each once; at most :data:`MOST_IN_A_SET`."""
     if not _NUMBERS.match(text):
         raise SetError(f"set {spec!r}: {text!r} is not a list of {what} numbers (e.g. 1,3 or 2-4)")
     out: list[int] = []
+    seen: set[int] = set()
     for part in text.split(","):
         first, _, last = part.partition("-")
         lo, hi = int(first), int(last or first)
         if hi < lo:
             raise SetError(f"set {spec!r}: the range {part} runs backwards")
-        out += [n for n in range(lo, hi + 1) if n not in out]
-    if 0 in out:
+        if hi - lo + 1 > MOST_IN_A_SET - len(out):
+            raise SetError(f"set {spec!r}: {part} names {hi - lo + 1} {what}s; a set holds at most "
+                           f"{MOST_IN_A_SET}")
+        fresh = [n for n in range(lo, hi + 1) if n not in seen]
+        seen.update(fresh)
+        out += fresh
+    if 0 in seen:
         raise SetError(f"set {spec!r}: {what} numbers start at 1")
     return tuple(out)
 
@@ -250,7 +267,7 @@ class SetLoader:
         missing = [n for n in picks if n not in strips]
         if missing:
             raise SetError(f"set {spec.text!r}: the scan {spec.target} has {len(strips)} strip(s), "
-                           f"no strip {', '.join(map(str, missing))}")
+                           f"no strip {_short_list(missing)}")
         if analysis.calibration is None or analysis.calibration.get("mode") != "tablet":
             self.notes.append(f"set {spec.text!r}: uncalibrated (direct mode); give --calibration")
         chosen = tuple(strips[n] for n in picks)

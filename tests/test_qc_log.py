@@ -518,8 +518,8 @@ def test_chart_data_shows_entries_kept_but_not_used(archive):
     baseline(archive)
     typed(archive, 5, md=1.37)
     typed(archive, 5, md=1.21, repeat=True)
-    typed(archive, 6, md=12.1)
-    correct_entry(archive, 8, mid_density=1.21, reason="12.1 typed")
+    typed(archive, 6, md=2.21)
+    correct_entry(archive, 8, mid_density=1.21, reason="2.21 typed")
     data = chart_data(load_processor_log(archive, P), month="2026-10")
     md = {s.quantity: s for s in data.series}["mid_density"]
     assert [p.entry_id for p in md.points] == [1, 2, 3, 4, 5, 7, 9]

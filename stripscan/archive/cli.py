@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import json
+import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -19,6 +20,7 @@ from typing import Any
 from .. import CAUTION
 from ..core.records import warnings_of_strip
 from ..figure_table import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
+from .entry_checks import already_stored, describe_stored, remove_if_unused
 from .errors import ArchiveError
 from .records import FIGURES, NewSnapshot, Sensitometer, Snapshot, SnapshotSummary, check_day
 from .store import Archive, default_archive_path
@@ -40,12 +42,29 @@ def _fail(message: str) -> int:
     return 1
 
 
+def _quiet_stdout() -> None:
+    """Point stdout at devnull, so that the interpreter's last flush does not fail again."""
+    try:
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+    except (OSError, ValueError):
+        pass
+
+
 def _guarded(handler: _Handler) -> _Handler:
     def run(args: argparse.Namespace) -> int:
         try:
             return handler(args)
+        except BrokenPipeError:
+            # The reader went away (``... | true``).  These commands print only
+            # after their write committed, so nothing failed: say nothing.
+            _quiet_stdout()
+            return 0
         except (ArchiveError, ValueError, OSError) as exc:
+            _forget_new_archive(args)
             return _fail(str(exc))
+        except BaseException:
+            _forget_new_archive(args)
+            raise
     run.__doc__ = handler.__doc__
     return run
 
@@ -64,6 +83,8 @@ def _open(args: argparse.Namespace, *, create: bool) -> Archive:
     path = args.archive if args.archive is not None else default_archive_path()
     if not create and not Path(path).expanduser().exists():
         raise ArchiveError(_NO_ARCHIVE.format(path=Path(path).expanduser()))
+    if create and not Path(path).expanduser().exists():
+        args.new_archive_file = Path(path).expanduser().absolute()
     return Archive.open(path, create=create)
 
 
@@ -74,6 +95,13 @@ _NO_ARCHIVE = (
     "'stripscan qc add|event|limits --processor P --new-processor ...' to start a processor's QC log, or "
     "'stripscan qc demo' for the invented demo"
 )
+
+
+def _forget_new_archive(args: argparse.Namespace) -> None:
+    """A command that failed leaves no new, empty archive file behind."""
+    created = getattr(args, "new_archive_file", None)
+    if created is not None:
+        remove_if_unused(created)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
@@ -148,6 +176,8 @@ def _cmd_add(args: argparse.Namespace) -> int:
     """Analyse a scan and store one snapshot per strip."""
     with _open(args, create=True) as archive:
         analysis, calibration, sensitometer = _analyse(args, archive)
+        if not args.again:
+            _refuse_stored_scan(archive, analysis)
         new = []
         if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
             new.append(f"lot {args.lot!r}")
@@ -176,6 +206,15 @@ def _stored_line(snapshot: Snapshot) -> str:
     return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_number(f.base_fog)}, mid-density "
             f"{_number(f.mid_density)}, density difference {_number(f.density_difference)}, speed "
             f"{_number(f.speed_log_exposure)}")
+
+
+def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
+    """A scan whose strips are stored already is stored again only when asked (``--again``)."""
+    stored = already_stored(archive, analysis)
+    if stored:
+        raise ArchiveError(f"{archive.path}: {analysis.scan.path} (sha256 {analysis.scan.sha256[:12]}...) is "
+                           f"stored already: {describe_stored(stored)}; nothing was stored "
+                           "(give --again to store it again)")
 
 
 def _cmd_list(args: argparse.Namespace) -> int:
@@ -417,6 +456,8 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--scanned", metavar="DATE", type=_date, help="scan date, YYYY-MM-DD")
     add.add_argument("--note", metavar="TEXT", help="free text kept with each snapshot")
     _reading_arguments(add)
+    add.add_argument("--again", action="store_true",
+                     help="store the scan even if the archive holds its strips already (same file, sha256)")
 
     listing = command("list", _cmd_list, "list snapshots")
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")

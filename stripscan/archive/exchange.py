@@ -20,6 +20,7 @@ from typing import IO, TYPE_CHECKING, Any
 
 from stripscan import __version__
 
+from .entry_checks import check_imported_figures, check_note
 from .errors import ArchiveConflictError, ArchiveError, ArchiveLookupError, OutOfOrderError
 from .records import (
     FIGURE_UNITS,
@@ -171,6 +172,8 @@ def _read_export(path: Path) -> dict[str, Any]:
         data = json.loads(text)
     except json.JSONDecodeError as exc:
         raise ArchiveError(f"{path} is not valid JSON: {exc.msg} at line {exc.lineno} column {exc.colno}") from None
+    except RecursionError:
+        raise ArchiveError(f"{path} is not a stripscan archive export (JSON nested too deeply)") from None
     if not isinstance(data, dict) or data.get("format") != EXPORT_FORMAT:
         raise ArchiveError(f"{path} is not a stripscan archive export")
     if data.get("format_version") not in _READABLE_VERSIONS:
@@ -257,10 +260,12 @@ def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: 
     elif section == "calibrations":
         archive._insert_calibration(conn, record[1])
     elif section == "snapshots":
+        check_imported_figures(archive.path, record)
         archive._insert_snapshot(conn, record)
     elif section == "snapshot_notes":
         if not archive._exists("snapshots", "id", record.snapshot_id):
             raise archive._missing("snapshot", record.snapshot_id)
+        check_note(archive.path, record)
         archive._insert_note(conn, record)
     elif section == "qc_settings":
         archive._insert_qc_settings(conn, record)

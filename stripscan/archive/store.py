@@ -39,6 +39,7 @@ from typing import Any, Callable
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
 from . import chain
+from .entry_checks import check_note, check_qc_entry, check_reference, check_snapshot, on_read_only_media
 from .errors import (
     ArchiveBusyError,
     ArchiveConflictError,
@@ -255,7 +256,8 @@ class Archive:
                 raise ArchiveError(f"{path}: cannot create its folder: {exc.strerror or exc}") from None
         read_only = read_only or _marked_read_only(path)
         try:
-            conn = sqlite3.connect(_sqlite_uri(path, "ro" if read_only else "rwc"), uri=True,
+            uri = _sqlite_uri(path, "ro" if read_only else "rwc") + ("&immutable=1" if on_read_only_media(path) else "")
+            conn = sqlite3.connect(uri, uri=True,
                                    timeout=busy_timeout_ms / 1000.0, isolation_level=None)
         except sqlite3.Error as exc:
             raise ArchiveError(f"{path}: cannot open: {exc}") from None
@@ -279,7 +281,7 @@ class Archive:
             except sqlite3.DatabaseError as exc:
                 if (getattr(exc, "sqlite_errorcode", 0) & 0xFF) == _SQLITE_NOTADB:
                     raise ArchiveError(f"{self.path} is not an SQLite database: {exc}") from None
-                raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+                raise self._translate(exc, "open it") from None
             self._check_integrity()
             version = conn.execute("PRAGMA user_version").fetchone()[0]
             app_id = conn.execute("PRAGMA application_id").fetchone()[0]
@@ -308,7 +310,7 @@ class Archive:
             problems = [" ".join(str(row[0]).split()) for row in conn.execute("PRAGMA integrity_check")]
             broken = conn.execute("PRAGMA foreign_key_check").fetchall()
         except sqlite3.DatabaseError as exc:
-            raise ArchiveError(f"{self.path} is damaged: {exc}") from None
+            raise self._translate(exc, "open it") from None
         if problems != ["ok"]:
             shown = "; ".join(problems[:10]) + (f"; ... {len(problems) - 10} more" if len(problems) > 10 else "")
             raise ArchiveError(f"{self.path} is damaged: {shown}")
@@ -510,6 +512,7 @@ class Archive:
     def _insert_reference(self, conn: sqlite3.Connection, record: Any) -> None:
         table, column, word = _REFERENCE[type(record)]
         key = getattr(record, column)
+        check_reference(self.path, record)
         if self._exists(table, column, key):
             raise ArchiveConflictError(f"{self.path}: {word} {key!r} is already in the archive")
         if isinstance(record, EmulsionLot) and record.film_type is not None:
@@ -696,6 +699,7 @@ class Archive:
     def _insert_snapshot(self, conn: sqlite3.Connection, snapshot: Snapshot, *,
                          create_missing: bool = False) -> None:
         """Write one snapshot, its step table and figure columns (inside a transaction)."""
+        check_snapshot(self.path, snapshot)
         self._check_links(conn, snapshot, create_missing)
         strip = snapshot.strip.to_dict()
         steps = strip["steps"]
@@ -1076,6 +1080,7 @@ class Archive:
                 raise self._missing("snapshot", snapshot_id)
             note = self._checked("add note", SnapshotNote, self._next_id(conn, "snapshot_notes"), snapshot_id,
                                  utc_now(), text, author)
+            check_note(self.path, note)
             self._insert_note(conn, note)
             return note
 
@@ -1177,6 +1182,7 @@ class Archive:
             latter store it marked as entered late.  A correction that keeps
             its entry's date is not late.
         """
+        check_qc_entry(self.path, entry)
         self._check_qc_processor(entry.processor)
         if entry.snapshot_id is not None and not self._exists("snapshots", "id", entry.snapshot_id):
             raise self._missing("snapshot", entry.snapshot_id)

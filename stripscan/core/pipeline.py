@@ -17,6 +17,7 @@ import numpy as np
 
 from .. import __version__
 from .calibration import (
+    MAX_STEPS,
     ACCURACY_GOAL,
     Calibration,
     CalibrationError,
@@ -113,6 +114,9 @@ class AnalysisOptions:
     dark: float = 0.0
     clear_area: tuple[int, int, int, int] | None = None
 
+    def __post_init__(self) -> None:
+        _check_options(self)
+
     def to_dict(self) -> dict:
         return {
             "n_steps": self.n_steps,
@@ -123,6 +127,57 @@ class AnalysisOptions:
             "dark": self.dark,
             "clear_area": list(self.clear_area) if self.clear_area else None,
         }
+
+
+def _check_options(options: "AnalysisOptions") -> None:
+    """Refuse settings no strip can have, before any scan is read.
+
+    Raises
+    ------
+    AnalysisError
+        Naming the setting and the range it must lie in.
+    """
+    n = options.n_steps
+    if n is not None and (isinstance(n, bool) or not isinstance(n, (int, np.integer)) or not 2 <= n <= MAX_STEPS):
+        raise AnalysisError(f"the step count must be a whole number from 2 to {MAX_STEPS}, not {n!r}")
+    if not (math.isfinite(options.increment) and 0.0 < options.increment <= 2.0):
+        raise AnalysisError(f"the log exposure per step must lie above 0 and at most 2, not {options.increment!r}")
+    for name, table in (("exposure table", options.exposure_table), ("air kerma table", options.air_kerma_ugy)):
+        if table is None:
+            continue
+        if not 2 <= len(table) <= MAX_STEPS:
+            raise AnalysisError(f"the {name} has {len(table)} values; a strip has 2 to {MAX_STEPS} steps")
+        bad = next((k for k, v in enumerate(table, start=1) if not math.isfinite(v)), None)
+        if bad is not None:
+            raise AnalysisError(f"the {name} gives step {bad} the value {table[bad - 1]!r}, not a finite number")
+    if not (math.isfinite(options.dark) and 0.0 <= options.dark < 1.0):
+        raise AnalysisError(f"the dark signal must lie from 0 to below 1 of full scale, not {options.dark!r}")
+    for name, value in options.figures.to_dict().items():
+        if isinstance(value, float) and not math.isfinite(value):
+            raise AnalysisError(f"the figure setting {name} must be a finite number, not {value!r}")
+
+
+def _check_tablet_count(scan: Scan, certificate: Certificate) -> None:
+    """Refuse a certificate with fewer steps than the tablet on ``scan`` shows.
+
+    The tablet's steps are counted first; forcing a 21-step tablet into the
+    5 steps of a wrong certificate would fit a map to readings that straddle
+    several steps each.  A tablet may show fewer steps than certified (the
+    densest ones melt together on a scanner with flare), so only a count
+    above the certificate's is refused.  A scan where no tablet is found is
+    left to the calibration itself to explain.
+    """
+    certified = len(certificate.densities)
+    try:
+        found = locate_in_scan(scan, LocateOptions(full_width_band=True))
+    except ValueError:
+        return
+    counted = max((f.geometry.n_steps for f in found), default=0)
+    if counted > certified:
+        raise CalibrationError(
+            f"{scan.header.path}: the tablet shows {counted} steps but the certificate {certificate.source} lists "
+            f"{certified}; steps {certified + 1} to {counted} are missing from it (is it the certificate of this "
+            "tablet?)")
 
 
 def direct_mode_for(
@@ -909,6 +964,7 @@ def calibrate_tablet(
     warnings : list of str
     """
     scan = load_scan(path, dpi=dpi, channel=channel)
+    _check_tablet_count(scan, certificate)
     ff_sha = None
     if flat_field_scan is not None:
         scan = _apply_flat_field(scan, flat_field_scan, channel)

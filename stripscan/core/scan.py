@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import dataclasses
 import hashlib
+import logging
 import os
 import threading
 from pathlib import Path
@@ -18,9 +19,19 @@ import numpy as np
 
 from .records import ScanInfo
 
-__all__ = ["ScanError", "Scan", "load_scan", "decode_srgb", "decode_gamma", "reduce_channels", "channel_weights", "CHANNEL_RULES"]
+__all__ = ["ScanError", "Scan", "load_scan", "pixel_limit", "DEFAULT_MAX_PIXELS", "MAX_PIXELS_VARIABLE", "decode_srgb", "decode_gamma", "reduce_channels", "channel_weights", "CHANNEL_RULES"]
 
 CHANNEL_RULES = ("auto", "mean", "red", "green", "blue", "luminance")
+
+#: Largest image read, in pixels, unless ``STRIPSCAN_MAX_PIXELS`` or the
+#: ``max_pixels`` argument says otherwise.  An A4 page at 1200 dpi is about
+#: 10 000 x 14 000 = 140 million pixels; the limit leaves room for a
+#: larger platen at that resolution and refuses, before anything is
+#: decoded, a small compressed file that would unpack to many gigabytes.
+DEFAULT_MAX_PIXELS = 400_000_000
+
+#: Environment variable that overrides :data:`DEFAULT_MAX_PIXELS`.
+MAX_PIXELS_VARIABLE = "STRIPSCAN_MAX_PIXELS"
 
 # Rec. 709 / sRGB luminance weights for linear light (IEC 61966-2-1).
 _LUMINANCE = np.array([0.2126, 0.7152, 0.0722], dtype=np.float32)
@@ -322,13 +333,106 @@ def _tiff_dpi(page) -> float | None:
 _TIFF_PASS_BYTES = 1 << 20
 
 
-def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
-    """Pixels and resolution of a TIFF file's first page.
+def pixel_limit() -> int:
+    """The largest image :func:`load_scan` reads, in pixels (see :data:`DEFAULT_MAX_PIXELS`).
+
+    Raises
+    ------
+    ScanError
+        When ``STRIPSCAN_MAX_PIXELS`` is set to something other than a
+        positive whole number.
+    """
+    text = os.environ.get(MAX_PIXELS_VARIABLE, "").strip()
+    if not text:
+        return DEFAULT_MAX_PIXELS
+    try:
+        value = int(text)
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise ScanError(f"{MAX_PIXELS_VARIABLE}={text!r} is not a positive whole number of pixels")
+    return value
+
+
+def _check_pixels(path: Path, width: int, height: int, limit: int) -> None:
+    if width * height > limit:
+        raise ScanError(
+            f"{path}: the image is {width} x {height} pixels ({width * height / 1e6:,.1f} million), more than the "
+            f"{limit / 1e6:g} million stripscan reads (set {MAX_PIXELS_VARIABLE} to allow larger scans)")
+
+
+class _TiffLog(logging.Filter):
+    """Keeps tifffile's log messages about a damaged file off the terminal.
+
+    tifffile logs each unreadable tag as a warning; a 200-byte file gave
+    nine lines on stderr besides our own one.  While a file is read on a
+    thread, its messages are collected here instead, and the first one
+    explains a failed read.
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self._local = threading.local()
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        sink = getattr(self._local, "sink", None)
+        if sink is None:
+            return True
+        sink.append(record.getMessage())
+        return False
+
+    def collect(self) -> list[str]:
+        self._local.sink = []
+        return self._local.sink
+
+    def stop(self) -> None:
+        self._local.sink = None
+
+
+_TIFF_LOG = _TiffLog()
+logging.getLogger("tifffile").addFilter(_TIFF_LOG)
+
+# TIFF photometric interpretations (TIFF 6.0, section 3-5).
+_MINISWHITE, _MINISBLACK, _RGB, _PALETTE, _SEPARATED, _YCBCR = 0, 1, 2, 3, 5, 6
+_COLOUR_MODELS = {4: "a transparency mask", _SEPARATED: "CMYK (separated) colour", 8: "CIE L*a*b* colour",
+                  9: "ICC L*a*b* colour", 10: "ITU L*a*b* colour", 32844: "LogL", 32845: "LogLuv",
+                  32803: "a raw colour filter array", 34892: "raw sensor data"}
+
+
+def _main_pages(tif) -> int:
+    """How many full images a TIFF file holds: pages that are not reduced copies or masks."""
+    # NewSubfileType bit 0: a reduced-resolution copy (a preview); bit 2: a transparency mask.
+    return sum(1 for page in tif.pages if not int(getattr(page, "subfiletype", 0) or 0) & 0b101)
+
+
+def _apply_palette(path: Path, data: np.ndarray, colormap: np.ndarray | None) -> np.ndarray:
+    """A palette (indexed colour) image as the grey or RGB samples its colour map gives.
+
+    TIFF colour maps hold 16-bit values; a map made from 8-bit colours
+    (each value a multiple of 257) gives 8-bit samples, so that a palette
+    copy of an 8-bit grey scan reads exactly as the grey scan.
+    """
+    if colormap is None or colormap.ndim != 2 or colormap.shape[0] != 3 or data.dtype.kind != "u":
+        raise ScanError(f"{path}: a palette image without a usable colour map")
+    if int(data.max(initial=0)) >= colormap.shape[1]:
+        raise ScanError(f"{path}: the palette image uses colours its colour map does not have")
+    table = colormap.astype(np.uint16).T  # (colours, 3)
+    if not np.any(table % 257):
+        table = (table // 257).astype(np.uint8)
+    if np.array_equal(table[:, 0], table[:, 1]) and np.array_equal(table[:, 0], table[:, 2]):
+        return table[:, 0][data]
+    return table[data]
+
+
+def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray, float | None, bool]:
+    """Pixels and resolution of a TIFF file's one image.
 
     Parameters
     ----------
     path : Path
         The TIFF file.
+    limit : int
+        Largest image read, pixels; checked from the header before decoding.
 
     Returns
     -------
@@ -343,7 +447,8 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
     Raises
     ------
     ScanError
-        When the file holds no image.
+        When the file holds no image, several images, an image larger than
+        ``limit`` or one in a colour model other than grey, RGB or palette.
     """
     import tifffile
 
@@ -351,6 +456,15 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
         if not tif.pages:
             raise ScanError(f"{path}: the TIFF file holds no image")
         page = tif.pages[0]
+        _check_pixels(path, int(page.imagewidth), int(page.imagelength), limit)
+        pages = _main_pages(tif)
+        if pages > 1:
+            raise ScanError(f"{path}: the TIFF file holds {pages} images; stripscan reads one scan per file "
+                            "(save each page as a file of its own)")
+        photometric = int(page.photometric)
+        if photometric in _COLOUR_MODELS:
+            raise ScanError(f"{path}: the image is stored as {_COLOUR_MODELS[photometric]}; "
+                            "scan in grey or RGB")
         dpi = _tiff_dpi(page)
         # A bounded pass changes only how much is read at once: an
         # uncompressed contiguous page is still read straight into the output
@@ -359,15 +473,35 @@ def _read_tiff(path: Path) -> tuple[np.ndarray, float | None, bool]:
         # decoder, so shape, dtype and error messages are asarray()'s.
         data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
         planar_rgb = data.ndim == 3 and data.shape[0] in (3, 4) and data.shape[-1] not in (3, 4)
+        colormap = page.colormap if photometric == _PALETTE else None
     if planar_rgb:
         data = np.moveaxis(data, 0, -1)
+    if photometric == _PALETTE:
+        data = _apply_palette(path, data, colormap)
+    elif photometric == _MINISWHITE and data.dtype.kind == "u":
+        data = np.iinfo(data.dtype).max - data  # 0 is white: stored inverted
     return data, dpi, True
 
 
-def _read_other(path: Path) -> tuple[np.ndarray, float | None]:
-    import imageio.v3 as iio
+def _read_other(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray, float | None]:
+    import warnings
 
-    data = iio.imread(path)
+    import imageio.v3 as iio
+    from PIL import Image
+
+    # The size from the header, before decoding; Pillow's own, smaller
+    # alarm is left to our limit.
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+        try:
+            with Image.open(path) as image:
+                width, height = image.size
+        except Image.DecompressionBombError:
+            width, height = limit + 1, 1
+    _check_pixels(path, width, height, limit)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", Image.DecompressionBombWarning)
+        data = iio.imread(path)
     dpi = None
     try:
         meta = iio.immeta(path)
@@ -386,6 +520,7 @@ def load_scan(
     channel: str = "auto",
     decoding: str = "auto",
     gamma: float | None = None,
+    max_pixels: int | None = None,
 ) -> Scan:
     """Read a scan file into a linear signal image.
 
@@ -403,6 +538,10 @@ def load_scan(
         16-bit and float files linear.
     gamma : float, optional
         Exponent for ``decoding="gamma"``.
+    max_pixels : int, optional
+        Largest image read, pixels, checked from the file's header before
+        anything is decoded; by default :func:`pixel_limit` (400 million, or
+        ``STRIPSCAN_MAX_PIXELS``).
 
     Returns
     -------
@@ -412,9 +551,10 @@ def load_scan(
     ------
     ScanError
         When the file is missing, empty, not an image, too small, of an
-        unsupported sample type, or unreadable; the message names the file.
+        unsupported sample type, too large, or unreadable; the message names the file.
     """
     path = Path(path)
+    limit = pixel_limit() if max_pixels is None else max_pixels
     if not path.exists():
         raise ScanError(f"{path}: no such file")
     if path.is_dir():
@@ -428,28 +568,34 @@ def load_scan(
     # so it also overlaps the analysis.
     hasher = _BackgroundHash(path)
     try:
-        return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma)
+        return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma, limit=limit)
     except BaseException:
         hasher.result_quietly()
         raise
 
 
 def _decode_file(
-    path: Path, hasher: "_BackgroundHash", *, dpi: float | None, channel: str, decoding: str, gamma: float | None
+    path: Path, hasher: "_BackgroundHash", *, dpi: float | None, channel: str, decoding: str, gamma: float | None,
+    limit: int = DEFAULT_MAX_PIXELS,
 ) -> Scan:
     suffix = path.suffix.lower()
+    messages = _TIFF_LOG.collect()
     try:
         if suffix in (".tif", ".tiff"):
-            data, file_dpi, _ = _read_tiff(path)
+            data, file_dpi, _ = _read_tiff(path, limit)
         else:
-            data, file_dpi = _read_other(path)
+            data, file_dpi = _read_other(path, limit)
     except ScanError:
         raise
     except MemoryError:
         raise ScanError(f"{path}: the image is too large to load in memory") from None
     except Exception as exc:  # every reader has its own exception types
         reason = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        if messages:
+            reason += f"; first problem found: {messages[0]}"
         raise ScanError(f"{path}: cannot be read as an image ({reason})") from None
+    finally:
+        _TIFF_LOG.stop()
 
     data = np.asarray(data)
     if data.ndim == 3 and data.shape[-1] == 1:

@@ -32,9 +32,10 @@ class OptionsDialog(QDialog):
         self.increment.setToolTip("Log relative exposure between neighbouring steps of the sensitometer "
                                   "(0.15 for the common √2 step tablet)")
         self.n_steps = QSpinBox()
-        self.n_steps.setRange(0, 60)
+        # A strip has at least two steps: the lowest value, 1, stands for "count them".
+        self.n_steps.setRange(1, 60)
         self.n_steps.setSpecialValueText("count them")
-        self.n_steps.setValue(options.n_steps or 0)
+        self.n_steps.setValue(options.n_steps or 1)
         self.n_steps.setToolTip("Step count used when strips are searched for; 'count them' lets the search decide")
         self.max_age = QDoubleSpinBox()
         self.max_age.setDecimals(0)
@@ -57,7 +58,8 @@ class OptionsDialog(QDialog):
     def options(self) -> AnalysisOptions:
         """The options as edited."""
         return dataclasses.replace(
-            self._options, increment=float(self.increment.value()), n_steps=int(self.n_steps.value()) or None
+            self._options, increment=float(self.increment.value()),
+            n_steps=int(self.n_steps.value()) if self.n_steps.value() >= 2 else None
         )
 
     def max_age_days(self) -> float:

@@ -34,6 +34,7 @@ from PySide6.QtWidgets import (
 
 from .. import CAUTION
 from ..archive import Archive, EmulsionLot, FilmType, Snapshot, snapshots_from_analysis
+from ..archive.entry_checks import already_stored, describe_stored
 from ..core.calibration import Calibration
 from ..core.records import Analysis
 from .errors import report_error, show_message
@@ -227,6 +228,9 @@ class SaveSnapshotDialog(QDialog):
         self.exposed_on, self.processed_on, self.scanned_on = (_date_edit(today) for _ in range(3))
         self.notes = QLineEdit()
         self.notes.setPlaceholderText("optional")
+        # Shown when the archive turns out to hold this scan's strips already.
+        self.again = QCheckBox("Store again: the archive holds this scan's strips already")
+        self.again.setVisible(False)
 
         form = QFormLayout()
         form.addRow("Emulsion lot: *", self.lot)
@@ -240,6 +244,7 @@ class SaveSnapshotDialog(QDialog):
         form.addRow("Processed on:", self.processed_on)
         form.addRow("Scanned on:", self.scanned_on)
         form.addRow("Notes:", self.notes)
+        form.addRow("", self.again)
         self.summary = QLabel(self._summary_text())
         self.summary.setWordWrap(True)
         self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Save | QDialogButtonBox.StandardButton.Cancel)
@@ -321,6 +326,17 @@ class SaveSnapshotDialog(QDialog):
     def _refuse(self, text: str) -> QMessageBox:
         return show_message(self, "Nothing was stored", text)
 
+    def _held_already(self, archive: Archive) -> bool:
+        """Say so, and offer "Store again", when the archive holds this scan's strips already."""
+        assert self.analysis is not None
+        stored = already_stored(archive, self.analysis)
+        if stored:
+            self.again.setVisible(True)
+            self._refuse(f"The archive holds this scan's strips already ({describe_stored(stored)}). Storing "
+                         "them again counts them twice in every trend and comparison; tick \"Store again\" "
+                         "if that is meant.")
+        return bool(stored)
+
     def save(self) -> bool:
         """Check the form and store one snapshot per strip; True when stored.
 
@@ -348,6 +364,8 @@ class SaveSnapshotDialog(QDialog):
                 return False
         try:
             with Archive.open(self.archive_path) as archive:
+                if not self.again.isChecked() and self._held_already(archive):
+                    return False
                 if new_lot_record is not None and form.lot not in [s.lot.lot_id for s in archive.list_lots()]:
                     if new_film_type is not None and form.film_type not in [f.name for f in archive.list_film_types()]:
                         archive.add_film_type(new_film_type)

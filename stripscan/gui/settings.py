@@ -115,7 +115,7 @@ class AppSettings:
             value = float(self.qsettings.value("analysis/increment", 0.15))
         except (TypeError, ValueError):
             return 0.15
-        return value if value > 0 else 0.15
+        return value if 0.0 < value <= 2.0 else 0.15  # as AnalysisOptions accepts (NaN fails both)
 
     def set_increment(self, value: float) -> None:
         self.qsettings.setValue("analysis/increment", float(value))

@@ -57,10 +57,17 @@ def _qt():
 
 
 def _wrap_paragraph(text: str, advance: Callable[[str], float], width: float) -> list[str]:
-    """Greedy word wrap with ``advance(text)`` widths; a word wider than a line is cut where it must."""
+    """Greedy word wrap with ``advance(text)`` widths; a word wider than a line is cut where it must.
+
+    Time grows linearly with the text: a word too long for a line is cut
+    by the widths of its characters (measured once per distinct character)
+    and each piece is checked whole only once or twice, so a 100 kB name
+    with no space wraps as fast as a sentence.
+    """
     words = text.split()
     if not words:
         return [""]
+    char_width: dict[str, float] = {}
     lines: list[str] = []
     current = ""
     for word in words:
@@ -71,13 +78,33 @@ def _wrap_paragraph(text: str, advance: Callable[[str], float], width: float) ->
         if current:
             lines.append(current)
         current = word
-        while advance(current) > width and len(current) > 1:
-            # Longest head that fits (at least one character, so the loop ends).
-            cut = max(1, max((k for k in range(1, len(current)) if advance(current[:k]) <= width), default=1))
-            lines.append(current[:cut])
-            current = current[cut:]
+        if advance(current) > width:
+            pieces = _cut_word(current, advance, width, char_width)
+            lines += pieces[:-1]
+            current = pieces[-1]
     lines.append(current)
     return lines
+
+
+def _cut_word(word: str, advance: Callable[[str], float], width: float, char_width: dict[str, float]) -> list[str]:
+    """``word`` cut into pieces no wider than ``width`` (at least one character each)."""
+    pieces: list[str] = []
+    start, run = 0, 0.0
+    for k, char in enumerate(word):
+        w = char_width.get(char)
+        if w is None:
+            w = char_width[char] = advance(char)
+        if run + w > width and k > start:
+            pieces.append(word[start:k])
+            start, run = k, 0.0
+        run += w
+    pieces.append(word[start:])
+    # Kerning can make a piece a little wider than its characters' sum:
+    # move its last characters on to the next piece until it fits.
+    for i in range(len(pieces) - 1):
+        while len(pieces[i]) > 1 and advance(pieces[i]) > width:
+            pieces[i], pieces[i + 1] = pieces[i][:-1], pieces[i][-1] + pieces[i + 1]
+    return pieces
 
 
 class Canvas:
@@ -142,7 +169,8 @@ class Canvas:
         for paragraph in text.split("\n"):
             lines += _wrap_paragraph(paragraph, fm.horizontalAdvance, width)
         if max_lines is not None and len(lines) > max_lines:
-            rest = " ".join(lines[max_lines - 1:])
+            # What one elided line can show: no need to hand Qt the whole rest.
+            rest = " ".join(lines[max_lines - 1:max_lines + 1])
             lines = lines[:max_lines - 1] + [fm.elidedText(rest + " \u2026", QtCore.Qt.TextElideMode.ElideRight, width)]
         return lines
 
@@ -318,11 +346,24 @@ def write_pdf(pages: Sequence[Page], path: str | os.PathLike[str], *, title: str
         try:
             for number, page in enumerate(pages, start=1):
                 if number > 1 and not writer.newPage():
-                    raise ReportError(f"{target}: Qt could not start page {number}")
+                    raise ReportError(_write_failure(target, f"Qt could not start page {number}"))
                 page.draw(Canvas(painter, page_no=number, page_count=len(pages), generated=generated))
         finally:
-            painter.end()
+            finished = painter.end()
+        if not finished:
+            raise ReportError(_write_failure(target, "Qt could not finish the document"))
     return target
+
+
+def _write_failure(target: Path, what: str) -> str:
+    """Why Qt could not write a document: Qt only says that it failed; a full disk is the usual cause."""
+    import shutil
+
+    try:
+        full = shutil.disk_usage(target.parent).free < (1 << 20)
+    except OSError:
+        full = False
+    return f"{target}: cannot write: the disk is full ({what})" if full else f"{target}: {what}"
 
 
 def render_page(page: Page, *, dpi: float = 100.0, page_no: int = 1, page_count: int = 1,

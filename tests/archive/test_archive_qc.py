@@ -131,9 +131,9 @@ def test_a_repeat_strip_is_stored_beside_the_first_and_counts_for_the_day(archiv
 def test_a_correction_keeps_the_wrong_entry_and_names_it_with_a_reason(archive: Archive) -> None:
     snapshot = archive.add_snapshot(make_draft(0))
     scanned = archive.add_qc_entry(QcEntry(NORTH, "2024-10-01", 0.19, 1.22, 1.85, "scan", snapshot.id, "scan A"))
-    typed = archive.add_qc_entry(QcEntry(NORTH, "2024-10-02", 0.19, 12.1, 1.84, note="typed"))
-    fixed = archive.add_qc_correction(typed.id, "  1.21 read, 12.1 typed  ", mid_density=1.21)
-    assert (fixed.corrects, fixed.reason, fixed.date, fixed.processor) == (typed.id, "1.21 read, 12.1 typed",
+    typed = archive.add_qc_entry(QcEntry(NORTH, "2024-10-02", 0.19, 2.21, 1.84, note="typed"))
+    fixed = archive.add_qc_correction(typed.id, "  1.21 read, 2.21 typed  ", mid_density=1.21)
+    assert (fixed.corrects, fixed.reason, fixed.date, fixed.processor) == (typed.id, "1.21 read, 2.21 typed",
                                                                           "2024-10-02", NORTH)
     assert (fixed.mid_density, fixed.base_fog, fixed.note, fixed.source) == (1.21, 0.19, "typed", "manual")
     assert archive.get_qc_entry(typed.id) == typed  # the wrong entry is kept as it was

@@ -10,6 +10,8 @@ user as a traceback.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pytest
 import tifffile
@@ -82,6 +84,10 @@ _CERTIFICATE_LINE = st.one_of(
 def test_a_hand_edited_certificate_is_read_or_refused_by_name(tmp_path, lines):
     path = tmp_path / "certificate.csv"
     path.write_text("\n".join(lines), encoding="utf-8", errors="surrogatepass")
+    _certificate_read_or_refused(path)
+
+
+def _certificate_read_or_refused(path) -> None:
     try:
         certificate = read_certificate(path)
     except CalibrationError as exc:
@@ -89,4 +95,23 @@ def test_a_hand_edited_certificate_is_read_or_refused_by_name(tmp_path, lines):
         return
     # What is accepted is a certificate the calibration can use (DESIGN: steps 1..N, densities rising).
     assert list(certificate.steps) == list(range(1, len(certificate.steps) + 1))
+    assert all(math.isfinite(d) for d in certificate.densities)
     assert all(b > a for a, b in zip(certificate.densities, certificate.densities[1:]))
+    assert certificate.uncertainties is None or all(math.isfinite(u) for u in certificate.uncertainties)
+
+
+_SCALAR_TEXT = st.one_of(st.none(), st.integers(-(2**70), 2**70), st.floats(), st.text(max_size=12)).map(str)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(raw=st.one_of(st.binary(max_size=300),
+                     st.builds(lambda lines, encoding: "\n".join(lines).encode(encoding, errors="replace"),
+                               st.lists(st.one_of(st.builds(lambda s, d, u: f"{s},{d},{u}", _SCALAR_TEXT,
+                                                            _SCALAR_TEXT, _SCALAR_TEXT),
+                                                  st.text(max_size=20)), max_size=12),
+                               st.sampled_from(["utf-8", "utf-16", "latin-1", "cp1252"]))))
+def test_any_bytes_as_a_certificate_are_read_or_refused_by_name(tmp_path, raw):
+    # A spreadsheet may save UTF-16 or Latin-1; a wrong file may be anything at all.
+    path = tmp_path / "certificate.csv"
+    path.write_bytes(raw)
+    _certificate_read_or_refused(path)

@@ -231,6 +231,24 @@ def test_the_archive_refusing_a_save_leaves_nothing_stored(qtbot, panel: Archive
     assert stored_count(archive_path) == before
 
 
+@pytest.mark.parametrize("lot, says", [("M-\x1b[2J", "control character (U+001B)"),
+                                       ("M-2801\u202eC", "hidden directional mark (U+202E)"),
+                                       ("M" * 81, "at most 80 are kept")])
+def test_a_lot_name_the_archive_refuses_is_explained_and_nothing_stored(qtbot, panel: ArchivePanel,
+                                                                        archive_path: Path, analysis, lot: str,
+                                                                        says: str) -> None:
+    # bad-input issue items 5 and 12: such names were stored and echoed raw
+    result, calibration = analysis
+    before = stored_count(archive_path)
+    dialog = panel.save_dialog(result, calibration)
+    fill(dialog, lot)
+    dialog.new_lot.setChecked(True)
+    assert not dialog.save()
+    shown = messages(dialog)
+    assert len(shown) == 1 and says in shown[0].text() and "\x1b" not in shown[0].text()
+    assert dialog.isVisible() and stored_count(archive_path) == before
+
+
 def test_dates_out_of_order_or_ahead_are_refused() -> None:
     day = dt.date(2026, 11, 24)
     form = SaveForm("M-2702-B", False, None, None, "J. Solberg", day, day, day)
@@ -376,3 +394,22 @@ def test_a_snapshot_read_without_calibration_says_its_uncertainty_is_noise_only(
     assert "Uncertainty (OD), noise only" in column
     assert panel.open_snapshot(calibrated_id)
     assert panel.view.steps.horizontalHeaderItem(3).text() == "Uncertainty (OD)"
+
+
+def test_a_scan_held_already_is_stored_again_only_when_ticked(qtbot, panel: ArchivePanel, archive_path: Path,
+                                                             analysis) -> None:
+    # bad-input issue item 14: the same scan saved twice counted its strips twice, with no word
+    result, calibration = analysis
+    first = panel.save_dialog(result, calibration)
+    fill(first, "M-2702-B")
+    assert first.save()
+    before = stored_count(archive_path)
+    dialog = panel.save_dialog(result, calibration)
+    fill(dialog, "M-2702-B")
+    assert not dialog.save()
+    shown = messages(dialog)
+    assert len(shown) == 1 and f"strip 1 as snapshot {first.stored[0].id}" in shown[0].text()
+    assert dialog.again.isVisible() and stored_count(archive_path) == before
+    shown[0].close()
+    dialog.again.setChecked(True)
+    assert dialog.save() and stored_count(archive_path) == before + 3

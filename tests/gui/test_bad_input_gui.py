@@ -64,3 +64,20 @@ def test_strip_cut_at_its_dense_end_is_shown_but_not_numbered(qtbot, open_scan, 
     (state,) = window.session.strips
     assert any("dense end is cut off" in n for n in state.notes)
     assert all(np.isnan(r.signal) for r in state.readings)
+
+
+def test_the_options_dialog_and_stored_settings_never_give_impossible_options(qtbot, settings):
+    # bad-input issue item 9: a step count of 1 or an infinite increment would stop the window
+    # (AnalysisOptions refuses them); the dialog's lowest value means "count them"
+    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.gui.options_dialog import OptionsDialog
+
+    dialog = OptionsDialog(AnalysisOptions(), 30.0)
+    qtbot.addWidget(dialog)
+    assert dialog.n_steps.minimum() == 1 and dialog.n_steps.text() == "count them"
+    assert dialog.options().n_steps is None
+    dialog.n_steps.setValue(2)
+    assert dialog.options().n_steps == 2
+    for stored in ("inf", "nan", "5"):
+        settings.qsettings.setValue("analysis/increment", stored)
+        assert settings.increment() == 0.15

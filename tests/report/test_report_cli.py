@@ -88,3 +88,23 @@ def test_bad_input_gives_one_line_and_no_file(capsys, archive: Archive, demo, tm
     assert code == 1 and printed == ""
     assert err.startswith("stripscan: error: ") and err.count("\n") == 1 and message in err
     assert not any(p.suffix in (".pdf", ".csv", ".json", ".jpg", ".partial") for p in tmp_path.iterdir())
+
+
+def test_a_long_unbroken_site_name_wraps_in_linear_time(capsys, demo, tmp_path):
+    # bad-input issue item 5: 3 000 characters without a space took 94 s (a cubic wrapping loop)
+    from stripscan.report.canvas import _wrap_paragraph
+
+    measured = []
+
+    def advance(text: str) -> float:  # a monospaced font: one unit per character
+        measured.append(len(text))
+        return float(len(text))
+
+    word = "x" * 100_000
+    lines = _wrap_paragraph(f"Site {word} end", advance, 60.0)
+    assert "".join(lines[1:-1]) + lines[-1].split()[0] == word and all(len(line) <= 60 for line in lines)
+    assert sum(measured) < 5 * len(word)  # every character measured a few times at most
+    out = tmp_path / "site.pdf"
+    code, printed, err = run(capsys, "report", demo.lot_b_scan, "--calibration", demo.calibration, "-o", out,
+                             "--site", "S" * 3000)
+    assert code == 0 and "3 pages" in printed, err
