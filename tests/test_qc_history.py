@@ -27,6 +27,10 @@ def day(n: int) -> str:
     return (dt.date(2026, 10, 5) + dt.timedelta(days=n)).isoformat()
 
 
+#: day(3) with its month typed wrong: a plausible past date that stops the days after day(3).
+WRONG_MONTH = "2026-11-08"
+
+
 def ok(capsys, *argv: object) -> str:
     code = main([str(a) for a in argv])
     out, err = capsys.readouterr()
@@ -88,27 +92,31 @@ def test_a_missed_day_is_entered_late_marked_and_the_levels_take_the_days_in_dat
 
 def test_a_year_typed_wrong_is_fixed_by_a_correction_of_the_date(capsys, archive):
     """Issue 15 item 17: 2062 typed for 2026 blocked the log for good; a correction can now fix the date
-    (a new entry naming the one it corrects), and the following days go in."""
+    (a new entry naming the one it corrects), and the following days go in.  A date in the future is now
+    refused at entry (item 13), so the wrong date that still gets in is a plausible one: a month typed wrong."""
     add(capsys, archive, 0, "--new-processor")
     for n in (1, 2):
         add(capsys, archive, n)
-    ok(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date", "2062-10-08", "--base-fog", "0.18",
+    assert "lies outside" in refused(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date",
+                                     "2062-10-08", "--base-fog", "0.18", "--mid-density", "1.20",
+                                     "--density-difference", "1.80")
+    ok(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date", WRONG_MONTH, "--base-fog", "0.18",
        "--mid-density", "1.20", "--density-difference", "1.80")
     assert "dates out of order" in refused(capsys, "qc", "add", "--archive", archive, "--processor", P,
                                            "--date", day(4), "--base-fog", "0.18", "--mid-density", "1.2",
                                            "--density-difference", "1.8")
     with Archive.open(archive) as opened:
-        wrong = next(e for e in opened.list_qc_entries(P) if e.date == "2062-10-08")
+        wrong = next(e for e in opened.list_qc_entries(P) if e.date == WRONG_MONTH)
     out = ok(capsys, "qc", "correct", wrong.id, "--archive", archive, "--date", day(3),
-             "--reason", "year typed 2062 for 2026")
+             "--reason", "month typed 11 for 10")
     assert f"correction of entry {wrong.id}" in out and f"date '{day(3)}'" in out
     add(capsys, archive, 4)  # the log goes on
     with Archive.open(archive) as opened:
         entries = opened.list_qc_entries(P)
         plog = load_processor_log(opened, P)
     fixed = next(e for e in entries if e.corrects == wrong.id)
-    assert fixed.date == day(3) and not fixed.entered_late and fixed.reason == "year typed 2062 for 2026"
-    assert next(e for e in entries if e.id == wrong.id).date == "2062-10-08"  # kept as it was
+    assert fixed.date == day(3) and not fixed.entered_late and fixed.reason == "month typed 11 for 10"
+    assert next(e for e in entries if e.id == wrong.id).date == WRONG_MONTH  # kept as it was
     assert [d.date.isoformat() for d in plog.log.entries] == [day(n) for n in range(5)]
 
 
@@ -252,7 +260,7 @@ def test_late_days_date_corrections_and_settings_history_survive_export_and_impo
     """Export format 3 carries what schema 4 added; importing it into an empty archive gives the same log."""
     add(capsys, archive, 0, "--new-processor")
     add(capsys, archive, 2)
-    ok(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date", "2062-10-08", "--base-fog", "0.18",
+    ok(capsys, "qc", "add", "--archive", archive, "--processor", P, "--date", WRONG_MONTH, "--base-fog", "0.18",
        "--mid-density", "1.2", "--density-difference", "1.8")
     with Archive.open(archive) as opened:
         wrong = opened.list_qc_entries(P)[-1].id

@@ -385,12 +385,19 @@ def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys,
     assert not archive.exists()
 
 
-def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys):
+def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeypatch):
     # issue item 12: names stored by an older stripscan are printed escaped, never raw
-    import sqlite3
+    import stripscan.archive.records as records
+    import stripscan.archive.store as store
+    from stripscan.archive import Archive, EmulsionLot
 
-    with sqlite3.connect(stored) as raw:  # as an older version stored it
-        raw.execute("INSERT INTO emulsion_lots (lot_id, notes) VALUES (?, '')", ("OLD\x1b]0;title\x07\u202e",))
+    # As an older version stored it: without the entry checks, but through the archive (so its
+    # history chain holds the record, as a migrated old archive's does).
+    monkeypatch.setattr(store, "check_reference", lambda *args, **kwargs: None)
+    monkeypatch.setattr(records, "_check_name", lambda *args, **kwargs: None)
+    with Archive.open(stored) as archive:
+        archive.add_lot(EmulsionLot("OLD\x1b]0;title\x07\u202e"))
+    monkeypatch.undo()
     code, out, err = run(["archive", "lots", "--archive", stored], capsys)
     assert code == 0 and "OLD\\u001b]0;title\\u0007\\u202e" in out, err
     assert "\x1b" not in out and "\u202e" not in out

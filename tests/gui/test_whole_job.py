@@ -90,7 +90,8 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
     panel.dialog.name_edit.setText("Processor East")
     panel.dialog.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
     assert panel.processor_box.currentText() == "Processor East"
-    first = datetime.date(2026, 12, 1)
+    # Days in the past, whenever the test runs: a QC day in the future is refused (issue 15, item 13).
+    first = datetime.date.today() - datetime.timedelta(days=10)
     # Values near the scanned strip's own, so that the scanned day lies within the limits.
     strip = window.session.result(0)
     reading = read_strip(window.session.analysis(), None, strip=1).values
@@ -103,13 +104,14 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
         panel.add_button.click()
         assert panel.form_message.text().startswith("Stored"), panel.form_message.text()
     assert "BASELINE" not in panel.status_label.text()
-    panel.date_edit.setDate(QDate(2026, 12, 6))
+    scanned = first + datetime.timedelta(days=5)
+    panel.date_edit.setDate(QDate(scanned.year, scanned.month, scanned.day))
     panel.scan_strip_box.setCurrentIndex(panel.scan_strip_box.findData(strip.index))
     panel.add_scan_button.click()
-    assert panel.scan_message.text().startswith("Stored 2026-12-06"), panel.scan_message.text()
+    assert panel.scan_message.text().startswith(f"Stored {scanned.isoformat()}"), panel.scan_message.text()
     # 21 CFR 900.12(e)(1): within ±0.15 of the operating levels and base+fog within +0.03.
     assert "Processor East: WITHIN LIMITS" in panel.status_label.text()
-    assert "latest strip 2026-12-06" in panel.status_label.text()
+    assert f"latest strip {scanned.isoformat()}" in panel.status_label.text()
     with Archive.open(archive, read_only=True) as stored:
         entries = stored.list_qc_entries("Processor East")
     assert [e.source for e in entries] == ["manual"] * 5 + ["scan"]
