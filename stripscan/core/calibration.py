@@ -642,10 +642,21 @@ class Calibration:
                 flat_field_sha256=data.get("flat_field_sha256"),
                 note=str(data.get("note", "")),
                 stray_light=StrayLight.from_dict(data["stray_light"]) if data.get("stray_light") else None,
-                tablet_spread=tuple(tuple(float(v) for v in row) for row in data.get("tablet_spread") or ()) or None,
+                tablet_spread=_spread_table(data.get("tablet_spread"), len(data["log_signal"]))
+                if data.get("stray_light") else None,
             )
-        except (KeyError, TypeError, ValueError, IndexError) as exc:
+        except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
             raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None
+
+
+def _spread_table(rows: Any, knots: int) -> tuple[tuple[float, float, float], ...]:
+    """The tablet's spread per used step, checked: one row of three finite numbers per knot, densities rising."""
+    table = tuple(tuple(float(v) for v in row) for row in rows)
+    if len(table) != knots or any(len(row) != 3 or not all(math.isfinite(v) for v in row) for row in table):
+        raise ValueError(f"tablet_spread needs {knots} rows of (density, spread, spread per unit fraction)")
+    if any(b[0] <= a[0] for a, b in zip(table, table[1:])) or any(row[1] < 0 or row[2] < 0 for row in table):
+        raise ValueError("tablet_spread densities must rise and its spreads must not be negative")
+    return table
 
 
 def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> None:
