@@ -10,14 +10,16 @@ signal to density.
 The map is only trusted between the tablet's lightest step and the densest
 step that the scanner still tells apart from its neighbour with an error
 within the accuracy goal (±0.02 OD, the usual expectation of a QC
-densitometer, common practice): its leave-one-out residual, and twice its
+densitometer, common practice): its held-out residual, and twice its
 reading noise carried through the map's slope, must both stay within it.  Outside that range a density is still
 computed, by a straight line in log signal, but it is flagged and never
 used silently.
 
-Per-step residuals are leave-one-out: each interior step is predicted from
-a curve fitted without it.  A curve through all points has zero residual
-by construction, so that figure would say nothing.
+Per-step residuals are held out: each step is predicted from a curve fitted
+without it — interpolated for the interior steps, extrapolated from the
+others for the densest, so the range's top is tested too.  A curve through
+all points has zero residual by construction, so that figure would say
+nothing.
 """
 
 from __future__ import annotations
@@ -403,12 +405,12 @@ class Calibration:
     covered_od : tuple of float
         (lowest, highest) certified density used in the fit.
     residuals : tuple of (float or None)
-        Leave-one-out residual per used step (predicted - certified); None
-        for the two end steps.
+        Held-out residual per used step (predicted - certified); None for the
+        lightest step, which starts the range.
     excluded_steps : tuple of int
         Certificate steps not used (saturated or not distinguishable).
     rms_residual : float or None
-        RMS of the leave-one-out residuals of the steps within the valid
+        RMS of the held-out residuals of the steps within the valid
         range, OD; every reading's uncertainty includes it.
     certificate : Certificate
     readings : tuple of dict
