@@ -11,7 +11,7 @@ import dataclasses
 import math
 import os
 from dataclasses import dataclass
-from typing import Sequence
+from typing import NamedTuple, Sequence
 
 import numpy as np
 
@@ -53,6 +53,7 @@ __all__ = [
     "CorrectedMap",
     "density_map_for",
     "direct_mode_for",
+    "read_densities",
     "read_density",
     "read_found_strip",
     "strip_result",
@@ -349,70 +350,84 @@ def _calibration_of(mapping: Mapping) -> Calibration | None:
     return mapping if isinstance(mapping, Calibration) else None
 
 
+class Densities(NamedTuple):
+    """Readings turned into densities, one entry per reading (see :func:`read_densities`)."""
+
+    od: np.ndarray  # (n,) OD
+    in_range: np.ndarray  # (n,) bool: inside the valid range (before the noise and stray-light checks)
+    correction_sd: np.ndarray  # (n,) standard uncertainty of the stray-light correction, OD
+    share: list[float | None]  # share of the light seen that is spread light
+    reason: list[str]  # a STEP_FLAGS key where not in range
+
+
+def read_densities(mapping: Mapping, readings: Sequence[StepReading], pixel_mm: float | None) -> Densities:
+    """Readings as densities, all at once.
+
+    Parameters
+    ----------
+    mapping : Calibration, DirectMode or CorrectedMap
+    readings : sequence of StepReading
+    pixel_mm : float or None
+        Pixel pitch, for the lateral correction.
+    """
+    n = len(readings)
+    calibration = _calibration_of(mapping)
+    signal = np.array([r.signal for r in readings], dtype=np.float64)
+    read = np.isfinite(signal) & (signal > 0) & np.array([r.pixels > 0 for r in readings], dtype=bool)
+    safe = np.where(read, signal, 1.0)
+    correction_sd = np.zeros(n)
+    share: list[float | None] = [None] * n
+    if calibration is None:
+        assert isinstance(mapping, DirectMode)
+        od, ok = mapping.density(safe)
+        floor = max(5.0 * mapping.floor_sd, 1e-5)
+        reason = ["" if k else ("dark_floor" if s - mapping.dark <= floor else "outside_range")
+                  for k, s in zip(ok, safe)]
+    elif isinstance(mapping, CorrectedMap):
+        model = calibration.stray_light
+        assert model is not None
+        spread, unit, outside, lamp = mapping.field.values_at(np.array([r.center_rc for r in readings]))
+        od, ok = calibration.density(safe, spread=spread, lamp=lamp)
+        seen = calibration.light(safe) / lamp
+        share = [min(max(float(a / b), 0.0), 1.0) if b > 0 else 1.0 for a, b in zip(spread, seen)]
+        finite = np.isfinite(od)
+        value = np.where(finite, od, 0.0)
+        transmitted = (1.0 - model.total) * 10.0 ** -value
+        # The map is exact for the tablet's surroundings.  The kernel's shape acts on the spread
+        # beyond the tablet's at this density; the fraction's own uncertainty through the spread
+        # per unit fraction beyond the tablet's.  Light from beyond the scan's edges is taken as
+        # the edge's own; what lies there is unknown, so half of it is counted as uncertain (also
+        # where the tablet had as much: what lies beyond the edge differs from place to place).
+        shape = model.relative_sd * np.abs(spread - calibration.reference_spread(value))
+        fraction = model.fraction_sd * np.abs(unit - calibration.reference_spread(value, part="unit"))
+        unknown = OUTSIDE_UNCERTAINTY * outside
+        correction_sd = np.where(finite, np.sqrt(shape**2 + fraction**2 + unknown**2) / (math.log(10.0) * transmitted),
+                                 np.inf)
+        reason = ["" if k else ("outside_range" if f else "stray_light") for k, f in zip(ok, finite)]
+    else:
+        od, ok = calibration.density(safe)
+        if calibration.stray_light is not None:
+            seen = calibration.light(safe)
+            reference = calibration.reference_spread(np.where(np.isfinite(od), od, 0.0))
+            share = [float(a / b) if b > 0 else None for a, b in zip(reference, seen)]
+        reason = ["" if k else "outside_range" for k in ok]
+    od = np.where(read, od, np.nan)
+    ok = ok & read
+    if calibration is not None and calibration.lateral is not None and pixel_mm:
+        tablet_pixel_mm = 25.4 / calibration.dpi if calibration.dpi else pixel_mm
+        od = od - np.array([calibration.lateral.offset_od(r.center_rc, pixel_mm, calibration.tablet_center_rc,
+                                                          tablet_pixel_mm) for r in readings])
+    reason = [r if k else "not_read" for r, k in zip(reason, read)]
+    share = [s if k else None for s, k in zip(share, read)]
+    return Densities(od, ok, np.where(read, correction_sd, 0.0), share, reason)
+
+
 def read_density(
     mapping: Mapping, reading: StepReading, pixel_mm: float | None
 ) -> tuple[float, bool, float, float | None, str]:
-    """One reading as a density.
-
-    Returns
-    -------
-    od : float
-    in_range : bool
-        Inside the valid range (before the noise and stray-light checks).
-    correction_sd : float
-        Standard uncertainty of the stray-light correction, OD.
-    share : float or None
-        Share of the light seen that is spread light.
-    reason : str
-        A :data:`~stripscan.core.records.STEP_FLAGS` key when not in range.
-    """
-    calibration = _calibration_of(mapping)
-    signal = reading.signal
-    if not (math.isfinite(signal) and signal > 0 and reading.pixels > 0):
-        return float("nan"), False, 0.0, None, "not_read"
-    if calibration is None:
-        assert isinstance(mapping, DirectMode)
-        od, ok = mapping.density(signal)
-        reason = ""
-        if not ok[0]:
-            reason = "dark_floor" if signal - mapping.dark <= max(5.0 * mapping.floor_sd, 1e-5) else "outside_range"
-        return float(od[0]), bool(ok[0]), 0.0, None, reason
-    share, correction_sd = None, 0.0
-    if isinstance(mapping, CorrectedMap):
-        spread = mapping.field.at(reading.center_rc)
-        lamp = mapping.field.lamp_at(reading.center_rc)
-        od, ok = calibration.density(signal, spread=spread, lamp=lamp)
-        seen = float(calibration.light(signal)[0]) / lamp
-        share = min(max(spread / seen, 0.0), 1.0) if seen > 0 else 1.0
-        value = float(od[0])
-        if not math.isfinite(value):
-            return value, False, float("inf"), share, "stray_light"
-        # The map is exact for the tablet's surroundings; what the model adds
-        # or takes beyond them carries the model's relative uncertainty.
-        model = calibration.stray_light
-        assert model is not None
-        transmitted = (1.0 - model.total) * 10.0 ** -value
-        # The kernel's shape: relative to the spread beyond the tablet's at this density.
-        shape = model.relative_sd * abs(spread - float(calibration.reference_spread(value)[0]))
-        # The fraction's own uncertainty, through the spread per unit fraction beyond the tablet's.
-        unit = mapping.field.unit_at(reading.center_rc) - float(calibration.reference_spread(value, part="unit")[0])
-        fraction = model.fraction_sd * abs(unit)
-        # Light from beyond the scan's edges is taken as the edge's own; what lies there is
-        # unknown, so half of it is counted as uncertain (also where the tablet had as much:
-        # what lies beyond the edge differs from one place to another).
-        unknown = OUTSIDE_UNCERTAINTY * mapping.field.outside_at(reading.center_rc)
-        correction_sd = math.sqrt(shape**2 + fraction**2 + unknown**2) / (math.log(10.0) * transmitted)
-    else:
-        od, ok = calibration.density(signal)
-        value = float(od[0])
-        if calibration.stray_light is not None:
-            seen = float(calibration.light(signal)[0])
-            share = float(calibration.reference_spread(value)[0]) / seen if seen > 0 else None
-    if calibration.lateral is not None and pixel_mm and math.isfinite(value):
-        tablet_pixel_mm = 25.4 / calibration.dpi if calibration.dpi else pixel_mm
-        value -= calibration.lateral.offset_od(reading.center_rc, pixel_mm, calibration.tablet_center_rc,
-                                               tablet_pixel_mm)
-    return value, bool(ok[0]), correction_sd, share, "" if ok[0] else "outside_range"
+    """One reading as a density: ``(od, in_range, correction_sd, share, reason)``; see :func:`read_densities`."""
+    d = read_densities(mapping, [reading], pixel_mm)
+    return float(d.od[0]), bool(d.in_range[0]), float(d.correction_sd[0]), d.share[0], d.reason[0]
 
 
 def strip_result(
@@ -454,8 +469,10 @@ def strip_result(
     cal_sd = calibration.rms_residual if calibration is not None and calibration.rms_residual else 0.0
     steps = []
     flagged: dict[str, list[int]] = {}
+    densities = read_densities(mapping, readings, pixel_mm)
     for k, reading in enumerate(readings):
-        value, ok, correction_sd, share, reason = read_density(mapping, reading, pixel_mm)
+        value, ok = float(densities.od[k]), bool(densities.in_range[k])
+        correction_sd, share, reason = float(densities.correction_sd[k]), densities.share[k], densities.reason[k]
         if reading.saturated_fraction > MAX_SATURATED:
             # Clipped at one end of the codes: a dense step crushed to the bottom code is
             # not the scanner saturating, and the advice differs (mid-scale splits the ends).
@@ -846,7 +863,8 @@ def fit_tablet(scan: Scan, geometry: StripGeometry, readings: Sequence[StepReadi
                                        platen=platen, sigmas_mm=sigmas,
                                        code_step=scan.code_step, source="the tablet scan")
         field = spread_field(reduced, calibration.light, model)
-        seen = [(field.lamp_at(r.center_rc), field.at(r.center_rc), field.unit_at(r.center_rc)) for r in readings]
+        spread, unit, _, lamp = field.values_at(np.array([r.center_rc for r in readings]))
+        seen = list(zip(lamp, spread, unit))
         calibration = fit_calibration(readings, certificate, stray_light=model, seen=seen, **provenance)
     return calibration
 

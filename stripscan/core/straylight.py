@@ -363,33 +363,32 @@ class SpreadField:
     reduced: ReducedScan
     model: StrayLight
 
-    def at(self, rc: tuple[float, float]) -> float:
-        """Spread light at a full-scan position (bilinear between cell centres)."""
-        value = ndimage.map_coordinates(self.spread, self.reduced.cells_of(rc), order=1, mode="nearest")
-        return float(value[0])
+    def values_at(self, rc: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """Spread, spread per unit fraction, spread from beyond the edges and lamp at positions.
 
-    def unit_at(self, rc: tuple[float, float]) -> float:
-        """Spread per unit fraction at a full-scan position."""
-        value = ndimage.map_coordinates(self.unit, self.reduced.cells_of(rc), order=1, mode="nearest")
-        return float(value[0])
+        Values are bilinear between cell centres.  The lamp's quadratic is not
+        extrapolated: beyond the positions it was fitted over (plus
+        :data:`LAMP_REACH_MM`) the lamp is taken as at their end, and the
+        analysis warns that the place was not measured.
 
-    def outside_at(self, rc: tuple[float, float]) -> float:
-        """The part of :meth:`at` that comes from beyond the scan's edges."""
-        value = ndimage.map_coordinates(self.outside, self.reduced.cells_of(rc), order=1, mode="nearest")
-        return float(value[0])
+        Parameters
+        ----------
+        rc : ndarray, shape (n, 2)
+            Full-scan positions (row, col), px.
 
-    def lamp_at(self, rc: tuple[float, float]) -> float:
-        """Relative lamp brightness at a full-scan position.
-
-        The quadratic is not extrapolated: beyond the positions it was fitted
-        over (plus :data:`LAMP_REACH_MM`) the lamp is taken as at their end,
-        and the analysis warns that the place was not measured.
+        Returns
+        -------
+        spread, unit, outside, lamp : ndarray, shape (n,)
         """
-        x = rc[1] * self.reduced.pixel_mm
+        rc = np.atleast_2d(np.asarray(rc, dtype=np.float64))
+        coords = self.reduced.cells_of(rc)
+        values = [ndimage.map_coordinates(a, coords, order=1, mode="nearest")
+                  for a in (self.spread, self.unit, self.outside)]
+        x = rc[:, 1] * self.reduced.pixel_mm
         span = self.model.lamp_span_mm
         if span is not None:
-            x = min(max(x, span[0] - LAMP_REACH_MM), span[1] + LAMP_REACH_MM)
-        return float(self.model.lamp_factor(x))
+            x = np.clip(x, span[0] - LAMP_REACH_MM, span[1] + LAMP_REACH_MM)
+        return values[0], values[1], values[2], self.model.lamp_factor(x)
 
 
 def _seen_light(reduced: ReducedScan, to_light: Callable[[np.ndarray], np.ndarray], model: StrayLight) -> np.ndarray:

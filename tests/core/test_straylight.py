@@ -75,7 +75,8 @@ def test_spread_field_equals_the_forward_models_spread():
     want = seen - (1.0 - model.total) * t
     assert np.abs(field.spread - want).max() < 1e-5
     # At a cell centre the field reads that cell's spread.
-    assert field.at((25 * 20.0 + 9.5, 15 * 20.0 + 9.5)) == pytest.approx(want[25, 15], abs=1e-5)
+    spread, _, _, lamp = field.values_at(np.array([(25 * 20.0 + 9.5, 15 * 20.0 + 9.5)]))
+    assert spread[0] == pytest.approx(want[25, 15], abs=1e-5) and lamp[0] == 1.0
 
 
 def test_model_round_trips_and_refuses_nonsense():
