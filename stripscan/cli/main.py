@@ -68,15 +68,11 @@ def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
 
 
 def _write_text_atomic(path: Path, text: str) -> None:
-    tmp = path.with_name(path.name + ".partial")
+    from stripscan._shared.atomic import write_text
+
     try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
+        write_text(path, text)
     except OSError as exc:
-        try:
-            tmp.unlink(missing_ok=True)
-        except OSError:  # a read-only folder refuses even that; nothing was left there
-            pass
         raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
 
 
