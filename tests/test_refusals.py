@@ -394,7 +394,7 @@ def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeyp
     # As an older version stored it: without the entry checks, but through the archive (so its
     # history chain holds the record, as a migrated old archive's does).
     monkeypatch.setattr(store, "check_reference", lambda *args, **kwargs: None)
-    monkeypatch.setattr(records, "_check_name", lambda *args, **kwargs: None)
+    monkeypatch.setattr(records, "check_name", lambda *args, **kwargs: None)
     with Archive.open(stored) as archive:
         archive.add_lot(EmulsionLot("OLD\x1b]0;title\x07\u202e"))
     monkeypatch.undo()

@@ -21,19 +21,16 @@ from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import (
     FIGURE_UNITS,
     FIGURES,
-    Crossover,
     EmulsionLot,
     FilmType,
     ImportReport,
     Processor,
-    QcEntry,
-    QcEvent,
-    QcSettings,
     Sensitometer,
     Snapshot,
     SnapshotNote,
-    calibration_hash,
 )
+from stripscan.archive.values import calibration_hash
+from stripscan.archive.qc_records import Crossover, QcEntry, QcEvent, QcSettings
 
 if TYPE_CHECKING:
     from stripscan.archive.service import Archive

@@ -14,7 +14,8 @@ from typing import TYPE_CHECKING, Any
 
 from stripscan.archive.entry_checks import check_imported_figures, check_note
 from stripscan.archive.errors import ArchiveConflictError, ArchiveError, ArchiveLookupError, OutOfOrderError
-from stripscan.archive.records import ImportReport, QcEntry
+from stripscan.archive.records import ImportReport
+from stripscan.archive.qc_records import QcEntry
 from stripscan.archive.tables import REFERENCE
 
 if TYPE_CHECKING:

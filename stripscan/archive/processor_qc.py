@@ -20,17 +20,9 @@ from stripscan.archive.errors import (
     DuplicateDayError,
     OutOfOrderError,
 )
-from stripscan.archive.records import (
-    Crossover,
-    NewSnapshot,
-    Processor,
-    QcEntry,
-    QcEvent,
-    QcSettings,
-    canonical_json,
-    qc_entry_states,
-    utc_now,
-)
+from stripscan.archive.records import NewSnapshot, Processor
+from stripscan.archive.values import canonical_json, utc_now
+from stripscan.archive.qc_records import Crossover, QcEntry, QcEvent, QcSettings, qc_entry_states
 from stripscan.archive.tables import (
     insert_sql,
     QC_DENSITIES,

@@ -16,16 +16,8 @@ from stripscan.archive.errors import (
     ArchiveConflictError,
     ArchiveError,
 )
-from stripscan.archive.records import (
-    EmulsionLot,
-    FilmType,
-    LotSummary,
-    Processor,
-    Sensitometer,
-    calibration_hash,
-    calibration_text,
-    canonical_json,
-)
+from stripscan.archive.records import EmulsionLot, FilmType, LotSummary, Processor, Sensitometer
+from stripscan.archive.values import calibration_hash, calibration_text, canonical_json
 from stripscan.archive.tables import (
     DAY,
     REFERENCE,

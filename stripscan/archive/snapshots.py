@@ -29,10 +29,9 @@ from stripscan.archive.records import (
     SnapshotSummary,
     StepReadings,
     TrendPoint,
-    canonical_json,
     snapshots_from_analysis,
-    utc_now,
 )
+from stripscan.archive.values import canonical_json, utc_now
 from stripscan.archive.tables import (
     DAY,
     SNAPSHOT_COLUMNS,

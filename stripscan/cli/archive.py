@@ -20,14 +20,8 @@ from stripscan.core.records import warnings_of_strip
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.archive.errors import ArchiveError
-from stripscan.archive.records import (
-    FIGURES,
-    NewSnapshot,
-    Sensitometer,
-    Snapshot,
-    SnapshotSummary,
-    check_day,
-)
+from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapshot, SnapshotSummary
+from stripscan.archive.values import check_day
 from stripscan.archive.service import Archive, default_archive_path
 from stripscan.cli.common import fail, guarded, open_from_args
 

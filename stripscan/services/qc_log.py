@@ -48,7 +48,7 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveLookupError, DuplicateDayError, NewSnapshot, Processor
 from stripscan.archive import QcEntry as StoredEntry
-from stripscan.archive.records import QcEntryState, qc_entry_states
+from stripscan.archive.qc_records import QcEntryState, qc_entry_states
 from stripscan.core.qc.rules import (
     EVENT_KINDS,
     QUANTITIES,
