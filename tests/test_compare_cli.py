@@ -21,7 +21,7 @@ from stripscan.core.calibration import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult
-from stripscan.core.qc.rules import QCSteps
+from stripscan.core.qc.records import QCSteps
 from stripscan.sim.demo_data import SCENARIO, demo_files
 from stripscan.services.qc_log import QcSetup, StepChoice
 

@@ -38,7 +38,7 @@ against set 1) in the same shape, with ΔD(log E) and Δlog E(net density).
 ``crossover`` reads the old and the new QC film's strips at the steps the
 processor already uses (kept in its QC log, :mod:`stripscan.services.qc_log`; chosen
 on the old film's mean densities when none are kept), moves its operating
-levels by the mean difference (:func:`stripscan.core.qc.rules.crossover`: at
+levels by the mean difference (:func:`stripscan.core.qc.crossover.crossover`: at
 least ``--strips`` strips of each film, as many old as new) and stores the
 crossover record and a ``crossover`` event with the new levels in the
 processor's QC log together: both or neither.  It refuses a second
@@ -242,7 +242,7 @@ def levels_in_force(archive: Any, processor: str, date: datetime.date, *,
 
 
 def _steps_in_use(log: Any, levels: Any, old: StripSet, date: datetime.date) -> tuple[Any, str]:
-    from stripscan.core.qc.rules import choose_qc_steps
+    from stripscan.core.qc.levels import choose_qc_steps
     from stripscan.core.compare.statistics import mean_step_densities
 
     steps = log.steps_on(date)
@@ -347,7 +347,7 @@ def _check_processed_together(old: StripSet, new: StripSet, loader: SetLoader, d
 def cmd_crossover(args: argparse.Namespace) -> int:
     """Move a processor's operating levels to a new box of QC film."""
     from stripscan.archive import Archive, default_archive_path
-    from stripscan.core.qc.rules import crossover
+    from stripscan.core.qc.crossover import crossover
     from stripscan.services.qc_log import load_processor_log
 
     if args.strips < 1:

@@ -34,7 +34,7 @@ enough strips for a narrow interval, which is the point of replicates.
 
 Mid-density and density difference are read at the *same* steps on every
 strip (as processor QC keeps its steps): those chosen on set A's mean step
-densities by :func:`stripscan.core.qc.rules.choose_qc_steps`.
+densities by :func:`stripscan.core.qc.levels.choose_qc_steps`.
 
 Tolerances are site settings; :data:`DEFAULT_TOLERANCES` says where each
 default comes from.  Units: densities OD, exposures log10 relative exposure.
@@ -53,7 +53,8 @@ from scipy import stats
 
 from stripscan.core.compare.table import DEFAULT_TOLERANCES, FIGURE_INFO, FIGURES, Tolerance
 from stripscan.core.curve import CharacteristicCurve, relative_speed_percent, strip_curve
-from stripscan.core.qc.rules import QCSteps, QCValues, choose_qc_steps, qc_values_from_steps
+from stripscan.core.qc.levels import choose_qc_steps, qc_values_from_steps
+from stripscan.core.qc.records import QCSteps, QCValues
 from stripscan.core.records import StripResult, clean_float
 
 __all__ = [
