@@ -219,7 +219,7 @@ def _cmd_report(args: argparse.Namespace) -> int:
 def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
     """Compare the sets named on the command line as ``stripscan compare`` does; with the calibrations used."""
     from stripscan.cli.compare import SetLoader, _tolerances, parse_set
-    from stripscan.core.compare.statistics import compare_sets
+    from stripscan.core.compare.comparison import compare_sets
 
     if len(args.compare) < 2:
         raise ReportError(f"--compare needs at least two sets, got {len(args.compare)}")

@@ -32,7 +32,9 @@ from stripscan.core.calibration import (
     fit_calibration,
     fit_lateral,
 )
-from stripscan.core.compare.statistics import StripSet, compare_sets, judge, welch_interval
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.compare.sets import StripSet
+from stripscan.core.compare.statistics import judge, welch_interval
 from stripscan.core.curve import (
     CharacteristicCurve,
     FigureSettings,

@@ -27,7 +27,7 @@ from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.services.demo_archive import DEMO_ARCHIVE_NAME
 from stripscan.services.comparison_sets import SetLoader, parse_set
-from stripscan.core.compare.statistics import compare_sets
+from stripscan.core.compare.comparison import compare_sets
 from stripscan.gui import jobs
 from stripscan.render import qtguard
 from stripscan.gui.app import open_demo, run_demo
