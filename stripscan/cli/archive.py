@@ -19,7 +19,7 @@ from typing import Any
 
 from stripscan import CAUTION
 from stripscan.core.records import warnings_of_strip
-from stripscan.core.figures import NOISE_ONLY_NOTE, figure_digits, read_in_direct_mode, step_flag, uncertainty_title
+from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from stripscan.archive.entry_checks import already_stored, describe_stored, remove_if_unused
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import (
@@ -31,6 +31,7 @@ from stripscan.archive.records import (
     check_day,
 )
 from stripscan.archive.service import Archive, default_archive_path
+from stripscan.core.figures import figure_digits
 
 __all__ = ["register"]
 
