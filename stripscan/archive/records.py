@@ -20,6 +20,7 @@ import dataclasses
 from dataclasses import dataclass, field
 from typing import Any, NamedTuple
 
+from stripscan.core.figures import figure_unit
 from stripscan.core.records import Analysis, CurveFigures, ScanInfo, StripResult
 
 from stripscan.archive.values import (
@@ -61,7 +62,9 @@ __all__ = [
     "snapshots_from_analysis",
 ]
 
-#: Curve figures kept as columns of the snapshot table, in display order.
+#: Curve figures kept as columns of the snapshot table, in display order.  These are column
+#: names of the stored schema (a change needs a migration); their names, units and printed
+#: decimals are those of the one figure table, :mod:`stripscan.core.figures`.
 FIGURES: tuple[str, ...] = (
     "base_fog",
     "dmax",
@@ -73,17 +76,8 @@ FIGURES: tuple[str, ...] = (
     "density_difference",
 )
 
-#: Unit of each figure, as written in CSV headers.
-FIGURE_UNITS: dict[str, str] = {
-    "base_fog": "OD",
-    "dmax": "OD",
-    "speed_log_exposure": "log10 rel. exposure",
-    "average_gradient": "OD per log10 exposure",
-    "gamma": "OD per log10 exposure",
-    "latitude_log_exposure": "log10 rel. exposure",
-    "mid_density": "OD",
-    "density_difference": "OD",
-}
+#: Unit of each figure, as written in CSV headers (the figure table's long units).
+FIGURE_UNITS: dict[str, str] = {name: figure_unit(name, "long") for name in FIGURES}
 
 @dataclass(frozen=True)
 class FilmType(PlainRecord):

@@ -24,6 +24,7 @@ from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapsh
 from stripscan.archive.values import check_day
 from stripscan.archive.service import Archive, default_archive_path
 from stripscan.cli.common import fail, guarded, open_from_args
+from stripscan.core.figures import figure_digits
 
 __all__ = ["register"]
 
@@ -49,6 +50,11 @@ def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
     if value is None:
         return "-"
     return f"{value:.{digits}f} {unit}" if unit else f"{value:.{digits}f}"
+
+
+def _figure(key: str, value: float | None, *, unit: str = "") -> str:
+    """A curve figure at the decimals of the one figure table (as every report prints it)."""
+    return _number(value, figure_digits(key), unit=unit)
 
 
 def _status(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
@@ -144,9 +150,10 @@ def _cmd_add(args: argparse.Namespace) -> int:
 
 def _stored_line(snapshot: Snapshot) -> str:
     f = snapshot.figures
-    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_number(f.base_fog)}, mid-density "
-            f"{_number(f.mid_density)}, density difference {_number(f.density_difference)}, speed "
-            f"{_number(f.speed_log_exposure)}")
+    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_figure('base_fog', f.base_fog)}, "
+            f"mid-density {_figure('mid_density', f.mid_density)}, density difference "
+            f"{_figure('density_difference', f.density_difference)}, speed "
+            f"{_figure('speed_log_exposure', f.speed_log_exposure)}")
 
 
 def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
@@ -176,9 +183,9 @@ def _cmd_list(args: argparse.Namespace) -> int:
         md_step = str(qc.mid_step) if qc and qc.mid_step is not None else "-"
         dd_steps = f"{qc.dd_high_step}-{qc.dd_low_step}" if qc and qc.dd_high_step is not None else "-"
         table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
-                      *(_number(getattr(r, name)) for name in plain),
-                      _number(qc.mid_density if qc else None), md_step,
-                      _number(qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+                      *(_figure(name, getattr(r, name)) for name in plain),
+                      _figure("mid_density", qc.mid_density if qc else None), md_step,
+                      _figure("density_difference", qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
     _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
                   _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
                   "status"], table)
@@ -216,11 +223,12 @@ def _cmd_show(args: argparse.Namespace) -> int:
         print(f"  calibration {s.calibration_hash}")
     if s.revises is not None:
         print(f"  corrects snapshot {s.revises}: {s.revision_reason}")
-    print(f"  base+fog {_number(f.base_fog, unit='OD')}; Dmax {_number(f.dmax, unit='OD')}; "
-          f"speed {_number(f.speed_log_exposure, unit='log E')}; average gradient {_number(f.average_gradient, 2)}; "
-          f"gamma {_number(f.gamma, 2)}; latitude {_number(f.latitude_log_exposure, unit='log E')}")
-    print(f"  mid-density {_number(f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); density "
-          f"difference {_number(f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
+    print(f"  base+fog {_figure('base_fog', f.base_fog, unit='OD')}; Dmax {_figure('dmax', f.dmax, unit='OD')}; "
+          f"speed {_figure('speed_log_exposure', f.speed_log_exposure, unit='log E')}; "
+          f"average gradient {_figure('average_gradient', f.average_gradient)}; gamma {_figure('gamma', f.gamma)}; "
+          f"latitude {_figure('latitude_log_exposure', f.latitude_log_exposure, unit='log E')}")
+    print(f"  mid-density {_figure('mid_density', f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); "
+          f"density difference {_figure('density_difference', f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
           f"{f.dd_low_step or '-'})")
     if read_in_direct_mode(s.strip):
         print(f"  ({NOISE_ONLY_NOTE})")

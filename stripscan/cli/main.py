@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from stripscan import CAUTION, __version__
-from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
+from stripscan.core.figures import NOISE_ONLY_NOTE, figure_digits, read_in_direct_mode, step_flag, uncertainty_title
 
 EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
@@ -148,24 +148,29 @@ def format_analysis(analysis) -> str:
             if stray:
                 share = f" {100 * s.stray_light_share:5.1f}%" if s.stray_light_share is not None else "      -"
             out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}{share}  {note}")
-        out.append(f"  base+fog              {_fmt(f.base_fog, 3) if f.base_fog is not None else 'not read'}")
-        out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
-        out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
+        d = figure_digits  # the one figure table's decimals, as every report prints them
+        out.append(f"  base+fog              "
+                   f"{_fmt(f.base_fog, d('base_fog')) if f.base_fog is not None else 'not read'}")
+        out.append(f"  Dmax                  "
+                   f"{_fmt(f.dmax, d('dmax')) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
+        out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  "
+                   f"log E {_fmt(f.speed_log_exposure, d('speed_log_exposure'))}")
         if f.relative_speed_percent is not None:
-            out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
+            out.append(f"  relative speed        {f.relative_speed_percent:+.{d('relative_speed_percent')}f} %")
         low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
-        out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, 2)}")
-        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, 2)}" if f.gamma is not None else ""
-        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)}{gamma_at}")
-        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2, ' log E')}")
+        out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, d('average_gradient'))}")
+        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, d('gamma_log_exposure'))}" if f.gamma is not None else ""
+        out.append(f"  gamma (max slope)     {_fmt(f.gamma, d('gamma'))}{gamma_at}")
+        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, d('latitude_log_exposure'), ' log E')}")
         if f.mid_density_step is not None:
-            out.append(f"  mid-density           {_fmt(f.mid_density, 2)} (step {f.mid_density_step})")
+            out.append(f"  mid-density           {_fmt(f.mid_density, d('mid_density'))} (step {f.mid_density_step})")
         if f.density_difference is not None:
             out.append(
-                f"  density difference    {_fmt(f.density_difference, 2)} (step {f.dd_high_step} - step {f.dd_low_step})"
+                f"  density difference    {_fmt(f.density_difference, d('density_difference'))} "
+                f"(step {f.dd_high_step} - step {f.dd_low_step})"
             )
         if f.iso_speed is not None:
-            out.append(f"  ISO speed             {f.iso_speed:.0f}")
+            out.append(f"  ISO speed             {f.iso_speed:.{d('iso_speed')}f}")
         for w in strip.warnings:
             out.append(f"  ! {w}")
     top = [w for w in analysis.warnings if not w.startswith("strip ")]

@@ -64,7 +64,7 @@ def _day(text: str | None, what: str = "--date") -> Any:
 
 def _cmd_add(args: argparse.Namespace) -> int:
     """Add a day's QC entry, read off a scan or typed in from a densitometer."""
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.services.qc_log import add_day, status_text, uncalibrated_refusal
 
     _processor(args)

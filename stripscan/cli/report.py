@@ -220,7 +220,7 @@ def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
     """Compare the sets named on the command line as ``stripscan compare`` does; with the calibrations used."""
     from stripscan.cli.compare import tolerances_from_args as _tolerances
     from stripscan.services.comparison_sets import SetLoader, parse_set
-    from stripscan.core.compare.statistics import compare_sets
+    from stripscan.core.compare.comparison import compare_sets
 
     if len(args.compare) < 2:
         raise ReportError(f"--compare needs at least two sets, got {len(args.compare)}")

@@ -32,7 +32,7 @@ from scipy.optimize import brentq
 
 from stripscan.core.calibration import ACCURACY_GOAL
 from stripscan.core.figure_settings import FigureSettings
-from stripscan.core.qc.rules import choose_qc_steps, closest_step
+from stripscan.core.qc.levels import choose_qc_steps, closest_step
 from stripscan.core.records import CurveFigures, StripResult
 
 __all__ = [

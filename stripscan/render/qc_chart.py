@@ -33,7 +33,7 @@ from stripscan import CAUTION, __version__
 from stripscan._shared.atomic import replacing
 from stripscan.render.qt import ensure_app
 from stripscan.services.qc_chart import ChartData, ChartSeries, ChartPoint, chart_legend, describe_rule
-from stripscan.services.qc_log import VERDICT_WORDS
+from stripscan.core.qc.names import VERDICT_WORDS
 
 __all__ = [
     "MARKS", "BANDS", "SET_ASIDE", "CORRECTED_COLOUR", "WAITING_COLOUR", "SET_ASIDE_SHIFT", "LEVEL_LINE",

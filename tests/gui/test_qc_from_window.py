@@ -9,7 +9,7 @@ from PySide6.QtCore import QDate
 from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
-from stripscan.core.qc.rules import QUANTITIES
+from stripscan.core.qc.names import QUANTITIES
 from stripscan.gui.panels.qc_panel import FILM_TYPE_KEY
 from stripscan.services.qc_log import load_processor_log
 

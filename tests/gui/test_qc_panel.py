@@ -98,7 +98,7 @@ def test_the_window_and_the_monthly_report_explain_the_same_marks_in_the_same_wo
 
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
     path = tmp_path / "short.sqlite3"
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.services.qc_log import add_day
 
     with Archive.open(path) as archive:
@@ -241,7 +241,7 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
 def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_path):
     from pypdf import PdfReader
 
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.gui import jobs
     from stripscan.services.qc_log import add_day
 

@@ -16,8 +16,8 @@ from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.core.compare.statistics import compare_sets
-from stripscan.core.qc.rules import QUANTITIES
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.qc.names import QUANTITIES
 from stripscan.sim.simulate import FilmModel
 from stripscan.services.comparison_sets import SetLoader, parse_set
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog

@@ -27,7 +27,7 @@ from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.services.demo_archive import DEMO_ARCHIVE_NAME
 from stripscan.services.comparison_sets import SetLoader, parse_set
-from stripscan.core.compare.statistics import compare_sets
+from stripscan.core.compare.comparison import compare_sets
 from stripscan.gui import jobs
 from stripscan.render import qtguard
 from stripscan.gui.app import open_demo, run_demo
@@ -39,7 +39,8 @@ from stripscan.gui.settings import AppSettings
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
 from stripscan.gui.workspace import PAGES, archive_setting
 from stripscan.services.qc_demo import DEMO_PROCESSOR
-from stripscan.services.qc_log import VERDICT_WORDS, load_processor_log
+from stripscan.core.qc.names import VERDICT_WORDS
+from stripscan.services.qc_log import load_processor_log
 
 LOT_A, LOT_B = "M-2610-A", "M-2702-B"
 

@@ -39,7 +39,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.core.compare.statistics import Comparison, FigureRow
+from stripscan.core.compare.comparison import Comparison
+from stripscan.core.compare.statistics import FigureRow
 from stripscan.gui.style import caution_label, notes_label, strip_colour
 
 __all__ = ["ComparePanel", "plain_names", "COLUMNS", "VERDICT_COLOURS"]

@@ -55,7 +55,8 @@ from stripscan import CAUTION
 from stripscan.render import qtguard  # noqa: F401  (before any signal is emitted)
 from stripscan.archive import Archive, ArchiveError, Processor
 from stripscan.archive import QcEntry as StoredEntry
-from stripscan.core.qc.rules import QUANTITIES, QCLimits, QCValues
+from stripscan.core.qc.names import LABELS, QUANTITIES, VERDICT_WORDS
+from stripscan.core.qc.records import QCLimits, QCValues
 from stripscan.core.records import Analysis
 from stripscan.render.qc_chart import (
     BANDS,
@@ -76,8 +77,6 @@ from stripscan.render.qc_chart import (
 )
 from stripscan.services.qc_chart import ChartData, ChartPoint, ChartSeries, chart_data, describe_rule
 from stripscan.services.qc_log import (
-    LABELS,
-    VERDICT_WORDS,
     DuplicateDayError,
     ProcessorLog,
     QcSetup,
