@@ -27,8 +27,8 @@ from stripscan.archive.records import (
     NewSnapshot,
     Sensitometer,
     Snapshot,
-    SnapshotSummary,
     check_day,
+    snapshot_status,
 )
 from stripscan.archive.service import Archive, default_archive_path
 
@@ -115,14 +115,6 @@ def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
     if value is None:
         return "-"
     return f"{value:.{digits}f} {unit}" if unit else f"{value:.{digits}f}"
-
-
-def _status(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
-    if item.retired_at is not None:
-        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
-    if superseded_by is not None:
-        return f"revised by {superseded_by}"
-    return "current"
 
 
 def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
@@ -244,7 +236,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
         table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
                       *(_number(getattr(r, name)) for name in plain),
                       _number(qc.mid_density if qc else None), md_step,
-                      _number(qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+                      _number(qc.density_difference if qc else None), dd_steps, snapshot_status(r)])
     _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
                   _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
                   "status"], table)
@@ -270,7 +262,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         print(json.dumps(data, ensure_ascii=False, indent=1))
         return 0
     s, f = snapshot, snapshot.figures
-    print(f"snapshot {s.id} ({_status(s, later[0] if later else None)})")
+    print(f"snapshot {s.id} ({snapshot_status(s, later[0] if later else None)})")
     print(f"  lot {s.lot_id}; processor {s.processor or '-'}; sensitometer {s.sensitometer or '-'}; "
           f"operator {s.operator or '-'}")
     print(f"  exposed {s.exposed_on or '-'}; processed {s.processed_on or '-'}; scanned {s.scanned_on or '-'}")

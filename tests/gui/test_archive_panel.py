@@ -150,7 +150,7 @@ def test_the_revision_chain_is_shown_and_each_version_opens(qtbot, panel: Archiv
     with qtbot.waitSignal(panel.snapshot_opened, timeout=5000) as opened:
         click_row(qtbot, history, 0, double=True)
     assert opened.args == [chain[0].id]
-    assert panel.view.provenance_value("Status") == f"corrected by snapshot {revision.id}"
+    assert panel.view.provenance_value("Status") == f"revised by snapshot {revision.id}"
     assert panel.view.value_of("speed_log_exposure") == chain[0].figures.speed_log_exposure
 
 

@@ -36,6 +36,7 @@ from PySide6.QtWidgets import (
 
 from stripscan import CAUTION
 from stripscan.archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary, StepReadings
+from stripscan.archive.records import snapshot_status
 from stripscan.core.records import Analysis
 from stripscan.core.curve import strip_curve
 from stripscan.core.curve_marks import CURVE_MARKS
@@ -48,7 +49,7 @@ from stripscan.gui.views.tables import STEP_COLUMNS, figure_rows, step_columns, 
 from stripscan.gui.tasks import TaskRunner
 from stripscan.gui.views.trend_view import TrendView
 
-__all__ = ["ArchivePanel", "SnapshotView", "SnapshotRecord", "read_snapshot", "provenance_rows", "status_text"]
+__all__ = ["ArchivePanel", "SnapshotView", "SnapshotRecord", "read_snapshot", "provenance_rows"]
 
 #: Item data role holding a snapshot's id in the tables.
 ID_ROLE = Qt.ItemDataRole.UserRole + 2
@@ -97,15 +98,6 @@ def read_snapshot(path: str | os.PathLike[str], snapshot_id: int) -> SnapshotRec
                               archive.get_calibration(digest) if digest else None)
 
 
-def status_text(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
-    """"current", "corrected by N" or "retired …" in plain words."""
-    if item.retired_at is not None:
-        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
-    if superseded_by is not None:
-        return f"corrected by snapshot {superseded_by}"
-    return "current"
-
-
 def _or_dash(value: object) -> str:
     return "—" if value in (None, "") else str(value)
 
@@ -115,7 +107,7 @@ def provenance_rows(record: SnapshotRecord) -> list[tuple[str, str]]:
     s, scan, cal = record.snapshot, record.snapshot.scan, record.calibration
     dpi = f"{scan.dpi:g} dpi" if scan.dpi else "resolution unknown"
     rows = [
-        ("Snapshot", str(s.id)), ("Status", status_text(s, record.superseded_by)),
+        ("Snapshot", str(s.id)), ("Status", snapshot_status(s, record.superseded_by)),
         ("Emulsion lot", s.lot_id), ("Processor", _or_dash(s.processor)),
         ("Sensitometer", _or_dash(s.sensitometer)), ("Operator", _or_dash(s.operator)),
         ("Exposed on", _or_dash(s.exposed_on)), ("Processed on", _or_dash(s.processed_on)),
@@ -331,7 +323,7 @@ class SnapshotView(QWidget):
             return
         s = record.snapshot
         self.title.setText(f"Snapshot {s.id}: lot {s.lot_id}, strip {s.strip.index}, {s.date} "
-                           f"({status_text(s, record.superseded_by)})")
+                           f"({snapshot_status(s, record.superseded_by)})")
 
     def _show_history(self, record: SnapshotRecord | None) -> None:
         chain = record.history if record is not None else []
@@ -339,7 +331,7 @@ class SnapshotView(QWidget):
         rows = []
         for s in chain:
             change = f"corrects {s.revises}: {s.revision_reason}" if s.revises is not None else "first reading"
-            cells = [_cell(str(s.id), s.id), _cell(s.created_at), _cell(change), _cell(status_text(s, later.get(s.id)))]
+            cells = [_cell(str(s.id), s.id), _cell(s.created_at), _cell(change), _cell(snapshot_status(s, later.get(s.id)))]
             if s.id == record.snapshot.id:  # type: ignore[union-attr]
                 for cell in cells:
                     font = cell.font()
@@ -543,7 +535,7 @@ class ArchivePanel(QWidget):
                       _cell(_or_dash(qc.mid_step), qc.mid_step, right=True),
                       _cell(_number(qc.density_difference, 3), qc.density_difference, right=True),
                       _cell(dd_steps, right=True)]
-            cells.append(_cell(status_text(s, s.superseded_by)))
+            cells.append(_cell(snapshot_status(s)))
             if not s.current:
                 for cell in cells:
                     cell.setForeground(pg.mkColor("#8a8a8a"))
