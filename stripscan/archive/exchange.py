@@ -28,6 +28,7 @@ from stripscan.archive.records import (
     Sensitometer,
     Snapshot,
     SnapshotNote,
+    snapshot_status,
 )
 from stripscan.archive.values import calibration_hash
 from stripscan.archive.qc_records import Crossover, QcEntry, QcEvent, QcSettings
@@ -210,13 +211,7 @@ def export_csv(archive: "Archive", path: Path, *, lot: str | None = None, proces
         writer = csv.writer(handle, lineterminator="\r\n")
         writer.writerow(header)
         for row in rows:
-            if row.retired_at is not None:
-                status = f"retired {row.retired_at[:10]}: {row.retired_reason}"
-            elif row.superseded_by is not None:
-                status = f"revised by {row.superseded_by}"
-            else:
-                status = "current"
             writer.writerow([_cell(v) for v in (
                 row.id, row.date, row.created_at, row.lot_id, row.processor, row.operator, row.strip_index,
-                *(getattr(row, name) for name in FIGURES), row.revises, status, row.scan_path)])
+                *(getattr(row, name) for name in FIGURES), row.revises, snapshot_status(row), row.scan_path)])
     return path.expanduser().absolute()

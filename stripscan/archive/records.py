@@ -54,6 +54,7 @@ __all__ = [
     "NewSnapshot",
     "Snapshot",
     "SnapshotSummary",
+    "snapshot_status",
     "SnapshotNote",
     "LotSummary",
     "TrendPoint",
@@ -416,6 +417,33 @@ class SnapshotSummary(PlainRecord):
 
 
 _SUMMARY_FIELDS = tuple(f.name for f in dataclasses.fields(SnapshotSummary))
+
+
+def snapshot_status(item: Snapshot | SnapshotSummary, superseded_by: int | None = None) -> str:
+    """A snapshot's status in the one wording the CLI, the window, CSV and reports share.
+
+    Parameters
+    ----------
+    item : Snapshot or SnapshotSummary
+    superseded_by : int, optional
+        Id of the revision that corrects ``item``; a summary's own
+        ``superseded_by`` is used when this is None (a full snapshot does
+        not know its later revisions: the caller looks them up).
+
+    Returns
+    -------
+    str
+        ``"current"``, ``"revised by snapshot N"`` or
+        ``"retired YYYY-MM-DD: reason"`` (a retirement wins: a retired
+        snapshot is out of use whatever revised it).
+    """
+    if item.retired_at is not None:
+        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
+    if superseded_by is None:
+        superseded_by = getattr(item, "superseded_by", None)
+    if superseded_by is not None:
+        return f"revised by snapshot {superseded_by}"
+    return "current"
 
 
 @dataclass(frozen=True)

@@ -20,7 +20,7 @@ from stripscan.core.records import warnings_of_strip
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
 from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.archive.errors import ArchiveError
-from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapshot, SnapshotSummary
+from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapshot, snapshot_status
 from stripscan.archive.values import check_day
 from stripscan.archive.service import Archive, default_archive_path
 from stripscan.cli.common import fail, guarded, open_from_args
@@ -55,14 +55,6 @@ def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
 def _figure(key: str, value: float | None, *, unit: str = "") -> str:
     """A curve figure at the decimals of the one figure table (as every report prints it)."""
     return _number(value, figure_digits(key), unit=unit)
-
-
-def _status(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
-    if item.retired_at is not None:
-        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
-    if superseded_by is not None:
-        return f"revised by {superseded_by}"
-    return "current"
 
 
 def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
@@ -185,7 +177,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
         table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
                       *(_figure(name, getattr(r, name)) for name in plain),
                       _figure("mid_density", qc.mid_density if qc else None), md_step,
-                      _figure("density_difference", qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+                      _figure("density_difference", qc.density_difference if qc else None), dd_steps, snapshot_status(r)])
     _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
                   _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
                   "status"], table)
@@ -211,7 +203,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         print(json.dumps(data, ensure_ascii=False, indent=1))
         return 0
     s, f = snapshot, snapshot.figures
-    print(f"snapshot {s.id} ({_status(s, later[0] if later else None)})")
+    print(f"snapshot {s.id} ({snapshot_status(s, later[0] if later else None)})")
     print(f"  lot {s.lot_id}; processor {s.processor or '-'}; sensitometer {s.sensitometer or '-'}; "
           f"operator {s.operator or '-'}")
     print(f"  exposed {s.exposed_on or '-'}; processed {s.processed_on or '-'}; scanned {s.scanned_on or '-'}")

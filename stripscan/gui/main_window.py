@@ -150,7 +150,7 @@ class MainWindow(QMainWindow):
         self.strips_dock = dock
         # The strips belong to the scan; the other pages get the whole width.
         self.workspace.pages.currentChanged.connect(lambda _: dock.setVisible(self.workspace.current_page() == "scan"))
-        for runner in (self.runner, self.workspace.runner):
+        for runner in (self.runner, *self.workspace.runners):
             runner.busy_changed.connect(self._work_changed)
 
         self.progress = TaskProgress(self.runner, 260)

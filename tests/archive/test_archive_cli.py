@@ -49,7 +49,7 @@ def test_list_shows_current_snapshots(stocked: Path, capsys: pytest.CaptureFixtu
     out = _lines(capsys.readouterr().out)
     rows = {line.split()[0]: line for line in out[1:-1]}
     assert set(rows) == {"2", "4"}
-    assert rows["2"].endswith("revised by 6")
+    assert rows["2"].endswith("revised by snapshot 6")
 
 
 def test_show_prints_figures_steps_chain_and_notes(stocked: Path, capsys: pytest.CaptureFixture[str]) -> None:
