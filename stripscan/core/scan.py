@@ -138,7 +138,7 @@ class Scan:
         k = np.clip(np.searchsorted(lut, s), 1, len(lut) - 1)
         return lut[k] - lut[k - 1]
 
-    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray, stride: int = 1) -> tuple[np.ndarray, np.ndarray]:
         """Signal (float32) and saturation flags of the pixels selected by a window mask.
 
         Parameters
@@ -147,15 +147,53 @@ class Scan:
             Image (row, col) of ``mask[0, 0]``.
         mask : ndarray of bool, shape (window_rows, window_cols)
             Lies inside the image.
+        stride : int
+            ``mask[i, j]`` stands for image pixel ``top_left + stride * (i, j)``.
 
         Returns
         -------
         signal, saturated : ndarray, shape (count,)
             In row-major order of the selected pixels.
         """
-        r0, c0 = top_left
-        pixels = self.raw[r0 : r0 + mask.shape[0], c0 : c0 + mask.shape[1]][mask]
+        pixels = self._window(top_left, mask, stride)[mask]
         return self.decode(pixels), self._flags(pixels)
+
+    def read_histogram(self, top_left: tuple[int, int], mask: np.ndarray,
+                       stride: int = 1) -> tuple[np.ndarray, np.ndarray, int] | None:
+        """The selected pixels as a histogram of their signal, for single-channel integer scans.
+
+        Parameters
+        ----------
+        top_left, mask, stride
+            As :meth:`read_masked`.
+
+        Returns
+        -------
+        levels : ndarray of float64, shape (k,)
+            Linear signal of each stored code that occurs, increasing (the
+            decoding table is increasing).
+        counts : ndarray of int64, shape (k,)
+            How many selected pixels hold each.
+        saturated : int
+            Selected pixels at the top or bottom code.
+
+        None for colour or floating-point scans, whose signal is not one code per pixel.
+        """
+        if self._lut is None or self._weights is not None:
+            return None
+        pixels = self._window(top_left, mask, stride)[mask]
+        if pixels.size == 0:
+            return np.zeros(0), np.zeros(0, dtype=np.int64), 0
+        low, high = int(pixels.min()), int(pixels.max())
+        # Counting from the lowest code keeps the table as short as the codes' span.
+        counts = np.bincount(np.subtract(pixels, low, dtype=np.intp), minlength=high - low + 1)
+        codes = np.flatnonzero(counts)
+        saturated = (int(counts[0]) if low == 0 else 0) + (int(counts[-1]) if high == self._top else 0)
+        return self._lut[codes + low].astype(np.float64), counts[codes].astype(np.int64), saturated
+
+    def _window(self, top_left: tuple[int, int], mask: np.ndarray, stride: int) -> np.ndarray:
+        r0, c0 = top_left
+        return self.raw[r0 : r0 + stride * mask.shape[0] : stride, c0 : c0 + stride * mask.shape[1] : stride]
 
     def _flags(self, pixels: np.ndarray) -> np.ndarray:
         """True where any used channel of stored pixels sits at the top or bottom code."""
