@@ -12,6 +12,7 @@ import dataclasses
 import hashlib
 import logging
 import os
+import sys
 import threading
 from pathlib import Path
 
@@ -312,10 +313,15 @@ def _sha256(path: Path) -> str:
 
 
 class _BackgroundHash:
-    """sha256 of a file computed on a worker thread (hashlib releases the GIL)."""
+    """sha256 of a file computed on a worker thread (hashlib releases the GIL).
 
-    def __init__(self, path: Path):
+    From the file itself, or from ``content``, the file's bytes already read
+    (then the file is read once, for both its pixels and its hash).
+    """
+
+    def __init__(self, path: Path, content: bytearray | None = None):
         self._path = path
+        self._content = content
         self._digest: str | None = None
         self._error: OSError | None = None
         self._thread = threading.Thread(target=self._run, name="stripscan-sha256", daemon=True)
@@ -323,9 +329,14 @@ class _BackgroundHash:
 
     def _run(self) -> None:
         try:
-            self._digest = _sha256(self._path)
+            if self._content is not None:
+                self._digest = hashlib.sha256(self._content).hexdigest()
+            else:
+                self._digest = _sha256(self._path)
         except OSError as exc:
             self._error = exc
+        finally:
+            self._content = None  # the pixels may outlive the hash; the buffer is theirs now
 
     def result(self) -> str:
         self._thread.join()
@@ -462,7 +473,47 @@ def _apply_palette(path: Path, data: np.ndarray, colormap: np.ndarray | None) ->
     return table[data]
 
 
-def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray, float | None, bool]:
+def _read_whole(path: Path) -> bytearray:
+    """Every byte of a file, read into one buffer (the read releases the GIL)."""
+    size = path.stat().st_size
+    content = bytearray(size)
+    view = memoryview(content)
+    done = 0
+    with open(path, "rb", buffering=0) as fh:
+        while done < size:
+            got = fh.readinto(view[done:])
+            if not got:
+                break
+            done += got
+        more = fh.read(1)
+    if done != size or more:
+        raise ScanError(f"{path}: the file changed while it was read; read it again when it is complete")
+    return content
+
+
+def _plain_pixels(path: Path, page, byteorder: str, start_hash) -> np.ndarray | None:
+    """An uncompressed page stored in one piece, read with its file in one pass; None for any other page.
+
+    The whole file is read once into memory; its hash is started on that
+    buffer and the pixels are a view into it, so the file is neither read
+    twice nor held twice.
+    """
+    dtype = np.dtype(page.dtype) if page.dtype is not None else None
+    if (dtype is None or dtype not in (np.uint8, np.uint16) or int(page.compression) != 1
+            or int(page.predictor or 1) != 1 or int(page.fillorder or 1) != 1 or not page.is_contiguous
+            or (int(page.samplesperpixel) > 1 and int(page.planarconfig) != 1)
+            or (dtype.itemsize > 1 and byteorder != "<") or sys.byteorder != "little"):
+        return None
+    offset, count = int(page.dataoffsets[0]), int(np.prod(page.shape))
+    content = _read_whole(path)
+    if offset < 0 or offset + count * dtype.itemsize > len(content):
+        return None  # a damaged file: tifffile's own reader names the problem
+    start_hash(content)
+    return np.frombuffer(content, dtype=dtype.newbyteorder("<"), count=count, offset=offset).reshape(page.shape)
+
+
+def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS,
+               start_hash=None) -> tuple[np.ndarray, float | None, bool]:
     """Pixels and resolution of a TIFF file's one image.
 
     Parameters
@@ -471,6 +522,11 @@ def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray,
         The TIFF file.
     limit : int
         Largest image read, pixels; checked from the header before decoding.
+    start_hash : callable, optional
+        Called once, before the pixels are decoded, to start hashing the
+        file: with the file's bytes when they were read whole (an
+        uncompressed page, whose pixels are then a view into them), else
+        with nothing.
 
     Returns
     -------
@@ -504,12 +560,15 @@ def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray,
             raise ScanError(f"{path}: the image is stored as {_COLOUR_MODELS[photometric]}; "
                             "scan in grey or RGB")
         dpi = _tiff_dpi(page)
-        # A bounded pass changes only how much is read at once: an
-        # uncompressed contiguous page is still read straight into the output
-        # in one call, and every compression, predictor and tiled, striped,
-        # chunky or planar layout still goes through tifffile's own segment
-        # decoder, so shape, dtype and error messages are asarray()'s.
-        data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
+        start_hash = start_hash or (lambda content=None: None)
+        data = _plain_pixels(path, page, tif.byteorder, start_hash)
+        if data is None:
+            start_hash()
+            # A bounded pass changes only how much is read at once: every
+            # compression, predictor and tiled, striped, chunky or planar
+            # layout still goes through tifffile's own segment decoder, so
+            # shape, dtype and error messages are asarray()'s.
+            data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
         planar_rgb = data.ndim == 3 and data.shape[0] in (3, 4) and data.shape[-1] not in (3, 4)
         colormap = page.colormap if photometric == _PALETTE else None
     if planar_rgb:
@@ -603,25 +662,36 @@ def load_scan(
     # Hash the file on a second thread while it is decoded: hashlib releases
     # the GIL, and for an uncompressed page the hash costs more than the read.
     # The hash is joined only when the scan's provenance is first asked for,
-    # so it also overlaps the analysis.
-    hasher = _BackgroundHash(path)
+    # so it also overlaps the analysis.  An uncompressed TIFF page is read
+    # with its file in one pass and hashed from that buffer.
+    hashing: list[_BackgroundHash] = []
+
+    def start_hash(content: bytearray | None = None) -> None:
+        if not hashing:
+            hashing.append(_BackgroundHash(path, content))
+
     try:
-        return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma, limit=limit)
+        scan = _decode_file(path, start_hash, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma, limit=limit)
     except BaseException:
-        hasher.result_quietly()
+        for hasher in hashing:
+            hasher.result_quietly()
         raise
+    start_hash()  # a reader that failed to start it
+    scan._pending_hash = hashing[0]
+    return scan
 
 
 def _decode_file(
-    path: Path, hasher: "_BackgroundHash", *, dpi: float | None, channel: str, decoding: str, gamma: float | None,
+    path: Path, start_hash, *, dpi: float | None, channel: str, decoding: str, gamma: float | None,
     limit: int = DEFAULT_MAX_PIXELS,
 ) -> Scan:
     suffix = path.suffix.lower()
     messages = _TIFF_LOG.collect()
     try:
         if suffix in (".tif", ".tiff"):
-            data, file_dpi, _ = _read_tiff(path, limit)
+            data, file_dpi, _ = _read_tiff(path, limit, start_hash)
         else:
+            start_hash()
             data, file_dpi = _read_other(path, limit)
     except ScanError:
         raise
@@ -703,4 +773,4 @@ def _decode_file(
         channel=used,
         decoding=decoding_used,
     )
-    return Scan(data, info, lut, weights, pending_hash=hasher)
+    return Scan(data, info, lut, weights)
