@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .numerics import bilinear, gaussian_smooth_1d, label, object_boxes
+from .numerics import bilinear, gaussian_smooth_1d, label, percentile
 from .records import StripGeometry
 
 __all__ = [
@@ -110,7 +110,7 @@ def _platen_level(working: np.ndarray) -> float:
     """Signal of the open platen: the bright end of the histogram."""
     # A strided subset is plenty for a percentile of a smooth histogram.
     step = max(1, int(np.sqrt(working.size / 100_000)))
-    level = float(np.percentile(working[::step, ::step], 99.0))
+    level = percentile(working[::step, ::step], 99.0)
     return level if level > 0 else 1.0
 
 
@@ -320,7 +320,7 @@ def _piece_geometry(
     # film (or the piece was trimmed there); exposed film right at the
     # piece's end, together with the scan's edge, means the end is cut off.
     tip = profile[max(int(u_hi) - 2, 0) : int(u_hi) + 1]
-    dense_tip = float(np.median(tip)) - float(np.percentile(profile[span], 5)) > 0.3
+    dense_tip = float(np.median(tip)) - percentile(profile[span], 5.0) > 0.3
     smooth = gaussian_smooth_1d(profile, 1.0)
     grad = np.gradient(smooth)
     end_index = int(np.argmin(grad))
@@ -463,18 +463,18 @@ def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: Loc
     # holes in film are film: background areas that do not reach the scan's
     # border are filled.
     film = _open_3x3(film)
-    background, n_background = label(~film)
+    background, n_background, _ = label(~film)
     if n_background:
         # A lookup by label is much cheaper than np.isin over the image.
         enclosed = np.ones(n_background + 1, dtype=bool)
         enclosed[np.concatenate((background[0], background[-1], background[:, 0], background[:, -1]))] = False
         film |= enclosed[background]
-    labels, count = label(film)
+    labels, count, boxes = label(film)
     if count == 0:
         raise LocateError("no film found on the scan: nothing is denser than the open platen")
     found: list[tuple[tuple[float, float], FoundStrip]] = []
     min_area = (10.0 / pixel_mm) * (4.0 / pixel_mm)
-    for label_id, box in enumerate(object_boxes(labels, count), start=1):
+    for label_id, box in enumerate(boxes, start=1):
         # The bounding box's longer side is the piece's largest extent along an axis.
         spans = (box[0].stop - box[0].start - 1, box[1].stop - box[1].start - 1)
         if max(spans) * pixel_mm < 20.0 or (spans[0] + 1) * (spans[1] + 1) < min_area:

@@ -20,7 +20,7 @@ __all__ = [
     "pchip_slopes",
     "spline_slopes",
     "label",
-    "object_boxes",
+    "percentile",
     "bilinear",
     "gaussian_smooth_1d",
     "fast_fft_length",
@@ -185,39 +185,41 @@ def spline_slopes(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     return np.linalg.solve(a, b)
 
 
-def label(mask: np.ndarray) -> tuple[np.ndarray, int]:
+def label(mask: np.ndarray) -> tuple[np.ndarray, int, list[tuple[slice, slice]]]:
     """Connected areas of a 2-D boolean image, neighbours sharing an edge (4-connected).
 
-    The same labels as ``scipy.ndimage.label(mask)``: 0 outside, 1..count
-    numbered in the order their first pixel comes in row-major order.
-    Works on runs of True along rows, so its cost follows the runs, not the
-    pixels.
+    The same labels as ``scipy.ndimage.label(mask)``, and the same boxes as
+    ``scipy.ndimage.find_objects`` of them: 0 outside, 1..count numbered in
+    the order their first pixel comes in row-major order.  Works on runs of
+    True along rows, so its cost follows the runs, not the pixels.
 
     Returns
     -------
     labels : ndarray of int32, shape of ``mask``
     count : int
+    boxes : list of (slice, slice)
+        Bounding box (rows, cols) of each label 1..count.
     """
     mask = np.asarray(mask, dtype=bool)
     rows, cols = mask.shape
-    padded = np.zeros((rows, cols + 2), dtype=np.int8)
+    padded = np.zeros((rows, cols + 2), dtype=bool)
     padded[:, 1:-1] = mask
-    edges = np.diff(padded, axis=1)  # +1 where a run starts, -1 one past its end
-    run_row, run_start = np.nonzero(edges == 1)
-    end_row, run_end = np.nonzero(edges == -1)
+    # Along each row the runs of True start and end where the padded row
+    # changes: in row-major order, a start, its end, the next start ...
+    changes = np.flatnonzero(padded[:, 1:] != padded[:, :-1])
+    width = cols + 1
+    run_row, run_start = np.divmod(changes[0::2], width)
+    run_end = changes[1::2] - run_row * width  # one past the run's last column
     n = run_row.size
-    labels = np.zeros((rows, cols + 1), dtype=np.int32)
+    labels = np.zeros((rows, width), dtype=np.int32)
     if n == 0:
-        return labels[:, :cols], 0
+        return labels[:, :cols], 0, []
     # Runs of neighbouring rows touch when their column spans overlap;
     # the runs of one row are sorted and apart, so those touching a run of
     # the next row are a contiguous range, found by bisection on row-major keys.
-    width = cols + 1
-    key_start = run_row * width + run_start
-    key_end = end_row * width + run_end
     above = (run_row - 1) * width
-    first = np.searchsorted(key_end, above + run_start, side="right")
-    stop = np.searchsorted(key_start, above + run_end, side="left")
+    first = np.searchsorted(changes[1::2], above + run_start, side="right")
+    stop = np.searchsorted(changes[0::2], above + run_end, side="left")
     count = np.maximum(stop - first, 0)
     count[run_row == 0] = 0
     lower = np.repeat(np.arange(n), count)
@@ -237,30 +239,42 @@ def label(mask: np.ndarray) -> tuple[np.ndarray, int]:
             if np.array_equal(jumped, parent):
                 break
             parent = jumped
-    roots, run_label = np.unique(parent, return_inverse=True)
-    run_label = (run_label + 1).astype(np.int32)
+    # Areas numbered by their first run, which is also their first pixel.
+    is_first = parent == np.arange(n)
+    number = np.cumsum(is_first, dtype=np.int32)
+    run_label = number[parent]
+    total = int(number[-1])
     # Paint: the label at each run's start, minus it one past its end, summed along the row.
     labels[run_row, run_start] = run_label
-    labels[end_row, run_end] = -run_label
+    labels[run_row, run_end] = -run_label
     np.cumsum(labels, axis=1, out=labels)
-    return labels[:, :cols], int(roots.size)
+    index = run_label - 1
+    bounds = np.empty((4, total), dtype=np.intp)
+    bounds[0], bounds[1], bounds[2:] = rows, cols, -1
+    np.minimum.at(bounds[0], index, run_row)
+    np.minimum.at(bounds[1], index, run_start)
+    np.maximum.at(bounds[2], index, run_row)
+    np.maximum.at(bounds[3], index, run_end - 1)
+    boxes = [(slice(int(r0), int(r1) + 1), slice(int(c0), int(c1) + 1)) for r0, c0, r1, c1 in bounds.T]
+    return labels[:, :cols], total, boxes
 
 
-def object_boxes(labels: np.ndarray, count: int) -> list[tuple[slice, slice]]:
-    """Bounding box of each label 1..count as (row slice, col slice), like ``scipy.ndimage.find_objects``.
+def percentile(values: np.ndarray, q: float) -> float:
+    """The ``q``-th percentile of an array's values, interpolated linearly between the nearest two.
 
-    Every label in 1..count must occur (as :func:`label` makes them).
+    The same as ``np.percentile(values, q)`` (its default method), by one
+    selection: np.percentile's general code also loads numpy's masked-array
+    module, a tenth of a second's start-up on its own here.
     """
-    rr, cc = np.nonzero(labels)
-    which = labels[rr, cc] - 1
-    bounds = np.empty((4, count), dtype=np.intp)
-    bounds[0], bounds[1] = labels.shape[0], labels.shape[1]
-    bounds[2:] = -1
-    np.minimum.at(bounds[0], which, rr)
-    np.minimum.at(bounds[1], which, cc)
-    np.maximum.at(bounds[2], which, rr)
-    np.maximum.at(bounds[3], which, cc)
-    return [(slice(int(r0), int(r1) + 1), slice(int(c0), int(c1) + 1)) for r0, c0, r1, c1 in bounds.T]
+    flat = np.ravel(values)
+    index = q / 100.0 * (flat.size - 1)
+    below = int(np.floor(index))
+    above = min(below + 1, flat.size - 1)
+    chosen = np.partition(flat, (below, above))
+    a, b = float(chosen[below]), float(chosen[above])
+    t = index - below
+    # numpy's own interpolation, exact at both ends.
+    return a + (b - a) * t if t < 0.5 else b - (b - a) * (1.0 - t)
 
 
 def bilinear(image: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
@@ -271,14 +285,20 @@ def bilinear(image: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarra
     shape and the image's floating-point type.
     """
     n_rows, n_cols = image.shape
+    if n_rows < 2 or n_cols < 2:  # a line or a point: repeat it to a 2 x 2 image, the same values
+        image = np.repeat(np.repeat(image, 2 if n_rows < 2 else 1, axis=0), 2 if n_cols < 2 else 1, axis=1)
+        n_rows, n_cols = image.shape
     r = np.clip(np.asarray(rows, dtype=np.float64), 0.0, n_rows - 1.0)
     c = np.clip(np.asarray(cols, dtype=np.float64), 0.0, n_cols - 1.0)
-    r0 = np.minimum(r.astype(np.intp), max(n_rows - 2, 0))
-    c0 = np.minimum(c.astype(np.intp), max(n_cols - 2, 0))
+    # The cell's top-left pixel; a position on the last row or column uses the cell before it (weight 1 on its edge).
+    r0 = np.minimum(r.astype(np.intp), n_rows - 2)
+    c0 = np.minimum(c.astype(np.intp), n_cols - 2)
     fr, fc = r - r0, c - c0
-    r1, c1 = np.minimum(r0 + 1, n_rows - 1), np.minimum(c0 + 1, n_cols - 1)
-    top = image[r0, c0] * (1.0 - fc) + image[r0, c1] * fc
-    bottom = image[r1, c0] * (1.0 - fc) + image[r1, c1] * fc
+    flat = np.ravel(image)
+    corner = r0 * n_cols + c0
+    top = flat[corner] * (1.0 - fc) + flat[corner + 1] * fc
+    corner += n_cols
+    bottom = flat[corner] * (1.0 - fc) + flat[corner + 1] * fc
     out = top * (1.0 - fr) + bottom * fr
     kind = image.dtype if image.dtype.kind == "f" else np.float64
     return out.astype(kind, copy=False)

@@ -30,6 +30,7 @@ from .calibration import (
 from .checks import reading_notes
 from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
 from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
+from .numerics import percentile
 from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
 from .sample import read_area, read_strip
 from .scan import Scan, load_scan
@@ -216,10 +217,10 @@ def direct_mode_for(
             raise AnalysisError(f"{info.path}: the clear area {clear_area} holds too few pixels of the scan")
         i0 = float(area.mean())
     else:
-        i0 = float(np.percentile(sample, 99.0))
+        i0 = percentile(sample, 99.0)
     if i0 <= dark:
         raise AnalysisError(f"{info.path}: no open platen or clear area is bright enough to serve as I0")
-    darkest = sample[sample <= np.percentile(sample, 0.5)]
+    darkest = sample[sample <= percentile(sample, 0.5)]
     floor_sd = float(darkest.std()) if darkest.size > 1 else 0.0
     return DirectMode(i0=i0, dark=dark, floor_sd=floor_sd)
 

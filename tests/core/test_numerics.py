@@ -14,9 +14,9 @@ from stripscan.core.numerics import (
     fast_fft_length,
     gaussian_smooth_1d,
     label,
-    object_boxes,
     pchip,
     pchip_slopes,
+    percentile,
     spline_slopes,
 )
 
@@ -82,14 +82,14 @@ def test_label_and_boxes_match_scipy():
         mask[40:100, 30:34] = True  # a long area across many rows
         mask[0, :] = True  # one touching the first row
         expected, count = ndimage.label(mask)  # scipy reference
-        labels, n = label(mask)
+        labels, n, boxes = label(mask)
         assert n == count
         assert np.array_equal(labels, expected)
-        assert object_boxes(labels, n) == ndimage.find_objects(expected)  # scipy reference
+        assert boxes == ndimage.find_objects(expected)  # scipy reference
     spiral = np.zeros((9, 9), bool)  # one area whose runs join only through a long chain
     spiral[0, :] = spiral[:, 8] = spiral[8, :] = spiral[2:, 0] = spiral[2, :7] = spiral[2:7, 6] = spiral[6, 2:7] = True
     assert np.array_equal(label(spiral)[0], ndimage.label(spiral)[0])
-    assert label(np.zeros((4, 5), bool))[1] == 0
+    assert label(np.zeros((4, 5), bool))[1:] == (0, [])
 
 
 def test_bilinear_matches_scipy():
@@ -117,3 +117,18 @@ def test_gaussian_smooth_matches_scipy(sigma):
 def test_fast_fft_length_matches_scipy():
     for n in [*range(1, 300), 1021, 4097, 65537]:
         assert fast_fft_length(n) == fft.next_fast_len(n, real=True), n  # scipy reference
+
+
+def test_bilinear_on_a_line_of_pixels_matches_scipy():
+    line = np.linspace(0.0, 1.0, 7).reshape(1, 7)
+    rows, cols = np.array([-1.0, 0.0, 0.4]), np.array([0.5, 3.25, 9.0])
+    expected = ndimage.map_coordinates(line, [rows, cols], order=1, mode="nearest")  # scipy reference
+    assert bilinear(line, rows, cols) == pytest.approx(expected, abs=1e-12)
+    assert bilinear(line.T, cols, rows) == pytest.approx(expected, abs=1e-12)
+
+
+@pytest.mark.parametrize("q", [0.0, 0.5, 5.0, 37.3, 50.0, 95.0, 99.0, 100.0])
+def test_percentile_matches_numpy(q):
+    rng = np.random.default_rng(int(q * 10))
+    for values in (rng.normal(size=1001), rng.random((33, 17)).astype(np.float32), np.array([3.0, 1.0])):
+        assert percentile(values, q) == pytest.approx(float(np.percentile(values, q)), rel=1e-6)  # numpy reference
