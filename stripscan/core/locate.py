@@ -25,7 +25,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .numerics import bilinear, gaussian_smooth_1d, label, percentile
+from .numerics import bilinear, gaussian_smooth_1d, label, median, percentile
 from .records import StripGeometry
 
 __all__ = [
@@ -306,7 +306,7 @@ def _piece_geometry(
     band_mid = 0.5 * (band[0] + band[1])
     half = 0.5 * (band[1] - band[0])
     inner = slice(int(round(band_mid - 0.6 * half)), int(round(band_mid + 0.6 * half)) + 1)
-    profile = np.median(rect[inner, :], axis=0)
+    profile = median(rect[inner, :], axis=0)
 
     # Dense end: density grows towards it.
     span = slice(int(u_lo), int(u_hi) + 1)
@@ -320,7 +320,7 @@ def _piece_geometry(
     # film (or the piece was trimmed there); exposed film right at the
     # piece's end, together with the scan's edge, means the end is cut off.
     tip = profile[max(int(u_hi) - 2, 0) : int(u_hi) + 1]
-    dense_tip = float(np.median(tip)) - percentile(profile[span], 5.0) > 0.3
+    dense_tip = median(tip) - percentile(profile[span], 5.0) > 0.3
     smooth = gaussian_smooth_1d(profile, 1.0)
     grad = np.gradient(smooth)
     end_index = int(np.argmin(grad))
@@ -334,7 +334,7 @@ def _piece_geometry(
     # An edge counts when it stands out of the profile's noise and is at
     # least a density step of about 0.01 (what a densitometer resolves; a
     # Gaussian-smoothed edge of height h peaks near 0.4 h per pixel).
-    noise = max(1.4826 * np.median(np.abs(grad - np.median(grad))), 0.001)
+    noise = max(1.4826 * median(np.abs(grad - median(grad))), 0.001)
     room = (end - u_lo) / pitch
     # Visible steps: up to the lightest clear step edge.  Flat runs (the
     # shoulder near Dmax, the toe at base+fog) show no edges, so do not stop

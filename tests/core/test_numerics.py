@@ -15,6 +15,7 @@ from stripscan.core.numerics import (
     gaussian_smooth_1d,
     label,
     pchip,
+    median,
     pchip_slopes,
     percentile,
     spline_slopes,
@@ -132,3 +133,15 @@ def test_percentile_matches_numpy(q):
     rng = np.random.default_rng(int(q * 10))
     for values in (rng.normal(size=1001), rng.random((33, 17)).astype(np.float32), np.array([3.0, 1.0])):
         assert percentile(values, q) == pytest.approx(float(np.percentile(values, q)), rel=1e-6)  # numpy reference
+
+
+def test_median_matches_numpy():
+    rng = np.random.default_rng(12)
+    for shape in [(7,), (8,), (1,), (5, 9), (6, 4)]:
+        values = rng.normal(size=shape).astype(np.float32)
+        assert median(values) == pytest.approx(float(np.median(values)), rel=1e-6)  # numpy reference
+        if len(shape) == 2:
+            for axis in (0, 1):
+                expected = np.median(values, axis=axis)  # numpy reference
+                got = median(values, axis=axis)
+                assert got.dtype == expected.dtype and np.allclose(got, expected, rtol=1e-6)
