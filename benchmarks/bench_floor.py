@@ -12,6 +12,9 @@ processes of this interpreter, taken in turn so that all see the same load:
 * ``python -m stripscan analyze PAGE --json`` (no calibration), the
   checkout's ``stripscan`` first on the path.
 
+Both keep their compiled bytecode between runs, as installed packages do
+(see :func:`_environment`); one round is run first and not counted.
+
 It prints, measured in the same run:
 
 * the analysis ÷ the floor at 600 dpi, each the fastest of ``--runs``
@@ -80,8 +83,18 @@ class FloorTiming:
                 / (self.median("floor", 1200.0) - self.median("floor", 600.0)))
 
 
-def _environment() -> dict[str, str]:
-    return dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, (str(ROOT), os.environ.get("PYTHONPATH")))))
+def _environment(pycache: Path) -> dict[str, str]:
+    """The checkout first on the path; compiled bytecode kept between processes, as an installed package's is.
+
+    Some environments (this one among them) set PYTHONDONTWRITEBYTECODE,
+    which would compile every stripscan module again in every process, a
+    cost no installed copy pays; the bytecode goes to the run's own
+    temporary folder, for both processes alike.
+    """
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, (str(ROOT), os.environ.get("PYTHONPATH")))),
+               PYTHONPYCACHEPREFIX=str(pycache))
+    env.pop("PYTHONDONTWRITEBYTECODE", None)
+    return env
 
 
 def _timed(command: Sequence[str], env: dict[str, str]) -> tuple[float, int]:
@@ -107,9 +120,9 @@ def _page(folder: Path, dpi: float, channels: int = 1) -> tuple[Path, int, tuple
 def measure(dpis: Sequence[float] = (600.0, 1200.0), runs: int = 5, rgb: bool = True,
             progress: Callable[[str], None] = lambda _: None) -> FloorTiming:
     """Time the floor and the analysis at each resolution, ``runs`` rounds taken in turn; then the RGB page's memory."""
-    env = _environment()
     timing = FloorTiming(runs)
     with tempfile.TemporaryDirectory() as tmp:
+        env = _environment(Path(tmp) / "pycache")
         pages = {}
         for dpi in dpis:
             pages[dpi], _, timing.pixels[dpi] = _page(Path(tmp), dpi)

@@ -221,6 +221,15 @@ class Scan:
         rows, cols = (self.shape[0] // factor) * factor, (self.shape[1] // factor) * factor
         half = factor // 2
         taps = (half - 1, half) if factor % 2 == 0 else (half - 1, half, half + 1)
+        if self._linear_full is not None and self._weights is None:
+            # Linear grey codes: added straight into one float32 sum, scaled once
+            # (the same values to float32 rounding, without a temporary per tap).
+            total = np.zeros((rows // factor, cols // factor), dtype=np.float32)
+            for dr in taps:
+                for dc in taps:
+                    np.add(total, self.raw[dr:rows:factor, dc:cols:factor], out=total, casting="unsafe")
+            total *= np.float32(1.0) / (self._linear_full * np.float32(len(taps) ** 2))
+            return total
         total = None
         for dr in taps:
             for dc in taps:
@@ -319,7 +328,7 @@ class _BackgroundHash:
     (then the file is read once, for both its pixels and its hash).
     """
 
-    def __init__(self, path: Path, content: bytearray | None = None):
+    def __init__(self, path: Path, content: np.ndarray | None = None):
         self._path = path
         self._content = content
         self._digest: str | None = None
@@ -473,10 +482,11 @@ def _apply_palette(path: Path, data: np.ndarray, colormap: np.ndarray | None) ->
     return table[data]
 
 
-def _read_whole(path: Path) -> bytearray:
-    """Every byte of a file, read into one buffer (the read releases the GIL)."""
+def _read_whole(path: Path) -> np.ndarray:
+    """Every byte of a file, read into one uint8 buffer (the read releases the GIL)."""
     size = path.stat().st_size
-    content = bytearray(size)
+    # Not a bytearray: that would first write zeros over the whole page.
+    content = np.empty(size, dtype=np.uint8)
     view = memoryview(content)
     done = 0
     with open(path, "rb", buffering=0) as fh:
@@ -666,7 +676,7 @@ def load_scan(
     # with its file in one pass and hashed from that buffer.
     hashing: list[_BackgroundHash] = []
 
-    def start_hash(content: bytearray | None = None) -> None:
+    def start_hash(content: np.ndarray | None = None) -> None:
         if not hashing:
             hashing.append(_BackgroundHash(path, content))
 
