@@ -239,17 +239,38 @@ class Scan:
 
     @property
     def signal(self) -> np.ndarray:
-        """The whole image as linear signal, float32 (rows, cols); decoded once."""
+        """The whole image as linear signal, float32 (rows, cols); decoded once, in slabs of rows.
+
+        A colour page is decoded slab by slab into the one-channel output: a
+        1200-dpi A4 RGB page never exists as float channels (1.7 GB).
+        """
         if self._signal is None:
-            self._signal = np.ascontiguousarray(self.decode(self.raw), dtype=np.float32)
+            out = np.empty(self.shape, dtype=np.float32)
+            for rows in _slabs(self.raw):
+                out[rows] = self.decode(self.raw[rows])
+            self._signal = out
         return self._signal
 
     @property
     def saturated(self) -> np.ndarray:
         """Pixels at the top or bottom code of any channel used, bool (rows, cols)."""
         if self._saturated is None:
-            self._saturated = self._flags(self.raw)
+            out = np.empty(self.shape, dtype=bool)
+            for rows in _slabs(self.raw):
+                out[rows] = self._flags(self.raw[rows])
+            self._saturated = out
         return self._saturated
+
+
+#: Values (pixels x channels) decoded at once when a whole image is decoded.
+_SLAB_VALUES = 1 << 22
+
+
+def _slabs(image: np.ndarray) -> list[slice]:
+    """Slices of rows that each hold about :data:`_SLAB_VALUES` values of ``image``."""
+    per_row = max(1, int(np.prod(image.shape[1:])))
+    rows = max(1, _SLAB_VALUES // per_row)
+    return [slice(r, r + rows) for r in range(0, image.shape[0], rows)]
 
 
 def decode_srgb(encoded: np.ndarray) -> np.ndarray:
@@ -310,7 +331,11 @@ def reduce_channels(linear: np.ndarray, rule: str = "auto") -> tuple[np.ndarray,
     if weights is None:
         single = linear if linear.ndim == 2 else linear[..., 0]
         return single.astype(np.float32, copy=False), used
-    return (linear[..., :3].astype(np.float32, copy=False) @ weights).astype(np.float32, copy=False), used
+    # Slab by slab into the float32 output: no float copy of all the channels at once.
+    out = np.empty(linear.shape[:2], dtype=np.float32)
+    for rows in _slabs(linear):
+        out[rows] = np.einsum("...c,c->...", linear[rows, :, :3].astype(np.float32, copy=False), weights)
+    return out, used
 
 
 def _sha256(path: Path) -> str:

@@ -254,3 +254,31 @@ def test_a_scan_read_once_keeps_no_second_copy(tmp_path):
     finally:
         tracemalloc.stop()
     assert peak < 1.2 * image.nbytes
+
+
+def test_colour_page_is_decoded_in_slabs_without_float_channels(tmp_path, monkeypatch):
+    from stripscan.core import scan as scan_module
+
+    rng = np.random.default_rng(6)
+    image = rng.integers(0, 65536, size=(600, 500, 3), dtype=np.uint16)
+    image[10, 10] = 65535
+    path = tmp_path / "rgb.tif"
+    tifffile.imwrite(path, image, photometric="rgb")
+    monkeypatch.setattr(scan_module, "_SLAB_VALUES", 30_000)  # many slabs even on a small page
+    scan = load_scan(path)
+    expected = image.astype(np.float64).mean(axis=2) / 65535.0  # the mean of the channels ("auto")
+    gc.collect()
+    tracemalloc.start()
+    try:
+        signal = scan.signal
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert signal.dtype == np.float32 and signal.shape == (600, 500)
+    np.testing.assert_allclose(signal, expected, rtol=1e-6, atol=1e-7)
+    # The one-channel output and a slab besides it; decoding the whole page at once held its three
+    # float channels too (four times the output).
+    assert peak < 1.3 * signal.nbytes
+    assert scan.saturated[10, 10] and scan.saturated.sum() == np.any((image == 0) | (image == 65535), axis=2).sum()
+    reduced, _ = reduce_channels(image.astype(np.float32) / 65535.0, "mean")
+    np.testing.assert_allclose(reduced, expected, rtol=1e-6, atol=1e-7)
