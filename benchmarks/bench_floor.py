@@ -44,7 +44,7 @@ from pathlib import Path
 
 from bench_large import A4, a4_layout
 
-from stripscan.core.simulate import ScannerModel, simulate_scan, write_tiff
+from stripscan.sim.simulate import ScannerModel, simulate_scan, write_tiff
 
 ROOT = Path(__file__).resolve().parent.parent
 

@@ -37,9 +37,9 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from .numerics import pchip
-from .records import StepReading, clean_float
-from .straylight import StrayLight
+from stripscan.core.numerics import pchip
+from stripscan.core.records import StepReading, clean_float
+from stripscan.core.straylight import StrayLight
 
 __all__ = [
     "CalibrationError",

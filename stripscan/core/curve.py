@@ -28,11 +28,11 @@ from typing import Sequence
 
 import numpy as np
 
-from .calibration import ACCURACY_GOAL
-from .figure_settings import FigureSettings
-from .numerics import HermiteCubic, spline_slopes
-from .qc import choose_qc_steps, closest_step
-from .records import CurveFigures, StripResult
+from stripscan.core.calibration import ACCURACY_GOAL
+from stripscan.core.figure_settings import FigureSettings
+from stripscan.core.numerics import HermiteCubic, spline_slopes
+from stripscan.core.qc.rules import choose_qc_steps, closest_step
+from stripscan.core.records import CurveFigures, StripResult
 
 __all__ = [
     "FigureSettings",

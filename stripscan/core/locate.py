@@ -25,8 +25,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .numerics import bilinear, gaussian_smooth_1d, label, median, percentile
-from .records import StripGeometry
+from stripscan.core.numerics import bilinear, gaussian_smooth_1d, label, median, percentile
+from stripscan.core.records import StripGeometry
 
 __all__ = [
     "LocateError",

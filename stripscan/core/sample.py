@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from .records import StepReading, StripGeometry
+from stripscan.core.records import StepReading, StripGeometry
 
 __all__ = ["robust_mean", "robust_mean_of_counts", "read_area", "read_strip", "box_pixels", "box_mask",
            "MAX_AREA_PIXELS", "LATTICE_SEM_OD", "lattice_stride"]

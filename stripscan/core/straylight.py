@@ -54,7 +54,7 @@ from typing import Any, Callable, Sequence
 
 import numpy as np
 
-from .numerics import bilinear, fast_fft_length
+from stripscan.core.numerics import bilinear, fast_fft_length
 
 __all__ = [
     "BASIS_SIGMA_MM",
