@@ -36,9 +36,9 @@ from pathlib import Path
 from typing import Any, Sequence
 
 import numpy as np
-from scipy.interpolate import PchipInterpolator
 
 from stripscan._shared import atomic
+from stripscan.core.numerics import pchip
 from stripscan.core.records import StepReading, clean_float
 from stripscan.core.straylight import StrayLight
 
@@ -464,9 +464,9 @@ class Calibration:
     _deriv: Any = field(default=None, compare=False, repr=False)
 
     def __post_init__(self) -> None:
-        interp = PchipInterpolator(np.asarray(self.log_signal), np.asarray(self.od), extrapolate=False)
+        interp = pchip(self.log_signal, self.od, extrapolate=False)
         object.__setattr__(self, "_interp", interp)
-        object.__setattr__(self, "_deriv", interp.derivative())
+        object.__setattr__(self, "_deriv", interp.slope)
 
     # -- using the map ---------------------------------------------------
     def seen_density(self, signal: np.ndarray | float) -> np.ndarray:
@@ -841,7 +841,7 @@ def _held_out_predictions(x: np.ndarray, od: np.ndarray) -> np.ndarray:
     for i in range(0, len(x) - 1):
         keep = np.ones(len(x), dtype=bool)
         keep[i] = False
-        out[i] = float(PchipInterpolator(x[keep], od[keep], extrapolate=True)(x[i]))
+        out[i] = float(pchip(x[keep], od[keep])(x[i]))
     return out
 
 
@@ -951,7 +951,7 @@ def fit_calibration(
     # seen / (seen - spread)), must also leave room for the goal at k = 2:
     # where the scanner's response flattens, a tiny signal error becomes a
     # large density error.
-    slopes = np.abs(PchipInterpolator(x, od).derivative()(x))[::-1]
+    slopes = np.abs(pchip(x, od).slope(x))[::-1]
     share = spread / ((1.0 - f) * 10.0 ** -used_cert + spread)
     noise_od = slopes * sem[usable] / (signal[usable] * math.log(10.0)) / (1.0 - share)
     # Valid range: from the lightest step up to the last step before the
