@@ -1,0 +1,1 @@
+"""What joins the core and the archive: work over many files, QC log, comparison sets (no Qt)."""
