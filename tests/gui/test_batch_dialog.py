@@ -1,0 +1,117 @@
+"""Several scans analysed from the window: in the background, with a progress bar, cancellable, a bad file listed."""
+
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+import pytest
+
+from stripscan import CAUTION
+from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.gui.dialogs import batch_dialog
+from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
+
+
+@pytest.fixture
+def scans(files, tmp_path) -> list[Path]:
+    """Two copies of the two-strip scan with a damaged file between them."""
+    folder = tmp_path / "in"
+    folder.mkdir()
+    first, second = folder / "monday.tif", folder / "tuesday.tif"
+    shutil.copyfile(files.scan, first)
+    shutil.copyfile(files.scan, second)
+    bad = folder / "damaged.tif"
+    shutil.copyfile(files.bad, bad)
+    return [first, bad, second]
+
+
+def test_batch_writes_each_result_and_lists_the_bad_file(qtbot, files, scans, tmp_path):
+    out = tmp_path / "out"
+    out.mkdir()
+    dialog = start_batch(scans, out, files.calibration_record, AnalysisOptions(), workers=2)
+    assert dialog is not None
+    qtbot.addWidget(dialog)
+    assert dialog.running and dialog.bar.maximum() == 3
+    with qtbot.waitSignal(dialog.finished_batch, timeout=120_000):
+        pass
+    summary = dialog.summary
+    assert [i.path for i in summary.done] == [scans[0], scans[2]]
+    assert [i.path for i in summary.failed] == [scans[1]]
+    # Each result is the same record the pipeline gives for that file, with its caution.
+    for scan in (scans[0], scans[2]):
+        data = json.loads((out / f"{scan.stem}.results.json").read_text(encoding="utf-8"))
+        assert data["caution"] == CAUTION
+        direct = analyze_scan(scan, calibration=files.calibration_record).to_dict()
+        assert [s["figures"] for s in data["strips"]] == json.loads(json.dumps([s["figures"] for s in direct["strips"]]))
+    assert not (out / "damaged.results.json").exists() and not list(out.glob("*.partial"))
+    # The outcome of each file is listed; the bad one with its reason, naming it.
+    assert dialog.table.rowCount() == 3
+    assert "2 strip(s)" in dialog.table.item(0, 1).text()
+    assert dialog.table.item(1, 1).text().startswith(str(scans[1]))
+    assert "2 of 3 scans analysed, 1 failed" in dialog.status.text()
+    assert dialog.bar.value() == 3
+    dialog.grab().save(str(tmp_path / "batch-done.png"))
+
+
+def test_cancel_keeps_what_was_done_and_reads_no_further(qtbot, files, tmp_path):
+    folder = tmp_path / "in"
+    folder.mkdir()
+    scans = []
+    for k in range(6):
+        scans.append(folder / f"day_{k}.tif")
+        shutil.copyfile(files.scan, scans[-1])
+    out = tmp_path / "out"
+    out.mkdir()
+    dialog = start_batch(scans, out, None, AnalysisOptions(), workers=1)
+    qtbot.addWidget(dialog)
+    qtbot.waitUntil(lambda: dialog.bar.value() >= 1, timeout=60_000)
+    dialog.reject()  # the Cancel button
+    assert dialog.isVisible()  # what was done stays in view
+    with qtbot.waitSignal(dialog.finished_batch, timeout=60_000):
+        pass
+    summary = dialog.summary
+    assert summary.cancelled and summary.done
+    written = sorted(p.name for p in out.glob("*.json"))
+    assert written == sorted(f"{i.path.stem}.results.json" for i in summary.done)
+    assert dialog.table.item(5, 1).text() == "not read (cancelled)"
+    dialog.reject()
+    assert not dialog.isVisible()
+
+
+def test_two_scans_of_one_name_are_refused_before_reading(qtbot, files, tmp_path, monkeypatch):
+    shown = []
+    monkeypatch.setattr("stripscan.gui.errors.show_message", lambda parent, title, text, **kw: shown.append(text))
+    for name in ("a", "b"):
+        (tmp_path / name).mkdir()
+        shutil.copyfile(files.scan, tmp_path / name / "strips.tif")
+    assert start_batch([tmp_path / "a" / "strips.tif", tmp_path / "b" / "strips.tif"], tmp_path, None,
+                       AnalysisOptions()) is None
+    assert "would both be written to" in shown[0] and str(tmp_path / "strips.results.json") in shown[0]
+
+
+def test_a_failure_of_the_whole_batch_is_reported_not_fatal(qtbot, files, tmp_path, monkeypatch):
+    reported = []
+
+    def broken(*args, **kwargs):
+        raise OSError("cannot start worker processes: too many open files")
+
+    monkeypatch.setattr(batch_dialog, "analyse_scans", broken)
+    monkeypatch.setattr(batch_dialog, "report_error", lambda parent, title, error: reported.append(str(error)))
+    dialog = start_batch([files.scan], tmp_path, None, AnalysisOptions())
+    qtbot.addWidget(dialog)
+    qtbot.waitUntil(lambda: not dialog.running, timeout=30_000)
+    assert reported == ["cannot start worker processes: too many open files"]
+    assert "stopped" in dialog.status.text()
+    assert dialog.buttons.buttons()[0].text() == "Close"
+
+
+def test_progress_state_drawn(qtbot, files, tmp_path):
+    dialog = BatchDialog([Path(f"/scans/daily_2026-11-{d:02d}.tif") for d in range(2, 14)], tmp_path,
+                         files.calibration_record, AnalysisOptions())
+    qtbot.addWidget(dialog)
+    dialog.show()
+    dialog._progress(5 / 12, "[5/12] 0:09 left  daily_2026-11-06.tif")
+    assert dialog.bar.value() == 5 and dialog.bar.text() == "5 of 12"
+    dialog.grab().save(str(tmp_path / "batch-progress.png"))
