@@ -28,6 +28,7 @@ __all__ = [
     "BatchItem",
     "BatchProgress",
     "BatchSummary",
+    "USER_ERRORS",
     "available_cores",
     "collect_scans",
     "failure_reason",
@@ -166,14 +167,19 @@ def collect_scans(names: Iterable[str | os.PathLike[str]]) -> list[Path]:
     return unique
 
 
-def failure_reason(path: Path, error: BaseException) -> str:
+#: Errors whose message tells the user what is wrong with a file (the core's errors are ValueErrors).
+USER_ERRORS: tuple[type[BaseException], ...] = (ValueError, OSError)
+
+
+def failure_reason(path: Path, error: BaseException, expected: tuple[type[BaseException], ...] = USER_ERRORS) -> str:
     """One line that names the file and says what went wrong with it.
 
-    Our own errors (ValueError, OSError) carry a message that already names
-    the file; anything else is a fault of the program, said as such.
+    Errors of the ``expected`` kinds carry a message for the user (ours
+    name the file already); anything else is a fault of the program, said
+    as such.
     """
     text = " ".join(str(error).split()) or type(error).__name__
-    if not isinstance(error, (ValueError, OSError)):
+    if not isinstance(error, expected):
         text = f"{type(error).__name__}: {text} (a fault in stripscan, not in the file)"
     if str(path) not in text and path.name not in text:
         text = f"{path}: {text}"
@@ -189,6 +195,7 @@ def run_batch(
     on_result: Callable[[BatchItem], None] | None = None,
     on_progress: Callable[[BatchProgress], None] | None = None,
     cancel: threading.Event | None = None,
+    expected: tuple[type[BaseException], ...] = USER_ERRORS,
 ) -> BatchSummary:
     """Run ``work(path)`` for every file; return every outcome in the order given.
 
@@ -218,6 +225,9 @@ def run_batch(
         Set from another thread to stop: no further file is started; files
         under way are finished and reported; the rest are listed as
         cancelled.
+    expected : tuple of exception classes
+        Errors that are the file's (or the write's) fault, reported with
+        their message; any other is reported as a fault of the program.
 
     Returns
     -------
@@ -245,7 +255,7 @@ def run_batch(
         except Exception as exc:  # the caller's writing failed for this file only
             if item.error is not None:
                 raise
-            return BatchItem(item.index, item.path, error=failure_reason(item.path, exc))
+            return BatchItem(item.index, item.path, error=failure_reason(item.path, exc, expected))
         return item
 
     def finished(item: BatchItem) -> None:
@@ -270,24 +280,25 @@ def run_batch(
         for index, path in enumerate(files):
             if cancel.is_set():
                 break
-            finished(_run_one(work, index, path))
+            finished(_run_one(work, index, path, expected))
     else:
-        _run_in_processes(files, work, workers, cancel, finished)
+        _run_in_processes(files, work, workers, cancel, finished, expected)
     for index, path in enumerate(files):
         # Not started, or (``ordered``) finished after a file that never came: never handed over.
         outcomes.setdefault(index, BatchItem(index, path, cancelled=True))
     return BatchSummary(tuple(outcomes[i] for i in range(total)), time.monotonic() - started, workers)
 
 
-def _run_one(work: Callable[[Path], Any], index: int, path: Path) -> BatchItem:
+def _run_one(work: Callable[[Path], Any], index: int, path: Path,
+             expected: tuple[type[BaseException], ...]) -> BatchItem:
     try:
         return BatchItem(index, path, result=work(path))
     except Exception as exc:
-        return BatchItem(index, path, error=failure_reason(path, exc))
+        return BatchItem(index, path, error=failure_reason(path, exc, expected))
 
 
 def _run_in_processes(files: list[Path], work: Callable[[Path], Any], workers: int, cancel: threading.Event,
-                      finished: Callable[[BatchItem], None]) -> None:
+                      finished: Callable[[BatchItem], None], expected: tuple[type[BaseException], ...]) -> None:
     context = multiprocessing.get_context("spawn")
     # Ctrl+C is the calling process's to handle: the workers finish the file in hand and stop.
     pool = futures.ProcessPoolExecutor(max_workers=workers, mp_context=context, initializer=signal.signal,
@@ -302,7 +313,7 @@ def _run_in_processes(files: list[Path], work: Callable[[Path], Any], workers: i
                     future.cancel()  # those not started yet; the running ones finish
             for future in done:
                 index, path = pending.pop(future)
-                finished(_outcome(future, index, path))
+                finished(_outcome(future, index, path, expected))
             if cancel.is_set():
                 pending = {f: v for f, v in pending.items() if not f.cancelled()}
     except BaseException:
@@ -311,11 +322,11 @@ def _run_in_processes(files: list[Path], work: Callable[[Path], Any], workers: i
     pool.shutdown(wait=True)
 
 
-def _outcome(future: futures.Future, index: int, path: Path) -> BatchItem:
+def _outcome(future: futures.Future, index: int, path: Path, expected: tuple[type[BaseException], ...]) -> BatchItem:
     error = future.exception()
     if error is None:
         return BatchItem(index, path, result=future.result())
     if isinstance(error, futures.process.BrokenProcessPool):
         return BatchItem(index, path, error=f"{path}: not read: a worker process ended without an answer while "
                                             "this or another scan was read (out of memory, or killed)")
-    return BatchItem(index, path, error=failure_reason(path, error))
+    return BatchItem(index, path, error=failure_reason(path, error, expected))

@@ -151,6 +151,17 @@ def test_a_fault_in_the_program_is_said_as_such():
     assert failure_reason(Path("b.tif"), ValueError("b.tif: no strip found")) == "b.tif: no strip found"
 
 
+def test_errors_the_caller_expects_are_the_files_own():
+    class Refused(Exception):
+        pass
+
+    def store(item: BatchItem) -> None:
+        raise Refused(f"{item.path}: stored already")
+
+    summary = run_batch([Path("a.tif")], lambda p: 1, on_result=store, expected=(Refused,))
+    assert summary.failed[0].error == "a.tif: stored already"
+
+
 def test_folders_give_their_scans_by_name(tmp_path):
     for name in ("b.TIF", "a.tif", "c.png", "notes.txt", ".hidden.tif", "d.tif.partial"):
         (tmp_path / name).write_bytes(b"x")
