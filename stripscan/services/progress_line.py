@@ -64,8 +64,8 @@ def summary_lines(summary: BatchSummary, *, done_word: str = "done", name: Calla
         parts.append(f"{len(summary.failed)} failed")
     if summary.cancelled:
         parts.append(f"{len(summary.cancelled)} not read (cancelled)")
-    lines = [", ".join(parts) + f" in {duration_text(summary.elapsed_s)} "
-             f"({summary.workers} worker{'s' if summary.workers != 1 else ''})"]
+    lines = [", ".join(parts) + f" ({duration_text(summary.elapsed_s)}, "
+             f"{summary.workers} worker{'s' if summary.workers != 1 else ''})"]
     lines += [f"failed: {name(item.error or '')}" for item in summary.failed]
     return lines
 

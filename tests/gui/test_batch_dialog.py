@@ -44,7 +44,7 @@ def test_batch_writes_each_result_and_lists_the_bad_file(qtbot, files, scans, tm
         data = json.loads((out / f"{scan.stem}.results.json").read_text(encoding="utf-8"))
         assert data["caution"] == CAUTION
         direct = analyze_scan(scan, calibration=files.calibration_record).to_dict()
-        assert [s["figures"] for s in data["strips"]] == json.loads(json.dumps([s["figures"] for s in direct["strips"]]))
+        assert [s["metrics"] for s in data["strips"]] == json.loads(json.dumps([s["metrics"] for s in direct["strips"]]))
     assert not (out / "damaged.results.json").exists() and not list(out.glob("*.partial"))
     # The outcome of each file is listed; the bad one with its reason, naming it.
     assert dialog.table.rowCount() == 3

@@ -208,5 +208,5 @@ def test_summary_names_each_failure():
     items = (BatchItem(0, Path("a.tif"), result=1), BatchItem(1, Path("b.tif"), error="b.tif: no strip found"),
              BatchItem(2, Path("c.tif"), cancelled=True))
     lines = summary_lines(BatchSummary(items, 61.5, 2), done_word="analysed")
-    assert lines == ["1 of 3 scans analysed, 1 failed, 1 not read (cancelled) in 1:02 (2 workers)",
+    assert lines == ["1 of 3 scans analysed, 1 failed, 1 not read (cancelled) (1:02, 2 workers)",
                      "failed: b.tif: no strip found"]
