@@ -27,7 +27,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
 from stripscan.services.batch import available_cores
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 
 from stripscan.core.pipeline import analyze_scan
-from stripscan.core.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
 from stripscan.services.batch import (
     BatchItem,
     BatchProgress,

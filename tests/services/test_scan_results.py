@@ -9,7 +9,7 @@ import pytest
 
 from stripscan import CAUTION
 from stripscan.core.pipeline import analyze_scan
-from stripscan.core.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
 from stripscan.services.scan_results import (
     analyse_into_folder,
     check_result_names,
