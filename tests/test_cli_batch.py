@@ -86,7 +86,7 @@ def test_analyze_several_named_scans_all_good_exits_zero(made, tmp_path, capsys)
 
 
 @pytest.mark.parametrize("extra, message", [
-    ([], "several scans: give -o FOLDER"),
+    ([], "several scans, or a folder of them: give -o FOLDER"),
     (["-o", "OUT", "--json"], "--json prints the result of one scan"),
     (["-o", "FILE"], "is a file; with several scans -o names the folder"),
 ])
@@ -145,3 +145,110 @@ def test_progress_line_on_a_terminal_only(made, tmp_path):
     done = subprocess.run([sys.executable, "-m", "stripscan", "analyze", str(scans), "-o", "out3"], cwd=tmp_path,
                           capture_output=True, text=True, env=dict(os.environ, PYTHONPATH=str(ROOT)))
     assert done.returncode == 0 and done.stderr == "" and done.stdout.startswith("3 of 3 scans analysed")
+
+
+# -- archive add ---------------------------------------------------------------------------------------------
+
+def _snapshots(archive: Path) -> list:
+    from stripscan.archive import Archive
+
+    with Archive.open(archive, read_only=True) as opened:
+        return [opened.get_snapshot(s.id) for s in opened.list_snapshots()]
+
+
+def test_archive_add_stores_each_scan_in_the_order_given_and_skips_the_bad_ones(made, tmp_path, capsys):
+    scans = _folder(made, tmp_path / "in", ["a.tif", "b.tif"], bad="c.tif")
+    archive = tmp_path / "lots.db"
+    common = ["--lot", "L-1", "--archive", str(archive), "--calibration", str(made / "cal.json")]
+    assert main(["archive", "add", str(scans / "a.tif"), *common]) == 0  # one scan, as before
+    capsys.readouterr()
+    # The folder again: a.tif is stored already (refused by name), c.tif is no image, b.tif is stored.
+    status = main(["archive", "add", str(scans), *common, "--workers", "2"])
+    captured = capsys.readouterr()
+    assert status == 1
+    assert "1 of 3 scans stored, 2 failed" in captured.out
+    errors = captured.err.splitlines()
+    assert len(errors) == 2 and "a.tif" in errors[0] and "stored already" in errors[0] and "c.tif" in errors[1]
+    stored = _snapshots(archive)
+    assert [(Path(s.scan.path).name, s.strip.index) for s in stored] == [("a.tif", 1), ("a.tif", 2),
+                                                                         ("b.tif", 1), ("b.tif", 2)]
+    # The batch stores what the one-scan form stores for that scan.
+    single = tmp_path / "single.db"
+    assert main(["archive", "add", str(scans / "b.tif"), "--lot", "L-1", "--archive", str(single),
+                 "--calibration", str(made / "cal.json")]) == 0
+    assert [s.figures for s in _snapshots(single)] == [s.figures for s in stored[2:]]
+    assert [s.strip for s in _snapshots(single)] == [s.strip for s in stored[2:]]
+
+
+def test_archive_add_of_bad_files_only_leaves_no_new_archive(made, tmp_path, capsys):
+    scans = tmp_path / "in"
+    scans.mkdir()
+    for name in ("x.tif", "y.tif"):
+        (scans / name).write_bytes(b"not an image")
+    archive = tmp_path / "new.db"
+    assert main(["archive", "add", str(scans), "--lot", "L-1", "--archive", str(archive)]) == 1
+    assert "0 of 2 scans stored, 2 failed" in capsys.readouterr().out
+    assert not archive.exists()
+
+
+# -- qc add -------------------------------------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def demo():
+    from stripscan.sim.demo_data import demo_files
+
+    return demo_files()
+
+
+def _entries(archive: Path, processor: str) -> list:
+    from stripscan.archive import Archive
+
+    with Archive.open(archive, read_only=True) as opened:
+        return opened.list_qc_entries(processor)
+
+
+def test_qc_add_stores_several_days_in_date_order_each_day_from_its_name(demo, tmp_path, capsys):
+    days = list(demo.daily_scans)[:4]
+    scans = tmp_path / "in"
+    scans.mkdir()
+    # Names that do not sort by day: the log must still take the days in date order.
+    for k, (day, path) in enumerate(days):
+        shutil.copyfile(path, scans / f"{'zyxw'[k]}_{day.isoformat()}.tif")
+    (scans / f"q_{days[-1][0] + (days[1][0] - days[0][0])}.tif").write_bytes(b"not an image")
+    archive = tmp_path / "qc.db"
+    status = main(["qc", "add", str(scans), "--processor", "P-1", "--new-processor", "--archive", str(archive),
+                   "--calibration", str(demo.calibration)])
+    captured = capsys.readouterr()
+    assert status == 1 and "4 of 5 scans stored, 1 failed" in captured.out
+    assert "q_" in captured.err and len(captured.err.splitlines()) == 1
+    assert captured.out.count("that day: baseline") == 4
+    entries = _entries(archive, "P-1")
+    assert [e.date for e in entries] == [d.isoformat() for d, _ in days]
+    # Each day holds what the one-scan form stores for that scan and day.
+    single = tmp_path / "single.db"
+    for day, path in days:
+        assert main(["qc", "add", str(path), "--date", day.isoformat(), "--processor", "P-1", "--new-processor",
+                     "--archive", str(single), "--calibration", str(demo.calibration)]) == 0
+    capsys.readouterr()
+    one_by_one = _entries(single, "P-1")
+    for quantity in ("base_fog", "mid_density", "density_difference"):
+        assert [getattr(e, quantity) for e in entries] == [getattr(e, quantity) for e in one_by_one]
+
+
+@pytest.mark.parametrize("names, extra, message", [
+    (["a_2026-11-02.tif", "b.tif"], [], "b.tif: no date in its name"),
+    (["a_2026-11-02_2026-11-03.tif", "b_2026-11-04.tif"], [], "2 dates (2026-11-02, 2026-11-03) in its name"),
+    (["a_2026-11-02.tif", "b_2026-11-31.tif"], [], "'2026-11-31' is not a calendar date"),
+    (["a_2026-11-02.tif", "b_2026-11-03.tif"], ["--note", "fresh chemistry"], "--note belongs to one day"),
+    (["a_2026-11-02.tif", "b_2026-11-03.tif"], ["--date", "2026-11-02"], "--date belongs to one day"),
+])
+def test_qc_add_batch_refusals_store_nothing(demo, tmp_path, capsys, names, extra, message):
+    scans = tmp_path / "in"
+    scans.mkdir()
+    for name in names:
+        shutil.copyfile(demo.daily_scans[0][1], scans / name)
+    archive = tmp_path / "qc.db"
+    assert main(["qc", "add", *(str(scans / n) for n in names), "--processor", "P-1", "--new-processor",
+                 "--archive", str(archive), "--calibration", str(demo.calibration), *extra]) == 1
+    assert message in capsys.readouterr().err
+    assert not archive.exists()

@@ -261,8 +261,8 @@ def _analyze_batch(args) -> int:
         raise CommandError("--json prints the result of one scan; with several, each result is written into "
                            "the -o folder")
     if not args.output:
-        raise CommandError("several scans: give -o FOLDER, where each scan's result is written as "
-                           "NAME.results.json")
+        raise CommandError("several scans, or a folder of them: give -o FOLDER, where each scan's result is "
+                           "written as NAME.results.json")
     folder = Path(args.output)
     if folder.exists() and not folder.is_dir():
         raise CommandError(f"{folder}: is a file; with several scans -o names the folder for their results")
