@@ -183,6 +183,7 @@ def batch_figures(scans: int = BATCH_SCANS, runs: int = 3, dpi: float = 600.0) -
     """Figure 7: scans per second of ``stripscan analyze FOLDER`` on every core against one core."""
     t = bench_batch.measure(scans, runs, dpi)
     note = (f"{t.scans} scans at {t.dpi:g} dpi: {t.one_core_s:.1f} s on 1 core, {t.all_cores_s:.1f} s on {t.cores}; "
+            f"--workers 1 not held to one core {t.one_worker_s:.1f} s (ratio {t.one_worker_s / t.all_cores_s:.2f}); "
             f"best of {runs} runs each")
     return [Figure(f"folder of {t.scans} scans, 'stripscan analyze FOLDER -o OUTDIR': throughput on {t.cores} "
                    "cores ÷ on 1", t.scans / t.all_cores_s, "scans/s", t.scans / t.one_core_s, "on 1 core",

@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
 from stripscan import CAUTION, __version__
 from stripscan.core.calibration import load_calibration
 from stripscan.render import qtguard
+from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
 from stripscan.gui.dialogs.calibration_dialog import CalibrationDialog
 from stripscan.gui.views.curve_view import CurveView
 from stripscan.gui.errors import log_file, report_error, show_message
@@ -201,6 +202,9 @@ class MainWindow(QMainWindow):
         self.open_action = self._action(file, "&Open a scan…", self.ask_open, QKeySequence.StandardKey.Open,
                                         "Open a scan of processed strips (or drop the file on the window)")
         self.recent_menu = file.addMenu("Open &recent")
+        self._action(file, "Analyse se&veral scans…", self.ask_analyse_several, "Ctrl+Shift+O",
+                     "Read several scans in the background with this calibration and these settings, "
+                     "each result saved as NAME.results.json in a folder you choose")
         file.addSeparator()
         self._action(file, "&Save results (JSON)…", self.ask_save_results, QKeySequence.StandardKey.Save)
         self._action(file, "Save the step table (CSV)…", self.step_table._ask_save)
@@ -294,6 +298,8 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
         self.workspace.shut_down()  # the demo build stops at its next step
+        for batch in self.findChildren(BatchDialog):
+            batch.cancel()  # no further scan is started; those under way are finished and kept
         self.settings.set_window_state(self.saveGeometry(), self.saveState())
         self.settings.set_levels(*self.session.levels)
         self.settings.sync()
@@ -326,6 +332,16 @@ class MainWindow(QMainWindow):
             self.close()
 
     # -- opening files ---------------------------------------------------------------------
+    def ask_analyse_several(self) -> BatchDialog | None:
+        """Pick scans and a folder for their results; analyse them in the background."""
+        scans, _ = QFileDialog.getOpenFileNames(self, "Scans to analyse", self.settings.last_folder(), _SCAN_FILTER)
+        if not scans:
+            return None
+        folder = QFileDialog.getExistingDirectory(self, "Folder for the results", str(Path(scans[0]).parent))
+        if not folder:
+            return None
+        return start_batch(self.runner, scans, folder, self.session.calibration, self.session.options, parent=self)
+
     def ask_open(self) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Open a scan of strips", self.settings.last_folder(), _SCAN_FILTER)
         if path:

@@ -12,6 +12,7 @@ from stripscan import CAUTION
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.gui.dialogs import batch_dialog
 from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
+from stripscan.gui.tasks import TaskRunner
 
 
 @pytest.fixture
@@ -30,7 +31,7 @@ def scans(files, tmp_path) -> list[Path]:
 def test_batch_writes_each_result_and_lists_the_bad_file(qtbot, files, scans, tmp_path):
     out = tmp_path / "out"
     out.mkdir()
-    dialog = start_batch(scans, out, files.calibration_record, AnalysisOptions(), workers=2)
+    dialog = start_batch(TaskRunner(), scans, out, files.calibration_record, AnalysisOptions(), workers=2)
     assert dialog is not None
     qtbot.addWidget(dialog)
     assert dialog.running and dialog.bar.maximum() == 3
@@ -64,7 +65,7 @@ def test_cancel_keeps_what_was_done_and_reads_no_further(qtbot, files, tmp_path)
         shutil.copyfile(files.scan, scans[-1])
     out = tmp_path / "out"
     out.mkdir()
-    dialog = start_batch(scans, out, None, AnalysisOptions(), workers=1)
+    dialog = start_batch(TaskRunner(), scans, out, None, AnalysisOptions(), workers=1)
     qtbot.addWidget(dialog)
     qtbot.waitUntil(lambda: dialog.bar.value() >= 1, timeout=60_000)
     dialog.reject()  # the Cancel button
@@ -86,7 +87,7 @@ def test_two_scans_of_one_name_are_refused_before_reading(qtbot, files, tmp_path
     for name in ("a", "b"):
         (tmp_path / name).mkdir()
         shutil.copyfile(files.scan, tmp_path / name / "strips.tif")
-    assert start_batch([tmp_path / "a" / "strips.tif", tmp_path / "b" / "strips.tif"], tmp_path, None,
+    assert start_batch(TaskRunner(), [tmp_path / "a" / "strips.tif", tmp_path / "b" / "strips.tif"], tmp_path, None,
                        AnalysisOptions()) is None
     assert "would both be written to" in shown[0] and str(tmp_path / "strips.results.json") in shown[0]
 
@@ -99,7 +100,7 @@ def test_a_failure_of_the_whole_batch_is_reported_not_fatal(qtbot, files, tmp_pa
 
     monkeypatch.setattr(batch_dialog, "analyse_scans", broken)
     monkeypatch.setattr(batch_dialog, "report_error", lambda parent, title, error: reported.append(str(error)))
-    dialog = start_batch([files.scan], tmp_path, None, AnalysisOptions())
+    dialog = start_batch(TaskRunner(), [files.scan], tmp_path, None, AnalysisOptions())
     qtbot.addWidget(dialog)
     qtbot.waitUntil(lambda: not dialog.running, timeout=30_000)
     assert reported == ["cannot start worker processes: too many open files"]
@@ -108,10 +109,52 @@ def test_a_failure_of_the_whole_batch_is_reported_not_fatal(qtbot, files, tmp_pa
 
 
 def test_progress_state_drawn(qtbot, files, tmp_path):
-    dialog = BatchDialog([Path(f"/scans/daily_2026-11-{d:02d}.tif") for d in range(2, 14)], tmp_path,
+    dialog = BatchDialog(TaskRunner(), [Path(f"/scans/daily_2026-11-{d:02d}.tif") for d in range(2, 14)], tmp_path,
                          files.calibration_record, AnalysisOptions())
     qtbot.addWidget(dialog)
     dialog.show()
     dialog._progress(5 / 12, "[5/12] 0:09 left  daily_2026-11-06.tif")
     assert dialog.bar.value() == 5 and dialog.bar.text() == "5 of 12"
     dialog.grab().save(str(tmp_path / "batch-progress.png"))
+
+
+def test_the_window_analyses_several_scans_with_its_calibration(qtbot, window, files, scans, tmp_path, monkeypatch):
+    from PySide6.QtWidgets import QFileDialog
+
+    from stripscan.core.calibration import load_calibration
+
+    window.session.set_calibration(load_calibration(files.calibration), str(files.calibration))
+    out = tmp_path / "results"
+    out.mkdir()
+    monkeypatch.setattr(QFileDialog, "getOpenFileNames", lambda *a, **k: ([str(p) for p in scans], ""))
+    monkeypatch.setattr(QFileDialog, "getExistingDirectory", lambda *a, **k: str(out))
+    action = next(a for a in window.findChildren(type(window.open_action)) if a.text() == "Analyse se&veral scans…")
+    action.trigger()
+    (dialog,) = window.findChildren(BatchDialog)
+    assert window.work_running  # the window knows: it would wait for the work before closing
+    with qtbot.waitSignal(dialog.finished_batch, timeout=120_000):
+        pass
+    assert not window.work_running
+    assert sorted(p.name for p in out.iterdir()) == ["monday.results.json", "tuesday.results.json"]
+    data = json.loads((out / "monday.results.json").read_text(encoding="utf-8"))
+    assert data["calibration"]["sha256"] == files.calibration_record.sha256  # read with the window's calibration
+    assert "damaged.tif" in dialog.table.item(1, 1).text()
+
+
+def test_closing_the_window_stops_a_batch_and_waits_for_it(qtbot, window, files, tmp_path, monkeypatch):
+    from PySide6.QtWidgets import QFileDialog
+
+    folder = tmp_path / "in"
+    folder.mkdir()
+    for k in range(8):
+        shutil.copyfile(files.scan, folder / f"day_{k}.tif")
+    out = tmp_path / "out"
+    out.mkdir()
+    monkeypatch.setattr(QFileDialog, "getOpenFileNames", lambda *a, **k: (sorted(map(str, folder.iterdir())), ""))
+    monkeypatch.setattr(QFileDialog, "getExistingDirectory", lambda *a, **k: str(out))
+    dialog = window.ask_analyse_several()
+    qtbot.waitUntil(lambda: dialog.bar.value() >= 1, timeout=60_000)
+    window.close()
+    qtbot.waitUntil(lambda: not window.isVisible(), timeout=60_000)
+    assert dialog.summary is not None and dialog.summary.cancelled  # stopped early, not run to the end
+    assert len(list(out.glob("*.json"))) == len(dialog.summary.done) and not list(out.glob("*.partial"))

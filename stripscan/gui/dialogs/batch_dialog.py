@@ -1,7 +1,8 @@
 """Several scans analysed in the background: a progress bar, a Cancel button, then every file's outcome.
 
-The work runs through a :class:`~stripscan.gui.tasks.TaskRunner` (a worker
-thread), which hands the scans to worker processes on every core
+The work runs through the window's :class:`~stripscan.gui.tasks.TaskRunner`
+(a worker thread, so the window knows work is under way), which hands the
+scans to worker processes on every core
 (:func:`stripscan.services.batch.run_batch`); each scan's result is written
 to ``NAME.results.json`` in the folder chosen, whole or not at all.  A scan
 that cannot be read is listed with its reason; the others go on.
@@ -37,11 +38,12 @@ __all__ = ["BatchDialog", "analyse_scans", "start_batch"]
 
 
 def analyse_scans(scans: Sequence[Path], folder: Path, calibration: Any, options: Any, *, progress: Any,
-                  cancel: threading.Event, workers: int | None = None) -> BatchSummary:
+                  cancel: threading.Event, report: Any = None, workers: int | None = None) -> BatchSummary:
     """Analyse ``scans`` into ``folder`` on every core (the worker thread's job); every outcome, in order.
 
-    ``progress(fraction, text)`` gets the count done and the line a
-    terminal would show (time left, the file just finished).
+    ``progress(fraction, text)`` (the runner's, for the status bar) and
+    ``report(fraction, text)`` (the dialog's own) get the share done and
+    the line a terminal would show (time left, the file just finished).
     """
     import functools
 
@@ -50,8 +52,14 @@ def analyse_scans(scans: Sequence[Path], folder: Path, calibration: Any, options
     from stripscan.services.scan_results import analyse_into_folder
 
     work = functools.partial(analyse_into_folder, folder=folder, calibration=calibration, options=options)
-    return run_batch(scans, work, workers=workers or available_cores(), cancel=cancel,
-                     on_progress=lambda event: progress(event.fraction, progress_text(event, 120)))
+
+    def tell(event: Any) -> None:
+        text = progress_text(event, 120)
+        progress(event.fraction, text)
+        if report is not None:
+            report(event.fraction, text)
+
+    return run_batch(scans, work, workers=workers or available_cores(), cancel=cancel, on_progress=tell)
 
 
 class BatchDialog(QDialog):
@@ -59,6 +67,8 @@ class BatchDialog(QDialog):
 
     Parameters
     ----------
+    runner : TaskRunner
+        The window's: the window waits for the work before it closes.
     scans : sequence of Path
     folder : Path
         Where the results go.
@@ -74,8 +84,10 @@ class BatchDialog(QDialog):
     """
 
     finished_batch = Signal(object)
+    # The worker thread's progress, queued to this dialog (the runner's own signal follows its latest task).
+    _reported = Signal(float, str)
 
-    def __init__(self, scans: Sequence[Path], folder: Path, calibration: Any, options: Any, *,
+    def __init__(self, runner: TaskRunner, scans: Sequence[Path], folder: Path, calibration: Any, options: Any, *,
                  workers: int | None = None, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.setWindowTitle("Analyse several scans")
@@ -83,7 +95,9 @@ class BatchDialog(QDialog):
         self._calibration, self._options, self._workers = calibration, options, workers
         self._cancel = threading.Event()
         self.summary: BatchSummary | None = None
-        self.runner = TaskRunner(self)
+        self.runner = runner
+        self._task: int | None = None
+        self._reported.connect(self._progress)
 
         mode = "direct mode, UNCALIBRATED" if calibration is None else "the window's calibration"
         intro = QLabel(f"{len(self.scans)} scans, read with {mode} and the analysis settings. Each result is "
@@ -117,14 +131,14 @@ class BatchDialog(QDialog):
 
     @property
     def running(self) -> bool:
-        return self.runner.busy
+        return self._task is not None
 
     def start(self) -> None:
         """Start the work in the background (the dialog shows it as it goes)."""
-        self.runner.progress.connect(self._progress)
-        self.runner.start(analyse_scans, self.scans, self.folder, self._calibration, self._options,
-                          cancel=self._cancel, workers=self._workers, key="batch",
-                          on_done=self._done, on_error=self._failed)
+        # A key of its own: a second batch started meanwhile must not drop this one's outcome.
+        self._task = self.runner.start(analyse_scans, self.scans, self.folder, self._calibration, self._options,
+                                       cancel=self._cancel, report=self._reported.emit, workers=self._workers,
+                                       key=f"batch-{id(self)}", on_done=self._done, on_error=self._failed)
 
     def cancel(self) -> None:
         """Start no further scan; those under way are finished and kept."""
@@ -145,6 +159,7 @@ class BatchDialog(QDialog):
             self.status.setText(text)
 
     def _done(self, summary: BatchSummary) -> None:
+        self._task = None
         self.summary = summary
         self.bar.setValue(len(summary.done) + len(summary.failed))
         from stripscan.services.progress_line import summary_lines
@@ -156,6 +171,7 @@ class BatchDialog(QDialog):
         self.finished_batch.emit(summary)
 
     def _failed(self, error: BaseException) -> None:
+        self._task = None
         self.status.setText("The batch stopped: see the message.")
         self._finish()
         report_error(self, "The scans could not be analysed", error)
@@ -191,8 +207,8 @@ class BatchDialog(QDialog):
         self.table.setTextElideMode(Qt.TextElideMode.ElideMiddle)
 
 
-def start_batch(scans: Sequence[str | Path], folder: str | Path, calibration: Any, options: Any, *,
-                parent: QWidget | None = None, workers: int | None = None) -> BatchDialog | None:
+def start_batch(runner: TaskRunner, scans: Sequence[str | Path], folder: str | Path, calibration: Any, options: Any,
+                *, parent: QWidget | None = None, workers: int | None = None) -> BatchDialog | None:
     """Open the dialog and start the work; None (after saying why) when the batch cannot start.
 
     Two scans that would write the same result file are refused before
@@ -209,7 +225,7 @@ def start_batch(scans: Sequence[str | Path], folder: str | Path, calibration: An
     except ValueError as exc:
         show_message(parent, "The scans were not analysed", str(exc))
         return None
-    dialog = BatchDialog(scans, Path(folder), calibration, options, workers=workers, parent=parent)
+    dialog = BatchDialog(runner, scans, Path(folder), calibration, options, workers=workers, parent=parent)
     dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
     dialog.show()
     dialog.start()
