@@ -7,7 +7,6 @@ rest use plain functions in this process.
 
 from __future__ import annotations
 
-import functools
 import io
 import threading
 from pathlib import Path
