@@ -248,12 +248,13 @@ def _add_batch(args: argparse.Namespace) -> int:
     """
     import functools
 
-    from stripscan.cli.batch import run_batch_command
-    from stripscan.core.pipeline import analyze_scan
+    from stripscan.cli.batch import run_batch_command, start_workers
     from stripscan.services.batch import collect_scans
 
     scans = collect_scans(args.scan)
-    with _open(args, create=True) as archive:
+    with start_workers(args, scans) as workers, _open(args, create=True) as archive:
+        from stripscan.core.pipeline import analyze_scan
+
         calibration, options, known = _reading_setup(args, archive)
 
         def store(item: Any) -> None:
@@ -269,8 +270,8 @@ def _add_batch(args: argparse.Namespace) -> int:
                 print(f"snapshot {snapshot.id}: {_stored_line(snapshot)} ({item.path.name})")
 
         work = functools.partial(analyze_scan, calibration=calibration, options=options)
-        summary = run_batch_command(args, scans, work, done_word="stored", ordered=True, on_result=store,
-                                    expected=(ArchiveError,))
+        summary = run_batch_command(args, scans, work, workers=workers, done_word="stored", ordered=True,
+                                    on_result=store, expected=(ArchiveError,))
     if not summary.done:
         _forget_new_archive(args)
     elif calibration is None:

@@ -15,7 +15,7 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
-__all__ = ["add_batch_arguments", "is_batch", "run_batch_command"]
+__all__ = ["add_batch_arguments", "is_batch", "run_batch_command", "start_workers"]
 
 
 def _workers(text: str) -> int:
@@ -48,8 +48,20 @@ def _terminal_stream() -> Any:
     return getattr(sys.stderr, "raw_stream", sys.stderr)
 
 
+def start_workers(args: argparse.Namespace, scans: Sequence[Path]) -> Any:
+    """The worker processes for ``scans``, started now: they load the analysis while this process gets ready.
+
+    A context manager (:class:`~stripscan.services.batch.WorkerProcesses`);
+    ``--workers`` of them, by default one per core, never more than scans.
+    """
+    from stripscan.services.batch import WorkerProcesses, available_cores
+
+    return WorkerProcesses(min(args.workers or available_cores(), len(scans)), preload=("stripscan.core.pipeline",))
+
+
 def run_batch_command(args: argparse.Namespace, scans: Sequence[Path], work: Callable[[Path], Any], *,
-                      done_word: str, ordered: bool = False, on_result: Callable[[Any], None] | None = None,
+                      workers: Any, done_word: str, ordered: bool = False,
+                      on_result: Callable[[Any], None] | None = None,
                       expected: tuple[type[BaseException], ...] = ()) -> Any:
     """Run ``work`` over ``scans`` with the progress line, then print the summary; return the BatchSummary.
 
@@ -57,10 +69,10 @@ def run_batch_command(args: argparse.Namespace, scans: Sequence[Path], work: Cal
     prints comes out between the progress lines); a failed file's reason
     is printed at the end on standard error, one line naming the file.
     ``expected`` adds error kinds that are a file's fault (to ValueError
-    and OSError).
+    and OSError).  ``workers`` comes from :func:`start_workers`.
     """
     from stripscan.cli.main import terminal_safe
-    from stripscan.services.batch import USER_ERRORS, available_cores, run_batch
+    from stripscan.services.batch import USER_ERRORS, run_batch
     from stripscan.services.progress_line import ProgressLine, summary_lines
 
     line = ProgressLine(_terminal_stream(), quiet=args.quiet, name=terminal_safe)
@@ -71,7 +83,7 @@ def run_batch_command(args: argparse.Namespace, scans: Sequence[Path], work: Cal
             on_result(item)
 
     try:
-        summary = run_batch(scans, work, workers=args.workers or available_cores(), ordered=ordered,
+        summary = run_batch(scans, work, workers=workers, ordered=ordered,
                             on_result=handed, on_progress=line, expected=USER_ERRORS + tuple(expected))
     finally:
         line.clear()

@@ -253,7 +253,7 @@ def _analyze_batch(args) -> int:
     """Several scans, or a folder: each scan's result into the -o folder, on every core."""
     import functools
 
-    from stripscan.cli.batch import run_batch_command
+    from stripscan.cli.batch import run_batch_command, start_workers
     from stripscan.services.batch import collect_scans
     from stripscan.services.scan_results import analyse_into_folder, check_result_names
 
@@ -268,15 +268,16 @@ def _analyze_batch(args) -> int:
         raise CommandError(f"{folder}: is a file; with several scans -o names the folder for their results")
     scans = collect_scans(args.scan)
     check_result_names(scans, folder)
-    calibration, certificate, options = _analysis_inputs(args)
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise CommandError(f"{folder}: cannot make the folder ({exc.strerror or exc})") from None
-    work = functools.partial(analyse_into_folder, folder=folder, calibration=calibration, options=options,
-                             dpi=args.dpi, channel=args.channel, flat_field_scan=args.flat_field,
-                             tablet_certificate=certificate)
-    summary = run_batch_command(args, scans, work, done_word="analysed")
+    with start_workers(args, scans) as workers:
+        calibration, certificate, options = _analysis_inputs(args)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise CommandError(f"{folder}: cannot make the folder ({exc.strerror or exc})") from None
+        work = functools.partial(analyse_into_folder, folder=folder, calibration=calibration, options=options,
+                                 dpi=args.dpi, channel=args.channel, flat_field_scan=args.flat_field,
+                                 tablet_certificate=certificate)
+        summary = run_batch_command(args, scans, work, workers=workers, done_word="analysed")
     if summary.done:
         print(f"Results in {folder}, one NAME.results.json per scan")
     warned = sum(bool(item.result.warnings) for item in summary.done)

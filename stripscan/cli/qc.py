@@ -161,9 +161,7 @@ def _add_days(args: argparse.Namespace) -> int:
     """
     import functools
 
-    from stripscan.cli.batch import run_batch_command
-    from stripscan.core.calibration import load_calibration
-    from stripscan.core.pipeline import analyze_scan
+    from stripscan.cli.batch import run_batch_command, start_workers
     from stripscan.services.batch import collect_scans
     from stripscan.services.qc_log import status_text, uncalibrated_refusal
 
@@ -181,9 +179,13 @@ def _add_days(args: argparse.Namespace) -> int:
         return _fail(uncalibrated_refusal(", ".join(p.name for p in scans[:3]) + (", ..." if len(scans) > 3 else "")))
     days = {path: _day_in_name(path) for path in scans}
     scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
-    calibration = load_calibration(args.calibration)
     stored: list[Any] = []
-    with _open(args, create=args.new_processor) as archive:
+    with start_workers(args, scans) as workers, _open(args, create=args.new_processor) as archive:
+        from stripscan.core.calibration import load_calibration
+        from stripscan.core.pipeline import analyze_scan
+
+        calibration = load_calibration(args.calibration)
+
         def store(item: Any) -> None:
             added = _store_day(args, archive, days[item.path], analysis=item.result,
                                calibration=calibration.to_dict())
@@ -196,7 +198,7 @@ def _add_days(args: argparse.Namespace) -> int:
                   + (f" (trend rules fired: {', '.join(st.rules_fired)})" if st.rules_fired else ""))
 
         summary = run_batch_command(args, scans, functools.partial(analyze_scan, calibration=calibration),
-                                    done_word="stored", ordered=True, on_result=store,
+                                    workers=workers, done_word="stored", ordered=True, on_result=store,
                                     expected=(ArchiveError,))
     if stored:
         print(status_text(stored[-1].plog, stored[-1].plog.status(days[summary.done[-1].path])))

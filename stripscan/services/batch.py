@@ -13,6 +13,7 @@ the others go on.  Nothing here imports Qt or sqlite3.
 from __future__ import annotations
 
 import concurrent.futures as futures
+import importlib
 import multiprocessing
 import os
 import signal
@@ -29,6 +30,7 @@ __all__ = [
     "BatchProgress",
     "BatchSummary",
     "USER_ERRORS",
+    "WorkerProcesses",
     "available_cores",
     "collect_scans",
     "failure_reason",
@@ -190,7 +192,7 @@ def run_batch(
     paths: Sequence[str | os.PathLike[str]],
     work: Callable[[Path], Any],
     *,
-    workers: int = 1,
+    workers: int | WorkerProcesses = 1,
     ordered: bool = False,
     on_result: Callable[[BatchItem], None] | None = None,
     on_progress: Callable[[BatchProgress], None] | None = None,
@@ -208,9 +210,11 @@ def run_batch(
         another process: it must be a module-level function (or a
         ``functools.partial`` of one) whose arguments and result pickle.
         An exception it raises fails that file only.
-    workers : int
+    workers : int or WorkerProcesses
         Processes to run at once; 1 runs every file in this process, one
-        after the other.  Never more than there are files.
+        after the other.  Never more than there are files.  Processes
+        started ahead (:class:`WorkerProcesses`) are used as they are and
+        left running for their owner to close.
     ordered : bool
         Hand results to ``on_result`` in the order given (a finished file
         waits for the ones before it), for callers whose writes must follow
@@ -235,7 +239,6 @@ def run_batch(
     """
     files = [Path(p) for p in paths]
     total = len(files)
-    workers = max(1, min(int(workers), total or 1))
     cancel = cancel or threading.Event()
     started = time.monotonic()
     outcomes: dict[int, BatchItem] = {}
@@ -276,17 +279,25 @@ def run_batch(
         report(item.path)
 
     report(None)
-    if workers == 1:
-        for index, path in enumerate(files):
-            if cancel.is_set():
-                break
-            finished(_run_one(work, index, path, expected))
+    if isinstance(workers, WorkerProcesses):
+        processes, own = workers, False
     else:
-        _run_in_processes(files, work, workers, cancel, finished, expected)
+        processes, own = WorkerProcesses(min(int(workers), total or 1)), True
+    try:
+        if processes.pool is None:
+            for index, path in enumerate(files):
+                if cancel.is_set():
+                    break
+                finished(_run_one(work, index, path, expected))
+        else:
+            _run_in_processes(files, work, processes.pool, cancel, finished, expected)
+    finally:
+        if own:
+            processes.close()
     for index, path in enumerate(files):
         # Not started, or (``ordered``) finished after a file that never came: never handed over.
         outcomes.setdefault(index, BatchItem(index, path, cancelled=True))
-    return BatchSummary(tuple(outcomes[i] for i in range(total)), time.monotonic() - started, workers)
+    return BatchSummary(tuple(outcomes[i] for i in range(total)), time.monotonic() - started, processes.count)
 
 
 def _run_one(work: Callable[[Path], Any], index: int, path: Path,
@@ -297,12 +308,55 @@ def _run_one(work: Callable[[Path], Any], index: int, path: Path,
         return BatchItem(index, path, error=failure_reason(path, exc, expected))
 
 
-def _run_in_processes(files: list[Path], work: Callable[[Path], Any], workers: int, cancel: threading.Event,
-                      finished: Callable[[BatchItem], None], expected: tuple[type[BaseException], ...]) -> None:
-    context = multiprocessing.get_context("spawn")
+class WorkerProcesses:
+    """Worker processes started ahead of the work: they load their libraries while the caller gets ready.
+
+    A context manager; pass it to :func:`run_batch` as ``workers``.  With a
+    count of 1 no process is started and the work runs in the caller's.
+
+    Parameters
+    ----------
+    count : int
+        Processes to start.
+    preload : sequence of str
+        Modules each process imports as it starts (those the work needs).
+    """
+
+    def __init__(self, count: int, *, preload: Sequence[str] = ()) -> None:
+        self.count = max(1, int(count))
+        self.pool: futures.ProcessPoolExecutor | None = None
+        if self.count > 1:
+            self.pool = futures.ProcessPoolExecutor(max_workers=self.count, mp_context=multiprocessing.get_context(
+                "spawn"), initializer=_start_worker, initargs=(tuple(preload),))
+            for _ in range(self.count):
+                self.pool.submit(_ready)  # the processes start on a first task, not before
+
+    def close(self, *, wait: bool = True) -> None:
+        """Stop the processes once their work is done (``wait=False``: drop what was not started)."""
+        if self.pool is not None:
+            self.pool.shutdown(wait=wait, cancel_futures=not wait)
+
+    def __enter__(self) -> WorkerProcesses:
+        return self
+
+    def __exit__(self, kind: type[BaseException] | None, *_: object) -> None:
+        self.close(wait=kind is None)
+
+
+def _start_worker(preload: tuple[str, ...]) -> None:
     # Ctrl+C is the calling process's to handle: the workers finish the file in hand and stop.
-    pool = futures.ProcessPoolExecutor(max_workers=workers, mp_context=context, initializer=signal.signal,
-                                       initargs=(signal.SIGINT, signal.SIG_IGN))
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    for name in preload:
+        importlib.import_module(name)
+
+
+def _ready() -> None:
+    """A first task, that makes a worker process start."""
+
+
+def _run_in_processes(files: list[Path], work: Callable[[Path], Any], pool: futures.ProcessPoolExecutor,
+                      cancel: threading.Event, finished: Callable[[BatchItem], None],
+                      expected: tuple[type[BaseException], ...]) -> None:
     try:
         pending = {pool.submit(work, path): (index, path) for index, path in enumerate(files)}
         while pending:
@@ -319,7 +373,6 @@ def _run_in_processes(files: list[Path], work: Callable[[Path], Any], workers: i
     except BaseException:
         pool.shutdown(wait=False, cancel_futures=True)
         raise
-    pool.shutdown(wait=True)
 
 
 def _outcome(future: futures.Future, index: int, path: Path, expected: tuple[type[BaseException], ...]) -> BatchItem:

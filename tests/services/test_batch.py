@@ -19,6 +19,7 @@ from stripscan.services.batch import (
     BatchItem,
     BatchProgress,
     BatchSummary,
+    WorkerProcesses,
     collect_scans,
     failure_reason,
     run_batch,
@@ -53,6 +54,15 @@ def test_processes_give_every_outcome_in_the_order_given(scans):
     for item in summary.done:
         assert item.result.to_dict() == analyze_scan(item.path).to_dict()
     assert summary.workers == 2
+
+
+def test_processes_started_ahead_serve_one_batch_after_another(scans):
+    with WorkerProcesses(2, preload=("stripscan.core.pipeline",)) as workers:
+        first = run_batch(scans[:2], analyze_scan, workers=workers)
+        second = run_batch(scans[3:], analyze_scan, workers=workers)  # the first batch left them running
+    assert len(first.done) == len(second.done) == 2 and first.workers == second.workers == 2
+    with pytest.raises(RuntimeError, match="after shutdown"):  # closed by its owner, at the end
+        workers.pool.submit(print)
 
 
 def test_one_damaged_file_is_reported_and_skipped(scans):
