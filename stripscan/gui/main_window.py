@@ -332,9 +332,11 @@ class MainWindow(QMainWindow):
             self.close()
 
     # -- opening files ---------------------------------------------------------------------
-    def ask_analyse_several(self) -> BatchDialog | None:
-        """Pick scans and a folder for their results; analyse them in the background."""
-        scans, _ = QFileDialog.getOpenFileNames(self, "Scans to analyse", self.settings.last_folder(), _SCAN_FILTER)
+    def ask_analyse_several(self, scans: list[str] | None = None) -> BatchDialog | None:
+        """Pick scans (unless given: dropped) and a folder for their results; analyse them in the background."""
+        if not scans:
+            scans, _ = QFileDialog.getOpenFileNames(self, "Scans to analyse", self.settings.last_folder(),
+                                                    _SCAN_FILTER)
         if not scans:
             return None
         folder = QFileDialog.getExistingDirectory(self, "Folder for the results", str(Path(scans[0]).parent))
@@ -391,7 +393,14 @@ class MainWindow(QMainWindow):
             return
         event.acceptProposedAction()
         # A calibration dropped together with a scan is used for it.
-        for path in sorted(files, key=lambda p: not p.lower().endswith(".json")):
+        files = sorted(files, key=lambda p: not p.lower().endswith(".json"))
+        scans = [p for p in files if not p.lower().endswith(".json")]
+        if len(scans) > 1:  # several scans: analysed together, each result into a folder
+            for path in files[:len(files) - len(scans)]:
+                self.open_path(path)
+            self.ask_analyse_several(scans)
+            return
+        for path in files:
             self.open_path(path)
 
     def find_strips_again(self) -> None:

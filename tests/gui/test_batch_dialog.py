@@ -158,3 +158,24 @@ def test_closing_the_window_stops_a_batch_and_waits_for_it(qtbot, window, files,
     qtbot.waitUntil(lambda: not window.isVisible(), timeout=60_000)
     assert dialog.summary is not None and dialog.summary.cancelled  # stopped early, not run to the end
     assert len(list(out.glob("*.json"))) == len(dialog.summary.done) and not list(out.glob("*.partial"))
+
+
+def test_dropping_several_scans_analyses_them_together(qtbot, window, files, scans, tmp_path, monkeypatch):
+    from PySide6.QtCore import QMimeData, QPointF, Qt, QUrl
+    from PySide6.QtGui import QDropEvent
+    from PySide6.QtWidgets import QFileDialog
+
+    out = tmp_path / "results"
+    out.mkdir()
+    monkeypatch.setattr(QFileDialog, "getExistingDirectory", lambda *a, **k: str(out))
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(p)) for p in (scans[0], files.calibration, scans[2])])
+    window.dropEvent(QDropEvent(QPointF(20, 20), Qt.DropAction.CopyAction, mime, Qt.MouseButton.LeftButton,
+                                Qt.KeyboardModifier.NoModifier))
+    (dialog,) = window.findChildren(BatchDialog)
+    with qtbot.waitSignal(dialog.finished_batch, timeout=120_000):
+        pass
+    assert [i.path for i in dialog.summary.done] == [scans[0], scans[2]]
+    data = json.loads((out / "tuesday.results.json").read_text(encoding="utf-8"))
+    # The calibration dropped with them was used for them.
+    assert data["calibration"]["sha256"] == files.calibration_record.sha256
