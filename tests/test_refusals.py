@@ -388,7 +388,7 @@ def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys,
 def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeypatch):
     # issue item 12: names stored by an older stripscan are printed escaped, never raw
     from stripscan.archive import records
-    from stripscan.archive import service as store
+    from stripscan.archive import reference_data as store
     from stripscan.archive import Archive, EmulsionLot
 
     # As an older version stored it: without the entry checks, but through the archive (so its

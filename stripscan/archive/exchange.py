@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import csv
 import json
-import os
-import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
 from stripscan import __version__
+from stripscan._shared.atomic import replacing
 
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import (
@@ -69,39 +68,17 @@ _SECTIONS: tuple[tuple[str, type | None], ...] = (
 )
 
 
-def _plain_file_mode() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return 0o666 & ~mask
-
-
 @contextmanager
 def _replacing(path: Path, *, binary: bool = False) -> Iterator[IO[Any]]:
     """Open a temporary file beside ``path``; rename it to ``path`` only if all went well."""
     path = path.expanduser().absolute()
     try:
-        handle = tempfile.NamedTemporaryFile(
-            "wb" if binary else "w", dir=path.parent, prefix=f".{path.name}.", suffix=".partial",
-            delete=False, **({} if binary else {"encoding": "utf-8", "newline": ""}))
+        with replacing(path) as temp:
+            with open(temp, "wb" if binary else "w", **({} if binary else {"encoding": "utf-8", "newline": ""})) \
+                    as handle:
+                yield handle
     except OSError as exc:
         raise ArchiveError(f"{path}: cannot write: {exc.strerror or exc}") from None
-    try:
-        with handle:
-            yield handle
-            handle.flush()
-            os.fsync(handle.fileno())
-        # Temporary files are private (0600); give the result the mode a
-        # plainly created file would have.
-        os.chmod(handle.name, _plain_file_mode())
-        os.replace(handle.name, path)
-    except BaseException as exc:
-        try:
-            os.unlink(handle.name)
-        except OSError:
-            pass
-        if isinstance(exc, OSError):
-            raise ArchiveError(f"{path}: cannot write: {exc.strerror or exc}") from None
-        raise
 
 
 def export_data(archive: "Archive") -> dict[str, Any]:

@@ -11,8 +11,6 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import json
-import os
-import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -20,7 +18,6 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.core.records import warnings_of_strip
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
-from stripscan.archive import discard_if_empty
 from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import (
@@ -33,6 +30,7 @@ from stripscan.archive.records import (
 )
 from stripscan.archive.service import Archive, default_archive_path
 from stripscan.cli.batch import add_batch_arguments
+from stripscan.cli.common import _forget_new_archive, fail, guarded, open_from_args
 
 __all__ = ["register"]
 
@@ -46,71 +44,12 @@ _FIGURE_TITLES = {
 }
 
 
-def _fail(message: str) -> int:
-    print(f"stripscan: error: {message}", file=sys.stderr)
-    return 1
-
-
-def _quiet_stdout() -> None:
-    """Point stdout at devnull, so that the interpreter's last flush does not fail again."""
-    try:
-        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
-    except (OSError, ValueError):
-        pass
-
-
-def _guarded(handler: _Handler) -> _Handler:
-    def run(args: argparse.Namespace) -> int:
-        try:
-            return handler(args)
-        except BrokenPipeError:
-            # The reader went away (``... | true``).  These commands print only
-            # after their write committed, so nothing failed: say nothing.
-            _quiet_stdout()
-            return 0
-        except (ArchiveError, ValueError, OSError) as exc:
-            _forget_new_archive(args)
-            return _fail(str(exc))
-        except BaseException:
-            _forget_new_archive(args)
-            raise
-    run.__doc__ = handler.__doc__
-    return run
-
-
 def _date(text: str) -> str:
     try:
         check_day(text, "date")
     except ValueError as exc:
         raise argparse.ArgumentTypeError(str(exc)) from None
     return text
-
-
-def _open(args: argparse.Namespace, *, create: bool) -> Archive:
-    # Reading commands never create a file: a mistyped --archive path must
-    # say so rather than show an empty archive.
-    path = args.archive if args.archive is not None else default_archive_path()
-    if not create and not Path(path).expanduser().exists():
-        raise ArchiveError(_NO_ARCHIVE.format(path=Path(path).expanduser()))
-    if create and not Path(path).expanduser().exists():
-        args.new_archive_file = Path(path).expanduser().absolute()
-    return Archive.open(path, create=create)
-
-
-#: What a reading command says when the archive file is not there, and how one is made.
-_NO_ARCHIVE = (
-    "{path} does not exist: there is no archive there yet (check --archive or $STRIPSCAN_ARCHIVE). An archive "
-    "is made by the first command that stores something in it: 'stripscan archive add SCAN --lot ID', or "
-    "'stripscan qc add|event|limits --processor P --new-processor ...' to start a processor's QC log, or "
-    "'stripscan qc demo' for the invented demo"
-)
-
-
-def _forget_new_archive(args: argparse.Namespace) -> None:
-    """A command that failed leaves no new, empty archive file behind."""
-    created = getattr(args, "new_archive_file", None)
-    if created is not None:
-        discard_if_empty(created)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
@@ -134,10 +73,10 @@ def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
 
 
 def _exposure_table(path: Path) -> tuple[float, ...]:
-    from stripscan.cli.main import CommandError, _read_exposure_table
+    from stripscan.cli.main import CommandError, read_exposure_table
 
     try:
-        return _read_exposure_table(str(path))
+        return read_exposure_table(str(path))
     except CommandError as exc:
         raise ValueError(str(exc)) from None
 
@@ -203,7 +142,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
     if is_batch(args.scan):
         return _add_batch(args)
     args.scan = args.scan[0]
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         analysis, calibration, sensitometer = _analyse(args, archive)
         new, stored = _store(args, archive, analysis, calibration, sensitometer)
     for item in new:
@@ -252,7 +191,7 @@ def _add_batch(args: argparse.Namespace) -> int:
     from stripscan.services.batch import collect_scans
 
     scans = collect_scans(args.scan)
-    with start_workers(args, scans) as workers, _open(args, create=True) as archive:
+    with start_workers(args, scans) as workers, open_from_args(args, create=True) as archive:
         from stripscan.core.pipeline import analyze_scan
 
         calibration, options, known = _reading_setup(args, archive)
@@ -297,7 +236,7 @@ def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
 
 def _cmd_list(args: argparse.Namespace) -> int:
     """List snapshots (current ones unless --all)."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         if args.lot is not None:
             archive.get_lot(args.lot)  # an unknown lot is a mistake to name, not an empty list
         rows = archive.list_snapshots(args.lot, args.processor, include_retired=args.all,
@@ -328,7 +267,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
 
 def _cmd_show(args: argparse.Namespace) -> int:
     """Show one snapshot with its steps, revision chain and notes."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         snapshot = archive.get_snapshot(args.id)
         chain = archive.history(args.id)
         notes = archive.list_notes(args.id)
@@ -379,12 +318,12 @@ def _cmd_show(args: argparse.Namespace) -> int:
 
 def _cmd_export(args: argparse.Namespace) -> int:
     """Export snapshots' figures (CSV) or the whole archive (JSON)."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         if args.format == "csv":
             written = archive.export_csv(args.output, include_retired=args.all, include_superseded=args.all)
         else:
             if args.all:
-                return _fail("--all applies to CSV only; a JSON export always holds everything")
+                return fail("--all applies to CSV only; a JSON export always holds everything")
             written = archive.export_json(args.output)
     print(f"wrote {written}")
     return 0
@@ -392,7 +331,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 def _cmd_import(args: argparse.Namespace) -> int:
     """Import a JSON export into the archive."""
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         report = archive.import_json(args.file)
     added = ", ".join(f"{n} {k.replace('_', ' ')}" for k, n in report.added.items() if n) or "nothing new"
     same = sum(report.unchanged.values())
@@ -407,7 +346,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 def _cmd_backup(args: argparse.Namespace) -> int:
     """Copy the archive to DEST while it stays in use."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         written = archive.backup(args.dest, overwrite=args.overwrite)
     print(f"backed up {archive.path} to {written}")
     return 0
@@ -415,7 +354,7 @@ def _cmd_backup(args: argparse.Namespace) -> int:
 
 def _cmd_revise(args: argparse.Namespace) -> int:
     """Correct a snapshot: store a revision with a reason; the old snapshot stays readable, marked revised."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         old = archive.get_snapshot(args.id)
         draft = NewSnapshot(
             lot_id=old.lot_id, scan=old.scan, strip=old.strip, processor=old.processor,
@@ -456,7 +395,7 @@ def _cmd_revise(args: argparse.Namespace) -> int:
 
 def _cmd_retire(args: argparse.Namespace) -> int:
     """Withdraw a snapshot from listings and trends, with a reason; it stays readable ('archive show')."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         retired = archive.retire(args.id, args.reason or "")
     print(f"snapshot {retired.id} retired {retired.retired_at}: {retired.retired_reason}; "
           "it stays in the archive, left out of listings, trends and comparisons")
@@ -465,7 +404,7 @@ def _cmd_retire(args: argparse.Namespace) -> int:
 
 def _cmd_lot(args: argparse.Namespace) -> int:
     """Store an emulsion lot's film type, expiry date and date received (a new lot is added)."""
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         lot = archive.update_lot(args.lot, film_type=args.film_type, expiry_date=args.expires,
                                  received_date=args.received, notes=args.note, create_missing=True)
     print(f"lot {lot.lot_id}: film type {lot.film_type or '-'}; expires {lot.expiry_date or '-'}; "
@@ -475,11 +414,10 @@ def _cmd_lot(args: argparse.Namespace) -> int:
 
 def _cmd_verify(args: argparse.Namespace) -> int:
     """Check every stored record against the archive's hash chain; name the first one that does not match."""
-    path = args.archive if args.archive is not None else default_archive_path()
-    with Archive.open(path, create=False, check_chain=False) as archive:
+    with Archive.open(args.archive, create=False, check_chain=False) as archive:
         report = archive.verify()
     if not report.ok:
-        return _fail(f"{archive.path}: {report.problem}")
+        return fail(f"{archive.path}: {report.problem}")
     print(f"{archive.path}: all {report.records} records match the hash chain")
     print(f"  head: record {report.head_seq}, sha256 {report.head_sha256}")
     print("  (this detects changes made outside stripscan; it cannot prevent them. Keep the head line elsewhere "
@@ -489,7 +427,7 @@ def _cmd_verify(args: argparse.Namespace) -> int:
 
 def _cmd_lots(args: argparse.Namespace) -> int:
     """List emulsion lots with their snapshot counts and dates."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         lots = archive.list_lots()
     _print_table(["lot", "film type", "expires", "received", "snapshots", "first", "last"],
                  [[s.lot.lot_id, s.lot.film_type or "-", s.lot.expiry_date or "-", s.lot.received_date or "-",
@@ -512,15 +450,16 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
         callable taking the parsed arguments and returning the exit status.
     """
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--archive", metavar="PATH", type=Path, default=None,
-                        help=f"archive file (default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
+    common.add_argument("--archive", metavar="LOCATION", default=None,
+                        help=f"archive: a file, or a PostgreSQL server as postgresql://USER@HOST/DB "
+                             f"(default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
     parser = subparsers.add_parser("archive", help="keep strip readings for audits and lot comparison",
                                    description="Store, list and export strip readings kept for audits.")
     commands = parser.add_subparsers(dest="archive_command", metavar="COMMAND", required=True)
 
     def command(name: str, handler: _Handler, help_text: str) -> argparse.ArgumentParser:
         sub = commands.add_parser(name, parents=[common], help=help_text, description=handler.__doc__)
-        sub.set_defaults(func=_guarded(handler))
+        sub.set_defaults(func=guarded(handler))
         return sub
 
     add = command("add", _cmd_add, "analyse a scan (or several) and store its strips")

@@ -155,10 +155,6 @@ def tolerances_from_args(items: Sequence[str] | None) -> dict[str, Tolerance]:
     return tolerances
 
 
-#: The name the report commands first imported; kept so they keep working.
-_tolerances = tolerances_from_args
-
-
 def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     # Archive errors are not ValueErrors; every failure becomes one line on stderr.
     def run(args: argparse.Namespace) -> int:
@@ -346,7 +342,7 @@ def _check_processed_together(old: StripSet, new: StripSet, loader: SetLoader, d
 
 def cmd_crossover(args: argparse.Namespace) -> int:
     """Move a processor's operating levels to a new box of QC film."""
-    from stripscan.archive import Archive, default_archive_path
+    from stripscan.archive import Archive
     from stripscan.core.qc.rules import crossover
     from stripscan.services.qc_log import load_processor_log
 
@@ -355,8 +351,7 @@ def cmd_crossover(args: argparse.Namespace) -> int:
     date = args.date or datetime.date.today()
     day = date.isoformat()
     old_spec, new_spec = parse_set(args.old), parse_set(args.new)
-    path = args.archive if args.archive is not None else default_archive_path()
-    with Archive.open(path, create=False) as archive:
+    with Archive.open(args.archive, create=False) as archive:
         log = load_processor_log(archive, args.processor)
         earlier = [c for c in archive.list_crossovers(args.processor) if c.date == day]
         if earlier:
@@ -434,7 +429,7 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("sets", nargs="+", metavar="SET", help=set_help)
     p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets (none: uncalibrated direct mode)")
-    p.add_argument("--archive", metavar="PATH", help="archive for snapshot: and lot: sets (default: $STRIPSCAN_ARCHIVE "
+    p.add_argument("--archive", metavar="LOCATION", help="archive for snapshot: and lot: sets (default: $STRIPSCAN_ARCHIVE "
                    "or the user's data folder)")
     p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
     p.add_argument("--tolerance", action="append", metavar="FIGURE=VALUE",
@@ -456,7 +451,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("--date", type=_parse_date, metavar="YYYY-MM-DD", help="day of the crossover (default: today)")
     p.add_argument("--strips", type=int, default=5, metavar="N",
                    help="strips needed of each film, at least (common practice: 5); as many old as new")
-    p.add_argument("--archive", metavar="PATH", help="the archive (default: $STRIPSCAN_ARCHIVE or the user's data folder)")
+    p.add_argument("--archive", metavar="LOCATION", help="the archive (default: $STRIPSCAN_ARCHIVE or the user's data folder)")
     p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets")
     p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
     p.add_argument("--base-fog-rule", choices=("new_mean", "shift"), default="new_mean",

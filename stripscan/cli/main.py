@@ -70,7 +70,16 @@ def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
     return f"{value:.{digits}f}{unit}"
 
 
-def _read_exposure_table(path: str) -> tuple[float, ...]:
+def _write_text_atomic(path: Path, text: str) -> None:
+    from stripscan._shared.atomic import write_text
+
+    try:
+        write_text(path, text)
+    except OSError as exc:
+        raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
+
+
+def read_exposure_table(path: str) -> tuple[float, ...]:
     """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
     from stripscan.core.calibration import read_table_text
 
@@ -184,8 +193,8 @@ def _analysis_options(args):
         dd_rule=args.dd_rule,
         reference_speed_log_exposure=args.reference_speed,
     )
-    table = _read_exposure_table(args.exposures) if args.exposures else None
-    kerma = _read_exposure_table(args.air_kerma) if args.air_kerma else None
+    table = read_exposure_table(args.exposures) if args.exposures else None
+    kerma = read_exposure_table(args.air_kerma) if args.air_kerma else None
     n_steps = args.steps
     if table is not None and n_steps is None:
         n_steps = len(table)
@@ -235,7 +244,7 @@ def analysis_from_args(args, path):
 
 def cmd_analyze(args) -> int:
     from stripscan.cli.batch import is_batch
-    from stripscan.services.scan_results import analysis_json, write_text_atomic
+    from stripscan.services.scan_results import analysis_json
 
     if is_batch(args.scan):
         return _analyze_batch(args)
@@ -244,7 +253,7 @@ def cmd_analyze(args) -> int:
     # Everything printed is made before the file is written: a failure leaves no file behind.
     shown = text if args.json else format_analysis(analysis)
     if args.output:
-        write_text_atomic(args.output, text + "\n")
+        _write_text_atomic(Path(args.output), text + "\n")
     print(shown)
     return EXIT_OK
 
@@ -330,7 +339,7 @@ def cmd_calibrate(args) -> int:
     return EXIT_OK
 
 
-def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
+def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--calibration", metavar="CAL.json", help="calibration from 'stripscan calibrate' (none: uncalibrated direct mode)")
     p.add_argument("--tablet-certificate", metavar="CERT.csv",
                    help="a reference tablet lies on this scan beside the strips: calibrate the scan with it "
@@ -352,7 +361,7 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--clear-area", metavar="X0,Y0,X1,Y1", help="direct mode: a clear area (px) whose signal is I0")
 
 
-def _add_scan_arguments(p: argparse.ArgumentParser) -> None:
+def add_scan_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--dpi", type=float, help="resolution, overriding the file's tags")
     p.add_argument("--channel", default="auto", choices=("auto", "mean", "red", "green", "blue", "luminance"),
                    help="how colour channels become one signal (default: mean of R, G, B)")
@@ -381,8 +390,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("scan", nargs="+", metavar="SCAN",
                    help="scan of processed strips (TIFF, PNG or JPEG); several scans, or a folder of them, are read "
                         "on every core, each result written into the -o folder")
-    _add_analysis_arguments(p)
-    _add_scan_arguments(p)
+    add_analysis_arguments(p)
+    add_scan_arguments(p)
     p.add_argument("--json", action="store_true", help="print the full result as JSON (one scan)")
     p.add_argument("-o", "--output", metavar="OUT.json|FOLDER",
                    help="also save the JSON result here; with several scans, the folder that gets each scan's "
@@ -399,7 +408,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="fit the across-carriage response OD = c0 + c x^2 from a uniform scan (open platen or uniform film)")
     p.add_argument("--lateral-axis", choices=("col", "row"), default="col",
                    help="image axis that runs across the carriage (default: columns)")
-    _add_scan_arguments(p)
+    add_scan_arguments(p)
     p.set_defaults(func=cmd_calibrate)
 
     p = sub.add_parser("demo", help="open the desktop window on the bundled invented scenario")

@@ -39,8 +39,8 @@ from typing import TYPE_CHECKING, Any
 from stripscan import CAUTION
 from stripscan.archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
-from stripscan.cli.archive import _fail, _guarded, _open
 from stripscan.cli.batch import add_batch_arguments
+from stripscan.cli.common import fail, guarded, open_from_args
 from stripscan.core.qc.names import EVENT_KINDS, LABELS, QUANTITIES, VERDICT_WORDS
 from stripscan.archive import ArchiveError, DuplicateDayError, OutOfOrderError
 
@@ -79,16 +79,16 @@ def _cmd_add(args: argparse.Namespace) -> int:
     day = _day(args.date)
     typed = [args.base_fog, args.mid_density, args.density_difference]
     if args.scan is not None and any(v is not None for v in typed):
-        return _fail("give either SCAN or the three typed values (--base-fog, --mid-density, "
+        return fail("give either SCAN or the three typed values (--base-fog, --mid-density, "
                      "--density-difference), not both")
     if args.scan is None and None in typed:
         missing = [f"--{q.replace('_', '-')}" for q, v in zip(QUANTITIES, typed) if v is None]
-        return _fail(f"give a SCAN, or all three typed values (missing: {', '.join(missing)})")
+        return fail(f"give a SCAN, or all three typed values (missing: {', '.join(missing)})")
     if args.scan is None and (args.calibration or args.strip is not None or args.lot):
-        return _fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
+        return fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
     if args.scan is not None and args.calibration is None:
         # The log refuses an uncalibrated read anyway (qc_log.read_strip); say so before the scan is analysed.
-        return _fail(uncalibrated_refusal(Path(args.scan).name))
+        return fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:
         from stripscan.core.calibration import load_calibration
@@ -98,7 +98,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
         calibration = cal.to_dict()
         analysis = analyze_scan(args.scan, calibration=cal)
     values = None if analysis is not None else QCValues(*typed)
-    with _open(args, create=args.new_processor) as archive:
+    with open_from_args(args, create=args.new_processor) as archive:
         added = _store_day(args, archive, day, values=values, analysis=analysis, calibration=calibration)
     _print_stored(args, added)
     print(status_text(added.plog, added.plog.status(day)))
@@ -167,20 +167,20 @@ def _add_days(args: argparse.Namespace) -> int:
 
     _processor(args)
     if any(v is not None for v in (args.base_fog, args.mid_density, args.density_difference)):
-        return _fail("typed values are one day's: give them without a SCAN")
+        return fail("typed values are one day's: give them without a SCAN")
     one_day = [name for name, given in (("--date", args.date), ("--note", args.note), ("--action", args.action),
                                         ("--repeat", args.repeat)) if given]
     if one_day:
-        return _fail(f"{', '.join(one_day)} {'belongs' if len(one_day) == 1 else 'belong'} to one day: with several scans each file's name gives its "
+        return fail(f"{', '.join(one_day)} {'belongs' if len(one_day) == 1 else 'belong'} to one day: with several scans each file's name gives its "
                      "day; add that day's scan alone (a note or an action can also be added later with "
                      "'stripscan qc correct')")
     scans = collect_scans(args.scan)
     if args.calibration is None:
-        return _fail(uncalibrated_refusal(", ".join(p.name for p in scans[:3]) + (", ..." if len(scans) > 3 else "")))
+        return fail(uncalibrated_refusal(", ".join(p.name for p in scans[:3]) + (", ..." if len(scans) > 3 else "")))
     days = {path: _day_in_name(path) for path in scans}
     scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
     stored: list[Any] = []
-    with start_workers(args, scans) as workers, _open(args, create=args.new_processor) as archive:
+    with start_workers(args, scans) as workers, open_from_args(args, create=args.new_processor) as archive:
         from stripscan.core.calibration import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
@@ -211,7 +211,7 @@ def _cmd_correct(args: argparse.Namespace) -> int:
 
     if not args.reason or not args.reason.strip():
         raise ValueError("--reason is needed: say why the entry was wrong (it is kept with the correction)")
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         old = archive.get_qc_entry(args.entry)
         added = correct_entry(archive, args.entry, reason=args.reason, base_fog=args.base_fog,
                               mid_density=args.mid_density, density_difference=args.density_difference,
@@ -234,14 +234,14 @@ def _cmd_status(args: argparse.Namespace) -> int:
     from stripscan.services.qc_log import load_processor_log, status_json, status_text
 
     on = _day(args.on, "--on") if args.on is not None else None
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         names = [args.processor] if args.processor is not None else [p.name for p in archive.list_processors()]
         logs = [load_processor_log(archive, name) for name in names]
     if args.processor is None:
         # Processors without any QC (only lot readings) have nothing to report.
         logs = [p for p in logs if p.log.entries or p.log.events]
     if not logs:
-        return _fail(f"{archive.path} holds no processor with a QC log")
+        return fail(f"{archive.path} holds no processor with a QC log")
     if args.json:
         data = [status_json(p, p.status(on)) for p in logs]
         print(json.dumps(data[0] if args.processor is not None else data, ensure_ascii=False, indent=1))
@@ -275,7 +275,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
     from stripscan.services.qc_log import load_processor_log
 
     _processor(args)
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         plog = load_processor_log(archive, args.processor)
     header = ["entry", "date", "source", *(LABELS[q] for q in QUANTITIES), *(f"dev {LABELS[q]}" for q in QUANTITIES),
               "verdict", "used", "note"]
@@ -307,7 +307,7 @@ def _cmd_chart(args: argparse.Namespace) -> int:
     if args.output is None:
         raise ValueError("-o FILE.png is needed: where to write the chart")
 
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         plog = load_processor_log(archive, args.processor)
     data = chart_data(plog, month=args.month)
     written = render_chart_png(data, args.output, size=(args.width, args.height))
@@ -324,7 +324,7 @@ def _cmd_event(args: argparse.Namespace) -> int:
     day = _day(args.date)
     if args.kind is None:
         raise ValueError(f"--kind is needed, one of: {', '.join(EVENT_KINDS)}")
-    with _open(args, create=args.new_processor) as archive:
+    with open_from_args(args, create=args.new_processor) as archive:
         plog = add_event(archive, args.processor, day, args.kind, args.note or "", new_processor=args.new_processor)
         crossover_records = [c for c in archive.list_crossovers(args.processor) if c.date == day.isoformat()]
     event = [e for e in plog.log.events if e.date == day][-1]
@@ -352,12 +352,12 @@ def _cmd_limits(args: argparse.Namespace) -> int:
         if value is not None:
             changes[key] = value
     if args.no_warning and args.warning is not None:
-        return _fail("give --warning or --no-warning, not both")
+        return fail("give --warning or --no-warning, not both")
     if args.warning is not None:
         changes["md_dd_warning"] = args.warning
     if args.no_warning:
         changes["md_dd_warning"] = None
-    with _open(args, create=bool(changes) and args.new_processor) as archive:
+    with open_from_args(args, create=bool(changes) and args.new_processor) as archive:
         if changes or args.new_processor:
             setup = set_limits(archive, args.processor, new_processor=args.new_processor, reason=args.reason or "",
                                **changes)
@@ -394,7 +394,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     from stripscan.services.qc_demo import build_demo_qc
     from stripscan.services.qc_log import status_text
 
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         summary = build_demo_qc(archive, demo_files())
     print(f"built the demo QC month in {archive.path}: {summary.describe()}")
     print(status_text(summary.plog))
@@ -417,8 +417,9 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
         The ``qc`` parser; every leaf sets ``func`` (parsed arguments -> exit status).
     """
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--archive", metavar="PATH", type=Path, default=None,
-                        help=f"archive file (default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
+    common.add_argument("--archive", metavar="LOCATION", default=None,
+                        help=f"archive: a file, or a PostgreSQL server as postgresql://USER@HOST/DB "
+                             f"(default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
     parser = subparsers.add_parser("qc", help="daily processor QC: log, status, chart",
                                    description="Keep each processor's daily QC strips and judge them against "
                                                "operating levels and control limits.",
@@ -427,7 +428,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
 
     def command(name: str, handler: _Handler, help_text: str, *, processor: str = "required") -> Any:
         sub = commands.add_parser(name, parents=[common], help=help_text, description=handler.__doc__)
-        sub.set_defaults(func=_guarded(handler))
+        sub.set_defaults(func=guarded(handler))
         if processor != "none":
             # Checked by the handlers, so that a missing name is answered in one line like every other error.
             sub.add_argument("--processor", metavar="P", help="processor name, as stored in the archive"

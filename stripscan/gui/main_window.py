@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (
 )
 
 from stripscan import CAUTION, __version__
+from stripscan._shared.atomic import write_text
 from stripscan.core.calibration import load_calibration
 from stripscan.render import qtguard
 from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
@@ -505,12 +506,9 @@ class MainWindow(QMainWindow):
             return None
         path = Path(path)
         data = {**analysis.to_dict(), "caution": CAUTION}
-        tmp = path.with_name(path.name + ".partial")
         try:
-            tmp.write_text(json.dumps(data, indent=1) + "\n", encoding="utf-8")
-            os.replace(tmp, path)
+            write_text(path, json.dumps(data, indent=1) + "\n")
         except OSError as exc:
-            tmp.unlink(missing_ok=True)
             report_error(self, "The results were not saved", OSError(f"{path}: {exc.strerror or exc}"))
             return None
         self.statusBar().showMessage(f"Results saved to {path}", 8000)

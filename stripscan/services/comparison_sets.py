@@ -169,10 +169,9 @@ class SetLoader:
 
     def _open_archive(self) -> Any:
         if self._archive is None:
-            from stripscan.archive import Archive, default_archive_path
+            from stripscan.archive import Archive
 
-            path = self.archive_path if self.archive_path is not None else default_archive_path()
-            self._archive = Archive.open(path, read_only=True)
+            self._archive = Archive.open(self.archive_path, read_only=True)
             self._own_archive = True
         return self._archive
 

@@ -10,7 +10,7 @@ import shutil
 from collections.abc import Callable
 from typing import TextIO
 
-from .batch import BatchProgress, BatchSummary
+from stripscan.services.batch import BatchProgress, BatchSummary
 
 __all__ = ["ProgressLine", "duration_text", "progress_text", "summary_lines"]
 

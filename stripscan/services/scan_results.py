@@ -15,10 +15,11 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from .. import CAUTION
+from stripscan import CAUTION
+from stripscan._shared.atomic import write_text
 
 __all__ = ["RESULT_SUFFIX", "WrittenResult", "analyse_into_folder", "analysis_json", "check_result_names",
-           "result_path", "write_text_atomic"]
+           "result_path"]
 
 #: What a scan's result file is called after the scan: ``NAME.results.json`` (as the window offers to save it).
 RESULT_SUFFIX = ".results.json"
@@ -70,7 +71,7 @@ def _gradient_curve(strip: Any) -> dict | None:
     """The gradient curve (dD/dlog E) of a strip's usable steps, every 0.05 log E."""
     import numpy as np
 
-    from ..core.curve import strip_curve
+    from stripscan.core.curve import strip_curve
 
     curve = strip_curve(strip)
     if curve is None:
@@ -88,27 +89,6 @@ def analysis_json(analysis: Any) -> dict[str, Any]:
         out["gradient_curve"] = _gradient_curve(strip)
     data["caution"] = CAUTION
     return data
-
-
-def write_text_atomic(path: str | os.PathLike[str], text: str) -> None:
-    """Write UTF-8 ``text`` to ``path`` whole or not at all (a ``.partial`` file renamed over it).
-
-    Raises
-    ------
-    OSError
-        With a message that names the file; no ``.partial`` file is left.
-    """
-    path = Path(path)
-    tmp = path.with_name(path.name + ".partial")
-    try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
-    except OSError as exc:
-        try:
-            tmp.unlink(missing_ok=True)
-        except OSError:  # a read-only folder refuses even that; nothing was left there
-            pass
-        raise OSError(f"{path}: cannot write ({exc.strerror or exc})") from None
 
 
 def analyse_into_folder(scan: str | os.PathLike[str], *, folder: str | os.PathLike[str], calibration: Any = None,
@@ -130,10 +110,13 @@ def analyse_into_folder(scan: str | os.PathLike[str], *, folder: str | os.PathLi
     -------
     WrittenResult
     """
-    from ..core.pipeline import AnalysisOptions, analyze_scan
+    from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 
     analysis = analyze_scan(scan, calibration=calibration, options=options or AnalysisOptions(), dpi=dpi,
                             channel=channel, flat_field_scan=flat_field_scan, tablet_certificate=tablet_certificate)
     output = result_path(scan, folder)
-    write_text_atomic(output, json.dumps(analysis_json(analysis), indent=1, ensure_ascii=False) + "\n")
+    try:
+        write_text(output, json.dumps(analysis_json(analysis), indent=1, ensure_ascii=False) + "\n")
+    except OSError as exc:
+        raise OSError(f"{output}: cannot write ({exc.strerror or exc})") from None
     return WrittenResult(Path(scan), output, len(analysis.strips), tuple(analysis.warnings))

@@ -14,7 +14,6 @@ from stripscan.services.scan_results import (
     analyse_into_folder,
     check_result_names,
     result_path,
-    write_text_atomic,
 )
 
 
@@ -37,11 +36,10 @@ def test_result_file_holds_the_analysis_with_its_gradient_curve_and_the_caution(
     assert list(tmp_path.iterdir()) == [written.output]  # no .partial left beside it
 
 
-def test_a_failed_write_leaves_nothing_and_names_the_file(tmp_path):
+def test_a_failed_write_leaves_nothing_and_names_the_file(scan, tmp_path):
     (tmp_path / "taken").write_text("a file, not a folder")
-    target = tmp_path / "taken" / "x.results.json"
-    with pytest.raises(OSError, match="x.results.json: cannot write"):
-        write_text_atomic(target, "{}")
+    with pytest.raises(OSError, match="strip.results.json: cannot write"):
+        analyse_into_folder(scan, folder=tmp_path / "taken")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["taken"]
 
 
