@@ -575,7 +575,8 @@ def _kept_clean_cases(tmp: Path, demo) -> dict:
     scan, tablet = demo.daily_scans[0][1], demo.tablet_scan
     return {
         "scan missing": (["analyze", tmp / "none.tif"], "none.tif: no such file"),
-        "scan is a folder": (["analyze", tmp], "is a folder"),
+        # A folder is read as a batch of the scans in it, whose results need a folder of their own.
+        "scan is a folder": (["analyze", tmp], "a folder of them: give -o FOLDER"),
         "calibration missing": (["analyze", scan, "--calibration", tmp / "none.json"], "no such calibration file"),
         "calibration not JSON": (["analyze", scan, "--calibration", tmp / "text.txt"], "invalid JSON"),
         "certificate missing": (["calibrate", tablet, "--densities", tmp / "none.csv", "-o", tmp / "c.json"],

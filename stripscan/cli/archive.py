@@ -23,7 +23,8 @@ from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapshot, snapshot_status
 from stripscan.archive.values import check_day
 from stripscan.archive.service import Archive, default_archive_path
-from stripscan.cli.common import fail, guarded, open_from_args
+from stripscan.cli.batch import add_batch_arguments
+from stripscan.cli.common import fail, forget_new_archive, guarded, open_from_args
 from stripscan.core.figures import figure_digits
 
 __all__ = ["register"]
@@ -81,9 +82,28 @@ def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sens
     given; one not stored yet is stored with the table the strips were read
     with (``--exposures``, or ``--increment`` per step).
     """
+    from stripscan.core.pipeline import analyze_scan
+
+    calibration, options, known = _reading_setup(args, archive)
+    analysis = analyze_scan(args.scan, calibration=calibration, options=options)
+    return analysis, calibration, _new_sensitometer(args, known, analysis)
+
+
+def _new_sensitometer(args: argparse.Namespace, known: Sensitometer | None, analysis: Any) -> Sensitometer | None:
+    """The sensitometer ``--sensitometer`` names, to store with the snapshots when the archive lacks it."""
+    if args.sensitometer is not None and known is None and analysis.strips:
+        return Sensitometer(args.sensitometer, log_exposures=tuple(s.log_exposure for s in analysis.strips[0].steps))
+    return None
+
+
+def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sensitometer | None]:
+    """The calibration (or None), the analysis options and the stored sensitometer named (or None).
+
+    Read once for all the scans of a command.
+    """
     from stripscan.core.calibration import load_calibration
     from stripscan.core.curve import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+    from stripscan.core.pipeline import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None
@@ -99,11 +119,7 @@ def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sens
     n_steps = args.steps if args.steps is not None or table is None else len(table)
     options = AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table,
                               figures=FigureSettings(gradient_low=args.low, gradient_high=args.high))
-    analysis = analyze_scan(args.scan, calibration=calibration, options=options)
-    new = None
-    if args.sensitometer is not None and known is None and analysis.strips:
-        new = Sensitometer(args.sensitometer, log_exposures=tuple(s.log_exposure for s in analysis.strips[0].steps))
-    return analysis, calibration, new
+    return calibration, options, known
 
 
 def _sensitometer_note(new: Sensitometer) -> str:
@@ -112,32 +128,86 @@ def _sensitometer_note(new: Sensitometer) -> str:
 
 
 def _cmd_add(args: argparse.Namespace) -> int:
-    """Analyse a scan and store one snapshot per strip."""
+    """Analyse a scan (or several, or a folder of them) and store one snapshot per strip."""
+    from stripscan.cli.batch import is_batch
+
+    if is_batch(args.scan):
+        return _add_batch(args)
+    args.scan = args.scan[0]
     with open_from_args(args, create=True) as archive:
         analysis, calibration, sensitometer = _analyse(args, archive)
-        if not args.again:
-            _refuse_stored_scan(archive, analysis)
-        new = []
-        if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
-            new.append(f"lot {args.lot!r}")
-        if args.processor is not None and all(p.name != args.processor for p in archive.list_processors()):
-            new.append(f"processor {args.processor!r}")
-        stored = archive.add_analysis(
-            analysis, args.lot, calibration=calibration.to_dict() if calibration is not None else None,
-            create_missing=True, processor=args.processor, operator=args.operator or "",
-            exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "",
-            sensitometer=args.sensitometer, new_sensitometer=sensitometer)
+        new, stored = _store(args, archive, analysis, calibration, sensitometer)
     for item in new:
         print(f"note: {item} was not in the archive; added it with no further details")
     if sensitometer is not None:
         print(f"note: {_sensitometer_note(sensitometer)}")
     if calibration is None:
-        print("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
-              "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
-              "with calibrated ones")
+        print(_UNCALIBRATED)
     for snapshot in stored:
         print(f"snapshot {snapshot.id}: {_stored_line(snapshot)}")
     return 0
+
+
+_UNCALIBRATED = ("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
+                 "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
+                 "with calibrated ones")
+
+
+def _store(args: argparse.Namespace, archive: Archive, analysis: Any, calibration: Any,
+           sensitometer: Sensitometer | None) -> tuple[list[str], list[Snapshot]]:
+    """Store one scan's strips in one transaction; what was new to the archive, and the snapshots."""
+    if not args.again:
+        _refuse_stored_scan(archive, analysis)
+    new = []
+    if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
+        new.append(f"lot {args.lot!r}")
+    if args.processor is not None and all(p.name != args.processor for p in archive.list_processors()):
+        new.append(f"processor {args.processor!r}")
+    stored = archive.add_analysis(
+        analysis, args.lot, calibration=calibration.to_dict() if calibration is not None else None,
+        create_missing=True, processor=args.processor, operator=args.operator or "",
+        exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "",
+        sensitometer=args.sensitometer, new_sensitometer=sensitometer)
+    return new, stored
+
+
+def _add_batch(args: argparse.Namespace) -> int:
+    """Several scans: read on every core, each stored here as it comes, in the order given, one transaction each.
+
+    A scan that cannot be read or stored is reported and skipped; the
+    others are stored.
+    """
+    import functools
+
+    from stripscan.cli.batch import run_batch_command, start_workers
+    from stripscan.services.batch import collect_scans
+
+    scans = collect_scans(args.scan)
+    with start_workers(args, scans) as workers, open_from_args(args, create=True) as archive:
+        from stripscan.core.pipeline import analyze_scan
+
+        calibration, options, known = _reading_setup(args, archive)
+
+        def store(item: Any) -> None:
+            nonlocal known
+            sensitometer = _new_sensitometer(args, known, item.result)
+            new, stored = _store(args, archive, item.result, calibration, sensitometer)
+            for what in new:
+                print(f"note: {what} was not in the archive; added it with no further details")
+            if sensitometer is not None:
+                print(f"note: {_sensitometer_note(sensitometer)}")
+                known = sensitometer
+            for snapshot in stored:
+                print(f"snapshot {snapshot.id}: {_stored_line(snapshot)} ({item.path.name})")
+
+        work = functools.partial(analyze_scan, calibration=calibration, options=options)
+        summary = run_batch_command(args, scans, work, workers=workers, done_word="stored", ordered=True,
+                                    on_result=store, expected=(ArchiveError,))
+    if not summary.done:
+        forget_new_archive(args)
+    elif calibration is None:
+        print(_UNCALIBRATED)
+    return 1 if summary.failed or summary.cancelled else 0
 
 
 def _stored_line(snapshot: Snapshot) -> str:
@@ -386,8 +456,10 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
         sub.set_defaults(func=guarded(handler))
         return sub
 
-    add = command("add", _cmd_add, "analyse a scan and store its strips")
-    add.add_argument("scan", metavar="SCAN", type=Path, help="scanned strip(s), as analysed by stripscan")
+    add = command("add", _cmd_add, "analyse a scan (or several) and store its strips")
+    add.add_argument("scan", metavar="SCAN", type=Path, nargs="+",
+                     help="scanned strip(s), as analysed by stripscan; several scans, or a folder of them, are read "
+                          "on every core and stored one after the other, in the order given")
     add.add_argument("--lot", required=True, metavar="ID", help="emulsion lot of the film")
     add.add_argument("--processor", metavar="P", help="processor the strips went through")
     add.add_argument("--calibration", metavar="CAL.json", type=Path, help="scanner calibration to use")
@@ -399,6 +471,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     _reading_arguments(add)
     add.add_argument("--again", action="store_true",
                      help="store the scan even if the archive holds its strips already (same file, sha256)")
+    add_batch_arguments(add)
 
     listing = command("list", _cmd_list, "list snapshots")
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")

@@ -17,7 +17,7 @@ from stripscan.archive import discard_if_empty, parse_location
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.service import Archive
 
-__all__ = ["Handler", "fail", "guarded", "open_from_args"]
+__all__ = ["Handler", "fail", "guarded", "open_from_args", "forget_new_archive"]
 
 Handler = Callable[[argparse.Namespace], int]
 
@@ -45,10 +45,10 @@ def guarded(handler: Handler) -> Handler:
             _quiet_stdout()
             return 0
         except (ArchiveError, ValueError, OSError) as exc:
-            _forget_new_archive(args)
+            forget_new_archive(args)
             return fail(str(exc))
         except BaseException:
-            _forget_new_archive(args)
+            forget_new_archive(args)
             raise
     run.__doc__ = handler.__doc__
     return run
@@ -81,7 +81,7 @@ _NO_ARCHIVE = (
 )
 
 
-def _forget_new_archive(args: argparse.Namespace) -> None:
+def forget_new_archive(args: argparse.Namespace) -> None:
     """A command that failed leaves no new, empty archive file behind."""
     created = getattr(args, "new_archive_file", None)
     if created is not None:

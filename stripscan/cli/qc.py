@@ -6,6 +6,8 @@
     stripscan qc add --processor P --date YYYY-MM-DD --base-fog X --mid-density Y --density-difference Z
     stripscan qc add ... --repeat          (a second strip of the latest day; it then counts for the day)
     stripscan qc add ... --late            (a missed earlier day, stored marked as entered late)
+    stripscan qc add --processor P --calibration CAL.json SCAN SCAN ... | FOLDER
+                                           (several days' scans, each day from its file's name)
     stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--date D]
                          [--note T] [--action T] --reason TEXT
     stripscan qc status [--processor P] [--json] [--on YYYY-MM-DD]
@@ -29,6 +31,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -36,9 +39,10 @@ from typing import TYPE_CHECKING, Any
 from stripscan import CAUTION
 from stripscan.archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
+from stripscan.cli.batch import add_batch_arguments
 from stripscan.cli.common import fail, guarded, open_from_args
 from stripscan.core.qc.names import EVENT_KINDS, LABELS, QUANTITIES, VERDICT_WORDS
-from stripscan.archive import DuplicateDayError, OutOfOrderError
+from stripscan.archive import ArchiveError, DuplicateDayError, OutOfOrderError
 
 if TYPE_CHECKING:
     from stripscan.services.qc_log import LoggedEntry
@@ -63,10 +67,14 @@ def _day(text: str | None, what: str = "--date") -> Any:
 
 
 def _cmd_add(args: argparse.Namespace) -> int:
-    """Add a day's QC entry, read off a scan or typed in from a densitometer."""
+    """Add a day's QC entry, read off a scan or typed in from a densitometer (or several days' scans)."""
+    from stripscan.cli.batch import is_batch
     from stripscan.core.qc.records import QCValues
-    from stripscan.services.qc_log import add_day, status_text, uncalibrated_refusal
+    from stripscan.services.qc_log import status_text, uncalibrated_refusal
 
+    if is_batch(args.scan):
+        return _add_days(args)
+    args.scan = args.scan[0] if args.scan else None
     _processor(args)
     day = _day(args.date)
     typed = [args.base_fog, args.mid_density, args.density_difference]
@@ -91,17 +99,33 @@ def _cmd_add(args: argparse.Namespace) -> int:
         analysis = analyze_scan(args.scan, calibration=cal)
     values = None if analysis is not None else QCValues(*typed)
     with open_from_args(args, create=args.new_processor) as archive:
-        try:
-            added = add_day(archive, args.processor, day, values=values, analysis=analysis, strip=args.strip,
-                            calibration=calibration, lot=args.lot, note=args.note or "", action=args.action or "",
-                            new_processor=args.new_processor, repeat=args.repeat, late=args.late)
-        except DuplicateDayError as exc:
-            raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
-        except OutOfOrderError as exc:
-            if args.repeat:
-                raise OutOfOrderError(f"{exc}; nothing was stored") from None
-            # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
-            raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
+        added = _store_day(args, archive, day, values=values, analysis=analysis, calibration=calibration)
+    _print_stored(args, added)
+    print(status_text(added.plog, added.plog.status(day)))
+    if added.status.verdict == "action" and not added.status.baseline_in_progress:
+        print(f"  To keep a repeat strip of {day.isoformat()} beside this one: stripscan qc add --repeat ...")
+    return 0
+
+
+def _store_day(args: argparse.Namespace, archive: Any, day: Any, **reading: Any) -> Any:
+    """``add_day`` with the command's options; its refusals say which option would allow the entry."""
+    from stripscan.services.qc_log import add_day
+
+    try:
+        return add_day(archive, args.processor, day, strip=args.strip, lot=args.lot, note=args.note or "",
+                       action=args.action or "", new_processor=args.new_processor, repeat=args.repeat,
+                       late=args.late, **reading)
+    except DuplicateDayError as exc:
+        raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
+    except OutOfOrderError as exc:
+        if args.repeat:
+            raise OutOfOrderError(f"{exc}; nothing was stored") from None
+        # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
+        raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
+
+
+def _print_stored(args: argparse.Namespace, added: Any, source: str = "") -> None:
+    """The notes of a stored entry and its line: entry number, day, steps, values (``source``: the file)."""
     for note in added.notes:
         print(f"note: {note}")
     e = added.entry
@@ -112,11 +136,73 @@ def _cmd_add(args: argparse.Namespace) -> int:
     kind = f", repeat of entry {e.repeat_of}" if e.repeat_of is not None else ""
     kind += ", entered late" if e.entered_late else ""
     print(f"stored entry {e.id}: {args.processor!r} {e.date} ({e.source}{where}{kind}): "
-          + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES))
-    print(status_text(added.plog, added.plog.status(day)))
-    if added.status.verdict == "action" and not added.status.baseline_in_progress:
-        print(f"  To keep a repeat strip of {day.isoformat()} beside this one: stripscan qc add --repeat ...")
-    return 0
+          + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES) + (f" ({source})" if source else ""))
+
+
+#: A day written in a file's name, as the demo's daily scans carry it (``daily_processor-1_2026-11-02.tif``).
+_DAY_IN_NAME = re.compile(r"(?<!\d)(\d{4}-\d{2}-\d{2})(?!\d)")
+
+
+def _day_in_name(path: Path) -> Any:
+    days = set(_DAY_IN_NAME.findall(path.name))
+    if len(days) != 1:
+        found = "no date" if not days else f"{len(days)} dates ({', '.join(sorted(days))})"
+        raise ValueError(f"{path}: {found} in its name; with several scans each file's name gives the day its strip "
+                         "was processed, written YYYY-MM-DD (or add the scan alone with --date)")
+    return _day(days.pop(), f"{path}: the date in its name,")
+
+
+def _add_days(args: argparse.Namespace) -> int:
+    """Several days' scans (or a folder of them): read on every core, stored day after day.
+
+    Each file's name gives its day (YYYY-MM-DD in it); the entries are
+    stored in date order, one transaction each.  A scan that cannot be read
+    or stored is reported and skipped; the days after it are still stored.
+    """
+    import functools
+
+    from stripscan.cli.batch import run_batch_command, start_workers
+    from stripscan.services.batch import collect_scans
+    from stripscan.services.qc_log import status_text, uncalibrated_refusal
+
+    _processor(args)
+    if any(v is not None for v in (args.base_fog, args.mid_density, args.density_difference)):
+        return fail("typed values are one day's: give them without a SCAN")
+    one_day = [name for name, given in (("--date", args.date), ("--note", args.note), ("--action", args.action),
+                                        ("--repeat", args.repeat)) if given]
+    if one_day:
+        return fail(f"{', '.join(one_day)} {'belongs' if len(one_day) == 1 else 'belong'} to one day: with several scans each file's name gives its "
+                     "day; add that day's scan alone (a note or an action can also be added later with "
+                     "'stripscan qc correct')")
+    scans = collect_scans(args.scan)
+    if args.calibration is None:
+        return fail(uncalibrated_refusal(", ".join(p.name for p in scans[:3]) + (", ..." if len(scans) > 3 else "")))
+    days = {path: _day_in_name(path) for path in scans}
+    scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
+    stored: list[Any] = []
+    with start_workers(args, scans) as workers, open_from_args(args, create=args.new_processor) as archive:
+        from stripscan.core.calibration import load_calibration
+        from stripscan.core.pipeline import analyze_scan
+
+        calibration = load_calibration(args.calibration)
+
+        def store(item: Any) -> None:
+            added = _store_day(args, archive, days[item.path], analysis=item.result,
+                               calibration=calibration.to_dict())
+            stored.append(added)
+            _print_stored(args, added, item.path.name)
+            # Each day's verdict as it was stored: a day that called for action stays in view.
+            st = added.status
+            print("  that day: " + (f"baseline, {st.baseline_days} of {st.baseline_needed} strips"
+                                    if st.baseline_in_progress else VERDICT_WORDS[st.verdict])
+                  + (f" (trend rules fired: {', '.join(st.rules_fired)})" if st.rules_fired else ""))
+
+        summary = run_batch_command(args, scans, functools.partial(analyze_scan, calibration=calibration),
+                                    workers=workers, done_word="stored", ordered=True, on_result=store,
+                                    expected=(ArchiveError,))
+    if stored:
+        print(status_text(stored[-1].plog, stored[-1].plog.status(days[summary.done[-1].path])))
+    return 1 if summary.failed or summary.cancelled else 0
 
 
 def _cmd_correct(args: argparse.Namespace) -> int:
@@ -352,8 +438,11 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
                              help="add the processor to the archive if it is not there yet")
         return sub
 
-    add = command("add", _cmd_add, "add a day's QC entry from a scan or typed values")
-    add.add_argument("scan", metavar="SCAN", nargs="?", help="scan of the day's processed QC strip")
+    add = command("add", _cmd_add, "add a day's QC entry from a scan or typed values (or several days' scans)")
+    add.add_argument("scan", metavar="SCAN", nargs="*",
+                     help="scan of the day's processed QC strip; several days' scans, or a folder of them, are read "
+                          "on every core and stored in date order, each day taken from its file's name "
+                          "(YYYY-MM-DD in it)")
     add.add_argument("--date", metavar="YYYY-MM-DD", help="day the strip was processed")
     add.add_argument("--calibration", metavar="CAL.json", help="scanner calibration (from 'stripscan calibrate'); needed with a "
                      "SCAN: an uncalibrated read is not stored")
@@ -370,6 +459,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--late", action="store_true",
                      help="a missed day before the latest one, entered now: stored marked as entered late with "
                           "the time it was entered; levels, limits and trend rules take the days in date order")
+    add_batch_arguments(add)
 
     correct = command("correct", _cmd_correct, "correct a wrongly entered QC entry, with a reason",
                       processor="none")
