@@ -36,12 +36,10 @@ SUPERUSER = "postgres"
 PORT = 5432
 
 # Run by the watcher: wait for the parent to go, then stop the server and
-# remove its folder.  argv: parent pid, pg_ctl command..., then "--", folder.
+# remove its folder.  argv: parent pid, folder, then the stop command.
 _WATCHER = """
 import os, shutil, subprocess, sys, time
-parent = int(sys.argv[1])
-split = sys.argv.index("--")
-command, folder = sys.argv[2:split], sys.argv[split + 1]
+parent, folder, command = int(sys.argv[1]), sys.argv[2], sys.argv[3:]
 while os.path.isdir(folder):
     try:
         os.kill(parent, 0)
@@ -169,8 +167,7 @@ class PgServer:
         self._run("pg_ctl", "start", "-D", str(self.data_dir), "-l", str(self.log_file), "-w", "-t", "60")
         self._running = True
         self._watcher = subprocess.Popen(
-            [sys.executable, "-c", _WATCHER, str(os.getpid()), *self._stop_command("immediate"), "--",
-             str(self.folder)],
+            [sys.executable, "-c", _WATCHER, str(os.getpid()), str(self.folder), *self._stop_command("immediate")],
             stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
             start_new_session=True)
         return self
