@@ -303,3 +303,28 @@ def test_without_the_driver_one_line_names_the_extra() -> None:
     assert done.stdout.strip().splitlines() == [
         'ArchiveError a PostgreSQL archive needs the PostgreSQL driver, which is not installed: '
         'pip install "stripscan[postgres]"']
+
+
+def test_text_sorts_byte_by_byte_as_in_sqlite_whatever_the_databases_locale(pg_database: Any) -> None:
+    server = pg_database.server
+    name = pg_database.name + "_icu"
+    # A database whose own locale sorts letters case-blind (ICU's en-US), as many servers are set up.
+    server.admin(f"CREATE DATABASE {name} TEMPLATE template0 LOCALE_PROVIDER icu ICU_LOCALE 'en-US' "
+                 "LOCALE 'C.UTF-8'")
+    lots = ["b-lot", "B-lot", "a-lot", "_x", "Ä-lot"]
+    try:
+        with server.connect(name) as conn:
+            schema.migrate(conn, "postgresql:///icu")
+            for lot in lots:
+                conn.execute("INSERT INTO emulsion_lots (lot_id) VALUES (%s)", (lot,))
+            on_server = [row[0] for row in conn.execute("SELECT lot_id FROM emulsion_lots ORDER BY lot_id")]
+            by_locale = [row[0] for row in conn.execute(
+                'SELECT lot_id FROM emulsion_lots ORDER BY lot_id COLLATE "default"')]
+    finally:
+        server.drop_database(name)
+    with closing(sqlite3.connect(":memory:")) as lite:
+        lite.execute("CREATE TABLE t (lot_id TEXT)")
+        lite.executemany("INSERT INTO t VALUES (?)", [(lot,) for lot in lots])
+        in_sqlite = [row[0] for row in lite.execute("SELECT lot_id FROM t ORDER BY lot_id")]
+    assert on_server == in_sqlite == ["B-lot", "_x", "a-lot", "b-lot", "Ä-lot"]  # UTF-8 byte order
+    assert by_locale != in_sqlite
