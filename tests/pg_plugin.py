@@ -87,6 +87,13 @@ def pg_database(pg_server: PgServer) -> Iterator[PgDatabase]:
 _skipped: list[str] = []
 
 
+def pytest_sessionstart(session: pytest.Session) -> None:
+    reason = unavailable_reason()
+    if reason is not None:
+        # Test modules that need the driver skip whole (importorskip) before any test reports.
+        _skipped.append(f"every PostgreSQL test: {reason}")
+
+
 def pytest_runtest_logreport(report: pytest.TestReport) -> None:
     if report.skipped and "postgres" in report.keywords:
         _skipped.append(report.nodeid)
