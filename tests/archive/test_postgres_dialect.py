@@ -18,7 +18,7 @@ from pg_rows import copy_rows, filled_archive
 
 from stripscan.archive import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError
 from stripscan.archive.postgres import schema
-from stripscan.archive.postgres.dialect import archive_error, placeholders, retryable
+from stripscan.archive.postgres.dialect import archive_error, configure, placeholders, retryable
 from stripscan.archive.postgres.location import is_server_location, public_location
 
 psycopg = pytest.importorskip("psycopg")  # the postgres extra; in CI its absence fails the run
@@ -27,25 +27,51 @@ WHERE = "postgresql://db.example/lots"
 
 
 @pytest.mark.parametrize("portable, expected", [
-    ("SELECT * FROM t WHERE a = ? AND b IS ?", "SELECT * FROM t WHERE a = %s AND b IS %s"),
+    ("SELECT * FROM t WHERE a = ? AND b > ?", "SELECT * FROM t WHERE a = %s AND b > %s"),
     ("SELECT '?', \"odd?name\", x FROM t WHERE y = ?", "SELECT '?', \"odd?name\", x FROM t WHERE y = %s"),
     ("SELECT 'it''s ?' || ? FROM t", "SELECT 'it''s ?' || %s FROM t"),
     ("SELECT 5 % 2, '100%' -- why?\nFROM t WHERE a = ?", "SELECT 5 %% 2, '100%%' -- why?\nFROM t WHERE a = %s"),
     ("SELECT /* a ? here */ ?", "SELECT /* a ? here */ %s"),
+    ("SELECT 1 WHERE e.id IS NOT ? AND x is ? AND this = ?",
+     "SELECT 1 WHERE e.id IS DISTINCT FROM %s AND x IS NOT DISTINCT FROM %s AND this = %s"),
 ])
 def test_placeholders_are_rewritten_outside_quotes_and_comments(portable: str, expected: str) -> None:
     assert placeholders(portable) == expected
 
 
 @pytest.mark.postgres
-def test_a_rewritten_statement_gives_on_the_server_what_sqlite_gives(pg_database: Any) -> None:
-    statement = ("SELECT ? || '?' || ?, 7 % 4, 'it''s 100%' -- a ? in a comment\n"
-                 ", /* and ? here */ ? + 1")
-    params = ("a", "b", 41)
+@pytest.mark.parametrize("statement, params, expected", [
+    ("SELECT ? || '?' || ?, 7 % 4, 'it''s 100%' -- a ? in a comment\n, /* and ? here */ ? + 1",
+     ("a", "b", 41), ("a?b", 3, "it's 100%", 42)),
+    # SQLite docs (lang_expr.html): IS and IS NOT compare NULL as a value.
+    ("SELECT count(*) FROM (SELECT 1 AS a UNION ALL SELECT NULL) t WHERE a IS ?", (None,), (1,)),
+    ("SELECT count(*) FROM (SELECT 1 AS a UNION ALL SELECT NULL) t WHERE a IS NOT ?", (None,), (1,)),
+    ("SELECT count(*) FROM (SELECT 1 AS a UNION ALL SELECT NULL) t WHERE a IS NOT ?", (1,), (1,)),
+])
+def test_a_rewritten_statement_gives_on_the_server_what_sqlite_gives(pg_database: Any, statement: str,
+                                                                     params: tuple, expected: tuple) -> None:
     with closing(sqlite3.connect(":memory:")) as lite:
-        expected = lite.execute(statement, params).fetchone()
+        assert lite.execute(statement, params).fetchone() == expected
     with pg_database.connect() as conn:
-        assert conn.execute(placeholders(statement), params).fetchone() == expected == ("a?b", 3, "it's 100%", 42)
+        assert conn.execute(placeholders(statement), params).fetchone() == expected
+
+
+@pytest.mark.postgres
+def test_flags_and_sums_come_and_go_as_in_sqlite(pg_database: Any) -> None:
+    statement = "SELECT ?, sum(v), avg(v), sum(v) / 2.0, count(*) FROM (SELECT 1 AS v UNION ALL SELECT 2) t"
+    with closing(sqlite3.connect(":memory:")) as lite:
+        expected = lite.execute(statement, (True,)).fetchone()
+    with pg_database.connect() as conn:
+        configure(conn)
+        got = conn.execute(placeholders(statement), (True,)).fetchone()
+        # A flag goes into the schema's integer column as SQLite stores it.
+        conn.execute("INSERT INTO processors (name) VALUES ('North room')")
+        conn.execute("INSERT INTO qc_entries (processor, date, source, entered_late) "
+                     "VALUES ('North room', '2024-10-01', 'manual', %s)", (True,))
+        stored = conn.execute("SELECT entered_late FROM qc_entries").fetchone()[0]
+    assert expected == (1, 3, 1.5, 1.5, 2)
+    assert got == expected and [type(v) for v in got] == [type(v) for v in expected]
+    assert stored == 1 and type(stored) is int
 
 
 @pytest.mark.parametrize("given, shown", [

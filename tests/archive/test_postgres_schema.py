@@ -10,6 +10,7 @@ each comparison.
 
 from __future__ import annotations
 
+import json
 import sqlite3
 import subprocess
 import sys
@@ -329,3 +330,16 @@ def test_text_sorts_byte_by_byte_as_in_sqlite_whatever_the_databases_locale(pg_d
         in_sqlite = [row[0] for row in lite.execute("SELECT lot_id FROM t ORDER BY lot_id")]
     assert on_server == in_sqlite == ["B-lot", "_x", "a-lot", "b-lot", "Ä-lot"]  # UTF-8 byte order
     assert by_locale != in_sqlite
+
+
+@pytest.mark.parametrize("path", ["$.metrics.mid_density_step", "$.metrics.gamma", "$.steps[2].od", "$.name",
+                                  "$.missing", "$.metrics.none", "$.metrics", "$"])
+def test_json_extract_reads_what_sqlites_does(pg_database: Any, path: str) -> None:
+    document = json.dumps({"metrics": {"mid_density_step": 11, "gamma": 2.75, "none": None}, "name": "strip 1",
+                           "steps": [{"od": 0.19}, {"od": 0.2}, {"od": 0.31}]})
+    with closing(sqlite3.connect(":memory:")) as lite:
+        expected = lite.execute("SELECT json_extract(?, ?)", (document, path)).fetchone()[0]
+    with pg_database.connect() as conn:
+        got = conn.execute("SELECT json_extract(%s, %s)", (document, path)).fetchone()[0]
+    # SQLite docs (json1.html): an object or array comes back as its JSON text; the server gives it parsed.
+    assert (json.loads(expected) if isinstance(expected, str) and expected[:1] in "{[" else expected) == got

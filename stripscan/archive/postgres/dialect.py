@@ -3,28 +3,35 @@
 The archive's service writes SQL that both backends run, with ``?``
 placeholders as SQLite takes them.  psycopg takes ``%s`` and reads every
 ``%`` as the start of one, so :func:`placeholders` rewrites a statement
-once (outside string literals, quoted names and comments) and remembers it.
+once (outside string literals, quoted names and comments) and remembers it;
+SQLite's NULL-safe ``IS ?`` becomes PostgreSQL's ``IS NOT DISTINCT FROM``.
 
 :func:`archive_error` turns a psycopg error into the archive's own
 (:mod:`stripscan.archive.errors`), as one line that names the archive and,
 when the login lacks a right, which right; :func:`retryable` tells the
 errors worth trying the whole transaction again for.  Both look only at the
-exception: psycopg need not be imported to call them.
+exception: psycopg need not be imported to call them.  :func:`configure`
+sets a connection up to pass flags and return sums as SQLite does.
 """
 
 from __future__ import annotations
 
 import re
 from functools import lru_cache
+from typing import Any
 
 from ..errors import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError
+from . import driver
 
-__all__ = ["placeholders", "archive_error", "retryable", "RIGHTS"]
+__all__ = ["placeholders", "configure", "archive_error", "retryable", "RIGHTS"]
 
 
 @lru_cache(maxsize=512)
 def placeholders(statement: str) -> str:
     """``statement`` with each ``?`` placeholder as ``%s`` and each other ``%`` doubled.
+
+    ``IS ?`` and ``IS NOT ?`` (SQLite's NULL-safe comparisons) become
+    ``IS NOT DISTINCT FROM %s`` and ``IS DISTINCT FROM %s``.
 
     Text inside '...' literals, "..." names, ``--`` line comments and
     ``/* */`` comments is left as it is, apart from doubling ``%``, which
@@ -47,10 +54,60 @@ def placeholders(statement: str) -> str:
             end = n if end == -1 else end + len(close)
             out.append(statement[i:end].replace("%", "%%"))
             i = end
+        elif char == "?":
+            _null_safe(out)
+            out.append("%s")
+            i += 1
         else:
-            out.append("%s" if char == "?" else "%%" if char == "%" else char)
+            out.append("%%" if char == "%" else char)
             i += 1
     return "".join(out)
+
+
+def configure(conn: Any) -> None:
+    """Make a psycopg connection pass and return values as SQLite does, for identical records.
+
+    * Python's True and False go in as 1 and 0: SQLite keeps flags as
+      integers (the schema's columns are bigint), and the hash chain hashes
+      the stored value, so ``true`` would not match ``1``.
+    * ``numeric`` results (PostgreSQL's sum() and avg() of integers) come
+      back as int when whole and float otherwise, as SQLite's do, not as
+      Decimal.
+    """
+    psycopg = driver()
+    from psycopg.adapt import Dumper, Loader
+
+    int8 = psycopg.postgres.types["int8"].oid
+
+    class _FlagDumper(Dumper):
+        oid = int8
+
+        def dump(self, obj: bool) -> bytes:
+            return b"1" if obj else b"0"
+
+    class _NumberLoader(Loader):
+        def load(self, data: Any) -> int | float:
+            text = bytes(data).decode("ascii")
+            return float(text) if any(c in text for c in ".eEnN") else int(text)
+
+    conn.adapters.register_dumper(bool, _FlagDumper)
+    conn.adapters.register_loader("numeric", _NumberLoader)
+
+
+# SQLite's "a IS ?" / "a IS NOT ?" compare NULL-safely; PostgreSQL spells that
+# IS [NOT] DISTINCT FROM, and takes no value after a bare IS at all.
+_IS_BEFORE = re.compile(r"\bIS(\s+NOT)?\s*$", re.IGNORECASE)
+
+
+def _null_safe(out: list[str]) -> None:
+    """Rewrite a trailing ``IS`` / ``IS NOT`` in ``out`` as its PostgreSQL spelling."""
+    tail = "".join(out[-16:])
+    found = _IS_BEFORE.search(tail)
+    if found is None:
+        return
+    kept = tail[:found.start()]
+    del out[-16:]
+    out.append(kept + ("IS DISTINCT FROM " if found.group(1) else "IS NOT DISTINCT FROM "))
 
 
 # SQLSTATE classes and codes (PostgreSQL documentation, Appendix A "PostgreSQL Error Codes").

@@ -54,6 +54,20 @@ EXCEPTION WHEN invalid_text_representation THEN
 END
 $$;
 
+-- SQLite's json_extract(document, path) for the paths the archive reads
+-- ('$', '$.key.key', '$.key[0]'), so that its queries run on both: the value
+-- at the path, SQL NULL where there is none or it is JSON null.  A number or
+-- a string comes back as one; an object or array as JSON (SQLite gives its
+-- text).  Compare its result in Python or with IS [NOT] NULL, as jsonb does
+-- not compare with a number in SQL.
+CREATE FUNCTION json_extract(document text, path text) RETURNS jsonb
+LANGUAGE sql IMMUTABLE STRICT AS $$
+    SELECT nullif(CASE WHEN path = '$' THEN document::jsonb
+        ELSE document::jsonb #> regexp_split_to_array(
+            regexp_replace(regexp_replace(substr(path, 2), '\[([0-9]+)\]', '.\1', 'g'), '^\.', ''), '\.')
+        END, 'null'::jsonb)
+$$;
+
 -- A trigger's refusal: its first argument is the message.
 CREATE FUNCTION stripscan_refuse() RETURNS trigger
 LANGUAGE plpgsql AS $$
