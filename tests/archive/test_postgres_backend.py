@@ -1,0 +1,177 @@
+"""The server backend on its own: opening, one writer at a time, nothing half-written, plain errors.
+
+Outside references: PostgreSQL 15 documentation, "Advisory Locks"
+(pg_advisory_xact_lock is held to the end of the transaction),
+"lock_timeout", "Transaction Isolation" (REPEATABLE READ sees one
+snapshot) and "Server Shutdown" (immediate mode: the next start recovers,
+transactions not committed are gone).
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from typing import Any
+
+import pytest
+
+from stripscan.archive import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError
+from stripscan.archive.postgres import schema
+from stripscan.archive.postgres.backend import PostgresBackend
+
+psycopg = pytest.importorskip("psycopg")  # the postgres extra; in CI its absence fails the run
+
+pytestmark = pytest.mark.postgres
+
+ADD_TYPE = "INSERT INTO film_types (name, description) VALUES (?, ?)"
+
+
+def _names(backend: PostgresBackend) -> list[str]:
+    return [row["name"] for row in backend.query("SELECT name FROM film_types ORDER BY name")]
+
+
+def test_opening_names_the_archive_without_its_password_and_reads_by_name_and_position(pg_database: Any) -> None:
+    url = pg_database.url.replace("postgres@", "postgres:not-needed@", 1)
+    with PostgresBackend.open(url) as backend:
+        assert "not-needed" not in backend.where and backend.where.startswith("postgresql://postgres@/")
+        assert backend.schema_version == schema.latest_version()
+        with backend.writing("add a film type"):
+            backend.execute(ADD_TYPE, ("Alder G", "100% green"))
+        row = backend.query("SELECT name, description FROM film_types WHERE name = ?", ("Alder G",))[0]
+    assert row == ("Alder G", "100% green") and row["description"] == "100% green" and row.keys() == [
+        "name", "description"]
+
+
+def test_an_empty_database_gets_the_schema_unless_told_not_to(pg_database: Any) -> None:
+    server = pg_database.server
+    name = server.create_database(pg_database.name + "_empty")
+    try:
+        with pytest.raises(ArchiveError, match="holds no stripscan archive yet"):
+            PostgresBackend.open(server.url(name), create=False)
+        with pytest.raises(ArchiveError, match="holds no stripscan archive yet"):
+            PostgresBackend.open(server.url(name), read_only=True)
+        with PostgresBackend.open(server.url(name)) as backend:
+            assert backend.schema_version == schema.latest_version()
+    finally:
+        server.drop_database(name)
+
+
+def test_a_newer_schema_is_refused_in_one_line(pg_database: Any) -> None:
+    with pg_database.connect() as conn:
+        conn.execute("INSERT INTO stripscan_schema (version, summary) VALUES (99, 'later')")
+    with pytest.raises(ArchiveError) as caught:
+        PostgresBackend.open(pg_database.url)
+    assert "written by a newer stripscan (server schema version 99" in str(caught.value)
+    assert "\n" not in str(caught.value)
+
+
+def test_a_failed_write_leaves_nothing_behind(pg_database: Any) -> None:
+    with PostgresBackend.open(pg_database.url) as backend:
+        with pytest.raises(ArchiveError, match="cannot add two film types: .*violates check constraint"):
+            with backend.writing("add two film types"):
+                backend.execute(ADD_TYPE, ("Alder G", ""))
+                backend.execute(ADD_TYPE, ("   ", ""))
+        assert _names(backend) == []
+        with pytest.raises(RuntimeError), backend.writing("add a film type"):
+            backend.execute(ADD_TYPE, ("Alder G", ""))
+            raise RuntimeError("the caller's own failure")
+        assert _names(backend) == [] and not backend.in_transaction
+
+
+def test_one_writer_at_a_time_and_a_waiting_one_gives_up_after_the_busy_timeout(pg_database: Any) -> None:
+    with PostgresBackend.open(pg_database.url) as first, \
+            PostgresBackend.open(pg_database.url, busy_timeout_ms=300) as second:
+        with first.writing("add a film type"):
+            first.execute(ADD_TYPE, ("Alder G", ""))
+            started = time.monotonic()
+            with pytest.raises(ArchiveBusyError, match="is busy: .*cannot add another film type now, try again"):
+                with second.writing("add another film type"):
+                    second.execute(ADD_TYPE, ("Birch B", ""))
+            assert time.monotonic() - started >= 0.3
+            # Readers do not wait, and see only what is committed.
+            assert _names(second) == []
+        assert _names(second) == ["Alder G"]
+
+
+def test_a_second_writer_waits_its_turn_and_then_sees_the_first_ones_rows(pg_database: Any) -> None:
+    seen: list[int] = []
+
+    def count_then_add(backend: PostgresBackend, name: str) -> None:
+        with backend.writing(f"add {name}"):
+            # The archive's "next id is max + 1" pattern: safe only with one writer at a time.
+            seen.append(backend.query("SELECT count(*) FROM film_types")[0][0])
+            time.sleep(0.2)
+            backend.execute(ADD_TYPE, (name, ""))
+
+    backends = [PostgresBackend.open(pg_database.url) for _ in range(3)]
+    try:
+        threads = [threading.Thread(target=count_then_add, args=(b, f"type {i}")) for i, b in enumerate(backends)]
+        for thread in threads:
+            thread.start()
+        for thread in threads:
+            thread.join()
+        assert sorted(seen) == [0, 1, 2]
+        assert len(_names(backends[0])) == 3
+    finally:
+        for backend in backends:
+            backend.close()
+
+
+def test_reads_in_one_reading_see_one_state(pg_database: Any) -> None:
+    with PostgresBackend.open(pg_database.url) as reader, PostgresBackend.open(pg_database.url) as writer:
+        with reader.reading():
+            before = _names(reader)
+            with writer.writing("add a film type"):
+                writer.execute(ADD_TYPE, ("Alder G", ""))
+            assert _names(reader) == before == []
+        assert _names(reader) == ["Alder G"]
+
+
+def test_read_only_refuses_writes_here_and_on_the_server(pg_database: Any) -> None:
+    with PostgresBackend.open(pg_database.url, read_only=True) as backend:
+        with pytest.raises(ArchiveReadOnlyError, match="is read-only: cannot add a film type"):
+            with backend.writing("add a film type"):
+                pass
+        # Even a statement sent past the backend's own check is refused by the server.
+        with pytest.raises(ArchiveReadOnlyError, match="is read-only"):
+            backend.execute(ADD_TYPE, ("Alder G", ""))
+
+
+def test_a_reader_login_is_told_which_right_it_lacks(pg_database: Any) -> None:
+    with pg_database.connect() as conn:
+        role = schema.create_roles(conn, "here")["reader"]
+        conn.execute(f'CREATE ROLE "{pg_database.name}_ann" LOGIN IN ROLE "{role}"')
+    url = pg_database.server.url(pg_database.name, f"{pg_database.name}_ann")
+    with PostgresBackend.open(url) as backend:
+        with pytest.raises(ArchiveReadOnlyError) as caught, backend.writing("add film type 'Alder G'"):
+            backend.execute(ADD_TYPE, ("Alder G", ""))
+    assert str(caught.value) == (f"{backend.where}: cannot add film type 'Alder G': your login on the server may "
+                                 "not add film types; the archive's physicist role may (ask whoever looks after "
+                                 "the archive's server)")
+
+
+def test_the_server_stopping_during_a_write_leaves_nothing_half_written(pg_database: Any) -> None:
+    server = pg_database.server
+    backend = PostgresBackend.open(pg_database.url)
+    try:
+        with pytest.raises(ArchiveError, match="cannot add two film types: the connection to the server failed"):
+            with backend.writing("add two film types"):
+                backend.execute(ADD_TYPE, ("Alder G", ""))
+                server.kill()
+                backend.execute(ADD_TYPE, ("Birch B", ""))
+    finally:
+        backend.close()
+        if not server.running:
+            server.restart()
+    with PostgresBackend.open(pg_database.url) as again:
+        assert _names(again) == []
+
+
+def test_a_server_that_does_not_answer_is_said_plainly_after_a_few_tries(tmp_path: Any) -> None:
+    started = time.monotonic()
+    with pytest.raises(ArchiveError) as caught:
+        PostgresBackend.open(f"postgresql://ann:hunter2@/lots?host={tmp_path}")
+    message = str(caught.value)
+    assert message.startswith("postgresql://ann@/lots?host=") and "hunter2" not in message
+    assert "cannot open it: the connection to the server failed (tried 3 times)" in message
+    assert time.monotonic() - started >= 0.6  # the pauses between the tries
