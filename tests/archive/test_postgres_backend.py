@@ -175,3 +175,36 @@ def test_a_server_that_does_not_answer_is_said_plainly_after_a_few_tries(tmp_pat
     assert message.startswith("postgresql://ann@/lots?host=") and "hunter2" not in message
     assert "cannot open it: the connection to the server failed (tried 3 times)" in message
     assert time.monotonic() - started >= 0.6  # the pauses between the tries
+
+
+def _add_events(url: str, worker: int, count: int) -> None:
+    """One client: ``count`` events, each numbered max + 1 and chained as the archive does."""
+    with PostgresBackend.open(url) as backend:
+        for n in range(count):
+            with backend.writing(f"record event {worker}.{n}"):
+                next_id = backend.query("SELECT coalesce(max(id), 0) + 1 FROM qc_events")[0][0]
+                backend.execute("INSERT INTO qc_events (id, processor, date, kind, note) VALUES (?, ?, ?, ?, ?)",
+                                (next_id, "North room", "2024-10-01", "check", f"{worker}.{n}"))
+                seq = backend.query("SELECT coalesce(max(seq), 0) + 1 FROM record_chain")[0][0]
+                backend.execute("INSERT INTO record_chain VALUES (?, 'qc_event', ?, ?, ?)",
+                                (seq, str(next_id), "0" * 64, "0" * 64))
+
+
+def test_eight_clients_writing_at_once_lose_and_double_nothing(pg_database: Any) -> None:
+    import multiprocessing
+
+    with pg_database.connect() as conn:
+        conn.execute("INSERT INTO processors (name) VALUES ('North room')")
+    context = multiprocessing.get_context("spawn")
+    workers = [context.Process(target=_add_events, args=(pg_database.url, w, 50)) for w in range(8)]
+    for process in workers:
+        process.start()
+    for process in workers:
+        process.join(timeout=120)
+    assert [p.exitcode for p in workers] == [0] * 8
+    with pg_database.connect() as conn:
+        notes = sorted(row[0] for row in conn.execute("SELECT note FROM qc_events"))
+        ids = [row[0] for row in conn.execute("SELECT id FROM qc_events ORDER BY id")]
+        chained = [row[0] for row in conn.execute("SELECT key::bigint FROM record_chain ORDER BY seq")]
+    assert notes == sorted(f"{w}.{n}" for w in range(8) for n in range(50))
+    assert ids == list(range(1, 401)) and sorted(chained) == ids
