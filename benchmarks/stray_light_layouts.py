@@ -27,7 +27,7 @@ import numpy as np
 
 from stripscan.core.calibration import CalibrationError, read_certificate
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.core.simulate import (
+from stripscan.sim.simulate import (
     FilmModel,
     ScannerModel,
     SimulatedScan,

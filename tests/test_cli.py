@@ -8,10 +8,10 @@ import math
 import pytest
 
 from stripscan import CAUTION
-from stripscan.cli import main
+from stripscan.cli.main import main
 import numpy as np
 
-from stripscan.core.simulate import (
+from stripscan.sim.simulate import (
     FilmModel, ScannerModel, StripSpec, TabletSpec, expected_signal, simulate_scan, write_certificate, write_tiff,
 )
 
@@ -150,7 +150,7 @@ def test_analyze_with_the_tablet_on_the_scan(tmp_path, capsys):
 def test_bounded_rule_bounds_only_the_low_density_difference_step(capsys):
     """Issue 13, wrong output 7: the "bounded" density-difference rule bounds only the low step (closest to
     0.45 but not less); the high step is the one closest to 2.20, as with the plain rule."""
-    from stripscan.demo_data import demo_files
+    from stripscan.sim.demo_data import demo_files
 
     demo = demo_files()
     assert main(["analyze", str(demo.lot_a_scan), "--calibration", str(demo.calibration), "--dd-rule", "bounded",
@@ -173,7 +173,7 @@ def test_bounded_rule_bounds_only_the_low_density_difference_step(capsys):
 @pytest.fixture(scope="module")
 def demo_lot_archive(tmp_path_factory):
     """The demo's two lots stored from their scans, three strips each (snapshots 1-3: A, 4-6: B)."""
-    from stripscan.demo_data import demo_files
+    from stripscan.sim.demo_data import demo_files
 
     demo = demo_files()
     path = tmp_path_factory.mktemp("lots") / "lots.sqlite3"
@@ -235,7 +235,7 @@ def test_window_without_the_xcb_cursor_library_names_the_package(capsys, monkeyp
     monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
     monkeypatch.setenv("DISPLAY", ":0")
     monkeypatch.setattr("sys.platform", "linux")
-    monkeypatch.setattr("stripscan.cli._xcb_cursor_found", lambda: False)
+    monkeypatch.setattr("stripscan.cli.main._xcb_cursor_found", lambda: False)
     assert main([]) == 1
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "libxcb-cursor0" in err

@@ -13,16 +13,17 @@ from scipy import stats
 
 from stripscan import CAUTION
 from stripscan.archive import Archive, EmulsionLot, FilmType, NewSnapshot, Processor, QcEntry
-from stripscan.cli import main
-from stripscan.compare_cli import SetError, levels_in_force, parse_set
-from stripscan.core.compare import StripSet, compare_sets
+from stripscan.cli.main import main
+from stripscan.cli.compare import levels_in_force
+from stripscan.services.comparison_sets import SetError, parse_set
+from stripscan.core.compare.statistics import StripSet, compare_sets
 from stripscan.core.calibration import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult
-from stripscan.core.qc import QCSteps
-from stripscan.demo_data import SCENARIO, demo_files
-from stripscan.qc_log import QcSetup, StepChoice
+from stripscan.core.qc.rules import QCSteps
+from stripscan.sim.demo_data import SCENARIO, demo_files
+from stripscan.services.qc_log import QcSetup, StepChoice
 
 PROCESSOR = SCENARIO["processor"]["name"]
 LOT_A, LOT_B, LOT_ODD = "M-2610-A", "M-2702-B", "M-2703-C"
@@ -333,7 +334,7 @@ def _shaded_pixels(png: Path) -> int:
     """Pixels of the grey that marks the days that set the operating levels (over white)."""
     import imageio.v3 as iio
 
-    from stripscan.qc_chart import BASELINE_COLOUR, BASELINE_OPACITY
+    from stripscan.render.qc_chart import BASELINE_COLOUR, BASELINE_OPACITY
 
     grey = int(BASELINE_COLOUR[1:3], 16)
     shade = round(255 + (grey - 255) * BASELINE_OPACITY)  # #808080 at 0.2 over white: #E6E6E6
@@ -363,8 +364,9 @@ def test_days_after_a_crossover_are_not_shaded_as_setting_the_levels(capsys, tmp
     # (Thin grid lines come near the shade's grey too; a shaded day column is some 10^5 pixels.)
     assert _shaded_pixels(pictures["2026-11"]) > 100_000
     assert _shaded_pixels(pictures["2026-12"]) < 20_000
-    from stripscan.qc_chart import chart_data, legend_entries
-    from stripscan.qc_log import load_processor_log
+    from stripscan.render.qc_chart import legend_entries
+    from stripscan.services.qc_chart import chart_data
+    from stripscan.services.qc_log import load_processor_log
 
     with Archive.open(path, read_only=True) as archive:
         plog = load_processor_log(archive, PROCESSOR)
@@ -408,8 +410,8 @@ def test_the_window_shades_no_day_after_a_crossover(capsys, tmp_path, qtbot):
     and no day judged against levels a crossover set."""
     from PySide6.QtWidgets import QGraphicsRectItem
 
-    from stripscan.gui.qc_panel import QcPanel
-    from stripscan.qc_chart import BASELINE_OPACITY
+    from stripscan.gui.panels.qc_panel import QcPanel
+    from stripscan.render.qc_chart import BASELINE_OPACITY
 
     path = crossover_archive(tmp_path / "qc.sqlite3")
     assert run(capsys, "crossover", "--processor", PROCESSOR, "--old", f"lot:{LOT_A}", "--new", f"lot:{LOT_B}",

@@ -24,9 +24,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from stripscan.archive import Archive, ArchiveError
-from stripscan.cli import main
+from stripscan.cli.main import main
 from stripscan.core.calibration import CalibrationError, load_calibration
-from stripscan.demo_data import demo_files
+from stripscan.sim.demo_data import demo_files
 
 _SCALARS = st.one_of(
     st.none(), st.booleans(), st.integers(-(2**70), 2**70),

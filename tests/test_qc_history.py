@@ -16,9 +16,9 @@ from pathlib import Path
 import pytest
 
 from stripscan.archive import Archive, OutOfOrderError
-from stripscan.cli import main
-from stripscan.core.qc import QCValues
-from stripscan.qc_log import add_day, load_processor_log
+from stripscan.cli.main import main
+from stripscan.core.qc.rules import QCValues
+from stripscan.services.qc_log import add_day, load_processor_log
 
 P = "Darkroom B"
 

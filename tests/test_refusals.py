@@ -16,9 +16,9 @@ from pathlib import Path
 
 import pytest
 
-from stripscan.cli import main
+from stripscan.cli.main import main
 from stripscan.core.calibration import load_calibration, save_calibration
-from stripscan.demo_data import demo_files
+from stripscan.sim.demo_data import demo_files
 
 
 def run(argv, capsys):
@@ -189,7 +189,7 @@ def test_nan_options_are_refused(capsys, demo, option):
 
 # ------------------------------------------------------------- scan files
 
-def _grey8(demo) -> "np.ndarray":
+def _grey8(demo):
     import numpy as np
     import tifffile
 
@@ -387,8 +387,8 @@ def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys,
 
 def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeypatch):
     # issue item 12: names stored by an older stripscan are printed escaped, never raw
-    import stripscan.archive.records as records
-    import stripscan.archive.store as store
+    from stripscan.archive import records
+    from stripscan.archive import service as store
     from stripscan.archive import Archive, EmulsionLot
 
     # As an older version stored it: without the entry checks, but through the archive (so its
@@ -520,7 +520,6 @@ def test_an_archive_locked_by_another_program_says_so(stored, capsys):
 
 def test_an_archive_on_read_only_media_can_be_listed(tmp_path, stored, demo):
     # issue item 21: on a read-only file system 'archive list' said "is damaged: unable to open database file"
-    import shutil
     import subprocess
     import sys
 
@@ -542,7 +541,6 @@ def test_an_archive_on_read_only_media_can_be_listed(tmp_path, stored, demo):
 def test_writing_into_a_read_only_folder_or_a_full_disk_names_the_file_and_the_cause(tmp_path, demo):
     # issue item 21: '-o' into a read-only folder named 'x.json.partial'; a full disk during 'report'
     # read "Qt could not start page 3"
-    import shutil
     import subprocess
     import sys
 

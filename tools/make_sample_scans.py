@@ -1,14 +1,14 @@
 """Make the demo's sample scans again: ``python tools/make_sample_scans.py [FOLDER]``.
 
 The files are deterministic (fixed seeds); by default they go to
-``sample_scans/`` beside this folder.  See stripscan/demo_data.py for the
+``sample_scans/`` beside this folder.  See stripscan/sim/demo_data.py for the
 invented scenario.
 """
 
 import sys
 from pathlib import Path
 
-from stripscan.demo_data import generate
+from stripscan.sim.demo_data import generate
 
 if __name__ == "__main__":
     target = Path(sys.argv[1]) if len(sys.argv) > 1 else Path(__file__).resolve().parents[1] / "sample_scans"

@@ -9,7 +9,7 @@ The archive reads and writes the core's records
 (:mod:`stripscan.core.records`); the core itself knows nothing of SQLite.
 """
 
-from .errors import (
+from stripscan.archive.errors import (
     ArchiveBusyError,
     ArchiveConflictError,
     ArchiveError,
@@ -19,7 +19,7 @@ from .errors import (
     DuplicateDayError,
     OutOfOrderError,
 )
-from .records import (
+from stripscan.archive.records import (
     FIGURES,
     Crossover,
     EmulsionLot,
@@ -40,7 +40,7 @@ from .records import (
     calibration_hash,
     snapshots_from_analysis,
 )
-from .store import Archive, default_archive_path, user_data_folder
+from stripscan.archive.service import Archive, default_archive_path, user_data_folder
 
 __all__ = [
     "Archive",

@@ -25,11 +25,19 @@ from typing import TYPE_CHECKING, Any
 
 from stripscan.core.records import Analysis
 
-from .errors import ArchiveError
-from .records import EmulsionLot, FilmType, Processor, QcEntry, Sensitometer, Snapshot, SnapshotNote
+from stripscan.archive.errors import ArchiveError
+from stripscan.archive.records import (
+    EmulsionLot,
+    FilmType,
+    Processor,
+    QcEntry,
+    Sensitometer,
+    Snapshot,
+    SnapshotNote,
+)
 
 if TYPE_CHECKING:
-    from .store import Archive
+    from stripscan.archive.service import Archive
 
 __all__ = [
     "NAME_MAX_CHARS",

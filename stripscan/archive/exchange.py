@@ -20,9 +20,9 @@ from typing import IO, TYPE_CHECKING, Any
 
 from stripscan import __version__
 
-from .entry_checks import check_imported_figures, check_note
-from .errors import ArchiveConflictError, ArchiveError, ArchiveLookupError, OutOfOrderError
-from .records import (
+from stripscan.archive.entry_checks import check_imported_figures, check_note
+from stripscan.archive.errors import ArchiveConflictError, ArchiveError, ArchiveLookupError, OutOfOrderError
+from stripscan.archive.records import (
     FIGURE_UNITS,
     FIGURES,
     Crossover,
@@ -40,7 +40,7 @@ from .records import (
 )
 
 if TYPE_CHECKING:
-    from .store import Archive
+    from stripscan.archive.service import Archive
 
 __all__ = ["EXPORT_FORMAT", "EXPORT_FORMAT_VERSION", "export_data", "export_json", "import_json",
            "export_csv", "backup"]
@@ -208,7 +208,7 @@ def _parse_sections(path: Path, data: dict[str, Any]) -> dict[str, list[Any]]:
 
 def _stored_twin(archive: "Archive", section: str, record: Any) -> tuple[str, Any]:
     """A name for ``record`` in messages, and the stored item with the same key (or None)."""
-    from .store import _REFERENCE  # the store's table map, shared so both stay in step
+    from stripscan.archive.service import _REFERENCE  # the store's table map, shared so both stay in step
 
     if section in ("film_types", "emulsion_lots", "processors", "sensitometers"):
         _, column, word = _REFERENCE[type(record)]

@@ -38,8 +38,8 @@ from typing import Any, Sequence
 import numpy as np
 from scipy.interpolate import PchipInterpolator
 
-from .records import StepReading, clean_float
-from .straylight import StrayLight
+from stripscan.core.records import StepReading, clean_float
+from stripscan.core.straylight import StrayLight
 
 __all__ = [
     "CalibrationError",

@@ -25,7 +25,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-from .records import CurveFigures, StepDensity
+from stripscan.core.records import CurveFigures, StepDensity
 
 __all__ = ["STEP_ONE_ABOVE_BASE_FOG", "TARGET_REACH", "reading_notes"]
 

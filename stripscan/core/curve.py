@@ -30,10 +30,10 @@ import numpy as np
 from scipy.interpolate import CubicHermiteSpline, CubicSpline
 from scipy.optimize import brentq
 
-from .calibration import ACCURACY_GOAL
-from .figure_settings import FigureSettings
-from .qc import choose_qc_steps, closest_step
-from .records import CurveFigures, StripResult
+from stripscan.core.calibration import ACCURACY_GOAL
+from stripscan.core.figure_settings import FigureSettings
+from stripscan.core.qc.rules import choose_qc_steps, closest_step
+from stripscan.core.records import CurveFigures, StripResult
 
 __all__ = [
     "FigureSettings",

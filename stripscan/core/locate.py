@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage
 
-from .records import StripGeometry
+from stripscan.core.records import StripGeometry
 
 __all__ = [
     "LocateError",

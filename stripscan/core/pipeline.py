@@ -15,8 +15,8 @@ from typing import NamedTuple, Sequence
 
 import numpy as np
 
-from .. import __version__
-from .calibration import (
+from stripscan import __version__
+from stripscan.core.calibration import (
     MAX_STEPS,
     ACCURACY_GOAL,
     Calibration,
@@ -27,18 +27,19 @@ from .calibration import (
     fit_calibration,
     flat_field,
 )
-from .checks import reading_notes
-from .curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
-from .locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
-from .records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
-from .sample import read_area, read_strip
-from .scan import Scan, load_scan
-from .straylight import (
+from stripscan.core.checks import reading_notes
+from stripscan.core.curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
+from stripscan.core.locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
+from stripscan.core.records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
+from stripscan.core.sample import read_area, read_strip
+from stripscan.core.scan import Scan, load_scan
+from stripscan.core.straylight import (
     BASIS_SIGMA_MM,
     LAMP_REACH_MM,
     fit_stray_light,
     platen_observations,
     reduce_scan,
+    SpreadField,
     spread_field,
     Observation,
 )

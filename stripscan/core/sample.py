@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from .records import StepReading, StripGeometry
+from stripscan.core.records import StepReading, StripGeometry
 
 __all__ = ["robust_mean", "read_area", "read_strip", "box_pixels", "box_mask"]
 

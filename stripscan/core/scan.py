@@ -17,7 +17,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .records import ScanInfo
+from stripscan.core.records import ScanInfo
 
 __all__ = ["ScanError", "Scan", "load_scan", "pixel_limit", "DEFAULT_MAX_PIXELS", "MAX_PIXELS_VARIABLE", "decode_srgb", "decode_gamma", "reduce_channels", "channel_weights", "CHANNEL_RULES"]
 

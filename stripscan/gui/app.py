@@ -11,8 +11,8 @@ from typing import Sequence
 
 from PySide6.QtWidgets import QApplication
 
-from .errors import install_excepthook, setup_logging
-from .settings import AppSettings
+from stripscan.gui.errors import install_excepthook, setup_logging
+from stripscan.gui.settings import AppSettings
 
 __all__ = ["make_app", "make_window", "run_gui", "run_demo", "open_demo"]
 
@@ -31,7 +31,7 @@ def make_app(argv: Sequence[str] | None = None) -> QApplication:
 
 def make_window(settings: AppSettings | None = None):
     """A main window (the QApplication must exist)."""
-    from .main_window import MainWindow
+    from stripscan.gui.main_window import MainWindow
 
     return MainWindow(settings=settings)
 
@@ -78,9 +78,9 @@ def open_demo(window, folder: str | os.PathLike[str] | None = None, *,
         Also build the demo lot archive and QC month there (in a worker
         thread) and point the archive, comparison and QC pages at it.
 
-    Returns the demo's files (:class:`stripscan.demo_data.DemoFiles`).
+    Returns the demo's files (:class:`stripscan.sim.demo_data.DemoFiles`).
     """
-    from ..demo_data import demo_files
+    from stripscan.sim.demo_data import demo_files
 
     files = demo_files(folder)
     window.use_calibration_file(str(files.calibration))
@@ -105,8 +105,8 @@ def run_demo(folder: str | None = None) -> int:
     worker thread (progress in the status bar); the archive, comparison and
     QC pages show them when ready.
     """
-    from .jobs import demo_archive_path
-    from .workspace import set_archive_setting
+    from stripscan.gui.jobs import demo_archive_path
+    from stripscan.gui.workspace import set_archive_setting
 
     # The demo keeps its own settings and its own archive in its own folder, so it never changes
     # the user's active calibration nor reads or writes the user's lot archive.

@@ -14,7 +14,7 @@ from typing import Callable
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication, QMessageBox, QWidget
 
-from ..archive import user_data_folder
+from stripscan.archive import user_data_folder
 
 __all__ = ["LOG_FILE_NAME", "default_log_dir", "setup_logging", "log_file", "show_message", "report_error",
            "install_excepthook", "excepthook_guard"]

@@ -1,6 +1,6 @@
 """Files of what the window's pages show: CSV tables, curve pictures and PDF reports.
 
-Each file is written by :mod:`stripscan.report`'s public functions in a
+Each file is written by :mod:`stripscan.render`'s public functions in a
 worker thread (:mod:`stripscan.gui.jobs`), so a report of many pages never
 stops the window; the status bar says when it is saved.  The ``export*``
 methods take the path and are what the menus' ``ask_*`` methods call after
@@ -19,11 +19,11 @@ from typing import TYPE_CHECKING, Any
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtWidgets import QFileDialog
 
-from . import jobs
-from .errors import report_error
+from stripscan.gui import jobs
+from stripscan.gui.errors import report_error
 
 if TYPE_CHECKING:
-    from .workspace import Workspace
+    from stripscan.gui.workspace import Workspace
 
 __all__ = ["Exports"]
 

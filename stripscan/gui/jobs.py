@@ -11,17 +11,15 @@ from __future__ import annotations
 
 import datetime as dt
 import os
-import sqlite3
 import threading
 from collections.abc import Callable, Sequence
-from contextlib import closing
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from ..archive import Archive
-from ..core.compare import Comparison, StripSet, compare_sets
-from ..core.records import Analysis, StripResult
+from stripscan.archive import Archive
+from stripscan.core.compare.statistics import Comparison, StripSet, compare_sets
+from stripscan.core.records import Analysis, StripResult
 
 __all__ = [
     "Cancelled",
@@ -52,7 +50,7 @@ class Cancelled(Exception):
 
 def demo_archive_path(folder: str | os.PathLike[str]) -> Path:
     """The demo archive's file in the demo's own folder."""
-    from ..archive.demo import DEMO_ARCHIVE_NAME
+    from stripscan.services.demo_archive import DEMO_ARCHIVE_NAME
 
     return Path(folder) / DEMO_ARCHIVE_NAME
 
@@ -60,13 +58,6 @@ def demo_archive_path(folder: str | os.PathLike[str]) -> Path:
 def _remove_database(path: Path) -> None:
     for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm"), Path(f"{path}-journal")):
         leftover.unlink(missing_ok=True)
-
-
-def _copy_database(source: Path, target: Path) -> None:
-    """An SQLite file copied page by page (what its write-ahead log holds included)."""
-    with closing(sqlite3.connect(f"{source.absolute().as_uri()}?mode=ro", uri=True)) as src, \
-            closing(sqlite3.connect(target)) as dst:
-        src.backup(dst)
 
 
 def build_demo_workspace(folder: str | os.PathLike[str], files: Any, *, progress: Progress,
@@ -97,8 +88,8 @@ def build_demo_workspace(folder: str | os.PathLike[str], files: Any, *, progress
     ``stripscan demo`` in a folder opens at once instead of refusing the
     existing file.
     """
-    from ..archive.demo import build_demo_archive
-    from ..qc_demo import DEMO_PROCESSOR, build_demo_qc
+    from stripscan.services.demo_archive import build_demo_archive
+    from stripscan.services.qc_demo import DEMO_PROCESSOR, build_demo_qc
 
     target = demo_archive_path(folder)
 
@@ -119,7 +110,8 @@ def build_demo_workspace(folder: str | os.PathLike[str], files: Any, *, progress
     _remove_database(staging)  # an earlier run's, interrupted
     try:
         if target.is_file():
-            _copy_database(target, staging)
+            with Archive.open(target, read_only=True) as existing:
+                existing.backup(staging)
         else:
             build_demo_archive(staging, files, progress=archive_progress)
         stop_if_cancelled("the demo QC month was not added")
@@ -151,7 +143,7 @@ class ComparisonResult:
     notes : tuple of str
         What reading the sets noticed (retired snapshots and the like).
     calibrations : tuple
-        :class:`stripscan.report.comparison.CalibrationUse` per calibration.
+        :class:`stripscan.render.comparison.CalibrationUse` per calibration.
     """
 
     comparisons: tuple[Comparison, ...]
@@ -177,11 +169,11 @@ def compare_lots(archive_path: str | os.PathLike[str], lots: Sequence[str], extr
     """Compare lots of the archive (the first is A), and optionally the open scan's strips after them.
 
     The lots are read as ``stripscan compare lot:LOT`` reads them (every
-    current snapshot, :class:`stripscan.compare_cli.SetLoader`) and compared
+    current snapshot, :class:`stripscan.services.comparison_sets.SetLoader`) and compared
     by :func:`compare_sets` with the default tolerances.
     """
-    from ..compare_cli import SetLoader, parse_set
-    from ..report.comparison import CalibrationUse
+    from stripscan.services.comparison_sets import SetLoader, parse_set
+    from stripscan.render.comparison import CalibrationUse
 
     progress(0.1, "Reading the lots' strips")
     with SetLoader(archive_path) as loader:
@@ -210,16 +202,16 @@ def compare_lots(archive_path: str | os.PathLike[str], lots: Sequence[str], extr
 
 
 def save_steps_csv(strips: Sequence[StripResult], path: str | os.PathLike[str], *, progress: Progress) -> Path:
-    """The step tables of ``strips`` as one CSV (:func:`stripscan.report.export_steps_csv`)."""
-    from ..report import export_steps_csv
+    """The step tables of ``strips`` as one CSV (:func:`stripscan.render.export_steps_csv`)."""
+    from stripscan.render import export_steps_csv
 
     progress(0.2, "Writing the steps")
     return export_steps_csv(list(strips), path)
 
 
 def save_figures_csv(strips: Sequence[StripResult], path: str | os.PathLike[str], *, progress: Progress) -> Path:
-    """The figures of ``strips``, one row each (:func:`stripscan.report.export_figures_csv`)."""
-    from ..report import export_figures_csv
+    """The figures of ``strips``, one row each (:func:`stripscan.render.export_figures_csv`)."""
+    from stripscan.render import export_figures_csv
 
     progress(0.2, "Writing the figures")
     return export_figures_csv(list(strips), path)
@@ -228,8 +220,8 @@ def save_figures_csv(strips: Sequence[StripResult], path: str | os.PathLike[str]
 def save_curve_picture(strip: StripResult, path: str | os.PathLike[str], *, title: str,
                        calibration: dict[str, Any] | None, progress: Progress) -> Path:
     """A strip's curve as PNG or SVG (by the file's suffix), as the report pages draw it."""
-    from ..report import curve_plot, save_plot_png, save_plot_svg
-    from ..report.provenance import valid_range
+    from stripscan.render import curve_plot, save_plot_png, save_plot_svg
+    from stripscan.render.provenance import valid_range
 
     progress(0.2, "Drawing the curve")
     plot = curve_plot(strip, valid_od=valid_range(calibration), title=title)
@@ -240,8 +232,8 @@ def save_curve_picture(strip: StripResult, path: str | os.PathLike[str], *, titl
 
 def save_scan_report(analysis: Analysis, path: str | os.PathLike[str], *, calibration: Any,
                      progress: Progress) -> Path:
-    """One report page per strip of the open scan (:func:`stripscan.report.scan_report_pdf`)."""
-    from ..report import scan_report_pdf
+    """One report page per strip of the open scan (:func:`stripscan.render.scan_report_pdf`)."""
+    from stripscan.render import scan_report_pdf
 
     progress(0.2, "Drawing the report")
     return scan_report_pdf(analysis, path, calibration=calibration)
@@ -249,8 +241,8 @@ def save_scan_report(analysis: Analysis, path: str | os.PathLike[str], *, calibr
 
 def save_snapshot_report(archive_path: str | os.PathLike[str], snapshot_id: int, path: str | os.PathLike[str], *,
                          progress: Progress) -> Path:
-    """The one-page report of an archived snapshot (:func:`stripscan.report.snapshot_report_pdf`)."""
-    from ..report import snapshot_report_pdf
+    """The one-page report of an archived snapshot (:func:`stripscan.render.snapshot_report_pdf`)."""
+    from stripscan.render import snapshot_report_pdf
 
     progress(0.2, "Drawing the report")
     with Archive.open(archive_path, read_only=True) as archive:
@@ -261,13 +253,13 @@ def save_stored_scan_report(archive_path: str | os.PathLike[str], snapshot_ids: 
                             path: str | os.PathLike[str], *, progress: Progress) -> Path:
     """One report page per strip of a scan just stored, each as its snapshot (lot, operator, processor, dates).
 
-    The pages are those :func:`stripscan.report.snapshot_report_pdf` draws,
+    The pages are those :func:`stripscan.render.snapshot_report_pdf` draws,
     in one file, so the scan's report names what the archive holds.
     """
     import dataclasses
     from pathlib import PurePath
 
-    from ..report import report_from_snapshot, write_pdf
+    from stripscan.render import report_from_snapshot, write_pdf
 
     progress(0.2, "Drawing the report")
     with Archive.open(archive_path, read_only=True) as archive:
@@ -279,8 +271,8 @@ def save_stored_scan_report(archive_path: str | os.PathLike[str], snapshot_ids: 
 
 
 def save_comparison_report(result: ComparisonResult, path: str | os.PathLike[str], *, progress: Progress) -> Path:
-    """One page per compared pair (:func:`stripscan.report.comparison_report_pdf`)."""
-    from ..report import comparison_report_pdf
+    """One page per compared pair (:func:`stripscan.render.comparison_report_pdf`)."""
+    from stripscan.render import comparison_report_pdf
 
     progress(0.2, "Drawing the report")
     return comparison_report_pdf(result.comparisons, path, calibrations=result.calibrations, notes=result.notes)
@@ -288,8 +280,8 @@ def save_comparison_report(result: ComparisonResult, path: str | os.PathLike[str
 
 def save_qc_month_report(archive_path: str | os.PathLike[str], processor: str, month: dt.date,
                          path: str | os.PathLike[str], *, progress: Progress) -> Path:
-    """A processor's month of QC (:func:`stripscan.report.qc_month_report_pdf`)."""
-    from ..report import qc_month_report_pdf
+    """A processor's month of QC (:func:`stripscan.render.qc_month_report_pdf`)."""
+    from stripscan.render import qc_month_report_pdf
 
     progress(0.2, "Drawing the report")
     with Archive.open(archive_path, read_only=True) as archive:

@@ -26,21 +26,21 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from .. import CAUTION, __version__
-from ..core.calibration import load_calibration
-from . import qtguard
-from .calibration_dialog import CalibrationDialog
-from .curve_view import CurveView
-from .errors import log_file, report_error, show_message
-from .figures_panel import FiguresPanel, StepTable
-from .options_dialog import OptionsDialog
-from .progress import TaskProgress
-from .scan_view import ScanView
-from .session import LoadedScan, Session, find_strips, load_and_find
-from .settings import AppSettings
-from .strips_panel import StripsPanel
-from .tasks import TaskRunner
-from .workspace import Workspace
+from stripscan import CAUTION, __version__
+from stripscan.core.calibration import load_calibration
+from stripscan.render import qtguard
+from stripscan.gui.dialogs.calibration_dialog import CalibrationDialog
+from stripscan.gui.views.curve_view import CurveView
+from stripscan.gui.errors import log_file, report_error, show_message
+from stripscan.gui.panels.figures_panel import FiguresPanel, StepTable
+from stripscan.gui.dialogs.options_dialog import OptionsDialog
+from stripscan.gui.progress import TaskProgress
+from stripscan.gui.views.scan_view import ScanView
+from stripscan.gui.models.session import LoadedScan, Session, find_strips, load_and_find
+from stripscan.gui.settings import AppSettings
+from stripscan.gui.panels.strips_panel import StripsPanel
+from stripscan.gui.tasks import TaskRunner
+from stripscan.gui.workspace import Workspace
 
 __all__ = ["MainWindow", "SCAN_SUFFIXES"]
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from PySide6.QtWidgets import QProgressBar, QWidget
 
-from .tasks import TaskRunner
+from stripscan.gui.tasks import TaskRunner
 
 __all__ = ["TaskProgress"]
 

@@ -11,7 +11,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QByteArray, QSettings
 
-from .session import DEFAULT_MAX_AGE_DAYS
+from stripscan.gui.models.session import DEFAULT_MAX_AGE_DAYS
 
 __all__ = ["AppSettings", "MAX_RECENT"]
 

@@ -12,8 +12,8 @@ from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QColor, QPainter, QPen, QPixmap
 from PySide6.QtWidgets import QLabel
 
-from .. import CAUTION
-from . import qtguard  # noqa: F401  (before any signal is emitted)
+from stripscan import CAUTION
+from stripscan.render import qtguard  # noqa: F401  (before any signal is emitted)
 
 __all__ = ["LOOKS", "Look", "strip_colour", "look_pen", "swatch", "FILM_LUT", "SCAN_BACKGROUND",
            "notes_label", "caution_label"]

@@ -13,7 +13,7 @@ from typing import Any, Callable
 
 from PySide6.QtCore import QObject, QRunnable, QThreadPool, Signal, Slot
 
-from . import qtguard  # noqa: F401  (before any signal is emitted)
+from stripscan.render import qtguard  # noqa: F401  (before any signal is emitted)
 
 __all__ = ["TaskRunner"]
 

@@ -9,7 +9,7 @@ status bar) and offers the actions that join them: storing the open scan's
 strips, comparing lots, and writing files of what a page shows.
 
 Every number on the pages comes from the archive API, the core and
-:mod:`stripscan.report`; nothing is recomputed here.
+:mod:`stripscan.render`; nothing is recomputed here.
 """
 
 from __future__ import annotations
@@ -41,20 +41,20 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from ..archive import Archive, default_archive_path
-from . import jobs
-from .archive_panel import ArchivePanel
-from .compare_panel import ComparePanel, plain_names
-from .errors import report_error, show_message
-from .exports import Exports
-from .lot_choice import LotChoiceDialog
-from .notice import NoticeBar
-from .progress import TaskProgress
-from .qc_panel import QcPanel
-from .save_snapshot_dialog import SaveSnapshotDialog
-from .session import Session
-from .settings import AppSettings
-from .tasks import TaskRunner
+from stripscan.archive import Archive, default_archive_path
+from stripscan.gui import jobs
+from stripscan.gui.panels.archive_panel import ArchivePanel
+from stripscan.gui.panels.compare_panel import ComparePanel, plain_names
+from stripscan.gui.errors import report_error, show_message
+from stripscan.gui.exports import Exports
+from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
+from stripscan.gui.notice import NoticeBar
+from stripscan.gui.progress import TaskProgress
+from stripscan.gui.panels.qc_panel import QcPanel
+from stripscan.gui.dialogs.save_snapshot_dialog import SaveSnapshotDialog
+from stripscan.gui.models.session import Session
+from stripscan.gui.settings import AppSettings
+from stripscan.gui.tasks import TaskRunner
 
 __all__ = ["Workspace", "PAGES", "archive_setting", "set_archive_setting"]
 

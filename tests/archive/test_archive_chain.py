@@ -15,7 +15,7 @@ import pytest
 from archive_factory import LOTS, make_draft, raw_connection
 
 from stripscan.archive import Archive, ArchiveIntegrityError, QcEntry
-from stripscan.cli import main
+from stripscan.cli.main import main
 
 
 @pytest.fixture

@@ -15,7 +15,7 @@ import pytest
 from archive_factory import LOTS, make_draft, make_strip
 
 from stripscan.archive import Archive
-from stripscan.archive.cli import register
+from stripscan.cli.archive import register
 
 
 def main(argv: list[str]) -> int:

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 
 from stripscan.archive import FIGURES, Archive, ArchiveError, calibration_hash
-from stripscan.archive.demo import (
+from stripscan.services.demo_archive import (
     DEMO_ARCHIVE_NAME,
     FILM_TYPE,
     PROCESSOR,
@@ -21,7 +21,7 @@ from stripscan.archive.demo import (
 )
 from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.demo_data import LOT_FILMS, SCENARIO, demo_files
+from stripscan.sim.demo_data import LOT_FILMS, SCENARIO, demo_files
 
 
 @pytest.fixture(scope="module")
@@ -178,7 +178,7 @@ def test_the_demo_archive_and_its_qc_month_verify_clean(demo: Path, tmp_path: Pa
     """Issue 15 item 20: the demo archive, with the demo QC month added, walks its hash chain clean."""
     import shutil
 
-    from stripscan.cli import main
+    from stripscan.cli.main import main
 
     copy = tmp_path / "demo-with-qc.sqlite3"
     shutil.copyfile(demo, copy)

@@ -213,7 +213,7 @@ def test_failed_export_keeps_the_previous_file(filled: Archive, tmp_path: Path, 
     (tmp_path / "exports").mkdir()
     target = tmp_path / "exports" / "year.json"
     target.write_text("previous export", encoding="utf-8")
-    import stripscan.archive.exchange as exchange
+    from stripscan.archive import exchange
 
     def fail_half_way(handle: object, data: object) -> None:
         handle.write('{"format": "stripscan lot archive", "snapshots": [')  # type: ignore[attr-defined]

@@ -11,7 +11,7 @@ import pytest
 from archive_factory import escaped, make_draft, populate, raw_connection
 
 from stripscan.archive import Archive, ArchiveError, ArchiveReadOnlyError, default_archive_path
-from stripscan.archive.migrations import APPLICATION_ID, LATEST_VERSION
+from stripscan.archive.sqlite.migrations import APPLICATION_ID, LATEST_VERSION
 
 posix_only = pytest.mark.skipif(sys.platform == "win32", reason="XDG folders are a POSIX convention")
 

@@ -2,7 +2,7 @@
 revising and retiring snapshots with a reason, and ``archive add`` reading strips as ``analyze`` does
 (``--increment``, ``--exposures``, ``--sensitometer``, ``--low/--high``).
 
-The scans are the bundled demo's (invented scenario, stripscan/demo_data.py).
+The scans are the bundled demo's (invented scenario, stripscan/sim/demo_data.py).
 """
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 
 from stripscan.archive import Archive
-from stripscan.cli import main
-from stripscan.demo_data import demo_files
+from stripscan.cli.main import main
+from stripscan.sim.demo_data import demo_files
 
 
 def _run(capsys: pytest.CaptureFixture[str], *argv: object) -> str:

@@ -23,7 +23,7 @@ from archive_factory import raw_connection
 from pg_rows import NORTH, TABLES, copy_rows, filled_archive, sqlite_objects, sqlite_rows, sqlite_schema
 
 from stripscan.archive import ArchiveError
-from stripscan.archive.migrations import LATEST_VERSION as SQLITE_VERSION
+from stripscan.archive.sqlite.migrations import LATEST_VERSION as SQLITE_VERSION
 from stripscan.archive.postgres import schema
 
 psycopg = pytest.importorskip("psycopg")  # the postgres extra; in CI its absence fails the run

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 import tifffile
 
-from stripscan.cli import main
-from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.cli.main import main
+from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
 
 
 def run(argv, capsys):

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from stripscan.core.compare import (
+from stripscan.core.compare.statistics import (
     DEFAULT_TOLERANCES,
     CompareError,
     Comparison,
@@ -22,7 +22,7 @@ from stripscan.core.compare import (
 )
 from stripscan.core.curve import relative_speed_percent
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec
 
 DPI = 120.0
 SCANNER = ScannerModel(bits=16, encoding="linear", channels=1, noise_sd=0.0008, seed=21)

@@ -48,7 +48,7 @@ def _read_or_refuse(path) -> None:
         assert str(path) in str(exc)  # the message names the file
         return
     assert scan.shape[0] >= 16 and scan.shape[1] >= 16  # what loads is a usable image
-    scan.info  # the provenance hash finishes too
+    _ = scan.info  # the provenance hash finishes too
 
 
 @settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])

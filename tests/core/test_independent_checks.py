@@ -32,7 +32,7 @@ from stripscan.core.calibration import (
     fit_calibration,
     fit_lateral,
 )
-from stripscan.core.compare import StripSet, compare_sets, judge, welch_interval
+from stripscan.core.compare.statistics import StripSet, compare_sets, judge, welch_interval
 from stripscan.core.curve import (
     CharacteristicCurve,
     FigureSettings,
@@ -41,7 +41,7 @@ from stripscan.core.curve import (
     step_log_exposures,
 )
 from stripscan.core.pipeline import AnalysisOptions, strip_result
-from stripscan.core.qc import (
+from stripscan.core.qc.rules import (
     OperatingLevels,
     QCEntry,
     QCLimits,
@@ -562,7 +562,7 @@ def test_base_fog_outside_the_range_is_not_used():
 
 
 def test_qc_reading_refuses_a_strip_without_base_fog():
-    from stripscan import qc_log
+    from stripscan.services import qc_log
 
     cert = tablet_certificate(21, 0.15)
     cal = fit(cert, flare_signal(cert.densities))

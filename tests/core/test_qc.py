@@ -1,4 +1,4 @@
-"""Tests for daily processor QC and QC-film crossover (stripscan.core.qc).
+"""Tests for daily processor QC and QC-film crossover (stripscan.core.qc.rules).
 
 Invented scenario: the breast imaging unit of Larkspur Hill Clinic runs one
 QC strip a day through its "processor 2", starting Monday 3 March 2025.
@@ -14,7 +14,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stripscan import CAUTION
-from stripscan.core.qc import (
+from stripscan.core.qc.rules import (
     ADVICE,
     TREND_DEAD_BAND,
     CrossoverResult,

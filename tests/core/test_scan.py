@@ -200,7 +200,7 @@ def test_lzw_scan_is_decoded_in_little_more_memory_than_its_pixels(tmp_path):
     tracemalloc.start()
     try:
         scan = load_scan(path)
-        scan.info  # waits for the file's hash, so its reads fall inside the trace too
+        _ = scan.info  # waits for the file's hash, so its reads fall inside the trace too
         _, peak = tracemalloc.get_traced_memory()
     finally:
         tracemalloc.stop()

@@ -11,7 +11,7 @@ import pytest
 from scipy import integrate, optimize, special
 
 from stripscan.core.records import StripGeometry
-from stripscan.core.simulate import (
+from stripscan.sim.simulate import (
     FLARE_KERNELS,
     FilmModel,
     ScannerModel,

@@ -17,7 +17,7 @@ from scipy import ndimage
 
 from stripscan.core.calibration import Calibration, Certificate, load_calibration, save_calibration
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.core.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
+from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
 from stripscan.core.straylight import (
     ReducedScan,
     StrayLight,

@@ -14,7 +14,7 @@ import pytest  # noqa: E402
 
 from stripscan.core.calibration import read_certificate, save_calibration  # noqa: E402
 from stripscan.core.pipeline import calibrate_tablet  # noqa: E402
-from stripscan.core.simulate import (  # noqa: E402
+from stripscan.sim.simulate import (  # noqa: E402
     FilmModel,
     ScannerModel,
     StripSpec,

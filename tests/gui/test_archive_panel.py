@@ -12,15 +12,15 @@ from PySide6.QtWidgets import QDialogButtonBox, QMessageBox
 
 from stripscan import CAUTION
 from stripscan.archive import FIGURES, Archive, calibration_hash
-from stripscan.archive.demo import REVISED, build_demo_archive
+from stripscan.services.demo_archive import REVISED, build_demo_archive
 from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.demo_data import demo_files
-from stripscan.gui.archive_panel import ArchivePanel
-from stripscan.gui.figures_panel import VALUE_ROLE
-from stripscan.gui.save_snapshot_dialog import SaveForm, SaveSnapshotDialog, check_form
-from stripscan.gui.tables import figure_rows
-from stripscan.gui.trend_view import TrendView
+from stripscan.sim.demo_data import demo_files
+from stripscan.gui.panels.archive_panel import ArchivePanel
+from stripscan.gui.panels.figures_panel import VALUE_ROLE
+from stripscan.gui.dialogs.save_snapshot_dialog import SaveForm, SaveSnapshotDialog, check_form
+from stripscan.gui.views.tables import figure_rows
+from stripscan.gui.views.trend_view import TrendView
 
 
 @pytest.fixture(scope="module")

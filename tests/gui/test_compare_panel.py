@@ -12,9 +12,9 @@ import pytest  # noqa: E402
 
 from stripscan import CAUTION  # noqa: E402
 from stripscan.core.calibration import load_calibration  # noqa: E402
-from stripscan.core.compare import FIGURES, StripSet, compare_sets  # noqa: E402
+from stripscan.core.compare.statistics import FIGURES, StripSet, compare_sets  # noqa: E402
 from stripscan.core.pipeline import analyze_scan  # noqa: E402
-from stripscan.demo_data import demo_files  # noqa: E402
+from stripscan.sim.demo_data import demo_files  # noqa: E402
 
 
 @pytest.fixture(scope="module")
@@ -27,7 +27,7 @@ def demo_sets():
 
 @pytest.fixture
 def panel(qtbot, demo_sets):
-    from stripscan.gui.compare_panel import ComparePanel
+    from stripscan.gui.panels.compare_panel import ComparePanel
 
     widget = ComparePanel(compare_sets(demo_sets))
     qtbot.addWidget(widget)
@@ -41,7 +41,7 @@ def _lines(plot: pg.PlotWidget) -> list[pg.PlotDataItem]:
 
 
 def test_table_shows_every_figure_with_interval_and_verdict(panel):
-    from stripscan.gui.compare_panel import VERDICT_COLOURS
+    from stripscan.gui.panels.compare_panel import VERDICT_COLOURS
 
     (comparison,) = panel.comparisons
     table = panel.table
@@ -92,7 +92,7 @@ def test_caution_and_notes_are_shown(panel):
 
 
 def test_three_sets_choose_the_pair_for_the_table(qtbot, demo_sets):
-    from stripscan.gui.compare_panel import ComparePanel
+    from stripscan.gui.panels.compare_panel import ComparePanel
 
     a, b = demo_sets
     widget = ComparePanel(compare_sets([a, b, StripSet("two strips of B", b.strips[:2])]))

@@ -19,7 +19,7 @@ from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan
 from stripscan.core.curve import strip_curve
 from stripscan.gui.main_window import MainWindow
-from stripscan.gui.tables import step_table_text
+from stripscan.gui.views.tables import step_table_text
 
 
 def messages(window) -> list[QMessageBox]:
@@ -312,7 +312,7 @@ def test_the_excepthook_guard_reports_instead_of_dying(qtbot, window, tmp_path):
 def test_reference_guard_keeps_true_alive():
     from PySide6.QtCore import QObject, Signal
 
-    from stripscan.gui import qtguard
+    from stripscan.render import qtguard
 
     class Probe(QObject):
         ping = Signal()

@@ -9,9 +9,9 @@ from PySide6.QtCore import QDate
 from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
-from stripscan.core.qc import QUANTITIES
-from stripscan.gui.qc_panel import FILM_TYPE_KEY
-from stripscan.qc_log import load_processor_log
+from stripscan.core.qc.rules import QUANTITIES
+from stripscan.gui.panels.qc_panel import FILM_TYPE_KEY
+from stripscan.services.qc_log import load_processor_log
 
 
 def type_day(panel, day: datetime.date, values) -> None:
@@ -57,7 +57,7 @@ def test_qc_starts_in_the_window_on_an_empty_archive(qtbot, window, settings):
     assert plog.setup.limits.md_dd_action == 0.15 and plog.setup.limits.base_fog_action == 0.03
 
     # The save-to-archive form now offers it (it offered only "(not recorded)" before).
-    from stripscan.gui.save_snapshot_dialog import read_choices
+    from stripscan.gui.dialogs.save_snapshot_dialog import read_choices
     assert read_choices(archive).processors == ("Room 3 processor",)
 
     first = datetime.date(2026, 12, 1)

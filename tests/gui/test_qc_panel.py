@@ -11,12 +11,12 @@ from PySide6.QtCore import QDate, Qt
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.demo_data import demo_files
-from stripscan.gui.qc_panel import QcPanel
-from stripscan.qc_chart import SET_ASIDE, legend_entries
-from stripscan.qc_demo import build_demo_qc
-from stripscan.report.plot import Band, Line, Points
-from stripscan.report.qcmonth import qc_month, qc_month_plots
+from stripscan.sim.demo_data import demo_files
+from stripscan.gui.panels.qc_panel import QcPanel
+from stripscan.render.qc_chart import SET_ASIDE, legend_entries
+from stripscan.services.qc_demo import build_demo_qc
+from stripscan.render.plot import Band, Line, Points
+from stripscan.render.qcmonth import qc_month, qc_month_plots
 
 
 @pytest.fixture(scope="module")
@@ -98,8 +98,8 @@ def test_the_window_and_the_monthly_report_explain_the_same_marks_in_the_same_wo
 
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
     path = tmp_path / "short.sqlite3"
-    from stripscan.core.qc import QCValues
-    from stripscan.qc_log import add_day
+    from stripscan.core.qc.rules import QCValues
+    from stripscan.services.qc_log import add_day
 
     with Archive.open(path) as archive:
         for k in range(5):
@@ -241,9 +241,9 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
 def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_path):
     from pypdf import PdfReader
 
-    from stripscan.core.qc import QCValues
+    from stripscan.core.qc.rules import QCValues
     from stripscan.gui import jobs
-    from stripscan.qc_log import add_day
+    from stripscan.services.qc_log import add_day
 
     path = tmp_path / "two-months.sqlite3"
     with Archive.open(path) as archive:

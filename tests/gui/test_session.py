@@ -15,10 +15,10 @@ from stripscan.core.pipeline import AnalysisOptions, analyze_loaded, read_densit
 from stripscan.core.records import StripGeometry
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan
-from stripscan.gui.events import Event
-from stripscan.gui.outline import frame_of, geometry_from_corners, hand_drawn_corners, step_at
-from stripscan.gui.session import MIN_LEVEL_GAP, Session, calibration_messages, load_and_find
-from stripscan.gui.tables import step_table_text
+from stripscan.gui.models.events import Event
+from stripscan.gui.views.outline import frame_of, geometry_from_corners, hand_drawn_corners, step_at
+from stripscan.gui.models.session import MIN_LEVEL_GAP, Session, calibration_messages, load_and_find
+from stripscan.gui.views.tables import step_table_text
 
 
 @pytest.fixture(scope="module")

@@ -16,12 +16,12 @@ from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.core.compare import compare_sets
-from stripscan.core.qc import QUANTITIES
-from stripscan.core.simulate import FilmModel
-from stripscan.compare_cli import SetLoader, parse_set
-from stripscan.gui.lot_choice import LotChoiceDialog
-from stripscan.qc_log import read_strip
+from stripscan.core.compare.statistics import compare_sets
+from stripscan.core.qc.rules import QUANTITIES
+from stripscan.sim.simulate import FilmModel
+from stripscan.services.comparison_sets import SetLoader, parse_set
+from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
+from stripscan.services.qc_log import read_strip
 
 # A second emulsion lot: a little faster and flatter than the fixture's films (invented, demo-style data).
 LOT_B_FILMS = (

@@ -10,7 +10,7 @@ import pytest
 from stripscan.archive import Archive
 from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.gui.trend_view import TrendView
+from stripscan.gui.views.trend_view import TrendView
 
 
 @pytest.fixture
@@ -62,7 +62,7 @@ def test_excluding_the_step_below_the_last_usable_one_does_not_invent_a_steeper_
     and the curve is steepest there: its slope is the interpolant's end condition, not a measurement.  The
     simulated film's true maximum slope is 5.10 at log E 1.69 (the demo scenario's model film, exact).
     """
-    from stripscan.demo_data import demo_files
+    from stripscan.sim.demo_data import demo_files
 
     files = demo_files()
     window.use_calibration_file(str(files.calibration))
@@ -128,8 +128,8 @@ def test_the_calibration_assistant_before_a_fit_shows_no_band_and_plain_axes(qtb
 def test_the_curve_legend_lies_outside_the_data_and_marks_excluded_and_unused_apart(qtbot, open_scan, window,
                                                                                      files):
     """Items 7, 9 and issue 13 item 6: one set of marks, the legend under the plot."""
-    from stripscan.curve_marks import CURVE_MARKS
-    from stripscan.report import curve_plot
+    from stripscan.core.curve_marks import CURVE_MARKS
+    from stripscan.render import curve_plot
 
     window.use_calibration_file(str(files.calibration))
     open_scan(window, files.scan)
@@ -237,7 +237,6 @@ def test_the_assistant_explains_the_missing_end_bars_and_offers_the_open_scan(qt
 
 def test_the_comparison_page_speaks_plain_words(qtbot, open_scan, window, files, make_strip_scan, tmp_path):
     """Item 14: 'lot:M-2610-A' (command-line syntax), '0 strip(s)' and 'D_B − D_A' on the comparison page."""
-    from PySide6.QtWidgets import QDialogButtonBox
 
     from tests.gui.test_whole_job import LOT_B_FILMS, store
 
@@ -265,7 +264,7 @@ def test_the_save_form_suggests_the_lot_remembers_the_operator_and_keeps_a_film_
 
     from PySide6.QtWidgets import QDialogButtonBox, QLabel
 
-    from stripscan.gui.save_snapshot_dialog import lot_from_file_name
+    from stripscan.gui.dialogs.save_snapshot_dialog import lot_from_file_name
 
     assert lot_from_file_name("sample_scans/lot_M-2610-A_three_strips.tif") == "M-2610-A"
     assert lot_from_file_name("two_strips.tif") == ""
@@ -364,10 +363,10 @@ def test_every_empty_curve_and_chart_has_plain_units_and_the_shared_marks(qtbot,
     """Item 6 and issue 13 item 6 on the other pages: the stored curve and the QC charts before any data."""
     from PySide6.QtWidgets import QApplication
 
-    from stripscan.curve_marks import CURVE_MARKS
+    from stripscan.core.curve_marks import CURVE_MARKS
 
     ws = window.workspace
-    from stripscan.gui.archive_panel import _StoredCurve
+    from stripscan.gui.panels.archive_panel import _StoredCurve
 
     curve = ws.archive_panel.findChild(_StoredCurve)
     QApplication.processEvents()

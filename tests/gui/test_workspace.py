@@ -25,20 +25,21 @@ from PySide6.QtWidgets import QApplication, QDialogButtonBox, QLabel, QMenu, QMe
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.archive.demo import DEMO_ARCHIVE_NAME
-from stripscan.compare_cli import SetLoader, parse_set
-from stripscan.core.compare import compare_sets
-from stripscan.gui import jobs, qtguard
+from stripscan.services.demo_archive import DEMO_ARCHIVE_NAME
+from stripscan.services.comparison_sets import SetLoader, parse_set
+from stripscan.core.compare.statistics import compare_sets
+from stripscan.gui import jobs
+from stripscan.render import qtguard
 from stripscan.gui.app import open_demo, run_demo
-from stripscan.gui.compare_panel import COLUMNS
+from stripscan.gui.panels.compare_panel import COLUMNS
 from stripscan.gui.errors import setup_logging
 from stripscan.gui.main_window import MainWindow
-from stripscan.gui.save_snapshot_dialog import SaveSnapshotDialog
+from stripscan.gui.dialogs.save_snapshot_dialog import SaveSnapshotDialog
 from stripscan.gui.settings import AppSettings
-from stripscan.gui.lot_choice import LotChoiceDialog
+from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
 from stripscan.gui.workspace import PAGES, archive_setting
-from stripscan.qc_demo import DEMO_PROCESSOR
-from stripscan.qc_log import VERDICT_WORDS, load_processor_log
+from stripscan.services.qc_demo import DEMO_PROCESSOR
+from stripscan.services.qc_log import VERDICT_WORDS, load_processor_log
 
 LOT_A, LOT_B = "M-2610-A", "M-2702-B"
 
@@ -332,7 +333,7 @@ def test_closing_during_the_demo_build_stops_it_and_keeps_no_half_archive(qtbot,
 def test_a_demo_build_cancelled_after_its_lots_leaves_no_archive(demo, tmp_path):
     # The lot archive is complete (renamed into place) when the cancel is seen; the QC month is not
     # in it yet.  Nothing that looks like a demo archive may be left.
-    from stripscan.archive.demo import demo_schedule
+    from stripscan.services.demo_archive import demo_schedule
 
     cancel = threading.Event()
     readings: list[str] = []

@@ -23,7 +23,7 @@ from stripscan.archive import Archive, EmulsionLot, FilmType, Processor, Sensito
 from stripscan.core.calibration import Calibration, load_calibration  # noqa: E402
 from stripscan.core.pipeline import analyze_scan  # noqa: E402
 from stripscan.core.records import Analysis  # noqa: E402
-from stripscan.demo_data import demo_files  # noqa: E402
+from stripscan.sim.demo_data import demo_files  # noqa: E402
 
 
 @pytest.fixture(scope="session")

@@ -1,7 +1,7 @@
 """Builders and readers for the report tests: the demo scenario, hand-made strips, PDF and picture readers.
 
 All names, lots and places come from the invented demo scenario
-(``stripscan.demo_data``).  PDFs are read back with the general-purpose
+(``stripscan.sim.demo_data``).  PDFs are read back with the general-purpose
 library pypdf and, when installed, poppler's ``pdftotext``.  Kept apart
 from ``conftest.py`` so that test modules can import it by name.
 """
@@ -24,7 +24,7 @@ import pytest  # noqa: E402
 from stripscan.core.calibration import Calibration  # noqa: E402
 from stripscan.core.curve import FigureSettings, compute_figures  # noqa: E402
 from stripscan.core.records import Analysis, ScanInfo, StepDensity, StripGeometry, StripResult  # noqa: E402
-from stripscan.demo_data import SCENARIO  # noqa: E402
+from stripscan.sim.demo_data import SCENARIO  # noqa: E402
 
 SITE = SCENARIO["site"]
 LOT_A, LOT_B = tuple(SCENARIO["lots"])
@@ -126,8 +126,8 @@ def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibratio
     """
     import datetime as dt
 
-    from stripscan.core.qc import QCValues
-    from stripscan.qc_log import add_day, add_event
+    from stripscan.core.qc.rules import QCValues
+    from stripscan.services.qc_log import add_day, add_event
 
     days = dict(QC_DAYS)
     if scan_day is not None:

@@ -8,9 +8,9 @@ from report_support import LOT_A, LOT_B, image_array, pdf_pages
 from scipy import stats
 
 from stripscan import CAUTION
-from stripscan.core.compare import StripSet, compare_sets
-from stripscan.report import ReportError, render_page
-from stripscan.report.comparison import CalibrationUse, ComparisonPage, comparison_plots, comparison_report_pdf
+from stripscan.core.compare.statistics import StripSet, compare_sets
+from stripscan.render import ReportError, render_page
+from stripscan.render.comparison import CalibrationUse, ComparisonPage, comparison_plots, comparison_report_pdf
 
 
 def squash(text: str) -> str:

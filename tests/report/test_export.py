@@ -14,9 +14,9 @@ from report_support import LOT_A, logistic_strip
 
 from stripscan.archive import Archive
 from stripscan.archive.records import FIGURE_UNITS
-from stripscan.report import (ReportError, curve_plot, export_figures_csv, export_snapshot_json, export_steps_csv,
+from stripscan.render import (ReportError, curve_plot, export_figures_csv, export_snapshot_json, export_steps_csv,
                               save_plot_png, save_plot_svg)
-from stripscan.figure_table import NOT_REACHED
+from stripscan.core.figures import NOT_REACHED
 
 
 def read_csv(path: Path) -> list[dict[str, str]]:

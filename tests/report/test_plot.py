@@ -8,8 +8,8 @@ import numpy as np
 import pytest
 from report_support import image_array
 
-from stripscan.report.pictures import plot_image
-from stripscan.report.plot import Line, Plot, Points, RefLine, nice_ticks
+from stripscan.render.pictures import plot_image
+from stripscan.render.plot import Line, Plot, Points, RefLine, nice_ticks
 
 RED, BLUE = "#ff0000", "#0000ff"
 

@@ -10,7 +10,7 @@ from report_support import LOT_B, PROCESSOR, SCENARIO, pdf_pages
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.cli import main
+from stripscan.cli.main import main
 
 
 def run(capsys, *argv: str) -> tuple[int, str, str]:
@@ -92,7 +92,7 @@ def test_bad_input_gives_one_line_and_no_file(capsys, archive: Archive, demo, tm
 
 def test_a_long_unbroken_site_name_wraps_in_linear_time(capsys, demo, tmp_path):
     # bad-input issue item 5: 3 000 characters without a space took 94 s (a cubic wrapping loop)
-    from stripscan.report.canvas import _wrap_paragraph
+    from stripscan.render.canvas import _wrap_paragraph
 
     measured = []
 

@@ -12,8 +12,8 @@ from report_support import (LOT_A, PROCESSOR, SCENARIO, SITE, analysis_of, image
                       pdf_pages, pdf_words)
 
 from stripscan import CAUTION
-from stripscan.report import ReportError, render_page, scan_report_pdf, snapshot_report_pdf, write_pdf
-from stripscan.report.snapshot import StripContext, reports_from_analysis
+from stripscan.render import ReportError, render_page, scan_report_pdf, snapshot_report_pdf, write_pdf
+from stripscan.render.snapshot import StripContext, reports_from_analysis
 
 A4_PT = (595.0, 842.0)  # ISO 216 A4, 210 x 297 mm, in PDF points (1/72 inch)
 

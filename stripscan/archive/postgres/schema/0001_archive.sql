@@ -1,5 +1,5 @@
 -- Version 1 of the server schema: the SQLite archive's schema at its version 4
--- (stripscan/archive/migrations.py), table for table and column for column, so
+-- (stripscan/archive/sqlite/migrations.py), table for table and column for column, so
 -- that the archive's portable SQL reads and writes both.
 --
 -- How SQLite's schema is carried over:

@@ -1,0 +1,1 @@
+"""Small helpers every layer uses: atomic file writes.  Imports nothing of stripscan."""

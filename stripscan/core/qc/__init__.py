@@ -1,0 +1,1 @@
+"""Processor QC: the day's values, operating levels, control limits, trend rules, status and crossover."""

@@ -1,0 +1,381 @@
+"""The short form that stores the current analysis in the lot archive, one snapshot per strip.
+
+The form checks what a person types before anything is written (a lot must
+be named and known, or marked new; someone must have read the strips; the
+dates must follow each other and not lie ahead), then makes one call to
+:meth:`Archive.add_analysis <stripscan.archive.Archive.add_analysis>`, which
+stores every strip in one transaction or nothing at all.  A refusal is a
+message naming the problem; the form stays open with what was typed.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import re
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Union
+
+from PySide6.QtCore import QDate, Signal
+from PySide6.QtWidgets import (
+    QCheckBox,
+    QComboBox,
+    QDateEdit,
+    QDialog,
+    QDialogButtonBox,
+    QFormLayout,
+    QLabel,
+    QLineEdit,
+    QMessageBox,
+    QVBoxLayout,
+    QWidget,
+)
+
+from stripscan import CAUTION
+from stripscan.archive import Archive, EmulsionLot, FilmType, Snapshot, snapshots_from_analysis
+from stripscan.archive.entry_checks import already_stored, describe_stored
+from stripscan.core.calibration import Calibration
+from stripscan.core.records import Analysis
+from stripscan.gui.errors import report_error, show_message
+
+__all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "NONE",
+           "lot_from_file_name"]
+
+#: What the processor and sensitometer pickers show for "not recorded".
+NONE = "(not recorded)"
+
+CalibrationLike = Union[Calibration, dict, None]
+
+
+@dataclass(frozen=True)
+class SaveForm:
+    """What the form holds, as plain values.
+
+    Attributes
+    ----------
+    lot : str
+    new_lot : bool
+        Add the lot to the archive (bare, with no further details) when it is not there.
+    processor, sensitometer : str or None
+    operator : str
+    exposed_on, processed_on, scanned_on : datetime.date
+    notes : str
+    film_type : str
+        Film type of a new lot (kept with the lot); an existing lot keeps its own.
+    """
+
+    lot: str
+    new_lot: bool
+    processor: str | None
+    sensitometer: str | None
+    operator: str
+    exposed_on: dt.date
+    processed_on: dt.date
+    scanned_on: dt.date
+    notes: str = ""
+    film_type: str = ""
+
+    def details(self) -> dict[str, Any]:
+        """The snapshot fields :meth:`Archive.add_analysis` takes as ``**details``."""
+        return {"processor": self.processor, "sensitometer": self.sensitometer, "operator": self.operator,
+                "exposed_on": self.exposed_on.isoformat(), "processed_on": self.processed_on.isoformat(),
+                "scanned_on": self.scanned_on.isoformat(), "notes": self.notes}
+
+
+@dataclass(frozen=True)
+class ArchiveChoices:
+    """What the pickers offer: the archive's lots, processors, sensitometers and known operators."""
+
+    lots: tuple[str, ...] = ()
+    processors: tuple[str, ...] = ()
+    sensitometers: tuple[str, ...] = ()
+    operators: tuple[str, ...] = ()
+    #: Each lot's film type as stored ("" when none).
+    film_types: tuple[tuple[str, str], ...] = ()
+    #: The film types the archive knows.
+    film_type_names: tuple[str, ...] = ()
+
+
+def read_choices(path: str | os.PathLike[str] | None) -> ArchiveChoices:
+    """The pickers' contents from an archive file (empty when there is no file yet)."""
+    if path is None or not Path(path).is_file():
+        return ArchiveChoices()
+    with Archive.open(path, read_only=True) as archive:
+        operators = sorted({s.operator for s in archive.list_snapshots(include_retired=True,
+                                                                        include_superseded=True) if s.operator})
+        lots = archive.list_lots()
+        return ArchiveChoices(tuple(s.lot.lot_id for s in lots),
+                              tuple(p.name for p in archive.list_processors()),
+                              tuple(s.sensitometer_id for s in archive.list_sensitometers()), tuple(operators),
+                              tuple((s.lot.lot_id, s.lot.film_type or "") for s in lots),
+                              tuple(f.name for f in archive.list_film_types()))
+
+
+def lot_from_file_name(path: str | os.PathLike[str]) -> str:
+    """The lot named in a scan's file name (``lot_M-2610-A_three_strips.tif`` → ``M-2610-A``); "" when none."""
+    match = re.search(r"(?:^|[_\s-])lot[_\s-]+([A-Za-z0-9][A-Za-z0-9.-]*[A-Za-z0-9])", Path(path).stem, re.IGNORECASE)
+    return match.group(1) if match else ""
+
+
+def check_form(form: SaveForm, *, strips: int, known_lots: tuple[str, ...], today: dt.date) -> list[str]:
+    """Every reason not to store the form, in plain words (empty: fine to store)."""
+    problems = []
+    if strips < 1:
+        problems.append("There is no strip with densities to store; open and read a scan first.")
+    if not form.lot.strip():
+        problems.append("Choose the emulsion lot the strips were cut from.")
+    elif form.lot.strip() not in known_lots and not form.new_lot:
+        problems.append(f"Lot {form.lot.strip()!r} is not in the archive. Choose a lot from the list, "
+                        "or tick \"New lot\" to add it.")
+    if not form.operator.strip():
+        problems.append("Enter who exposed, processed and read the strips (operator).")
+    if form.processed_on < form.exposed_on:
+        problems.append("The processing date lies before the exposure date.")
+    if form.scanned_on < form.processed_on:
+        problems.append("The scan date lies before the processing date.")
+    ahead = [name for name, day in (("exposure", form.exposed_on), ("processing", form.processed_on),
+                                     ("scan", form.scanned_on)) if day > today]
+    if ahead:
+        problems.append(f"The {', '.join(ahead)} date{'s lie' if len(ahead) > 1 else ' lies'} after today.")
+    return problems
+
+
+def _calibration_dict(calibration: CalibrationLike) -> dict[str, Any] | None:
+    return calibration.to_dict() if isinstance(calibration, Calibration) else calibration
+
+
+def _date_edit(day: dt.date) -> QDateEdit:
+    edit = QDateEdit(QDate(day.year, day.month, day.day))
+    edit.setCalendarPopup(True)
+    edit.setDisplayFormat("yyyy-MM-dd")
+    return edit
+
+
+def _day(edit: QDateEdit) -> dt.date:
+    q = edit.date()
+    return dt.date(q.year(), q.month(), q.day())
+
+
+class SaveSnapshotDialog(QDialog):
+    """Store the current analysis in the lot archive, one snapshot per strip.
+
+    Parameters
+    ----------
+    analysis : Analysis or None
+        The open scan's results (e.g. ``Session.analysis()``).
+    calibration : Calibration, dict or None
+        The full calibration the analysis used (None in direct mode).
+    archive_path : path-like or None
+        The archive file; made when it does not exist yet.
+    parent : QWidget, optional
+
+    Signals
+    -------
+    saved(str, list)
+        The lot and the ids of the snapshots just stored.
+
+    Attributes
+    ----------
+    stored : list of Snapshot
+        What the last successful save stored.
+    """
+
+    saved = Signal(str, list)
+
+    def __init__(self, analysis: Analysis | None, calibration: CalibrationLike,
+                 archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Save to the lot archive")
+        self.analysis = analysis
+        self.calibration = calibration
+        self.archive_path = Path(archive_path) if archive_path is not None else None
+        self.stored: list[Snapshot] = []
+        try:
+            self.choices = read_choices(self.archive_path)
+        except Exception as exc:  # the form still opens; saving will say what is wrong
+            self.choices = ArchiveChoices()
+            report_error(self, "The archive's lots could not be read", exc)
+
+        self.lot = QComboBox()
+        self.lot.setEditable(True)
+        self.lot.addItems(list(self.choices.lots))
+        # No lot is chosen for the person: a snapshot under the wrong lot would stay for good.
+        self.lot.setCurrentText("")
+        self.lot.lineEdit().setPlaceholderText("choose, or type a new lot's id")
+        self.lot.setToolTip("The emulsion lot printed on the film box")
+        self.new_lot = QCheckBox("New lot: add it to the archive")
+        #: The lot's film type: typed for a new lot, shown (not changed) for a lot in the archive.
+        self.film_type = QComboBox()
+        self.film_type.setEditable(True)
+        self.film_type.addItems(list(self.choices.film_type_names))
+        self.film_type.setCurrentText("")
+        self.film_type.lineEdit().setPlaceholderText("optional, for a new lot: the film's type as on the box")
+        self.lot_hint = QLabel()
+        self.lot_hint.setStyleSheet("color: #555555")
+        self.lot_hint.setWordWrap(True)
+        self.lot.currentTextChanged.connect(self._lot_changed)
+        self.processor = QComboBox()
+        self.processor.addItems([*self.choices.processors, NONE])
+        self.sensitometer = QComboBox()
+        self.sensitometer.addItems([*self.choices.sensitometers, NONE])
+        self.operator = QComboBox()
+        self.operator.setEditable(True)
+        self.operator.addItems(list(self.choices.operators))
+        self.operator.setCurrentText("")
+        self.operator.lineEdit().setPlaceholderText("who exposed, processed and read the strips")
+        today = dt.date.today()
+        self.exposed_on, self.processed_on, self.scanned_on = (_date_edit(today) for _ in range(3))
+        self.notes = QLineEdit()
+        self.notes.setPlaceholderText("optional")
+        # Shown when the archive turns out to hold this scan's strips already.
+        self.again = QCheckBox("Store again: the archive holds this scan's strips already")
+        self.again.setVisible(False)
+
+        form = QFormLayout()
+        form.addRow("Emulsion lot: *", self.lot)
+        form.addRow("", self.lot_hint)
+        form.addRow("", self.new_lot)
+        form.addRow("Film type:", self.film_type)
+        form.addRow("Processor:", self.processor)
+        form.addRow("Sensitometer:", self.sensitometer)
+        form.addRow("Operator: *", self.operator)
+        form.addRow("Exposed on:", self.exposed_on)
+        form.addRow("Processed on:", self.processed_on)
+        form.addRow("Scanned on:", self.scanned_on)
+        form.addRow("Notes:", self.notes)
+        form.addRow("", self.again)
+        self.summary = QLabel(self._summary_text())
+        self.summary.setWordWrap(True)
+        self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Save | QDialogButtonBox.StandardButton.Cancel)
+        n = self.strip_count
+        self.buttons.button(QDialogButtonBox.StandardButton.Save).setText(
+            f"Store {n} snapshot{'s' if n != 1 else ''}")
+        self.buttons.accepted.connect(self.save)
+        self.buttons.rejected.connect(self.reject)
+        caution = QLabel(CAUTION)
+        caution.setWordWrap(True)
+        caution.setStyleSheet("color: #6d4c00; font-style: italic")
+        required = QLabel("* required")
+        required.setStyleSheet("color: #555555")
+        layout = QVBoxLayout(self)
+        layout.addWidget(self.summary)
+        layout.addLayout(form)
+        layout.addWidget(required)
+        layout.addWidget(caution)
+        layout.addWidget(self.buttons)
+        self.resize(520, self.sizeHint().height())
+        # A lot named in the scan's file name is offered (to be checked, never stored unseen).
+        suggested = lot_from_file_name(analysis.scan.path) if analysis is not None else ""
+        if suggested:
+            self.lot.setCurrentText(suggested)
+            self.new_lot.setChecked(suggested not in self.choices.lots)
+            self.lot_hint.setText("Suggested from the scan's file name: check it against the film box.")
+        self._lot_changed(self.lot.currentText())
+
+    def _lot_changed(self, text: str) -> None:
+        known = dict(self.choices.film_types)
+        lot = text.strip()
+        if lot in known:
+            self.film_type.setCurrentText(known[lot])
+            self.film_type.setEnabled(False)
+            self.film_type.setToolTip("The lot's film type as stored in the archive")
+        elif not self.film_type.isEnabled():
+            self.film_type.setCurrentText("")
+            self.film_type.setEnabled(True)
+            self.film_type.setToolTip("Kept with the new lot")
+
+    @property
+    def strip_count(self) -> int:
+        return len(self.analysis.strips) if self.analysis is not None else 0
+
+    def _summary_text(self) -> str:
+        if self.analysis is None:
+            return "No scan has been read: there is nothing to store."
+        n = self.strip_count
+        lines = [f"Scan <b>{Path(self.analysis.scan.path).name}</b> (sha256 {self.analysis.scan.sha256[:12]}…): "
+                 f"{n} strip{'s' if n != 1 else ''}, each stored as one snapshot that is never changed afterwards."]
+        used = self.analysis.calibration or {}
+        if used.get("mode") == "direct":
+            lines.append("<span style='color:#b35c00'>These densities are uncalibrated (direct mode); "
+                         "the snapshots will say so.</span>")
+        else:
+            lines.append(f"Calibration sha256 {str(used.get('sha256', ''))[:12]}…, made {used.get('created', '?')}"
+                         + ("." if self.calibration is not None else "; only its summary is at hand and stored."))
+        lines.append(f"Archive: {self.archive_path if self.archive_path is not None else 'none chosen'}")
+        return "<br>".join(lines)
+
+    # -- reading and checking the form ----------------------------------------------------------
+    def form(self) -> SaveForm:
+        """The form's values as typed."""
+        def picked(box: QComboBox) -> str | None:
+            return None if box.currentText() == NONE else box.currentText()
+
+        return SaveForm(lot=self.lot.currentText().strip(), new_lot=self.new_lot.isChecked(),
+                        processor=picked(self.processor), sensitometer=picked(self.sensitometer),
+                        operator=self.operator.currentText().strip(), exposed_on=_day(self.exposed_on),
+                        processed_on=_day(self.processed_on), scanned_on=_day(self.scanned_on),
+                        notes=self.notes.text().strip(), film_type=self.film_type.currentText().strip())
+
+    def set_dates(self, exposed: dt.date, processed: dt.date | None = None, scanned: dt.date | None = None) -> None:
+        """Set the three dates (processing and scan default to the exposure day)."""
+        for edit, day in ((self.exposed_on, exposed), (self.processed_on, processed or exposed),
+                          (self.scanned_on, scanned or processed or exposed)):
+            edit.setDate(QDate(day.year, day.month, day.day))
+
+    def _refuse(self, text: str) -> QMessageBox:
+        return show_message(self, "Nothing was stored", text)
+
+    def _held_already(self, archive: Archive) -> bool:
+        """Say so, and offer "Store again", when the archive holds this scan's strips already."""
+        assert self.analysis is not None
+        stored = already_stored(archive, self.analysis)
+        if stored:
+            self.again.setVisible(True)
+            self._refuse(f"The archive holds this scan's strips already ({describe_stored(stored)}). Storing "
+                         "them again counts them twice in every trend and comparison; tick \"Store again\" "
+                         "if that is meant.")
+        return bool(stored)
+
+    def save(self) -> bool:
+        """Check the form and store one snapshot per strip; True when stored.
+
+        A refusal shows a message and stores nothing; the form stays open.
+        """
+        if self.archive_path is None:
+            self._refuse("No archive is chosen; choose the archive file first.")
+            return False
+        form = self.form()
+        problems = check_form(form, strips=self.strip_count, known_lots=self.choices.lots, today=dt.date.today())
+        if problems:
+            self._refuse("\n".join(f"• {p}" for p in problems))
+            return False
+        assert self.analysis is not None  # check_form refuses an analysis without strips
+        new_lot_record = new_film_type = None
+        if form.new_lot and form.film_type and form.lot not in self.choices.lots:
+            try:
+                new_lot_record = EmulsionLot(form.lot, film_type=form.film_type)
+                new_film_type = None if form.film_type in self.choices.film_type_names else FilmType(form.film_type)
+                # Every strip is checked before the lot is written, so a refusal leaves the archive as it was.
+                snapshots_from_analysis(self.analysis, form.lot, calibration=_calibration_dict(self.calibration),
+                                        **form.details())
+            except (TypeError, ValueError) as exc:
+                report_error(self, "Nothing was stored", exc)
+                return False
+        try:
+            with Archive.open(self.archive_path) as archive:
+                if not self.again.isChecked() and self._held_already(archive):
+                    return False
+                if new_lot_record is not None and form.lot not in [s.lot.lot_id for s in archive.list_lots()]:
+                    if new_film_type is not None and form.film_type not in [f.name for f in archive.list_film_types()]:
+                        archive.add_film_type(new_film_type)
+                    archive.add_lot(new_lot_record)
+                self.stored = archive.add_analysis(
+                    self.analysis, form.lot, calibration=_calibration_dict(self.calibration),
+                    create_missing=form.new_lot, **form.details())
+        except Exception as exc:  # one transaction: nothing of it was stored
+            report_error(self, "Nothing was stored", exc)
+            return False
+        self.saved.emit(form.lot, [s.id for s in self.stored])
+        self.accept()
+        return True

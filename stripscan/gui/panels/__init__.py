@@ -1,0 +1,1 @@
+"""The window's pages and side panels, each over a Qt-free model."""
