@@ -1,8 +1,8 @@
-"""Moving archive contents in and out: JSON export/import, CSV tables, backups.
+"""Moving archive contents in and out: JSON export/import and CSV tables.
 
 Files are written next to their destination under a temporary name and
 renamed into place only when complete, so a crash never leaves a
-half-written export or backup under the real name.
+half-written export under the real name.
 """
 
 from __future__ import annotations
@@ -11,7 +11,6 @@ import csv
 import dataclasses
 import json
 import os
-import sqlite3
 import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -40,10 +39,11 @@ from stripscan.archive.records import (
 )
 
 if TYPE_CHECKING:
+    from stripscan.archive.backend import Connection
     from stripscan.archive.service import Archive
 
 __all__ = ["EXPORT_FORMAT", "EXPORT_FORMAT_VERSION", "export_data", "export_json", "import_json",
-           "export_csv", "backup"]
+           "export_csv"]
 
 EXPORT_FORMAT = "stripscan lot archive"
 #: Version 2 gives QC entries their id, recording time and repeat/correction
@@ -254,7 +254,7 @@ def _stored_qc_twin(archive: "Archive", record: QcEntry) -> tuple[str, Any]:
             None if first is None else dataclasses.replace(first, id=None, recorded_at=None))
 
 
-def _insert(archive: "Archive", conn: sqlite3.Connection, section: str, record: Any) -> Any:
+def _insert(archive: "Archive", conn: "Connection", section: str, record: Any) -> Any:
     if section in ("film_types", "emulsion_lots", "processors", "sensitometers"):
         archive._insert_reference(conn, record)
     elif section == "calibrations":
@@ -376,47 +376,3 @@ def export_csv(archive: "Archive", path: Path, *, lot: str | None = None, proces
                 row.id, row.date, row.created_at, row.lot_id, row.processor, row.operator, row.strip_index,
                 *(getattr(row, name) for name in FIGURES), row.revises, status, row.scan_path)])
     return path.expanduser().absolute()
-
-
-def backup(archive: "Archive", dest: Path, *, overwrite: bool = False) -> Path:
-    """Copy the archive to ``dest`` with SQLite's online backup API.
-
-    The copy is one consistent state of the file even while other programs
-    write.  It is checked with ``PRAGMA integrity_check`` before it takes
-    the name ``dest``.
-    """
-    dest = dest.expanduser().absolute()
-    if dest.exists() and dest.samefile(archive.path):
-        raise ArchiveError(f"{dest}: a backup cannot overwrite the archive itself")
-    if dest.is_dir():
-        raise ArchiveError(f"{dest} is a folder; give the backup a file name")
-    if dest.exists() and not overwrite:
-        raise ArchiveError(f"{dest} already exists; choose another name or allow overwriting")
-    if not dest.parent.is_dir():
-        raise ArchiveError(f"{dest}: the folder {dest.parent} does not exist")
-    partial = dest.with_name(f".{dest.name}.{os.getpid()}.partial")
-    try:
-        target = sqlite3.connect(partial)
-    except sqlite3.Error as exc:
-        raise ArchiveError(f"{dest}: cannot write the backup: {exc}") from None
-    try:
-        try:
-            archive._c.backup(target)
-            verdict = [row[0] for row in target.execute("PRAGMA integrity_check")]
-        except sqlite3.Error as exc:
-            raise archive._translate(exc, f"back it up to {dest}") from None
-        finally:
-            target.close()
-        if verdict != ["ok"]:
-            raise ArchiveError(f"{dest}: the backup copy failed its integrity check: {'; '.join(verdict[:5])}")
-        os.replace(partial, dest)
-    except BaseException as exc:
-        for leftover in (partial, Path(f"{partial}-journal"), Path(f"{partial}-wal"), Path(f"{partial}-shm")):
-            try:
-                leftover.unlink()
-            except OSError:
-                pass
-        if isinstance(exc, OSError):
-            raise ArchiveError(f"{dest}: cannot write the backup: {exc.strerror or exc}") from None
-        raise
-    return dest

@@ -1,9 +1,11 @@
-"""The lot archive: an SQLite file that remembers every strip reading for audits.
+"""The lot archive's rules and public API, over a storage backend.
 
-Open it with :meth:`Archive.open` (a context manager).  The file is kept in
-write-ahead-log mode, so the GUI can read while a command line run writes;
-every write is one ``BEGIN IMMEDIATE`` transaction, so a write either lands
-whole or not at all, even if the program is killed half way.
+Open it with :func:`stripscan.archive.open_archive` or :meth:`Archive.open`
+(a context manager).  Where the records are kept (an SQLite file, or a
+database on a PostgreSQL server) is the backend's business
+(:mod:`stripscan.archive.backend`); every write is one transaction of the
+backend, so a write either lands whole or not at all, even if the program
+is killed half way.
 
 Snapshots are never changed or deleted.  A mistake is corrected with
 :meth:`Archive.revise`, which stores a new snapshot linked to the old one,
@@ -29,34 +31,25 @@ from __future__ import annotations
 import dataclasses
 import json
 import os
-import sqlite3
 import sys
-from collections.abc import Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Iterable, Sequence
+from contextlib import AbstractContextManager
 from pathlib import Path
 from typing import Any, Callable
 
 from stripscan.core.records import Analysis, ScanInfo, StripResult
 
 from stripscan.archive import chain
-from stripscan.archive.entry_checks import (
-    check_note,
-    check_qc_entry,
-    check_reference,
-    check_snapshot,
-    on_read_only_media,
-)
+from stripscan.archive.backend import Backend, Connection, Row
+from stripscan.archive.entry_checks import check_note, check_qc_entry, check_reference, check_snapshot
 from stripscan.archive.errors import (
-    ArchiveBusyError,
     ArchiveConflictError,
     ArchiveError,
     ArchiveIntegrityError,
     ArchiveLookupError,
-    ArchiveReadOnlyError,
     DuplicateDayError,
     OutOfOrderError,
 )
-from stripscan.archive.sqlite.migrations import APPLICATION_ID, CHAIN_VERSION, LATEST_VERSION, MIGRATIONS
 from stripscan.archive.records import (
     FIGURES,
     Crossover,
@@ -86,10 +79,6 @@ from stripscan.archive.records import (
 __all__ = ["Archive", "default_archive_path", "DEFAULT_BUSY_TIMEOUT_MS"]
 
 DEFAULT_BUSY_TIMEOUT_MS = 5000
-
-# SQLite primary result codes (sqlite.org/rescode.html).
-_SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY = 5, 6, 8
-_SQLITE_CORRUPT, _SQLITE_FULL, _SQLITE_NOTADB = 11, 13, 26
 
 # The film's date, as in Snapshot.date: processing, exposure, scan, storage.
 _DAY = "COALESCE(s.processed_on, s.exposed_on, s.scanned_on, substr(s.created_at, 1, 10))"
@@ -175,29 +164,18 @@ def default_archive_path() -> Path:
     return user_data_folder() / "archive.sqlite3"
 
 
-def _marked_read_only(path: Path) -> bool:
-    # The permission bits count even for an administrator, who could write
-    # anyway: a file someone made read-only is meant to stay as it is.
-    try:
-        mode = path.stat().st_mode
-    except OSError:
-        return False
-    return not (mode & 0o222) or not os.access(path, os.W_OK)
-
-
-def _sqlite_uri(path: Path, mode: str) -> str:
-    # as_uri() percent-encodes spaces, '?', '#' and non-ASCII letters,
-    # which SQLite decodes back to the UTF-8 file name.
-    return f"{path.as_uri()}?mode={mode}"
-
-
 class Archive:
-    """An open lot archive.  Use :meth:`open`; close it (or use ``with``).
+    """An open lot archive.  Use :func:`stripscan.archive.open_archive`; close it (or use ``with``).
+
+    Parameters
+    ----------
+    backend : Backend
+        The open storage location.
 
     Attributes
     ----------
-    path : Path
-        The archive file.
+    path : Path or str
+        The archive file, or the server location (without a password).
     read_only : bool
         True when opened read-only or when the file's permissions forbid
         writing; every write then raises :class:`ArchiveReadOnlyError`.
@@ -205,12 +183,11 @@ class Archive:
         How long a write waits for another program's write to finish.
     """
 
-    def __init__(self, connection: sqlite3.Connection, path: Path, *, read_only: bool,
-                 busy_timeout_ms: int) -> None:
-        self._conn: sqlite3.Connection | None = connection
-        self.path = path
-        self.read_only = read_only
-        self.busy_timeout_ms = busy_timeout_ms
+    def __init__(self, backend: Backend) -> None:
+        self._backend = backend
+        self.path: Path | str = backend.path if backend.path is not None else backend.location
+        self.read_only = backend.read_only
+        self.busy_timeout_ms = backend.busy_timeout_ms
 
     # ------------------------------------------------------------------ opening
 
@@ -218,142 +195,19 @@ class Archive:
     def open(cls, path: str | os.PathLike[str] | None = None, *,
              busy_timeout_ms: int = DEFAULT_BUSY_TIMEOUT_MS, read_only: bool = False,
              create: bool = True, check_chain: bool = True) -> "Archive":
-        """Open (or create) an archive file and bring its schema up to date.
+        """Open (or create) an archive and bring its schema up to date: :func:`stripscan.archive.open_archive`."""
+        from stripscan.archive import open_archive
 
-        Parameters
-        ----------
-        path : path-like, optional
-            The file; :func:`default_archive_path` when omitted.
-        busy_timeout_ms : int
-            How long to wait for another program's write before giving up
-            with :class:`ArchiveBusyError`.
-        read_only : bool
-            Open for reading only.
-        create : bool
-            Create the file (and its folders) when it does not exist.
-        check_chain : bool
-            Check the head of the hash chain and that every stored record is
-            in it (cheap); False only to open a file whose chain is broken,
-            to look at it with :meth:`verify`.
-
-        Raises
-        ------
-        ArchiveError
-            When the file is not an SQLite database, is damaged (the message
-            carries SQLite's integrity check), belongs to another program or
-            to a newer stripscan, or cannot be created.
-        ArchiveBusyError
-            When another program holds the write lock during an upgrade.
-        ArchiveIntegrityError
-            When the stored history does not match its hash chain (a change
-            made outside stripscan); :meth:`verify` names the record.
-        """
-        if isinstance(busy_timeout_ms, bool) or not isinstance(busy_timeout_ms, int) or busy_timeout_ms < 0:
-            raise ValueError(f"busy_timeout_ms must be a whole number of milliseconds >= 0, not {busy_timeout_ms!r}")
-        path = Path(path if path is not None else default_archive_path()).expanduser().absolute()
-        if path.is_dir():
-            raise ArchiveError(f"{path} is a folder, not an archive file")
-        if not path.exists():
-            if read_only or not create:
-                raise ArchiveError(f"{path} does not exist")
-            try:
-                path.parent.mkdir(parents=True, exist_ok=True)
-            except OSError as exc:
-                raise ArchiveError(f"{path}: cannot create its folder: {exc.strerror or exc}") from None
-        read_only = read_only or _marked_read_only(path)
-        try:
-            uri = _sqlite_uri(path, "ro" if read_only else "rwc") + ("&immutable=1" if on_read_only_media(path) else "")
-            conn = sqlite3.connect(uri, uri=True,
-                                   timeout=busy_timeout_ms / 1000.0, isolation_level=None)
-        except sqlite3.Error as exc:
-            raise ArchiveError(f"{path}: cannot open: {exc}") from None
-        archive = cls(conn, path, read_only=read_only, busy_timeout_ms=busy_timeout_ms)
-        try:
-            archive._prepare()
-            if check_chain:
-                archive._check_chain_head()
-        except BaseException:
-            archive.close()
-            raise
-        return archive
-
-    def _prepare(self) -> None:
-        conn = self._c
-        try:
-            conn.execute(f"PRAGMA busy_timeout = {int(self.busy_timeout_ms)}")
-            conn.execute("PRAGMA foreign_keys = ON")
-            try:
-                objects = conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
-            except sqlite3.DatabaseError as exc:
-                if (getattr(exc, "sqlite_errorcode", 0) & 0xFF) == _SQLITE_NOTADB:
-                    raise ArchiveError(f"{self.path} is not an SQLite database: {exc}") from None
-                raise self._translate(exc, "open it") from None
-            self._check_integrity()
-            version = conn.execute("PRAGMA user_version").fetchone()[0]
-            app_id = conn.execute("PRAGMA application_id").fetchone()[0]
-            fresh = objects == 0 and version == 0 and app_id == 0
-            if not fresh and app_id != APPLICATION_ID:
-                raise ArchiveError(f"{self.path} is an SQLite database, but not a stripscan archive")
-            if version > LATEST_VERSION:
-                raise ArchiveError(
-                    f"{self.path} was written by a newer stripscan (schema version {version}; "
-                    f"this one knows up to {LATEST_VERSION}); update stripscan to open it")
-            if self.read_only:
-                if version < LATEST_VERSION:
-                    raise ArchiveReadOnlyError(
-                        f"{self.path} is read-only and uses the older schema version {version}; "
-                        "open it once with write access to upgrade it")
-                return
-            conn.execute("PRAGMA journal_mode = WAL")
-            self._migrate()
-        except sqlite3.Error as exc:
-            raise self._translate(exc, "open it") from None
-
-    def _check_integrity(self) -> None:
-        conn = self._c
-        try:
-            # One line per problem: the command line prints errors as one line.
-            problems = [" ".join(str(row[0]).split()) for row in conn.execute("PRAGMA integrity_check")]
-            broken = conn.execute("PRAGMA foreign_key_check").fetchall()
-        except sqlite3.DatabaseError as exc:
-            raise self._translate(exc, "open it") from None
-        if problems != ["ok"]:
-            shown = "; ".join(problems[:10]) + (f"; ... {len(problems) - 10} more" if len(problems) > 10 else "")
-            raise ArchiveError(f"{self.path} is damaged: {shown}")
-        if broken:
-            table, rowid, parent, _ = broken[0]
-            raise ArchiveError(f"{self.path} is damaged: {len(broken)} broken reference(s), "
-                               f"first {table} row {rowid} points to a missing {parent} row")
-
-    def _migrate(self) -> None:
-        conn = self._c
-        for migration in MIGRATIONS:
-            if conn.execute("PRAGMA user_version").fetchone()[0] >= migration.version:
-                continue
-            conn.execute("BEGIN IMMEDIATE")
-            try:
-                # Another program may have upgraded the file while we waited.
-                if conn.execute("PRAGMA user_version").fetchone()[0] < migration.version:
-                    for statement in migration.statements:
-                        conn.execute(statement)
-                    if migration.code is not None:
-                        migration.code(conn)
-                    if migration.version == 1:
-                        conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
-                    conn.execute(f"PRAGMA user_version = {migration.version}")
-                conn.execute("COMMIT")
-            except BaseException:
-                if conn.in_transaction:
-                    conn.execute("ROLLBACK")
-                raise
+        return open_archive(path, busy_timeout_ms=busy_timeout_ms, read_only=read_only, create=create,
+                            check_chain=check_chain)
 
     def _check_chain_head(self) -> None:
-        if self.schema_version < CHAIN_VERSION:
+        if not self._backend.has_chain:
             return
         with self._reading():
             try:
                 problem = chain.check_head(self._c)
-            except sqlite3.Error as exc:
+            except self._backend.Error as exc:
                 raise self._translate(exc, "check its record chain") from None
         if problem is not None:
             raise ArchiveIntegrityError(
@@ -370,24 +224,22 @@ class Archive:
             problem in words, None when every record matches.  It detects a
             change made outside stripscan; it cannot prevent one.
         """
-        if self.schema_version < CHAIN_VERSION:
+        if not self._backend.has_chain:
             raise ArchiveError(f"{self.path} uses schema version {self.schema_version}, before the hash chain; "
                                "open it once with write access to upgrade it")
         with self._reading():
             try:
                 return chain.verify(self._c)
-            except sqlite3.Error as exc:
+            except self._backend.Error as exc:
                 raise self._translate(exc, "verify it") from None
 
-    def _chain(self, conn: sqlite3.Connection, kind: str, key: Any) -> None:
+    def _chain(self, conn: Connection, kind: str, key: Any) -> None:
         """Add the record just written to the hash chain, in the same transaction."""
         chain.append(conn, kind, key)
 
     def close(self) -> None:
-        """Close the file; calling it again does nothing."""
-        if self._conn is not None:
-            conn, self._conn = self._conn, None
-            conn.close()
+        """Close the archive; calling it again does nothing."""
+        self._backend.close()
 
     def __enter__(self) -> "Archive":
         return self
@@ -396,90 +248,37 @@ class Archive:
         self.close()
 
     def __repr__(self) -> str:
-        state = "closed" if self._conn is None else ("read-only" if self.read_only else "open")
+        state = "closed" if self._backend.closed else ("read-only" if self.read_only else "open")
         return f"<Archive {str(self.path)!r} {state}>"
 
     @property
     def schema_version(self) -> int:
-        """The file's schema version (``PRAGMA user_version``)."""
-        return int(self._query("PRAGMA user_version")[0][0])
+        """The archive's schema version."""
+        return self._backend.schema_version()
 
     # ------------------------------------------------------------ plumbing
 
     @property
-    def _c(self) -> sqlite3.Connection:
-        if self._conn is None:
-            raise ArchiveError(f"{self.path}: the archive is closed")
-        return self._conn
+    def _c(self) -> Connection:
+        return self._backend.connection
 
-    def _translate(self, exc: sqlite3.Error, action: str) -> ArchiveError:
-        """Turn an SQLite error into an archive error that names the file."""
-        code = getattr(exc, "sqlite_errorcode", None)
-        primary = code & 0xFF if isinstance(code, int) else None
-        text = str(exc)
-        if primary in (_SQLITE_BUSY, _SQLITE_LOCKED) or "database is locked" in text:
-            return ArchiveBusyError(
-                f"{self.path} is busy: another program is writing to it and did not finish "
-                f"within {self.busy_timeout_ms} ms; cannot {action} now, try again")
-        if primary == _SQLITE_READONLY or "readonly" in text:
-            return ArchiveReadOnlyError(f"{self.path} is read-only: cannot {action}")
-        if primary in (_SQLITE_CORRUPT, _SQLITE_NOTADB):
-            return ArchiveError(f"{self.path} is damaged: {text}")
-        if primary == _SQLITE_FULL:
-            return ArchiveError(f"{self.path}: cannot {action}: the disk is full")
-        return ArchiveError(f"{self.path}: cannot {action}: {text}")
+    def _translate(self, exc: BaseException, action: str) -> ArchiveError:
+        """Turn a storage error into an archive error that names the archive."""
+        return self._backend.translate(exc, action)
 
     def _query(self, sql: str, params: Sequence[Any] = ()) -> list[Any]:
-        try:
-            return self._c.execute(sql, params).fetchall()
-        except sqlite3.Error as exc:
-            raise self._translate(exc, "read it") from None
+        return self._backend.query(sql, params)
 
-    def _rows(self, sql: str, params: Sequence[Any] = ()) -> list[sqlite3.Row]:
-        try:
-            cursor = self._c.cursor()
-            cursor.row_factory = sqlite3.Row
-            return cursor.execute(sql, params).fetchall()
-        except sqlite3.Error as exc:
-            raise self._translate(exc, "read it") from None
+    def _rows(self, sql: str, params: Sequence[Any] = ()) -> list[Row]:
+        return self._backend.named(sql, params)
 
-    @contextmanager
-    def _reading(self) -> Iterator[None]:
-        """Several reads that must see one state of the file (no write in between)."""
-        conn = self._c
-        if conn.in_transaction:
-            yield
-            return
-        try:
-            conn.execute("BEGIN")
-        except sqlite3.Error as exc:
-            raise self._translate(exc, "read it") from None
-        try:
-            yield
-        finally:
-            conn.execute("COMMIT")
+    def _reading(self) -> AbstractContextManager[Connection]:
+        """Several reads that must see one state of the archive (no write in between)."""
+        return self._backend.reading()
 
-    @contextmanager
-    def _writing(self, action: str) -> Iterator[sqlite3.Connection]:
+    def _writing(self, action: str) -> AbstractContextManager[Connection]:
         """One write transaction: all of it is stored, or none of it."""
-        if self.read_only:
-            raise ArchiveReadOnlyError(f"{self.path} is read-only: cannot {action}")
-        conn = self._c
-        try:
-            # IMMEDIATE takes the write lock now, so a busy file is found
-            # before anything is done rather than at COMMIT.
-            conn.execute("BEGIN IMMEDIATE")
-        except sqlite3.Error as exc:
-            raise self._translate(exc, action) from None
-        try:
-            yield conn
-            conn.execute("COMMIT")
-        except BaseException as exc:
-            if conn.in_transaction:
-                conn.execute("ROLLBACK")
-            if isinstance(exc, sqlite3.Error):
-                raise self._translate(exc, action) from None
-            raise
+        return self._backend.writing(action)
 
     def _checked(self, doing: str, record_class: type, *args: Any, **kwargs: Any) -> Any:
         """Build a record; its own checks' complaint becomes an ArchiveError naming the file."""
@@ -509,13 +308,13 @@ class Archive:
         return row
 
     @staticmethod
-    def _reference_record(record_class: type, row: sqlite3.Row) -> Any:
+    def _reference_record(record_class: type, row: Row) -> Any:
         data = dict(row)
         if record_class is Sensitometer:
             data["log_exposures"] = tuple(json.loads(data.pop("log_exposures_json")))
         return record_class(**data)
 
-    def _insert_reference(self, conn: sqlite3.Connection, record: Any) -> None:
+    def _insert_reference(self, conn: Connection, record: Any) -> None:
         table, column, word = _REFERENCE[type(record)]
         key = getattr(record, column)
         check_reference(self.path, record)
@@ -645,7 +444,7 @@ class Archive:
 
     # --------------------------------------------------------- calibrations
 
-    def _insert_calibration(self, conn: sqlite3.Connection, calibration: dict[str, Any]) -> str:
+    def _insert_calibration(self, conn: Connection, calibration: dict[str, Any]) -> str:
         digest = calibration_hash(calibration)
         if not self._exists("calibrations", "hash", digest):
             conn.execute("INSERT INTO calibrations (hash, json) VALUES (?, ?)",
@@ -675,11 +474,11 @@ class Archive:
 
     # ------------------------------------------------------------ snapshots
 
-    def _next_id(self, conn: sqlite3.Connection, table: str) -> int:
+    def _next_id(self, conn: Connection, table: str) -> int:
         # Safe inside BEGIN IMMEDIATE: no other writer can take the number.
         return conn.execute(f"SELECT coalesce(max(id), 0) + 1 FROM {table}").fetchone()[0]
 
-    def _check_links(self, conn: sqlite3.Connection, snapshot: Snapshot, create_missing: bool) -> None:
+    def _check_links(self, conn: Connection, snapshot: Snapshot, create_missing: bool) -> None:
         if not self._exists("emulsion_lots", "lot_id", snapshot.lot_id):
             if not create_missing:
                 raise self._missing("lot", snapshot.lot_id)
@@ -702,7 +501,7 @@ class Archive:
                 raise ArchiveConflictError(f"{self.path}: snapshot {snapshot.revises} has already been "
                                            f"revised by snapshot {row[0]}; revise that one instead")
 
-    def _insert_snapshot(self, conn: sqlite3.Connection, snapshot: Snapshot, *,
+    def _insert_snapshot(self, conn: Connection, snapshot: Snapshot, *,
                          create_missing: bool = False) -> None:
         """Write one snapshot, its step table and figure columns (inside a transaction)."""
         check_snapshot(self.path, snapshot)
@@ -740,7 +539,7 @@ class Archive:
         if snapshot.retired_at is not None:
             self._chain(conn, "retirement", snapshot.id)
 
-    def _store_new(self, conn: sqlite3.Connection, draft: NewSnapshot, *, create_missing: bool,
+    def _store_new(self, conn: Connection, draft: NewSnapshot, *, create_missing: bool,
                    revises: int | None = None, reason: str | None = None) -> int:
         if not isinstance(draft, NewSnapshot):
             raise TypeError(f"expected a NewSnapshot, not {type(draft).__name__}")
@@ -831,7 +630,7 @@ class Archive:
         """The snapshot with this id, retired or superseded ones included."""
         try:
             return self._load_snapshot(snapshot_id)
-        except sqlite3.Error as exc:
+        except self._backend.Error as exc:
             raise self._translate(exc, "read it") from None
 
     def all_snapshots(self) -> list[Snapshot]:
@@ -1006,7 +805,7 @@ class Archive:
 
     # ------------------------------------------------- revisions, retirement
 
-    def _require_latest(self, conn: sqlite3.Connection, snapshot_id: int, doing: str) -> None:
+    def _require_latest(self, conn: Connection, snapshot_id: int, doing: str) -> None:
         """Refuse to ``doing`` a snapshot that is retired or already corrected by a revision."""
         row = conn.execute("SELECT n.id, s.retired_at, s.retired_reason FROM snapshots s "
                            "LEFT JOIN snapshots n ON n.revises = s.id WHERE s.id = ?", (snapshot_id,)).fetchone()
@@ -1090,7 +889,7 @@ class Archive:
             self._insert_note(conn, note)
             return note
 
-    def _insert_note(self, conn: sqlite3.Connection, note: SnapshotNote) -> None:
+    def _insert_note(self, conn: Connection, note: SnapshotNote) -> None:
         conn.execute("INSERT INTO snapshot_notes (id, snapshot_id, created_at, author, text) VALUES (?, ?, ?, ?, ?)",
                      (note.id, note.snapshot_id, note.created_at, note.author, note.text))
         self._chain(conn, "note", note.id)
@@ -1109,11 +908,9 @@ class Archive:
         if not self._exists("processors", "name", processor):
             raise self._missing("processor", processor)
 
-    def _qc_day(self, conn: sqlite3.Connection, processor: str, date: str) -> list[QcEntry]:
-        cursor = conn.cursor()
-        cursor.row_factory = sqlite3.Row
-        rows = cursor.execute("SELECT * FROM qc_entries WHERE processor = ? AND date = ? ORDER BY id",
-                              (processor, date)).fetchall()
+    def _qc_day(self, conn: Connection, processor: str, date: str) -> list[QcEntry]:
+        rows = self._backend.rows(conn, "SELECT * FROM qc_entries WHERE processor = ? AND date = ? ORDER BY id",
+                                  (processor, date))
         return [QcEntry(**dict(row)) for row in rows]
 
     @staticmethod
@@ -1123,14 +920,14 @@ class Archive:
         return next(e for e in day if states[e.id].in_use)  # type: ignore[index]
 
     @staticmethod
-    def _qc_latest_day(conn: sqlite3.Connection, processor: str, leaving: int | None = None) -> str | None:
+    def _qc_latest_day(conn: Connection, processor: str, leaving: int | None = None) -> str | None:
         """The latest day of a processor's log, as it stands inside the caller's transaction.
 
         ``leaving`` is an entry about to be corrected: it no longer holds its day.
         """
         return conn.execute(_QC_LATEST_DAY, (processor, leaving)).fetchone()[0]
 
-    def _check_not_back_dated(self, conn: sqlite3.Connection, processor: str, date: str, what: str) -> None:
+    def _check_not_back_dated(self, conn: Connection, processor: str, date: str, what: str) -> None:
         """Refuse an event or crossover dated before the latest QC day: it would re-judge days already reported."""
         latest = self._qc_latest_day(conn, processor)
         if latest is not None and date < latest:
@@ -1146,7 +943,7 @@ class Archive:
                                        f"{entry.processor!r} on {entry.date}; {doing} names an entry of its own day")
         return target
 
-    def _check_qc_correction(self, conn: sqlite3.Connection, entry: QcEntry, day: list[QcEntry]) -> QcEntry:
+    def _check_qc_correction(self, conn: Connection, entry: QcEntry, day: list[QcEntry]) -> QcEntry:
         """The entry ``entry`` corrects, checked: same processor, not corrected yet, a moved day left whole."""
         target = next((e for e in day if e.id == entry.corrects), None)
         if target is None:
@@ -1173,7 +970,7 @@ class Archive:
                     "correction moves an entry only to a day without one")
         return target
 
-    def _insert_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry, *, late: str = "refuse") -> QcEntry:
+    def _insert_qc_entry(self, conn: Connection, entry: QcEntry, *, late: str = "refuse") -> QcEntry:
         """Check ``entry`` against its processor's log and write it, in the caller's transaction.
 
         The date-order rule is checked here, inside the write transaction, so
@@ -1228,7 +1025,7 @@ class Archive:
         self._chain(conn, "qc_entry", entry.id)
         return entry
 
-    def _new_qc_entry(self, conn: sqlite3.Connection, entry: QcEntry, repeat: bool) -> QcEntry:
+    def _new_qc_entry(self, conn: Connection, entry: QcEntry, repeat: bool) -> QcEntry:
         """A caller's new entry as it is stored: recorded now and, for a repeat, linked to the day's entry in use."""
         if entry.id is not None or entry.recorded_at is not None or entry.corrects is not None:
             raise ArchiveError(f"{self.path}: cannot add the QC entry of {entry.date}: the archive gives a new entry "
@@ -1406,7 +1203,7 @@ class Archive:
             self._insert_qc_event(conn, event)
             return event
 
-    def _insert_qc_event(self, conn: sqlite3.Connection, event: QcEvent) -> None:
+    def _insert_qc_event(self, conn: Connection, event: QcEvent) -> None:
         self._check_qc_processor(event.processor)
         conn.execute("INSERT INTO qc_events (id, processor, date, kind, note) VALUES (?, ?, ?, ?, ?)",
                      (event.id, event.processor, event.date, event.kind, event.note))
@@ -1434,7 +1231,7 @@ class Archive:
         with self._writing(f"store QC settings for {processor!r}") as conn:
             return self._replace_qc_settings(conn, processor, settings, reason)
 
-    def _replace_qc_settings(self, conn: sqlite3.Connection, processor: str, settings: dict[str, Any],
+    def _replace_qc_settings(self, conn: Connection, processor: str, settings: dict[str, Any],
                              reason: str = "") -> QcSettings:
         record = self._checked("store QC settings", QcSettings, processor, settings, utc_now(), reason.strip())
         current = self.get_qc_settings(processor)
@@ -1442,7 +1239,7 @@ class Archive:
             return current
         return self._insert_qc_settings(conn, record)
 
-    def _insert_qc_settings(self, conn: sqlite3.Connection, record: QcSettings) -> QcSettings:
+    def _insert_qc_settings(self, conn: Connection, record: QcSettings) -> QcSettings:
         self._check_qc_processor(record.processor)
         if record.id is None:
             record = dataclasses.replace(record, id=self._next_id(conn, "qc_settings"))
@@ -1509,7 +1306,7 @@ class Archive:
             self._insert_qc_event(conn, event)
             return crossover, event
 
-    def _insert_crossover(self, conn: sqlite3.Connection, crossover: Crossover) -> None:
+    def _insert_crossover(self, conn: Connection, crossover: Crossover) -> None:
         self._check_qc_processor(crossover.processor)
         conn.execute("INSERT INTO crossovers (id, processor, date, record_json) VALUES (?, ?, ?, ?)",
                      (crossover.id, crossover.processor, crossover.date, canonical_json(crossover.record)))
@@ -1547,7 +1344,6 @@ class Archive:
                           include_superseded=include_superseded)
 
     def backup(self, dest: str | os.PathLike[str], *, overwrite: bool = False) -> Path:
-        """Copy the archive to ``dest`` with SQLite's online backup, safe while others write."""
-        from stripscan.archive.exchange import backup
-        return backup(self, Path(dest), overwrite=overwrite)
+        """Copy the archive to the file ``dest``, one consistent state even while others write."""
+        return self._backend.backup(Path(dest), overwrite=overwrite)
 

@@ -20,7 +20,8 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.core.records import warnings_of_strip
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
-from stripscan.archive.entry_checks import already_stored, describe_stored, remove_if_unused
+from stripscan.archive import discard_if_empty
+from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.records import (
     FIGURES,
@@ -108,7 +109,7 @@ def _forget_new_archive(args: argparse.Namespace) -> None:
     """A command that failed leaves no new, empty archive file behind."""
     created = getattr(args, "new_archive_file", None)
     if created is not None:
-        remove_if_unused(created)
+        discard_if_empty(created)
 
 
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
