@@ -18,9 +18,7 @@ from stripscan.archive.postgres import schema
 NORTH = PROCESSORS[0].name
 
 # Parents before children, so that every reference finds its row.
-TABLES = ("film_types", "emulsion_lots", "processors", "sensitometers", "calibrations", "snapshots",
-          "snapshot_data", "snapshot_steps", "snapshot_notes", "qc_entries", "qc_events", "qc_settings",
-          "crossovers", "record_chain")
+TABLES = schema.TABLES
 
 
 def filled_archive(path: Path) -> Path:

@@ -13,10 +13,11 @@ loads it, and without the ``postgres`` extra the one line of
 from __future__ import annotations
 
 from types import ModuleType
+from typing import Any
 
 from ..errors import ArchiveError
 
-__all__ = ["INSTALL_HINT", "driver"]
+__all__ = ["INSTALL_HINT", "driver", "open_backend"]
 
 #: What to install when the driver is missing.
 INSTALL_HINT = 'pip install "stripscan[postgres]"'
@@ -36,3 +37,22 @@ def driver() -> ModuleType:
         raise ArchiveError("a PostgreSQL archive needs the PostgreSQL driver, which is not installed: "
                            f'{INSTALL_HINT}') from None
     return psycopg
+
+
+def open_backend(location: Any, *, busy_timeout_ms: int, read_only: bool, create: bool) -> Any:
+    """Open the server archive at ``location`` (a :class:`stripscan.archive.location.Location`).
+
+    Returns
+    -------
+    PostgresBackend
+        The open archive database (see :mod:`.backend`).
+    """
+    try:
+        driver()
+    except ArchiveError:
+        raise ArchiveError(f"{location.display}: a PostgreSQL archive needs the PostgreSQL driver: "
+                           f"{INSTALL_HINT}") from None
+    from .backend import PostgresBackend
+
+    return PostgresBackend.open(location.conninfo, location.display, busy_timeout_ms=busy_timeout_ms,
+                                read_only=read_only, create=create)

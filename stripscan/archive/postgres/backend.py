@@ -22,19 +22,21 @@ Statements are the archive's portable SQL with ``?`` placeholders.
 
 from __future__ import annotations
 
+import os
 import time
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
-from ..errors import ArchiveError, ArchiveReadOnlyError
+from stripscan.archive.backend import Backend
+from stripscan.archive.errors import ArchiveError, ArchiveReadOnlyError
+
 from . import driver, schema
 from .dialect import archive_error, configure, placeholders
-from .location import public_location
 
-__all__ = ["PostgresBackend", "Row", "DEFAULT_BUSY_TIMEOUT_MS", "CONNECT_ATTEMPTS"]
+__all__ = ["PostgresBackend", "ServerConnection", "Row", "CONNECT_ATTEMPTS"]
 
-DEFAULT_BUSY_TIMEOUT_MS = 5000
 #: Tries at opening a connection (a server restarting, a network blip) before giving up.
 CONNECT_ATTEMPTS = 3
 _CONNECT_PAUSE_S = (0.2, 0.5)
@@ -67,52 +69,76 @@ class Row(tuple):
         return list(self._names)
 
 
-def _row_factory(cursor: Any) -> Any:
-    names = tuple(d.name for d in cursor.description or ())
-    return lambda values: Row(values, names)
+class ServerConnection:
+    """The archive's statements on one psycopg connection: ``?`` placeholders, SQLite's ways.
+
+    Errors are psycopg's own, as ``sqlite3``'s are for a file; the backend
+    translates them (and remembers the statement, to name a missing right).
+    """
+
+    def __init__(self, conn: Any) -> None:
+        self.raw = conn
+        self.failed_statement: str | None = None
+
+    def execute(self, sql: str, params: Sequence[Any] = ()) -> Any:
+        try:
+            return self.raw.execute(placeholders(sql), tuple(params))
+        except driver().Error:
+            self.failed_statement = sql
+            raise
+
+    def executemany(self, sql: str, seq: Any) -> None:
+        try:
+            with self.raw.cursor() as cursor:
+                cursor.executemany(placeholders(sql), [tuple(row) for row in seq])
+        except driver().Error:
+            self.failed_statement = sql
+            raise
+
+    @property
+    def in_transaction(self) -> bool:
+        return self.raw.info.transaction_status != driver().pq.TransactionStatus.IDLE
 
 
-class PostgresBackend:
-    """An open archive database on a server.
+class PostgresBackend(Backend):
+    """An archive database on a server.  Use :meth:`open`.
 
     Attributes
     ----------
-    where : str
-        The archive's location for messages and lists of recent archives:
-        a ``postgresql://`` URL without the password.
-    read_only : bool
-        Every write raises :class:`ArchiveReadOnlyError`.
-    busy_timeout_ms : int
-        How long a write waits for another client's write to finish.
+    location : str
+        The connection string without its password, for messages.
     """
 
-    def __init__(self, conn: Any, where: str, *, read_only: bool, busy_timeout_ms: int) -> None:
-        self._conn: Any = conn
-        self.where = where
+    path = None
+
+    def __init__(self, conn: Any, location: str, *, read_only: bool, busy_timeout_ms: int) -> None:
+        self._conn: ServerConnection | None = ServerConnection(conn)
+        self.location = location
         self.read_only = read_only
         self.busy_timeout_ms = busy_timeout_ms
-        # What the open write transaction does, for its statements' messages.
-        self._doing: str | None = None
+        self.Error = driver().Error
 
     # ------------------------------------------------------------ opening
 
     @classmethod
-    def open(cls, location: str, *, read_only: bool = False, create: bool = True,
-             busy_timeout_ms: int = DEFAULT_BUSY_TIMEOUT_MS) -> "PostgresBackend":
-        """Connect to the archive database named by ``location`` and bring its schema up to date.
+    def open(cls, conninfo: str, location: str, *, busy_timeout_ms: int, read_only: bool,
+             create: bool) -> "PostgresBackend":
+        """Connect to the archive database and bring its schema up to date.
 
         Parameters
         ----------
-        location : str
+        conninfo : str
             A libpq connection string (``postgresql://user@host/dbname``,
             ``postgresql:///?service=NAME``, ``host=... dbname=...``); the
             password comes from it, ``.pgpass`` or ``PGPASSWORD``.
+        location : str
+            The same without its password, for messages.
+        busy_timeout_ms : int
+            How long a write waits for another client's write.
         read_only : bool
             Open for reading only (the server refuses writes too).
         create : bool
             Create the archive's tables in an empty database.
-        busy_timeout_ms : int
-            How long a write waits for another client's write.
 
         Raises
         ------
@@ -123,12 +149,9 @@ class PostgresBackend:
         ArchiveReadOnlyError
             When opened read-only and the schema needs an upgrade first.
         """
-        if isinstance(busy_timeout_ms, bool) or not isinstance(busy_timeout_ms, int) or busy_timeout_ms < 0:
-            raise ValueError(f"busy_timeout_ms must be a whole number of milliseconds >= 0, not {busy_timeout_ms!r}")
         psycopg = driver()
-        where = public_location(location)
-        conn = cls._connect(psycopg, location, where)
-        backend = cls(conn, where, read_only=read_only, busy_timeout_ms=busy_timeout_ms)
+        conn = cls._connect(psycopg, conninfo, location)
+        backend = cls(conn, location, read_only=read_only, busy_timeout_ms=busy_timeout_ms)
         try:
             backend._prepare(create)
         except BaseException:
@@ -137,21 +160,20 @@ class PostgresBackend:
         return backend
 
     @staticmethod
-    def _connect(psycopg: Any, location: str, where: str) -> Any:
+    def _connect(psycopg: Any, conninfo: str, location: str) -> Any:
         for attempt in range(1, CONNECT_ATTEMPTS + 1):
             try:
-                return psycopg.connect(location, autocommit=True, application_name="stripscan")
+                return psycopg.connect(conninfo, autocommit=True, application_name="stripscan")
             except psycopg.OperationalError as exc:
                 if attempt == CONNECT_ATTEMPTS:
-                    raise archive_error(exc, where, "open it", attempts=attempt) from None
+                    raise archive_error(exc, location, "open it", attempts=attempt) from None
                 time.sleep(_CONNECT_PAUSE_S[min(attempt, len(_CONNECT_PAUSE_S)) - 1])
             except psycopg.Error as exc:
-                raise archive_error(exc, where, "open it") from None
+                raise archive_error(exc, location, "open it") from None
         raise AssertionError("unreachable")
 
     def _prepare(self, create: bool) -> None:
-        psycopg = driver()
-        conn = self._conn
+        conn = self.connection.raw
         try:
             configure(conn)
             # A write waits this long for the write lock, then gives up as SQLite's busy timeout does.
@@ -160,122 +182,143 @@ class PostgresBackend:
                 conn.execute("SET default_transaction_read_only = on")
             version = schema.schema_version(conn)
             if version > schema.latest_version():
-                schema.migrate(conn, self.where)  # refuses, in words
+                schema.migrate(conn, self.location)  # refuses, in words
             if version == 0 and (self.read_only or not create):
-                raise ArchiveError(f"{self.where} holds no stripscan archive yet; open it once with write "
+                raise ArchiveError(f"{self.location} holds no stripscan archive yet; open it once with write "
                                    "access to create one there")
             if version < schema.latest_version():
                 if self.read_only:
                     raise ArchiveReadOnlyError(
-                        f"{self.where} is opened read-only and uses the older server schema version {version}; "
-                        "open it once with write access to upgrade it")
-                schema.migrate(conn, self.where)
-        except psycopg.Error as exc:
-            raise archive_error(exc, self.where, "open it") from None
+                        f"{self.location} is opened read-only and uses the older server schema version "
+                        f"{version}; open it once with write access to upgrade it")
+                schema.migrate(conn, self.location)
+        except self.Error as exc:
+            raise self.translate(exc, "open it") from None
 
-    def close(self) -> None:
-        """Close the connection; calling it again does nothing."""
-        if self._conn is not None:
-            conn, self._conn = self._conn, None
-            conn.close()
-
-    def __enter__(self) -> "PostgresBackend":
-        return self
-
-    def __exit__(self, *exc_info: object) -> None:
-        self.close()
-
-    def __repr__(self) -> str:
-        state = "closed" if self._conn is None else ("read-only" if self.read_only else "open")
-        return f"<PostgresBackend {self.where!r} {state}>"
+    # ---------------------------------------------------------- the interface
 
     @property
-    def _c(self) -> Any:
+    def connection(self) -> ServerConnection:
         if self._conn is None:
-            raise ArchiveError(f"{self.where}: the archive is closed")
+            raise ArchiveError(f"{self.location}: the archive is closed")
         return self._conn
 
     @property
-    def schema_version(self) -> int:
-        """The database's server schema version (its ``stripscan_schema`` table)."""
-        return self._guarded("read it", lambda: schema.schema_version(self._c))
+    def closed(self) -> bool:
+        return self._conn is None
+
+    def close(self) -> None:
+        if self._conn is not None:
+            conn, self._conn = self._conn, None
+            conn.raw.close()
 
     @property
-    def in_transaction(self) -> bool:
-        return self._c.info.transaction_status != driver().pq.TransactionStatus.IDLE
+    def has_chain(self) -> bool:
+        """Always: the server schema starts with the hash chain."""
+        return True
 
-    # ---------------------------------------------------------- statements
-
-    def _guarded(self, action: str, call: Any, statement: str | None = None) -> Any:
-        psycopg = driver()
+    def schema_version(self) -> int:
+        """The server schema version (the highest row of ``stripscan_schema``)."""
         try:
-            return call()
-        except psycopg.Error as exc:
-            raise archive_error(exc, self.where, action, statement=statement) from None
+            return schema.schema_version(self.connection.raw)
+        except self.Error as exc:
+            raise self.translate(exc, "read it") from None
 
-    def execute(self, sql: str, params: Sequence[Any] = ()) -> None:
-        """Run one statement (inside :meth:`writing` for a write)."""
-        self._guarded(self._doing or "write to it", lambda: self._c.execute(placeholders(sql), tuple(params)), sql)
+    def translate(self, exc: BaseException, action: str) -> ArchiveError:
+        statement = self._conn.failed_statement if self._conn is not None else None
+        return archive_error(exc, self.location, action, statement=statement)
 
-    def executemany(self, sql: str, rows: Sequence[Sequence[Any]]) -> None:
-        """Run one statement for each row of parameters."""
-        def run() -> None:
-            with self._c.cursor() as cursor:
-                cursor.executemany(placeholders(sql), [tuple(row) for row in rows])
-        self._guarded(self._doing or "write to it", run, sql)
-
-    def query(self, sql: str, params: Sequence[Any] = ()) -> list[Row]:
-        """The rows of one query, each readable by position and by column name."""
-        def run() -> list[Row]:
-            with self._c.cursor(row_factory=_row_factory) as cursor:
-                cursor.execute(placeholders(sql), tuple(params))
-                return cursor.fetchall()
-        return self._guarded("read it", run, sql)
-
-    # -------------------------------------------------------- transactions
+    def rows(self, conn: Any, sql: str, params: Sequence[Any] = ()) -> list[Row]:
+        cursor = conn.execute(sql, params)
+        names = tuple(d.name for d in cursor.description or ())
+        return [Row(values, names) for values in cursor.fetchall()]
 
     def _rollback(self) -> None:
         conn = self._conn
-        if conn is not None and not conn.closed and self.in_transaction:
+        if conn is not None and not conn.raw.closed and conn.in_transaction:
             try:
-                conn.execute("ROLLBACK")
-            except driver().Error:
+                conn.raw.execute("ROLLBACK")
+            except self.Error:
                 pass  # the connection is gone; the server rolls back by itself
 
     @contextmanager
-    def reading(self) -> Iterator[None]:
-        """Several reads that see one state of the archive (no write in between)."""
-        if self.in_transaction:
-            yield
+    def reading(self) -> Iterator[ServerConnection]:
+        """Several reads in one REPEATABLE READ transaction: one state of the archive."""
+        conn = self.connection
+        if conn.in_transaction:
+            yield conn
             return
-        self._guarded("read it", lambda: self._c.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY"))
         try:
-            yield
+            conn.raw.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
+        except self.Error as exc:
+            raise self.translate(exc, "read it") from None
+        try:
+            yield conn
         finally:
-            if self.in_transaction:
-                self._guarded("read it", lambda: self._c.execute("COMMIT"))
+            if conn.in_transaction and not conn.raw.closed:
+                try:
+                    conn.raw.execute("COMMIT")
+                except self.Error:
+                    self._rollback()
 
     @contextmanager
-    def writing(self, action: str) -> Iterator["PostgresBackend"]:
+    def writing(self, action: str) -> Iterator[ServerConnection]:
         """One write transaction: all of it is stored, or none of it; one writer at a time."""
         if self.read_only:
-            raise ArchiveReadOnlyError(f"{self.where} is read-only: cannot {action}")
-        psycopg = driver()
+            raise ArchiveReadOnlyError(f"{self.location} is read-only: cannot {action}")
+        conn = self.connection
+        conn.failed_statement = None
         try:
-            self._c.execute("BEGIN ISOLATION LEVEL READ COMMITTED")
+            conn.raw.execute("BEGIN ISOLATION LEVEL READ COMMITTED")
             # Taken now, so a busy archive is found before anything is done.
-            self._c.execute("SELECT pg_advisory_xact_lock(%s)", (_WRITE_LOCK,))
-        except psycopg.Error as exc:
+            conn.raw.execute("SELECT pg_advisory_xact_lock(%s)", (_WRITE_LOCK,))
+        except self.Error as exc:
             self._rollback()
-            raise archive_error(exc, self.where, action) from None
-        self._doing = action
+            raise self.translate(exc, action) from None
         try:
-            yield self
-            self._c.execute("COMMIT")
+            yield conn
+            conn.raw.execute("COMMIT")
         except BaseException as exc:
             self._rollback()
-            if isinstance(exc, psycopg.Error):
-                raise archive_error(exc, self.where, action) from None
+            if isinstance(exc, self.Error):
+                raise self.translate(exc, action) from None
             raise
+
+    def backup(self, dest: Path, *, overwrite: bool = False) -> Path:
+        """Copy the whole archive, as one state of it, into the SQLite archive file ``dest``.
+
+        The copy is written under a temporary name beside ``dest``, its hash
+        chain walked in full, and only then named ``dest``: a site's offline
+        copy of a shared archive, opened like any archive file.
+        """
+        from stripscan.archive import open_archive  # the package chooses the file's backend
+
+        dest = dest.expanduser().absolute()
+        if dest.is_dir():
+            raise ArchiveError(f"{dest} is a folder; give the backup a file name")
+        if dest.exists() and not overwrite:
+            raise ArchiveError(f"{dest} already exists; choose another name or allow overwriting")
+        if not dest.parent.is_dir():
+            raise ArchiveError(f"{dest}: the folder {dest.parent} does not exist")
+        partial = dest.with_name(f".{dest.name}.{os.getpid()}.partial")
+        try:
+            with open_archive(partial, check_chain=False) as copy:
+                with self.reading() as source, copy._writing(f"copy {self.location}") as target:
+                    for table in schema.TABLES:
+                        cursor = source.execute(f"SELECT * FROM {table} ORDER BY 1, 2")
+                        columns = [d.name for d in cursor.description]
+                        target.executemany(f"INSERT INTO {table} ({', '.join(columns)}) "
+                                           f"VALUES ({', '.join('?' for _ in columns)})", cursor.fetchall())
+                report = copy.verify()
+            if not report.ok:
+                raise ArchiveError(f"{dest}: the copy of {self.location} does not match its hash chain: "
+                                   f"{report.problem}")
+            os.replace(partial, dest)
+        except self.Error as exc:
+            raise self.translate(exc, f"back it up to {dest}") from None
+        except OSError as exc:
+            raise ArchiveError(f"{dest}: cannot write the backup: {exc.strerror or exc}") from None
         finally:
-            self._doing = None
+            for leftover in (partial, Path(f"{partial}-wal"), Path(f"{partial}-shm"), Path(f"{partial}-journal")):
+                leftover.unlink(missing_ok=True)
+        return dest
