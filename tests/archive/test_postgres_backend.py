@@ -19,6 +19,7 @@ import pytest
 from stripscan.archive import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError, parse_location
 from stripscan.archive.postgres import open_backend, schema
 from stripscan.archive.postgres.backend import PostgresBackend
+from stripscan.archive.sqlite.migrations import LATEST_VERSION as SQLITE_VERSION
 
 psycopg = pytest.importorskip("psycopg")  # the postgres extra; in CI its absence fails the run
 
@@ -39,7 +40,8 @@ def test_opening_names_the_archive_without_its_password_and_reads_by_name_and_po
     url = pg_database.url.replace("postgres@", "postgres:not-needed@", 1)
     with closing(_open(url)) as backend:
         assert "not-needed" not in backend.location and backend.location.startswith("postgresql://postgres@/")
-        assert backend.schema_version() == schema.latest_version() and backend.path is None
+        assert backend.server_schema_version() == schema.latest_version() and backend.path is None
+        assert backend.schema_version() == SQLITE_VERSION
         with backend.writing("add a film type") as conn:
             conn.execute(ADD_TYPE, ("Alder G", "100% green"))
         row = backend.named("SELECT name, description FROM film_types WHERE name = ?", ("Alder G",))[0]
@@ -56,7 +58,7 @@ def test_an_empty_database_gets_the_schema_unless_told_not_to(pg_database: Any) 
         with pytest.raises(ArchiveError, match="holds no stripscan archive yet"):
             _open(server.url(name), read_only=True)
         with closing(_open(server.url(name))) as backend:
-            assert backend.schema_version() == schema.latest_version()
+            assert backend.server_schema_version() == schema.latest_version()
     finally:
         server.drop_database(name)
 

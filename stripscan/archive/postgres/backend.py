@@ -218,7 +218,16 @@ class PostgresBackend(Backend):
         return True
 
     def schema_version(self) -> int:
-        """The server schema version (the highest row of ``stripscan_schema``)."""
+        """The archive's schema version: that of the SQLite schema the server's tables equal.
+
+        The server's own version (the highest row of ``stripscan_schema``) is
+        :meth:`server_schema_version`; exports and reports show this one, the
+        same for the same records in a file or on a server.
+        """
+        return schema.SQLITE_EQUIVALENT[self.server_schema_version()]
+
+    def server_schema_version(self) -> int:
+        """The version of the server schema (``schema/NNNN_*.sql``) the database is at."""
         try:
             return schema.schema_version(self.connection.raw)
         except self.Error as exc:
