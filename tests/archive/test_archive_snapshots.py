@@ -346,3 +346,16 @@ def test_mid_density_and_density_difference_trends_keep_the_lots_first_steps(arc
         shifted.figures.speed_log_exposure, abs=1e-5)
     # A lot with nothing stored has no steps and no points.
     assert archive.lot_qc_steps(LOTS[1].lot_id) is None and archive.trend("mid_density", LOTS[1].lot_id) == []
+
+
+def test_a_lots_steps_come_from_its_first_strip_that_has_them(archive: Archive) -> None:
+    # A first strip whose mid-density step could not be picked does not fix the lot's steps;
+    # the next strip that has all three does (common practice, as above).
+    lot = LOTS[0].lot_id
+    bare = make_strip(1)
+    bare = dataclasses.replace(bare, figures=dataclasses.replace(bare.figures, mid_density_step=None,
+                                                                 mid_density=None))
+    archive.add_snapshot(make_draft(1, lot=lot, strip=bare))
+    later = archive.add_snapshot(make_draft(2, lot=lot, strip=make_strip(1, centre=1.62)))
+    picked = later.strip.figures
+    assert archive.lot_qc_steps(lot) == (picked.mid_density_step, picked.dd_high_step, picked.dd_low_step)
