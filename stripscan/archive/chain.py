@@ -243,7 +243,9 @@ def check_head(conn: "Connection") -> str | None:
             return f"{name}: its chain hash does not follow from the record before it"
         if content_sha256(conn, kind, key) != content:
             return f"{name}: the stored content no longer matches its hash"
-    chained_count = conn.execute("SELECT count(*) FROM (SELECT DISTINCT kind, key FROM record_chain)").fetchone()[0]
+    # The derived table is named: PostgreSQL before 16 requires it.
+    chained_count = conn.execute(
+        "SELECT count(*) FROM (SELECT DISTINCT kind, key FROM record_chain) AS chained").fetchone()[0]
     stored = 0
     for kind, (table, _, _) in KINDS.items():
         stored += conn.execute(f"SELECT count(*) FROM {table}{_only_stored(kind)}").fetchone()[0]

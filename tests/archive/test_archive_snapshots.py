@@ -7,10 +7,9 @@ import datetime as dt
 import hashlib
 import json
 import math
-from pathlib import Path
 
 import pytest
-from archive_factory import FILM, LOTS, PROCESSORS, SENSITOMETER, make_draft, make_scan, make_strip, raw_connection, tiny_png
+from archive_factory import FILM, LOTS, PROCESSORS, SENSITOMETER, make_draft, make_scan, make_strip, tiny_png
 
 from stripscan.archive import (
     FIGURES,
@@ -55,7 +54,7 @@ def test_created_at_is_utc_iso_time_of_storing(archive: Archive) -> None:
     assert before <= created <= after
 
 
-def test_calibration_is_stored_once_under_its_content_hash(archive: Archive, archive_path: Path) -> None:
+def test_calibration_is_stored_once_under_its_content_hash(archive: Archive) -> None:
     first = archive.add_snapshot(make_draft(0))
     second = archive.add_snapshot(make_draft(1))
     calibration = make_draft(0).calibration
@@ -63,13 +62,13 @@ def test_calibration_is_stored_once_under_its_content_hash(archive: Archive, arc
     expected = hashlib.sha256(json.dumps(calibration, sort_keys=True, separators=(",", ":")).encode()).hexdigest()
     assert first.calibration_hash == second.calibration_hash == expected
     assert archive.get_calibration(expected) == calibration
-    with raw_connection(archive_path) as conn:
-        rows = conn.execute("SELECT hash, json FROM calibrations").fetchall()
+    # As stored, read through the archive's own connection (a file or a server).
+    rows = archive._query("SELECT hash, json FROM calibrations")
     assert len(rows) == 1
     assert hashlib.sha256(rows[0][1].encode()).hexdigest() == rows[0][0]
 
 
-def test_step_table_and_figure_columns_match_the_strip(archive: Archive, archive_path: Path) -> None:
+def test_step_table_and_figure_columns_match_the_strip(archive: Archive) -> None:
     stored = archive.add_snapshot(make_draft(2, strip=make_strip(1, nan_step=4)))
     strip = stored.strip.to_dict()
     table = archive.step_table(stored.id)
@@ -79,9 +78,8 @@ def test_step_table_and_figure_columns_match_the_strip(archive: Archive, archive
             source["log_exposure"], source["od"], source["od_sd"], source["in_range"], source["excluded"])
     assert table[3][2] is None and table[3][5] is True  # the unreadable step is kept as NULL
     assert math.isnan(stored.strip.steps[3].od)
-    with raw_connection(archive_path) as conn:
-        columns = conn.execute(f"SELECT {', '.join(FIGURES)} FROM snapshots WHERE id = ?", (stored.id,)).fetchone()
-    assert columns == tuple(strip["metrics"][name] for name in FIGURES)
+    columns = archive._query(f"SELECT {', '.join(FIGURES)} FROM snapshots WHERE id = ?", (stored.id,))[0]
+    assert tuple(columns) == tuple(strip["metrics"][name] for name in FIGURES)
 
 
 def test_bad_fields_are_refused_when_the_record_is_made() -> None:
@@ -116,13 +114,11 @@ def test_unknown_names_are_refused_unless_asked_to_create_them(archive: Archive)
     assert stored.lot_id == "ALD-9999"
 
 
-def test_a_batch_is_stored_whole_or_not_at_all(archive: Archive, archive_path: Path) -> None:
+def test_a_batch_is_stored_whole_or_not_at_all(archive: Archive) -> None:
     batch = [make_draft(0), make_draft(1), make_draft(2, lot="ALD-0000"), make_draft(3)]
     with pytest.raises(ArchiveLookupError, match="ALD-0000"):
         archive.add_snapshots(batch)
-    with raw_connection(archive_path) as conn:
-        counts = [conn.execute(f"SELECT count(*) FROM {t}").fetchone()[0]
-                  for t in ("snapshots", "snapshot_steps", "calibrations")]
+    counts = [archive._query(f"SELECT count(*) FROM {t}")[0][0] for t in ("snapshots", "snapshot_steps", "calibrations")]
     assert counts == [0, 0, 0]
     assert len(archive.add_snapshots(batch[:2] + batch[3:])) == 3
 
@@ -350,3 +346,16 @@ def test_mid_density_and_density_difference_trends_keep_the_lots_first_steps(arc
         shifted.figures.speed_log_exposure, abs=1e-5)
     # A lot with nothing stored has no steps and no points.
     assert archive.lot_qc_steps(LOTS[1].lot_id) is None and archive.trend("mid_density", LOTS[1].lot_id) == []
+
+
+def test_a_lots_steps_come_from_its_first_strip_that_has_them(archive: Archive) -> None:
+    # A first strip whose mid-density step could not be picked does not fix the lot's steps;
+    # the next strip that has all three does (common practice, as above).
+    lot = LOTS[0].lot_id
+    bare = make_strip(1)
+    bare = dataclasses.replace(bare, figures=dataclasses.replace(bare.figures, mid_density_step=None,
+                                                                 mid_density=None))
+    archive.add_snapshot(make_draft(1, lot=lot, strip=bare))
+    later = archive.add_snapshot(make_draft(2, lot=lot, strip=make_strip(1, centre=1.62)))
+    picked = later.strip.figures
+    assert archive.lot_qc_steps(lot) == (picked.mid_density_step, picked.dd_high_step, picked.dd_low_step)
