@@ -24,17 +24,9 @@ from stripscan.core.qc.records import OperatingLevels, QCSteps, QCValues
 from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
 from stripscan.sim.demo_data import daily_film, demo_files, scanner_for
 from stripscan.services.qc_chart import chart_data
-from stripscan.services.qc_log import (
-    DuplicateDayError,
-    add_day,
-    add_event,
-    correct_entry,
-    load_processor_log,
-    read_strip,
-    set_limits,
-    status_json,
-    status_text,
-)
+from stripscan.services.qc_log import DuplicateDayError, load_processor_log
+from stripscan.services.qc_recording import add_day, add_event, correct_entry, read_strip, set_limits
+from stripscan.services.qc_status import status_json, status_text
 
 P = "Darkroom B"
 START = datetime.date(2026, 10, 5)

@@ -28,7 +28,7 @@ from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCValues
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
-from stripscan.services.qc_log import add_day
+from stripscan.services.qc_recording import add_day
 
 from gui_helpers import settle
 

@@ -21,7 +21,7 @@ from stripscan.core.qc.names import QUANTITIES
 from stripscan.sim.simulate import FilmModel
 from stripscan.services.comparison_sets import SetLoader, parse_set
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
-from stripscan.services.qc_log import read_strip
+from stripscan.services.qc_recording import read_strip
 
 from gui_helpers import settle
 
