@@ -46,7 +46,8 @@ import numpy as np
 
 from stripscan.archive import Archive, Processor
 from stripscan.core.qc.records import QCSteps, QCValues
-from stripscan.sim.simulate import FilmModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import DPI, SCENARIO, DemoFiles, daily_film, scanner_for
 from stripscan.services.qc_log import ProcessorLog, load_processor_log
 from stripscan.services.qc_recording import add_day, add_event

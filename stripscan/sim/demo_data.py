@@ -29,15 +29,8 @@ from pathlib import Path
 
 import numpy as np
 
-from stripscan.sim.simulate import (
-    FilmModel,
-    ScannerModel,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 __all__ = ["DemoFiles", "SCENARIO", "LOT_FILMS", "daily_film", "demo_files", "generate", "scanner_for"]
 

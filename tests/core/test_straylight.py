@@ -17,7 +17,8 @@ from scipy import ndimage
 
 from stripscan.core.calibration import Calibration, Certificate, load_calibration, save_calibration
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.core.straylight import (
     ReducedScan,
     StrayLight,
