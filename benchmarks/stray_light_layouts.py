@@ -25,7 +25,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from stripscan.core.calibration import CalibrationError, read_certificate
+from stripscan.core.certificate import CalibrationError, read_certificate
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
 from stripscan.sim.objects import FilmModel, ScannerModel, SimulatedScan, StripSpec, TabletSpec
 from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff

@@ -18,7 +18,7 @@ from stripscan.cli.compare import levels_in_force
 from stripscan.services.comparison_sets import SetError, parse_set
 from stripscan.core.compare.comparison import compare_sets
 from stripscan.core.compare.sets import StripSet
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult

@@ -17,7 +17,7 @@ import pytest
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError, NewSnapshot
 from stripscan.archive import QcEntry as StoredEntry
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.qc.levels import choose_qc_steps
 from stripscan.core.qc.records import OperatingLevels, QCSteps, QCValues

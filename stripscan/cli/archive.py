@@ -101,8 +101,8 @@ def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any
 
     Read once for all the scans of a command.
     """
-    from stripscan.core.calibration import load_calibration
-    from stripscan.core.curve import FigureSettings
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.figure_settings import FigureSettings
     from stripscan.core.pipeline import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.

@@ -92,7 +92,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
         return fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
         cal = load_calibration(args.calibration)
@@ -183,7 +183,7 @@ def _add_days(args: argparse.Namespace) -> int:
     scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
     stored: list[Any] = []
     with start_workers(args, scans) as workers, open_from_args(args, create=args.new_processor) as archive:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
         calibration = load_calibration(args.calibration)

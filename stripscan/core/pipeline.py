@@ -17,18 +17,17 @@ import numpy as np
 
 from stripscan import __version__
 from stripscan.core.calibration import (
-    MAX_STEPS,
     ACCURACY_GOAL,
     Calibration,
-    CalibrationError,
-    Certificate,
     DirectMode,
     LateralCorrection,
     fit_calibration,
     flat_field,
 )
+from stripscan.core.certificate import MAX_STEPS, CalibrationError, Certificate
 from stripscan.core.checks import reading_notes
-from stripscan.core.curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
+from stripscan.core.curve import DEFAULT_INCREMENT, compute_figures, step_log_exposures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
 from stripscan.core.numerics import percentile
 from stripscan.core.records import Analysis, StepDensity, StepReading, StripGeometry, StripResult

@@ -193,7 +193,7 @@ class SetLoader:
             raise SetError(f"set {spec.text!r}: {exc}") from None
 
     def _scan(self, spec: SetSpec) -> StripSet:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.compare.sets import StripSet
         from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 

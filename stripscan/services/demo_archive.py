@@ -32,7 +32,8 @@ from pathlib import Path
 
 import numpy as np
 
-from stripscan.core.calibration import Calibration, load_calibration
+from stripscan.core.calibration import Calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_loaded, analyze_scan
 from stripscan.core.scan import load_scan
 from stripscan.sim.objects import StripSpec

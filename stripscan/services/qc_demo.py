@@ -188,7 +188,7 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
     ValueError
         When the processor already has QC entries or events.
     """
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
     from stripscan.core.pipeline import analyze_scan
 
     known = {p.name for p in archive.list_processors()}

@@ -136,7 +136,8 @@ def _lot_strips(lot: str, seed: int) -> list[StripSpec]:
 
 def generate(folder: str | os.PathLike[str]) -> DemoFiles:
     """Write every demo file into ``folder`` (deterministic)."""
-    from stripscan.core.calibration import read_certificate, save_calibration
+    from stripscan.core.calibration_files import save_calibration
+    from stripscan.core.certificate import read_certificate
     from stripscan.core.pipeline import calibrate_tablet
 
     folder = Path(folder)

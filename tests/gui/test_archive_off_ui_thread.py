@@ -23,7 +23,7 @@ from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCValues

@@ -8,7 +8,7 @@ import re
 import pytest
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.gui.views.trend_view import TrendView
 
