@@ -10,11 +10,8 @@ from typing import Sequence
 
 import numpy as np
 
-from stripscan.core.calibration import (
-    Calibration,
-    LateralCorrection,
-    fit_calibration,
-)
+from stripscan.core.calibration import Calibration, LateralCorrection
+from stripscan.core.calibration_fit import fit_calibration
 from stripscan.core.certificate import CalibrationError, Certificate
 from stripscan.core.locate import FoundStrip, LocateOptions, locate_in_scan
 from stripscan.core.records import StepReading, StripGeometry

@@ -24,7 +24,8 @@ from scipy import stats
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq
 
-from stripscan.core.calibration import Calibration, DirectMode, LateralCorrection, fit_calibration, fit_lateral
+from stripscan.core.calibration import Calibration, DirectMode, LateralCorrection, fit_lateral
+from stripscan.core.calibration_fit import fit_calibration
 from stripscan.core.certificate import Certificate
 from stripscan.core.compare.comparison import compare_sets
 from stripscan.core.compare.sets import StripSet
