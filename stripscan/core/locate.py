@@ -281,9 +281,9 @@ def _piece_geometry(
     pad = 3.0
     u_grid = np.arange(u_min - pad, u_max + pad + 1.0)
     v_grid = np.arange(v_min - 1.0, v_max + 2.0)
-    uu, vv = np.meshgrid(u_grid, v_grid)
-    grid_rows = centre[0] + uu * e1[0] + vv * e2[0]
-    grid_cols = centre[1] + uu * e1[1] + vv * e2[1]
+    # The rectified grid (v down, u across) by broadcasting, without meshgrid's full-size copies.
+    grid_rows = (centre[0] + u_grid * e1[0])[None, :] + (v_grid * e2[0])[:, None]
+    grid_cols = (centre[1] + u_grid * e1[1])[None, :] + (v_grid * e2[1])[:, None]
     rect = bilinear(dens, grid_rows, grid_cols)
 
     # Along-strip extent of the film piece in the rectified frame.
