@@ -456,7 +456,11 @@ def locate_in_scan(scan, options: LocateOptions = LocateOptions()) -> list[Found
 def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: LocateOptions) -> list[FoundStrip]:
     pixel_mm = (25.4 / dpi) * factor if dpi else options.working_mm
     platen = _platen_level(working)
-    dens = -np.log10(np.clip(working / platen, 1e-6, None)).astype(np.float32)
+    # -log10(max(working / platen, 1e-6)) in float32, in place: one image, not five.
+    dens = np.divide(working, np.float32(platen), dtype=np.float32)
+    np.maximum(dens, np.float32(1e-6), out=dens)
+    np.log10(dens, out=dens)
+    np.negative(dens, out=dens)
 
     film = dens > options.film_threshold
     # Dust on the platen and thin hairs are not film (a 3 x 3 opening);
