@@ -19,7 +19,8 @@ from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError,
 from stripscan.archive import QcEntry as StoredEntry
 from stripscan.core.calibration import load_calibration
 from stripscan.core.pipeline import analyze_scan
-from stripscan.core.qc.rules import OperatingLevels, QCSteps, QCValues, choose_qc_steps
+from stripscan.core.qc.levels import choose_qc_steps
+from stripscan.core.qc.records import OperatingLevels, QCSteps, QCValues
 from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
 from stripscan.sim.demo_data import daily_film, demo_files, scanner_for
 from stripscan.services.qc_chart import chart_data

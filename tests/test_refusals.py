@@ -388,13 +388,13 @@ def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys,
 def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeypatch):
     # issue item 12: names stored by an older stripscan are printed escaped, never raw
     from stripscan.archive import records
-    from stripscan.archive import service as store
+    from stripscan.archive import reference_data as store
     from stripscan.archive import Archive, EmulsionLot
 
     # As an older version stored it: without the entry checks, but through the archive (so its
     # history chain holds the record, as a migrated old archive's does).
     monkeypatch.setattr(store, "check_reference", lambda *args, **kwargs: None)
-    monkeypatch.setattr(records, "_check_name", lambda *args, **kwargs: None)
+    monkeypatch.setattr(records, "check_name", lambda *args, **kwargs: None)
     with Archive.open(stored) as archive:
         archive.add_lot(EmulsionLot("OLD\x1b]0;title\x07\u202e"))
     monkeypatch.undo()
@@ -575,7 +575,8 @@ def _kept_clean_cases(tmp: Path, demo) -> dict:
     scan, tablet = demo.daily_scans[0][1], demo.tablet_scan
     return {
         "scan missing": (["analyze", tmp / "none.tif"], "none.tif: no such file"),
-        "scan is a folder": (["analyze", tmp], "is a folder"),
+        # A folder is read as a batch of the scans in it, whose results need a folder of their own.
+        "scan is a folder": (["analyze", tmp], "a folder of them: give -o FOLDER"),
         "calibration missing": (["analyze", scan, "--calibration", tmp / "none.json"], "no such calibration file"),
         "calibration not JSON": (["analyze", scan, "--calibration", tmp / "text.txt"], "invalid JSON"),
         "certificate missing": (["calibrate", tablet, "--densities", tmp / "none.csv", "-o", tmp / "c.json"],

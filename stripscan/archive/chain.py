@@ -35,10 +35,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-import sqlite3
 from collections.abc import Iterator
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from stripscan.archive.backend import Connection
 
 __all__ = ["KINDS", "GENESIS", "ChainReport", "content_sha256", "append", "append_all", "verify", "check_head"]
 
@@ -69,7 +71,7 @@ def _key(kind: str, key: str) -> Any:
     return int(key) if kind in _INTEGER_KEYS else key
 
 
-def _row(conn: sqlite3.Connection, sql: str, params: tuple[Any, ...]) -> dict[str, Any] | None:
+def _row(conn: "Connection", sql: str, params: tuple[Any, ...]) -> dict[str, Any] | None:
     cursor = conn.execute(sql, params)
     names = [d[0] for d in cursor.description]
     found = cursor.fetchone()
@@ -80,7 +82,7 @@ def _plain(row: dict[str, Any]) -> dict[str, Any]:
     return {k: (v.hex() if isinstance(v, bytes) else v) for k, v in row.items() if v is not None}
 
 
-def _content(conn: sqlite3.Connection, kind: str, key: str) -> dict[str, Any] | None:
+def _content(conn: "Connection", kind: str, key: str) -> dict[str, Any] | None:
     """The stored content of one record as plain data; None when it is not stored."""
     table, column, _ = KINDS[kind]
     row = _row(conn, f"SELECT * FROM {table} WHERE {column} = ?", (_key(kind, key),))
@@ -99,7 +101,7 @@ def _content(conn: sqlite3.Connection, kind: str, key: str) -> dict[str, Any] | 
     return _plain(row)
 
 
-def content_sha256(conn: sqlite3.Connection, kind: str, key: str) -> str | None:
+def content_sha256(conn: "Connection", kind: str, key: str) -> str | None:
     """SHA-256 of a record's stored content (hex); None when the record is not stored."""
     content = _content(conn, kind, key)
     if content is None:
@@ -112,12 +114,12 @@ def _link(previous: str, kind: str, key: str, content: str) -> str:
     return hashlib.sha256(f"{previous}\n{kind}\n{key}\n{content}".encode("utf-8")).hexdigest()
 
 
-def _head(conn: sqlite3.Connection) -> tuple[int, str]:
+def _head(conn: "Connection") -> tuple[int, str]:
     row = conn.execute("SELECT seq, chain_sha256 FROM record_chain ORDER BY seq DESC LIMIT 1").fetchone()
     return (0, GENESIS) if row is None else (row[0], row[1])
 
 
-def append(conn: sqlite3.Connection, kind: str, key: Any) -> None:
+def append(conn: "Connection", kind: str, key: Any) -> None:
     """Add the record just written (inside the caller's transaction) to the chain."""
     key = str(key)
     content = content_sha256(conn, kind, key)
@@ -133,7 +135,7 @@ def _only_stored(kind: str) -> str:
     return " WHERE retired_at IS NOT NULL" if kind == "retirement" else ""
 
 
-def _stored_keys(conn: sqlite3.Connection, kind: str) -> Iterator[str]:
+def _stored_keys(conn: "Connection", kind: str) -> Iterator[str]:
     table, column, _ = KINDS[kind]
     where = _only_stored(kind)
     order = "id" if kind in _INTEGER_KEYS else column
@@ -141,7 +143,7 @@ def _stored_keys(conn: sqlite3.Connection, kind: str) -> Iterator[str]:
         yield str(key)
 
 
-def append_all(conn: sqlite3.Connection) -> int:
+def append_all(conn: "Connection") -> int:
     """Chain every stored record not in the chain yet (the upgrade of an older archive); return how many."""
     chained = {(k, key) for k, key in conn.execute("SELECT kind, key FROM record_chain")}
     added = 0
@@ -191,7 +193,7 @@ def _record(seq: int, kind: str, key: str) -> str:
     return f"record {seq} of the chain ({_name(kind, key)})"
 
 
-def verify(conn: sqlite3.Connection) -> ChainReport:
+def verify(conn: "Connection") -> ChainReport:
     """Walk the whole chain; report the first record that does not match its stored content or its predecessor."""
     rows = conn.execute("SELECT seq, kind, key, content_sha256, chain_sha256 FROM record_chain ORDER BY seq").fetchall()
     latest = {(kind, key): seq for seq, kind, key, _, _ in rows}
@@ -223,7 +225,7 @@ def verify(conn: sqlite3.Connection) -> ChainReport:
     return ChainReport(len(rows), head_seq, head)
 
 
-def check_head(conn: sqlite3.Connection) -> str | None:
+def check_head(conn: "Connection") -> str | None:
     """The cheap check on opening: the latest record matches, and every stored row is chained.
 
     Returns

@@ -18,7 +18,6 @@ from __future__ import annotations
 import datetime as dt
 import math
 import os
-import sqlite3
 import unicodedata
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -26,15 +25,8 @@ from typing import TYPE_CHECKING, Any
 from stripscan.core.records import Analysis
 
 from stripscan.archive.errors import ArchiveError
-from stripscan.archive.records import (
-    EmulsionLot,
-    FilmType,
-    Processor,
-    QcEntry,
-    Sensitometer,
-    Snapshot,
-    SnapshotNote,
-)
+from stripscan.archive.records import EmulsionLot, FilmType, Processor, Sensitometer, Snapshot, SnapshotNote
+from stripscan.archive.qc_records import QcEntry
 
 if TYPE_CHECKING:
     from stripscan.archive.service import Archive
@@ -55,7 +47,6 @@ __all__ = [
     "already_stored",
     "describe_stored",
     "on_read_only_media",
-    "remove_if_unused",
 ]
 
 #: Longest name (lot, processor, operator, film type, sensitometer, site), characters.
@@ -304,25 +295,3 @@ def on_read_only_media(path: Path) -> bool:
         return bool(os.statvfs(path).f_flag & os.ST_RDONLY)
     except (OSError, AttributeError):  # no such file yet, or no statvfs (Windows)
         return False
-
-
-def remove_if_unused(path: Path) -> bool:
-    """Delete an archive file that a failed command has just created and left empty.
-
-    Only a file whose every table is empty is removed (with its ``-wal`` and
-    ``-shm`` companions); returns whether it was.
-    """
-    try:
-        connection = sqlite3.connect(f"{path.absolute().as_uri()}?mode=ro", uri=True)
-        try:
-            tables = [row[0] for row in connection.execute(
-                "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'")]
-            if any(connection.execute(f'SELECT 1 FROM "{name}" LIMIT 1').fetchone() for name in tables):
-                return False
-        finally:
-            connection.close()
-        for leftover in (path, Path(f"{path}-wal"), Path(f"{path}-shm"), Path(f"{path}-journal")):
-            leftover.unlink(missing_ok=True)
-    except (sqlite3.Error, OSError):
-        return False
-    return True

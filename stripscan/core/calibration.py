@@ -37,6 +37,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
+from stripscan._shared import atomic
 from stripscan.core.numerics import pchip
 from stripscan.core.records import StepReading, clean_float
 from stripscan.core.straylight import StrayLight
@@ -669,19 +670,10 @@ def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> 
     it is read back (:func:`check_calibration_data`).
     """
     path = Path(path)
-    tmp = path.with_name(path.name + ".partial")
+    text = json.dumps({**calibration.to_dict(), "sha256": calibration.sha256}, indent=1) + "\n"
     try:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            json.dump({**calibration.to_dict(), "sha256": calibration.sha256}, fh, indent=1)
-            fh.write("\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
+        atomic.write_text(path, text)
     except OSError as exc:
-        try:
-            tmp.unlink(missing_ok=True)
-        except OSError:  # a read-only folder refuses even that; nothing was left there
-            pass
         raise CalibrationError(f"{path}: cannot write the calibration ({exc.strerror or exc})") from None
 
 

@@ -31,7 +31,7 @@ import numpy as np
 from stripscan.core.calibration import ACCURACY_GOAL
 from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.numerics import HermiteCubic, spline_slopes
-from stripscan.core.qc.rules import choose_qc_steps, closest_step
+from stripscan.core.qc.levels import choose_qc_steps, closest_step
 from stripscan.core.records import CurveFigures, StripResult
 
 __all__ = [

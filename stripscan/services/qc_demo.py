@@ -45,7 +45,7 @@ from typing import Any
 import numpy as np
 
 from stripscan.archive import Archive, Processor
-from stripscan.core.qc.rules import QCSteps, QCValues
+from stripscan.core.qc.records import QCSteps, QCValues
 from stripscan.sim.simulate import FilmModel, StripSpec, simulate_scan, write_tiff
 from stripscan.sim.demo_data import DPI, SCENARIO, DemoFiles, daily_film, scanner_for
 from stripscan.services.qc_log import ProcessorLog, add_day, add_event, load_processor_log

@@ -2,12 +2,12 @@
 
 The archive (:mod:`stripscan.archive`) keeps what was measured: one entry a
 day per processor, the events that restart a baseline, crossover records and
-a JSON settings object per processor.  The core (:mod:`stripscan.core.qc.rules`)
+a JSON settings object per processor.  The core (:mod:`stripscan.core.qc`)
 decides what it means: operating levels, verdicts, trend rules, status.
 This module joins the two and adds the rules that need both:
 
 * a day read off a scan uses the QC steps kept from the baseline on: they
-  are chosen (:func:`~stripscan.core.qc.rules.choose_qc_steps`) on the first
+  are chosen (:func:`~stripscan.core.qc.levels.choose_qc_steps`) on the first
   scanned strip after the latest event that restarts the baseline, stored
   in the settings with that day's entry, and used unchanged afterwards;
 * entries go in date order, one first strip per day, and an event may not
@@ -48,30 +48,25 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveLookupError, DuplicateDayError, NewSnapshot, Processor
 from stripscan.archive import QcEntry as StoredEntry
-from stripscan.archive.records import QcEntryState, qc_entry_states
-from stripscan.core.qc.rules import (
-    EVENT_KINDS,
-    QUANTITIES,
+from stripscan.archive.qc_records import QcEntryState, qc_entry_states
+from stripscan.core.qc.levels import choose_qc_steps, qc_values_from_steps
+from stripscan.core.qc.names import EVENT_KINDS, LABELS, QUANTITIES, VERDICT_WORDS
+from stripscan.core.qc.records import (
     DayVerdict,
     OperatingLevels,
     ProcessorStatus,
     QCEntry,
     QCEvent,
     QCLimits,
-    QCLog,
     QCSteps,
     QCValues,
     TrendRules,
-    choose_qc_steps,
-    evaluate_day,
-    qc_values_from_steps,
 )
-from stripscan.core.qc.names import LABELS, VERDICT_WORDS
+from stripscan.core.qc.rules import evaluate_day
+from stripscan.core.qc.status import QCLog
 from stripscan.core.records import Analysis, StripResult
 
 __all__ = [
-    "LABELS",
-    "VERDICT_WORDS",
     "StepChoice",
     "QcSetup",
     "LoggedEntry",

@@ -32,7 +32,9 @@ from stripscan.core.calibration import (
     fit_calibration,
     fit_lateral,
 )
-from stripscan.core.compare.statistics import StripSet, compare_sets, judge, welch_interval
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.compare.sets import StripSet
+from stripscan.core.compare.statistics import judge, welch_interval
 from stripscan.core.curve import (
     CharacteristicCurve,
     FigureSettings,
@@ -41,18 +43,10 @@ from stripscan.core.curve import (
     step_log_exposures,
 )
 from stripscan.core.pipeline import AnalysisOptions, strip_result
-from stripscan.core.qc.rules import (
-    OperatingLevels,
-    QCEntry,
-    QCLimits,
-    QCValues,
-    TrendRules,
-    apply_trend_rules,
-    choose_qc_steps,
-    crossover,
-    establish_levels,
-    evaluate_day,
-)
+from stripscan.core.qc.crossover import crossover
+from stripscan.core.qc.levels import choose_qc_steps, establish_levels
+from stripscan.core.qc.records import OperatingLevels, QCEntry, QCLimits, QCValues, TrendRules
+from stripscan.core.qc.rules import apply_trend_rules, evaluate_day
 from stripscan.core.records import Analysis, ScanInfo, StepDensity, StepReading, StripGeometry, StripResult
 
 # --------------------------------------------------------------------------

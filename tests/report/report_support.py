@@ -126,7 +126,7 @@ def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibratio
     """
     import datetime as dt
 
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.services.qc_log import add_day, add_event
 
     days = dict(QC_DAYS)
