@@ -423,7 +423,7 @@ def test_the_window_shades_no_day_after_a_crossover(capsys, tmp_path, qtbot):
     qtbot.addWidget(panel)
     panel.resize(1000, 900)
     panel.show()
-    qtbot.waitUntil(lambda: not panel.busy, timeout=20_000)  # the log is read in a worker thread
+    qtbot.waitUntil(lambda: not panel.busy, timeout=20_000)  # the panel reads the archive off the UI thread
     assert [p.baseline_dates for p in panel.data.periods] == [
         tuple(datetime.date(2026, 11, d) for d in range(2, 7)), ()]
     for plot in panel.plots.values():
