@@ -142,3 +142,18 @@ def test_a_copy_killed_half_way_leaves_nothing_and_runs_again(year: Path, pg_dat
         with Archive.open(year) as source:
             copy_archive(source, server)
         assert len(server.all_snapshots()) == 199 and server.verify().ok
+
+
+def test_a_value_the_destination_cannot_hold_as_it_is_stops_the_copy(year: Path, pg_database: Any,
+                                                                      tmp_path: Path) -> None:
+    with Archive.open(year) as source, Archive.open(pg_database.url) as server:
+        copy_archive(source, server)
+    # The server keeps a NaN density (written here behind stripscan's back); SQLite stores NaN as NULL
+    # (SQLite docs, c3ref/bind_blob.html), so the file copy would silently read otherwise.
+    with pg_database.connect() as conn:
+        conn.execute("INSERT INTO snapshot_steps VALUES (1, 99, 3.0, 'NaN', NULL, 10, 0, 1)")
+    with Archive.open(pg_database.url) as server, Archive.open(tmp_path / "offline.sqlite3") as offline:
+        with pytest.raises(ArchiveError, match="the copied snapshot_steps do not read back as they were read; "
+                                               "nothing was stored"):
+            copy_archive(server, offline)
+        assert copying._stored(offline) == 0
