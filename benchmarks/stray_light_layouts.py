@@ -25,18 +25,10 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from stripscan.core.calibration import CalibrationError, read_certificate
+from stripscan.core.certificate import CalibrationError, read_certificate
 from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import (
-    FilmModel,
-    ScannerModel,
-    SimulatedScan,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.sim.objects import FilmModel, ScannerModel, SimulatedScan, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 #: A flatbed's transparency area, about A4 (mm, width x height).
 PLATEN_MM = (216.0, 297.0)

@@ -16,12 +16,13 @@ from stripscan.archive import Archive, EmulsionLot, FilmType, NewSnapshot, Proce
 from stripscan.cli.main import main
 from stripscan.cli.compare import levels_in_force
 from stripscan.services.comparison_sets import SetError, parse_set
-from stripscan.core.compare.statistics import StripSet, compare_sets
-from stripscan.core.calibration import load_calibration
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.compare.sets import StripSet
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult
-from stripscan.core.qc.rules import QCSteps
+from stripscan.core.qc.records import QCSteps
 from stripscan.sim.demo_data import SCENARIO, demo_files
 from stripscan.services.qc_log import QcSetup, StepChoice
 

@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from stripscan.cli.main import main
-from stripscan.core.calibration import load_calibration, save_calibration
+from stripscan.core.calibration_files import load_calibration, save_calibration
 from stripscan.sim.demo_data import demo_files
 
 
@@ -388,13 +388,13 @@ def test_names_with_control_characters_or_too_long_are_refused(tmp_path, capsys,
 def test_names_stored_before_are_escaped_on_the_terminal(stored, capsys, monkeypatch):
     # issue item 12: names stored by an older stripscan are printed escaped, never raw
     from stripscan.archive import records
-    from stripscan.archive import service as store
+    from stripscan.archive import reference_data as store
     from stripscan.archive import Archive, EmulsionLot
 
     # As an older version stored it: without the entry checks, but through the archive (so its
     # history chain holds the record, as a migrated old archive's does).
     monkeypatch.setattr(store, "check_reference", lambda *args, **kwargs: None)
-    monkeypatch.setattr(records, "_check_name", lambda *args, **kwargs: None)
+    monkeypatch.setattr(records, "check_name", lambda *args, **kwargs: None)
     with Archive.open(stored) as archive:
         archive.add_lot(EmulsionLot("OLD\x1b]0;title\x07\u202e"))
     monkeypatch.undo()
@@ -575,7 +575,8 @@ def _kept_clean_cases(tmp: Path, demo) -> dict:
     scan, tablet = demo.daily_scans[0][1], demo.tablet_scan
     return {
         "scan missing": (["analyze", tmp / "none.tif"], "none.tif: no such file"),
-        "scan is a folder": (["analyze", tmp], "is a folder"),
+        # A folder is read as a batch of the scans in it, whose results need a folder of their own.
+        "scan is a folder": (["analyze", tmp], "a folder of them: give -o FOLDER"),
         "calibration missing": (["analyze", scan, "--calibration", tmp / "none.json"], "no such calibration file"),
         "calibration not JSON": (["analyze", scan, "--calibration", tmp / "text.txt"], "invalid JSON"),
         "certificate missing": (["calibrate", tablet, "--densities", tmp / "none.csv", "-o", tmp / "c.json"],
@@ -615,7 +616,7 @@ def test_what_was_refused_cleanly_stays_so(tmp_path, capsys, demo, case):
 @pytest.mark.parametrize("text", ["1,0.05\r2,0.30\r3,0.60\r", "\r\x01", "1,0.05\n2," + "9" * 200_000 + "\n"])
 def test_a_certificate_with_old_mac_line_ends_or_a_huge_field_is_read_or_refused_by_line(tmp_path, text):
     # found by the property test: csv's own error escaped for a lone CR, and fields over csv's size limit
-    from stripscan.core.calibration import CalibrationError, read_certificate
+    from stripscan.core.certificate import CalibrationError, read_certificate
 
     cert = tmp_path / "certificate.csv"
     cert.write_bytes(text.encode("latin-1"))

@@ -53,3 +53,17 @@ def test_help_still_lists_every_command():
     assert {"analyze", "calibrate", "demo", "archive", "qc", "compare", "crossover", "report", "export"} <= set(commands)
     for name in commands:
         assert f"    {name}" in done.stdout, name
+
+
+def test_analyze_imports_only_what_it_needs():
+    # Issue 18: the analysis of a page needs numpy and tifffile, not scipy (its import alone cost
+    # more than reading and hashing a 600-dpi page), numpy's masked arrays, Qt, or the other commands.
+    scan = ROOT / "sample_scans" / "lot_M-2610-A_three_strips.tif"
+    names, done = imported_modules("analyze", str(scan), "--json")
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert '"strips"' in done.stdout
+    assert {"numpy", "tifffile", "stripscan.core.pipeline"} <= names
+    unneeded = sorted(n for n in names if n.split(".")[0] in ("scipy", "skimage", "PySide6", "pyqtgraph")
+                      or n == "numpy.ma" or n.startswith(("stripscan.archive", "stripscan.cli.archive",
+                                                          "stripscan.cli.qc", "stripscan.cli.report")))
+    assert not unneeded, unneeded[:8]

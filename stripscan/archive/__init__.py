@@ -28,25 +28,22 @@ from stripscan.archive.errors import (
 )
 from stripscan.archive.records import (
     FIGURES,
-    Crossover,
     EmulsionLot,
     FilmType,
     ImportReport,
     LotSummary,
     NewSnapshot,
     Processor,
-    QcEntry,
-    QcEvent,
-    QcSettings,
     Sensitometer,
     Snapshot,
     SnapshotNote,
     SnapshotSummary,
     StepReadings,
     TrendPoint,
-    calibration_hash,
     snapshots_from_analysis,
 )
+from stripscan.archive.values import calibration_hash
+from stripscan.archive.qc_records import Crossover, QcEntry, QcEvent, QcSettings
 from stripscan.archive.location import Location, parse_location
 from stripscan.archive.service import DEFAULT_BUSY_TIMEOUT_MS, Archive, default_archive_path, user_data_folder
 

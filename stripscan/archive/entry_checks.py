@@ -25,15 +25,8 @@ from typing import TYPE_CHECKING, Any
 from stripscan.core.records import Analysis
 
 from stripscan.archive.errors import ArchiveError
-from stripscan.archive.records import (
-    EmulsionLot,
-    FilmType,
-    Processor,
-    QcEntry,
-    Sensitometer,
-    Snapshot,
-    SnapshotNote,
-)
+from stripscan.archive.records import EmulsionLot, FilmType, Processor, Sensitometer, Snapshot, SnapshotNote
+from stripscan.archive.qc_records import QcEntry
 
 if TYPE_CHECKING:
     from stripscan.archive.service import Archive

@@ -11,8 +11,6 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import json
-import os
-import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -20,18 +18,14 @@ from typing import Any
 from stripscan import CAUTION
 from stripscan.core.records import warnings_of_strip
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
-from stripscan.archive import discard_if_empty
 from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.archive.errors import ArchiveError
-from stripscan.archive.records import (
-    FIGURES,
-    NewSnapshot,
-    Sensitometer,
-    Snapshot,
-    SnapshotSummary,
-    check_day,
-)
+from stripscan.archive.records import FIGURES, NewSnapshot, Sensitometer, Snapshot, snapshot_status
+from stripscan.archive.values import check_day
 from stripscan.archive.service import Archive, default_archive_path
+from stripscan.cli.batch import add_batch_arguments
+from stripscan.cli.common import fail, forget_new_archive, guarded, open_from_args
+from stripscan.core.figures import figure_digits
 
 __all__ = ["register"]
 
@@ -45,38 +39,6 @@ _FIGURE_TITLES = {
 }
 
 
-def _fail(message: str) -> int:
-    print(f"stripscan: error: {message}", file=sys.stderr)
-    return 1
-
-
-def _quiet_stdout() -> None:
-    """Point stdout at devnull, so that the interpreter's last flush does not fail again."""
-    try:
-        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
-    except (OSError, ValueError):
-        pass
-
-
-def _guarded(handler: _Handler) -> _Handler:
-    def run(args: argparse.Namespace) -> int:
-        try:
-            return handler(args)
-        except BrokenPipeError:
-            # The reader went away (``... | true``).  These commands print only
-            # after their write committed, so nothing failed: say nothing.
-            _quiet_stdout()
-            return 0
-        except (ArchiveError, ValueError, OSError) as exc:
-            _forget_new_archive(args)
-            return _fail(str(exc))
-        except BaseException:
-            _forget_new_archive(args)
-            raise
-    run.__doc__ = handler.__doc__
-    return run
-
-
 def _date(text: str) -> str:
     try:
         check_day(text, "date")
@@ -85,45 +47,15 @@ def _date(text: str) -> str:
     return text
 
 
-def _open(args: argparse.Namespace, *, create: bool) -> Archive:
-    # Reading commands never create a file: a mistyped --archive path must
-    # say so rather than show an empty archive.
-    path = args.archive if args.archive is not None else default_archive_path()
-    if not create and not Path(path).expanduser().exists():
-        raise ArchiveError(_NO_ARCHIVE.format(path=Path(path).expanduser()))
-    if create and not Path(path).expanduser().exists():
-        args.new_archive_file = Path(path).expanduser().absolute()
-    return Archive.open(path, create=create)
-
-
-#: What a reading command says when the archive file is not there, and how one is made.
-_NO_ARCHIVE = (
-    "{path} does not exist: there is no archive there yet (check --archive or $STRIPSCAN_ARCHIVE). An archive "
-    "is made by the first command that stores something in it: 'stripscan archive add SCAN --lot ID', or "
-    "'stripscan qc add|event|limits --processor P --new-processor ...' to start a processor's QC log, or "
-    "'stripscan qc demo' for the invented demo"
-)
-
-
-def _forget_new_archive(args: argparse.Namespace) -> None:
-    """A command that failed leaves no new, empty archive file behind."""
-    created = getattr(args, "new_archive_file", None)
-    if created is not None:
-        discard_if_empty(created)
-
-
 def _number(value: float | None, digits: int = 3, *, unit: str = "") -> str:
     if value is None:
         return "-"
     return f"{value:.{digits}f} {unit}" if unit else f"{value:.{digits}f}"
 
 
-def _status(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
-    if item.retired_at is not None:
-        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
-    if superseded_by is not None:
-        return f"revised by {superseded_by}"
-    return "current"
+def _figure(key: str, value: float | None, *, unit: str = "") -> str:
+    """A curve figure at the decimals of the one figure table (as every report prints it)."""
+    return _number(value, figure_digits(key), unit=unit)
 
 
 def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
@@ -133,10 +65,10 @@ def _print_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> None:
 
 
 def _exposure_table(path: Path) -> tuple[float, ...]:
-    from stripscan.cli.main import CommandError, _read_exposure_table
+    from stripscan.cli.main import CommandError, read_exposure_table
 
     try:
-        return _read_exposure_table(str(path))
+        return read_exposure_table(str(path))
     except CommandError as exc:
         raise ValueError(str(exc)) from None
 
@@ -150,9 +82,28 @@ def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sens
     given; one not stored yet is stored with the table the strips were read
     with (``--exposures``, or ``--increment`` per step).
     """
-    from stripscan.core.calibration import load_calibration
-    from stripscan.core.curve import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+    from stripscan.core.pipeline import analyze_scan
+
+    calibration, options, known = _reading_setup(args, archive)
+    analysis = analyze_scan(args.scan, calibration=calibration, options=options)
+    return analysis, calibration, _new_sensitometer(args, known, analysis)
+
+
+def _new_sensitometer(args: argparse.Namespace, known: Sensitometer | None, analysis: Any) -> Sensitometer | None:
+    """The sensitometer ``--sensitometer`` names, to store with the snapshots when the archive lacks it."""
+    if args.sensitometer is not None and known is None and analysis.strips:
+        return Sensitometer(args.sensitometer, log_exposures=tuple(s.log_exposure for s in analysis.strips[0].steps))
+    return None
+
+
+def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sensitometer | None]:
+    """The calibration (or None), the analysis options and the stored sensitometer named (or None).
+
+    Read once for all the scans of a command.
+    """
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.figure_settings import FigureSettings
+    from stripscan.core.pipeline import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None
@@ -168,11 +119,7 @@ def _analyse(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any, Sens
     n_steps = args.steps if args.steps is not None or table is None else len(table)
     options = AnalysisOptions(n_steps=n_steps, increment=args.increment, exposure_table=table,
                               figures=FigureSettings(gradient_low=args.low, gradient_high=args.high))
-    analysis = analyze_scan(args.scan, calibration=calibration, options=options)
-    new = None
-    if args.sensitometer is not None and known is None and analysis.strips:
-        new = Sensitometer(args.sensitometer, log_exposures=tuple(s.log_exposure for s in analysis.strips[0].steps))
-    return analysis, calibration, new
+    return calibration, options, known
 
 
 def _sensitometer_note(new: Sensitometer) -> str:
@@ -181,39 +128,94 @@ def _sensitometer_note(new: Sensitometer) -> str:
 
 
 def _cmd_add(args: argparse.Namespace) -> int:
-    """Analyse a scan and store one snapshot per strip."""
-    with _open(args, create=True) as archive:
+    """Analyse a scan (or several, or a folder of them) and store one snapshot per strip."""
+    from stripscan.cli.batch import is_batch
+
+    if is_batch(args.scan):
+        return _add_batch(args)
+    args.scan = args.scan[0]
+    with open_from_args(args, create=True) as archive:
         analysis, calibration, sensitometer = _analyse(args, archive)
-        if not args.again:
-            _refuse_stored_scan(archive, analysis)
-        new = []
-        if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
-            new.append(f"lot {args.lot!r}")
-        if args.processor is not None and all(p.name != args.processor for p in archive.list_processors()):
-            new.append(f"processor {args.processor!r}")
-        stored = archive.add_analysis(
-            analysis, args.lot, calibration=calibration.to_dict() if calibration is not None else None,
-            create_missing=True, processor=args.processor, operator=args.operator or "",
-            exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "",
-            sensitometer=args.sensitometer, new_sensitometer=sensitometer)
+        new, stored = _store(args, archive, analysis, calibration, sensitometer)
     for item in new:
         print(f"note: {item} was not in the archive; added it with no further details")
     if sensitometer is not None:
         print(f"note: {_sensitometer_note(sensitometer)}")
     if calibration is None:
-        print("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
-              "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
-              "with calibrated ones")
+        print(_UNCALIBRATED)
     for snapshot in stored:
         print(f"snapshot {snapshot.id}: {_stored_line(snapshot)}")
     return 0
 
 
+_UNCALIBRATED = ("warning: UNCALIBRATED: stored as read in direct mode, log10(I0/I) straight from the scanner "
+                 "(no --calibration); such densities are capped by the scanner's flare and are not comparable "
+                 "with calibrated ones")
+
+
+def _store(args: argparse.Namespace, archive: Archive, analysis: Any, calibration: Any,
+           sensitometer: Sensitometer | None) -> tuple[list[str], list[Snapshot]]:
+    """Store one scan's strips in one transaction; what was new to the archive, and the snapshots."""
+    if not args.again:
+        _refuse_stored_scan(archive, analysis)
+    new = []
+    if not any(s.lot.lot_id == args.lot for s in archive.list_lots()):
+        new.append(f"lot {args.lot!r}")
+    if args.processor is not None and all(p.name != args.processor for p in archive.list_processors()):
+        new.append(f"processor {args.processor!r}")
+    stored = archive.add_analysis(
+        analysis, args.lot, calibration=calibration.to_dict() if calibration is not None else None,
+        create_missing=True, processor=args.processor, operator=args.operator or "",
+        exposed_on=args.exposed, processed_on=args.processed, scanned_on=args.scanned, notes=args.note or "",
+        sensitometer=args.sensitometer, new_sensitometer=sensitometer)
+    return new, stored
+
+
+def _add_batch(args: argparse.Namespace) -> int:
+    """Several scans: read on every core, each stored here as it comes, in the order given, one transaction each.
+
+    A scan that cannot be read or stored is reported and skipped; the
+    others are stored.
+    """
+    import functools
+
+    from stripscan.cli.batch import run_batch_command, start_workers
+    from stripscan.services.batch import collect_scans
+
+    scans = collect_scans(args.scan)
+    with start_workers(args, scans) as workers, open_from_args(args, create=True) as archive:
+        from stripscan.core.pipeline import analyze_scan
+
+        calibration, options, known = _reading_setup(args, archive)
+
+        def store(item: Any) -> None:
+            nonlocal known
+            sensitometer = _new_sensitometer(args, known, item.result)
+            new, stored = _store(args, archive, item.result, calibration, sensitometer)
+            for what in new:
+                print(f"note: {what} was not in the archive; added it with no further details")
+            if sensitometer is not None:
+                print(f"note: {_sensitometer_note(sensitometer)}")
+                known = sensitometer
+            for snapshot in stored:
+                print(f"snapshot {snapshot.id}: {_stored_line(snapshot)} ({item.path.name})")
+
+        work = functools.partial(analyze_scan, calibration=calibration, options=options)
+        summary = run_batch_command(args, scans, work, workers=workers, done_word="stored", ordered=True,
+                                    on_result=store, expected=(ArchiveError,))
+    if not summary.done:
+        forget_new_archive(args)
+    elif calibration is None:
+        print(_UNCALIBRATED)
+    return 1 if summary.failed or summary.cancelled else 0
+
+
 def _stored_line(snapshot: Snapshot) -> str:
     f = snapshot.figures
-    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_number(f.base_fog)}, mid-density "
-            f"{_number(f.mid_density)}, density difference {_number(f.density_difference)}, speed "
-            f"{_number(f.speed_log_exposure)}")
+    return (f"lot {snapshot.lot_id}, strip {snapshot.strip.index}, base+fog {_figure('base_fog', f.base_fog)}, "
+            f"mid-density {_figure('mid_density', f.mid_density)}, density difference "
+            f"{_figure('density_difference', f.density_difference)}, speed "
+            f"{_figure('speed_log_exposure', f.speed_log_exposure)}")
 
 
 def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
@@ -227,7 +229,7 @@ def _refuse_stored_scan(archive: Archive, analysis: Any) -> None:
 
 def _cmd_list(args: argparse.Namespace) -> int:
     """List snapshots (current ones unless --all)."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         if args.lot is not None:
             archive.get_lot(args.lot)  # an unknown lot is a mistake to name, not an empty list
         rows = archive.list_snapshots(args.lot, args.processor, include_retired=args.all,
@@ -243,9 +245,9 @@ def _cmd_list(args: argparse.Namespace) -> int:
         md_step = str(qc.mid_step) if qc and qc.mid_step is not None else "-"
         dd_steps = f"{qc.dd_high_step}-{qc.dd_low_step}" if qc and qc.dd_high_step is not None else "-"
         table.append([str(r.id), r.date, r.lot_id, r.processor or "-", str(r.strip_index),
-                      *(_number(getattr(r, name)) for name in plain),
-                      _number(qc.mid_density if qc else None), md_step,
-                      _number(qc.density_difference if qc else None), dd_steps, _status(r, r.superseded_by)])
+                      *(_figure(name, getattr(r, name)) for name in plain),
+                      _figure("mid_density", qc.mid_density if qc else None), md_step,
+                      _figure("density_difference", qc.density_difference if qc else None), dd_steps, snapshot_status(r)])
     _print_table(["id", "date", "lot", "processor", "strip", *(_FIGURE_TITLES[n] for n in plain),
                   _FIGURE_TITLES["mid_density"], "MD step", _FIGURE_TITLES["density_difference"], "DD steps",
                   "status"], table)
@@ -258,7 +260,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
 
 def _cmd_show(args: argparse.Namespace) -> int:
     """Show one snapshot with its steps, revision chain and notes."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         snapshot = archive.get_snapshot(args.id)
         chain = archive.history(args.id)
         notes = archive.list_notes(args.id)
@@ -271,7 +273,7 @@ def _cmd_show(args: argparse.Namespace) -> int:
         print(json.dumps(data, ensure_ascii=False, indent=1))
         return 0
     s, f = snapshot, snapshot.figures
-    print(f"snapshot {s.id} ({_status(s, later[0] if later else None)})")
+    print(f"snapshot {s.id} ({snapshot_status(s, later[0] if later else None)})")
     print(f"  lot {s.lot_id}; processor {s.processor or '-'}; sensitometer {s.sensitometer or '-'}; "
           f"operator {s.operator or '-'}")
     print(f"  exposed {s.exposed_on or '-'}; processed {s.processed_on or '-'}; scanned {s.scanned_on or '-'}")
@@ -283,11 +285,12 @@ def _cmd_show(args: argparse.Namespace) -> int:
         print(f"  calibration {s.calibration_hash}")
     if s.revises is not None:
         print(f"  corrects snapshot {s.revises}: {s.revision_reason}")
-    print(f"  base+fog {_number(f.base_fog, unit='OD')}; Dmax {_number(f.dmax, unit='OD')}; "
-          f"speed {_number(f.speed_log_exposure, unit='log E')}; average gradient {_number(f.average_gradient, 2)}; "
-          f"gamma {_number(f.gamma, 2)}; latitude {_number(f.latitude_log_exposure, unit='log E')}")
-    print(f"  mid-density {_number(f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); density "
-          f"difference {_number(f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
+    print(f"  base+fog {_figure('base_fog', f.base_fog, unit='OD')}; Dmax {_figure('dmax', f.dmax, unit='OD')}; "
+          f"speed {_figure('speed_log_exposure', f.speed_log_exposure, unit='log E')}; "
+          f"average gradient {_figure('average_gradient', f.average_gradient)}; gamma {_figure('gamma', f.gamma)}; "
+          f"latitude {_figure('latitude_log_exposure', f.latitude_log_exposure, unit='log E')}")
+    print(f"  mid-density {_figure('mid_density', f.mid_density, unit='OD')} (step {f.mid_density_step or '-'}); "
+          f"density difference {_figure('density_difference', f.density_difference, unit='OD')} (steps {f.dd_high_step or '-'} - "
           f"{f.dd_low_step or '-'})")
     if read_in_direct_mode(s.strip):
         print(f"  ({NOISE_ONLY_NOTE})")
@@ -309,12 +312,12 @@ def _cmd_show(args: argparse.Namespace) -> int:
 
 def _cmd_export(args: argparse.Namespace) -> int:
     """Export snapshots' figures (CSV) or the whole archive (JSON)."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         if args.format == "csv":
             written = archive.export_csv(args.output, include_retired=args.all, include_superseded=args.all)
         else:
             if args.all:
-                return _fail("--all applies to CSV only; a JSON export always holds everything")
+                return fail("--all applies to CSV only; a JSON export always holds everything")
             written = archive.export_json(args.output)
     print(f"wrote {written}")
     return 0
@@ -322,7 +325,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 def _cmd_import(args: argparse.Namespace) -> int:
     """Import a JSON export into the archive."""
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         report = archive.import_json(args.file)
     added = ", ".join(f"{n} {k.replace('_', ' ')}" for k, n in report.added.items() if n) or "nothing new"
     same = sum(report.unchanged.values())
@@ -337,7 +340,7 @@ def _cmd_import(args: argparse.Namespace) -> int:
 
 def _cmd_backup(args: argparse.Namespace) -> int:
     """Copy the archive to DEST while it stays in use."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         written = archive.backup(args.dest, overwrite=args.overwrite)
     print(f"backed up {archive.path} to {written}")
     return 0
@@ -345,7 +348,7 @@ def _cmd_backup(args: argparse.Namespace) -> int:
 
 def _cmd_revise(args: argparse.Namespace) -> int:
     """Correct a snapshot: store a revision with a reason; the old snapshot stays readable, marked revised."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         old = archive.get_snapshot(args.id)
         draft = NewSnapshot(
             lot_id=old.lot_id, scan=old.scan, strip=old.strip, processor=old.processor,
@@ -386,7 +389,7 @@ def _cmd_revise(args: argparse.Namespace) -> int:
 
 def _cmd_retire(args: argparse.Namespace) -> int:
     """Withdraw a snapshot from listings and trends, with a reason; it stays readable ('archive show')."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         retired = archive.retire(args.id, args.reason or "")
     print(f"snapshot {retired.id} retired {retired.retired_at}: {retired.retired_reason}; "
           "it stays in the archive, left out of listings, trends and comparisons")
@@ -395,7 +398,7 @@ def _cmd_retire(args: argparse.Namespace) -> int:
 
 def _cmd_lot(args: argparse.Namespace) -> int:
     """Store an emulsion lot's film type, expiry date and date received (a new lot is added)."""
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         lot = archive.update_lot(args.lot, film_type=args.film_type, expiry_date=args.expires,
                                  received_date=args.received, notes=args.note, create_missing=True)
     print(f"lot {lot.lot_id}: film type {lot.film_type or '-'}; expires {lot.expiry_date or '-'}; "
@@ -405,11 +408,10 @@ def _cmd_lot(args: argparse.Namespace) -> int:
 
 def _cmd_verify(args: argparse.Namespace) -> int:
     """Check every stored record against the archive's hash chain; name the first one that does not match."""
-    path = args.archive if args.archive is not None else default_archive_path()
-    with Archive.open(path, create=False, check_chain=False) as archive:
+    with Archive.open(args.archive, create=False, check_chain=False) as archive:
         report = archive.verify()
     if not report.ok:
-        return _fail(f"{archive.path}: {report.problem}")
+        return fail(f"{archive.path}: {report.problem}")
     print(f"{archive.path}: all {report.records} records match the hash chain")
     print(f"  head: record {report.head_seq}, sha256 {report.head_sha256}")
     print("  (this detects changes made outside stripscan; it cannot prevent them. Keep the head line elsewhere "
@@ -419,7 +421,7 @@ def _cmd_verify(args: argparse.Namespace) -> int:
 
 def _cmd_lots(args: argparse.Namespace) -> int:
     """List emulsion lots with their snapshot counts and dates."""
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         lots = archive.list_lots()
     _print_table(["lot", "film type", "expires", "received", "snapshots", "first", "last"],
                  [[s.lot.lot_id, s.lot.film_type or "-", s.lot.expiry_date or "-", s.lot.received_date or "-",
@@ -442,19 +444,22 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
         callable taking the parsed arguments and returning the exit status.
     """
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--archive", metavar="PATH", type=Path, default=None,
-                        help=f"archive file (default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
+    common.add_argument("--archive", metavar="LOCATION", default=None,
+                        help=f"archive: a file, or a PostgreSQL server as postgresql://USER@HOST/DB "
+                             f"(default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
     parser = subparsers.add_parser("archive", help="keep strip readings for audits and lot comparison",
                                    description="Store, list and export strip readings kept for audits.")
     commands = parser.add_subparsers(dest="archive_command", metavar="COMMAND", required=True)
 
     def command(name: str, handler: _Handler, help_text: str) -> argparse.ArgumentParser:
         sub = commands.add_parser(name, parents=[common], help=help_text, description=handler.__doc__)
-        sub.set_defaults(func=_guarded(handler))
+        sub.set_defaults(func=guarded(handler))
         return sub
 
-    add = command("add", _cmd_add, "analyse a scan and store its strips")
-    add.add_argument("scan", metavar="SCAN", type=Path, help="scanned strip(s), as analysed by stripscan")
+    add = command("add", _cmd_add, "analyse a scan (or several) and store its strips")
+    add.add_argument("scan", metavar="SCAN", type=Path, nargs="+",
+                     help="scanned strip(s), as analysed by stripscan; several scans, or a folder of them, are read "
+                          "on every core and stored one after the other, in the order given")
     add.add_argument("--lot", required=True, metavar="ID", help="emulsion lot of the film")
     add.add_argument("--processor", metavar="P", help="processor the strips went through")
     add.add_argument("--calibration", metavar="CAL.json", type=Path, help="scanner calibration to use")
@@ -466,6 +471,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     _reading_arguments(add)
     add.add_argument("--again", action="store_true",
                      help="store the scan even if the archive holds its strips already (same file, sha256)")
+    add_batch_arguments(add)
 
     listing = command("list", _cmd_list, "list snapshots")
     listing.add_argument("--lot", metavar="ID", help="only this emulsion lot")

@@ -38,7 +38,7 @@ against set 1) in the same shape, with ΔD(log E) and Δlog E(net density).
 ``crossover`` reads the old and the new QC film's strips at the steps the
 processor already uses (kept in its QC log, :mod:`stripscan.services.qc_log`; chosen
 on the old film's mean densities when none are kept), moves its operating
-levels by the mean difference (:func:`stripscan.core.qc.rules.crossover`: at
+levels by the mean difference (:func:`stripscan.core.qc.crossover.crossover`: at
 least ``--strips`` strips of each film, as many old as new) and stores the
 crossover record and a ``crossover`` event with the new levels in the
 processor's QC log together: both or neither.  It refuses a second
@@ -57,12 +57,14 @@ from collections.abc import Callable, Sequence
 from typing import TYPE_CHECKING, Any
 
 from stripscan import CAUTION, __version__
-from stripscan.core.compare.table import DEFAULT_TOLERANCES, FIGURE_INFO, FIGURES, Tolerance
+from stripscan.core.compare.table import DEFAULT_TOLERANCES, FIGURES, Tolerance
+from stripscan.core.figures import figure_name
 
 from stripscan.services.comparison_sets import SetError, SetLoader, parse_set
 
 if TYPE_CHECKING:
-    from stripscan.core.compare.statistics import Comparison, StripSet
+    from stripscan.core.compare.comparison import Comparison
+    from stripscan.core.compare.sets import StripSet
 
 __all__ = [
     "comparison_json",
@@ -115,7 +117,7 @@ def format_comparisons(comparisons: Sequence[Comparison], notes: Sequence[str] =
     used = {row.figure: row.tolerance for row in comparisons[0].rows if row.tolerance is not None}
     for figure, tol in used.items():
         if figure != "relative_speed_percent":
-            out.append(f"  {FIGURE_INFO[figure][0]}: {tol.text()} ({tol.source})")
+            out.append(f"  {figure_name(figure, qualified=True)}: {tol.text()} ({tol.source})")
     out += ["  Set tolerances for your site with --tolerance FIGURE=VALUE.", "", f"Caution: {CAUTION}"]
     return "\n".join(out)
 
@@ -155,10 +157,6 @@ def tolerances_from_args(items: Sequence[str] | None) -> dict[str, Tolerance]:
     return tolerances
 
 
-#: The name the report commands first imported; kept so they keep working.
-_tolerances = tolerances_from_args
-
-
 def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Namespace], int]:
     # Archive errors are not ValueErrors; every failure becomes one line on stderr.
     def run(args: argparse.Namespace) -> int:
@@ -175,7 +173,8 @@ def _guarded(handler: Callable[[argparse.Namespace], int]) -> Callable[[argparse
 
 def cmd_compare(args: argparse.Namespace) -> int:
     """Compare sets of strips: every set against the first."""
-    from stripscan.core.compare.statistics import CompareError, compare_sets
+    from stripscan.core.compare.comparison import compare_sets
+    from stripscan.core.compare.sets import CompareError
 
     if len(args.sets) < 2:
         raise CompareError(f"compare needs at least two sets, got {len(args.sets)}: {args.sets[0]}")
@@ -242,8 +241,8 @@ def levels_in_force(archive: Any, processor: str, date: datetime.date, *,
 
 
 def _steps_in_use(log: Any, levels: Any, old: StripSet, date: datetime.date) -> tuple[Any, str]:
-    from stripscan.core.qc.rules import choose_qc_steps
-    from stripscan.core.compare.statistics import mean_step_densities
+    from stripscan.core.qc.levels import choose_qc_steps
+    from stripscan.core.compare.sets import mean_step_densities
 
     steps = log.steps_on(date)
     if steps is not None:
@@ -279,7 +278,7 @@ def store_crossover(archive: Any, processor: str, date: str, record: dict[str, A
 
 
 def _qc_values(s: StripSet, steps: Any) -> list[Any]:
-    from stripscan.core.compare.statistics import strip_qc_values
+    from stripscan.core.compare.sets import strip_qc_values
 
     values = []
     for label, strip in zip(s.labels, s.strips):
@@ -346,8 +345,8 @@ def _check_processed_together(old: StripSet, new: StripSet, loader: SetLoader, d
 
 def cmd_crossover(args: argparse.Namespace) -> int:
     """Move a processor's operating levels to a new box of QC film."""
-    from stripscan.archive import Archive, default_archive_path
-    from stripscan.core.qc.rules import crossover
+    from stripscan.archive import Archive
+    from stripscan.core.qc.crossover import crossover
     from stripscan.services.qc_log import load_processor_log
 
     if args.strips < 1:
@@ -355,8 +354,7 @@ def cmd_crossover(args: argparse.Namespace) -> int:
     date = args.date or datetime.date.today()
     day = date.isoformat()
     old_spec, new_spec = parse_set(args.old), parse_set(args.new)
-    path = args.archive if args.archive is not None else default_archive_path()
-    with Archive.open(path, create=False) as archive:
+    with Archive.open(args.archive, create=False) as archive:
         log = load_processor_log(archive, args.processor)
         earlier = [c for c in archive.list_crossovers(args.processor) if c.date == day]
         if earlier:
@@ -422,7 +420,7 @@ def register(subparsers: Any) -> None:
         "snapshot of an emulsion lot).  A bare path to a file is a scan.  " + f"Caution: {CAUTION}"
     )
     # argparse expands %-codes in help texts: the per-cent signs must be doubled.
-    tolerance_help = "; ".join(f"{FIGURE_INFO[f][0]} {t.text()} ({t.source})"
+    tolerance_help = "; ".join(f"{figure_name(f, qualified=True)} {t.text()} ({t.source})"
                                for f, t in DEFAULT_TOLERANCES.items()).replace("%", "%%")
 
     p = subparsers.add_parser(
@@ -434,7 +432,7 @@ def register(subparsers: Any) -> None:
     )
     p.add_argument("sets", nargs="+", metavar="SET", help=set_help)
     p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets (none: uncalibrated direct mode)")
-    p.add_argument("--archive", metavar="PATH", help="archive for snapshot: and lot: sets (default: $STRIPSCAN_ARCHIVE "
+    p.add_argument("--archive", metavar="LOCATION", help="archive for snapshot: and lot: sets (default: $STRIPSCAN_ARCHIVE "
                    "or the user's data folder)")
     p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
     p.add_argument("--tolerance", action="append", metavar="FIGURE=VALUE",
@@ -456,7 +454,7 @@ def register(subparsers: Any) -> None:
     p.add_argument("--date", type=_parse_date, metavar="YYYY-MM-DD", help="day of the crossover (default: today)")
     p.add_argument("--strips", type=int, default=5, metavar="N",
                    help="strips needed of each film, at least (common practice: 5); as many old as new")
-    p.add_argument("--archive", metavar="PATH", help="the archive (default: $STRIPSCAN_ARCHIVE or the user's data folder)")
+    p.add_argument("--archive", metavar="LOCATION", help="the archive (default: $STRIPSCAN_ARCHIVE or the user's data folder)")
     p.add_argument("--calibration", metavar="CAL.json", help="calibration for scan sets")
     p.add_argument("--steps", type=int, metavar="N", help="steps per strip on scans (default: counted)")
     p.add_argument("--base-fog-rule", choices=("new_mean", "shift"), default="new_mean",

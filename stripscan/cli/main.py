@@ -17,7 +17,8 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from stripscan import CAUTION, __version__
-from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode, step_flag, uncertainty_title
+from stripscan.cli.batch import add_batch_arguments
+from stripscan.core.figures import NOISE_ONLY_NOTE, figure_digits, read_in_direct_mode, step_flag, uncertainty_title
 
 EXIT_OK, EXIT_ERROR, EXIT_USAGE = 0, 1, 2
 
@@ -49,6 +50,8 @@ class _TerminalSafe:
 
     def __init__(self, stream) -> None:
         self._stream = stream
+        #: The stream itself, for what must reach the terminal as it is (a progress line's carriage return).
+        self.raw_stream = stream
 
     def write(self, text: str) -> int:
         return self._stream.write(terminal_safe(text))
@@ -68,21 +71,17 @@ def _fmt(value: float | None, digits: int = 2, unit: str = "") -> str:
 
 
 def _write_text_atomic(path: Path, text: str) -> None:
-    tmp = path.with_name(path.name + ".partial")
+    from stripscan._shared.atomic import write_text
+
     try:
-        tmp.write_text(text, encoding="utf-8")
-        os.replace(tmp, path)
+        write_text(path, text)
     except OSError as exc:
-        try:
-            tmp.unlink(missing_ok=True)
-        except OSError:  # a read-only folder refuses even that; nothing was left there
-            pass
         raise CommandError(f"{path}: cannot write ({exc.strerror or exc})") from None
 
 
-def _read_exposure_table(path: str) -> tuple[float, ...]:
+def read_exposure_table(path: str) -> tuple[float, ...]:
     """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
-    from stripscan.core.calibration import read_table_text
+    from stripscan.core.certificate import read_table_text
 
     lines = read_table_text(path, "step table", "one number per step, one per line").splitlines()
     values = []
@@ -152,24 +151,29 @@ def format_analysis(analysis) -> str:
             if stray:
                 share = f" {100 * s.stray_light_share:5.1f}%" if s.stray_light_share is not None else "      -"
             out.append(f"  {s.step:>4} {s.log_exposure:6.2f} {od} {sd} {s.pixels:>7}{share}  {note}")
-        out.append(f"  base+fog              {_fmt(f.base_fog, 3) if f.base_fog is not None else 'not read'}")
-        out.append(f"  Dmax                  {_fmt(f.dmax, 3) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
-        out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  log E {_fmt(f.speed_log_exposure, 3)}")
+        d = figure_digits  # the one figure table's decimals, as every report prints them
+        out.append(f"  base+fog              "
+                   f"{_fmt(f.base_fog, d('base_fog')) if f.base_fog is not None else 'not read'}")
+        out.append(f"  Dmax                  "
+                   f"{_fmt(f.dmax, d('dmax')) if f.dmax is not None else 'not stated (denser than the usable steps)'}")
+        out.append(f"  speed point (net {f.settings.get('speed_net_density', 1.0):.2f})  "
+                   f"log E {_fmt(f.speed_log_exposure, d('speed_log_exposure'))}")
         if f.relative_speed_percent is not None:
-            out.append(f"  relative speed        {f.relative_speed_percent:+.1f} %")
+            out.append(f"  relative speed        {f.relative_speed_percent:+.{d('relative_speed_percent')}f} %")
         low, high = f.settings.get("gradient_low", 0.25), f.settings.get("gradient_high", 2.0)
-        out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, 2)}")
-        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, 2)}" if f.gamma is not None else ""
-        out.append(f"  gamma (max slope)     {_fmt(f.gamma, 2)}{gamma_at}")
-        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, 2, ' log E')}")
+        out.append(f"  average gradient ({low:.2f}-{high:.2f})  {_fmt(f.average_gradient, d('average_gradient'))}")
+        gamma_at = f" at log E {_fmt(f.gamma_log_exposure, d('gamma_log_exposure'))}" if f.gamma is not None else ""
+        out.append(f"  gamma (max slope)     {_fmt(f.gamma, d('gamma'))}{gamma_at}")
+        out.append(f"  latitude              {_fmt(f.latitude_log_exposure, d('latitude_log_exposure'), ' log E')}")
         if f.mid_density_step is not None:
-            out.append(f"  mid-density           {_fmt(f.mid_density, 2)} (step {f.mid_density_step})")
+            out.append(f"  mid-density           {_fmt(f.mid_density, d('mid_density'))} (step {f.mid_density_step})")
         if f.density_difference is not None:
             out.append(
-                f"  density difference    {_fmt(f.density_difference, 2)} (step {f.dd_high_step} - step {f.dd_low_step})"
+                f"  density difference    {_fmt(f.density_difference, d('density_difference'))} "
+                f"(step {f.dd_high_step} - step {f.dd_low_step})"
             )
         if f.iso_speed is not None:
-            out.append(f"  ISO speed             {f.iso_speed:.0f}")
+            out.append(f"  ISO speed             {f.iso_speed:.{d('iso_speed')}f}")
         for w in strip.warnings:
             out.append(f"  ! {w}")
     top = [w for w in analysis.warnings if not w.startswith("strip ")]
@@ -182,7 +186,7 @@ def format_analysis(analysis) -> str:
 
 
 def _analysis_options(args):
-    from stripscan.core.curve import FigureSettings
+    from stripscan.core.figure_settings import FigureSettings
     from stripscan.core.pipeline import AnalysisOptions
 
     figures = FigureSettings(
@@ -194,8 +198,8 @@ def _analysis_options(args):
         dd_rule=args.dd_rule,
         reference_speed_log_exposure=args.reference_speed,
     )
-    table = _read_exposure_table(args.exposures) if args.exposures else None
-    kerma = _read_exposure_table(args.air_kerma) if args.air_kerma else None
+    table = read_exposure_table(args.exposures) if args.exposures else None
+    kerma = read_exposure_table(args.air_kerma) if args.air_kerma else None
     n_steps = args.steps
     if table is not None and n_steps is None:
         n_steps = len(table)
@@ -212,19 +216,17 @@ def _analysis_options(args):
     )
 
 
-def _gradient_curve(strip) -> dict | None:
-    """The gradient curve (dD/dlog E) of a strip's usable steps, every 0.05 log E."""
-    import numpy as np
+def _analysis_inputs(args):
+    """The calibration (or None), the on-scan tablet's certificate (or None) and the options, read once."""
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.certificate import read_certificate
 
-    from stripscan.core.curve import strip_curve
-
-    curve = strip_curve(strip)
-    if curve is None:
-        return None
-    count = int(round((curve.log_exposure[-1] - curve.log_exposure[0]) / 0.05)) + 1
-    grid = np.linspace(curve.log_exposure[0], curve.log_exposure[-1], max(count, 2))
-    return {"log_exposure": [round(float(v), 4) for v in grid],
-            "gradient": [round(float(v), 4) for v in curve.gradient(grid)]}
+    tablet_certificate = getattr(args, "tablet_certificate", None)
+    if tablet_certificate and args.calibration:
+        raise CommandError("give --calibration or --tablet-certificate, not both")
+    calibration = load_calibration(args.calibration) if args.calibration else None
+    certificate = read_certificate(tablet_certificate) if tablet_certificate else None
+    return calibration, certificate, _analysis_options(args)
 
 
 def analysis_from_args(args, path):
@@ -233,16 +235,12 @@ def analysis_from_args(args, path):
     With ``--tablet-certificate`` the calibration is the one fitted on the
     tablet lying on the scan itself (also kept in the result's JSON).
     """
-    from stripscan.core.calibration import Calibration, load_calibration, read_certificate
+    from stripscan.core.calibration import Calibration
     from stripscan.core.pipeline import analyze_scan
 
-    tablet_certificate = getattr(args, "tablet_certificate", None)
-    if tablet_certificate and args.calibration:
-        raise CommandError("give --calibration or --tablet-certificate, not both")
-    calibration = load_calibration(args.calibration) if args.calibration else None
-    certificate = read_certificate(tablet_certificate) if tablet_certificate else None
+    calibration, certificate, options = _analysis_inputs(args)
     analysis = analyze_scan(
-        path, calibration=calibration, options=_analysis_options(args), dpi=args.dpi, channel=args.channel,
+        path, calibration=calibration, options=options, dpi=args.dpi, channel=args.channel,
         flat_field_scan=args.flat_field, tablet_certificate=certificate,
     )
     if certificate is not None:
@@ -251,12 +249,13 @@ def analysis_from_args(args, path):
 
 
 def cmd_analyze(args) -> int:
-    analysis, _ = analysis_from_args(args, args.scan)
-    data = analysis.to_dict()
-    for strip, out in zip(analysis.strips, data["strips"]):
-        out["gradient_curve"] = _gradient_curve(strip)
-    data["caution"] = CAUTION
-    text = json.dumps(data, indent=1, ensure_ascii=False)
+    from stripscan.cli.batch import is_batch
+    from stripscan.services.scan_results import analysis_json
+
+    if is_batch(args.scan):
+        return _analyze_batch(args)
+    analysis, _ = analysis_from_args(args, args.scan[0])
+    text = json.dumps(analysis_json(analysis), indent=1, ensure_ascii=False)
     # Everything printed is made before the file is written: a failure leaves no file behind.
     shown = text if args.json else format_analysis(analysis)
     if args.output:
@@ -265,8 +264,50 @@ def cmd_analyze(args) -> int:
     return EXIT_OK
 
 
+def _analyze_batch(args) -> int:
+    """Several scans, or a folder: each scan's result into the -o folder, on every core."""
+    import functools
+
+    from stripscan.cli.batch import run_batch_command, start_workers
+    from stripscan.services.batch import collect_scans
+    from stripscan.services.scan_results import analyse_into_folder, check_result_names
+
+    if args.json:
+        raise CommandError("--json prints the result of one scan; with several, each result is written into "
+                           "the -o folder")
+    if not args.output:
+        raise CommandError("several scans, or a folder of them: give -o FOLDER, where each scan's result is "
+                           "written as NAME.results.json")
+    folder = Path(args.output)
+    if folder.exists() and not folder.is_dir():
+        raise CommandError(f"{folder}: is a file; with several scans -o names the folder for their results")
+    scans = collect_scans(args.scan)
+    check_result_names(scans, folder)
+    with start_workers(args, scans) as workers:
+        calibration, certificate, options = _analysis_inputs(args)
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise CommandError(f"{folder}: cannot make the folder ({exc.strerror or exc})") from None
+        work = functools.partial(analyse_into_folder, folder=folder, calibration=calibration, options=options,
+                                 dpi=args.dpi, channel=args.channel, flat_field_scan=args.flat_field,
+                                 tablet_certificate=certificate)
+        summary = run_batch_command(args, scans, work, workers=workers, done_word="analysed")
+    if summary.done:
+        print(f"Results in {folder}, one NAME.results.json per scan")
+    warned = sum(bool(item.result.warnings) for item in summary.done)
+    if warned:
+        print(f"note: {warned} of the results hold warnings (each file's \"warnings\")")
+    if calibration is None and certificate is None and summary.done:
+        print("warning: UNCALIBRATED: read in direct mode, log10(I0/I) straight from the scanner (no --calibration)")
+    print(f"Caution: {CAUTION}")
+    return EXIT_ERROR if summary.failed or summary.cancelled else EXIT_OK
+
+
 def cmd_calibrate(args) -> int:
-    from stripscan.core.calibration import ACCURACY_GOAL, read_certificate, save_calibration
+    from stripscan.core.calibration import ACCURACY_GOAL
+    from stripscan.core.calibration_files import save_calibration
+    from stripscan.core.certificate import read_certificate
     from stripscan.core.pipeline import calibrate_tablet
 
     certificate = read_certificate(args.densities)
@@ -306,7 +347,7 @@ def cmd_calibrate(args) -> int:
     return EXIT_OK
 
 
-def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
+def add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--calibration", metavar="CAL.json", help="calibration from 'stripscan calibrate' (none: uncalibrated direct mode)")
     p.add_argument("--tablet-certificate", metavar="CERT.csv",
                    help="a reference tablet lies on this scan beside the strips: calibrate the scan with it "
@@ -328,7 +369,7 @@ def _add_analysis_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--clear-area", metavar="X0,Y0,X1,Y1", help="direct mode: a clear area (px) whose signal is I0")
 
 
-def _add_scan_arguments(p: argparse.ArgumentParser) -> None:
+def add_scan_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--dpi", type=float, help="resolution, overriding the file's tags")
     p.add_argument("--channel", default="auto", choices=("auto", "mean", "red", "green", "blue", "luminance"),
                    help="how colour channels become one signal (default: mean of R, G, B)")
@@ -344,7 +385,17 @@ _REGISTRARS: list[str] = [
 ]
 
 
-def build_parser() -> argparse.ArgumentParser:
+#: Commands defined in this module: running one needs no other group's parser.
+_OWN_COMMANDS = ("analyze", "calibrate", "demo")
+
+
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The command line's parser; for one of :data:`_OWN_COMMANDS`, only this module's commands.
+
+    Registering the other groups imports their modules (the archive's records
+    and storage among them, some 40 ms at start-up); running ``analyze``,
+    ``calibrate`` or ``demo`` does not need them.
+    """
     parser = argparse.ArgumentParser(
         prog="stripscan",
         description="Read processed sensitometric film strips off a flatbed scanner.",
@@ -353,12 +404,17 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"stripscan {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
 
-    p = sub.add_parser("analyze", help="read every strip on a scan: densities, curve figures")
-    p.add_argument("scan", help="scan of processed strips (TIFF, PNG or JPEG)")
-    _add_analysis_arguments(p)
-    _add_scan_arguments(p)
-    p.add_argument("--json", action="store_true", help="print the full result as JSON")
-    p.add_argument("-o", "--output", metavar="OUT.json", help="also save the JSON result here")
+    p = sub.add_parser("analyze", help="read every strip on a scan (or on several): densities, curve figures")
+    p.add_argument("scan", nargs="+", metavar="SCAN",
+                   help="scan of processed strips (TIFF, PNG or JPEG); several scans, or a folder of them, are read "
+                        "on every core, each result written into the -o folder")
+    add_analysis_arguments(p)
+    add_scan_arguments(p)
+    p.add_argument("--json", action="store_true", help="print the full result as JSON (one scan)")
+    p.add_argument("-o", "--output", metavar="OUT.json|FOLDER",
+                   help="also save the JSON result here; with several scans, the folder that gets each scan's "
+                        "NAME.results.json (made when missing)")
+    add_batch_arguments(p)
     p.set_defaults(func=cmd_analyze)
 
     p = sub.add_parser("calibrate", help="fit the scanner's signal-to-density map from a step tablet scan")
@@ -370,12 +426,14 @@ def build_parser() -> argparse.ArgumentParser:
                    help="fit the across-carriage response OD = c0 + c x^2 from a uniform scan (open platen or uniform film)")
     p.add_argument("--lateral-axis", choices=("col", "row"), default="col",
                    help="image axis that runs across the carriage (default: columns)")
-    _add_scan_arguments(p)
+    add_scan_arguments(p)
     p.set_defaults(func=cmd_calibrate)
 
     p = sub.add_parser("demo", help="open the desktop window on the bundled invented scenario")
     p.add_argument("--folder", help="where to put the demo's archive and files (default: a temporary folder)")
     p.set_defaults(func=cmd_demo)
+    if command in _OWN_COMMANDS:
+        return parser
 
     import importlib
 
@@ -445,7 +503,7 @@ def cmd_gui() -> int:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``stripscan`` command."""
     argv = list(sys.argv[1:] if argv is None else argv)
-    parser = build_parser()
+    parser = build_parser(argv[0] if argv else None)
     if not argv:
         try:
             return cmd_gui()

@@ -6,6 +6,8 @@
     stripscan qc add --processor P --date YYYY-MM-DD --base-fog X --mid-density Y --density-difference Z
     stripscan qc add ... --repeat          (a second strip of the latest day; it then counts for the day)
     stripscan qc add ... --late            (a missed earlier day, stored marked as entered late)
+    stripscan qc add --processor P --calibration CAL.json SCAN SCAN ... | FOLDER
+                                           (several days' scans, each day from its file's name)
     stripscan qc correct ENTRY [--base-fog X] [--mid-density Y] [--density-difference Z] [--date D]
                          [--note T] [--action T] --reason TEXT
     stripscan qc status [--processor P] [--json] [--on YYYY-MM-DD]
@@ -29,6 +31,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import re
 from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -36,9 +39,10 @@ from typing import TYPE_CHECKING, Any
 from stripscan import CAUTION
 from stripscan.archive import default_archive_path
 # The archive commands' own error reporting and opening rules, shared so both groups answer alike.
-from stripscan.cli.archive import _fail, _guarded, _open
+from stripscan.cli.batch import add_batch_arguments
+from stripscan.cli.common import fail, guarded, open_from_args
 from stripscan.core.qc.names import EVENT_KINDS, LABELS, QUANTITIES, VERDICT_WORDS
-from stripscan.archive import DuplicateDayError, OutOfOrderError
+from stripscan.archive import ArchiveError, DuplicateDayError, OutOfOrderError
 
 if TYPE_CHECKING:
     from stripscan.services.qc_log import LoggedEntry
@@ -63,45 +67,66 @@ def _day(text: str | None, what: str = "--date") -> Any:
 
 
 def _cmd_add(args: argparse.Namespace) -> int:
-    """Add a day's QC entry, read off a scan or typed in from a densitometer."""
-    from stripscan.core.qc.rules import QCValues
-    from stripscan.services.qc_log import add_day, status_text, uncalibrated_refusal
+    """Add a day's QC entry, read off a scan or typed in from a densitometer (or several days' scans)."""
+    from stripscan.cli.batch import is_batch
+    from stripscan.core.qc.records import QCValues
+    from stripscan.services.qc_recording import uncalibrated_refusal
+    from stripscan.services.qc_status import status_text
 
+    if is_batch(args.scan):
+        return _add_days(args)
+    args.scan = args.scan[0] if args.scan else None
     _processor(args)
     day = _day(args.date)
     typed = [args.base_fog, args.mid_density, args.density_difference]
     if args.scan is not None and any(v is not None for v in typed):
-        return _fail("give either SCAN or the three typed values (--base-fog, --mid-density, "
+        return fail("give either SCAN or the three typed values (--base-fog, --mid-density, "
                      "--density-difference), not both")
     if args.scan is None and None in typed:
         missing = [f"--{q.replace('_', '-')}" for q, v in zip(QUANTITIES, typed) if v is None]
-        return _fail(f"give a SCAN, or all three typed values (missing: {', '.join(missing)})")
+        return fail(f"give a SCAN, or all three typed values (missing: {', '.join(missing)})")
     if args.scan is None and (args.calibration or args.strip is not None or args.lot):
-        return _fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
+        return fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
     if args.scan is not None and args.calibration is None:
         # The log refuses an uncalibrated read anyway (qc_log.read_strip); say so before the scan is analysed.
-        return _fail(uncalibrated_refusal(Path(args.scan).name))
+        return fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
         cal = load_calibration(args.calibration)
         calibration = cal.to_dict()
         analysis = analyze_scan(args.scan, calibration=cal)
     values = None if analysis is not None else QCValues(*typed)
-    with _open(args, create=args.new_processor) as archive:
-        try:
-            added = add_day(archive, args.processor, day, values=values, analysis=analysis, strip=args.strip,
-                            calibration=calibration, lot=args.lot, note=args.note or "", action=args.action or "",
-                            new_processor=args.new_processor, repeat=args.repeat, late=args.late)
-        except DuplicateDayError as exc:
-            raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
-        except OutOfOrderError as exc:
-            if args.repeat:
-                raise OutOfOrderError(f"{exc}; nothing was stored") from None
-            # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
-            raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
+    with open_from_args(args, create=args.new_processor) as archive:
+        added = _store_day(args, archive, day, values=values, analysis=analysis, calibration=calibration)
+    _print_stored(args, added)
+    print(status_text(added.plog, added.plog.status(day)))
+    if added.status.verdict == "action" and not added.status.baseline_in_progress:
+        print(f"  To keep a repeat strip of {day.isoformat()} beside this one: stripscan qc add --repeat ...")
+    return 0
+
+
+def _store_day(args: argparse.Namespace, archive: Any, day: Any, **reading: Any) -> Any:
+    """``add_day`` with the command's options; its refusals say which option would allow the entry."""
+    from stripscan.services.qc_recording import add_day
+
+    try:
+        return add_day(archive, args.processor, day, strip=args.strip, lot=args.lot, note=args.note or "",
+                       action=args.action or "", new_processor=args.new_processor, repeat=args.repeat,
+                       late=args.late, **reading)
+    except DuplicateDayError as exc:
+        raise DuplicateDayError(f"{exc} (give --repeat); nothing was stored") from None
+    except OutOfOrderError as exc:
+        if args.repeat:
+            raise OutOfOrderError(f"{exc}; nothing was stored") from None
+        # A year typed wrong must not slip in as a late day: entering a day late is asked for by name.
+        raise OutOfOrderError(f"{exc}: give --late for that; nothing was stored") from None
+
+
+def _print_stored(args: argparse.Namespace, added: Any, source: str = "") -> None:
+    """The notes of a stored entry and its line: entry number, day, steps, values (``source``: the file)."""
     for note in added.notes:
         print(f"note: {note}")
     e = added.entry
@@ -112,20 +137,84 @@ def _cmd_add(args: argparse.Namespace) -> int:
     kind = f", repeat of entry {e.repeat_of}" if e.repeat_of is not None else ""
     kind += ", entered late" if e.entered_late else ""
     print(f"stored entry {e.id}: {args.processor!r} {e.date} ({e.source}{where}{kind}): "
-          + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES))
-    print(status_text(added.plog, added.plog.status(day)))
-    if added.status.verdict == "action" and not added.status.baseline_in_progress:
-        print(f"  To keep a repeat strip of {day.isoformat()} beside this one: stripscan qc add --repeat ...")
-    return 0
+          + ", ".join(f"{LABELS[q]} {getattr(e, q):.3f}" for q in QUANTITIES) + (f" ({source})" if source else ""))
+
+
+#: A day written in a file's name, as the demo's daily scans carry it (``daily_processor-1_2026-11-02.tif``).
+_DAY_IN_NAME = re.compile(r"(?<!\d)(\d{4}-\d{2}-\d{2})(?!\d)")
+
+
+def _day_in_name(path: Path) -> Any:
+    days = set(_DAY_IN_NAME.findall(path.name))
+    if len(days) != 1:
+        found = "no date" if not days else f"{len(days)} dates ({', '.join(sorted(days))})"
+        raise ValueError(f"{path}: {found} in its name; with several scans each file's name gives the day its strip "
+                         "was processed, written YYYY-MM-DD (or add the scan alone with --date)")
+    return _day(days.pop(), f"{path}: the date in its name,")
+
+
+def _add_days(args: argparse.Namespace) -> int:
+    """Several days' scans (or a folder of them): read on every core, stored day after day.
+
+    Each file's name gives its day (YYYY-MM-DD in it); the entries are
+    stored in date order, one transaction each.  A scan that cannot be read
+    or stored is reported and skipped; the days after it are still stored.
+    """
+    import functools
+
+    from stripscan.cli.batch import run_batch_command, start_workers
+    from stripscan.services.batch import collect_scans
+    from stripscan.services.qc_recording import uncalibrated_refusal
+    from stripscan.services.qc_status import status_text
+
+    _processor(args)
+    if any(v is not None for v in (args.base_fog, args.mid_density, args.density_difference)):
+        return fail("typed values are one day's: give them without a SCAN")
+    one_day = [name for name, given in (("--date", args.date), ("--note", args.note), ("--action", args.action),
+                                        ("--repeat", args.repeat)) if given]
+    if one_day:
+        return fail(f"{', '.join(one_day)} {'belongs' if len(one_day) == 1 else 'belong'} to one day: with several scans each file's name gives its "
+                     "day; add that day's scan alone (a note or an action can also be added later with "
+                     "'stripscan qc correct')")
+    scans = collect_scans(args.scan)
+    if args.calibration is None:
+        return fail(uncalibrated_refusal(", ".join(p.name for p in scans[:3]) + (", ..." if len(scans) > 3 else "")))
+    days = {path: _day_in_name(path) for path in scans}
+    scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
+    stored: list[Any] = []
+    with start_workers(args, scans) as workers, open_from_args(args, create=args.new_processor) as archive:
+        from stripscan.core.calibration_files import load_calibration
+        from stripscan.core.pipeline import analyze_scan
+
+        calibration = load_calibration(args.calibration)
+
+        def store(item: Any) -> None:
+            added = _store_day(args, archive, days[item.path], analysis=item.result,
+                               calibration=calibration.to_dict())
+            stored.append(added)
+            _print_stored(args, added, item.path.name)
+            # Each day's verdict as it was stored: a day that called for action stays in view.
+            st = added.status
+            print("  that day: " + (f"baseline, {st.baseline_days} of {st.baseline_needed} strips"
+                                    if st.baseline_in_progress else VERDICT_WORDS[st.verdict])
+                  + (f" (trend rules fired: {', '.join(st.rules_fired)})" if st.rules_fired else ""))
+
+        summary = run_batch_command(args, scans, functools.partial(analyze_scan, calibration=calibration),
+                                    workers=workers, done_word="stored", ordered=True, on_result=store,
+                                    expected=(ArchiveError,))
+    if stored:
+        print(status_text(stored[-1].plog, stored[-1].plog.status(days[summary.done[-1].path])))
+    return 1 if summary.failed or summary.cancelled else 0
 
 
 def _cmd_correct(args: argparse.Namespace) -> int:
     """Correct a wrongly entered QC entry: store the right values with a reason, keeping the wrong ones."""
-    from stripscan.services.qc_log import correct_entry, status_text
+    from stripscan.services.qc_recording import correct_entry
+    from stripscan.services.qc_status import status_text
 
     if not args.reason or not args.reason.strip():
         raise ValueError("--reason is needed: say why the entry was wrong (it is kept with the correction)")
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         old = archive.get_qc_entry(args.entry)
         added = correct_entry(archive, args.entry, reason=args.reason, base_fog=args.base_fog,
                               mid_density=args.mid_density, density_difference=args.density_difference,
@@ -145,17 +234,18 @@ def _cmd_correct(args: argparse.Namespace) -> int:
 
 def _cmd_status(args: argparse.Namespace) -> int:
     """Today's status of one processor, or of every processor in the archive."""
-    from stripscan.services.qc_log import load_processor_log, status_json, status_text
+    from stripscan.services.qc_log import load_processor_log
+    from stripscan.services.qc_status import status_json, status_text
 
     on = _day(args.on, "--on") if args.on is not None else None
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         names = [args.processor] if args.processor is not None else [p.name for p in archive.list_processors()]
         logs = [load_processor_log(archive, name) for name in names]
     if args.processor is None:
         # Processors without any QC (only lot readings) have nothing to report.
         logs = [p for p in logs if p.log.entries or p.log.events]
     if not logs:
-        return _fail(f"{archive.path} holds no processor with a QC log")
+        return fail(f"{archive.path} holds no processor with a QC log")
     if args.json:
         data = [status_json(p, p.status(on)) for p in logs]
         print(json.dumps(data[0] if args.processor is not None else data, ensure_ascii=False, indent=1))
@@ -165,7 +255,7 @@ def _cmd_status(args: argparse.Namespace) -> int:
 
 
 def _entry_row(item: LoggedEntry) -> list[str]:
-    from stripscan.services.qc_log import signed
+    from stripscan.services.qc_status import signed
 
     e, v = item.entry, item.verdict
     remark = "; ".join(t for t in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if t)
@@ -189,7 +279,7 @@ def _cmd_list(args: argparse.Namespace) -> int:
     from stripscan.services.qc_log import load_processor_log
 
     _processor(args)
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         plog = load_processor_log(archive, args.processor)
     header = ["entry", "date", "source", *(LABELS[q] for q in QUANTITIES), *(f"dev {LABELS[q]}" for q in QUANTITIES),
               "verdict", "used", "note"]
@@ -221,7 +311,7 @@ def _cmd_chart(args: argparse.Namespace) -> int:
     if args.output is None:
         raise ValueError("-o FILE.png is needed: where to write the chart")
 
-    with _open(args, create=False) as archive:
+    with open_from_args(args, create=False) as archive:
         plog = load_processor_log(archive, args.processor)
     data = chart_data(plog, month=args.month)
     written = render_chart_png(data, args.output, size=(args.width, args.height))
@@ -232,13 +322,13 @@ def _cmd_chart(args: argparse.Namespace) -> int:
 
 def _cmd_event(args: argparse.Namespace) -> int:
     """Record an event that restarts the baseline (new chemistry, service, crossover...)."""
-    from stripscan.services.qc_log import add_event
+    from stripscan.services.qc_recording import add_event
 
     _processor(args)
     day = _day(args.date)
     if args.kind is None:
         raise ValueError(f"--kind is needed, one of: {', '.join(EVENT_KINDS)}")
-    with _open(args, create=args.new_processor) as archive:
+    with open_from_args(args, create=args.new_processor) as archive:
         plog = add_event(archive, args.processor, day, args.kind, args.note or "", new_processor=args.new_processor)
         crossover_records = [c for c in archive.list_crossovers(args.processor) if c.date == day.isoformat()]
     event = [e for e in plog.log.events if e.date == day][-1]
@@ -256,7 +346,8 @@ def _cmd_event(args: argparse.Namespace) -> int:
 
 def _cmd_limits(args: argparse.Namespace) -> int:
     """Show or change a processor's control limits, warning tier and baseline length."""
-    from stripscan.services.qc_log import load_setup, set_limits
+    from stripscan.services.qc_log import load_setup
+    from stripscan.services.qc_recording import set_limits
 
     _processor(args)
     changes: dict[str, Any] = {}
@@ -266,12 +357,12 @@ def _cmd_limits(args: argparse.Namespace) -> int:
         if value is not None:
             changes[key] = value
     if args.no_warning and args.warning is not None:
-        return _fail("give --warning or --no-warning, not both")
+        return fail("give --warning or --no-warning, not both")
     if args.warning is not None:
         changes["md_dd_warning"] = args.warning
     if args.no_warning:
         changes["md_dd_warning"] = None
-    with _open(args, create=bool(changes) and args.new_processor) as archive:
+    with open_from_args(args, create=bool(changes) and args.new_processor) as archive:
         if changes or args.new_processor:
             setup = set_limits(archive, args.processor, new_processor=args.new_processor, reason=args.reason or "",
                                **changes)
@@ -306,9 +397,9 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     """Fill an archive with the invented demo month of Processor 1's QC."""
     from stripscan.sim.demo_data import demo_files
     from stripscan.services.qc_demo import build_demo_qc
-    from stripscan.services.qc_log import status_text
+    from stripscan.services.qc_status import status_text
 
-    with _open(args, create=True) as archive:
+    with open_from_args(args, create=True) as archive:
         summary = build_demo_qc(archive, demo_files())
     print(f"built the demo QC month in {archive.path}: {summary.describe()}")
     print(status_text(summary.plog))
@@ -331,8 +422,9 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
         The ``qc`` parser; every leaf sets ``func`` (parsed arguments -> exit status).
     """
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--archive", metavar="PATH", type=Path, default=None,
-                        help=f"archive file (default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
+    common.add_argument("--archive", metavar="LOCATION", default=None,
+                        help=f"archive: a file, or a PostgreSQL server as postgresql://USER@HOST/DB "
+                             f"(default: $STRIPSCAN_ARCHIVE or {default_archive_path()})")
     parser = subparsers.add_parser("qc", help="daily processor QC: log, status, chart",
                                    description="Keep each processor's daily QC strips and judge them against "
                                                "operating levels and control limits.",
@@ -341,7 +433,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
 
     def command(name: str, handler: _Handler, help_text: str, *, processor: str = "required") -> Any:
         sub = commands.add_parser(name, parents=[common], help=help_text, description=handler.__doc__)
-        sub.set_defaults(func=_guarded(handler))
+        sub.set_defaults(func=guarded(handler))
         if processor != "none":
             # Checked by the handlers, so that a missing name is answered in one line like every other error.
             sub.add_argument("--processor", metavar="P", help="processor name, as stored in the archive"
@@ -351,8 +443,11 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
                              help="add the processor to the archive if it is not there yet")
         return sub
 
-    add = command("add", _cmd_add, "add a day's QC entry from a scan or typed values")
-    add.add_argument("scan", metavar="SCAN", nargs="?", help="scan of the day's processed QC strip")
+    add = command("add", _cmd_add, "add a day's QC entry from a scan or typed values (or several days' scans)")
+    add.add_argument("scan", metavar="SCAN", nargs="*",
+                     help="scan of the day's processed QC strip; several days' scans, or a folder of them, are read "
+                          "on every core and stored in date order, each day taken from its file's name "
+                          "(YYYY-MM-DD in it)")
     add.add_argument("--date", metavar="YYYY-MM-DD", help="day the strip was processed")
     add.add_argument("--calibration", metavar="CAL.json", help="scanner calibration (from 'stripscan calibrate'); needed with a "
                      "SCAN: an uncalibrated read is not stored")
@@ -369,6 +464,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     add.add_argument("--late", action="store_true",
                      help="a missed day before the latest one, entered now: stored marked as entered late with "
                           "the time it was entered; levels, limits and trend rules take the days in date order")
+    add_batch_arguments(add)
 
     correct = command("correct", _cmd_correct, "correct a wrongly entered QC entry, with a reason",
                       processor="none")

@@ -111,7 +111,7 @@ def parse_source(text: str) -> Source:
 
 def _guarded(handler: _Handler) -> _Handler:
     # The archive's commands print failures the same way: one line, exit 1.
-    from stripscan.cli.archive import _guarded as archive_guarded
+    from stripscan.cli.common import guarded as archive_guarded
 
     return archive_guarded(handler)
 
@@ -218,8 +218,9 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
 def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
     """Compare the sets named on the command line as ``stripscan compare`` does; with the calibrations used."""
-    from stripscan.cli.compare import SetLoader, _tolerances, parse_set
-    from stripscan.core.compare.statistics import compare_sets
+    from stripscan.cli.compare import tolerances_from_args as _tolerances
+    from stripscan.services.comparison_sets import SetLoader, parse_set
+    from stripscan.core.compare.comparison import compare_sets
 
     if len(args.compare) < 2:
         raise ReportError(f"--compare needs at least two sets, got {len(args.compare)}")
@@ -232,7 +233,7 @@ def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
 
 def _calibration_uses(args: argparse.Namespace, specs: list[Any]) -> list[Any]:
     """Which calibration gave each set's densities: the scans' file, or the archived snapshots' own."""
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
     from stripscan.render.comparison import CalibrationUse
 
     groups: dict[str, tuple[list[str], dict[str, Any] | None, str | None]] = {}
@@ -381,10 +382,10 @@ def _export_plot(args: argparse.Namespace, source: Source) -> Path:
 
 def register(subparsers: Any) -> None:
     """Add ``report`` and ``export`` to the main parser's sub-commands."""
-    from stripscan.cli.main import _add_analysis_arguments, _add_scan_arguments
+    from stripscan.cli.main import add_analysis_arguments as _add_analysis_arguments, add_scan_arguments as _add_scan_arguments
 
     def common(p: argparse.ArgumentParser) -> None:
-        p.add_argument("--archive", metavar="PATH", type=Path, help="archive for snapshot: sources "
+        p.add_argument("--archive", metavar="LOCATION", help="archive for snapshot: sources "
                        "(default: $STRIPSCAN_ARCHIVE or the user's data folder)")
         _add_analysis_arguments(p)
         _add_scan_arguments(p)

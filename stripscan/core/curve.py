@@ -27,12 +27,11 @@ import math
 from typing import Sequence
 
 import numpy as np
-from scipy.interpolate import CubicHermiteSpline, CubicSpline
-from scipy.optimize import brentq
 
 from stripscan.core.calibration import ACCURACY_GOAL
 from stripscan.core.figure_settings import FigureSettings
-from stripscan.core.qc.rules import choose_qc_steps, closest_step
+from stripscan.core.numerics import HermiteCubic, spline_slopes
+from stripscan.core.qc.levels import choose_qc_steps, closest_step
 from stripscan.core.records import CurveFigures, StripResult
 
 __all__ = [
@@ -82,12 +81,12 @@ def relative_speed_percent(delta_log_exposure: float) -> float:
     return 100.0 * (10.0 ** (-delta_log_exposure) - 1.0)
 
 
-def shape_preserving_cubic(x: np.ndarray, y: np.ndarray) -> CubicHermiteSpline:
+def shape_preserving_cubic(x: np.ndarray, y: np.ndarray) -> HermiteCubic:
     """Monotone-limited cubic Hermite curve through (x, y), x increasing."""
     if x.size < 3:
         slopes = np.full(x.size, (y[-1] - y[0]) / (x[-1] - x[0]))
-        return CubicHermiteSpline(x, y, slopes)
-    slopes = CubicSpline(x, y).derivative()(x)
+        return HermiteCubic(x, y, slopes)
+    slopes = spline_slopes(x, y)
     secant = np.diff(y) / np.diff(x)
     for k, delta in enumerate(secant):
         if delta == 0.0:
@@ -101,7 +100,7 @@ def shape_preserving_cubic(x: np.ndarray, y: np.ndarray) -> CubicHermiteSpline:
         if a * a + b * b > 9.0:
             tau = 3.0 / math.hypot(a, b)
             slopes[k], slopes[k + 1] = tau * a * delta, tau * b * delta
-    return CubicHermiteSpline(x, y, slopes)
+    return HermiteCubic(x, y, slopes)
 
 
 class CharacteristicCurve:
@@ -128,14 +127,13 @@ class CharacteristicCurve:
         if np.any(np.diff(self.log_exposure) <= 0):
             raise ValueError("log exposures must be distinct")
         self._interp = shape_preserving_cubic(self.log_exposure, self.density)
-        self._deriv = self._interp.derivative()
 
     def __call__(self, log_e: np.ndarray | float) -> np.ndarray:
         return self._interp(log_e)
 
     def gradient(self, log_e: np.ndarray | float) -> np.ndarray:
         """dD/dlog E of the interpolated curve."""
-        return self._deriv(log_e)
+        return self._interp.slope(log_e)
 
     def gradient_curve(self, samples: int = 400) -> tuple[np.ndarray, np.ndarray]:
         """The gradient curve on a regular grid over the steps' span."""
@@ -151,10 +149,10 @@ class CharacteristicCurve:
         k = int(above[0])
         if k == 0:
             return float(self.log_exposure[0]) if y[0] == 0 else None
-        a, b = self.log_exposure[k - 1], self.log_exposure[k]
         if y[k] == 0:
-            return float(b)
-        return float(brentq(lambda t: float(self._interp(t)) - density, a, b, xtol=1e-10))
+            return float(self.log_exposure[k])
+        # Each piece of the monotone-limited curve is monotone, and it rises through ``density`` here.
+        return self._interp.crossing(density, k - 1)
 
     def max_gradient(self, samples: int = 4000) -> tuple[float, float]:
         """Greatest slope and the log E where it occurs."""

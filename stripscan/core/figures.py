@@ -1,11 +1,13 @@
-"""The curve figures as tables show them: name, value, unit and a one-line definition.
+"""The one figure table: each curve figure's name, unit, decimals and one-line definition.
 
-One table serves the window's figure table, the PDF reports and the CSV
-exports, so a figure has the same name, order, precision and definition
-everywhere.  Only the style of the units differs: the window shows short
-ones (``OD``, ``log E``), reports and CSV headers the long ones the
-archive writes in its CSV headers (``log10 rel. exposure``,
-``OD per log10 exposure``).
+Every place that shows a figure takes these from here: the window's figure
+table, the command line's tables, the strip and comparison reports, the
+lot comparison (its table, CSV and JSON labels) and the archive's CSV
+headers, so a figure has the same name, unit and precision everywhere.
+Only the style of the units differs: the window and the comparison table
+show short ones (``OD``, ``log E``), the strip reports and CSV headers the
+long ones (``log10 rel. exposure``, ``OD per log10 exposure``).  Stored and
+exported numbers keep all their digits; only printed ones are rounded.
 
 Definitions follow ISO 9236-1 (speed point at net density 1.00, average
 gradient between net densities 0.25 and 2.00, both adjustable) and common
@@ -27,6 +29,7 @@ from stripscan.core.records import CurveFigures, StepDensity, StripResult
 
 __all__ = [
     "FigureRow", "figure_rows", "format_value", "step_flag", "STEP_FLAG_WORDS", "UnitStyle",
+    "figure_name", "figure_unit", "figure_digits",
     "NOISE_ONLY_NOTE", "read_in_direct_mode", "uncertainty_title",
     "FIGURE_KEYS", "FIGURE_COLUMNS", "NOT_REACHED", "NOT_READ", "ABOVE_RANGE", "NO_VALUE",
 ]
@@ -96,13 +99,14 @@ _Define = Callable[[Mapping[str, Any], "CurveFigures | None"], str]
 @dataclass(frozen=True)
 class _Figure:
     key: str
-    label: str  # {low}/{high}: the net density levels
+    name: str  # as in running text ("base+fog", "Dmax"); {low}/{high}: the net density levels
     quantity: str  # key of _UNITS
     digits: int
     define: _Define
     signed: bool = False
     printed: bool = True  # in the reports' figure table; else detail that only the window lists
     optional: bool = False  # computed only when asked for (air kerma per step, a reference speed point)
+    qualifier: str = ""  # what a table without a definition column adds to the name; {speed}: its net level
 
 
 def _net(name: str) -> Callable[[Mapping[str, Any]], str]:
@@ -112,39 +116,47 @@ def _net(name: str) -> Callable[[Mapping[str, Any]], str]:
 _LOW, _HIGH, _SPEED = _net("gradient_low"), _net("gradient_high"), _net("speed_net_density")
 
 # Display order.  Detail rows sit beside the figure they belong to; the CSV
-# puts them after the printed figures (see FIGURE_COLUMNS).  Decimals follow
-# the terminal tables of ``stripscan analyze``.  A printed definition fits
-# one line of the report's definition column (two at most), so the page
-# keeps its room for the curve and the warnings.
+# puts them after the printed figures (see FIGURE_COLUMNS).  Decimals are
+# those the strip report has always printed, which users know: mid-density
+# and density difference to 0.01 OD as a densitometer reads them (common
+# practice), base+fog and Dmax to 0.001 OD (base+fog is judged on rises of a
+# few hundredths), gradients and gamma to 0.01, the speed point to 0.001
+# log E (0.01 log E is 2 % in speed) and spans to 0.01 log E.  Processor QC
+# prints its three quantities to 0.001 OD on purpose: its verdicts turn on
+# limits such as ±0.15, and a deviation of 0.152 must not read as 0.15.
+# A printed definition fits one line of the report's definition column (two
+# at most), so the page keeps its room for the curve and the warnings.
 _FIGURES: tuple[_Figure, ...] = (
-    _Figure("base_fog", "Base+fog", "density", 3,
+    _Figure("base_fog", "base+fog", "density", 3,
             lambda s, f: "Density of processed but unexposed film beside the steps: base plus fog."),
     _Figure("dmax", "Dmax", "density", 3,
             lambda s, f: "Highest step density read within the calibrated range"
                          + ("; this strip is denser than that range." if f is not None and _above_range(f) else ".")),
-    _Figure("speed_log_exposure", "Speed point", "log_exposure", 3,
-            lambda s, f: f"Log E where the density reaches base+fog + {_SPEED(s)} (ISO 9236-1)."),
-    _Figure("average_gradient", "Average gradient", "slope", 2,
+    _Figure("speed_log_exposure", "speed point", "log_exposure", 3,
+            lambda s, f: f"Log E where the density reaches base+fog + {_SPEED(s)} (ISO 9236-1).",
+            qualifier="(net {speed})"),
+    _Figure("average_gradient", "average gradient", "slope", 2,
             lambda s, f: f"Slope of the line joining net densities {_LOW(s)} and {_HIGH(s)}{_iso_levels(s)}."),
-    _Figure("gradient_low_log_exposure", "Log E at net {low}", "log_exposure", 3,
+    _Figure("gradient_low_log_exposure", "log E at net {low}", "log_exposure", 3,
             lambda s, f: f"Log E where the curve reaches net density {_LOW(s)}, "
                          "the lower end of the average gradient.", printed=False),
-    _Figure("gradient_high_log_exposure", "Log E at net {high}", "log_exposure", 3,
+    _Figure("gradient_high_log_exposure", "log E at net {high}", "log_exposure", 3,
             lambda s, f: f"Log E where the curve reaches net density {_HIGH(s)}, "
                          "the upper end of the average gradient.", printed=False),
-    _Figure("gamma", "Gamma", "slope", 2,
+    _Figure("gamma", "gamma", "slope", 2,
             lambda s, f: "Greatest slope dD/d(log E) of the curve"
                          + (f", reached at log E {f.gamma_log_exposure:.2f}."
-                            if f is not None and f.gamma_log_exposure is not None else ".")),
-    _Figure("gamma_log_exposure", "Log E of maximum slope", "log_exposure", 2,
+                            if f is not None and f.gamma_log_exposure is not None else "."),
+            qualifier="(maximum slope)"),
+    _Figure("gamma_log_exposure", "log E of maximum slope", "log_exposure", 2,
             lambda s, f: "Log E where the curve is steepest (gamma).", printed=False),
-    _Figure("latitude_log_exposure", "Latitude", "log_exposure", 2,
+    _Figure("latitude_log_exposure", "latitude", "log_exposure", 2,
             lambda s, f: f"Log E span between net densities {_LOW(s)} and {_HIGH(s)}."),
-    _Figure("mid_density", "Mid-density", "density", 2,
+    _Figure("mid_density", "mid-density", "density", 2,
             lambda s, f: f"Density of the step closest to {_target(s, 'mid_density_target'):.2f} OD"
                          + _in_brackets(_steps(f, "mid_density"))
                          + ", followed daily in QC."),
-    _Figure("density_difference", "Density difference", "density", 2,
+    _Figure("density_difference", "density difference", "density", 2,
             lambda s, f: f"Step closest to {_target(s, 'dd_high_target'):.2f} OD minus step closest to "
                          f"{_target(s, 'dd_low_target'):.2f} OD"
                          + _in_brackets(_steps(f, "density_difference"))
@@ -152,9 +164,9 @@ _FIGURES: tuple[_Figure, ...] = (
     _Figure("iso_speed", "ISO speed", "number", 0,
             lambda s, f: f"S = 1 mGy / K_S, K_S the air kerma giving net density {_SPEED(s)} (ISO 9236-1).",
             optional=True),
-    _Figure("relative_speed_percent", "Relative speed", "percent", 1,
+    _Figure("relative_speed_percent", "relative speed", "percent", 1,
             lambda s, f: "Speed against the reference film's speed point, in per cent; + is faster.",
-            signed=True, optional=True),
+            signed=True, optional=True, qualifier="(+ = faster)"),
 )
 _BY_KEY = {figure.key: figure for figure in _FIGURES}
 
@@ -162,6 +174,48 @@ _BY_KEY = {figure.key: figure for figure in _FIGURES}
 def _unit(figure: _Figure, units: UnitStyle) -> str:
     short, long = _UNITS[figure.quantity]
     return short if units == "short" else long
+
+
+def figure_name(key: str, *, qualified: bool = False, settings: Mapping[str, Any] | None = None) -> str:
+    """The figure's name as running text writes it (``base+fog``, ``speed point``).
+
+    Parameters
+    ----------
+    key : str
+        A key of :data:`FIGURE_KEYS`.
+    qualified : bool
+        Add what a table without a definition column needs to know
+        (``speed point (net 1.00)``, ``gamma (maximum slope)``,
+        ``relative speed (+ = faster)``), as the lot comparison shows them.
+    settings : mapping, optional
+        The net density levels named (default: ISO 9236-1's).
+
+    Raises
+    ------
+    KeyError
+        For a key that is no figure.
+    """
+    figure, targets = _BY_KEY[key], settings or {}
+    name = figure.name.format(low=_LOW(targets), high=_HIGH(targets))
+    if qualified and figure.qualifier:
+        name += " " + figure.qualifier.format(speed=_SPEED(targets))
+    return name
+
+
+def _label(key: str, settings: Mapping[str, Any]) -> str:
+    """The name as the first column of a figure table shows it: capitalised ("Base+fog", "Dmax")."""
+    name = figure_name(key, settings=settings)
+    return name[:1].upper() + name[1:]
+
+
+def figure_unit(key: str, units: UnitStyle = "long") -> str:
+    """The figure's unit in the style asked for (see :data:`UnitStyle`); empty for plain numbers."""
+    return _unit(_BY_KEY[key], units)
+
+
+def figure_digits(key: str) -> int:
+    """Decimals a printed value of the figure shows (stored and exported values keep them all)."""
+    return _BY_KEY[key].digits
 
 
 #: Every figure, in display order.
@@ -265,9 +319,8 @@ def figure_rows(figures: CurveFigures | None, *, units: UnitStyle = "long",
             f.optional and (figures is None or getattr(figures, f.key) is None))]
     else:
         chosen = [_BY_KEY[key] for key in keys]
-    low, high = _LOW(targets), _HIGH(targets)
     return [
-        FigureRow(f.key, f.label.format(low=low, high=high), getattr(figures, f.key) if figures is not None else None,
+        FigureRow(f.key, _label(f.key, targets), getattr(figures, f.key) if figures is not None else None,
                   _text(f, figures), _unit(f, units), f.define(targets, figures), _steps(figures, f.key))
         for f in chosen
     ]

@@ -24,8 +24,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import ndimage
 
+from stripscan.core.numerics import bilinear, gaussian_smooth_1d, label, median, percentile
 from stripscan.core.records import StripGeometry
 
 __all__ = [
@@ -110,7 +110,7 @@ def _platen_level(working: np.ndarray) -> float:
     """Signal of the open platen: the bright end of the histogram."""
     # A strided subset is plenty for a percentile of a smooth histogram.
     step = max(1, int(np.sqrt(working.size / 100_000)))
-    level = float(np.percentile(working[::step, ::step], 99.0))
+    level = percentile(working[::step, ::step], 99.0)
     return level if level > 0 else 1.0
 
 
@@ -284,7 +284,7 @@ def _piece_geometry(
     uu, vv = np.meshgrid(u_grid, v_grid)
     grid_rows = centre[0] + uu * e1[0] + vv * e2[0]
     grid_cols = centre[1] + uu * e1[1] + vv * e2[1]
-    rect = ndimage.map_coordinates(dens, [grid_rows, grid_cols], order=1, mode="nearest")
+    rect = bilinear(dens, grid_rows, grid_cols)
 
     # Along-strip extent of the film piece in the rectified frame.
     u_lo, u_hi = u_min - u_grid[0], u_max - u_grid[0]
@@ -306,7 +306,7 @@ def _piece_geometry(
     band_mid = 0.5 * (band[0] + band[1])
     half = 0.5 * (band[1] - band[0])
     inner = slice(int(round(band_mid - 0.6 * half)), int(round(band_mid + 0.6 * half)) + 1)
-    profile = np.median(rect[inner, :], axis=0)
+    profile = median(rect[inner, :], axis=0)
 
     # Dense end: density grows towards it.
     span = slice(int(u_lo), int(u_hi) + 1)
@@ -320,8 +320,8 @@ def _piece_geometry(
     # film (or the piece was trimmed there); exposed film right at the
     # piece's end, together with the scan's edge, means the end is cut off.
     tip = profile[max(int(u_hi) - 2, 0) : int(u_hi) + 1]
-    dense_tip = float(np.median(tip)) - float(np.percentile(profile[span], 5)) > 0.3
-    smooth = ndimage.gaussian_filter1d(profile.astype(np.float64), 1.0)
+    dense_tip = median(tip) - percentile(profile[span], 5.0) > 0.3
+    smooth = gaussian_smooth_1d(profile, 1.0)
     grad = np.gradient(smooth)
     end_index = int(np.argmin(grad))
     end = _parabolic_peak(-grad, end_index)
@@ -334,7 +334,7 @@ def _piece_geometry(
     # An edge counts when it stands out of the profile's noise and is at
     # least a density step of about 0.01 (what a densitometer resolves; a
     # Gaussian-smoothed edge of height h peaks near 0.4 h per pixel).
-    noise = max(1.4826 * np.median(np.abs(grad - np.median(grad))), 0.001)
+    noise = max(1.4826 * median(np.abs(grad - median(grad))), 0.001)
     room = (end - u_lo) / pitch
     # Visible steps: up to the lightest clear step edge.  Flat runs (the
     # shoulder near Dmax, the toe at base+fog) show no edges, so do not stop
@@ -463,18 +463,18 @@ def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: Loc
     # holes in film are film: background areas that do not reach the scan's
     # border are filled.
     film = _open_3x3(film)
-    background, n_background = ndimage.label(~film)
+    background, n_background, _ = label(~film)
     if n_background:
         # A lookup by label is much cheaper than np.isin over the image.
         enclosed = np.ones(n_background + 1, dtype=bool)
         enclosed[np.concatenate((background[0], background[-1], background[:, 0], background[:, -1]))] = False
         film |= enclosed[background]
-    labels, count = ndimage.label(film)
+    labels, count, boxes = label(film)
     if count == 0:
         raise LocateError("no film found on the scan: nothing is denser than the open platen")
     found: list[tuple[tuple[float, float], FoundStrip]] = []
     min_area = (10.0 / pixel_mm) * (4.0 / pixel_mm)
-    for label_id, box in enumerate(ndimage.find_objects(labels), start=1):
+    for label_id, box in enumerate(boxes, start=1):
         # The bounding box's longer side is the piece's largest extent along an axis.
         spans = (box[0].stop - box[0].start - 1, box[1].stop - box[1].start - 1)
         if max(spans) * pixel_mm < 20.0 or (spans[0] + 1) * (spans[1] + 1) < min_area:

@@ -17,19 +17,19 @@ import numpy as np
 
 from stripscan import __version__
 from stripscan.core.calibration import (
-    MAX_STEPS,
     ACCURACY_GOAL,
     Calibration,
-    CalibrationError,
-    Certificate,
     DirectMode,
     LateralCorrection,
     fit_calibration,
     flat_field,
 )
+from stripscan.core.certificate import MAX_STEPS, CalibrationError, Certificate
 from stripscan.core.checks import reading_notes
-from stripscan.core.curve import DEFAULT_INCREMENT, FigureSettings, compute_figures, step_log_exposures
+from stripscan.core.curve import DEFAULT_INCREMENT, compute_figures, step_log_exposures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import FoundStrip, LocateOptions, locate_in_scan, with_step_count
+from stripscan.core.numerics import percentile
 from stripscan.core.records import Analysis, StepDensity, StepReading, StripGeometry, StripResult
 from stripscan.core.sample import read_area, read_strip
 from stripscan.core.scan import Scan, load_scan
@@ -217,10 +217,10 @@ def direct_mode_for(
             raise AnalysisError(f"{info.path}: the clear area {clear_area} holds too few pixels of the scan")
         i0 = float(area.mean())
     else:
-        i0 = float(np.percentile(sample, 99.0))
+        i0 = percentile(sample, 99.0)
     if i0 <= dark:
         raise AnalysisError(f"{info.path}: no open platen or clear area is bright enough to serve as I0")
-    darkest = sample[sample <= np.percentile(sample, 0.5)]
+    darkest = sample[sample <= percentile(sample, 0.5)]
     floor_sd = float(darkest.std()) if darkest.size > 1 else 0.0
     return DirectMode(i0=i0, dark=dark, floor_sd=floor_sd)
 

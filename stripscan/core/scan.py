@@ -12,6 +12,7 @@ import dataclasses
 import hashlib
 import logging
 import os
+import sys
 import threading
 from pathlib import Path
 
@@ -138,7 +139,7 @@ class Scan:
         k = np.clip(np.searchsorted(lut, s), 1, len(lut) - 1)
         return lut[k] - lut[k - 1]
 
-    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def read_masked(self, top_left: tuple[int, int], mask: np.ndarray, stride: int = 1) -> tuple[np.ndarray, np.ndarray]:
         """Signal (float32) and saturation flags of the pixels selected by a window mask.
 
         Parameters
@@ -147,15 +148,53 @@ class Scan:
             Image (row, col) of ``mask[0, 0]``.
         mask : ndarray of bool, shape (window_rows, window_cols)
             Lies inside the image.
+        stride : int
+            ``mask[i, j]`` stands for image pixel ``top_left + stride * (i, j)``.
 
         Returns
         -------
         signal, saturated : ndarray, shape (count,)
             In row-major order of the selected pixels.
         """
-        r0, c0 = top_left
-        pixels = self.raw[r0 : r0 + mask.shape[0], c0 : c0 + mask.shape[1]][mask]
+        pixels = self._window(top_left, mask, stride)[mask]
         return self.decode(pixels), self._flags(pixels)
+
+    def read_histogram(self, top_left: tuple[int, int], mask: np.ndarray,
+                       stride: int = 1) -> tuple[np.ndarray, np.ndarray, int] | None:
+        """The selected pixels as a histogram of their signal, for single-channel integer scans.
+
+        Parameters
+        ----------
+        top_left, mask, stride
+            As :meth:`read_masked`.
+
+        Returns
+        -------
+        levels : ndarray of float64, shape (k,)
+            Linear signal of each stored code that occurs, increasing (the
+            decoding table is increasing).
+        counts : ndarray of int64, shape (k,)
+            How many selected pixels hold each.
+        saturated : int
+            Selected pixels at the top or bottom code.
+
+        None for colour or floating-point scans, whose signal is not one code per pixel.
+        """
+        if self._lut is None or self._weights is not None:
+            return None
+        pixels = self._window(top_left, mask, stride)[mask]
+        if pixels.size == 0:
+            return np.zeros(0), np.zeros(0, dtype=np.int64), 0
+        low, high = int(pixels.min()), int(pixels.max())
+        # Counting from the lowest code keeps the table as short as the codes' span.
+        counts = np.bincount(np.subtract(pixels, low, dtype=np.intp), minlength=high - low + 1)
+        codes = np.flatnonzero(counts)
+        saturated = (int(counts[0]) if low == 0 else 0) + (int(counts[-1]) if high == self._top else 0)
+        return self._lut[codes + low].astype(np.float64), counts[codes].astype(np.int64), saturated
+
+    def _window(self, top_left: tuple[int, int], mask: np.ndarray, stride: int) -> np.ndarray:
+        r0, c0 = top_left
+        return self.raw[r0 : r0 + stride * mask.shape[0] : stride, c0 : c0 + stride * mask.shape[1] : stride]
 
     def _flags(self, pixels: np.ndarray) -> np.ndarray:
         """True where any used channel of stored pixels sits at the top or bottom code."""
@@ -182,6 +221,15 @@ class Scan:
         rows, cols = (self.shape[0] // factor) * factor, (self.shape[1] // factor) * factor
         half = factor // 2
         taps = (half - 1, half) if factor % 2 == 0 else (half - 1, half, half + 1)
+        if self._linear_full is not None and self._weights is None:
+            # Linear grey codes: added straight into one float32 sum, scaled once
+            # (the same values to float32 rounding, without a temporary per tap).
+            total = np.zeros((rows // factor, cols // factor), dtype=np.float32)
+            for dr in taps:
+                for dc in taps:
+                    np.add(total, self.raw[dr:rows:factor, dc:cols:factor], out=total, casting="unsafe")
+            total *= np.float32(1.0) / (self._linear_full * np.float32(len(taps) ** 2))
+            return total
         total = None
         for dr in taps:
             for dc in taps:
@@ -191,17 +239,38 @@ class Scan:
 
     @property
     def signal(self) -> np.ndarray:
-        """The whole image as linear signal, float32 (rows, cols); decoded once."""
+        """The whole image as linear signal, float32 (rows, cols); decoded once, in slabs of rows.
+
+        A colour page is decoded slab by slab into the one-channel output: a
+        1200-dpi A4 RGB page never exists as float channels (1.7 GB).
+        """
         if self._signal is None:
-            self._signal = np.ascontiguousarray(self.decode(self.raw), dtype=np.float32)
+            out = np.empty(self.shape, dtype=np.float32)
+            for rows in _slabs(self.raw):
+                out[rows] = self.decode(self.raw[rows])
+            self._signal = out
         return self._signal
 
     @property
     def saturated(self) -> np.ndarray:
         """Pixels at the top or bottom code of any channel used, bool (rows, cols)."""
         if self._saturated is None:
-            self._saturated = self._flags(self.raw)
+            out = np.empty(self.shape, dtype=bool)
+            for rows in _slabs(self.raw):
+                out[rows] = self._flags(self.raw[rows])
+            self._saturated = out
         return self._saturated
+
+
+#: Values (pixels x channels) decoded at once when a whole image is decoded.
+_SLAB_VALUES = 1 << 22
+
+
+def _slabs(image: np.ndarray) -> list[slice]:
+    """Slices of rows that each hold about :data:`_SLAB_VALUES` values of ``image``."""
+    per_row = max(1, int(np.prod(image.shape[1:])))
+    rows = max(1, _SLAB_VALUES // per_row)
+    return [slice(r, r + rows) for r in range(0, image.shape[0], rows)]
 
 
 def decode_srgb(encoded: np.ndarray) -> np.ndarray:
@@ -262,7 +331,11 @@ def reduce_channels(linear: np.ndarray, rule: str = "auto") -> tuple[np.ndarray,
     if weights is None:
         single = linear if linear.ndim == 2 else linear[..., 0]
         return single.astype(np.float32, copy=False), used
-    return (linear[..., :3].astype(np.float32, copy=False) @ weights).astype(np.float32, copy=False), used
+    # Slab by slab into the float32 output: no float copy of all the channels at once.
+    out = np.empty(linear.shape[:2], dtype=np.float32)
+    for rows in _slabs(linear):
+        out[rows] = np.einsum("...c,c->...", linear[rows, :, :3].astype(np.float32, copy=False), weights)
+    return out, used
 
 
 def _sha256(path: Path) -> str:
@@ -274,10 +347,15 @@ def _sha256(path: Path) -> str:
 
 
 class _BackgroundHash:
-    """sha256 of a file computed on a worker thread (hashlib releases the GIL)."""
+    """sha256 of a file computed on a worker thread (hashlib releases the GIL).
 
-    def __init__(self, path: Path):
+    From the file itself, or from ``content``, the file's bytes already read
+    (then the file is read once, for both its pixels and its hash).
+    """
+
+    def __init__(self, path: Path, content: np.ndarray | None = None):
         self._path = path
+        self._content = content
         self._digest: str | None = None
         self._error: OSError | None = None
         self._thread = threading.Thread(target=self._run, name="stripscan-sha256", daemon=True)
@@ -285,9 +363,14 @@ class _BackgroundHash:
 
     def _run(self) -> None:
         try:
-            self._digest = _sha256(self._path)
+            if self._content is not None:
+                self._digest = hashlib.sha256(self._content).hexdigest()
+            else:
+                self._digest = _sha256(self._path)
         except OSError as exc:
             self._error = exc
+        finally:
+            self._content = None  # the pixels may outlive the hash; the buffer is theirs now
 
     def result(self) -> str:
         self._thread.join()
@@ -424,7 +507,48 @@ def _apply_palette(path: Path, data: np.ndarray, colormap: np.ndarray | None) ->
     return table[data]
 
 
-def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray, float | None, bool]:
+def _read_whole(path: Path) -> np.ndarray:
+    """Every byte of a file, read into one uint8 buffer (the read releases the GIL)."""
+    size = path.stat().st_size
+    # Not a bytearray: that would first write zeros over the whole page.
+    content = np.empty(size, dtype=np.uint8)
+    view = memoryview(content)
+    done = 0
+    with open(path, "rb", buffering=0) as fh:
+        while done < size:
+            got = fh.readinto(view[done:])
+            if not got:
+                break
+            done += got
+        more = fh.read(1)
+    if done != size or more:
+        raise ScanError(f"{path}: the file changed while it was read; read it again when it is complete")
+    return content
+
+
+def _plain_pixels(path: Path, page, byteorder: str, start_hash) -> np.ndarray | None:
+    """An uncompressed page stored in one piece, read with its file in one pass; None for any other page.
+
+    The whole file is read once into memory; its hash is started on that
+    buffer and the pixels are a view into it, so the file is neither read
+    twice nor held twice.
+    """
+    dtype = np.dtype(page.dtype) if page.dtype is not None else None
+    if (dtype is None or dtype not in (np.uint8, np.uint16) or int(page.compression) != 1
+            or int(page.predictor or 1) != 1 or int(page.fillorder or 1) != 1 or not page.is_contiguous
+            or (int(page.samplesperpixel) > 1 and int(page.planarconfig) != 1)
+            or (dtype.itemsize > 1 and byteorder != "<") or sys.byteorder != "little"):
+        return None
+    offset, count = int(page.dataoffsets[0]), int(np.prod(page.shape))
+    content = _read_whole(path)
+    if offset < 0 or offset + count * dtype.itemsize > len(content):
+        return None  # a damaged file: tifffile's own reader names the problem
+    start_hash(content)
+    return np.frombuffer(content, dtype=dtype.newbyteorder("<"), count=count, offset=offset).reshape(page.shape)
+
+
+def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS,
+               start_hash=None) -> tuple[np.ndarray, float | None, bool]:
     """Pixels and resolution of a TIFF file's one image.
 
     Parameters
@@ -433,6 +557,11 @@ def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray,
         The TIFF file.
     limit : int
         Largest image read, pixels; checked from the header before decoding.
+    start_hash : callable, optional
+        Called once, before the pixels are decoded, to start hashing the
+        file: with the file's bytes when they were read whole (an
+        uncompressed page, whose pixels are then a view into them), else
+        with nothing.
 
     Returns
     -------
@@ -466,12 +595,15 @@ def _read_tiff(path: Path, limit: int = DEFAULT_MAX_PIXELS) -> tuple[np.ndarray,
             raise ScanError(f"{path}: the image is stored as {_COLOUR_MODELS[photometric]}; "
                             "scan in grey or RGB")
         dpi = _tiff_dpi(page)
-        # A bounded pass changes only how much is read at once: an
-        # uncompressed contiguous page is still read straight into the output
-        # in one call, and every compression, predictor and tiled, striped,
-        # chunky or planar layout still goes through tifffile's own segment
-        # decoder, so shape, dtype and error messages are asarray()'s.
-        data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
+        start_hash = start_hash or (lambda content=None: None)
+        data = _plain_pixels(path, page, tif.byteorder, start_hash)
+        if data is None:
+            start_hash()
+            # A bounded pass changes only how much is read at once: every
+            # compression, predictor and tiled, striped, chunky or planar
+            # layout still goes through tifffile's own segment decoder, so
+            # shape, dtype and error messages are asarray()'s.
+            data = page.asarray(buffersize=_TIFF_PASS_BYTES * max(1, page.maxworkers))
         planar_rgb = data.ndim == 3 and data.shape[0] in (3, 4) and data.shape[-1] not in (3, 4)
         colormap = page.colormap if photometric == _PALETTE else None
     if planar_rgb:
@@ -565,25 +697,36 @@ def load_scan(
     # Hash the file on a second thread while it is decoded: hashlib releases
     # the GIL, and for an uncompressed page the hash costs more than the read.
     # The hash is joined only when the scan's provenance is first asked for,
-    # so it also overlaps the analysis.
-    hasher = _BackgroundHash(path)
+    # so it also overlaps the analysis.  An uncompressed TIFF page is read
+    # with its file in one pass and hashed from that buffer.
+    hashing: list[_BackgroundHash] = []
+
+    def start_hash(content: np.ndarray | None = None) -> None:
+        if not hashing:
+            hashing.append(_BackgroundHash(path, content))
+
     try:
-        return _decode_file(path, hasher, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma, limit=limit)
+        scan = _decode_file(path, start_hash, dpi=dpi, channel=channel, decoding=decoding, gamma=gamma, limit=limit)
     except BaseException:
-        hasher.result_quietly()
+        for hasher in hashing:
+            hasher.result_quietly()
         raise
+    start_hash()  # a reader that failed to start it
+    scan._pending_hash = hashing[0]
+    return scan
 
 
 def _decode_file(
-    path: Path, hasher: "_BackgroundHash", *, dpi: float | None, channel: str, decoding: str, gamma: float | None,
+    path: Path, start_hash, *, dpi: float | None, channel: str, decoding: str, gamma: float | None,
     limit: int = DEFAULT_MAX_PIXELS,
 ) -> Scan:
     suffix = path.suffix.lower()
     messages = _TIFF_LOG.collect()
     try:
         if suffix in (".tif", ".tiff"):
-            data, file_dpi, _ = _read_tiff(path, limit)
+            data, file_dpi, _ = _read_tiff(path, limit, start_hash)
         else:
+            start_hash()
             data, file_dpi = _read_other(path, limit)
     except ScanError:
         raise
@@ -665,4 +808,4 @@ def _decode_file(
         channel=used,
         decoding=decoding_used,
     )
-    return Scan(data, info, lut, weights, pending_hash=hasher)
+    return Scan(data, info, lut, weights)

@@ -53,8 +53,8 @@ from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
 import numpy as np
-from scipy import ndimage
-from scipy.optimize import lsq_linear
+
+from stripscan.core.numerics import bilinear, fast_fft_length
 
 __all__ = [
     "BASIS_SIGMA_MM",
@@ -294,9 +294,7 @@ class _Blur:
         self.pad = int(math.ceil(3.0 * sig_cells.max())) + 1
         rows, cols = shape[0] + 2 * self.pad, shape[1] + 2 * self.pad
         # Sizes with small prime factors keep the FFT fast.
-        from scipy.fft import next_fast_len
-
-        self.full = (next_fast_len(rows, real=True), next_fast_len(cols, real=True))
+        self.full = (fast_fft_length(rows), fast_fft_length(cols))
         fr = np.fft.fftfreq(self.full[0])[:, None]
         fc = np.fft.rfftfreq(self.full[1])[None, :]
         # Transfer function of a sampled Gaussian (continuous approximation, exact to
@@ -382,8 +380,7 @@ class SpreadField:
         """
         rc = np.atleast_2d(np.asarray(rc, dtype=np.float64))
         coords = self.reduced.cells_of(rc)
-        values = [ndimage.map_coordinates(a, coords, order=1, mode="nearest")
-                  for a in (self.spread, self.unit, self.outside)]
+        values = [bilinear(a, *coords) for a in (self.spread, self.unit, self.outside)]
         x = rc[:, 1] * self.reduced.pixel_mm
         span = self.model.lamp_span_mm
         if span is not None:
@@ -454,6 +451,8 @@ def platen_observations(reduced: ReducedScan, to_light: Callable[[np.ndarray], n
     if exclude is not None:
         platen &= ~exclude
     # Keep cells whose neighbours are platen too: the optics blur film edges.
+    from scipy import ndimage  # fitting only: the analysis of a scan does without scipy (see numerics.py)
+
     platen = ndimage.binary_erosion(platen, structure=np.ones((3, 3), bool), border_value=1)
     if np.count_nonzero(platen) < 20:
         return None
@@ -511,6 +510,8 @@ def fit_stray_light(
     linear in the lamp's two coefficients and in the fractions f_k given the
     blurred images ``G_k * T`` (T from the previous pass).  Three passes.
     """
+    from scipy.optimize import lsq_linear  # fitting only: the analysis of a scan does without scipy
+
     groups = [a for a in areas if a.signal.size >= 3]
     if platen is not None and platen.signal.size >= 3:
         groups = groups + [platen]
@@ -530,7 +531,7 @@ def fit_stray_light(
             sd = np.abs(light_slope(g.signal)) * sem
             u = g.rc[:, 1] * reduced.pixel_mm / LAMP_SCALE_MM
             coords = reduced.cells_of(g.rc)
-            spreads = [ndimage.map_coordinates(b, coords, order=1, mode="nearest") for b in basis]
+            spreads = [bilinear(b, *coords) for b in basis]
             level = float(np.mean(light))
             cols = [level * (u - u.mean()), level * (u * u - np.mean(u * u))]
             cols += [s - s.mean() for s in spreads]

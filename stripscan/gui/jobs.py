@@ -18,7 +18,8 @@ from pathlib import Path
 from typing import Any
 
 from stripscan.archive import Archive
-from stripscan.core.compare.statistics import Comparison, StripSet, compare_sets
+from stripscan.core.compare.comparison import Comparison, compare_sets
+from stripscan.core.compare.sets import StripSet
 from stripscan.core.records import Analysis, StripResult
 
 __all__ = [

@@ -27,8 +27,10 @@ from PySide6.QtWidgets import (
 )
 
 from stripscan import CAUTION, __version__
-from stripscan.core.calibration import load_calibration
+from stripscan._shared.atomic import write_text
+from stripscan.core.calibration_files import load_calibration
 from stripscan.render import qtguard
+from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
 from stripscan.gui.dialogs.calibration_dialog import CalibrationDialog
 from stripscan.gui.views.curve_view import CurveView
 from stripscan.gui.errors import log_file, report_error, show_message
@@ -149,7 +151,7 @@ class MainWindow(QMainWindow):
         self.strips_dock = dock
         # The strips belong to the scan; the other pages get the whole width.
         self.workspace.pages.currentChanged.connect(lambda _: dock.setVisible(self.workspace.current_page() == "scan"))
-        for runner in (self.runner, self.workspace.runner):
+        for runner in (self.runner, *self.workspace.runners):
             runner.busy_changed.connect(self._work_changed)
 
         self.progress = TaskProgress(self.runner, 260)
@@ -201,6 +203,9 @@ class MainWindow(QMainWindow):
         self.open_action = self._action(file, "&Open a scan…", self.ask_open, QKeySequence.StandardKey.Open,
                                         "Open a scan of processed strips (or drop the file on the window)")
         self.recent_menu = file.addMenu("Open &recent")
+        self._action(file, "Analyse se&veral scans…", self.ask_analyse_several, "Ctrl+Shift+O",
+                     "Read several scans in the background with this calibration and these settings, "
+                     "each result saved as NAME.results.json in a folder you choose")
         file.addSeparator()
         self._action(file, "&Save results (JSON)…", self.ask_save_results, QKeySequence.StandardKey.Save)
         self._action(file, "Save the step table (CSV)…", self.step_table._ask_save)
@@ -294,6 +299,8 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event: QCloseEvent) -> None:  # noqa: N802 (Qt's name)
         self.workspace.shut_down()  # the demo build stops at its next step
+        for batch in self.findChildren(BatchDialog):
+            batch.cancel()  # no further scan is started; those under way are finished and kept
         self.settings.set_window_state(self.saveGeometry(), self.saveState())
         self.settings.set_levels(*self.session.levels)
         self.settings.sync()
@@ -326,6 +333,18 @@ class MainWindow(QMainWindow):
             self.close()
 
     # -- opening files ---------------------------------------------------------------------
+    def ask_analyse_several(self, scans: list[str] | None = None) -> BatchDialog | None:
+        """Pick scans (unless given: dropped) and a folder for their results; analyse them in the background."""
+        if not scans:
+            scans, _ = QFileDialog.getOpenFileNames(self, "Scans to analyse", self.settings.last_folder(),
+                                                    _SCAN_FILTER)
+        if not scans:
+            return None
+        folder = QFileDialog.getExistingDirectory(self, "Folder for the results", str(Path(scans[0]).parent))
+        if not folder:
+            return None
+        return start_batch(self.runner, scans, folder, self.session.calibration, self.session.options, parent=self)
+
     def ask_open(self) -> None:
         path, _ = QFileDialog.getOpenFileName(self, "Open a scan of strips", self.settings.last_folder(), _SCAN_FILTER)
         if path:
@@ -375,7 +394,14 @@ class MainWindow(QMainWindow):
             return
         event.acceptProposedAction()
         # A calibration dropped together with a scan is used for it.
-        for path in sorted(files, key=lambda p: not p.lower().endswith(".json")):
+        files = sorted(files, key=lambda p: not p.lower().endswith(".json"))
+        scans = [p for p in files if not p.lower().endswith(".json")]
+        if len(scans) > 1:  # several scans: analysed together, each result into a folder
+            for path in files[:len(files) - len(scans)]:
+                self.open_path(path)
+            self.ask_analyse_several(scans)
+            return
+        for path in files:
             self.open_path(path)
 
     def find_strips_again(self) -> None:
@@ -480,12 +506,9 @@ class MainWindow(QMainWindow):
             return None
         path = Path(path)
         data = {**analysis.to_dict(), "caution": CAUTION}
-        tmp = path.with_name(path.name + ".partial")
         try:
-            tmp.write_text(json.dumps(data, indent=1) + "\n", encoding="utf-8")
-            os.replace(tmp, path)
+            write_text(path, json.dumps(data, indent=1) + "\n")
         except OSError as exc:
-            tmp.unlink(missing_ok=True)
             report_error(self, "The results were not saved", OSError(f"{path}: {exc.strerror or exc}"))
             return None
         self.statusBar().showMessage(f"Results saved to {path}", 8000)

@@ -2,11 +2,15 @@
 
 The main window's centre is a row of pages (tabs): the scan with its curve,
 the lot archive (with its trends), the lot comparison and the processor QC.
-Each panel is the standalone widget of its module, shown as it is; this
-module only points them at one archive file, runs their long work in a
-worker thread (:class:`~stripscan.gui.tasks.TaskRunner`, progress in the
-status bar) and offers the actions that join them: storing the open scan's
-strips, comparing lots, and writing files of what a page shows.
+Each panel is the standalone widget of its module, shown as it is, with its
+own Qt-free model (:mod:`stripscan.gui.models`) and its own worker thread
+for the archive; this module only points them at one archive file, runs
+the long work that joins them in a worker thread too
+(:class:`~stripscan.gui.tasks.TaskRunner`, progress in the status bar) and
+offers the actions that join them: storing the open scan's strips,
+comparing lots, and writing files of what a page shows.  Nothing here
+touches the archive on the UI thread: a slow or locked archive (a shared
+one on a server, say) never freezes the window.
 
 Every number on the pages comes from the archive API, the core and
 :mod:`stripscan.render`; nothing is recomputed here.
@@ -14,7 +18,6 @@ Every number on the pages comes from the archive API, the core and
 
 from __future__ import annotations
 
-import html
 import logging
 import os
 import threading
@@ -43,8 +46,9 @@ from PySide6.QtWidgets import (
 
 from stripscan.archive import Archive, default_archive_path
 from stripscan.gui import jobs
+from stripscan.gui.models.compare_page import ComparePage, read_compared_lots
 from stripscan.gui.panels.archive_panel import ArchivePanel
-from stripscan.gui.panels.compare_panel import ComparePanel, plain_names
+from stripscan.gui.panels.compare_panel import ComparePanel
 from stripscan.gui.errors import report_error, show_message
 from stripscan.gui.exports import Exports
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
@@ -73,6 +77,14 @@ _OPERATOR_KEY = "archive/operator"
 _ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
 _NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
                  "strip: values read on a densitometer, or a strip of the scan open on the first page.")
+
+
+def check_archive(path: Path, *, create: bool, progress: Any = None) -> Path:
+    """Open (or make) the archive at ``path`` once, so that a bad file is named before any page shows it."""
+    Archive.open(path, read_only=not create, create=create).close()
+    return path
+
+
 _NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or in the Compare menu) to set two "
                   "emulsion lots of the archive side by side, or compare a lot with the strips on the open scan.")
 
@@ -118,7 +130,9 @@ class Workspace(QObject):
     archive_panel, compare_panel, qc_panel
         The panels, as their modules make them.
     runner : TaskRunner
-        The workspace's long work (demo build, comparisons, files).
+        The workspace's long work (demo build, comparisons, files, checking an archive file).
+    runners : tuple of TaskRunner
+        It and the panels' own (their reading and storing).
     progress : TaskProgress
         Shows that work, for the status bar.
     exports : Exports
@@ -136,7 +150,6 @@ class Workspace(QObject):
         self.window, self.session, self.settings = window, session, settings
         self.runner = TaskRunner(self)
         self.archive_path: Path | None = None
-        self.comparison: jobs.ComparisonResult | None = None
         self.building = False
         self.dialog: QDialog | None = None
         # The open scan's strips as last stored, the archive and the snapshot ids (see stored_snapshots).
@@ -155,6 +168,7 @@ class Workspace(QObject):
         session.events.connect_each(lambda *_: self.qc_panel.update_scan_strips(), "scan_loaded", "strips_changed",
                                     "results_changed", "calibration_changed")
         self.qc_panel.sigProcessorCreated.connect(self._processor_created)
+        self.runners = (self.runner, self.archive_panel.runner, self.qc_panel.runner)
         session.events.connect_each(self.update_scan_actions, "scan_loaded", "strips_changed", "results_changed",
                                     "calibration_changed")
         qc_page = QWidget()
@@ -386,32 +400,34 @@ class Workspace(QObject):
         self.archive_path = Path(path) if path is not None else None
         self.archive_panel.set_archive(self.archive_path)
         self._point_qc()
-        self.comparison = None
         self.compare_panel.set_comparisons(())
         self.compare_panel.title.setText(_NO_COMPARISON)
         if persist:
             set_archive_setting(self.settings, self.archive_path)
         self.archive_changed.emit(str(self.archive_path or ""))
 
+    @property
+    def comparison(self) -> jobs.ComparisonResult | None:
+        """The comparison the comparison page shows (None: none yet)."""
+        return self.compare_panel.model.result
+
     def _point_qc(self) -> None:
         path = self.archive_path
         if path is not None and path.is_file():
+            self.qc_panel.empty_words = _NO_PROCESSOR.format(where=f"{path.name} has no processor yet.")
             if self.qc_panel.archive_path == path:
                 self.qc_panel.refresh()
             else:
                 self.qc_panel.set_archive(path)
-            if self.qc_panel.processor_box.count() == 0:
-                self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=f"{path.name} has no "
-                                                                                          "processor yet.")))
             return
         # QcPanel opens the file for writing; a missing file must not be made just by looking
         # (a new processor makes it, on purpose).
         self.qc_panel.archive_path = None
         self.qc_panel.new_archive_path = path
-        self.qc_panel.refresh()
         where = f"No archive yet at {path}; it is made with the first processor or lot." if path is not None \
             else "No archive chosen."
-        self.qc_panel.status_label.setText(html.escape(_NO_PROCESSOR.format(where=where)))
+        self.qc_panel.empty_words = _NO_PROCESSOR.format(where=where)
+        self.qc_panel.refresh()
 
     def _scan_for_qc(self) -> tuple[Any, dict[str, Any] | None] | None:
         analysis = self.session.analysis()
@@ -442,18 +458,22 @@ class Workspace(QObject):
             self.open_archive(path)
 
     def open_archive(self, path: str | os.PathLike[str]) -> bool:
-        """Show the archive at ``path`` (checked first) and remember it; False with a message when unusable."""
+        """Show the archive at ``path`` (checked first, in a worker thread) and remember it.
+
+        An unusable file is said in a message and changes nothing.
+        """
         return self._use_archive(Path(path), create=False)
 
     def _use_archive(self, path: Path, *, create: bool) -> bool:
-        try:
-            # Opened once here so a bad file is named now, not by each panel in turn.
-            Archive.open(path, read_only=not create, create=create).close()
-        except Exception as exc:  # shown, never fatal
-            report_error(self.window, f"The archive could not be {'made' if create else 'opened'}", exc)
-            return False
-        self.set_archive(path)
-        self.status(f"{'New lot' if create else 'Lot'} archive: {path}")
+        # Opened once first (worker thread) so a bad file is named now, not by each panel in turn.
+        def usable(_path: Path) -> None:
+            self.set_archive(path)
+            self.status(f"{'New lot' if create else 'Lot'} archive: {path}")
+
+        self.status(f"{'Making' if create else 'Opening'} {path}…", 0)
+        self.runner.start(check_archive, path, create=create, key="open-archive", on_done=usable,
+                          on_error=lambda exc: report_error(
+                              self.window, f"The archive could not be {'made' if create else 'opened'}", exc))
         return True
 
     def ask_new_archive(self) -> None:
@@ -464,7 +484,7 @@ class Workspace(QObject):
             self.new_archive(path)
 
     def new_archive(self, path: str | os.PathLike[str]) -> bool:
-        """Make an empty archive at ``path`` and show it; an existing file is opened, never emptied."""
+        """Make an empty archive at ``path`` (worker thread) and show it; an existing file is opened, never emptied."""
         path = Path(path)
         if not path.suffix:
             path = path.with_suffix(".sqlite3")
@@ -519,33 +539,43 @@ class Workspace(QObject):
         return ids if same else []
 
     # -- comparing lots -------------------------------------------------------------------------------
-    def _lots(self) -> list[str]:
-        with Archive.open(self.archive_path, read_only=True) as archive:  # type: ignore[arg-type]
-            return [s.lot.lot_id for s in archive.list_lots() if s.snapshot_count > 0]
+    def _with_lots(self, then: Callable[[list[str]], None]) -> None:
+        """Read the archive's lots with stored strips (worker thread), then call ``then(lots)``."""
+        self.runner.start(read_compared_lots, self.archive_path, key="lots", on_done=then,
+                          on_error=lambda exc: report_error(self.window, "The archive's lots could not be read", exc))
 
-    def ask_compare_lots(self) -> LotChoiceDialog | None:
+    def _refused(self, lots: list[str], *, with_scan: bool) -> bool:
+        refusal = ComparePage.refusal(lots, with_scan=with_scan)
+        if refusal is not None:
+            self.tell(*refusal)
+        return refusal is not None
+
+    def ask_compare_lots(self) -> None:
+        """Offer the archive's lots to compare (read in a worker thread; the form is :attr:`dialog` then)."""
         if not self._archive_ready():
-            return None
-        lots = self._lots()
-        if len(lots) < 2:
-            self.tell("Two lots are needed", f"The archive holds snapshots of {len(lots)} lot(s); a comparison "
-                                              "needs two lots with stored strips.")
-            return None
-        return self._open_choice(LotChoiceDialog(lots, parent=self.window), lambda lots: self.compare_lots(*lots))
+            return
 
-    def ask_compare_with_scan(self) -> LotChoiceDialog | None:
+        def choose(lots: list[str]) -> None:
+            if not self._refused(lots, with_scan=False):
+                self._open_choice(LotChoiceDialog(lots, parent=self.window), lambda two: self.compare_lots(*two))
+
+        self._with_lots(choose)
+
+    def ask_compare_with_scan(self) -> None:
+        """Offer the archive's lots to compare with the open scan's strips (the form is :attr:`dialog` then)."""
         analysis = self.session.analysis()
         if analysis is None or not analysis.strips:
             self.tell("No strips to compare", "Open a scan with strips first.")
-            return None
+            return
         if not self._archive_ready():
-            return None
-        lots = self._lots()
-        if not lots:
-            self.tell("No lot to compare with", "The archive holds no snapshot of any lot yet.")
-            return None
-        dialog = LotChoiceDialog(lots, scan_name=jobs.scan_set(analysis).name, parent=self.window)
-        return self._open_choice(dialog, lambda lots: self.compare_with_scan(lots[0]))
+            return
+
+        def choose(lots: list[str]) -> None:
+            if not self._refused(lots, with_scan=True):
+                dialog = LotChoiceDialog(lots, scan_name=jobs.scan_set(analysis).name, parent=self.window)
+                self._open_choice(dialog, lambda chosen: self.compare_with_scan(chosen[0]))
+
+        self._with_lots(choose)
 
     def _open_choice(self, dialog: LotChoiceDialog, then: Callable[[list[str]], None]) -> LotChoiceDialog:
         dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
@@ -576,13 +606,10 @@ class Workspace(QObject):
                           on_error=lambda exc: report_error(self.window, "The sets could not be compared", exc))
 
     def _compared(self, result: jobs.ComparisonResult, show: bool) -> None:
-        self.comparison = result
-        self.compare_panel.set_comparisons(result.comparisons)
+        self.compare_panel.set_comparisons(result.comparisons, result)
         if show:
             self.show_page("comparison")
-        first = result.comparisons[0]
-        self.status(plain_names(f"Compared {first.b.name} with {first.a.name}"
-                                + (f"; {'; '.join(result.notes)}" if result.notes else "")), 12000)
+        self.status(self.compare_panel.model.done_words(), 12000)
         self.comparison_shown.emit()
 
     # -- the demo ---------------------------------------------------------------------------------------------
@@ -615,11 +642,14 @@ class Workspace(QObject):
         self.set_archive(path)
         self.status(f"Demo archive ready: {path}", 12000)
         # A new user finds every page filled: the latest snapshot open, the two lots compared.
-        self.archive_panel.open_selected()
-        lots = self._lots()
-        if len(lots) >= 2:
-            self.compare_lots(*lots[:2], show=False)  # the person stays on the page they are reading
-        self.demo_ready.emit(str(path))
+        self.archive_panel.open_latest()
+
+        def compare(lots: list[str]) -> None:
+            if len(lots) >= 2:
+                self.compare_lots(*lots[:2], show=False)  # the person stays on the page they are reading
+            self.demo_ready.emit(str(path))
+
+        self._with_lots(compare)
 
     def _demo_failed(self, error: BaseException) -> None:
         self._demo_done()
@@ -631,7 +661,8 @@ class Workspace(QObject):
     # -- busy state -------------------------------------------------------------------------------------------
     @property
     def busy(self) -> bool:
-        return self.runner.busy
+        """Whether any work of the pages is under way (the archive read or written, a file, the demo)."""
+        return any(runner.busy for runner in self.runners)
 
     def shut_down(self) -> None:
         """Ask running work to stop (the window is closing)."""

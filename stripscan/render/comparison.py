@@ -1,7 +1,7 @@
 """The lot comparison report: mean curves, their differences and the table of figures.
 
 One A4 page per pair (set B against the first set A), drawn from the
-core's :class:`~stripscan.core.compare.statistics.Comparison`: the overlay of the two
+core's :class:`~stripscan.core.compare.comparison.Comparison`: the overlay of the two
 mean characteristic curves with ±1 sd bands; the density difference
 ΔD(log E) = D(B) − D(A) and the shift Δlog E(net density) = log E(B) − log E(A)
 beside each other; the table of figures (mean ± sd (n) of each set, B − A,
@@ -18,7 +18,9 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Sequence
 
-from stripscan.core.compare.statistics import FIGURE_INFO, Comparison, SetSummary
+from stripscan.core.compare.comparison import Comparison
+from stripscan.core.compare.sets import SetSummary
+from stripscan.core.figures import figure_name
 from stripscan.render.canvas import Canvas, Column, draw_frame, write_pdf
 from stripscan.render.plot import COLOURS, Band, Line, Plot, Points, RefLine
 from stripscan.render.provenance import calibration_brief
@@ -162,7 +164,7 @@ def _draw_page(page: ComparisonPage, canvas: Canvas) -> None:
     used = {row.figure: row.tolerance for row in comp.rows if row.tolerance is not None}
     if used:
         notes.append("Tolerances (set local values): " + "; ".join(
-            f"{FIGURE_INFO[f][0]} {t.text()} ({t.source})" for f, t in used.items() if f != "relative_speed_percent")
+            f"{figure_name(f, qualified=True)} {t.text()} ({t.source})" for f, t in used.items() if f != "relative_speed_percent")
             + ".")
     notes += [*comp.notes, *page.notes]
     size = 6.5
@@ -184,7 +186,7 @@ def comparison_report_pdf(comparisons: Sequence[Comparison], path: str | os.Path
     Parameters
     ----------
     comparisons : sequence of Comparison
-        From :func:`stripscan.core.compare.statistics.compare_sets`.
+        From :func:`stripscan.core.compare.comparison.compare_sets`.
     path : path-like
     calibrations : sequence of CalibrationUse
         Which calibration gave which set's densities (their provenance is printed).

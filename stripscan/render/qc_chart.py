@@ -30,9 +30,10 @@ from pathlib import Path
 from typing import Any
 
 from stripscan import CAUTION, __version__
+from stripscan._shared.atomic import replacing
 from stripscan.render.qt import ensure_app
 from stripscan.services.qc_chart import ChartData, ChartSeries, ChartPoint, chart_legend, describe_rule
-from stripscan.services.qc_log import VERDICT_WORDS
+from stripscan.core.qc.names import VERDICT_WORDS
 
 __all__ = [
     "MARKS", "BANDS", "SET_ASIDE", "CORRECTED_COLOUR", "WAITING_COLOUR", "SET_ASIDE_SHIFT", "LEVEL_LINE",
@@ -490,13 +491,9 @@ def render_chart_png(data: ChartData, path: str | os.PathLike[str], *, size: tup
     if not path.parent.is_dir():
         raise OSError(f"{path}: the folder {path.parent} does not exist")
     image = render_chart(data, size)
-    partial = path.with_name(path.name + ".partial")
-    try:
+    with replacing(path) as partial:
         if not image.save(str(partial), "PNG"):
             raise OSError(f"{path}: cannot write the PNG image")
-        os.replace(partial, path)
-    finally:
-        partial.unlink(missing_ok=True)
     return path
 
 

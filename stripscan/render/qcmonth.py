@@ -348,7 +348,7 @@ def _frame(month: QCMonth, canvas: Canvas, part: str) -> tuple[float, float]:
 
 def _status_text(month: QCMonth) -> str:
     from stripscan import CAUTION
-    from stripscan.services.qc_log import VERDICT_WORDS
+    from stripscan.core.qc.names import VERDICT_WORDS
 
     status = month.data.status
     head = "BASELINE IN PROGRESS" if status.baseline_in_progress else VERDICT_WORDS[status.verdict]
@@ -411,7 +411,7 @@ def _number(value: float | None, deviation: float | None) -> list[str]:
 
 
 def _verdict_cell(item: "LoggedEntry") -> str:
-    from stripscan.services.qc_log import VERDICT_WORDS
+    from stripscan.core.qc.names import VERDICT_WORDS
 
     if item.set_aside == "corrected":
         return "corrected, not used"

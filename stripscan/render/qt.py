@@ -24,11 +24,12 @@ from __future__ import annotations
 
 import os
 import sys
-import tempfile
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
+
+from stripscan._shared import atomic
 
 __all__ = ["ReportError", "ensure_app", "replacing", "write_text_atomic"]
 
@@ -69,15 +70,11 @@ def _has_display() -> bool:
     return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
-def _plain_file_mode() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return 0o666 & ~mask
-
-
 @contextmanager
 def replacing(path: str | os.PathLike[str]) -> Iterator[Path]:
     """Yield a temporary path beside ``path``; rename it to ``path`` only if the block succeeds.
+
+    :func:`stripscan._shared.atomic.replacing`, with its complaints worded as report errors.
 
     Raises
     ------
@@ -90,23 +87,10 @@ def replacing(path: str | os.PathLike[str]) -> Iterator[Path]:
     if not target.parent.is_dir():
         raise ReportError(f"{target}: the folder {target.parent} does not exist")
     try:
-        handle, name = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".partial")
+        with atomic.replacing(target) as temp:
+            yield temp
     except OSError as exc:
         raise ReportError(f"{target}: cannot write ({exc.strerror or exc})") from None
-    os.close(handle)
-    temp = Path(name)
-    try:
-        yield temp
-        if not temp.exists() or temp.stat().st_size == 0:
-            raise ReportError(f"{target}: nothing was written")
-        # mkstemp makes private (0600) files; give the result a plain file's mode.
-        os.chmod(temp, _plain_file_mode())
-        os.replace(temp, target)
-    except BaseException as exc:
-        temp.unlink(missing_ok=True)
-        if isinstance(exc, OSError):
-            raise ReportError(f"{target}: cannot write ({exc.strerror or exc})") from None
-        raise
 
 
 def write_text_atomic(path: str | os.PathLike[str], text: str) -> Path:

@@ -25,7 +25,8 @@ import numpy as np
 from stripscan.core.curve import CharacteristicCurve
 from stripscan.core.records import Analysis, ScanInfo, StripResult, warnings_of_strip
 from stripscan.core.curve_marks import CURVE_MARKS as MARK
-from stripscan.core.figures import NOISE_ONLY_NOTE, figure_rows, format_value, read_in_direct_mode, step_flag
+from stripscan.core.figures import (NOISE_ONLY_NOTE, figure_digits, figure_rows, format_value, read_in_direct_mode,
+                                    step_flag)
 from stripscan.render.canvas import Canvas, Column, draw_frame, write_pdf
 from stripscan.render.plot import COLOURS, Line, Plot, Points, RefLine
 from stripscan.render.provenance import calibration_lines, is_uncalibrated, valid_range, when
@@ -136,8 +137,8 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
     items: list[Any] = []
     # Marks, colours and words as the window draws them (stripscan.core.curve_marks).
     if f.base_fog is not None:
-        items.append(RefLine(f.base_fog, label=f"base+fog {f.base_fog:.3f} OD", colour=MARK["base_fog"].colour,
-                             dash=MARK["base_fog"].dash))
+        items.append(RefLine(f.base_fog, label=f"base+fog {format_value(f.base_fog, figure_digits('base_fog'))} OD",
+                             colour=MARK["base_fog"].colour, dash=MARK["base_fog"].dash))
     if valid_od is not None:
         items.append(RefLine(valid_od[1], label=f"top of calibrated range {valid_od[1]:.2f} OD",
                              colour=COLOURS["red"], dash="dashdot"))
@@ -154,7 +155,8 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
         x1, x2 = f.gradient_low_log_exposure, f.gradient_high_log_exposure
         y1, y2 = reference + low_net, reference + high_net
         if f.average_gradient is not None:
-            items.append(Line((x1, x2), (y1, y2), label=f"{MARK['gradient'].words} {f.average_gradient:.2f}",
+            gradient = format_value(f.average_gradient, figure_digits("average_gradient"))
+            items.append(Line((x1, x2), (y1, y2), label=f"{MARK['gradient'].words} {gradient}",
                               colour=MARK["gradient"].colour, width_pt=1.1, dash=MARK["gradient"].dash))
         items.append(Points((x1, x2), (y1, y2),
                             label=f"{MARK['density_points'].words} (net {low_net:.2f} and {high_net:.2f})",
@@ -167,8 +169,8 @@ def curve_plot(strip: StripResult, *, valid_od: tuple[float, float] | None = Non
                             marker=MARK["speed"].shape, size_pt=5.5))
     if curve is not None and f.gamma is not None and f.gamma_log_exposure is not None:
         items.append(Points((f.gamma_log_exposure,), (float(curve(f.gamma_log_exposure)),),
-                            label=f"{MARK['max_slope'].words} {f.gamma:.2f}", colour=MARK["max_slope"].colour,
-                            marker=MARK["max_slope"].shape, size_pt=5.0))
+                            label=f"{MARK['max_slope'].words} {format_value(f.gamma, figure_digits('gamma'))}",
+                            colour=MARK["max_slope"].colour, marker=MARK["max_slope"].shape, size_pt=5.0))
     items.append(Points(tuple(s.log_exposure for s in used), tuple(s.od for s in used), label=MARK["step"].words,
                         colour=MARK["step"].colour, size_pt=3.6))
     if unused:

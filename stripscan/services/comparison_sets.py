@@ -3,7 +3,7 @@
 A set is written ``scan:PATH[#STRIPS]``, ``snapshot:ID[,ID...]`` or
 ``lot:LOT`` (see :mod:`stripscan.cli.compare` for the user's view);
 :func:`parse_set` reads the text and :class:`SetLoader` turns it into a
-:class:`stripscan.core.compare.statistics.StripSet`, analysing scans and reading the
+:class:`stripscan.core.compare.sets.StripSet`, analysing scans and reading the
 archive.  The command line, the window and the reports share these.
 """
 
@@ -18,7 +18,7 @@ from typing import TYPE_CHECKING, Any
 
 
 if TYPE_CHECKING:
-    from stripscan.core.compare.statistics import StripSet
+    from stripscan.core.compare.sets import StripSet
 
 
 __all__ = ["SetError", "SetSpec", "parse_set", "SetLoader", "MOST_IN_A_SET"]
@@ -169,10 +169,9 @@ class SetLoader:
 
     def _open_archive(self) -> Any:
         if self._archive is None:
-            from stripscan.archive import Archive, default_archive_path
+            from stripscan.archive import Archive
 
-            path = self.archive_path if self.archive_path is not None else default_archive_path()
-            self._archive = Archive.open(path, read_only=True)
+            self._archive = Archive.open(self.archive_path, read_only=True)
             self._own_archive = True
         return self._archive
 
@@ -194,8 +193,8 @@ class SetLoader:
             raise SetError(f"set {spec.text!r}: {exc}") from None
 
     def _scan(self, spec: SetSpec) -> StripSet:
-        from stripscan.core.calibration import load_calibration
-        from stripscan.core.compare.statistics import StripSet
+        from stripscan.core.calibration_files import load_calibration
+        from stripscan.core.compare.sets import StripSet
         from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 
         if self.calibration_path is not None and self._calibration is None:
@@ -219,7 +218,7 @@ class SetLoader:
         return StripSet(spec.text, chosen, tuple(f"strip {s.index}" for s in chosen), source)
 
     def _snapshots(self, spec: SetSpec, ids: Sequence[int]) -> StripSet:
-        from stripscan.core.compare.statistics import StripSet
+        from stripscan.core.compare.sets import StripSet
 
         archive = self._open_archive()
         snapshots = [archive.get_snapshot(i) for i in ids]

@@ -11,16 +11,10 @@ import datetime
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-from stripscan.core.qc.rules import (
-    QUANTITIES,
-    OperatingLevels,
-    ProcessorStatus,
-    QCLimits,
-    QCValues,
-    TrendFinding,
-    evaluate_day,
-)
-from stripscan.services.qc_log import LABELS, LoggedEntry, ProcessorLog
+from stripscan.core.qc.names import LABELS, QUANTITIES
+from stripscan.core.qc.records import OperatingLevels, ProcessorStatus, QCLimits, QCValues, TrendFinding
+from stripscan.core.qc.rules import evaluate_day
+from stripscan.services.qc_log import LoggedEntry, ProcessorLog
 
 __all__ = ["SET_ASIDE_KINDS", "ChartPoint", "ChartSeries", "ChartPeriod", "ChartData", "chart_data",
            "chart_legend", "describe_rule"]

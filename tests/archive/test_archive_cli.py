@@ -49,7 +49,7 @@ def test_list_shows_current_snapshots(stocked: Path, capsys: pytest.CaptureFixtu
     out = _lines(capsys.readouterr().out)
     rows = {line.split()[0]: line for line in out[1:-1]}
     assert set(rows) == {"2", "4"}
-    assert rows["2"].endswith("revised by 6")
+    assert rows["2"].endswith("revised by snapshot 6")
 
 
 def test_show_prints_figures_steps_chain_and_notes(stocked: Path, capsys: pytest.CaptureFixture[str]) -> None:
@@ -199,10 +199,11 @@ def test_list_shows_the_steps_and_reads_a_lot_at_its_kept_steps(archive: Archive
     od = {s.step: s.od for s in later.strip.steps}
     for row in rows.values():
         assert (row["MD step"], row["DD steps"]) == (str(kept[0]), f"{kept[1]}-{kept[2]}")
-    assert float(rows["2"]["mid-dens"]) == pytest.approx(od[kept[0]], abs=1e-3)
-    assert float(rows["2"]["dens diff"]) == pytest.approx(od[kept[1]] - od[kept[2]], abs=1e-3)  # 3 decimals shown
+    # Printed to 0.01 OD, as a densitometer reads (common practice) and every report prints them.
+    assert float(rows["2"]["mid-dens"]) == pytest.approx(od[kept[0]], abs=5e-3)
+    assert float(rows["2"]["dens diff"]) == pytest.approx(od[kept[1]] - od[kept[2]], abs=5e-3)
     # Each strip's own choice, on request, with its own step numbers beside.
     assert main(["archive", "list", "--lot", lot, "--own-steps", "--archive", str(archive_path)]) == 0
     rows = {r["id"]: r for r in _columns(capsys.readouterr().out)}
     assert rows["2"]["MD step"] == str(later.figures.mid_density_step)
-    assert float(rows["2"]["mid-dens"]) == pytest.approx(later.figures.mid_density, abs=5e-4)
+    assert float(rows["2"]["mid-dens"]) == pytest.approx(later.figures.mid_density, abs=5e-3)

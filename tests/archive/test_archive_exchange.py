@@ -192,7 +192,7 @@ def test_csv_has_a_header_with_units_and_one_row_per_current_snapshot(filled: Ar
     with everything.open(encoding="utf-8-sig", newline="") as handle:
         statuses = [r[16] for r in list(csv.reader(handle))[1:]]
     assert statuses.count("current") == len(listed)
-    assert "retired" in " ".join(statuses) and "revised by 8" in statuses
+    assert "retired" in " ".join(statuses) and "revised by snapshot 8" in statuses
 
 
 def test_csv_text_that_looks_like_a_formula_is_defused(archive: Archive, tmp_path: Path) -> None:

@@ -17,7 +17,8 @@ from archive_factory import FILM, LOTS, PROCESSORS, make_draft, make_scan, make_
 from stripscan.archive.sqlite import backend as store
 from stripscan.archive import Archive, ArchiveConflictError, ArchiveError, QcEntry
 from stripscan.archive.sqlite.migrations import APPLICATION_ID, LATEST_VERSION, MIGRATIONS, Migration
-from stripscan.archive.records import FIGURES, canonical_json
+from stripscan.archive.records import FIGURES
+from stripscan.archive.values import canonical_json
 
 
 @pytest.fixture

@@ -17,7 +17,7 @@ import pytest
 from archive_factory import PROCESSORS, make_draft, raw_connection
 
 from stripscan.archive import Archive, ArchiveConflictError, ArchiveError, ArchiveLookupError, QcEntry
-from stripscan.archive.records import QcEntryState, qc_entry_states
+from stripscan.archive.qc_records import QcEntryState, qc_entry_states
 
 NORTH, SOUTH = (p.name for p in PROCESSORS)
 _UTC = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}\.\d{6}Z")

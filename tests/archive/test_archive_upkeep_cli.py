@@ -69,7 +69,7 @@ def test_a_snapshot_is_revised_and_another_retired_with_their_reasons(stocked: P
     assert "snapshot 2 retired" in out and "strip scratched" in out
     listing = _run(capsys, "archive", "list", "--archive", stocked, "--all")
     rows = {line.split()[0]: line for line in listing.splitlines()[1:-1]}
-    assert rows["1"].endswith("revised by 4") and "retired" in rows["2"] and "strip scratched" in rows["2"]
+    assert rows["1"].endswith("revised by snapshot 4") and "retired" in rows["2"] and "strip scratched" in rows["2"]
     with Archive.open(stocked) as archive:
         old, new = archive.get_snapshot(1), archive.get_snapshot(4)
         assert new.processed_on == "2026-10-12" and new.revises == 1

@@ -24,35 +24,18 @@ from scipy import stats
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq
 
-from stripscan.core.calibration import (
-    Calibration,
-    Certificate,
-    DirectMode,
-    LateralCorrection,
-    fit_calibration,
-    fit_lateral,
-)
-from stripscan.core.compare.statistics import StripSet, compare_sets, judge, welch_interval
-from stripscan.core.curve import (
-    CharacteristicCurve,
-    FigureSettings,
-    compute_figures,
-    relative_speed_percent,
-    step_log_exposures,
-)
+from stripscan.core.calibration import Calibration, DirectMode, LateralCorrection, fit_calibration, fit_lateral
+from stripscan.core.certificate import Certificate
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.compare.sets import StripSet
+from stripscan.core.compare.statistics import judge, welch_interval
+from stripscan.core.curve import CharacteristicCurve, compute_figures, relative_speed_percent, step_log_exposures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.pipeline import AnalysisOptions, strip_result
-from stripscan.core.qc.rules import (
-    OperatingLevels,
-    QCEntry,
-    QCLimits,
-    QCValues,
-    TrendRules,
-    apply_trend_rules,
-    choose_qc_steps,
-    crossover,
-    establish_levels,
-    evaluate_day,
-)
+from stripscan.core.qc.crossover import crossover
+from stripscan.core.qc.levels import choose_qc_steps, establish_levels
+from stripscan.core.qc.records import OperatingLevels, QCEntry, QCLimits, QCValues, TrendRules
+from stripscan.core.qc.rules import apply_trend_rules, evaluate_day
 from stripscan.core.records import Analysis, ScanInfo, StepDensity, StepReading, StripGeometry, StripResult
 
 # --------------------------------------------------------------------------

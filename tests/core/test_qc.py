@@ -1,4 +1,4 @@
-"""Tests for daily processor QC and QC-film crossover (stripscan.core.qc.rules).
+"""Tests for daily processor QC and QC-film crossover (stripscan.core.qc).
 
 Invented scenario: the breast imaging unit of Larkspur Hill Clinic runs one
 QC strip a day through its "processor 2", starting Monday 3 March 2025.
@@ -14,27 +14,22 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from stripscan import CAUTION
-from stripscan.core.qc.rules import (
-    ADVICE,
-    TREND_DEAD_BAND,
+from stripscan.core.qc.crossover import crossover
+from stripscan.core.qc.levels import choose_qc_steps, establish_levels, qc_values_from_steps
+from stripscan.core.qc.records import (
     CrossoverResult,
     OperatingLevels,
     ProcessorStatus,
     QCEntry,
     QCEvent,
     QCLimits,
-    QCLog,
     QCSteps,
     QCValues,
     TrendFinding,
     TrendRules,
-    apply_trend_rules,
-    choose_qc_steps,
-    crossover,
-    establish_levels,
-    evaluate_day,
-    qc_values_from_steps,
 )
+from stripscan.core.qc.rules import TREND_DEAD_BAND, apply_trend_rules, evaluate_day
+from stripscan.core.qc.status import ADVICE, QCLog
 
 START = datetime.date(2025, 3, 3)
 

@@ -219,3 +219,66 @@ def test_truncated_compressed_tiff_is_refused(tmp_path, compression):
     path.write_bytes(data[: len(data) // 2])
     with pytest.raises(ScanError, match="cut.tif: cannot be read as an image"):
         load_scan(path)
+
+
+@pytest.mark.parametrize("kind", ["grey16", "grey8", "rgb16", "big_endian", "zlib", "planar_rgb", "strips"])
+def test_file_is_read_once_for_its_pixels_and_its_hash(tmp_path, kind):
+    import hashlib
+
+    rng = np.random.default_rng(4)
+    shape = (150, 90, 3) if "rgb" in kind else (150, 90)
+    image = rng.integers(0, 256 if kind == "grey8" else 65536, size=shape).astype(np.uint8 if kind == "grey8" else np.uint16)
+    options = {"big_endian": {"byteorder": ">"}, "zlib": {"compression": "zlib"}, "strips": {"rowsperstrip": 16},
+               "planar_rgb": {"planarconfig": "separate"}}.get(kind, {})
+    path = tmp_path / f"{kind}.tif"
+    tifffile.imwrite(path, np.moveaxis(image, -1, 0) if kind == "planar_rgb" else image,
+                     photometric="rgb" if "rgb" in kind else "minisblack", **options)
+    scan = load_scan(path)
+    assert np.array_equal(scan.raw, image)
+    assert scan.info.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()  # hashlib reference
+    if kind in ("grey16", "grey8", "rgb16", "strips"):
+        # Uncompressed and stored in one piece: the pixels are a view into the file's bytes, read once.
+        assert not scan.raw.flags.owndata and isinstance(scan.raw.base, (bytearray, memoryview, np.ndarray))
+
+
+def test_a_scan_read_once_keeps_no_second_copy(tmp_path):
+    image = np.random.default_rng(5).integers(0, 65536, size=(1000, 800), dtype=np.uint16)
+    path = tmp_path / "page.tif"
+    tifffile.imwrite(path, image)
+    gc.collect()
+    tracemalloc.start()
+    try:
+        scan = load_scan(path)
+        assert scan.info.sha256  # the hash is done
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert peak < 1.2 * image.nbytes
+
+
+def test_colour_page_is_decoded_in_slabs_without_float_channels(tmp_path, monkeypatch):
+    from stripscan.core import scan as scan_module
+
+    rng = np.random.default_rng(6)
+    image = rng.integers(0, 65536, size=(600, 500, 3), dtype=np.uint16)
+    image[10, 10] = 65535
+    path = tmp_path / "rgb.tif"
+    tifffile.imwrite(path, image, photometric="rgb")
+    monkeypatch.setattr(scan_module, "_SLAB_VALUES", 30_000)  # many slabs even on a small page
+    scan = load_scan(path)
+    expected = image.astype(np.float64).mean(axis=2) / 65535.0  # the mean of the channels ("auto")
+    gc.collect()
+    tracemalloc.start()
+    try:
+        signal = scan.signal
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert signal.dtype == np.float32 and signal.shape == (600, 500)
+    np.testing.assert_allclose(signal, expected, rtol=1e-6, atol=1e-7)
+    # The one-channel output and a slab besides it; decoding the whole page at once held its three
+    # float channels too (four times the output).
+    assert peak < 1.3 * signal.nbytes
+    assert scan.saturated[10, 10] and scan.saturated.sum() == np.any((image == 0) | (image == 65535), axis=2).sum()
+    reduced, _ = reduce_channels(image.astype(np.float32) / 65535.0, "mean")
+    np.testing.assert_allclose(reduced, expected, rtol=1e-6, atol=1e-7)

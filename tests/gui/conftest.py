@@ -7,22 +7,22 @@ import os
 # Before Qt is imported anywhere: no display needed.
 os.environ["QT_QPA_PLATFORM"] = "offscreen"
 
+import sys  # noqa: E402
 from pathlib import Path  # noqa: E402
 from types import SimpleNamespace  # noqa: E402
 
 import pytest  # noqa: E402
 
-from stripscan.core.calibration import read_certificate, save_calibration  # noqa: E402
+# pytest runs with --import-mode=importlib, which puts no test folder on sys.path; the test modules
+# import their small helpers (gui_helpers) by name.
+if str(Path(__file__).parent) not in sys.path:
+    sys.path.insert(0, str(Path(__file__).parent))
+
+from stripscan.core.calibration_files import save_calibration
+from stripscan.core.certificate import read_certificate
 from stripscan.core.pipeline import calibrate_tablet  # noqa: E402
-from stripscan.sim.simulate import (  # noqa: E402
-    FilmModel,
-    ScannerModel,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 DPI = 150.0
 FILMS = (
@@ -125,3 +125,4 @@ def open_scan(qtbot):
 def make_strip_scan():
     """make_strip_scan(path, dpi=..., seed=...): write a two-strip scan, return its path and truth."""
     return write_strip_scan
+

@@ -13,7 +13,7 @@ from PySide6.QtWidgets import QDialogButtonBox, QMessageBox
 from stripscan import CAUTION
 from stripscan.archive import FIGURES, Archive, calibration_hash
 from stripscan.services.demo_archive import REVISED, build_demo_archive
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.sim.demo_data import demo_files
 from stripscan.gui.panels.archive_panel import ArchivePanel
@@ -21,6 +21,8 @@ from stripscan.gui.panels.figures_panel import VALUE_ROLE
 from stripscan.gui.dialogs.save_snapshot_dialog import SaveForm, SaveSnapshotDialog, check_form
 from stripscan.gui.views.tables import figure_rows
 from stripscan.gui.views.trend_view import TrendView
+
+from gui_helpers import settle
 
 
 @pytest.fixture(scope="module")
@@ -50,6 +52,7 @@ def panel(qtbot, archive_path: Path) -> ArchivePanel:
     qtbot.addWidget(widget)
     widget.resize(1300, 800)
     widget.show()
+    settle(qtbot, widget)
     return widget
 
 
@@ -92,6 +95,7 @@ def test_the_lots_panel_lists_the_archives_lots_and_counts(panel: ArchivePanel, 
 
 def test_selecting_a_lot_lists_its_snapshots(qtbot, panel: ArchivePanel, archive_path: Path) -> None:
     click_row(qtbot, panel.lots, 1)
+    settle(qtbot, panel)
     assert panel.selected_lot() == "M-2702-B"
     with Archive.open(archive_path, read_only=True) as archive:
         current = archive.list_snapshots("M-2702-B")
@@ -101,6 +105,7 @@ def test_selecting_a_lot_lists_its_snapshots(qtbot, panel: ArchivePanel, archive
     speed = [float(panel.snapshot_table.item(k, 5).text()) for k in range(len(current))]
     assert speed == pytest.approx([s.speed_log_exposure for s in current], abs=5e-4)
     panel.show_all.setChecked(True)
+    settle(qtbot, panel)
     assert shown_ids(panel.snapshot_table) == [s.id for s in everything]
     retired = [k for k, s in enumerate(everything) if s.retired_at is not None]
     assert len(retired) == 1
@@ -111,6 +116,7 @@ def test_selecting_a_lot_lists_its_snapshots(qtbot, panel: ArchivePanel, archive
 def test_opening_a_snapshot_shows_its_stored_figures_and_provenance(qtbot, panel: ArchivePanel,
                                                                     archive_path: Path) -> None:
     panel.select_lot("M-2610-A")
+    settle(qtbot, panel)
     with qtbot.waitSignal(panel.snapshot_opened, timeout=5000) as opened:
         click_row(qtbot, panel.snapshot_table, 4, double=True)
     snapshot_id = int(panel.snapshot_table.item(4, 0).text())
@@ -143,6 +149,7 @@ def test_the_revision_chain_is_shown_and_each_version_opens(qtbot, panel: Archiv
         revision = next(s for s in archive.list_snapshots(REVISED.lot) if s.revises is not None)
         chain = archive.history(revision.id)
     assert panel.open_snapshot(revision.id)
+    settle(qtbot, panel)
     history = panel.view.history
     assert shown_ids(history) == [s.id for s in chain]
     assert REVISED.reason in history.item(1, 2).text()
@@ -150,7 +157,7 @@ def test_the_revision_chain_is_shown_and_each_version_opens(qtbot, panel: Archiv
     with qtbot.waitSignal(panel.snapshot_opened, timeout=5000) as opened:
         click_row(qtbot, history, 0, double=True)
     assert opened.args == [chain[0].id]
-    assert panel.view.provenance_value("Status") == f"corrected by snapshot {revision.id}"
+    assert panel.view.provenance_value("Status") == f"revised by snapshot {revision.id}"
     assert panel.view.value_of("speed_log_exposure") == chain[0].figures.speed_log_exposure
 
 
@@ -169,9 +176,11 @@ def test_the_save_form_stores_one_snapshot_per_strip_and_the_panel_follows(qtbot
     before = {s.lot.lot_id: s.snapshot_count for s in panel.lot_summaries}
     panel.select_lot("M-2610-A")
     dialog = panel.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, "M-2702-B")
     with qtbot.waitSignal(dialog.saved, timeout=5000) as saved:
         qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Save), Qt.MouseButton.LeftButton)
+    settle(qtbot, panel)
     lot, ids = saved.args
     assert lot == "M-2702-B" and len(ids) == len(result.strips) == 3
     with Archive.open(archive_path, read_only=True) as archive:
@@ -195,6 +204,7 @@ def test_the_save_form_refuses_a_missing_lot_and_stores_nothing(qtbot, panel: Ar
     result, calibration = analysis
     before = stored_count(archive_path)
     dialog = panel.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, lot)
     qtbot.mouseClick(dialog.buttons.button(QDialogButtonBox.StandardButton.Save), Qt.MouseButton.LeftButton)
     shown = messages(dialog)
@@ -206,9 +216,11 @@ def test_the_save_form_refuses_a_missing_lot_and_stores_nothing(qtbot, panel: Ar
 def test_a_new_lot_is_stored_only_when_asked_for(qtbot, panel: ArchivePanel, archive_path: Path, analysis) -> None:
     result, calibration = analysis
     dialog = panel.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, "M-2801-C")
     dialog.new_lot.setChecked(True)
     assert dialog.save()
+    settle(qtbot, dialog, panel)
     with Archive.open(archive_path, read_only=True) as archive:
         summary = next(s for s in archive.list_lots() if s.lot.lot_id == "M-2801-C")
     assert summary.snapshot_count == 3
@@ -224,8 +236,10 @@ def test_the_archive_refusing_a_save_leaves_nothing_stored(qtbot, panel: Archive
     dialog = SaveSnapshotDialog(result, other, archive_path, panel)
     qtbot.addWidget(dialog)
     dialog.show()
+    settle(qtbot, dialog)
     fill(dialog, "M-2702-B")
-    assert not dialog.save()
+    dialog.save()  # refused by the archive, in the worker thread
+    settle(qtbot, dialog)
     shown = messages(dialog)
     assert len(shown) == 1 and "is not the one the analysis used" in shown[0].text()
     assert stored_count(archive_path) == before
@@ -241,9 +255,11 @@ def test_a_lot_name_the_archive_refuses_is_explained_and_nothing_stored(qtbot, p
     result, calibration = analysis
     before = stored_count(archive_path)
     dialog = panel.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, lot)
     dialog.new_lot.setChecked(True)
-    assert not dialog.save()
+    dialog.save()  # refused by the archive (worker thread), or by the form's own checks
+    settle(qtbot, dialog)
     shown = messages(dialog)
     assert len(shown) == 1 and says in shown[0].text() and "\x1b" not in shown[0].text()
     assert dialog.isVisible() and stored_count(archive_path) == before
@@ -268,6 +284,7 @@ def test_the_trend_view_plots_every_point_the_archive_trend_returns(qtbot, archi
     view = TrendView(archive_path)
     qtbot.addWidget(view)
     view.set_figure(figure)
+    qtbot.waitUntil(lambda: not view.runner.busy, timeout=10_000)
     with Archive.open(archive_path, read_only=True) as archive:
         both = archive.trend(figure, ["M-2610-A", "M-2702-B"])
         only_b = archive.trend(figure, ["M-2702-B"])
@@ -279,6 +296,7 @@ def test_the_trend_view_plots_every_point_the_archive_trend_returns(qtbot, archi
     legend = [label.text for _, label in view.legend.items]
     assert legend == [f"lot {lot} ({sum(p.lot == lot for p in both)})" for lot in view.series]
     view.set_lots(["M-2702-B"])
+    qtbot.waitUntil(lambda: not view.runner.busy, timeout=10_000)
     assert view.point_count() == len(only_b)
     # Dmax lies above the demo calibration's range on every strip: nothing to draw, and it says so.
     assert view.empty.isVisibleTo(view) == (not both)
@@ -311,13 +329,16 @@ def test_no_archive_yet_is_an_empty_panel_without_errors(qtbot, tmp_path: Path, 
     widget = ArchivePanel(path)
     qtbot.addWidget(widget)
     widget.show()
+    settle(qtbot, widget)
     assert "No archive yet" in widget.where.text() and widget.lots.rowCount() == 0
     assert not messages(widget) and not path.exists()
     result, calibration = analysis
     dialog = widget.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, "M-2702-B")
     dialog.new_lot.setChecked(True)
     assert dialog.save()
+    settle(qtbot, dialog, widget)
     assert widget.lots.rowCount() == 1 and int(widget.lots.item(0, 2).text()) == 3
 
 
@@ -327,10 +348,13 @@ def test_a_damaged_archive_gives_a_message_not_a_crash(qtbot, tmp_path: Path) ->
     widget = ArchivePanel(path)
     qtbot.addWidget(widget)
     widget.show()
+    settle(qtbot, widget)
     shown = messages(widget)
     assert shown and all(str(path) in box.text() for box in shown)
     assert widget.lots.rowCount() == 0
-    assert not widget.open_snapshot(1)
+    widget.open_snapshot(1)
+    settle(qtbot, widget)
+    assert widget.view.record is None
 
 
 def test_the_demo_archive_is_built_off_the_ui_thread_and_shown(qtbot, tmp_path: Path) -> None:
@@ -340,6 +364,7 @@ def test_the_demo_archive_is_built_off_the_ui_thread_and_shown(qtbot, tmp_path: 
         widget.build_demo(tmp_path)
         assert widget.runner.busy  # the window stays responsive meanwhile
     path = Path(ready.args[0])
+    settle(qtbot, widget)
     assert widget.archive_path == path and path.parent == tmp_path
     with Archive.open(path, read_only=True) as archive:
         counts = [s.snapshot_count for s in archive.list_lots()]
@@ -364,6 +389,7 @@ def test_the_lot_table_shows_steps_and_reads_a_lot_at_its_kept_steps(qtbot, pane
         snapshot = archive.get_snapshot(odd[0].id)
         kept = archive.lot_qc_steps(snapshot.lot_id)
     panel.select_lot(snapshot.lot_id)
+    settle(qtbot, panel)
     table = panel.snapshot_table
     titles = [table.horizontalHeaderItem(k).text() for k in range(table.columnCount())]
     md, md_step, dd, dd_steps = (titles.index(t) for t in ("Mid-dens.", "MD step", "Dens. diff.", "DD steps"))
@@ -375,6 +401,7 @@ def test_the_lot_table_shows_steps_and_reads_a_lot_at_its_kept_steps(qtbot, pane
     assert table.item(row, dd).data(VALUE_ROLE) == pytest.approx(od[kept[1]] - od[kept[2]], abs=1e-4)
     panel.grab().save(str(tmp_path / "lot-table.png"))
     panel.own_steps.setChecked(True)
+    settle(qtbot, panel)
     row = shown_ids(table).index(snapshot.id)
     assert table.item(row, md_step).text() == str(snapshot.figures.mid_density_step)
     assert table.item(row, md).data(VALUE_ROLE) == pytest.approx(snapshot.figures.mid_density, abs=1e-4)
@@ -390,9 +417,11 @@ def test_a_snapshot_read_without_calibration_says_its_uncertainty_is_noise_only(
         calibrated_id = archive.list_snapshots("M-2702-B")[0].id
     panel.refresh()
     assert panel.open_snapshot(stored.id)
+    settle(qtbot, panel)
     column = [panel.view.steps.horizontalHeaderItem(k).text() for k in range(panel.view.steps.columnCount())]
     assert "Uncertainty (OD), noise only" in column
     assert panel.open_snapshot(calibrated_id)
+    settle(qtbot, panel)
     assert panel.view.steps.horizontalHeaderItem(3).text() == "Uncertainty (OD)"
 
 
@@ -401,15 +430,21 @@ def test_a_scan_held_already_is_stored_again_only_when_ticked(qtbot, panel: Arch
     # bad-input issue item 14: the same scan saved twice counted its strips twice, with no word
     result, calibration = analysis
     first = panel.save_dialog(result, calibration)
+    settle(qtbot, first)
     fill(first, "M-2702-B")
     assert first.save()
+    settle(qtbot, first, panel)
     before = stored_count(archive_path)
     dialog = panel.save_dialog(result, calibration)
+    settle(qtbot, dialog)
     fill(dialog, "M-2702-B")
-    assert not dialog.save()
+    assert dialog.save()  # the archive answers from the worker thread: held already
+    settle(qtbot, dialog)
     shown = messages(dialog)
     assert len(shown) == 1 and f"strip 1 as snapshot {first.stored[0].id}" in shown[0].text()
     assert dialog.again.isVisible() and stored_count(archive_path) == before
     shown[0].close()
     dialog.again.setChecked(True)
-    assert dialog.save() and stored_count(archive_path) == before + 3
+    assert dialog.save()
+    settle(qtbot, dialog)
+    assert stored_count(archive_path) == before + 3

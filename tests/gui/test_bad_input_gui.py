@@ -7,7 +7,8 @@ import pytest
 import tifffile
 from PySide6.QtWidgets import QMessageBox
 
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 
 def _grey(path, image):

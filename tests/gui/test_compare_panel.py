@@ -11,8 +11,10 @@ import pyqtgraph as pg  # noqa: E402
 import pytest  # noqa: E402
 
 from stripscan import CAUTION  # noqa: E402
-from stripscan.core.calibration import load_calibration  # noqa: E402
-from stripscan.core.compare.statistics import FIGURES, StripSet, compare_sets  # noqa: E402
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.compare.comparison import compare_sets  # noqa: E402
+from stripscan.core.compare.sets import StripSet  # noqa: E402
+from stripscan.core.compare.table import FIGURES  # noqa: E402
 from stripscan.core.pipeline import analyze_scan  # noqa: E402
 from stripscan.sim.demo_data import demo_files  # noqa: E402
 

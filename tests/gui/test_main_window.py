@@ -11,9 +11,10 @@ from PySide6.QtGui import QDropEvent, QGuiApplication
 from PySide6.QtWidgets import QMessageBox
 
 from stripscan import CAUTION
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import read_density
-from stripscan.core.curve import FigureSettings, compute_figures
+from stripscan.core.curve import compute_figures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import locate_strips
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan
@@ -159,7 +160,7 @@ def test_moving_the_outline_reads_the_steps_again(qtbot, open_scan, window, file
     qtbot.waitUntil(lambda: session.strips[0].geometry.origin_rc[1] == pytest.approx(old.origin_rc[1] + 6.0), timeout=3000)
     state = session.strips[0]
     assert state.geometry.manual
-    readings, _, _ = read_strip(session.scan.signal, session.scan.saturated, state.geometry)
+    readings, _, _ = read_strip(session.scan, None, state.geometry)
     assert state.readings == tuple(readings)
     view.roi.setSize((view.roi.size()[0] * 0.9, view.roi.size()[1]))
     qtbot.waitUntil(lambda: session.strips[0].geometry.step_pitch_px == pytest.approx(old.step_pitch_px * 0.9), timeout=3000)

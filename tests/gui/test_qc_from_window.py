@@ -9,9 +9,11 @@ from PySide6.QtCore import QDate
 from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
-from stripscan.core.qc.rules import QUANTITIES
+from stripscan.core.qc.names import QUANTITIES
 from stripscan.gui.panels.qc_panel import FILM_TYPE_KEY
 from stripscan.services.qc_log import load_processor_log
+
+from gui_helpers import settle
 
 
 def type_day(panel, day: datetime.date, values) -> None:
@@ -29,6 +31,7 @@ def make_processor(qtbot, panel, name: str, film: str = "", action: str | None =
     if action is not None:
         dialog.action_edit.setText(action)
     dialog.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+    settle(qtbot, panel)
 
 
 def test_qc_starts_in_the_window_on_an_empty_archive(qtbot, window, settings):
@@ -36,6 +39,7 @@ def test_qc_starts_in_the_window_on_an_empty_archive(qtbot, window, settings):
     ws = window.workspace
     ws.show_page("qc")
     panel = ws.qc_panel
+    settle(qtbot, ws)
     archive = ws.archive_path
     assert archive is not None and not archive.exists()
     assert "stripscan" not in panel.status_label.text() and "New processor" in panel.status_label.text()
@@ -64,6 +68,7 @@ def test_qc_starts_in_the_window_on_an_empty_archive(qtbot, window, settings):
     for k in range(5):
         type_day(panel, first + datetime.timedelta(days=k), (0.18, 1.20 + 0.01 * (k % 2), 1.85))
         panel.add_button.click()
+        settle(qtbot, panel)
         assert panel.form_message.text().startswith("Stored"), panel.form_message.text()
     # Five days set the operating levels (21 CFR 900.12(e)(1) practice; common practice: the first five days).
     assert "Room 3 processor: WITHIN LIMITS" in panel.status_label.text()
@@ -93,6 +98,7 @@ def test_a_day_read_off_the_open_scans_strip(qtbot, open_scan, window, files):
     panel.scan_strip_box.setCurrentIndex(1)
     assert panel.add_scan_button.isEnabled()
     panel.add_scan_button.click()
+    settle(qtbot, panel)
     assert panel.scan_message.text().startswith("Stored 2026-12-01"), panel.scan_message.text()
     with Archive.open(window.workspace.archive_path, read_only=True) as stored:
         entries = stored.list_qc_entries("P")
@@ -109,21 +115,24 @@ def test_a_scan_in_direct_mode_is_not_stored_and_says_why(qtbot, open_scan, wind
     panel = window.workspace.qc_panel
     make_processor(qtbot, panel, "P")
     panel.add_scan_button.click()
+    settle(qtbot, panel)
     assert "Not stored" in panel.scan_message.text() and "without a calibration" in panel.scan_message.text()
     with Archive.open(window.workspace.archive_path, read_only=True) as stored:
         assert stored.list_qc_entries("P") == []
 
 
-def store_scan(window, lot: str, operator: str, processor: str | None = None) -> list[int]:
+def store_scan(qtbot, window, lot: str, operator: str, processor: str | None = None) -> list[int]:
     ws = window.workspace
     ws.save_action.trigger()
     dialog = ws.dialog
+    settle(qtbot, dialog)
     dialog.lot.setCurrentText(lot)
     dialog.new_lot.setChecked(True)
     dialog.operator.setCurrentText(operator)
     if processor is not None:
         dialog.processor.setCurrentText(processor)
     dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    settle(qtbot, dialog, ws)
     assert dialog.stored, "nothing was stored"
     return [s.id for s in dialog.stored]
 
@@ -139,7 +148,7 @@ def test_the_scan_report_after_storing_carries_what_was_stored(qtbot, open_scan,
     window.use_calibration_file(str(files.calibration))
     open_scan(window, files.scan)
     ws = window.workspace
-    ids = store_scan(window, "M-2610-A", "M. Arden")
+    ids = store_scan(qtbot, window, "M-2610-A", "M. Arden")
     assert ws.notice.isVisible() and "Stored 2 snapshots of lot M-2610-A" in ws.notice.label.text()
     assert str(ws.archive_path) in ws.notice.label.text()
     with qtbot.waitSignal(ws.exports.file_written, timeout=30_000) as signal:

@@ -18,6 +18,8 @@ from stripscan.services.qc_demo import build_demo_qc
 from stripscan.render.plot import Band, Line, Points
 from stripscan.render.qcmonth import qc_month, qc_month_plots
 
+from gui_helpers import settle
+
 
 @pytest.fixture(scope="module")
 def demo_archive(tmp_path_factory) -> Path:
@@ -41,6 +43,7 @@ def panel(qtbot, archive_copy) -> QcPanel:
     qtbot.addWidget(widget)
     widget.resize(1000, 1000)
     widget.show()
+    settle(qtbot, widget)
     return widget
 
 
@@ -98,8 +101,8 @@ def test_the_window_and_the_monthly_report_explain_the_same_marks_in_the_same_wo
 
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
     path = tmp_path / "short.sqlite3"
-    from stripscan.core.qc.rules import QCValues
-    from stripscan.services.qc_log import add_day
+    from stripscan.core.qc.records import QCValues
+    from stripscan.services.qc_recording import add_day
 
     with Archive.open(path) as archive:
         for k in range(5):
@@ -109,6 +112,7 @@ def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tm
         add_day(archive, "Processor 2", datetime.date(2026, 11, 8), values=QCValues(0.19, 1.04, 1.8))
     widget = QcPanel(path)
     qtbot.addWidget(widget)
+    settle(qtbot, widget)
     text = widget.status_label.text()
     # 21 CFR 900.12(e)(1): -0.16 is past ±0.15; 2 of 3 past the ±0.10 tier (common practice, from memory).
     assert "Processor 2: ACT" in text and "two_warnings:mid_density" in text
@@ -132,11 +136,13 @@ def test_the_form_adds_a_typed_day_and_refuses_a_duplicate(panel, qtbot, archive
     assert len(panel.scatter["mid_density"].points()) == 30
     type_day(panel, 0.19, 1.19, 1.89)
     panel.date_edit.setDate(QDate(2026, 12, 1))
-    assert not panel.add_typed_day()
+    assert panel.add_typed_day()  # sent; the archive refuses it from the worker thread
+    settle(qtbot, panel)
     message = panel.form_message.text()
     assert "Not stored" in message and "duplicate day" in message and "Repeat strip of the day" in message
     panel.date_edit.setDate(QDate(2026, 11, 15))
-    assert not panel.add_typed_day()
+    panel.add_typed_day()
+    settle(qtbot, panel)
     assert "dates out of order" in panel.form_message.text()
     with Archive.open(archive_copy, read_only=True) as archive:
         assert len(archive.list_qc_entries("Processor 1")) == 31  # 29 days' strips, the demo's repeat, this one
@@ -160,6 +166,7 @@ def test_the_day_form_starts_empty_and_refuses_missing_values(panel, qtbot, arch
         assert len(archive.list_qc_entries("Processor 1")) == 30
     panel.value_edits["density_difference"].setValue(1.89)
     assert panel.add_typed_day()
+    settle(qtbot, panel)
     with Archive.open(archive_copy, read_only=True) as archive:
         last = archive.list_qc_entries("Processor 1")[-1]
     assert (last.base_fog, last.mid_density, last.density_difference) == (0.19, 1.19, 1.89)
@@ -200,7 +207,9 @@ def test_the_form_stores_a_repeat_strip_that_counts_for_the_day(panel, qtbot, ar
     panel.repeat_check.setChecked(True)
     type_day(panel, 0.19, 1.22, 1.90)
     panel.date_edit.setDate(QDate(2026, 11, 20))
-    assert not panel.add_typed_day() and "a repeat strip of 2026-11-20 would re-judge" in panel.form_message.text()
+    panel.add_typed_day()
+    settle(qtbot, panel)
+    assert "a repeat strip of 2026-11-20 would re-judge" in panel.form_message.text()
 
 
 def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtbot, archive_copy):
@@ -210,7 +219,8 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
     assert panel.entry_spin.value() == 12 and panel.entry_label.text().startswith("2026-11-12, manual")
     wrong = panel.fix_edits["mid_density"].value()
     panel.fix_edits["mid_density"].setValue(wrong + 0.05)
-    assert not panel.correct_chosen_entry()
+    panel.correct_chosen_entry()
+    settle(qtbot, panel)
     assert "Not stored" in panel.correct_message.text() and "with a reason" in panel.correct_message.text()
     panel.reason_edit.setText("0.93 read, mistyped")
     with qtbot.waitSignal(panel.sigEntryCorrected, timeout=2000) as signal:
@@ -227,10 +237,14 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
     panel.entry_spin.setValue(12)
     panel.reason_edit.setText("again")
     panel.fix_edits["mid_density"].setValue(1.0)
-    assert not panel.correct_chosen_entry() and "already corrected by entry 31" in panel.correct_message.text()
+    panel.correct_chosen_entry()
+    settle(qtbot, panel)
+    assert "already corrected by entry 31" in panel.correct_message.text()
     panel.entry_spin.setValue(31)
     panel.reason_edit.setText("no change")
-    assert not panel.correct_chosen_entry() and "give the right value" in panel.correct_message.text()
+    panel.correct_chosen_entry()
+    settle(qtbot, panel)
+    assert "give the right value" in panel.correct_message.text()
     panel.entry_spin.setValue(999)
     assert "No entry 999" in panel.entry_label.text()
     assert not panel.correct_chosen_entry() and "entry 999 is not in the QC log shown" in panel.correct_message.text()
@@ -241,9 +255,9 @@ def test_the_correction_form_keeps_the_wrong_entry_and_needs_a_reason(panel, qtb
 def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_path):
     from pypdf import PdfReader
 
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.gui import jobs
-    from stripscan.services.qc_log import add_day
+    from stripscan.services.qc_recording import add_day
 
     path = tmp_path / "two-months.sqlite3"
     with Archive.open(path) as archive:
@@ -251,6 +265,7 @@ def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_pat
             add_day(archive, "Processor 3", day, values=QCValues(0.19, 1.2, 1.8), new_processor=k == 0)
     widget = QcPanel(path)
     qtbot.addWidget(widget)
+    settle(qtbot, widget)
     months = [widget.month_box.itemText(k) for k in range(widget.month_box.count())]
     assert months == ["2026-11", "2026-10"]  # newest first
     assert widget.report_month() == datetime.date(2026, 11, 1)

@@ -8,8 +8,9 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from stripscan.core.calibration import load_calibration
-from stripscan.core.curve import FigureSettings, compute_figures
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.curve import compute_figures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import geometry_from_outline
 from stripscan.core.pipeline import AnalysisOptions, analyze_loaded, read_density, strip_result
 from stripscan.core.records import StripGeometry
@@ -117,7 +118,7 @@ def test_step_count_and_outline_edits_read_the_scan_again(session):
     assert edited.geometry.n_steps == 11 and len(edited.result.steps) == 11
     moved = edited.geometry.replace(origin_rc=(edited.geometry.origin_rc[0] + 4, edited.geometry.origin_rc[1]))
     session.set_geometry(1, moved)
-    readings, _, _ = read_strip(session.scan.signal, session.scan.saturated, moved)
+    readings, _, _ = read_strip(session.scan, None, moved)
     assert session.strips[1].readings == tuple(readings)
     assert state.geometry.n_steps == 21  # the old state is untouched (frozen records)
 

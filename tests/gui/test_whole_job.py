@@ -16,12 +16,14 @@ from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan import CAUTION
 from stripscan.archive import Archive
-from stripscan.core.compare.statistics import compare_sets
-from stripscan.core.qc.rules import QUANTITIES
-from stripscan.sim.simulate import FilmModel
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.qc.names import QUANTITIES
+from stripscan.sim.objects import FilmModel
 from stripscan.services.comparison_sets import SetLoader, parse_set
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
-from stripscan.services.qc_log import read_strip
+from stripscan.services.qc_recording import read_strip
+
+from gui_helpers import settle
 
 # A second emulsion lot: a little faster and flatter than the fixture's films (invented, demo-style data).
 LOT_B_FILMS = (
@@ -36,17 +38,19 @@ def pdf_text(path) -> list[str]:
     return [" ".join(page.extract_text().split()) for page in PdfReader(path).pages]
 
 
-def store(window, lot: str, operator: str, processed: datetime.date) -> list[int]:
+def store(qtbot, window, lot: str, operator: str, processed: datetime.date) -> list[int]:
     ws = window.workspace
     ws.save_action.trigger()
     dialog = ws.dialog
     assert dialog.isVisible()
+    settle(qtbot, dialog)  # the archive's lots are read in a worker thread
     dialog.lot.setCurrentText(lot)
     if lot not in dialog.choices.lots:
         dialog.new_lot.setChecked(True)
     dialog.operator.setCurrentText(operator)
     dialog.set_dates(processed)
     dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    settle(qtbot, dialog, ws)
     assert dialog.stored, "nothing was stored"
     return [s.id for s in dialog.stored]
 
@@ -75,7 +79,7 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
     assert window.session.result().steps[step - 1].excluded
 
     # 3. Store the strips as lot A; the report of the scan then names the lot and the operator.
-    ids_a = store(window, "M-2610-A", "M. Arden", datetime.date(2026, 11, 2))
+    ids_a = store(qtbot, window, "M-2610-A", "M. Arden", datetime.date(2026, 11, 2))
     assert archive.is_file() and len(ids_a) == 2
     with qtbot.waitSignal(ws.exports.file_written, timeout=30_000) as signal:
         assert ws.exports.export("pdf", tmp_path / "lot_a.pdf")
@@ -89,6 +93,7 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
     panel.new_processor_button.click()
     panel.dialog.name_edit.setText("Processor East")
     panel.dialog.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+    settle(qtbot, panel)
     assert panel.processor_box.currentText() == "Processor East"
     # Days in the past, whenever the test runs: a QC day in the future is refused (issue 15, item 13).
     first = datetime.date.today() - datetime.timedelta(days=10)
@@ -102,12 +107,14 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
         for q in QUANTITIES:
             panel.value_edits[q].setValue(round(getattr(reading, q) + (0 if q == "base_fog" else wobble), 3))
         panel.add_button.click()
+        settle(qtbot, panel)
         assert panel.form_message.text().startswith("Stored"), panel.form_message.text()
     assert "BASELINE" not in panel.status_label.text()
     scanned = first + datetime.timedelta(days=5)
     panel.date_edit.setDate(QDate(scanned.year, scanned.month, scanned.day))
     panel.scan_strip_box.setCurrentIndex(panel.scan_strip_box.findData(strip.index))
     panel.add_scan_button.click()
+    settle(qtbot, panel)
     assert panel.scan_message.text().startswith(f"Stored {scanned.isoformat()}"), panel.scan_message.text()
     # 21 CFR 900.12(e)(1): within ±0.15 of the operating levels and base+fog within +0.03.
     assert "Processor East: WITHIN LIMITS" in panel.status_label.text()
@@ -120,8 +127,9 @@ def test_the_whole_job_in_the_window(qtbot, open_scan, window, files, make_strip
     scan_b = make_strip_scan(tmp_path / "lot_b.tif", LOT_B_FILMS, seed=11).path
     ws.show_page("scan")
     open_scan(window, scan_b)
-    store(window, "M-2702-B", "M. Arden", datetime.date(2026, 11, 3))
+    store(qtbot, window, "M-2702-B", "M. Arden", datetime.date(2026, 11, 3))
     ws.compare_lots_action.trigger()
+    qtbot.waitUntil(lambda: isinstance(ws.dialog, LotChoiceDialog), timeout=10_000)  # the lots are read first
     choice = ws.dialog
     assert isinstance(choice, LotChoiceDialog)
     choice.lot_a.setCurrentText("M-2610-A")

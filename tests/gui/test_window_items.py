@@ -8,9 +8,11 @@ import re
 import pytest
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import AnalysisOptions, analyze_scan
 from stripscan.gui.views.trend_view import TrendView
+
+from gui_helpers import settle
 
 
 @pytest.fixture
@@ -32,6 +34,7 @@ def test_the_trend_of_snapshots_of_one_day_has_a_date_axis(qtbot, one_day_archiv
     view.resize(900, 500)
     view.show()
     view.set_figure("speed_log_exposure")
+    qtbot.waitUntil(lambda: not view.runner.busy, timeout=10_000)
     assert view.point_count() == 2
     axis = view.plot.getAxis("bottom")
     low, high = view.plot.viewRange()[0]
@@ -242,9 +245,9 @@ def test_the_comparison_page_speaks_plain_words(qtbot, open_scan, window, files,
 
     window.use_calibration_file(str(files.calibration))
     open_scan(window, files.scan)
-    store(window, "M-2610-A", "M. Arden", dt.date(2026, 11, 2))
+    store(qtbot, window, "M-2610-A", "M. Arden", dt.date(2026, 11, 2))
     open_scan(window, make_strip_scan(tmp_path / "b.tif", LOT_B_FILMS, seed=3).path)
-    store(window, "M-2702-B", "M. Arden", dt.date(2026, 11, 3))
+    store(qtbot, window, "M-2702-B", "M. Arden", dt.date(2026, 11, 3))
     ws = window.workspace
     with qtbot.waitSignal(ws.comparison_shown, timeout=30_000):
         ws.compare_lots("M-2610-A", "M-2702-B")
@@ -274,6 +277,7 @@ def test_the_save_form_suggests_the_lot_remembers_the_operator_and_keeps_a_film_
     open_scan(window, named)
     ws = window.workspace
     dialog = ws.save_to_archive()
+    settle(qtbot, dialog)  # the archive's choices are read in a worker thread
     assert dialog.lot.currentText() == "M-2610-A" and dialog.new_lot.isChecked()
     assert "file name" in dialog.lot_hint.text()
     labels = [label.text() for label in dialog.findChildren(QLabel)]
@@ -281,10 +285,12 @@ def test_the_save_form_suggests_the_lot_remembers_the_operator_and_keeps_a_film_
     dialog.film_type.setCurrentText("Blue-base green-sensitive")
     dialog.operator.setCurrentText("M. Arden")
     dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    settle(qtbot, dialog, ws)
     assert dialog.stored
     with Archive.open(ws.archive_path, read_only=True) as archive:
         assert archive.get_lot("M-2610-A").film_type == "Blue-base green-sensitive"
     again = ws.save_to_archive()
+    settle(qtbot, again)
     assert again.operator.currentText() == "M. Arden"  # remembered
     assert again.film_type.currentText() == "Blue-base green-sensitive" and not again.film_type.isEnabled()
     assert not again.new_lot.isChecked()

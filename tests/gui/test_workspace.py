@@ -27,7 +27,7 @@ from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.services.demo_archive import DEMO_ARCHIVE_NAME
 from stripscan.services.comparison_sets import SetLoader, parse_set
-from stripscan.core.compare.statistics import compare_sets
+from stripscan.core.compare.comparison import compare_sets
 from stripscan.gui import jobs
 from stripscan.render import qtguard
 from stripscan.gui.app import open_demo, run_demo
@@ -39,7 +39,10 @@ from stripscan.gui.settings import AppSettings
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
 from stripscan.gui.workspace import PAGES, archive_setting
 from stripscan.services.qc_demo import DEMO_PROCESSOR
-from stripscan.services.qc_log import VERDICT_WORDS, load_processor_log
+from stripscan.core.qc.names import VERDICT_WORDS
+from stripscan.services.qc_log import load_processor_log
+
+from gui_helpers import settle
 
 LOT_A, LOT_B = "M-2610-A", "M-2702-B"
 
@@ -130,6 +133,7 @@ def test_compare_two_lots_shows_what_compare_sets_gives(demo, qtbot):
     ws = demo.workspace
     ws.show_page("scan")
     ws.compare_lots_action.trigger()
+    qtbot.waitUntil(lambda: isinstance(ws.dialog, LotChoiceDialog), timeout=10_000)  # the lots are read first
     dialog = ws.dialog
     assert isinstance(dialog, LotChoiceDialog) and dialog.isVisible()
     dialog.lot_a.setCurrentText(LOT_A)
@@ -183,17 +187,20 @@ def test_the_qc_page_shows_the_processors_status(demo):
     assert f"latest strip {status.latest_date.isoformat()}" in text
 
 
-def test_saving_the_scan_through_the_action_stores_one_snapshot_per_strip(demo):
+def test_saving_the_scan_through_the_action_stores_one_snapshot_per_strip(demo, qtbot):
     ws, session = demo.workspace, demo.window.session
     with Archive.open(demo.archive, read_only=True) as archive:
         before = {s.id for s in archive.list_snapshots(include_retired=True, include_superseded=True)}
     ws.save_action.trigger()
     dialog = ws.dialog
     assert isinstance(dialog, SaveSnapshotDialog) and dialog.isVisible()
+    settle(qtbot, dialog)
     dialog.lot.setCurrentText(LOT_A)
     dialog.operator.setCurrentText("Test operator")
-    dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
-    assert not messages(dialog), [box.text() for box in messages(dialog)]
+    with qtbot.waitSignal(dialog.saved, timeout=10_000):  # stored in a worker thread; the form then closes
+        dialog.buttons.button(QDialogButtonBox.StandardButton.Save).click()
+    settle(qtbot, ws)
+    assert not messages(demo.window), [box.text() for box in messages(demo.window)]
     with Archive.open(demo.archive, read_only=True) as archive:
         new = [archive.get_snapshot(s.id) for s in archive.list_snapshots(include_retired=True,
                                                                           include_superseded=True)
@@ -285,10 +292,11 @@ def test_every_page_has_a_shortcut_and_shows_the_caution(demo):
 def test_a_chosen_archive_is_remembered(qtbot, window, settings, tmp_path):
     path = tmp_path / "mine" / "lots.sqlite3"
     assert window.workspace.new_archive(path)
+    settle(qtbot, window.workspace)
     assert path.is_file() and archive_setting(settings) == path
     not_an_archive = tmp_path / "notes.sqlite3"
     not_an_archive.write_text("not a database\n" * 50, encoding="utf-8")
-    assert not window.workspace.open_archive(not_an_archive)
+    window.workspace.open_archive(not_an_archive)  # checked in a worker thread: refused with a message
     qtbot.waitUntil(lambda: bool(messages(window)), timeout=3000)
     assert window.workspace.archive_path == path  # the refused file changed nothing
     again = MainWindow(settings=AppSettings(settings.file))

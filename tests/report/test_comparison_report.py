@@ -8,7 +8,8 @@ from report_support import LOT_A, LOT_B, image_array, pdf_pages
 from scipy import stats
 
 from stripscan import CAUTION
-from stripscan.core.compare.statistics import StripSet, compare_sets
+from stripscan.core.compare.comparison import compare_sets
+from stripscan.core.compare.sets import StripSet
 from stripscan.render import ReportError, render_page
 from stripscan.render.comparison import CalibrationUse, ComparisonPage, comparison_plots, comparison_report_pdf
 
@@ -44,11 +45,13 @@ def test_one_page_per_pair_with_the_table_intervals_and_verdicts(sets, calibrati
 def test_the_printed_interval_is_welchs(sets, tmp_path):
     comparison = compare_sets(sets)[0]
     text = pdf_pages(comparison_report_pdf([comparison], tmp_path / "ab.pdf"))[0]
-    a = [s.figures.average_gradient for s in sets[0].strips]
-    b = [s.figures.average_gradient for s in sets[1].strips]
-    # Welch's t interval of mean(B) - mean(A) by scipy, from the strips' own figures.
-    ci = stats.ttest_ind(b, a, equal_var=False).confidence_interval(0.95)
-    assert f"{np.mean(b) - np.mean(a):+.3f} {ci.low:+.3f} to {ci.high:+.3f}" in text
+    # Printed as the strip report prints the figure: gradients to 0.01, the speed point to 0.001 log E.
+    for figure, digits in (("average_gradient", 2), ("speed_log_exposure", 3)):
+        a = [getattr(s.figures, figure) for s in sets[0].strips]
+        b = [getattr(s.figures, figure) for s in sets[1].strips]
+        # Welch's t interval of mean(B) - mean(A) by scipy, from the strips' own figures.
+        ci = stats.ttest_ind(b, a, equal_var=False).confidence_interval(0.95)
+        assert f"{np.mean(b) - np.mean(a):+.{digits}f} {ci.low:+.{digits}f} to {ci.high:+.{digits}f}" in text
     # Without calibrations named, the page says their provenance is unknown.
     assert "NOT RECORDED" in text
 

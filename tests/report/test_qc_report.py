@@ -11,7 +11,8 @@ from report_support import PROCESSOR, QC_DAYS, SCENARIO, image_array, pdf_pages
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveLookupError
 from stripscan.cli.main import main
-from stripscan.services.qc_log import VERDICT_WORDS, load_processor_log
+from stripscan.core.qc.names import VERDICT_WORDS
+from stripscan.services.qc_log import load_processor_log
 from stripscan.render import ReportError, render_page
 from stripscan.render.plot import Points
 from stripscan.render.qcmonth import qc_month, qc_month_plots, qc_month_report_pdf
@@ -134,9 +135,9 @@ def test_the_command_line_writes_the_month_and_its_charts(capsys, qc_archive, tm
 def test_repeated_and_corrected_entries_are_shown_apart_and_not_used(qc_archive, tmp_path):
     import datetime as dt
 
-    from stripscan.core.qc.rules import QCValues
+    from stripscan.core.qc.records import QCValues
     from stripscan.render.qc_chart import SET_ASIDE
-    from stripscan.services.qc_log import add_day, correct_entry
+    from stripscan.services.qc_recording import add_day, correct_entry
 
     typo = next(e for e in qc_archive.list_qc_entries(PROCESSOR) if e.date == "2026-11-24")
     fixed = correct_entry(qc_archive, typo.id, mid_density=1.03, reason="1.00 typed, 1.03 read").entry

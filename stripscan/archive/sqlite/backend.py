@@ -17,6 +17,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
+from stripscan._shared.atomic import replacing
 from stripscan.archive.backend import Backend, Row
 from stripscan.archive.entry_checks import on_read_only_media
 from stripscan.archive.errors import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError
@@ -250,6 +251,18 @@ class SqliteBackend(Backend):
                 raise self.translate(exc, action) from None
             raise
 
+    def _copy_to(self, partial: Path, dest: Path) -> None:
+        target = sqlite3.connect(partial)
+        try:
+            self.connection.backup(target)
+            verdict = [row[0] for row in target.execute("PRAGMA integrity_check")]
+        except sqlite3.Error as exc:
+            raise self.translate(exc, f"back it up to {dest}") from None
+        finally:
+            target.close()
+        if verdict != ["ok"]:
+            raise ArchiveError(f"{dest}: the backup copy failed its integrity check: {'; '.join(verdict[:5])}")
+
     def backup(self, dest: Path, *, overwrite: bool = False) -> Path:
         """Copy the file to ``dest`` with SQLite's online backup API.
 
@@ -266,32 +279,20 @@ class SqliteBackend(Backend):
             raise ArchiveError(f"{dest} already exists; choose another name or allow overwriting")
         if not dest.parent.is_dir():
             raise ArchiveError(f"{dest}: the folder {dest.parent} does not exist")
-        partial = dest.with_name(f".{dest.name}.{os.getpid()}.partial")
         try:
-            target = sqlite3.connect(partial)
-        except sqlite3.Error as exc:
-            raise ArchiveError(f"{dest}: cannot write the backup: {exc}") from None
-        try:
-            try:
-                self.connection.backup(target)
-                verdict = [row[0] for row in target.execute("PRAGMA integrity_check")]
-            except sqlite3.Error as exc:
-                raise self.translate(exc, f"back it up to {dest}") from None
-            finally:
-                target.close()
-            if verdict != ["ok"]:
-                raise ArchiveError(f"{dest}: the backup copy failed its integrity check: {'; '.join(verdict[:5])}")
-            os.replace(partial, dest)
-        except BaseException as exc:
-            _remove_file(partial)
-            if isinstance(exc, OSError):
-                raise ArchiveError(f"{dest}: cannot write the backup: {exc.strerror or exc}") from None
-            raise
+            with replacing(dest) as partial:
+                try:
+                    self._copy_to(partial, dest)
+                finally:
+                    _remove_companions(partial)
+        except OSError as exc:
+            raise ArchiveError(f"{dest}: cannot write the backup: {exc.strerror or exc}") from None
         return dest
 
 
-def _remove_file(path: Path) -> None:
-    for leftover in (path, Path(f"{path}-journal"), Path(f"{path}-wal"), Path(f"{path}-shm")):
+def _remove_companions(path: Path) -> None:
+    # The journal files SQLite keeps beside a database file while it writes.
+    for leftover in (Path(f"{path}-journal"), Path(f"{path}-wal"), Path(f"{path}-shm")):
         try:
             leftover.unlink()
         except OSError:
@@ -318,8 +319,3 @@ def remove_if_unused(path: Path) -> bool:
     except (sqlite3.Error, OSError):
         return False
     return True
-
-
-def remove_files(path: Path) -> None:
-    """Delete an archive file and its journal companions (a staging copy that will not be kept)."""
-    _remove_file(path)

@@ -1,9 +1,10 @@
-"""The lot comparison's table: its figures, their labels, and the tolerances B − A is judged by.
+"""The lot comparison's table: which figures it compares, and the tolerances B − A is judged by.
 
-Plain data and the :class:`Tolerance` record, kept apart from
-:mod:`stripscan.core.compare.statistics` (which needs numpy and scipy) so that the
-command line's help can show the default tolerances without importing a
-heavy library.  :mod:`stripscan.core.compare.statistics` re-exports every name.
+Plain data and the :class:`Tolerance` record, kept apart from the
+comparison's arithmetic (which needs numpy and scipy) so that the command
+line's help can show the default tolerances without importing a heavy
+library.  The figures' names, units and printed decimals are those of the
+one figure table, :mod:`stripscan.core.figures`.
 """
 
 from __future__ import annotations
@@ -14,9 +15,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
-__all__ = ["FIGURES", "FIGURE_INFO", "Tolerance", "DEFAULT_TOLERANCES"]
+__all__ = ["FIGURES", "Tolerance", "DEFAULT_TOLERANCES"]
 
-#: Figures of the table, in display order.
+#: Figures of the comparison table, in display order (keys of :data:`stripscan.core.figures.FIGURE_KEYS`).
 FIGURES: tuple[str, ...] = (
     "base_fog",
     "speed_log_exposure",
@@ -28,19 +29,6 @@ FIGURES: tuple[str, ...] = (
     "mid_density",
     "density_difference",
 )
-
-#: Label, unit and decimals shown for each figure.
-FIGURE_INFO: dict[str, tuple[str, str, int]] = {
-    "base_fog": ("base+fog", "OD", 3),
-    "speed_log_exposure": ("speed point (net 1.00)", "log E", 3),
-    "relative_speed_percent": ("relative speed (+ = faster)", "%", 1),
-    "average_gradient": ("average gradient", "OD/log E", 3),
-    "gamma": ("gamma (maximum slope)", "OD/log E", 3),
-    "dmax": ("Dmax", "OD", 3),
-    "latitude_log_exposure": ("latitude", "log E", 3),
-    "mid_density": ("mid-density", "OD", 3),
-    "density_difference": ("density difference", "OD", 3),
-}
 
 # --------------------------------------------------------------------------
 # Tolerances

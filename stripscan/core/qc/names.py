@@ -1,9 +1,9 @@
 """Processor QC's names: the quantities, verdicts, event kinds and rule choices, and their words.
 
-Plain constants, kept apart from :mod:`stripscan.core.qc.rules` (which needs numpy)
-so that the command line can offer them as choices and in its help without
-importing a heavy library.  :mod:`stripscan.core.qc.rules` and
-:mod:`stripscan.services.qc_log` re-export them under their old names.
+Plain constants, kept apart from the QC arithmetic (which needs numpy) so
+that the command line can offer them as choices and in its help without
+importing a heavy library.  Import them from here: no other module
+re-exports them.
 """
 
 from __future__ import annotations

@@ -30,13 +30,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.core.calibration import (
-    ACCURACY_GOAL,
-    Calibration,
-    Certificate,
-    read_certificate,
-    save_calibration,
-)
+from stripscan.core.calibration import ACCURACY_GOAL, Calibration
+from stripscan.core.calibration_files import save_calibration
+from stripscan.core.certificate import Certificate, read_certificate
 from stripscan.core.locate import FoundStrip
 from stripscan.core.pipeline import calibrate_tablet
 from stripscan.core.scan import load_scan

@@ -6,6 +6,10 @@ dates must follow each other and not lie ahead), then makes one call to
 :meth:`Archive.add_analysis <stripscan.archive.Archive.add_analysis>`, which
 stores every strip in one transaction or nothing at all.  A refusal is a
 message naming the problem; the form stays open with what was typed.
+
+The archive is read (the pickers' choices) and written in a worker thread
+(:class:`~stripscan.gui.tasks.TaskRunner`): a slow or locked archive leaves
+the window responsive, the form saying what it waits for.
 """
 
 from __future__ import annotations
@@ -38,9 +42,10 @@ from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.core.calibration import Calibration
 from stripscan.core.records import Analysis
 from stripscan.gui.errors import report_error, show_message
+from stripscan.gui.tasks import TaskRunner
 
-__all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "NONE",
-           "lot_from_file_name"]
+__all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "store_strips",
+           "NONE", "lot_from_file_name"]
 
 #: What the processor and sensitometer pickers show for "not recorded".
 NONE = "(not recorded)"
@@ -97,7 +102,7 @@ class ArchiveChoices:
     film_type_names: tuple[str, ...] = ()
 
 
-def read_choices(path: str | os.PathLike[str] | None) -> ArchiveChoices:
+def read_choices(path: str | os.PathLike[str] | None, *, progress: Any = None) -> ArchiveChoices:
     """The pickers' contents from an archive file (empty when there is no file yet)."""
     if path is None or not Path(path).is_file():
         return ArchiveChoices()
@@ -110,6 +115,36 @@ def read_choices(path: str | os.PathLike[str] | None) -> ArchiveChoices:
                               tuple(s.sensitometer_id for s in archive.list_sensitometers()), tuple(operators),
                               tuple((s.lot.lot_id, s.lot.film_type or "") for s in lots),
                               tuple(f.name for f in archive.list_film_types()))
+
+
+@dataclass(frozen=True)
+class StoreOutcome:
+    """What :func:`store_strips` did: the snapshots stored, or what the archive holds of the scan already."""
+
+    stored: tuple[Snapshot, ...] = ()
+    held_already: str = ""
+
+
+def store_strips(path: str | os.PathLike[str], analysis: Analysis, form: SaveForm, *,
+                 calibration: dict[str, Any] | None, again: bool, new_lot: EmulsionLot | None,
+                 new_film_type: FilmType | None, progress: Any = None) -> StoreOutcome:
+    """Store one snapshot per strip of ``analysis`` in one transaction (run in a worker thread).
+
+    Unless ``again``, nothing is stored when the archive holds the scan's
+    strips already (the outcome says which).  ``new_lot`` (and its
+    ``new_film_type``) are added first when the archive lacks them.
+    """
+    with Archive.open(path) as archive:
+        if not again:
+            stored = already_stored(archive, analysis)
+            if stored:
+                return StoreOutcome(held_already=describe_stored(stored))
+        if new_lot is not None and form.lot not in [s.lot.lot_id for s in archive.list_lots()]:
+            if new_film_type is not None and form.film_type not in [f.name for f in archive.list_film_types()]:
+                archive.add_film_type(new_film_type)
+            archive.add_lot(new_lot)
+        return StoreOutcome(tuple(archive.add_analysis(analysis, form.lot, calibration=calibration,
+                                                       create_missing=form.new_lot, **form.details())))
 
 
 def lot_from_file_name(path: str | os.PathLike[str]) -> str:
@@ -169,6 +204,9 @@ class SaveSnapshotDialog(QDialog):
     archive_path : path-like or None
         The archive file; made when it does not exist yet.
     parent : QWidget, optional
+    runner : TaskRunner, optional
+        Reads and writes the archive off the UI thread (default: the form's
+        own; a panel that outlives the form passes its own).
 
     Signals
     -------
@@ -184,22 +222,26 @@ class SaveSnapshotDialog(QDialog):
     saved = Signal(str, list)
 
     def __init__(self, analysis: Analysis | None, calibration: CalibrationLike,
-                 archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None) -> None:
+                 archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None, *,
+                 runner: TaskRunner | None = None) -> None:
         super().__init__(parent)
         self.setWindowTitle("Save to the lot archive")
         self.analysis = analysis
         self.calibration = calibration
         self.archive_path = Path(archive_path) if archive_path is not None else None
         self.stored: list[Snapshot] = []
-        try:
-            self.choices = read_choices(self.archive_path)
-        except Exception as exc:  # the form still opens; saving will say what is wrong
-            self.choices = ArchiveChoices()
-            report_error(self, "The archive's lots could not be read", exc)
+        self.runner = runner if runner is not None else TaskRunner(self)
+        #: Filled once the archive has been read (worker thread); until then the form cannot store.
+        self.choices = ArchiveChoices()
+        self.choices_read = False
+        #: The store under way (the buttons wait for it).
+        self.storing = False
+        # Closed (and soon deleted): the archive's answer, when it comes, has nothing left to fill.
+        self._closed = False
+        self.finished.connect(lambda _result: setattr(self, "_closed", True))
 
         self.lot = QComboBox()
         self.lot.setEditable(True)
-        self.lot.addItems(list(self.choices.lots))
         # No lot is chosen for the person: a snapshot under the wrong lot would stay for good.
         self.lot.setCurrentText("")
         self.lot.lineEdit().setPlaceholderText("choose, or type a new lot's id")
@@ -208,7 +250,6 @@ class SaveSnapshotDialog(QDialog):
         #: The lot's film type: typed for a new lot, shown (not changed) for a lot in the archive.
         self.film_type = QComboBox()
         self.film_type.setEditable(True)
-        self.film_type.addItems(list(self.choices.film_type_names))
         self.film_type.setCurrentText("")
         self.film_type.lineEdit().setPlaceholderText("optional, for a new lot: the film's type as on the box")
         self.lot_hint = QLabel()
@@ -216,12 +257,11 @@ class SaveSnapshotDialog(QDialog):
         self.lot_hint.setWordWrap(True)
         self.lot.currentTextChanged.connect(self._lot_changed)
         self.processor = QComboBox()
-        self.processor.addItems([*self.choices.processors, NONE])
+        self.processor.addItem(NONE)
         self.sensitometer = QComboBox()
-        self.sensitometer.addItems([*self.choices.sensitometers, NONE])
+        self.sensitometer.addItem(NONE)
         self.operator = QComboBox()
         self.operator.setEditable(True)
-        self.operator.addItems(list(self.choices.operators))
         self.operator.setCurrentText("")
         self.operator.lineEdit().setPlaceholderText("who exposed, processed and read the strips")
         today = dt.date.today()
@@ -247,6 +287,10 @@ class SaveSnapshotDialog(QDialog):
         form.addRow("", self.again)
         self.summary = QLabel(self._summary_text())
         self.summary.setWordWrap(True)
+        #: What the form waits for: the archive being read, or the strips being stored.
+        self.wait_label = QLabel("Reading the archive's lots, processors and operators…")
+        self.wait_label.setStyleSheet("color: #8a4b00")
+        self.wait_label.setWordWrap(True)
         self.buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Save | QDialogButtonBox.StandardButton.Cancel)
         n = self.strip_count
         self.buttons.button(QDialogButtonBox.StandardButton.Save).setText(
@@ -263,15 +307,66 @@ class SaveSnapshotDialog(QDialog):
         layout.addLayout(form)
         layout.addWidget(required)
         layout.addWidget(caution)
+        layout.addWidget(self.wait_label)
         layout.addWidget(self.buttons)
         self.resize(520, self.sizeHint().height())
         # A lot named in the scan's file name is offered (to be checked, never stored unseen).
         suggested = lot_from_file_name(analysis.scan.path) if analysis is not None else ""
         if suggested:
             self.lot.setCurrentText(suggested)
-            self.new_lot.setChecked(suggested not in self.choices.lots)
             self.lot_hint.setText("Suggested from the scan's file name: check it against the film box.")
+        self._set_waiting()
+        self.runner.start(read_choices, self.archive_path, key="save-choices", on_done=self._choices_read,
+                          on_error=self._choices_failed)
+
+    # -- the archive's choices (read in a worker thread) -----------------------------------------
+    def _choices_failed(self, error: BaseException) -> None:
+        if self._closed:
+            return
+        # The form still works; storing will say what is wrong with the archive.
+        self._choices_read(ArchiveChoices())
+        report_error(self, "The archive's lots could not be read", error)
+
+    def _choices_read(self, choices: ArchiveChoices) -> None:
+        if self._closed:
+            return
+        self.choices = choices
+        self.choices_read = True
+        # What the person typed meanwhile stays; the lists are added under it.
+        for box, items in ((self.lot, choices.lots), (self.film_type, choices.film_type_names),
+                           (self.operator, choices.operators)):
+            typed = box.currentText()
+            box.blockSignals(True)
+            box.clear()
+            box.addItems(list(items))
+            box.setCurrentText(typed)
+            box.blockSignals(False)
+        for box, items in ((self.processor, choices.processors), (self.sensitometer, choices.sensitometers)):
+            box.clear()
+            box.addItems([*items, NONE])
+        suggested = lot_from_file_name(self.analysis.scan.path) if self.analysis is not None else ""
+        if suggested and self.lot.currentText() == suggested:
+            self.new_lot.setChecked(suggested not in choices.lots)
         self._lot_changed(self.lot.currentText())
+        self._set_waiting()
+
+    def reject(self) -> None:
+        if self.storing:  # the strips are being stored: the form waits for the archive's answer
+            return
+        super().reject()
+
+    @property
+    def busy(self) -> bool:
+        """Whether the form waits for the archive (reading its choices, or storing)."""
+        return not self.choices_read or self.storing
+
+    def _set_waiting(self) -> None:
+        self.wait_label.setVisible(self.busy)
+        if self.storing:
+            self.wait_label.setText("Storing the strips… (the archive may be busy with another program; "
+                                    "the window stays usable)")
+        self.buttons.button(QDialogButtonBox.StandardButton.Save).setEnabled(not self.busy)
+        self.buttons.button(QDialogButtonBox.StandardButton.Cancel).setEnabled(not self.storing)
 
     def _lot_changed(self, text: str) -> None:
         known = dict(self.choices.film_types)
@@ -326,22 +421,14 @@ class SaveSnapshotDialog(QDialog):
     def _refuse(self, text: str) -> QMessageBox:
         return show_message(self, "Nothing was stored", text)
 
-    def _held_already(self, archive: Archive) -> bool:
-        """Say so, and offer "Store again", when the archive holds this scan's strips already."""
-        assert self.analysis is not None
-        stored = already_stored(archive, self.analysis)
-        if stored:
-            self.again.setVisible(True)
-            self._refuse(f"The archive holds this scan's strips already ({describe_stored(stored)}). Storing "
-                         "them again counts them twice in every trend and comparison; tick \"Store again\" "
-                         "if that is meant.")
-        return bool(stored)
-
     def save(self) -> bool:
-        """Check the form and store one snapshot per strip; True when stored.
+        """Check the form and store one snapshot per strip (worker thread); True when the store was started.
 
         A refusal shows a message and stores nothing; the form stays open.
+        When the strips are stored, ``saved`` follows and the form closes.
         """
+        if self.busy:
+            return False
         if self.archive_path is None:
             self._refuse("No archive is chosen; choose the archive file first.")
             return False
@@ -362,20 +449,29 @@ class SaveSnapshotDialog(QDialog):
             except (TypeError, ValueError) as exc:
                 report_error(self, "Nothing was stored", exc)
                 return False
-        try:
-            with Archive.open(self.archive_path) as archive:
-                if not self.again.isChecked() and self._held_already(archive):
-                    return False
-                if new_lot_record is not None and form.lot not in [s.lot.lot_id for s in archive.list_lots()]:
-                    if new_film_type is not None and form.film_type not in [f.name for f in archive.list_film_types()]:
-                        archive.add_film_type(new_film_type)
-                    archive.add_lot(new_lot_record)
-                self.stored = archive.add_analysis(
-                    self.analysis, form.lot, calibration=_calibration_dict(self.calibration),
-                    create_missing=form.new_lot, **form.details())
-        except Exception as exc:  # one transaction: nothing of it was stored
-            report_error(self, "Nothing was stored", exc)
-            return False
+        self.storing = True
+        self._set_waiting()
+        self.runner.start(store_strips, self.archive_path, self.analysis, form,
+                          calibration=_calibration_dict(self.calibration), again=self.again.isChecked(),
+                          new_lot=new_lot_record, new_film_type=new_film_type, key="save-store",
+                          on_done=lambda outcome: self._stored(form, outcome), on_error=self._store_failed)
+        return True
+
+    def _store_failed(self, error: BaseException) -> None:
+        self.storing = False
+        self._set_waiting()
+        report_error(self, "Nothing was stored", error)  # one transaction: nothing of it was stored
+
+    def _stored(self, form: SaveForm, outcome: StoreOutcome) -> None:
+        self.storing = False
+        self._set_waiting()
+        if outcome.held_already:
+            # Said, with "Store again" offered: the same strips twice count twice in every trend.
+            self.again.setVisible(True)
+            self._refuse(f"The archive holds this scan's strips already ({outcome.held_already}). Storing "
+                         "them again counts them twice in every trend and comparison; tick \"Store again\" "
+                         "if that is meant.")
+            return
+        self.stored = list(outcome.stored)
         self.saved.emit(form.lot, [s.id for s in self.stored])
         self.accept()
-        return True

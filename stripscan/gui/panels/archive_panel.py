@@ -1,9 +1,10 @@
 """The lot archive in the workbench: lots, their snapshots, one snapshot in full, trends.
 
-Everything shown is read straight from the archive API
-(:class:`stripscan.archive.Archive`), opened read-only for each look, so a
-command line run writing to the same file at the same time is seen on the
-next refresh.  A snapshot is shown read-only: its curve, its figures as
+What is shown and what is read next is decided by the page's model
+(:class:`stripscan.gui.models.archive_page.ArchivePage`); its reading runs in
+a worker thread (:class:`~stripscan.gui.tasks.TaskRunner`), so a slow or
+locked archive never freezes the window, and a command line run writing to
+the same file at the same time is seen on the next refresh.  A snapshot is shown read-only: its curve, its figures as
 stored, its steps, where it came from (scan file and sha256, calibration,
 operator, dates, program version) and its chain of revisions.
 """
@@ -11,9 +12,7 @@ operator, dates, program version) and its chain of revisions.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 import numpy as np
 import pyqtgraph as pg
@@ -35,7 +34,16 @@ from PySide6.QtWidgets import (
 )
 
 from stripscan import CAUTION
-from stripscan.archive import Archive, LotSummary, Snapshot, SnapshotNote, SnapshotSummary, StepReadings
+from stripscan.archive import LotSummary, Snapshot, SnapshotSummary
+from stripscan.gui.models.archive_page import (
+    SNAPSHOT_COLUMNS,
+    ArchivePage,
+    SnapshotRecord,
+    history_rows,
+    provenance_rows,
+    read_snapshot,
+    record_title,
+)
 from stripscan.core.records import Analysis
 from stripscan.core.curve import strip_curve
 from stripscan.core.curve_marks import CURVE_MARKS
@@ -48,97 +56,14 @@ from stripscan.gui.views.tables import STEP_COLUMNS, figure_rows, step_columns, 
 from stripscan.gui.tasks import TaskRunner
 from stripscan.gui.views.trend_view import TrendView
 
-__all__ = ["ArchivePanel", "SnapshotView", "SnapshotRecord", "read_snapshot", "provenance_rows", "status_text"]
+__all__ = ["ArchivePanel", "SnapshotView", "SnapshotRecord", "read_snapshot", "provenance_rows"]
 
 #: Item data role holding a snapshot's id in the tables.
 ID_ROLE = Qt.ItemDataRole.UserRole + 2
 
-# (title, SnapshotSummary field, digits) of the snapshot list.
-_SUMMARY_COLUMNS: tuple[tuple[str, str, int], ...] = (
-    ("Base+fog", "base_fog", 3), ("Speed", "speed_log_exposure", 3),
-    ("Avg. grad.", "average_gradient", 2),
-)
-#: Mid-density and density difference go with the steps they were read at (Archive.step_readings).
-_STEP_READING_COLUMNS = ("Mid-dens.", "MD step", "Dens. diff.", "DD steps")
-
-
-@dataclass(frozen=True)
-class SnapshotRecord:
-    """One snapshot with what an audit asks next to it.
-
-    Attributes
-    ----------
-    snapshot : Snapshot
-    history : list of Snapshot
-        The whole revision chain, oldest first (just the snapshot when never revised).
-    notes : list of SnapshotNote
-        Remarks added after storing.
-    calibration : dict or None
-        The stored calibration the snapshot names.
-    """
-
-    snapshot: Snapshot
-    history: list[Snapshot]
-    notes: list[SnapshotNote]
-    calibration: dict[str, Any] | None
-
-    @property
-    def superseded_by(self) -> int | None:
-        """Id of the revision that corrects this snapshot, or None."""
-        return next((s.id for s in self.history if s.revises == self.snapshot.id), None)
-
-
-def read_snapshot(path: str | os.PathLike[str], snapshot_id: int) -> SnapshotRecord:
-    """Read a snapshot, its revision chain, notes and calibration in one look at the archive."""
-    with Archive.open(path, read_only=True) as archive:
-        snapshot = archive.get_snapshot(snapshot_id)
-        digest = snapshot.calibration_hash
-        return SnapshotRecord(snapshot, archive.history(snapshot_id), archive.list_notes(snapshot_id),
-                              archive.get_calibration(digest) if digest else None)
-
-
-def status_text(item: Snapshot | SnapshotSummary, superseded_by: int | None) -> str:
-    """"current", "corrected by N" or "retired …" in plain words."""
-    if item.retired_at is not None:
-        return f"retired {item.retired_at[:10]}: {item.retired_reason}"
-    if superseded_by is not None:
-        return f"corrected by snapshot {superseded_by}"
-    return "current"
-
 
 def _or_dash(value: object) -> str:
     return "—" if value in (None, "") else str(value)
-
-
-def provenance_rows(record: SnapshotRecord) -> list[tuple[str, str]]:
-    """(what, value) lines saying where a snapshot came from, for the audit trail."""
-    s, scan, cal = record.snapshot, record.snapshot.scan, record.calibration
-    dpi = f"{scan.dpi:g} dpi" if scan.dpi else "resolution unknown"
-    rows = [
-        ("Snapshot", str(s.id)), ("Status", status_text(s, record.superseded_by)),
-        ("Emulsion lot", s.lot_id), ("Processor", _or_dash(s.processor)),
-        ("Sensitometer", _or_dash(s.sensitometer)), ("Operator", _or_dash(s.operator)),
-        ("Exposed on", _or_dash(s.exposed_on)), ("Processed on", _or_dash(s.processed_on)),
-        ("Scanned on", _or_dash(s.scanned_on)), ("Stored (UTC)", s.created_at),
-        ("Program version", f"stripscan {s.program_version}" if s.program_version else "—"),
-        ("Scan file", scan.path), ("Scan sha256", scan.sha256),
-        ("Scan", f"{scan.width} × {scan.height} px, {dpi}, {scan.bits}-bit, {scan.channel}, {scan.decoding}"),
-        ("Strip on the scan", str(s.strip.index)),
-    ]
-    if cal is not None and cal.get("mode") == "direct":
-        rows.append(("Calibration", "none: direct mode, densities uncalibrated"))
-    else:
-        rows.append(("Calibration sha256", _or_dash(s.calibration_hash)))
-    if cal is not None and cal.get("mode") != "direct":
-        rows += [("Calibration made", _or_dash(cal.get("created"))),
-                 ("Calibration tablet scan sha256", _or_dash(cal.get("scan_sha256")))]
-    if s.revises is not None:
-        rows.append(("Corrects snapshot", f"{s.revises}: {s.revision_reason}"))
-    if s.notes:
-        rows.append(("Notes", s.notes))
-    if s.strip.warnings:
-        rows.append(("Warnings of this strip", "; ".join(s.strip.warnings)))
-    return rows
 
 
 def _cell(text: str, value: object = None, *, right: bool = False) -> QTableWidgetItem:
@@ -169,10 +94,6 @@ def _fill(table: QTableWidget, rows: list[list[QTableWidgetItem]]) -> None:
     for r, cells in enumerate(rows):
         for c, item in enumerate(cells):
             table.setItem(r, c, item)
-
-
-def _number(value: float | None, digits: int) -> str:
-    return "—" if value is None else f"{value:.{digits}f}"
 
 
 def _caution() -> QLabel:
@@ -272,7 +193,7 @@ class SnapshotView(QWidget):
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.record: SnapshotRecord | None = None
-        self.title = QLabel("No snapshot open. Choose one from the list and press Open, or click a trend point.")
+        self.title = QLabel(record_title(None))
         self.title.setWordWrap(True)
         bold = QFont()
         bold.setBold(True)
@@ -326,21 +247,13 @@ class SnapshotView(QWidget):
         _fill(self.provenance, [[_cell(k), _cell(v)] for k, v in (provenance_rows(record) if record else [])])
         self.provenance.resizeRowsToContents()
         self._show_history(record)
-        if record is None:
-            self.title.setText("No snapshot open. Choose one from the list and press Open, or click a trend point.")
-            return
-        s = record.snapshot
-        self.title.setText(f"Snapshot {s.id}: lot {s.lot_id}, strip {s.strip.index}, {s.date} "
-                           f"({status_text(s, record.superseded_by)})")
+        self.title.setText(record_title(record))
 
     def _show_history(self, record: SnapshotRecord | None) -> None:
-        chain = record.history if record is not None else []
-        later = {s.revises: s.id for s in chain if s.revises is not None}
         rows = []
-        for s in chain:
-            change = f"corrects {s.revises}: {s.revision_reason}" if s.revises is not None else "first reading"
-            cells = [_cell(str(s.id), s.id), _cell(s.created_at), _cell(change), _cell(status_text(s, later.get(s.id)))]
-            if s.id == record.snapshot.id:  # type: ignore[union-attr]
+        for snapshot_id, stored, change, status in history_rows(record):
+            cells = [_cell(str(snapshot_id), snapshot_id), _cell(stored), _cell(change), _cell(status)]
+            if snapshot_id == record.snapshot.id:  # type: ignore[union-attr]
                 for cell in cells:
                     font = cell.font()
                     font.setBold(True)
@@ -377,6 +290,10 @@ class ArchivePanel(QWidget):
     archive_path : path-like or None
         The archive file.  It is only read here; a missing file shows an
         empty panel that says so (saving the first snapshot makes it).
+    parent : QWidget, optional
+    runner : TaskRunner, optional
+        Runs the page's reading and storing off the UI thread (default: the
+        panel's own).
 
     Signals
     -------
@@ -387,23 +304,30 @@ class ArchivePanel(QWidget):
 
     Attributes
     ----------
+    model : ArchivePage
+        What the page shows and reads, without Qt.
     runner : TaskRunner
-        Runs the demo build off the UI thread; its ``busy_changed`` and
-        ``progress`` signals can drive a progress bar.
+        Runs the reading, storing and the demo build off the UI thread; its
+        ``busy_changed`` and ``progress`` signals can drive a progress bar.
     """
 
     snapshot_opened = Signal(int)
     demo_ready = Signal(str)
 
-    def __init__(self, archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None) -> None:
+    def __init__(self, archive_path: str | os.PathLike[str] | None, parent: QWidget | None = None, *,
+                 runner: TaskRunner | None = None) -> None:
         super().__init__(parent)
-        self.archive_path = Path(archive_path) if archive_path is not None else None
-        self.lot_summaries: list[LotSummary] = []
-        self.snapshots: list[SnapshotSummary] = []
-        self.runner = TaskRunner(self)
+        self.runner = runner if runner is not None else TaskRunner(self)
+        self.model = ArchivePage(archive_path, run=self.runner.start)
+        # Set by open_latest: the next snapshot list read opens its latest line.
+        self._open_when_listed = False
         self.where = QLabel()
         self.where.setWordWrap(True)
         self.where.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        #: Said while the archive is being read or written (a slow or locked file takes a while).
+        self.busy_label = QLabel("Reading the archive…")
+        self.busy_label.setStyleSheet("color: #8a4b00")
+        self.busy_label.setVisible(self.runner.busy)
         self.refresh_button = QPushButton("Refresh")
         self.refresh_button.setToolTip("Read the archive again (another program may have added to it)")
         self.refresh_button.clicked.connect(self.refresh)
@@ -413,21 +337,20 @@ class ArchivePanel(QWidget):
         self.snapshot_title = QLabel("Snapshots")
         self.show_all = QCheckBox("Also corrected and retired")
         self.show_all.setToolTip("List snapshots that a revision corrects or that were retired, too")
-        self.show_all.toggled.connect(self._fill_snapshots)
+        self.show_all.toggled.connect(self.model.set_show_all)
         self.own_steps = QCheckBox("Each strip's own steps")
         self.own_steps.setToolTip(
             "Mid-density and density difference at the steps each strip chose for itself. Unticked, every strip "
             "of the lot is read at the lot's kept steps (those its first snapshot chose), as the trends are, so "
             "that its strips compare")
-        self.own_steps.toggled.connect(self._fill_snapshots)
-        self.snapshot_table = _table(["No.", "Date", "Strip", "Operator", *(t for t, _, _ in _SUMMARY_COLUMNS),
-                                      *_STEP_READING_COLUMNS, "Status"])
+        self.own_steps.toggled.connect(self.model.set_own_steps)
+        self.snapshot_table = _table(list(SNAPSHOT_COLUMNS))
         self.snapshot_table.cellDoubleClicked.connect(lambda row, _col: self.open_selected())
         self.open_button = QPushButton("Open the snapshot")
         self.open_button.clicked.connect(self.open_selected)
         self.view = SnapshotView()
         self.view.open_requested.connect(self.open_snapshot)
-        self.trend = TrendView(self.archive_path)
+        self.trend = TrendView(self.model.path, runner=self.runner)
         self.trend.snapshot_clicked.connect(self.open_snapshot)
         self.tabs = QTabWidget()
         self.tabs.addTab(self.view, "Snapshot")
@@ -435,6 +358,7 @@ class ArchivePanel(QWidget):
 
         head = QHBoxLayout()
         head.addWidget(self.where, 1)
+        head.addWidget(self.busy_label)
         head.addWidget(self.refresh_button)
         listing = QHBoxLayout()
         listing.addWidget(self.snapshot_title, 1)
@@ -458,143 +382,142 @@ class ArchivePanel(QWidget):
         layout.addLayout(head)
         layout.addWidget(split, 1)
         layout.addWidget(self.caution)
+        events = self.model.events
+        events.lots_changed.connect(self._show_lots)
+        events.snapshots_changed.connect(self._show_snapshots)
+        events.record_changed.connect(self._show_record)
+        events.failed.connect(lambda title, error: report_error(self, title, error))
+        self.runner.busy_changed.connect(self.busy_label.setVisible)
         self.refresh()
 
     # -- the archive -------------------------------------------------------------------------
+    @property
+    def archive_path(self) -> Path | None:
+        """The archive file shown."""
+        return self.model.path
+
+    @property
+    def lot_summaries(self) -> list[LotSummary]:
+        return self.model.lots
+
+    @property
+    def snapshots(self) -> tuple[SnapshotSummary, ...]:
+        return self.model.snapshots
+
+    @property
+    def busy(self) -> bool:
+        """Whether the archive is being read or written for this page."""
+        return self.runner.busy
+
     def set_archive(self, path: str | os.PathLike[str] | None) -> None:
         """Show another archive file."""
-        self.archive_path = Path(path) if path is not None else None
-        self.view.show_record(None)
-        self.trend.set_archive(self.archive_path)
-        self.refresh()
+        self.trend.set_archive(path)
+        self.model.set_archive(path)
+        self.where.setText(self.model.where_text())
 
     def refresh(self) -> None:
-        """Read lots and snapshots again, keeping the selected lot and the open snapshot."""
-        chosen = self.selected_lot()
-        path = self.archive_path
-        self.lot_summaries = []
-        if path is None:
-            self.where.setText("No archive chosen.")
-        elif not path.is_file():
-            self.where.setText(f"No archive yet at {path}; it is made when the first snapshot is saved.")
-        else:
-            self.where.setText(f"Archive: {path}")
-            try:
-                with Archive.open(path, read_only=True) as archive:
-                    self.lot_summaries = archive.list_lots()
-            except Exception as exc:  # shown, never fatal
-                report_error(self, "The archive could not be read", exc)
+        """Read lots and snapshots again (worker thread), keeping the selected lot and the open snapshot."""
+        self.where.setText(self.model.where_text())
+        self.model.refresh()
+        self.trend.refresh()
+
+    # -- lots and snapshots ------------------------------------------------------------------
+    def _show_lots(self) -> None:
+        self.where.setText(self.model.where_text())
         self.lots.blockSignals(True)
         try:
             _fill(self.lots, [[_cell(s.lot.lot_id, s.lot.lot_id), _cell(_or_dash(s.lot.film_type)),
                                _cell(str(s.snapshot_count), s.snapshot_count, right=True),
                                _cell(_or_dash(s.first_date)), _cell(_or_dash(s.last_date))]
-                              for s in self.lot_summaries])
-        finally:
-            self.lots.blockSignals(False)
-        ids = [s.lot.lot_id for s in self.lot_summaries]
-        self.select_lot(chosen if chosen in ids else (ids[0] if ids else None))
-        self.trend.refresh()
-        if self.view.record is not None:
-            self.open_snapshot(self.view.record.snapshot.id, quiet=True)
-
-    # -- lots and snapshots ------------------------------------------------------------------
-    def selected_lot(self) -> str | None:
-        rows = self.lots.selectionModel().selectedRows()
-        return self.lots.item(rows[0].row(), 0).text() if rows else None
-
-    def select_lot(self, lot: str | None) -> None:
-        """Select a lot by id (None: none) and list its snapshots."""
-        self.lots.blockSignals(True)
-        try:
+                              for s in self.model.lots])
             self.lots.clearSelection()
             for k in range(self.lots.rowCount()):
-                if self.lots.item(k, 0).text() == lot:
+                if self.lots.item(k, 0).text() == self.model.lot:
                     self.lots.selectRow(k)
         finally:
             self.lots.blockSignals(False)
-        self._fill_snapshots()
+
+    def selected_lot(self) -> str | None:
+        return self.model.lot
+
+    def select_lot(self, lot: str | None) -> None:
+        """Select a lot by id (None: none) and list its snapshots."""
+        self.model.select_lot(lot)
+        self._show_lots()
 
     def _lot_changed(self) -> None:
-        self._fill_snapshots()
+        rows = self.lots.selectionModel().selectedRows()
+        self.model.select_lot(self.lots.item(rows[0].row(), 0).text() if rows else None)
 
-    def _fill_snapshots(self, *_: object) -> None:
-        lot = self.selected_lot()
-        self.snapshots = []
-        readings: dict[int, StepReadings] = {}
-        if lot is not None and self.archive_path is not None and self.archive_path.is_file():
-            every = self.show_all.isChecked()
-            try:
-                with Archive.open(self.archive_path, read_only=True) as archive:
-                    self.snapshots = archive.list_snapshots(lot, include_retired=every, include_superseded=every)
-                    readings = archive.step_readings(lot, at_lot_steps=not self.own_steps.isChecked(),
-                                                     include_retired=every, include_superseded=every)
-            except Exception as exc:  # shown, never fatal
-                report_error(self, f"The snapshots of lot {lot} could not be read", exc)
+    def _show_snapshots(self) -> None:
         rows = []
-        for s in self.snapshots:
-            cells = [_cell(str(s.id), s.id, right=True), _cell(s.date), _cell(str(s.strip_index), right=True),
-                     _cell(_or_dash(s.operator))]
-            cells += [_cell(_number(getattr(s, name), digits), getattr(s, name), right=True)
-                      for _, name, digits in _SUMMARY_COLUMNS]
-            qc = readings.get(s.id, StepReadings(None, None, None, None, None))
-            dd_steps = f"{qc.dd_high_step}−{qc.dd_low_step}" if qc.dd_high_step is not None else "—"
-            cells += [_cell(_number(qc.mid_density, 3), qc.mid_density, right=True),
-                      _cell(_or_dash(qc.mid_step), qc.mid_step, right=True),
-                      _cell(_number(qc.density_difference, 3), qc.density_difference, right=True),
-                      _cell(dd_steps, right=True)]
-            cells.append(_cell(status_text(s, s.superseded_by)))
-            if not s.current:
+        for row in self.model.snapshot_rows():
+            cells = [_cell(text, value, right=right) for text, value, right in row.cells]
+            if not row.current:
                 for cell in cells:
                     cell.setForeground(pg.mkColor("#8a8a8a"))
             rows.append(cells)
         _fill(self.snapshot_table, rows)
-        self.snapshot_title.setText(f"Snapshots of lot {lot} ({len(self.snapshots)})" if lot else "Snapshots")
-        self.open_button.setEnabled(bool(self.snapshots))
-        if self.snapshots:
-            self.snapshot_table.selectRow(len(self.snapshots) - 1)  # the latest reading first to hand
+        self.snapshot_title.setText(self.model.listing_title())
+        self.open_button.setEnabled(bool(rows))
+        if rows:
+            self.snapshot_table.selectRow(len(rows) - 1)  # the latest reading first to hand
+        self._mark_open_row()
+        if self._open_when_listed and rows:
+            self._open_when_listed = False
+            self.open_selected()
 
     def selected_snapshot(self) -> int | None:
         rows = self.snapshot_table.selectionModel().selectedRows()
         return int(self.snapshot_table.item(rows[0].row(), 0).data(VALUE_ROLE)) if rows else None
 
     def open_selected(self) -> bool:
-        """Open the snapshot selected in the list."""
+        """Open the snapshot selected in the list (read in a worker thread)."""
         snapshot_id = self.selected_snapshot()
         return snapshot_id is not None and self.open_snapshot(snapshot_id)
 
+    def open_latest(self) -> None:
+        """Open the chosen lot's latest snapshot once the list has been read (now, if it has been)."""
+        self._open_when_listed = True
+        if not self.busy:
+            self._show_snapshots()
+
     def open_snapshot(self, snapshot_id: int, *, quiet: bool = False) -> bool:
-        """Show snapshot ``snapshot_id``; False (with a message) when it cannot be read."""
-        if self.archive_path is None:
-            return False
-        try:
-            record = read_snapshot(self.archive_path, snapshot_id)
-        except Exception as exc:  # shown, never fatal
-            if not quiet:
-                report_error(self, f"Snapshot {snapshot_id} could not be opened", exc)
-            self.view.show_record(None)
-            return False
+        """Read snapshot ``snapshot_id`` and show it; False when there is no archive.
+
+        The reading runs in a worker thread; a snapshot that cannot be read
+        is said in a message (unless ``quiet``) and leaves the view empty.
+        """
+        return self.model.open_snapshot(snapshot_id, quiet=quiet)
+
+    def _show_record(self, quiet: bool) -> None:
+        record = self.model.record
         self.view.show_record(record)
-        for k, summary in enumerate(self.snapshots):
-            if summary.id == snapshot_id:  # the list shows which line is open
-                self.snapshot_table.selectRow(k)
+        if record is None:
+            return
+        self._mark_open_row()
         if not quiet:
             self.tabs.setCurrentWidget(self.view)
-            self.snapshot_opened.emit(snapshot_id)
-        return True
+            self.snapshot_opened.emit(record.snapshot.id)
+
+    def _mark_open_row(self) -> None:
+        record = self.model.record
+        for k, summary in enumerate(self.model.snapshots):
+            if record is not None and summary.id == record.snapshot.id:  # the list shows which line is open
+                self.snapshot_table.selectRow(k)
 
     # -- storing ----------------------------------------------------------------------------
     def save_dialog(self, analysis: Analysis | None, calibration: CalibrationLike) -> SaveSnapshotDialog:
         """Open the short form that stores ``analysis`` in this panel's archive; the panel follows."""
-        dialog = SaveSnapshotDialog(analysis, calibration, self.archive_path, self)
+        dialog = SaveSnapshotDialog(analysis, calibration, self.archive_path, self, runner=self.runner)
         dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         dialog.saved.connect(self._saved)
         dialog.open()
         return dialog
 
     def _saved(self, lot: str, ids: list[int]) -> None:
+        self.model.lot = lot  # kept by the refresh: the stored lot is listed
         self.refresh()
-        self.select_lot(lot)
 
     def build_demo(self, folder: str | os.PathLike[str]) -> None:
         """Build the invented demo archive in ``folder`` (a worker thread, ~10 s) and show it.

@@ -1,7 +1,7 @@
 """Emulsion lots side by side: mean curves ± 1 sd, ΔD and Δlog E, and the table of figures.
 
 A standalone widget over comparisons already made by the core
-(:func:`stripscan.core.compare.statistics.compare_sets`: every set against the first).
+(:func:`stripscan.core.compare.comparison.compare_sets`: every set against the first).
 It draws, at a glance:
 
 * every set's mean characteristic curve with a ±1 sd band over its strips;
@@ -13,12 +13,12 @@ It draws, at a glance:
 
 With more than two sets a chooser picks which pair the table shows; the
 plots show every set and every pair.  The panel only displays: it never
-changes a comparison.
+changes a comparison.  What is shown (the comparisons, the pair, the words
+around them) is held by its model, :class:`stripscan.gui.models.compare_page.ComparePage`.
 """
 
 from __future__ import annotations
 
-import re
 from collections.abc import Sequence
 
 import numpy as np
@@ -39,7 +39,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.core.compare.statistics import Comparison, FigureRow
+from stripscan.core.compare.comparison import Comparison
+from stripscan.core.compare.statistics import FigureRow
+from stripscan.gui.models.compare_page import EMPTY_WORDS, ComparePage, plain_names
 from stripscan.gui.style import caution_label, notes_label, strip_colour
 
 __all__ = ["ComparePanel", "plain_names", "COLUMNS", "VERDICT_COLOURS"]
@@ -88,18 +90,13 @@ def _plot(title: str, x_label: str, y_label: str) -> pg.PlotWidget:
     return widget
 
 
-def plain_names(text: str) -> str:
-    """Set names as a person reads them: ``lot:M-2610-A`` (the command line's way to name a set) as ``lot M-2610-A``."""
-    return re.sub(r"'?\blot:([^\s',()]+)'?", r"lot \1", text)
-
-
 class ComparePanel(QWidget):
     """Sets of strips side by side.
 
     Parameters
     ----------
     comparisons : sequence of Comparison
-        From :func:`stripscan.core.compare.statistics.compare_sets`: set k against set 0.
+        From :func:`stripscan.core.compare.comparison.compare_sets`: set k against set 0.
     parent : QWidget, optional
 
     Attributes
@@ -110,12 +107,15 @@ class ComparePanel(QWidget):
         The figures of the chosen pair, columns :data:`COLUMNS`.
     pair_choice : QComboBox
         Which pair the table shows (hidden with two sets).
+    model : ComparePage
+        The comparisons shown and the chosen pair, without Qt.
     """
 
     def __init__(self, comparisons: Sequence[Comparison] = (), parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.setWindowTitle("Compare sets of strips")
-        self._comparisons: tuple[Comparison, ...] = ()
+        self.model = ComparePage()
+        self.model.changed.connect(self._show)
         self.title = QLabel()
         bold = QFont()
         bold.setBold(True)
@@ -173,21 +173,26 @@ class ComparePanel(QWidget):
 
     @property
     def comparisons(self) -> tuple[Comparison, ...]:
-        return self._comparisons
+        return self.model.comparisons
 
-    def set_comparisons(self, comparisons: Sequence[Comparison]) -> None:
+    @property
+    def _comparisons(self) -> tuple[Comparison, ...]:
+        return self.model.comparisons
+
+    def set_comparisons(self, comparisons: Sequence[Comparison], result: object = None) -> None:
         """Show new comparisons (set k against set 0), replacing what is shown."""
-        self._comparisons = tuple(comparisons)
+        self.model.set_comparisons(comparisons, result)
+
+    def _show(self) -> None:
         for widget in (self.curve_plot, self.delta_density_plot, self.shift_plot):
             widget.getPlotItem().clear()
         self.pair_choice.blockSignals(True)
         self.pair_choice.clear()
-        for c in self._comparisons:
-            self.pair_choice.addItem(plain_names(f"{c.b.name} against {c.a.name}"))
+        self.pair_choice.addItems(self.model.pair_names())
         self.pair_choice.blockSignals(False)
         self.pair_choice.setVisible(len(self._comparisons) > 1)
         if not self._comparisons:
-            self.title.setText("No comparison to show: compare two or more sets of strips.")
+            self.title.setText(EMPTY_WORDS)
             self.table.setRowCount(0)
             self.notes.setText("")
             return
@@ -236,22 +241,16 @@ class ComparePanel(QWidget):
             shift_item.addItem(pg.PlotDataItem(net[ok], shift[ok], pen=_pen(k), name=plain_names(c.b.name)))
 
     def _show_table(self, index: int) -> None:
-        if not 0 <= index < len(self._comparisons):
+        if not self.model.choose_pair(index):
             return
         c = self._comparisons[index]
-        self.title.setText(plain_names(f"{c.b.name} (B, {c.b.n} strips) against {c.a.name} (A, {c.a.n} strips): "
-                                       "differences B − A, relative speed positive = B faster"))
+        self.title.setText(self.model.title())
         self.table.setRowCount(len(c.rows))
         for r, row in enumerate(c.rows):
             cells = row.cells()
             for col, key in enumerate(_CELL_KEYS):
                 self.table.setItem(r, col, self._item(row, key, cells[key]))
-        notes = list(c.notes)
-        if c.qc_steps is not None:
-            st = c.qc_steps
-            notes.insert(0, f"Mid-density at step {st.mid_step}, density difference at step {st.dd_high_step} − "
-                            f"step {st.dd_low_step} on every strip (chosen on {c.a.name}).")
-        self.notes.setText(plain_names("\n".join(notes)))
+        self.notes.setText(self.model.notes())
 
     @staticmethod
     def _item(row: FigureRow, key: str, text: str) -> QTableWidgetItem:

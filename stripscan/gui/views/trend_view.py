@@ -1,8 +1,9 @@
 """A chosen figure over time, one series per emulsion lot, from the lot archive.
 
 Every point is one current snapshot as :meth:`Archive.trend
-<stripscan.archive.Archive.trend>` returns it; clicking a point asks for
-that snapshot to be opened.  Lots are told apart by colour *and* symbol, so
+<stripscan.archive.Archive.trend>` returns it, read in a worker thread
+(:func:`stripscan.gui.models.archive_page.read_trend`); clicking a point
+asks for that snapshot to be opened.  Lots are told apart by colour *and* symbol, so
 the legend still reads for people who do not see the colours apart.
 """
 
@@ -26,11 +27,13 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.archive import FIGURES, Archive, TrendPoint
+from stripscan.archive import FIGURES, LotSummary, TrendPoint
 from stripscan.archive.records import FIGURE_UNITS
 from stripscan.core.curve import FigureSettings
 from stripscan.gui.errors import report_error
+from stripscan.gui.models.archive_page import TrendData, read_lots, read_trend
 from stripscan.gui.style import strip_colour
+from stripscan.gui.tasks import TaskRunner
 from stripscan.gui.views.tables import figure_rows
 
 __all__ = ["TrendView", "figure_labels", "day_seconds"]
@@ -115,7 +118,10 @@ class TrendView(QWidget):
     Parameters
     ----------
     archive_path : path-like or None
-        The archive to read (opened read-only for each refresh).
+        The archive to read (opened read-only for each refresh, in a worker thread).
+    parent : QWidget, optional
+    runner : TaskRunner, optional
+        Runs the reading (default: the view's own).
 
     Signals
     -------
@@ -125,8 +131,10 @@ class TrendView(QWidget):
 
     snapshot_clicked = Signal(int)
 
-    def __init__(self, archive_path: str | os.PathLike[str] | None = None, parent: QWidget | None = None) -> None:
+    def __init__(self, archive_path: str | os.PathLike[str] | None = None, parent: QWidget | None = None, *,
+                 runner: TaskRunner | None = None) -> None:
         super().__init__(parent)
+        self.runner = runner if runner is not None else TaskRunner(self)
         self.archive_path = Path(archive_path) if archive_path is not None else None
         self.points: list[TrendPoint] = []
         self.series: dict[str, pg.ScatterPlotItem] = {}
@@ -213,15 +221,20 @@ class TrendView(QWidget):
         self.refresh()
 
     def refresh(self) -> None:
-        """Read the archive's lots again (ticks kept, new lots ticked) and redraw."""
+        """Read the archive's lots again (worker thread; ticks kept, new lots ticked) and redraw."""
+        if not self._readable():
+            self._lots_read([])
+            return
+        self.runner.start(read_lots, self.archive_path, key="trend-lots", on_done=self._lots_read,
+                          on_error=self._lots_failed)
+
+    def _lots_failed(self, error: BaseException) -> None:
+        self._lots_read([])
+        report_error(self, "The archive's lots could not be read", error)
+
+    def _lots_read(self, summaries: list[LotSummary]) -> None:
+        lots = [s.lot.lot_id for s in summaries]
         before = {self.lots.item(k).text(): self.lots.item(k).checkState() for k in range(self.lots.count())}
-        lots: list[str] = []
-        if self._readable():
-            try:
-                with Archive.open(self.archive_path, read_only=True) as archive:
-                    lots = [s.lot.lot_id for s in archive.list_lots()]
-            except Exception as exc:  # shown, never fatal
-                report_error(self, "The archive's lots could not be read", exc)
         self.lots.blockSignals(True)
         try:
             self.lots.clear()
@@ -239,36 +252,32 @@ class TrendView(QWidget):
         return self.archive_path is not None and self.archive_path.is_file()
 
     def redraw(self, *_: object) -> None:
-        """Query the trend of the chosen figure and lots and draw it."""
+        """Read the trend of the chosen figure and lots (worker thread) and draw it."""
         lots, figure = self.chosen_lots(), self.figure_name
-        points: list[TrendPoint] = []
-        steps: dict[str, tuple[int, int, int] | None] = {}
-        if lots and self._readable():
-            try:
-                with Archive.open(self.archive_path, read_only=True) as archive:
-                    points = archive.trend(figure, lots)
-                    if figure in ("mid_density", "density_difference"):
-                        steps = {lot: archive.lot_qc_steps(lot) for lot in lots}
-            except Exception as exc:  # shown, never fatal
-                report_error(self, "The trend could not be read", exc)
-        self.points = points
-        self.steps_note.setText(_steps_note(figure, steps))
-        self.steps_note.setVisible(bool(steps))
-        self._draw(figure, lots, points)
-        self._draw_events()
+        if not (lots and self._readable()):
+            self._show(figure, lots, TrendData())
+            return
 
-    def _draw_events(self) -> None:
+        def failed(exc: BaseException) -> None:
+            self._show(figure, lots, TrendData())
+            report_error(self, "The trend could not be read", exc)
+
+        self.runner.start(read_trend, self.archive_path, figure, lots, key="trend",
+                          on_done=lambda data: self._show(figure, lots, data), on_error=failed)
+
+    def _show(self, figure: str, lots: list[str], data: TrendData) -> None:
+        self.points = list(data.points)
+        self.steps_note.setText(_steps_note(figure, data.steps))
+        self.steps_note.setVisible(bool(data.steps))
+        self._draw(figure, lots, self.points)
+        self._draw_events(data)
+
+    def _draw_events(self, data: TrendData) -> None:
         # Processor events (chemistry changes, service) explain steps in a trend.
         if not self.points:
             return
-        try:
-            with Archive.open(self.archive_path, read_only=True) as archive:
-                events = archive.list_qc_events()
-        except Exception as exc:  # shown, never fatal
-            report_error(self, "The processor events could not be read", exc)
-            return
         first, last = self.points[0].date, self.points[-1].date
-        for event in events:
+        for event in data.events:
             if first <= event.date <= last:
                 line = pg.InfiniteLine(day_seconds(event.date), angle=90, movable=False,
                                        pen=pg.mkPen("#757575", width=1, style=Qt.PenStyle.DotLine),
