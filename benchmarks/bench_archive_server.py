@@ -28,7 +28,8 @@ from collections.abc import Callable
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
-sys.path[:0] = [str(ROOT), str(ROOT / "tests"), str(ROOT / "tests" / "archive")]
+# Run as a script this folder is on sys.path already; loaded by path (the test) it is not.
+sys.path[:0] = [str(ROOT), str(ROOT / "benchmarks"), str(ROOT / "tests"), str(ROOT / "tests" / "archive")]
 
 import bench_archive  # noqa: E402
 from archive_factory import LOTS, PROCESSORS  # noqa: E402

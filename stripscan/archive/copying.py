@@ -93,5 +93,5 @@ def copy_archive(source: "Archive", dest: "Archive") -> dict[str, int]:
     """
     if _stored(dest):
         raise ArchiveError(f"{dest.path} already holds records; copy into a new, empty archive")
-    with source._reading() as reading, dest._writing(f"copy {source.path} into it") as writing:
+    with source.read_together() as reading, dest._writing(f"copy {source.path} into it") as writing:
         return copy_tables(reading, writing)

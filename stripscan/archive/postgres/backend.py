@@ -331,4 +331,4 @@ class _SourceView:
 
     def __init__(self, backend: PostgresBackend) -> None:
         self.path = backend.location
-        self._reading = backend.reading
+        self.read_together = backend.reading
