@@ -11,13 +11,14 @@ from pathlib import Path
 import pytest
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.core.qc.rules import QCValues
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
+from stripscan.core.qc.records import QCValues
 from stripscan.gui.models.archive_page import SNAPSHOT_COLUMNS, ArchivePage
 from stripscan.gui.models.compare_page import ComparePage, read_compared_lots
 from stripscan.gui.models.qc_page import QcPage, form_date, typed_values
-from stripscan.services.qc_log import add_day
+from stripscan.services.qc_recording import add_day
 
 
 @pytest.fixture(scope="module")
