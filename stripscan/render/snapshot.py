@@ -244,13 +244,14 @@ def reports_from_analysis(analysis: Analysis, *, calibration: "Calibration | dic
 
 
 def _status(snapshot: "Snapshot", archive: "Archive | None") -> str:
-    if snapshot.retired_at is not None:
-        return f"retired ({when(snapshot.retired_at)}: {snapshot.retired_reason})"
-    if archive is not None:
-        later = [s.id for s in archive.history(snapshot.id) if s.revises == snapshot.id]
-        if later:
-            return f"revised by snapshot {later[0]}: a later reading corrects it"
-    return "current"
+    # The one wording the command line, the window and CSV use (records.snapshot_status).
+    from stripscan.archive.records import snapshot_status
+
+    later = None
+    if archive is not None and snapshot.retired_at is None:
+        later = next((s.id for s in archive.history(snapshot.id) if s.revises == snapshot.id), None)
+    status = snapshot_status(snapshot, later)
+    return f"{status}: a later reading corrects it" if later is not None else status
 
 
 def report_from_snapshot(snapshot: "Snapshot", *, archive: "Archive | None" = None,

@@ -147,7 +147,8 @@ def test_closing_the_window_stops_a_batch_and_waits_for_it(qtbot, window, files,
 
     folder = tmp_path / "in"
     folder.mkdir()
-    for k in range(8):
+    # Enough scans that a loaded machine cannot finish them between the first result and the close.
+    for k in range(40):
         shutil.copyfile(files.scan, folder / f"day_{k}.tif")
     out = tmp_path / "out"
     out.mkdir()
