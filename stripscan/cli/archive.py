@@ -103,7 +103,7 @@ def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any
     """
     from stripscan.core.calibration_files import load_calibration
     from stripscan.core.figure_settings import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.reading import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None

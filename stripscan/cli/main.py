@@ -187,7 +187,7 @@ def format_analysis(analysis) -> str:
 
 def _analysis_options(args):
     from stripscan.core.figure_settings import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.reading import AnalysisOptions
 
     figures = FigureSettings(
         gradient_low=args.low,
@@ -308,7 +308,7 @@ def cmd_calibrate(args) -> int:
     from stripscan.core.calibration import ACCURACY_GOAL
     from stripscan.core.calibration_files import save_calibration
     from stripscan.core.certificate import read_certificate
-    from stripscan.core.pipeline import calibrate_tablet
+    from stripscan.core.tablet import calibrate_tablet
 
     certificate = read_certificate(args.densities)
     lateral = None

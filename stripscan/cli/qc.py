@@ -88,7 +88,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
     if args.scan is None and (args.calibration or args.strip is not None or args.lot):
         return fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
     if args.scan is not None and args.calibration is None:
-        # The log refuses an uncalibrated read anyway (qc_log.read_strip); say so before the scan is analysed.
+        # The log refuses an uncalibrated read anyway (qc_recording.read_strip); say so before the scan is analysed.
         return fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:

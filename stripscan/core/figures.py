@@ -375,7 +375,7 @@ NOISE_ONLY_NOTE = (
 
 def read_in_direct_mode(strip: StripResult | None) -> bool:
     """Whether the strip was read without a calibration (its warnings carry the UNCALIBRATED one)."""
-    from stripscan.core.pipeline import UNCALIBRATED
+    from stripscan.core.reading import UNCALIBRATED
 
     return strip is not None and UNCALIBRATED in strip.warnings
 

@@ -195,7 +195,8 @@ class SetLoader:
     def _scan(self, spec: SetSpec) -> StripSet:
         from stripscan.core.calibration_files import load_calibration
         from stripscan.core.compare.sets import StripSet
-        from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+        from stripscan.core.pipeline import analyze_scan
+        from stripscan.core.reading import AnalysisOptions
 
         if self.calibration_path is not None and self._calibration is None:
             self._calibration = load_calibration(self.calibration_path)

@@ -138,7 +138,7 @@ def generate(folder: str | os.PathLike[str]) -> DemoFiles:
     """Write every demo file into ``folder`` (deterministic)."""
     from stripscan.core.calibration_files import save_calibration
     from stripscan.core.certificate import read_certificate
-    from stripscan.core.pipeline import calibrate_tablet
+    from stripscan.core.tablet import calibrate_tablet
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)

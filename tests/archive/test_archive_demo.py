@@ -20,7 +20,8 @@ from stripscan.services.demo_archive import (
     demo_schedule,
 )
 from stripscan.core.calibration_files import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.sim.demo_data import LOT_FILMS, SCENARIO, demo_files
 
 

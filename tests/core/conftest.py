@@ -10,7 +10,7 @@ import pytest
 
 from stripscan.core.calibration import Calibration
 from stripscan.core.certificate import Certificate
-from stripscan.core.pipeline import calibrate_tablet
+from stripscan.core.tablet import calibrate_tablet
 from stripscan.sim.objects import ScannerModel, SimulatedScan, TabletSpec
 from stripscan.sim.simulate import simulate_scan, write_tiff
 

@@ -7,7 +7,8 @@ import math
 import numpy as np
 import pytest
 
-from stripscan.core.calibration import ACCURACY_GOAL, DirectMode, fit_calibration, fit_lateral, flat_field
+from stripscan.core.calibration import ACCURACY_GOAL, DirectMode, fit_lateral, flat_field
+from stripscan.core.calibration_fit import fit_calibration
 from stripscan.core.calibration_files import load_calibration, save_calibration
 from stripscan.core.certificate import CalibrationError, parse_certificate, read_certificate
 from stripscan.core.records import StepReading

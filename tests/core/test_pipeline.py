@@ -19,7 +19,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from stripscan.core.pipeline import AnalysisError, analyze_scan
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.scan_checks import AnalysisError
 from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
 
 
@@ -202,7 +203,8 @@ def test_json_output_round_trips(bench, match_strips):
 def test_every_direct_mode_strip_says_it_is_uncalibrated(tmp_path):
     # DESIGN §1: a flatbed scanner is not a densitometer; a strip read without a tablet
     # calibration carries the warning itself, wherever it goes alone (window, snapshot).
-    from stripscan.core.pipeline import UNCALIBRATED, analyze_scan
+    from stripscan.core.pipeline import analyze_scan
+    from stripscan.core.reading import UNCALIBRATED
     from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
     from stripscan.sim.simulate import simulate_scan, write_tiff
 

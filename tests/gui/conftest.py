@@ -20,7 +20,7 @@ if str(Path(__file__).parent) not in sys.path:
 
 from stripscan.core.calibration_files import save_calibration
 from stripscan.core.certificate import read_certificate
-from stripscan.core.pipeline import calibrate_tablet  # noqa: E402
+from stripscan.core.tablet import calibrate_tablet
 from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
 from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 

@@ -24,7 +24,8 @@ from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
 from stripscan.core.calibration_files import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCValues
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog

@@ -9,7 +9,8 @@ from pathlib import Path
 import pytest
 
 from stripscan import CAUTION
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.gui.dialogs import batch_dialog
 from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
 from stripscan.gui.tasks import TaskRunner
