@@ -18,7 +18,10 @@ Each is the best of ``--runs`` fresh processes, the three taken in turn
 (all see the same load on a shared machine).  The throughput ratio is the
 one-core time ÷ the all-cores time: the start of the processes and the
 loading of the libraries in each worker are part of it, as a user waits
-for them.
+for them.  The processor time of the runs is printed beside: on a machine
+busy with other work the wall times say little (the kernel shares the
+processors between sessions), while the processor time a batch costs on
+every core against one core shows what the workers add.
 
 :func:`measure` returns the figures for ``run_all.py``.
 """
@@ -27,6 +30,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import shutil
 import subprocess
 import sys
@@ -54,6 +58,8 @@ class BatchTiming:
     one_core_s: float
     all_cores_s: float
     one_worker_s: float  # --workers 1, not held to one CPU
+    one_core_cpu_s: float  # processor time the one-core run used (user + system, its processes together)
+    all_cores_cpu_s: float
 
     @property
     def speedup(self) -> float:
@@ -82,22 +88,26 @@ def _one_cpu() -> None:
     os.sched_setaffinity(0, {min(os.sched_getaffinity(0))})
 
 
-def _run(scans: Path, out: Path, workers: int, *, one_cpu: bool = False) -> float:
+def _run(scans: Path, out: Path, workers: int, *, one_cpu: bool = False) -> tuple[float, float]:
+    """Wall time and processor time (user + system, of the command and its workers) of one run."""
     shutil.rmtree(out, ignore_errors=True)
     env = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, (str(ROOT), os.environ.get("PYTHONPATH")))))
     command = [sys.executable, "-m", "stripscan", "analyze", str(scans), "-o", str(out), "--workers", str(workers),
                "--quiet"]
+    before = resource.getrusage(resource.RUSAGE_CHILDREN)
     start = time.perf_counter()
     done = subprocess.run(command, capture_output=True, text=True, env=env, cwd=ROOT,
                           preexec_fn=_one_cpu if one_cpu else None)
     elapsed = time.perf_counter() - start
+    after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     if done.returncode != 0:
         raise RuntimeError(f"{' '.join(command)} failed ({done.returncode}): {done.stderr.strip()[-2000:]}")
     written = len(list(out.glob("*.json")))
     expected = len(list(scans.iterdir()))
     if written != expected:
         raise RuntimeError(f"{out}: {written} results written for {expected} scans")
-    return elapsed
+    return elapsed, cpu
 
 
 def measure(scans: int = 50, runs: int = 3, dpi: float = 600.0) -> BatchTiming:
@@ -106,11 +116,12 @@ def measure(scans: int = 50, runs: int = 3, dpi: float = 600.0) -> BatchTiming:
     ways = {"one core": (1, True), "one worker": (1, False), "all cores": (cores, False)}
     with tempfile.TemporaryDirectory() as tmp:
         folder = make_folder(Path(tmp), scans, dpi)
-        best = dict.fromkeys(ways, float("inf"))
+        best = dict.fromkeys(ways, (float("inf"), 0.0))
         for _ in range(runs):
             for name, (workers, one_cpu) in ways.items():
                 best[name] = min(best[name], _run(folder, Path(tmp) / "out", workers, one_cpu=one_cpu))
-    return BatchTiming(scans, cores, dpi, best["one core"], best["all cores"], best["one worker"])
+    return BatchTiming(scans, cores, dpi, best["one core"][0], best["all cores"][0], best["one worker"][0],
+                       best["one core"][1], best["all cores"][1])
 
 
 def main() -> None:
@@ -123,7 +134,8 @@ def main() -> None:
     print(f"{t.scans} scans at {t.dpi:g} dpi: one core {t.one_core_s:.2f} s ({t.scans / t.one_core_s:.1f} scans/s), "
           f"{t.cores} cores {t.all_cores_s:.2f} s ({t.scans / t.all_cores_s:.1f} scans/s); "
           f"throughput ratio {t.speedup:.2f}; --workers 1 not held to one CPU {t.one_worker_s:.2f} s "
-          f"(ratio {t.one_worker_s / t.all_cores_s:.2f})")
+          f"(ratio {t.one_worker_s / t.all_cores_s:.2f}); processor time {t.one_core_cpu_s:.1f} s on one core, "
+          f"{t.all_cores_cpu_s:.1f} s on {t.cores}")
 
 
 if __name__ == "__main__":

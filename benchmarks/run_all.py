@@ -222,6 +222,7 @@ def batch_figures(scans: int = BATCH_SCANS, runs: int = 3, dpi: float = 600.0) -
     t = bench_batch.measure(scans, runs, dpi)
     note = (f"{t.scans} scans at {t.dpi:g} dpi: {t.one_core_s:.1f} s on 1 core, {t.all_cores_s:.1f} s on {t.cores}; "
             f"--workers 1 not held to one core {t.one_worker_s:.1f} s (ratio {t.one_worker_s / t.all_cores_s:.2f}); "
+            f"processor time {t.one_core_cpu_s:.1f} s on 1 core, {t.all_cores_cpu_s:.1f} s on {t.cores}; "
             f"best of {runs} runs each")
     return [Figure(f"folder of {t.scans} scans, 'stripscan analyze FOLDER -o OUTDIR': throughput on {t.cores} "
                    "cores ÷ on 1", t.scans / t.all_cores_s, "scans/s", t.scans / t.one_core_s, "on 1 core",
