@@ -196,7 +196,7 @@ def _store(writer: "Connection", there: Location, table: str, columns: Sequence[
     if there.is_server:
         from stripscan.archive.postgres.bulk import copy_rows
 
-        copy_rows(writer, table, columns, rows)  # type: ignore[arg-type]
+        copy_rows(writer, table, columns, rows, where=there.display)  # type: ignore[arg-type]
     else:
         writer.executemany(insert_sql(table, columns), rows)  # type: ignore[attr-defined]
 

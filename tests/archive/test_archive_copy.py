@@ -205,3 +205,22 @@ def test_a_copy_to_a_file_killed_half_way_leaves_nothing_and_runs_again(large: P
     assert all(p.name.startswith(".offline.sqlite3.") for p in site.iterdir())  # hidden leftovers only
     assert main(["archive", "copy", str(large), str(dest)]) == 0
     assert _export(dest, tmp_path / "copy.json") == _export(large, tmp_path / "source.json")
+
+
+def test_only_the_owner_copies_into_a_server(every_kind: Path, pg_database: Any, tmp_path: Path,
+                                             capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["archive", "init", pg_database.url, "--roles"]) == 0
+    login = f"{pg_database.name}_ann"
+    with pg_database.connect() as conn:
+        conn.execute(f'CREATE ROLE "{login}" LOGIN IN ROLE "{pg_database.name}_physicist"')
+    url = pg_database.server.url(pg_database.name, user=login)
+    capsys.readouterr()
+    assert main(["archive", "copy", str(every_kind), url]) == 1
+    assert capsys.readouterr().err == (
+        f"stripscan: error: {url}: cannot copy an archive into it as {login!r}: a whole archive is copied in by "
+        "the owner of the archive's tables (the login that ran 'stripscan archive init')\n")
+    assert _rows_on_server(pg_database) == 0
+    # Copying out needs reading only.
+    assert main(["archive", "copy", str(every_kind), pg_database.url]) == 0
+    assert main(["archive", "copy", url, str(tmp_path / "out.sqlite3")]) == 0
+    assert _export(tmp_path / "out.sqlite3", tmp_path / "out.json") == _export(every_kind, tmp_path / "in.json")

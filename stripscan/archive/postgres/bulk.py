@@ -11,13 +11,15 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 from typing import Any
 
+from ..errors import ArchiveReadOnlyError
 from . import driver
 from .backend import ServerConnection
 
 __all__ = ["copy_rows"]
 
 
-def copy_rows(conn: ServerConnection, table: str, columns: Sequence[str], rows: Iterable[Sequence[Any]]) -> None:
+def copy_rows(conn: ServerConnection, table: str, columns: Sequence[str], rows: Iterable[Sequence[Any]], *,
+              where: str) -> None:
     """Store ``rows`` (values in the order of ``columns``) in ``table`` inside the open transaction.
 
     Parameters
@@ -31,9 +33,15 @@ def copy_rows(conn: ServerConnection, table: str, columns: Sequence[str], rows: 
         Its columns, as named in the rows.
     rows : iterable of sequences
         One value per column; None is NULL, bytes are bytea.
+    where : str
+        The archive's place, for messages.
 
     Raises
     ------
+    ArchiveReadOnlyError
+        When the login is not the tables' owner: COPY does not run under
+        the row-level policies that keep a recorder's and a physicist's
+        rights apart.
     psycopg.Error
         As the driver raises it; the write transaction translates it (a
         missing right is named as for an INSERT into ``table``).
@@ -41,11 +49,17 @@ def copy_rows(conn: ServerConnection, table: str, columns: Sequence[str], rows: 
     sql = driver().sql
     statement = sql.SQL("COPY {} ({}) FROM STDIN").format(
         sql.Identifier(table), sql.SQL(", ").join(sql.Identifier(c) for c in columns))
+    psycopg = driver()
     try:
         with conn.raw.cursor() as cursor, cursor.copy(statement) as copy:
             for row in rows:
                 copy.write_row(tuple(row))
-    except driver().Error:
+    except psycopg.errors.FeatureNotSupported:
+        user = conn.raw.info.user
+        raise ArchiveReadOnlyError(
+            f"{where}: cannot copy an archive into it as {user!r}: a whole archive is copied in by the owner of "
+            "the archive's tables (the login that ran 'stripscan archive init')") from None
+    except psycopg.Error:
         # What a refusal is about: the same right as adding these rows one by one.
         conn.failed_statement = f"INSERT INTO {table}"
         raise
