@@ -158,3 +158,19 @@ def test_help_names_the_default_file_when_the_environment_names_a_server(monkeyp
         main(["archive", "list", "--help"])
     help_text = " ".join(capsys.readouterr().out.split())
     assert f"(default: $STRIPSCAN_ARCHIVE or {user_data_folder() / 'archive.sqlite3'})" in help_text
+
+
+def test_a_server_named_by_a_libpq_service(pg_database: Any, tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                          capsys: pytest.CaptureFixture[str]) -> None:
+    # README "Shared archive": postgresql:///?service=NAME reads pg_service.conf (libpq's own file format).
+    server = pg_database.server
+    services = tmp_path / "pg_service.conf"
+    services.write_text(f"[physics]\nhost={server.socket_dir}\nport=5432\ndbname={pg_database.name}\n"
+                        "user=postgres\n", encoding="utf-8")
+    monkeypatch.setenv("PGSERVICEFILE", str(services))
+    monkeypatch.setenv("STRIPSCAN_ARCHIVE", "postgresql:///?service=physics")
+    assert main(["qc", "add", "--processor", PROCESSOR, "--new-processor", "--date", "2026-11-02",
+                 "--base-fog", "0.19", "--mid-density", "1.02", "--density-difference", "1.89"]) == 0
+    assert "stored entry 1: 'Processor 1'" in capsys.readouterr().out
+    assert main(["qc", "list", "--processor", PROCESSOR, "--archive", pg_database.url]) == 0
+    assert "2026-11-02" in capsys.readouterr().out

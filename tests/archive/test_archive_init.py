@@ -110,3 +110,25 @@ def test_init_a_file(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None
     other.write_text("not an archive\n")
     assert main(["archive", "init", str(other)]) == 1
     assert "is not an SQLite database" in capsys.readouterr().err
+
+
+def test_the_readme_set_up_by_an_administrator_who_is_not_a_superuser(bare: tuple[str, str], pg_server: Any,
+                                                                       capsys: pytest.CaptureFixture[str]) -> None:
+    # README "Shared archive": createuser --createrole archive_admin; createdb --owner archive_admin; init --roles.
+    name, _ = bare
+    admin, person = f"{name}_admin", f"{name}_mira"
+    pg_server.admin(f'CREATE ROLE "{admin}" LOGIN CREATEROLE')
+    pg_server.admin(f'ALTER DATABASE "{name}" OWNER TO "{admin}"')
+    admin_url = pg_server.url(name, user=admin)
+    assert main(["archive", "init", admin_url, "--roles"]) == 0
+    grants = [line.split("--")[0].strip() for line in capsys.readouterr().out.splitlines() if "GRANT" in line]
+    with pg_server.connect(name, admin) as conn:
+        conn.execute(f'CREATE ROLE "{person}" LOGIN')
+        conn.execute(grants[1].replace("LOGIN_NAME", f'"{person}"'))  # the recorder's line
+    url = pg_server.url(name, user=person)
+    day = ["--processor", "North room", "--base-fog", "0.19", "--mid-density", "1.20", "--density-difference", "1.84"]
+    # A new processor's QC settings are a physicist's to set; the owner starts the log here.
+    assert main(["qc", "add", "--archive", admin_url, "--new-processor", "--date", "2024-10-01", *day]) == 0
+    assert main(["qc", "add", "--archive", url, "--date", "2024-10-02", *day]) == 0
+    assert main(["qc", "limits", "--archive", url, "--processor", "North room", "--md-dd", "0.12", "--no-warning"]) == 1
+    assert "may not set QC limits and settings; the archive's physicist role may" in capsys.readouterr().err
