@@ -8,7 +8,7 @@ import math
 import pytest
 
 from stripscan.archive.records import FIGURE_UNITS, FIGURES
-from stripscan.core.curve import FigureSettings
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.records import CurveFigures, StepDensity
 from stripscan.core.figures import (ABOVE_RANGE, FIGURE_COLUMNS, FIGURE_KEYS, NO_VALUE, NOT_REACHED, figure_rows,
                                     format_value, step_flag)

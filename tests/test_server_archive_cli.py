@@ -17,7 +17,7 @@ from typing import Any
 
 import pytest
 
-from stripscan.archive.copying import copy_archive
+from stripscan.archive.copying import copy_location
 from stripscan.cli.main import main
 from stripscan.services.demo_archive import PROCESSOR, build_demo_archive
 from stripscan.sim.demo_data import demo_files
@@ -96,7 +96,7 @@ def test_command_on_a_server_as_on_a_file(name: str, demo: Path, pg_database: An
                                           capsys: pytest.CaptureFixture[str]) -> None:
     file = tmp_path / "demo.sqlite3"
     shutil.copyfile(demo, file)
-    copy_archive(demo, pg_database.url)
+    copy_location(demo, pg_database.url)
     on_file, on_server = tmp_path / "file", tmp_path / "server"
     on_file.mkdir()
     on_server.mkdir()
@@ -141,7 +141,7 @@ def _export(capsys: pytest.CaptureFixture[str], archive: str, out: Path) -> Any:
 def test_a_server_named_by_the_environment(argv: list[str], demo: Path, pg_database: Any, tmp_path: Path,
                                            monkeypatch: pytest.MonkeyPatch,
                                            capsys: pytest.CaptureFixture[str]) -> None:
-    copy_archive(demo, pg_database.url)
+    copy_location(demo, pg_database.url)
     monkeypatch.chdir(tmp_path)
     monkeypatch.setenv("STRIPSCAN_ARCHIVE", pg_database.url)
     assert main([str(tmp_path) + a[3:] if a.startswith("OUT/") else a for a in argv]) == 0, capsys.readouterr()

@@ -136,7 +136,7 @@ def render(folder: Path, *, docs: bool = False, sizes=SIZES) -> list[Path]:
     files = open_demo(window, archive_folder=scratch / "demo")
     workspace = window.workspace
     _settle(app, window.runner)
-    _settle(app, workspace.runner, seconds=180.0)
+    _settle(app, workspace, seconds=180.0)  # the demo build, then each page's reading of the archive
     session = window.session
     for width, height in reversed(sizes):  # the first size last: the parts below are drawn at it
         window.resize(width, height)
@@ -178,11 +178,12 @@ def render(folder: Path, *, docs: bool = False, sizes=SIZES) -> list[Path]:
     dialog.reject()
 
     save = workspace.save_to_archive()
-    _settle(app)
+    _settle(app, save)  # the archive's lots, processors and operators are read in a worker thread
     written.append(_save(save, folder / "save-to-archive.png"))
     save.reject()
-    choice = workspace.ask_compare_lots()
-    _settle(app)
+    workspace.ask_compare_lots()
+    _settle(app, workspace)  # the lots are read first, then the form opens
+    choice = workspace.dialog
     written.append(_save(choice, folder / "compare-two-lots.png"))
     choice.reject()
 

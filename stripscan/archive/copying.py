@@ -1,58 +1,122 @@
-"""A whole archive copied from one location to another (``stripscan archive copy``).
+"""Copy a whole archive from one location to another: a file to a server to start sharing, a
+server to a file for a site's offline copy.
 
-An SQLite file onto a server to start sharing it, a server into a file for a
-site's offline copy, or a file into another file.  Every table is copied
-row for row, ids, times and the hash chain included, so that the copy is
-the same archive: its JSON export equals the source's, and its chain's head
-is the source's.
+Every stored row goes across as it is, ids, times and links included, table
+by table in one write transaction of the destination, so the copy's hash
+chain is the original's.  Before the transaction commits, every table is
+read back from the destination and must match what was read from the
+source, row for row (one pass per table: walking the chain record by
+record would cost a server a round trip per record).  Nothing half-copied
+is ever visible: a copy that fails or is killed leaves the destination as
+it was, and can be run again.
 
-Nothing half-written is ever visible: a file is built under a temporary
-name beside its destination and renamed into place when complete
-(:func:`stripscan._shared.atomic.replacing`); on a server everything is
-written in one transaction, which the server rolls back if the client dies.
-The destination must be new or empty, so a copy never mixes two archives;
-a copy that failed or was killed can simply be run again.
-
-Rows move table by table in one pass (COPY on a server,
-:mod:`stripscan.archive.postgres.bulk`), not record by record through the
-archive's rules: those were checked when each record was first stored, and
-record by record 10 000 snapshots took minutes rather than seconds.
+:func:`copy_archive` copies between two open archives; :func:`copy_location`
+is ``stripscan archive copy SOURCE DEST``: it opens both places, builds a
+file destination under a temporary name beside it and names it only when
+complete (:func:`stripscan._shared.atomic.replacing`), and creates a server
+destination's tables when the database has none.
 """
 
 from __future__ import annotations
 
-import itertools
+import hashlib
 import os
-from collections.abc import Iterable, Iterator, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from stripscan._shared.atomic import replacing
-from stripscan.archive import chain, open_archive
 from stripscan.archive.errors import ArchiveError
 from stripscan.archive.location import Location, parse_location
-from stripscan.archive.postgres.schema import TABLES
-from stripscan.archive.service import DEFAULT_BUSY_TIMEOUT_MS
-from stripscan.archive.tables import insert_sql
 
 if TYPE_CHECKING:
     from stripscan.archive.backend import Connection
     from stripscan.archive.service import Archive
 
-__all__ = ["CopyReport", "copy_archive"]
+__all__ = ["TABLES", "copy_tables", "copy_archive", "CopyReport", "copy_location"]
 
-# Rows handed to the destination at a time: memory stays flat on a large archive.
-_CHUNK_ROWS = 5000
+#: The archive's tables, each after those its rows refer to: the order to copy them in.
+TABLES = ("film_types", "emulsion_lots", "processors", "sensitometers", "calibrations", "snapshots",
+          "snapshot_data", "snapshot_steps", "snapshot_notes", "qc_entries", "qc_events", "qc_settings",
+          "crossovers", "record_chain")
 
+# Rows handed over at a time, so a large archive never sits in memory whole.
+_BATCH = 2000
+
+
+def _rows(conn: "Connection", table: str) -> Any:
+    return conn.execute(f"SELECT * FROM {table} ORDER BY 1, 2")
+
+
+def _digest(digest: Any, rows: list[Any]) -> None:
+    for row in rows:
+        digest.update(repr(tuple(row)).encode("utf-8"))
+
+
+def copy_tables(source: "Connection", target: "Connection") -> dict[str, int]:
+    """Insert every row of ``source``'s tables into ``target``'s (inside the caller's transactions).
+
+    Rows go in key order, as they were stored, so the destination's own
+    rules (a QC day's first strip, the chain growing at its end) pass as
+    they did when the rows were first written.  Each table is then read
+    back from ``target`` and compared with what was read.  Returns the rows
+    per table.
+
+    Raises
+    ------
+    ArchiveError
+        When a table reads back otherwise than it was read (a value the
+        destination cannot hold as it is).
+    """
+    counts = {}
+    for table in TABLES:
+        cursor = _rows(source, table)
+        columns = [d[0] for d in cursor.description]
+        insert = f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({', '.join('?' for _ in columns)})"
+        counts[table], sent = 0, hashlib.sha256()
+        while True:
+            rows = cursor.fetchmany(_BATCH)  # type: ignore[attr-defined]
+            if not rows:
+                break
+            target.executemany(insert, [tuple(row) for row in rows])  # type: ignore[attr-defined]
+            _digest(sent, rows)
+            counts[table] += len(rows)
+        back, stored = _rows(target, table), hashlib.sha256()
+        while rows := back.fetchmany(_BATCH):  # type: ignore[attr-defined]
+            _digest(stored, rows)
+        if stored.digest() != sent.digest():
+            raise ArchiveError(f"the copied {table} do not read back as they were read; nothing was stored")
+    return counts
+
+
+def _stored(archive: "Archive") -> int:
+    return sum(archive._query(f"SELECT count(*) FROM {table}")[0][0] for table in TABLES)
+
+
+def copy_archive(source: "Archive", dest: "Archive") -> dict[str, int]:
+    """Copy every record of ``source`` into the empty archive ``dest``; return the rows per table.
+
+    Raises
+    ------
+    ArchiveError
+        When ``dest`` holds records already, or a table of the copy does
+        not read back as the source's (nothing is then stored).
+    """
+    if _stored(dest):
+        raise ArchiveError(f"{dest.path} already holds records; copy into a new, empty archive")
+    with source.read_together() as reading, dest._writing(f"copy {source.path} into it") as writing:
+        return copy_tables(reading, writing)
+
+
+# ------------------------------------------------------ between two places
 
 @dataclass(frozen=True)
 class CopyReport:
-    """What :func:`copy_archive` copied.
+    """What :func:`copy_location` copied.
 
     Attributes
     ----------
     source, dest : str
-        The two locations as messages show them (never with a password).
+        The two places as messages show them (never with a password).
     rows : dict
         Table name -> rows copied, in copying order.
     head_seq : int
@@ -67,34 +131,26 @@ class CopyReport:
     head_seq: int
     head_sha256: str
 
-    @property
-    def snapshots(self) -> int:
-        return self.rows.get("snapshots", 0)
 
-
-def _where(location: str | os.PathLike[str]) -> Location:
+def _where(location: "str | os.PathLike[str]") -> Location:
     try:
         return parse_location(location)
     except ValueError as exc:
         raise ArchiveError(str(exc)) from None
 
 
-def copy_archive(source: str | os.PathLike[str], dest: str | os.PathLike[str], *,
-                 busy_timeout_ms: int = DEFAULT_BUSY_TIMEOUT_MS) -> CopyReport:
+def copy_location(source: "str | os.PathLike[str]", dest: "str | os.PathLike[str]") -> CopyReport:
     """Copy the whole archive at ``source`` to ``dest``, a new file or an empty database.
 
     Parameters
     ----------
     source : path-like or str
-        An archive file or a server location (it is opened as any command
-        opens it, never created).
+        An archive file or a server location; opened as any command opens
+        it, never created.
     dest : path-like or str
         A file that does not exist yet (or holds an archive with no
-        records), or a server database that is empty or holds an archive
-        with no records; a server database's tables are created when it
-        has none.
-    busy_timeout_ms : int
-        How long to wait for another program's write on either side.
+        records), or a server database that has no tables yet or holds an
+        archive with no records (its tables are created when it has none).
 
     Returns
     -------
@@ -104,19 +160,42 @@ def copy_archive(source: str | os.PathLike[str], dest: str | os.PathLike[str], *
     Raises
     ------
     ArchiveError
-        When either location cannot be opened, the destination holds
-        records or is the source, or the copy fails; nothing of the copy is
-        then left in the destination.
+        When either place cannot be opened, the destination holds records
+        or is the source, or the copy fails; nothing of the copy is then
+        left in the destination.
     """
+    from stripscan.archive import open_archive  # the package chooses each place's backend
+
     here, there = _where(source), _where(dest)
     if _same_place(here, there):
         raise ArchiveError(f"{there.display}: the copy and the archive copied are the same place; "
                            "name another destination")
-    with open_archive(source, create=False, busy_timeout_ms=busy_timeout_ms) as archive:
+    with open_archive(source, create=False) as archive:
         if there.is_server:
-            with open_archive(there.conninfo, create=True, busy_timeout_ms=busy_timeout_ms) as target:
-                return _copy_into(archive, target, there)
-        return _copy_to_file(archive, there, busy_timeout_ms)
+            with open_archive(there.conninfo, create=True) as target:
+                rows = copy_archive(archive, target)
+                return _report(archive, target, there, rows)
+        path = there.path
+        assert path is not None
+        if path.is_dir():
+            raise ArchiveError(f"{path} is a folder; give the copy a file name")
+        if path.exists():
+            # An archive left empty (say by 'archive init') may be filled; anything else is left alone.
+            with open_archive(path, create=False, read_only=True) as existing:
+                if _stored(existing):
+                    raise ArchiveError(f"{path} already holds records; copy into a new, empty archive")
+        try:
+            with replacing(path) as partial:
+                try:
+                    with open_archive(partial) as target:
+                        rows = copy_archive(archive, target)
+                        report = _report(archive, target, there, rows)
+                finally:
+                    for journal in ("-wal", "-shm", "-journal"):
+                        partial.with_name(partial.name + journal).unlink(missing_ok=True)
+        except OSError as exc:
+            raise ArchiveError(f"{path}: cannot write the copy: {exc.strerror or exc}") from None
+        return report
 
 
 def _same_place(here: Location, there: Location) -> bool:
@@ -129,91 +208,7 @@ def _same_place(here: Location, there: Location) -> bool:
         return False
 
 
-def _copy_to_file(archive: "Archive", there: Location, busy_timeout_ms: int) -> CopyReport:
-    path = there.path
-    assert path is not None
-    if path.is_dir():
-        raise ArchiveError(f"{path} is a folder; give the copy a file name")
-    if path.exists():
-        # An archive made empty (say by 'archive init') may be filled; anything else is left alone.
-        with open_archive(path, create=False, read_only=True, busy_timeout_ms=busy_timeout_ms) as existing:
-            with existing.read_together() as conn:
-                _refuse_filled(conn, there.display)
-    try:
-        with replacing(path) as partial:
-            with open_archive(partial, check_chain=False, busy_timeout_ms=busy_timeout_ms) as target:
-                report = _copy_into(archive, target, there)
-    except OSError as exc:
-        raise ArchiveError(f"{path}: cannot write the copy: {exc.strerror or exc}") from None
-    return report
-
-
-def _refuse_filled(conn: "Connection", where: str) -> None:
-    held = {table: conn.execute(f"SELECT count(*) FROM {table}").fetchone()[0] for table in TABLES}
-    filled = [f"{count} {table.replace('_', ' ')}" for table, count in held.items() if count]
-    if filled:
-        raise ArchiveError(f"{where} already holds an archive ({', '.join(filled[:3])}); a copy goes into a new "
-                           "file or an empty database, so that two archives are never mixed")
-
-
-def _counted(rows: Iterable[Sequence[Any]], counts: dict[str, int], table: str) -> Iterator[Sequence[Any]]:
-    for row in rows:
-        counts[table] += 1
-        yield row
-
-
-def _copy_into(archive: "Archive", target: "Archive", there: Location) -> CopyReport:
-    """Copy every table of ``archive`` into the empty ``target`` in one write transaction of ``target``."""
-    source_backend = archive._backend
-    counts = {table: 0 for table in TABLES}
-    with target._writing(f"copy {archive.path} into it") as writer:
-        _refuse_filled(writer, there.display)
-        if archive.schema_version != target.schema_version:
-            raise ArchiveError(f"{archive.path} uses schema version {archive.schema_version} and {there.display} "
-                               f"version {target.schema_version}; open both with this stripscan first")
-        try:
-            with archive.read_together() as reader:
-                for table in TABLES:
-                    cursor = reader.execute(f"SELECT * FROM {table} ORDER BY 1, 2")
-                    columns = [d[0] for d in cursor.description]
-                    rows = _counted(iter(cursor), counts, table)
-                    while chunk := list(itertools.islice(rows, _CHUNK_ROWS)):
-                        _store(writer, there, table, columns, chunk)
-        except source_backend.Error as exc:
-            raise source_backend.translate(exc, f"copy it to {there.display}") from None
-        if there.is_server:
-            from stripscan.archive.postgres.schema import sync_identities
-
-            sync_identities(writer.raw)  # type: ignore[attr-defined]
-        _check_copy(writer, counts, there.display, archive.path)
-        head_seq, head = writer.execute(
-            "SELECT seq, chain_sha256 FROM record_chain ORDER BY seq DESC LIMIT 1").fetchone() or (0, chain.GENESIS)
-    return CopyReport(str(archive.path), there.display, counts, int(head_seq), str(head))
-
-
-def _store(writer: "Connection", there: Location, table: str, columns: Sequence[str],
-           rows: Sequence[Sequence[Any]]) -> None:
-    if there.is_server:
-        from stripscan.archive.postgres.bulk import copy_rows
-
-        copy_rows(writer, table, columns, rows, where=there.display)  # type: ignore[arg-type]
-    else:
-        writer.executemany(insert_sql(table, columns), rows)  # type: ignore[attr-defined]
-
-
-def _check_copy(writer: "Connection", counts: dict[str, int], where: str, source: object) -> None:
-    """Before the copy is committed (or named): every row arrived, and the chain's head matches its content.
-
-    The full walk of the chain is ``stripscan archive verify``; the rows are
-    the source's, so the head and the counts are enough to catch a copy cut
-    short.
-    """
-    for table, expected in counts.items():
-        stored = writer.execute(f"SELECT count(*) FROM {table}").fetchone()[0]
-        if stored != expected:
-            raise ArchiveError(f"{where}: the copy of {source} holds {stored} rows of {table}, not {expected}; "
-                               "nothing was kept")
-    problem = chain.check_head(writer)
-    if problem is not None:
-        raise ArchiveError(f"{where}: the copy of {source} does not match its hash chain ({problem}); "
-                           "nothing was kept")
+def _report(archive: "Archive", target: "Archive", there: Location, rows: dict[str, int]) -> CopyReport:
+    head = target._query("SELECT seq, chain_sha256 FROM record_chain ORDER BY seq DESC LIMIT 1")
+    seq, sha = (int(head[0][0]), str(head[0][1])) if head else (0, "0" * 64)
+    return CopyReport(str(archive.path), there.display, rows, seq, sha)

@@ -212,7 +212,8 @@ def check_imported_figures(path: Path, snapshot: Snapshot) -> None:
     give.  An edited file that moves a figure is refused; nothing stored is
     ever judged by a figure its own steps do not give.
     """
-    from stripscan.core.curve import FigureSettings, compute_figures
+    from stripscan.core.curve import compute_figures
+    from stripscan.core.figure_settings import FigureSettings
 
     doing = f"import snapshot {snapshot.id}"
     steps = snapshot.strip.steps

@@ -101,9 +101,9 @@ def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any
 
     Read once for all the scans of a command.
     """
-    from stripscan.core.calibration import load_calibration
-    from stripscan.core.curve import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.figure_settings import FigureSettings
+    from stripscan.core.reading import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None
@@ -386,9 +386,9 @@ def _cmd_init(args: argparse.Namespace) -> int:
 
 def _cmd_copy(args: argparse.Namespace) -> int:
     """Copy a whole archive to a new file or an empty server database (file to server, server to file...)."""
-    from stripscan.archive.copying import copy_archive
+    from stripscan.archive.copying import copy_location
 
-    report = copy_archive(args.source, args.dest)
+    report = copy_location(args.source, args.dest)
     words = {"snapshots": "snapshots", "snapshot_notes": "notes", "qc_entries": "QC entries",
              "qc_events": "QC events", "crossovers": "crossovers", "emulsion_lots": "lots",
              "processors": "processors"}

@@ -281,9 +281,9 @@ def _piece_geometry(
     pad = 3.0
     u_grid = np.arange(u_min - pad, u_max + pad + 1.0)
     v_grid = np.arange(v_min - 1.0, v_max + 2.0)
-    uu, vv = np.meshgrid(u_grid, v_grid)
-    grid_rows = centre[0] + uu * e1[0] + vv * e2[0]
-    grid_cols = centre[1] + uu * e1[1] + vv * e2[1]
+    # The rectified grid (v down, u across) by broadcasting, without meshgrid's full-size copies.
+    grid_rows = (centre[0] + u_grid * e1[0])[None, :] + (v_grid * e2[0])[:, None]
+    grid_cols = (centre[1] + u_grid * e1[1])[None, :] + (v_grid * e2[1])[:, None]
     rect = bilinear(dens, grid_rows, grid_cols)
 
     # Along-strip extent of the film piece in the rectified frame.
@@ -456,7 +456,11 @@ def locate_in_scan(scan, options: LocateOptions = LocateOptions()) -> list[Found
 def _locate_on(working: np.ndarray, factor: int, dpi: float | None, options: LocateOptions) -> list[FoundStrip]:
     pixel_mm = (25.4 / dpi) * factor if dpi else options.working_mm
     platen = _platen_level(working)
-    dens = -np.log10(np.clip(working / platen, 1e-6, None)).astype(np.float32)
+    # -log10(max(working / platen, 1e-6)) in float32, in place: one image, not five.
+    dens = np.divide(working, np.float32(platen), dtype=np.float32)
+    np.maximum(dens, np.float32(1e-6), out=dens)
+    np.log10(dens, out=dens)
+    np.negative(dens, out=dens)
 
     film = dens > options.film_threshold
     # Dust on the platen and thin hairs are not film (a 3 x 3 opening);

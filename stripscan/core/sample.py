@@ -238,10 +238,13 @@ def _box_runs(
     )
     none = np.zeros(0, dtype=np.int64)
     nothing = (0, none, none, clipped)
-    edges = np.column_stack((corners[1] - corners[0], corners[3] - corners[0]))
-    if abs(np.linalg.det(edges)) < 1e-9:
+    # The inverse of the 2 x 2 matrix of the edges c0->c1 and c0->c3 (as columns), written out:
+    # np.linalg's general routines cost more than the rest of this function on a step.
+    (ar, ac), (br, bc) = corners[1] - corners[0], corners[3] - corners[0]
+    det = float(ar * bc - br * ac)
+    if abs(det) < 1e-9:
         return nothing
-    inverse = np.linalg.inv(edges)
+    inverse = np.array([[bc, -br], [-ac, ar]]) / det
     r0 = max(int(np.ceil(corners[:, 0].min())), 0)
     r1 = min(int(np.floor(corners[:, 0].max())), shape[0] - 1)
     if r1 < r0:
@@ -261,8 +264,8 @@ def _box_runs(
         lo = np.maximum(lo, np.minimum(a, b))
         hi = np.minimum(hi, np.maximum(a, b))
     # Clip before the cast: rows the box misses carry infinite bounds.
-    start = np.clip(np.ceil(lo - 1e-9), 0, shape[1]).astype(np.int64)
-    stop = np.clip(np.floor(hi - 1e-9), -1, shape[1] - 1).astype(np.int64)  # inclusive
+    start = np.minimum(np.maximum(np.ceil(lo - 1e-9), 0), shape[1]).astype(np.int64)
+    stop = np.minimum(np.maximum(np.floor(hi - 1e-9), -1), shape[1] - 1).astype(np.int64)  # inclusive
     filled = np.flatnonzero(stop >= start)
     if filled.size == 0:
         return nothing

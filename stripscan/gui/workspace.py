@@ -31,7 +31,6 @@ from PySide6.QtWidgets import (
     QDialog,
     QFileDialog,
     QFrame,
-    QHBoxLayout,
     QMainWindow,
     QMenu,
     QMenuBar,
@@ -39,13 +38,13 @@ from PySide6.QtWidgets import (
     QScrollArea,
     QSplitter,
     QTabWidget,
-    QToolButton,
     QVBoxLayout,
     QWidget,
 )
 
-from stripscan.archive import Archive, default_archive_path
+from stripscan.archive import default_archive_path
 from stripscan.gui import jobs
+from stripscan.gui.models.archive_page import check_archive
 from stripscan.gui.models.compare_page import ComparePage, read_compared_lots
 from stripscan.gui.panels.archive_panel import ArchivePanel
 from stripscan.gui.panels.compare_panel import ComparePanel
@@ -59,6 +58,7 @@ from stripscan.gui.dialogs.save_snapshot_dialog import SaveSnapshotDialog
 from stripscan.gui.models.session import Session
 from stripscan.gui.settings import AppSettings
 from stripscan.gui.tasks import TaskRunner
+from stripscan.gui.views.page_corner import PageCorner
 
 __all__ = ["Workspace", "PAGES", "archive_setting", "set_archive_setting"]
 
@@ -77,12 +77,6 @@ _OPERATOR_KEY = "archive/operator"
 _ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
 _NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
                  "strip: values read on a densitometer, or a strip of the scan open on the first page.")
-
-
-def check_archive(path: Path, *, create: bool, progress: Any = None) -> Path:
-    """Open (or make) the archive at ``path`` once, so that a bad file is named before any page shows it."""
-    Archive.open(path, read_only=not create, create=create).close()
-    return path
 
 
 _NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or in the Compare menu) to set two "
@@ -171,24 +165,8 @@ class Workspace(QObject):
         self.runners = (self.runner, self.archive_panel.runner, self.qc_panel.runner)
         session.events.connect_each(self.update_scan_actions, "scan_loaded", "strips_changed", "results_changed",
                                     "calibration_changed")
-        qc_page = QWidget()
-        qc_layout = QVBoxLayout(qc_page)
-        qc_layout.setContentsMargins(0, 0, 0, 4)
-        # The typed-day form beside the charts, not under them: at 900 px high the three
-        # charts need the height, and the form's few fields need no more than a column.
-        # On a laptop screen the three forms are taller than the page: they scroll, the charts do not.
-        side = QScrollArea()
-        side.setWidgetResizable(True)
-        side.setFrameShape(QFrame.Shape.NoFrame)
-        side.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
-        self.qc_panel.form_box.setContentsMargins(0, 40, 8, 0)
-        side.setWidget(self.qc_panel.form_box)
-        side.setFixedWidth(400)
-        self.qc_side = side
-        row = QHBoxLayout()
-        row.addWidget(self.qc_panel, 1)
-        row.addWidget(side)
-        qc_layout.addLayout(row, 1)
+        qc_page = self.qc_panel.page_with_forms_beside()
+        self.qc_side = self.qc_panel.side
         # The window shows the caution under every page; the status need not repeat it.
         self.qc_panel.caution_in_status = False
         self.page_widgets: dict[str, QWidget] = {"scan": scan_page, "archive": self.archive_panel,
@@ -221,8 +199,7 @@ class Workspace(QObject):
         self.exports = Exports(self)
         self._make_actions()
         self.update_scan_actions()
-        self._corner()  # set as the tab bar's corner widget by _corner_follow
-        self.pages.currentChanged.connect(self._corner_follow)
+        self._corner()
         self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
 
     # -- actions and menus ----------------------------------------------------------------
@@ -316,14 +293,7 @@ class Workspace(QObject):
             menu.addAction(action)
         menu.addSeparator()
 
-    def _corner(self) -> QWidget:
-        # The tab row has room to the right: each page's own actions go there, no extra row is taken.
-        # Only the current page's row is shown, and only it takes room (a stacked widget is as wide as its
-        # widest row, which took the tabs' room at 1024 px).
-        stack = QWidget()
-        stack_layout = QHBoxLayout(stack)
-        stack_layout.setContentsMargins(0, 0, 0, 0)
-        self._corner_rows: list[QWidget] = []
+    def _corner(self) -> None:
         # The scan's report and exports share one button: at 1024 px the tabs need the room.
         self.files_menu = QMenu("Files", self.window)
         self.files_menu.addAction(self.scan_report_action)
@@ -336,40 +306,10 @@ class Workspace(QObject):
             "comparison": (self.compare_lots_action, self.compare_scan_action, self.comparison_report_action),
             "qc": (self.qc_report_action,),
         }
-        self.corner_buttons: dict[str, list[QToolButton]] = {}
-        for name in self.page_widgets:
-            row = QWidget()
-            layout = QHBoxLayout(row)
-            layout.setContentsMargins(0, 2, 4, 2)
-            layout.setSpacing(4)
-            layout.addStretch(1)
-            buttons = []
-            for item in rows[name]:
-                button = QToolButton()
-                button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextOnly)
-                if isinstance(item, QMenu):
-                    button.setText("Files")
-                    button.setToolTip("The report of the scan's strips (PDF), or its steps, figures or curve plot "
-                                      "as files")
-                    button.setMenu(item)
-                    button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
-                else:
-                    button.setDefaultAction(item)
-                layout.addWidget(button)
-                buttons.append(button)
-            self.corner_buttons[name] = buttons
-            stack_layout.addWidget(row)
-            self._corner_rows.append(row)
-        self._corner_stack = stack
-        self._corner_follow(0)
-        return stack
-
-    def _corner_follow(self, index: int) -> None:
-        for k, row in enumerate(self._corner_rows):
-            row.setVisible(k == index)
-        # Set again, so that the tab bar gives back or takes the room (Qt hides the widget it replaces).
-        self.pages.setCornerWidget(self._corner_stack, Qt.Corner.TopRightCorner)
-        self._corner_stack.show()
+        self.corner = PageCorner(self.pages, {name: rows[name] for name in self.page_widgets},
+                                 menu_tip="The report of the scan's strips (PDF), or its steps, figures or curve "
+                                          "plot as files")
+        self.corner_buttons = self.corner.buttons
 
     # -- pages ------------------------------------------------------------------------------------
     def show_page(self, name: str) -> None:

@@ -13,12 +13,11 @@ from typing import Any
 from archive_factory import PROCESSORS, make_draft, populate, raw_connection
 
 from stripscan.archive import Archive, QcEntry
+from stripscan.archive.copying import TABLES  # parents before children
 from stripscan.archive.postgres import schema
 
 NORTH = PROCESSORS[0].name
 
-# Parents before children, so that every reference finds its row.
-TABLES = schema.TABLES
 
 
 def filled_archive(path: Path) -> Path:

@@ -9,14 +9,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from stripscan.core.curve import (
-    CharacteristicCurve,
-    FigureSettings,
-    compute_figures,
-    relative_speed_percent,
-    step_log_exposures,
-)
-from stripscan.sim.simulate import FilmModel
+from stripscan.core.curve import CharacteristicCurve, compute_figures, relative_speed_percent, step_log_exposures
+from stripscan.core.figure_settings import FigureSettings
+from stripscan.sim.objects import FilmModel
 
 
 def figures(log_e, od, **kwargs):

@@ -13,8 +13,9 @@ from PySide6.QtWidgets import QDialogButtonBox, QMessageBox
 from stripscan import CAUTION
 from stripscan.archive import FIGURES, Archive, calibration_hash
 from stripscan.services.demo_archive import REVISED, build_demo_archive
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.sim.demo_data import demo_files
 from stripscan.gui.panels.archive_panel import ArchivePanel
 from stripscan.gui.panels.figures_panel import VALUE_ROLE
@@ -448,3 +449,51 @@ def test_a_scan_held_already_is_stored_again_only_when_ticked(qtbot, panel: Arch
     assert dialog.save()
     settle(qtbot, dialog)
     assert stored_count(archive_path) == before + 3
+
+
+def test_the_command_line_csv_window_and_report_word_each_snapshot_s_status_alike(
+        qtbot, panel: ArchivePanel, archive_path: Path, tmp_path: Path, capsys) -> None:
+    """Issue 16: the command line said "revised by N", the window "corrected by snapshot N"; one wording now."""
+    import csv
+
+    from pypdf import PdfReader
+
+    from stripscan.archive.records import snapshot_status
+    from stripscan.cli.main import main
+    from stripscan.gui import jobs
+
+    with Archive.open(archive_path) as archive:
+        plain = next(s for s in archive.list_snapshots(REVISED.lot) if s.revises is None)
+        archive.retire(plain.id, "strip scratched")
+        every = archive.list_snapshots(REVISED.lot, include_retired=True, include_superseded=True)
+        archive.export_csv(tmp_path / "all.csv", include_retired=True, include_superseded=True)
+    words = {s.id: snapshot_status(s) for s in every}
+    kinds = {w.split(" ")[0] for w in words.values()}
+    assert kinds == {"current", "revised", "retired"}
+    revised = next(s for s in every if s.superseded_by is not None)
+    assert words[revised.id] == f"revised by snapshot {revised.superseded_by}"
+    # The command line's listing.
+    assert main(["archive", "list", "--all", "--lot", REVISED.lot, "--archive", str(archive_path)]) == 0
+    rows = {line.split()[0]: line for line in capsys.readouterr().out.splitlines()[1:-1] if line.strip()}
+    assert all(rows[str(i)].rstrip().endswith(w) for i, w in words.items())
+    # The CSV export.
+    with open(tmp_path / "all.csv", encoding="utf-8-sig", newline="") as handle:
+        table = {int(r["snapshot"]): r["status"] for r in csv.DictReader(handle) if r["lot"] == REVISED.lot}
+    assert table == words
+    # The window: the snapshot list and the opened snapshot's provenance.
+    panel.refresh()
+    panel.select_lot(REVISED.lot)
+    panel.show_all.setChecked(True)
+    settle(qtbot, panel)
+    status = panel.snapshot_table.columnCount() - 1
+    assert {int(panel.snapshot_table.item(k, 0).text()): panel.snapshot_table.item(k, status).text()
+            for k in range(panel.snapshot_table.rowCount())} == words
+    panel.open_snapshot(revised.id)
+    settle(qtbot, panel)
+    assert panel.view.provenance_value("Status") == words[revised.id]
+    # The revised snapshot's report page (a current one's says nothing of it; render/ words a retirement
+    # with its own date format).
+    pdf = jobs.save_snapshot_report(archive_path, revised.id, tmp_path / "revised.pdf",
+                                    progress=lambda fraction, text: None)
+    text = " ".join(" ".join(page.extract_text() for page in PdfReader(pdf).pages).split())
+    assert words[revised.id] in text

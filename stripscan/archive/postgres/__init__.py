@@ -1,8 +1,12 @@
 """The lot archive on a PostgreSQL server (a shared archive for a physics group).
 
-The schema lives in ``schema/`` as plain SQL, one file per version
-(``0001_archive.sql`` is SQLite's schema version 4 for the server), with
-``roles.sql`` for the three group roles; :mod:`.schema` applies them.
+:func:`open_backend` is what :func:`stripscan.archive.open_archive` calls
+for a ``postgresql://`` location; :mod:`.backend` is the open database (one
+writer at a time, consistent reads, errors in one line through
+:mod:`.dialect`).  The schema lives in ``schema/`` as plain SQL, one file
+per version (``0001_archive.sql`` is SQLite's schema version 4 for the
+server), with ``roles.sql`` for the three group roles; :mod:`.schema`
+applies them (:func:`.schema.create_roles` for an administrator).
 
 This package is the only one that imports the PostgreSQL driver (psycopg 3),
 and it imports it only when a server is named: an archive on a path never

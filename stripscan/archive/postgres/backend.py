@@ -296,11 +296,13 @@ class PostgresBackend(Backend):
     def backup(self, dest: Path, *, overwrite: bool = False) -> Path:
         """Copy the whole archive, as one state of it, into the SQLite archive file ``dest``.
 
-        The copy is written under a temporary name beside ``dest``, its hash
-        chain walked in full, and only then named ``dest``: a site's offline
-        copy of a shared archive, opened like any archive file.
+        The copy (:func:`stripscan.archive.copying.copy_archive`) is written
+        under a temporary name beside ``dest``, its hash chain walked in full,
+        and only then named ``dest``: a site's offline copy of a shared
+        archive, opened like any archive file.
         """
         from stripscan.archive import open_archive  # the package chooses the file's backend
+        from stripscan.archive.copying import copy_archive
 
         dest = dest.expanduser().absolute()
         if dest.is_dir():
@@ -311,17 +313,8 @@ class PostgresBackend(Backend):
             raise ArchiveError(f"{dest}: the folder {dest.parent} does not exist")
         partial = dest.with_name(f".{dest.name}.{os.getpid()}.partial")
         try:
-            with open_archive(partial, check_chain=False) as copy:
-                with self.reading() as source, copy._writing(f"copy {self.location}") as target:
-                    for table in schema.TABLES:
-                        cursor = source.execute(f"SELECT * FROM {table} ORDER BY 1, 2")
-                        columns = [d.name for d in cursor.description]
-                        target.executemany(f"INSERT INTO {table} ({', '.join(columns)}) "
-                                           f"VALUES ({', '.join('?' for _ in columns)})", cursor.fetchall())
-                report = copy.verify()
-            if not report.ok:
-                raise ArchiveError(f"{dest}: the copy of {self.location} does not match its hash chain: "
-                                   f"{report.problem}")
+            with open_archive(partial) as copy:
+                copy_archive(_SourceView(self), copy)
             os.replace(partial, dest)
         except self.Error as exc:
             raise self.translate(exc, f"back it up to {dest}") from None
@@ -331,3 +324,11 @@ class PostgresBackend(Backend):
             for leftover in (partial, Path(f"{partial}-wal"), Path(f"{partial}-shm"), Path(f"{partial}-journal")):
                 leftover.unlink(missing_ok=True)
         return dest
+
+
+class _SourceView:
+    """What :func:`copy_archive` reads of a source archive, given by its backend alone."""
+
+    def __init__(self, backend: PostgresBackend) -> None:
+        self.path = backend.location
+        self.read_together = backend.reading

@@ -23,12 +23,7 @@ from typing import Any
 from ..errors import ArchiveError
 from . import driver
 
-__all__ = ["TABLES", "SQLITE_EQUIVALENT", "SchemaStep", "steps", "latest_version", "schema_version", "migrate", "sync_identities", "role_names", "create_roles"]
-
-#: The archive's tables, each after those its rows refer to: the order to copy them in.
-TABLES = ("film_types", "emulsion_lots", "processors", "sensitometers", "calibrations", "snapshots",
-          "snapshot_data", "snapshot_steps", "snapshot_notes", "qc_entries", "qc_events", "qc_settings",
-          "crossovers", "record_chain")
+__all__ = ["SQLITE_EQUIVALENT", "SchemaStep", "steps", "latest_version", "schema_version", "migrate", "sync_identities", "role_names", "create_roles"]
 
 #: Server schema version -> the SQLite schema version (:mod:`stripscan.archive.sqlite.migrations`)
 #: whose tables and rules it holds.  The archive reports the latter, so that an export, a report

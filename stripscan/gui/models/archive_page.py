@@ -23,7 +23,7 @@ from stripscan.gui.models.events import Event
 from stripscan.gui.models.work import Run, run_now
 
 __all__ = ["ArchivePage", "ArchivePageEvents", "SnapshotRecord", "SnapshotListing", "SnapshotRow", "TrendData",
-           "read_lots", "read_listing", "read_snapshot", "read_trend", "provenance_rows", "history_rows",
+           "check_archive", "read_lots", "read_listing", "read_snapshot", "read_trend", "provenance_rows", "history_rows",
            "SUMMARY_COLUMNS", "STEP_READING_COLUMNS", "SNAPSHOT_COLUMNS"]
 
 # (title, SnapshotSummary field, digits) of the snapshot list.
@@ -95,6 +95,12 @@ def _readable(path: Path | None) -> bool:
 
 
 # -- reading (run in a worker thread) ------------------------------------------------------
+
+
+def check_archive(path: Path, *, create: bool, progress: Any = None) -> Path:
+    """Open (or make, ``create``) the archive at ``path`` once, so that a bad file is named before any page shows it."""
+    Archive.open(path, read_only=not create, create=create).close()
+    return path
 
 
 def read_lots(path: str | os.PathLike[str], *, progress: Any = None) -> list[LotSummary]:

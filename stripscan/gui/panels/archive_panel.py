@@ -325,7 +325,7 @@ class ArchivePanel(QWidget):
         self.where.setWordWrap(True)
         self.where.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         #: Said while the archive is being read or written (a slow or locked file takes a while).
-        self.busy_label = QLabel("Reading the archive…")
+        self.busy_label = QLabel("Waiting for the archive…")
         self.busy_label.setStyleSheet("color: #8a4b00")
         self.busy_label.setVisible(self.runner.busy)
         self.refresh_button = QPushButton("Refresh")
@@ -389,6 +389,7 @@ class ArchivePanel(QWidget):
         events.failed.connect(lambda title, error: report_error(self, title, error))
         self.runner.busy_changed.connect(self.busy_label.setVisible)
         self.refresh()
+        self.busy_label.setVisible(self.runner.busy)  # the trend may have started the reading already
 
     # -- the archive -------------------------------------------------------------------------
     @property

@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.core.curve import FigureSettings
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.records import StripResult
 from stripscan.core.figures import NOISE_ONLY_NOTE, read_in_direct_mode
 from stripscan.gui.models.session import Session

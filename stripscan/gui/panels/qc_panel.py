@@ -40,11 +40,13 @@ from PySide6.QtWidgets import (
     QComboBox,
     QDateEdit,
     QFormLayout,
+    QFrame,
     QGroupBox,
     QHBoxLayout,
     QLabel,
     QLineEdit,
     QPushButton,
+    QScrollArea,
     QSpinBox,
     QVBoxLayout,
     QWidget,
@@ -70,7 +72,9 @@ from stripscan.gui.tasks import TaskRunner
 from stripscan.gui.views.qc_plots import GLYPHS, DayAxis, QcPlots, legend_html
 from stripscan.render.qc_chart import MARKS
 from stripscan.services.qc_chart import ChartData
-from stripscan.services.qc_log import LABELS, VERDICT_WORDS, ProcessorLog, latest_words, status_text
+from stripscan.core.qc.names import LABELS, VERDICT_WORDS
+from stripscan.services.qc_log import ProcessorLog
+from stripscan.services.qc_status import latest_words, status_text
 
 __all__ = ["QcPanel", "DayAxis", "DensityEdit", "NewProcessorDialog", "ScanSource", "create_processor",
            "FILM_TYPE_KEY"]
@@ -174,6 +178,28 @@ class QcPanel(QWidget):
         self.runner.busy_changed.connect(self._busy)
         if archive_path is not None:
             self.set_archive(archive_path)
+
+    def page_with_forms_beside(self) -> QWidget:
+        """A page with the panel and, beside it, its forms (:attr:`form_box`, in a scroll area: :attr:`side`)."""
+        page = QWidget()
+        layout = QVBoxLayout(page)
+        layout.setContentsMargins(0, 0, 0, 4)
+        # The typed-day form beside the charts, not under them: at 900 px high the three
+        # charts need the height, and the form's few fields need no more than a column.
+        # On a laptop screen the three forms are taller than the page: they scroll, the charts do not.
+        side = QScrollArea()
+        side.setWidgetResizable(True)
+        side.setFrameShape(QFrame.Shape.NoFrame)
+        side.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.form_box.setContentsMargins(0, 40, 8, 0)
+        side.setWidget(self.form_box)
+        side.setFixedWidth(400)
+        self.side = side
+        row = QHBoxLayout()
+        row.addWidget(self, 1)
+        row.addWidget(side)
+        layout.addLayout(row, 1)
+        return page
 
     # -- the model's state, as the panel's --------------------------------------------------
 

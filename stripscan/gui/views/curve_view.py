@@ -24,7 +24,8 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.core.curve import FigureSettings, strip_curve
+from stripscan.core.curve import strip_curve
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.records import StripResult
 from stripscan.core.curve_marks import CURVE_MARKS, GLYPHS, CurveMark
 from stripscan.gui.models.session import Session

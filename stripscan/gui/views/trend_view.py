@@ -29,7 +29,7 @@ from PySide6.QtWidgets import (
 
 from stripscan.archive import FIGURES, LotSummary, TrendPoint
 from stripscan.archive.records import FIGURE_UNITS
-from stripscan.core.curve import FigureSettings
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.gui.errors import report_error
 from stripscan.gui.models.archive_page import TrendData, read_lots, read_trend
 from stripscan.gui.style import strip_colour
