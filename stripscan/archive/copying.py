@@ -9,20 +9,30 @@ source, row for row (one pass per table: walking the chain record by
 record would cost a server a round trip per record).  Nothing half-copied
 is ever visible: a copy that fails or is killed leaves the destination as
 it was, and can be run again.
+
+:func:`copy_archive` copies between two open archives; :func:`copy_location`
+is ``stripscan archive copy SOURCE DEST``: it opens both places, builds a
+file destination under a temporary name beside it and names it only when
+complete (:func:`stripscan._shared.atomic.replacing`), and creates a server
+destination's tables when the database has none.
 """
 
 from __future__ import annotations
 
 import hashlib
+import os
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
+from stripscan._shared.atomic import replacing
 from stripscan.archive.errors import ArchiveError
+from stripscan.archive.location import Location, parse_location
 
 if TYPE_CHECKING:
     from stripscan.archive.backend import Connection
     from stripscan.archive.service import Archive
 
-__all__ = ["TABLES", "copy_tables", "copy_archive"]
+__all__ = ["TABLES", "copy_tables", "copy_archive", "CopyReport", "copy_location"]
 
 #: The archive's tables, each after those its rows refer to: the order to copy them in.
 TABLES = ("film_types", "emulsion_lots", "processors", "sensitometers", "calibrations", "snapshots",
@@ -95,3 +105,110 @@ def copy_archive(source: "Archive", dest: "Archive") -> dict[str, int]:
         raise ArchiveError(f"{dest.path} already holds records; copy into a new, empty archive")
     with source.read_together() as reading, dest._writing(f"copy {source.path} into it") as writing:
         return copy_tables(reading, writing)
+
+
+# ------------------------------------------------------ between two places
+
+@dataclass(frozen=True)
+class CopyReport:
+    """What :func:`copy_location` copied.
+
+    Attributes
+    ----------
+    source, dest : str
+        The two places as messages show them (never with a password).
+    rows : dict
+        Table name -> rows copied, in copying order.
+    head_seq : int
+        The hash chain's latest record in the copy (0 for an empty archive).
+    head_sha256 : str
+        Its chain hash, the same as the source's.
+    """
+
+    source: str
+    dest: str
+    rows: dict[str, int]
+    head_seq: int
+    head_sha256: str
+
+
+def _where(location: "str | os.PathLike[str]") -> Location:
+    try:
+        return parse_location(location)
+    except ValueError as exc:
+        raise ArchiveError(str(exc)) from None
+
+
+def copy_location(source: "str | os.PathLike[str]", dest: "str | os.PathLike[str]") -> CopyReport:
+    """Copy the whole archive at ``source`` to ``dest``, a new file or an empty database.
+
+    Parameters
+    ----------
+    source : path-like or str
+        An archive file or a server location; opened as any command opens
+        it, never created.
+    dest : path-like or str
+        A file that does not exist yet (or holds an archive with no
+        records), or a server database that has no tables yet or holds an
+        archive with no records (its tables are created when it has none).
+
+    Returns
+    -------
+    CopyReport
+        Rows copied per table and the chain's head.
+
+    Raises
+    ------
+    ArchiveError
+        When either place cannot be opened, the destination holds records
+        or is the source, or the copy fails; nothing of the copy is then
+        left in the destination.
+    """
+    from stripscan.archive import open_archive  # the package chooses each place's backend
+
+    here, there = _where(source), _where(dest)
+    if _same_place(here, there):
+        raise ArchiveError(f"{there.display}: the copy and the archive copied are the same place; "
+                           "name another destination")
+    with open_archive(source, create=False) as archive:
+        if there.is_server:
+            with open_archive(there.conninfo, create=True) as target:
+                rows = copy_archive(archive, target)
+                return _report(archive, target, there, rows)
+        path = there.path
+        assert path is not None
+        if path.is_dir():
+            raise ArchiveError(f"{path} is a folder; give the copy a file name")
+        if path.exists():
+            # An archive left empty (say by 'archive init') may be filled; anything else is left alone.
+            with open_archive(path, create=False, read_only=True) as existing:
+                if _stored(existing):
+                    raise ArchiveError(f"{path} already holds records; copy into a new, empty archive")
+        try:
+            with replacing(path) as partial:
+                try:
+                    with open_archive(partial) as target:
+                        rows = copy_archive(archive, target)
+                        report = _report(archive, target, there, rows)
+                finally:
+                    for journal in ("-wal", "-shm", "-journal"):
+                        partial.with_name(partial.name + journal).unlink(missing_ok=True)
+        except OSError as exc:
+            raise ArchiveError(f"{path}: cannot write the copy: {exc.strerror or exc}") from None
+        return report
+
+
+def _same_place(here: Location, there: Location) -> bool:
+    if here.is_server or there.is_server:
+        return here.display == there.display
+    assert here.path is not None and there.path is not None
+    try:
+        return here.path == there.path or (there.path.exists() and here.path.samefile(there.path))
+    except OSError:
+        return False
+
+
+def _report(archive: "Archive", target: "Archive", there: Location, rows: dict[str, int]) -> CopyReport:
+    head = target._query("SELECT seq, chain_sha256 FROM record_chain ORDER BY seq DESC LIMIT 1")
+    seq, sha = (int(head[0][0]), str(head[0][1])) if head else (0, "0" * 64)
+    return CopyReport(str(archive.path), there.display, rows, seq, sha)

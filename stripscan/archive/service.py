@@ -39,6 +39,7 @@ from stripscan.archive import chain
 from stripscan.archive.backend import Backend, Connection, Row
 from stripscan.archive.errors import ArchiveError, ArchiveIntegrityError, ArchiveLookupError
 from stripscan.archive.importing import Importing
+from stripscan.archive.location import SERVER_SCHEMES
 from stripscan.archive.processor_qc import ProcessorQc
 from stripscan.archive.records import ImportReport
 from stripscan.archive.reference_data import ReferenceData
@@ -68,11 +69,12 @@ def user_data_folder() -> Path:
 def default_archive_path() -> Path:
     """Where the archive lives unless a path is given.
 
-    ``STRIPSCAN_ARCHIVE`` wins when set.  Otherwise ``archive.sqlite3`` in
-    :func:`user_data_folder` (``~/.local/share/stripscan/archive.sqlite3``).
+    ``STRIPSCAN_ARCHIVE`` wins when set to a file.  Otherwise ``archive.sqlite3`` in
+    :func:`user_data_folder` (``~/.local/share/stripscan/archive.sqlite3``).  A server
+    named there is not a path: :func:`stripscan.archive.parse_location` reads it.
     """
-    override = os.environ.get("STRIPSCAN_ARCHIVE")
-    if override:
+    override = os.environ.get("STRIPSCAN_ARCHIVE", "").strip()
+    if override and not override.lower().startswith(SERVER_SCHEMES):
         return Path(override).expanduser()
     return user_data_folder() / "archive.sqlite3"
 

@@ -346,6 +346,58 @@ def _cmd_backup(args: argparse.Namespace) -> int:
     return 0
 
 
+def _sql_name(name: str) -> str:
+    """A role name as psql takes it: bare when plain, else double-quoted."""
+    import re
+
+    return name if re.fullmatch(r"[a-z_][a-z0-9_]*", name) else '"' + name.replace('"', '""') + '"'
+
+
+def _cmd_init(args: argparse.Namespace) -> int:
+    """Create an archive's tables in a new file or an empty server database (and, on a server, its roles)."""
+    from stripscan.archive.creating import ROLE_RIGHTS, init_archive
+
+    report = init_archive(args.location, roles=args.roles, role_prefix=args.role_prefix)
+    where = report.location
+    if report.created:
+        print(f"created the archive's tables in {where} (schema version {report.schema_version})")
+    elif report.upgraded:
+        print(f"the archive's tables were already in {where}; brought them up to schema version "
+              f"{report.schema_version}")
+    else:
+        print(f"the archive's tables are already in {where} (schema version {report.schema_version}); "
+              "nothing to create")
+    if report.roles:
+        made = [name for name in report.roles.values() if name in report.roles_created]
+        kept = [name for name in report.roles.values() if name not in report.roles_created]
+        if made:
+            print(f"created the roles {', '.join(made)}")
+        if kept:
+            print(f"the roles {', '.join(kept)} were already there; granted their rights again")
+        print("To let a person in, an administrator makes their login role a member of one of them, in psql "
+              "(LOGIN_NAME being theirs):")
+        width = max(len(_sql_name(name)) for name in report.roles.values())
+        for kind, name in report.roles.items():
+            print(f"  GRANT {_sql_name(name).ljust(width)} TO LOGIN_NAME;  -- {kind}: {ROLE_RIGHTS[kind]}")
+    elif report.on_server:
+        print("(add --roles to create the reader, recorder and physicist roles that people's logins join)")
+    return 0
+
+
+def _cmd_copy(args: argparse.Namespace) -> int:
+    """Copy a whole archive to a new file or an empty server database (file to server, server to file...)."""
+    from stripscan.archive.copying import copy_location
+
+    report = copy_location(args.source, args.dest)
+    words = {"snapshots": "snapshots", "snapshot_notes": "notes", "qc_entries": "QC entries",
+             "qc_events": "QC events", "crossovers": "crossovers", "emulsion_lots": "lots",
+             "processors": "processors"}
+    counts = ", ".join(f"{report.rows[table]} {word}" for table, word in words.items())
+    print(f"copied {report.source} to {report.dest}: {counts}")
+    print(f"  hash chain: {report.head_seq} records, head sha256 {report.head_sha256} (the same as the source's)")
+    return 0
+
+
 def _cmd_revise(args: argparse.Namespace) -> int:
     """Correct a snapshot: store a revision with a reason; the old snapshot stays readable, marked revised."""
     with open_from_args(args, create=False) as archive:
@@ -527,6 +579,25 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
     retire.add_argument("--reason", metavar="TEXT", required=True, help="why it no longer counts (needed)")
 
     command("verify", _cmd_verify, "check every stored record against the hash chain")
+
+    def plain(name: str, handler: _Handler, help_text: str) -> argparse.ArgumentParser:
+        # Commands that name their locations themselves, not through --archive.
+        sub = commands.add_parser(name, help=help_text, description=handler.__doc__)
+        sub.set_defaults(func=guarded(handler))
+        return sub
+
+    init = plain("init", _cmd_init, "create an archive's tables in a new file or an empty server database")
+    init.add_argument("location", metavar="LOCATION",
+                      help="a new file, or a server database as postgresql://USER@HOST/DB (made by its administrator)")
+    init.add_argument("--roles", action="store_true",
+                      help="on a server, also create the reader, recorder and physicist roles")
+    init.add_argument("--role-prefix", metavar="NAME",
+                      help="start of the roles' names (default: the database's name), as NAME_reader ...")
+
+    copy = plain("copy", _cmd_copy, "copy a whole archive to a new file or an empty server database")
+    copy.add_argument("source", metavar="SOURCE", help="the archive to copy: a file or a server location")
+    copy.add_argument("dest", metavar="DEST",
+                      help="a new file, or an empty server database (its tables are created when it has none)")
     return parser
 
 

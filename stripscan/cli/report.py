@@ -125,11 +125,11 @@ def _date(text: str) -> str:
 
 
 def _open_archive(args: argparse.Namespace) -> Any:
-    from stripscan.archive import Archive, default_archive_path
+    from stripscan.archive import Archive
 
-    # Reading never creates a file: a mistyped path must say so.
-    return Archive.open(args.archive if args.archive is not None else default_archive_path(),
-                        read_only=True, create=False)
+    # Reading never creates a file: a mistyped path must say so.  None is read as every
+    # command reads it ($STRIPSCAN_ARCHIVE, a file or a server, else the default file).
+    return Archive.open(args.archive, read_only=True, create=False)
 
 
 def _analysis(args: argparse.Namespace, source: Source) -> tuple[Any, Any]:
