@@ -280,7 +280,7 @@ def test_an_image_above_the_pixel_limit_is_refused_before_decoding(tmp_path, cap
     import numpy as np
     import tifffile
 
-    from stripscan.core.scan import DEFAULT_MAX_PIXELS
+    from stripscan.core.scan_files import DEFAULT_MAX_PIXELS
 
     assert DEFAULT_MAX_PIXELS > 10_000 * 14_000  # an A4 page at 1200 dpi, common practice
     bomb = tmp_path / "bomb.tif"

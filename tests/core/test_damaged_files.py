@@ -19,7 +19,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from stripscan.core.certificate import CalibrationError, read_certificate
-from stripscan.core.scan import ScanError, load_scan
+from stripscan.core.scan import load_scan
+from stripscan.core.scan_files import ScanError
 
 _RNG = np.random.default_rng(7)
 _IMAGE = (_RNG.normal(30000, 2000, (96, 80))).clip(0, 65535).astype(np.uint16)

@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 import tifffile
 
-from stripscan.core.scan import ScanError, decode_srgb, load_scan, reduce_channels
+from stripscan.core.scan import decode_srgb, load_scan, reduce_channels
+from stripscan.core.scan_files import ScanError
 
 
 def _ramp(shape=(40, 60), top=65535, dtype=np.uint16):
