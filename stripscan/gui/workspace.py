@@ -44,7 +44,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.archive import FILE_SUFFIXES, Archive, default_archive_path
+from stripscan.archive import FILE_SUFFIXES, Archive
 from stripscan.gui import jobs
 from stripscan.gui.models.compare_page import ComparePage, read_compared_lots
 from stripscan.gui.panels.archive_panel import ArchivePanel
@@ -57,6 +57,7 @@ from stripscan.gui.models.location import (
     ArchiveLocation,
     as_location,
     connection_lost,
+    default_location,
     is_server,
     location_exists,
     location_words,
@@ -238,7 +239,7 @@ class Workspace(QObject):
         self.update_scan_actions()
         self._corner()  # set as the tab bar's corner widget by _corner_follow
         self.pages.currentChanged.connect(self._corner_follow)
-        self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
+        self.set_archive(archive_setting(settings) or default_location(), persist=False)
 
     # -- actions and menus ----------------------------------------------------------------
     def _act(self, text: str, slot: Callable[[], Any], tip: str = "", shortcut: str | None = None) -> QAction:

@@ -246,3 +246,23 @@ def test_a_server_that_cannot_be_reached_is_named_and_changes_nothing(qtbot, win
     boxes = messages(window)
     assert len(boxes) == 1 and "connection to the server failed" in boxes[0].text()
     assert ws.archive_path == before and window.settings.recent_servers() == []
+
+
+def test_a_server_named_by_stripscan_archive_is_the_windows_archive(qtbot, settings, monkeypatch, tmp_path):
+    pytest.importorskip("psycopg")
+    from conftest import close_window
+    from stripscan.gui.main_window import MainWindow
+
+    # No server listens in this folder: the window starts on it all the same, and says it cannot reach it.
+    url = f"postgresql://postgres@/physics?host={tmp_path}"
+    monkeypatch.setenv("STRIPSCAN_ARCHIVE", url)
+    window = MainWindow(settings=settings)
+    window.show()
+    try:
+        ws = window.workspace
+        assert ws.archive_path == url  # before: a Path, "postgresql:/postgres@/physics…"
+        settle(qtbot, ws, ws.archive_panel, ws.qc_panel, timeout=60_000)
+        assert ws.notice.isVisible() and ws.notice.warning
+        assert not messages(window), [box.text() for box in messages(window)]
+    finally:
+        close_window(qtbot, window)

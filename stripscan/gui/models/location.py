@@ -18,7 +18,7 @@ from urllib.parse import quote
 
 from stripscan.archive import ArchiveConnectionError, parse_location
 
-__all__ = ["ArchiveLocation", "as_location", "location_exists", "location_words", "is_server", "connection_lost",
+__all__ = ["ArchiveLocation", "as_location", "default_location", "location_exists", "location_words", "is_server", "connection_lost",
            "server_location", "SSL_MODES"]
 
 #: libpq's ``sslmode`` values, the default ("prefer") first.
@@ -38,6 +38,12 @@ def as_location(value: str | os.PathLike[str] | None) -> ArchiveLocation | None:
     if isinstance(value, str) and not value.strip():
         return None
     where = parse_location(value)
+    return where.conninfo if where.is_server else where.path  # type: ignore[return-value]
+
+
+def default_location() -> ArchiveLocation:
+    """The archive used when none was chosen: ``$STRIPSCAN_ARCHIVE`` (a path or a server), else the default file."""
+    where = parse_location(None)
     return where.conninfo if where.is_server else where.path  # type: ignore[return-value]
 
 
