@@ -9,14 +9,17 @@ psycopg's own parser of libpq strings.
 
 from __future__ import annotations
 
+import datetime
 import os
 from pathlib import Path
 from types import SimpleNamespace
 
 import pytest
+from PySide6.QtCore import QDate
 from PySide6.QtWidgets import QDialogButtonBox, QLineEdit, QMessageBox
 
 from stripscan.archive import Archive
+from stripscan.core.qc.names import QUANTITIES
 from stripscan.gui import jobs
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
 from stripscan.gui.dialogs.shared_archive import PASSWORD_WORDS, SharedArchiveDialog
@@ -186,6 +189,19 @@ def test_the_demo_on_a_server_works_on_every_page(qtbot, window, demo_server):
     wait_pages(qtbot, ws)
     assert ws.qc_panel.plog is not None and len(ws.qc_panel.plog.entries) == demo_server.qc_days
     render(window, "qc")
+    # A day typed on the page is stored on the server, as in a file.
+    with Archive.open(demo_server.url, read_only=True) as shared:
+        latest = shared.list_qc_entries(DEMO_PROCESSOR)[-1]
+    day = datetime.date.fromisoformat(latest.date) + datetime.timedelta(days=1)
+    panel = ws.qc_panel
+    panel.date_edit.setDate(QDate(day.year, day.month, day.day))
+    for q in QUANTITIES:
+        panel.value_edits[q].setValue(getattr(latest, q))
+    panel.add_button.click()
+    wait_pages(qtbot, ws)
+    assert panel.form_message.text().startswith("Stored"), panel.form_message.text()
+    with Archive.open(demo_server.url, read_only=True) as shared:
+        assert shared.list_qc_entries(DEMO_PROCESSOR)[-1].date == day.isoformat()
 
     # The comparison page: the lots offered, then compared.
     ws.dialog = None
