@@ -28,9 +28,11 @@ from pathlib import Path
 
 import tifffile
 
-from stripscan.core.calibration import Certificate
-from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
+from stripscan.core.certificate import Certificate
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 COMPRESSIONS = ("none", "zlib", "lzw")
 

@@ -35,7 +35,8 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.services.batch import available_cores
 
 ROOT = Path(__file__).resolve().parent.parent

@@ -44,7 +44,8 @@ from pathlib import Path
 
 from bench_large import A4, a4_layout
 
-from stripscan.sim.simulate import ScannerModel, simulate_scan, write_tiff
+from stripscan.sim.objects import ScannerModel
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 ROOT = Path(__file__).resolve().parent.parent
 

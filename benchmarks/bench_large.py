@@ -28,7 +28,7 @@ from pathlib import Path
 
 from bench_analyze import COMPRESSIONS, ScanTiming, measure_scan
 
-from stripscan.sim.simulate import FilmModel, StripSpec, TabletSpec
+from stripscan.sim.objects import FilmModel, StripSpec, TabletSpec
 
 A4 = (210.0, 297.0)
 STRIPS = 6

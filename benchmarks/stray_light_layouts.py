@@ -6,7 +6,7 @@ where the strips lie (alone, five crowded together, at the platen's edge),
 and the scanner's bit depth, resolution, flare fraction, flare reach and
 flare kernel shape.  :func:`run_setup` simulates the tablet scan and the strip
 scan (A4-sized platen), calibrates from the tablet through
-``stripscan.core.pipeline.calibrate_tablet`` with a written certificate,
+``stripscan.core.tablet.calibrate_tablet`` with a written certificate,
 analyses the strip scan with ``analyze_scan`` and compares every step with
 the simulator's truth.  :func:`format_table` prints the result.
 
@@ -25,18 +25,11 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from stripscan.core.calibration import CalibrationError, read_certificate
-from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import (
-    FilmModel,
-    ScannerModel,
-    SimulatedScan,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.core.certificate import CalibrationError, read_certificate
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import FilmModel, ScannerModel, SimulatedScan, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 #: A flatbed's transparency area, about A4 (mm, width x height).
 PLATEN_MM = (216.0, 297.0)

@@ -11,9 +11,8 @@ from stripscan import CAUTION
 from stripscan.cli.main import main
 import numpy as np
 
-from stripscan.sim.simulate import (
-    FilmModel, ScannerModel, StripSpec, TabletSpec, expected_signal, simulate_scan, write_certificate, write_tiff,
-)
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import expected_signal, simulate_scan, write_certificate, write_tiff
 
 TABLET_OD = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))  # common practice: 21 steps 0.05..3.05
 

@@ -15,7 +15,8 @@ import pytest
 import stripscan
 from stripscan import CAUTION
 from stripscan.cli.main import main
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 ROOT = Path(stripscan.__file__).resolve().parent.parent
 TABLET_OD = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))  # common practice: 21 steps 0.05..3.05

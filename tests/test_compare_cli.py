@@ -18,7 +18,7 @@ from stripscan.cli.compare import levels_in_force
 from stripscan.services.comparison_sets import SetError, parse_set
 from stripscan.core.compare.comparison import compare_sets
 from stripscan.core.compare.sets import StripSet
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.curve import compute_figures, step_log_exposures
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.records import ScanInfo, StepDensity, StripGeometry, StripResult
@@ -424,6 +424,7 @@ def test_the_window_shades_no_day_after_a_crossover(capsys, tmp_path, qtbot):
     qtbot.addWidget(panel)
     panel.resize(1000, 900)
     panel.show()
+    qtbot.waitUntil(lambda: not panel.busy, timeout=20_000)  # the panel reads the archive off the UI thread
     assert [p.baseline_dates for p in panel.data.periods] == [
         tuple(datetime.date(2026, 11, d) for d in range(2, 7)), ()]
     for plot in panel.plots.values():

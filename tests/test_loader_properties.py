@@ -25,7 +25,8 @@ from hypothesis import strategies as st
 
 from stripscan.archive import Archive, ArchiveError
 from stripscan.cli.main import main
-from stripscan.core.calibration import CalibrationError, load_calibration
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.certificate import CalibrationError
 from stripscan.sim.demo_data import demo_files
 
 _SCALARS = st.one_of(

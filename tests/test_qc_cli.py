@@ -17,7 +17,8 @@ import pytest
 from stripscan import CAUTION
 from stripscan.archive import Archive, Processor
 from stripscan.cli.main import main
-from stripscan.sim.simulate import StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import daily_film, demo_files, scanner_for
 from stripscan.services.qc_log import load_processor_log
 

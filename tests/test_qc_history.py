@@ -18,7 +18,8 @@ import pytest
 from stripscan.archive import Archive, OutOfOrderError
 from stripscan.cli.main import main
 from stripscan.core.qc.records import QCValues
-from stripscan.services.qc_log import add_day, load_processor_log
+from stripscan.services.qc_log import load_processor_log
+from stripscan.services.qc_recording import add_day
 
 P = "Darkroom B"
 

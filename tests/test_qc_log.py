@@ -17,24 +17,17 @@ import pytest
 from stripscan import CAUTION
 from stripscan.archive import Archive, ArchiveConflictError, ArchiveLookupError, NewSnapshot
 from stripscan.archive import QcEntry as StoredEntry
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import analyze_scan
 from stripscan.core.qc.levels import choose_qc_steps
 from stripscan.core.qc.records import OperatingLevels, QCSteps, QCValues
-from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import daily_film, demo_files, scanner_for
 from stripscan.services.qc_chart import chart_data
-from stripscan.services.qc_log import (
-    DuplicateDayError,
-    add_day,
-    add_event,
-    correct_entry,
-    load_processor_log,
-    read_strip,
-    set_limits,
-    status_json,
-    status_text,
-)
+from stripscan.services.qc_log import DuplicateDayError, load_processor_log
+from stripscan.services.qc_recording import add_day, add_event, correct_entry, read_strip, set_limits
+from stripscan.services.qc_status import status_json, status_text
 
 P = "Darkroom B"
 START = datetime.date(2026, 10, 5)

@@ -17,7 +17,7 @@ from pathlib import Path
 import pytest
 
 from stripscan.cli.main import main
-from stripscan.core.calibration import load_calibration, save_calibration
+from stripscan.core.calibration_files import load_calibration, save_calibration
 from stripscan.sim.demo_data import demo_files
 
 
@@ -616,7 +616,7 @@ def test_what_was_refused_cleanly_stays_so(tmp_path, capsys, demo, case):
 @pytest.mark.parametrize("text", ["1,0.05\r2,0.30\r3,0.60\r", "\r\x01", "1,0.05\n2," + "9" * 200_000 + "\n"])
 def test_a_certificate_with_old_mac_line_ends_or_a_huge_field_is_read_or_refused_by_line(tmp_path, text):
     # found by the property test: csv's own error escaped for a lone CR, and fields over csv's size limit
-    from stripscan.core.calibration import CalibrationError, read_certificate
+    from stripscan.core.certificate import CalibrationError, read_certificate
 
     cert = tmp_path / "certificate.csv"
     cert.write_bytes(text.encode("latin-1"))

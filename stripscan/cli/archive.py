@@ -101,9 +101,9 @@ def _reading_setup(args: argparse.Namespace, archive: Archive) -> tuple[Any, Any
 
     Read once for all the scans of a command.
     """
-    from stripscan.core.calibration import load_calibration
-    from stripscan.core.curve import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.figure_settings import FigureSettings
+    from stripscan.core.reading import AnalysisOptions
 
     # The core's own errors are ValueErrors whose message names the file.
     calibration = load_calibration(args.calibration) if args.calibration is not None else None

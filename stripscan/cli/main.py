@@ -81,7 +81,7 @@ def _write_text_atomic(path: Path, text: str) -> None:
 
 def read_exposure_table(path: str) -> tuple[float, ...]:
     """A sensitometer's per-step log exposure: one number per line (``#`` comments allowed)."""
-    from stripscan.core.calibration import read_table_text
+    from stripscan.core.certificate import read_table_text
 
     lines = read_table_text(path, "step table", "one number per step, one per line").splitlines()
     values = []
@@ -186,8 +186,8 @@ def format_analysis(analysis) -> str:
 
 
 def _analysis_options(args):
-    from stripscan.core.curve import FigureSettings
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.figure_settings import FigureSettings
+    from stripscan.core.reading import AnalysisOptions
 
     figures = FigureSettings(
         gradient_low=args.low,
@@ -218,7 +218,8 @@ def _analysis_options(args):
 
 def _analysis_inputs(args):
     """The calibration (or None), the on-scan tablet's certificate (or None) and the options, read once."""
-    from stripscan.core.calibration import load_calibration, read_certificate
+    from stripscan.core.calibration_files import load_calibration
+    from stripscan.core.certificate import read_certificate
 
     tablet_certificate = getattr(args, "tablet_certificate", None)
     if tablet_certificate and args.calibration:
@@ -304,8 +305,10 @@ def _analyze_batch(args) -> int:
 
 
 def cmd_calibrate(args) -> int:
-    from stripscan.core.calibration import ACCURACY_GOAL, read_certificate, save_calibration
-    from stripscan.core.pipeline import calibrate_tablet
+    from stripscan.core.calibration import ACCURACY_GOAL
+    from stripscan.core.calibration_files import save_calibration
+    from stripscan.core.certificate import read_certificate
+    from stripscan.core.tablet import calibrate_tablet
 
     certificate = read_certificate(args.densities)
     lateral = None

@@ -70,7 +70,8 @@ def _cmd_add(args: argparse.Namespace) -> int:
     """Add a day's QC entry, read off a scan or typed in from a densitometer (or several days' scans)."""
     from stripscan.cli.batch import is_batch
     from stripscan.core.qc.records import QCValues
-    from stripscan.services.qc_log import status_text, uncalibrated_refusal
+    from stripscan.services.qc_recording import uncalibrated_refusal
+    from stripscan.services.qc_status import status_text
 
     if is_batch(args.scan):
         return _add_days(args)
@@ -87,11 +88,11 @@ def _cmd_add(args: argparse.Namespace) -> int:
     if args.scan is None and (args.calibration or args.strip is not None or args.lot):
         return fail("--calibration, --strip and --lot apply to a scan; no SCAN was given")
     if args.scan is not None and args.calibration is None:
-        # The log refuses an uncalibrated read anyway (qc_log.read_strip); say so before the scan is analysed.
+        # The log refuses an uncalibrated read anyway (qc_recording.read_strip); say so before the scan is analysed.
         return fail(uncalibrated_refusal(Path(args.scan).name))
     analysis = calibration = None
     if args.scan is not None:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
         cal = load_calibration(args.calibration)
@@ -109,7 +110,7 @@ def _cmd_add(args: argparse.Namespace) -> int:
 
 def _store_day(args: argparse.Namespace, archive: Any, day: Any, **reading: Any) -> Any:
     """``add_day`` with the command's options; its refusals say which option would allow the entry."""
-    from stripscan.services.qc_log import add_day
+    from stripscan.services.qc_recording import add_day
 
     try:
         return add_day(archive, args.processor, day, strip=args.strip, lot=args.lot, note=args.note or "",
@@ -163,7 +164,8 @@ def _add_days(args: argparse.Namespace) -> int:
 
     from stripscan.cli.batch import run_batch_command, start_workers
     from stripscan.services.batch import collect_scans
-    from stripscan.services.qc_log import status_text, uncalibrated_refusal
+    from stripscan.services.qc_recording import uncalibrated_refusal
+    from stripscan.services.qc_status import status_text
 
     _processor(args)
     if any(v is not None for v in (args.base_fog, args.mid_density, args.density_difference)):
@@ -181,7 +183,7 @@ def _add_days(args: argparse.Namespace) -> int:
     scans.sort(key=lambda p: (days[p], p.name))  # the log takes its days in order
     stored: list[Any] = []
     with start_workers(args, scans) as workers, open_from_args(args, create=args.new_processor) as archive:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.pipeline import analyze_scan
 
         calibration = load_calibration(args.calibration)
@@ -207,7 +209,8 @@ def _add_days(args: argparse.Namespace) -> int:
 
 def _cmd_correct(args: argparse.Namespace) -> int:
     """Correct a wrongly entered QC entry: store the right values with a reason, keeping the wrong ones."""
-    from stripscan.services.qc_log import correct_entry, status_text
+    from stripscan.services.qc_recording import correct_entry
+    from stripscan.services.qc_status import status_text
 
     if not args.reason or not args.reason.strip():
         raise ValueError("--reason is needed: say why the entry was wrong (it is kept with the correction)")
@@ -231,7 +234,8 @@ def _cmd_correct(args: argparse.Namespace) -> int:
 
 def _cmd_status(args: argparse.Namespace) -> int:
     """Today's status of one processor, or of every processor in the archive."""
-    from stripscan.services.qc_log import load_processor_log, status_json, status_text
+    from stripscan.services.qc_log import load_processor_log
+    from stripscan.services.qc_status import status_json, status_text
 
     on = _day(args.on, "--on") if args.on is not None else None
     with open_from_args(args, create=False) as archive:
@@ -251,7 +255,7 @@ def _cmd_status(args: argparse.Namespace) -> int:
 
 
 def _entry_row(item: LoggedEntry) -> list[str]:
-    from stripscan.services.qc_log import signed
+    from stripscan.services.qc_status import signed
 
     e, v = item.entry, item.verdict
     remark = "; ".join(t for t in (item.standing(), e.note, f"action: {e.action}" if e.action else "") if t)
@@ -318,7 +322,7 @@ def _cmd_chart(args: argparse.Namespace) -> int:
 
 def _cmd_event(args: argparse.Namespace) -> int:
     """Record an event that restarts the baseline (new chemistry, service, crossover...)."""
-    from stripscan.services.qc_log import add_event
+    from stripscan.services.qc_recording import add_event
 
     _processor(args)
     day = _day(args.date)
@@ -342,7 +346,8 @@ def _cmd_event(args: argparse.Namespace) -> int:
 
 def _cmd_limits(args: argparse.Namespace) -> int:
     """Show or change a processor's control limits, warning tier and baseline length."""
-    from stripscan.services.qc_log import load_setup, set_limits
+    from stripscan.services.qc_log import load_setup
+    from stripscan.services.qc_recording import set_limits
 
     _processor(args)
     changes: dict[str, Any] = {}
@@ -392,7 +397,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     """Fill an archive with the invented demo month of Processor 1's QC."""
     from stripscan.sim.demo_data import demo_files
     from stripscan.services.qc_demo import build_demo_qc
-    from stripscan.services.qc_log import status_text
+    from stripscan.services.qc_status import status_text
 
     with open_from_args(args, create=True) as archive:
         summary = build_demo_qc(archive, demo_files())

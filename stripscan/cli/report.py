@@ -233,7 +233,7 @@ def _comparisons(args: argparse.Namespace) -> tuple[Any, list[Any], list[str]]:
 
 def _calibration_uses(args: argparse.Namespace, specs: list[Any]) -> list[Any]:
     """Which calibration gave each set's densities: the scans' file, or the archived snapshots' own."""
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
     from stripscan.render.comparison import CalibrationUse
 
     groups: dict[str, tuple[list[str], dict[str, Any] | None, str | None]] = {}

@@ -24,38 +24,24 @@ nothing.
 
 from __future__ import annotations
 
-import csv
-import datetime as _dt
 import hashlib
-import io
 import json
 import math
-import os
 from dataclasses import dataclass, field
-from pathlib import Path
-from typing import Any, Sequence
+from typing import Any
 
 import numpy as np
 
-from stripscan._shared import atomic
 from stripscan.core.numerics import pchip
-from stripscan.core.records import StepReading, clean_float
+from stripscan.core.records import clean_float
 from stripscan.core.straylight import StrayLight
 
+from stripscan.core.certificate import CalibrationError, Certificate
+
 __all__ = [
-    "CalibrationError",
-    "Certificate",
     "Calibration",
     "DirectMode",
     "LateralCorrection",
-    "read_certificate",
-    "parse_certificate",
-    "fit_calibration",
-    "load_calibration",
-    "save_calibration",
-    "check_calibration_data",
-    "read_table_text",
-    "MAX_STEPS",
     "fit_lateral",
     "flat_field",
     "ACCURACY_GOAL",
@@ -68,211 +54,11 @@ ACCURACY_GOAL = 0.02
 #: the accuracy goal, a short extension of the map where it is straightest.
 LIGHT_END_TOLERANCE = 0.5 * ACCURACY_GOAL
 
-_FORMAT = "stripscan-calibration"
-_FORMAT_VERSION = 1
+FORMAT = "stripscan-calibration"
+FORMAT_VERSION = 1
 #: Files with a stray-light model: their knots hold the light the sensor saw,
 #: which an older reader would take for certified densities, so they say so.
-_FORMAT_VERSION_STRAY = 2
-
-#: Most steps a strip, tablet or certificate may have.  Tablets have 11, 21 or
-#: 31 steps (common practice); the bound keeps a typing slip such as a step
-#: ``1e12`` from asking for a table of a trillion rows.
-MAX_STEPS = 100
-
-
-class CalibrationError(ValueError):
-    """A certificate, tablet scan or calibration file cannot be used."""
-
-
-@dataclass(frozen=True)
-class Certificate:
-    """Certified densities of a reference step tablet.
-
-    Attributes
-    ----------
-    steps : tuple of int
-        1, 2, ..., N.
-    densities : tuple of float
-        Certified diffuse transmission density of each step, increasing.
-    uncertainties : tuple of float or None
-        Expanded or standard uncertainty per step as the certificate gives.
-    source : str
-        File the certificate came from.
-    """
-
-    steps: tuple[int, ...]
-    densities: tuple[float, ...]
-    uncertainties: tuple[float, ...] | None = None
-    source: str = ""
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "steps": list(self.steps),
-            "densities": list(self.densities),
-            "uncertainties": list(self.uncertainties) if self.uncertainties else None,
-            "source": self.source,
-        }
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> "Certificate":
-        unc = data.get("uncertainties")
-        return cls(tuple(data["steps"]), tuple(data["densities"]), tuple(unc) if unc else None, data.get("source", ""))
-
-
-def _csv_rows(text: str, source: str):
-    """CSV rows of ``text``, lines ended by LF, CR LF or a lone CR; csv's own errors name the source."""
-    reader = csv.reader(io.StringIO(text, newline=None))
-    try:
-        yield from reader
-    except csv.Error as exc:
-        raise CalibrationError(f"{source}, line {reader.line_num}: not CSV text ({exc})") from None
-
-
-def parse_certificate(text: str, *, source: str = "<certificate>") -> Certificate:
-    """Parse our certificate CSV.
-
-    Format: one row per step, ``step,density`` (optionally a third column
-    ``uncertainty``).  A header row naming the columns, blank lines and
-    lines starting with ``#`` are allowed.  Steps must run 1..N with no gap
-    or repeat; densities must be numbers that increase with the step.
-
-    Raises
-    ------
-    CalibrationError
-        Naming the source and the line at fault.
-    """
-    rows: dict[int, tuple[float, float | None]] = {}
-    has_unc = None
-    for lineno, row in enumerate(_csv_rows(text, source), start=1):
-        cells = [c.strip() for c in row]
-        if not cells or all(not c for c in cells) or cells[0].startswith("#"):
-            continue
-        if not rows and cells[0].lower() in ("step", "steps", "step number"):
-            continue
-        if len(cells) < 2:
-            raise CalibrationError(f"{source}, line {lineno}: expected 'step,density', got {','.join(cells)!r}")
-        try:
-            step_value = float(cells[0])
-        except ValueError:
-            raise CalibrationError(f"{source}, line {lineno}: step {cells[0]!r} is not a number") from None
-        if not math.isfinite(step_value) or step_value != int(step_value) or step_value < 1:
-            raise CalibrationError(f"{source}, line {lineno}: step {cells[0]!r} is not a whole number from 1")
-        if step_value > MAX_STEPS:
-            raise CalibrationError(
-                f"{source}, line {lineno}: step {cells[0]!r} is beyond the {MAX_STEPS} steps "
-                "a strip or tablet may have")
-        step = int(step_value)
-        try:
-            density = float(cells[1])
-        except ValueError:
-            raise CalibrationError(f"{source}, line {lineno}: density {cells[1]!r} is not a number") from None
-        if not math.isfinite(density) or not -0.1 <= density <= 8.0:
-            raise CalibrationError(f"{source}, line {lineno}: density {cells[1]!r} is not a plausible optical density")
-        unc = None
-        if len(cells) > 2 and cells[2]:
-            try:
-                unc = float(cells[2])
-            except ValueError:
-                raise CalibrationError(f"{source}, line {lineno}: uncertainty {cells[2]!r} is not a number") from None
-            if not math.isfinite(unc) or not 0.0 <= unc <= 1.0:
-                raise CalibrationError(
-                    f"{source}, line {lineno}: uncertainty {cells[2]!r} is not a plausible density "
-                    "uncertainty (0 to 1 OD)")
-        if step in rows:
-            raise CalibrationError(f"{source}, line {lineno}: step {step} is listed twice")
-        rows[step] = (density, unc)
-        has_unc = (unc is not None) if has_unc is None else (has_unc and unc is not None)
-    if len(rows) < 3:
-        raise CalibrationError(f"{source}: a certificate needs at least 3 steps, found {len(rows)}")
-    steps = sorted(rows)
-    missing = sorted(set(range(1, steps[-1] + 1)) - set(steps))
-    if missing:
-        which = f"step {missing[0]} is" if len(missing) == 1 else f"steps {', '.join(map(str, missing))} are"
-        raise CalibrationError(f"{source}: {which} missing (steps must run 1..N)")
-    densities = [rows[s][0] for s in steps]
-    for prev, step in zip(steps, steps[1:]):
-        if not rows[step][0] > rows[prev][0]:
-            raise CalibrationError(
-                f"{source}: densities must increase with the step; step {step} ({rows[step][0]:g}) "
-                f"is not denser than step {prev} ({rows[prev][0]:g})"
-            )
-    uncertainties = tuple(rows[s][1] for s in steps) if has_unc else None  # type: ignore[misc]
-    return Certificate(tuple(steps), tuple(densities), uncertainties, source)
-
-
-#: Largest small text file (certificate, exposure table) read, bytes: a
-#: 100-step table is a few kB, so anything bigger is the wrong file.
-MAX_TABLE_BYTES = 1 << 20
-
-
-def decode_table_text(raw: bytes) -> str | None:
-    """The text of a small table saved by a spreadsheet or an editor.
-
-    UTF-8 (with or without a byte order mark), UTF-16 with a byte order mark
-    (a spreadsheet's "Unicode text"), and otherwise Windows-1252 / Latin-1,
-    the other encoding such programs write.  A table holds digits, commas
-    and a few words, so a wrong guess between the last two can only change
-    a letter in a comment or a header.
-
-    Returns
-    -------
-    str or None
-        None when the bytes are not text at all (NUL bytes without a UTF-16
-        byte order mark).
-    """
-    import codecs
-
-    if raw.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
-        try:
-            return raw.decode("utf-16")
-        except UnicodeDecodeError:
-            return None
-    if b"\x00" in raw:
-        return None
-    try:
-        return raw.decode("utf-8-sig")
-    except UnicodeDecodeError:
-        pass
-    try:
-        return raw.decode("cp1252")
-    except UnicodeDecodeError:
-        return raw.decode("latin-1")
-
-
-def read_table_text(path: str | os.PathLike[str], what: str, expected: str) -> str:
-    """Read a small text table, see :func:`decode_table_text`; errors name the file.
-
-    Parameters
-    ----------
-    path : path-like
-    what : str
-        The kind of file, for messages ("certificate").
-    expected : str
-        What the file should hold, for messages ("CSV 'step,density'").
-    """
-    path = Path(path)
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read(MAX_TABLE_BYTES + 1)
-    except FileNotFoundError:
-        raise CalibrationError(f"{path}: no such {what} file") from None
-    except IsADirectoryError:
-        raise CalibrationError(f"{path}: is a folder, not a {what} file") from None
-    except OSError as exc:
-        raise CalibrationError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    if len(raw) > MAX_TABLE_BYTES:
-        raise CalibrationError(f"{path}: over {MAX_TABLE_BYTES // 1024} kB, too large for a {what} ({expected})")
-    text = decode_table_text(raw)
-    if text is None:
-        raise CalibrationError(
-            f"{path}: not a text file (expected {expected}, saved as UTF-8, UTF-16 or Latin-1 text)")
-    return text
-
-
-def read_certificate(path: str | os.PathLike[str]) -> Certificate:
-    """Read a certificate CSV file, see :func:`parse_certificate` and :func:`read_table_text`."""
-    text = read_table_text(path, "certificate", "CSV 'step,density'")
-    return parse_certificate(text, source=str(Path(path)))
+FORMAT_VERSION_STRAY = 2
 
 
 @dataclass(frozen=True)
@@ -582,8 +368,8 @@ class Calibration:
     # -- serialisation ---------------------------------------------------
     def to_dict(self) -> dict[str, Any]:
         return {
-            "format": _FORMAT,
-            "format_version": _FORMAT_VERSION if self.stray_light is None else _FORMAT_VERSION_STRAY,
+            "format": FORMAT,
+            "format_version": FORMAT_VERSION if self.stray_light is None else FORMAT_VERSION_STRAY,
             "log_signal": list(self.log_signal),
             "od": list(self.od),
             "valid_od": list(self.valid_od),
@@ -618,9 +404,9 @@ class Calibration:
 
     @classmethod
     def from_dict(cls, data: dict[str, Any], *, source: str = "<calibration>") -> "Calibration":
-        if data.get("format") != _FORMAT:
+        if data.get("format") != FORMAT:
             raise CalibrationError(f"{source}: not a stripscan calibration file")
-        if int(data.get("format_version", 0)) > _FORMAT_VERSION_STRAY:
+        if int(data.get("format_version", 0)) > FORMAT_VERSION_STRAY:
             raise CalibrationError(f"{source}: made by a newer stripscan (format {data['format_version']})")
         try:
             return cls(
@@ -645,14 +431,14 @@ class Calibration:
                 flat_field_sha256=data.get("flat_field_sha256"),
                 note=str(data.get("note", "")),
                 stray_light=StrayLight.from_dict(data["stray_light"]) if data.get("stray_light") else None,
-                tablet_spread=_spread_table(data.get("tablet_spread"), len(data["log_signal"]))
+                tablet_spread=spread_table(data.get("tablet_spread"), len(data["log_signal"]))
                 if data.get("stray_light") else None,
             )
         except (KeyError, TypeError, ValueError, IndexError, AttributeError) as exc:
             raise CalibrationError(f"{source}: calibration file is incomplete or damaged ({exc})") from None
 
 
-def _spread_table(rows: Any, knots: int) -> tuple[tuple[float, float, float], ...]:
+def spread_table(rows: Any, knots: int) -> tuple[tuple[float, float, float], ...]:
     """The tablet's spread per used step, checked: one row of three finite numbers per knot, densities rising."""
     table = tuple(tuple(float(v) for v in row) for row in rows)
     if len(table) != knots or any(len(row) != 3 or not all(math.isfinite(v) for v in row) for row in table):
@@ -660,343 +446,6 @@ def _spread_table(rows: Any, knots: int) -> tuple[tuple[float, float, float], ..
     if any(b[0] <= a[0] for a, b in zip(table, table[1:])) or any(row[1] < 0 or row[2] < 0 for row in table):
         raise ValueError("tablet_spread densities must rise and its spreads must not be negative")
     return table
-
-
-def save_calibration(calibration: Calibration, path: str | os.PathLike[str]) -> None:
-    """Write a calibration as JSON, atomically (never half written).
-
-    The file carries its own content hash (``"sha256"``, see
-    :attr:`Calibration.sha256`), so that an edit made by hand is found when
-    it is read back (:func:`check_calibration_data`).
-    """
-    path = Path(path)
-    text = json.dumps({**calibration.to_dict(), "sha256": calibration.sha256}, indent=1) + "\n"
-    try:
-        atomic.write_text(path, text)
-    except OSError as exc:
-        raise CalibrationError(f"{path}: cannot write the calibration ({exc.strerror or exc})") from None
-
-
-def _json_hash(data: dict[str, Any]) -> str:
-    # As Calibration.sha256: canonical JSON of the content.
-    text = json.dumps(data, sort_keys=True, separators=(",", ":"))
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-def check_calibration_data(data: dict[str, Any], *, source: str = "<calibration>") -> None:
-    """Refuse a calibration file's content that no fit can have made.
-
-    Checks the fields the map and every later reading rest on: the knots are
-    finite, the signals rise and the densities fall with them (a monotone
-    map), the valid range lies within the knots, the certificate runs 1..N
-    with rising densities, the numbers that describe the scan are sane, and,
-    when the file carries its own ``"sha256"``, that the content still
-    matches it.  Keys it does not know are left alone.
-
-    Raises
-    ------
-    CalibrationError
-        Naming ``source`` and the first field at fault.
-    """
-
-    def fail(message: str) -> None:
-        raise CalibrationError(f"{source}: {message}")
-
-    def number(value: Any, what: str, *, optional: bool = False) -> float | None:
-        if value is None and optional:
-            return None
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            fail(f"{what} is {value!r}, not a finite number")
-        return float(value)
-
-    def numbers(name: str, *, size: int | None = None, low: int = 1) -> list[float]:
-        values = data.get(name)
-        if not isinstance(values, list):
-            fail(f"{name} is missing or not a list (the file is incomplete or damaged)")
-        if size is not None and len(values) != size:
-            fail(f"{name} has {len(values)} values, not {size}")
-        if not low <= len(values) <= MAX_STEPS:
-            fail(f"{name} has {len(values)} values; a tablet has {low} to {MAX_STEPS} steps")
-        return [number(v, f"{name}[{k}]") for k, v in enumerate(values)]  # type: ignore[misc]
-
-    if data.get("format") != _FORMAT:
-        fail("not a stripscan calibration file")
-    version = data.get("format_version")
-    if isinstance(version, bool) or not isinstance(version, int) or version < 1:
-        fail(f"format_version is {version!r}, not a version number of this file format")
-    # A newer format is refused by Calibration.from_dict, which knows which
-    # formats this version reads.
-    log_signal = numbers("log_signal", low=4)
-    od = numbers("od", size=len(log_signal))
-    if any(b <= a for a, b in zip(log_signal, log_signal[1:])):
-        fail("log_signal does not rise from knot to knot; the file was edited or damaged")
-    if any(b >= a for a, b in zip(od, od[1:])):
-        fail("od does not fall as the signal rises (a denser step passes less light); "
-             "the file was edited or damaged")
-    if log_signal[-1] > 0.01 or not (-0.1 <= od[-1] and od[0] <= 8.0):
-        fail("the knots lie outside signals 0..1 or densities -0.1..8 OD")
-    low, high = numbers("covered_od", size=2, low=2)
-    # In format 1 the knots are the certified densities the fit covers.
-    if version == 1 and not (od[-1] - 1e-6 <= low <= high <= od[0] + 1e-6):
-        fail(f"covered_od {low:g}..{high:g} does not lie within the calibrated densities {od[-1]:g}..{od[0]:g}")
-    lo, hi = numbers("valid_od", size=2, low=2)
-    if not (low - 1e-6 <= lo <= hi <= high + 1e-6):
-        fail(f"valid_od {lo:g}..{hi:g} does not lie within the covered densities {low:g}..{high:g}")
-    residuals = data.get("residuals")
-    if not isinstance(residuals, list) or len(residuals) > MAX_STEPS:
-        fail("residuals is missing or not a list")
-    for k, value in enumerate(residuals):  # type: ignore[arg-type]
-        number(value, f"residuals[{k}]", optional=True)
-    rms = number(data.get("rms_residual"), "rms_residual", optional=True)
-    if rms is not None and rms < 0:
-        fail(f"rms_residual is {rms:g}, below zero")
-    excluded = data.get("excluded_steps")
-    if not isinstance(excluded, list) or not all(isinstance(v, int) and not isinstance(v, bool) for v in excluded):
-        fail("excluded_steps is not a list of step numbers")
-    _check_certificate_data(data.get("certificate"), fail)
-    if not isinstance(data.get("readings"), list) or not all(isinstance(r, dict) for r in data["readings"]):
-        fail("readings is not a list of step readings")
-    for name in ("scan_sha256", "scan_path", "created", "channel", "decoding"):
-        if not isinstance(data.get(name), str):
-            fail(f"{name} is {data.get(name)!r}, not text")
-    if not isinstance(data.get("bits"), int) or data["bits"] not in (8, 16, 32, 64):
-        fail(f"bits is {data.get('bits')!r}, not 8, 16, 32 or 64")
-    dpi = number(data.get("dpi"), "dpi", optional=True)
-    if dpi is not None and not 10.0 <= dpi <= 20000.0:
-        fail(f"dpi {dpi:g} is not a plausible resolution")
-    numbers("tablet_center_rc", size=2, low=2)
-    lateral = data.get("lateral")
-    if lateral is not None:
-        if not isinstance(lateral, dict) or lateral.get("axis", "col") not in ("col", "row"):
-            fail("lateral is not a lateral response (c_per_mm2, midline_px, axis 'col' or 'row')")
-        number(lateral.get("c_per_mm2"), "lateral c_per_mm2")
-        number(lateral.get("midline_px"), "lateral midline_px")
-    for name in ("note", "flat_field_sha256"):
-        if data.get(name) is not None and not isinstance(data[name], str):
-            fail(f"{name} is {data[name]!r}, not text")
-    stored = data.get("sha256")
-    if stored is not None and stored != _json_hash({k: v for k, v in data.items() if k != "sha256"}):
-        fail("the content no longer matches the sha256 it was saved with; the file was edited after "
-             "'stripscan calibrate' made it (make the calibration again)")
-
-
-def _check_certificate_data(certificate: Any, fail: Any) -> None:
-    """The certificate inside a calibration file: steps 1..N, rising finite densities."""
-    if not isinstance(certificate, dict):
-        fail(f"certificate is {certificate!r}, not the tablet's certificate")
-    steps, densities = certificate.get("steps"), certificate.get("densities")
-    if not isinstance(steps, list) or not isinstance(densities, list) or len(steps) != len(densities):
-        fail("the certificate's steps and densities are missing or of different lengths")
-    if not 3 <= len(steps) <= MAX_STEPS or steps != list(range(1, len(steps) + 1)):
-        fail(f"the certificate's steps do not run 1..N with N from 3 to {MAX_STEPS}")
-    if not all(isinstance(d, (int, float)) and not isinstance(d, bool) and math.isfinite(d) for d in densities):
-        fail("the certificate's densities are not all finite numbers")
-    if any(b <= a for a, b in zip(densities, densities[1:])):
-        fail("the certificate's densities do not rise with the step")
-    unc = certificate.get("uncertainties")
-    if unc is not None and (not isinstance(unc, list) or len(unc) != len(steps) or not all(
-            isinstance(u, (int, float)) and not isinstance(u, bool) and math.isfinite(u) and u >= 0 for u in unc)):
-        fail("the certificate's uncertainties are not one finite number per step")
-
-
-#: Largest calibration file read, bytes (a 100-step calibration is about 20 kB).
-MAX_CALIBRATION_BYTES = 4 << 20
-
-
-def load_calibration(path: str | os.PathLike[str]) -> Calibration:
-    """Read a calibration JSON file, checked with :func:`check_calibration_data`."""
-    path = Path(path)
-    try:
-        with open(path, "rb") as fh:
-            raw = fh.read(MAX_CALIBRATION_BYTES + 1)
-        if len(raw) > MAX_CALIBRATION_BYTES:
-            raise CalibrationError(f"{path}: over {MAX_CALIBRATION_BYTES >> 20} MB, too large for a calibration file")
-        data = json.loads(raw.decode("utf-8"))
-    except FileNotFoundError:
-        raise CalibrationError(f"{path}: no such calibration file") from None
-    except IsADirectoryError:
-        raise CalibrationError(f"{path}: is a folder, not a calibration file") from None
-    except (UnicodeDecodeError, json.JSONDecodeError):
-        raise CalibrationError(f"{path}: not a calibration file (invalid JSON)") from None
-    except RecursionError:
-        raise CalibrationError(f"{path}: not a calibration file (JSON nested too deeply)") from None
-    except OSError as exc:
-        raise CalibrationError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    if not isinstance(data, dict):
-        raise CalibrationError(f"{path}: not a stripscan calibration file")
-    check_calibration_data(data, source=str(path))
-    return Calibration.from_dict(data, source=str(path))
-
-
-def _held_out_predictions(x: np.ndarray, od: np.ndarray) -> np.ndarray:
-    """Each knot predicted by a PCHIP curve through all the others.
-
-    Interior knots are interpolated (leave-one-out); the first knot — the
-    densest step, the top of the range — is extrapolated one-sidedly from
-    the rest, so the top of the range is tested too.  The last knot (the
-    lightest step, the bottom of the range) is returned as NaN: it is the
-    end the range starts from.
-    """
-    out = np.full(len(x), np.nan)
-    for i in range(0, len(x) - 1):
-        keep = np.ones(len(x), dtype=bool)
-        keep[i] = False
-        out[i] = float(pchip(x[keep], od[keep])(x[i]))
-    return out
-
-
-def fit_calibration(
-    readings: Sequence[StepReading],
-    certificate: Certificate,
-    *,
-    scan_sha256: str,
-    scan_path: str,
-    bits: int,
-    channel: str,
-    decoding: str,
-    dpi: float | None,
-    tablet_center_rc: tuple[float, float],
-    lateral: LateralCorrection | None = None,
-    flat_field_sha256: str | None = None,
-    note: str = "",
-    accuracy: float = ACCURACY_GOAL,
-    max_saturated: float = 0.01,
-    created: str | None = None,
-    stray_light: StrayLight | None = None,
-    seen: Sequence[tuple[float, float, float]] | None = None,
-) -> Calibration:
-    """Fit the signal-to-density map from a tablet's step readings.
-
-    Parameters
-    ----------
-    readings : sequence of StepReading
-        One per certificate step, step 1 (lightest) first.
-    certificate : Certificate
-    accuracy : float
-        Accuracy goal, OD; the valid range ends before the first step whose
-        held-out residual exceeds it.
-    max_saturated : float
-        Largest fraction of saturated pixels a usable step may have.
-    stray_light : StrayLight, optional
-        The scanner's stray light, fitted on the same scan.
-    seen : sequence of (float, float, float), optional
-        With ``stray_light``: ``(lamp, spread, unit)`` at each certificate
-        step (relative lamp brightness, spread light, spread per unit
-        fraction), so that the map's knots hold the light the sensor saw
-        there, ``lamp * ((1 - f) 10**-D + spread)``.
-    Other parameters record provenance.
-
-    Raises
-    ------
-    CalibrationError
-        When the readings and certificate do not match, or fewer than four
-        steps are usable.
-
-    Notes
-    -----
-    Residuals are held out: each step is predicted from a map fitted
-    without it and compared with its certified density — interior steps by
-    interpolation, the densest usable step by extrapolation from the
-    others, so that the top of the valid range is a density that was
-    tested, never merely the last step.  With a stray-light model the
-    prediction is turned into a density exactly as a reading is (its
-    spread light taken off), so the residual is in certified terms.
-    """
-    if len(readings) != len(certificate.densities):
-        raise CalibrationError(
-            f"the tablet shows {len(readings)} steps but the certificate lists {len(certificate.densities)}"
-        )
-    if (stray_light is None) != (seen is None) or (seen is not None and len(seen) != len(readings)):
-        raise ValueError("give the stray-light model together with the lamp and spread of every step")
-    signal = np.array([r.signal for r in readings], dtype=np.float64)
-    sem = np.array([r.signal_sd / math.sqrt(max(r.pixels, 1)) for r in readings], dtype=np.float64)
-    cert = np.asarray(certificate.densities, dtype=np.float64)
-    usable = [0]
-    excluded: list[int] = []
-    if not np.isfinite(signal[0]) or signal[0] <= 0 or readings[0].saturated_fraction > max_saturated:
-        raise CalibrationError("the tablet's lightest step cannot be read (off the scan or saturated)")
-    for i in range(1, len(signal)):
-        prev = usable[-1]
-        ok = np.isfinite(signal[i]) and signal[i] > 0 and readings[i].saturated_fraction <= max_saturated
-        # The signal must fall clearly, both against noise and by a relative
-        # margin that a flare-capped or clipped scanner no longer reaches.
-        margin = max(4.0 * math.hypot(sem[i], sem[prev]), 0.002 * signal[prev])
-        if ok and signal[prev] - signal[i] > margin:
-            usable.append(i)
-        else:
-            excluded.extend(range(i + 1, len(signal) + 1))
-            break
-    if len(usable) < 4:
-        raise CalibrationError(
-            f"only {len(usable)} tablet step{'' if len(usable) == 1 else 's'} give{'s' if len(usable) == 1 else ''} "
-            "distinct signals; check the scan settings "
-            "(16-bit linear, automatic corrections off)"
-        )
-    f = stray_light.total if stray_light is not None else 0.0
-    lamp = np.array([p[0] for p in seen], dtype=np.float64)[usable] if seen else np.ones(len(usable))
-    spread = np.array([p[1] for p in seen], dtype=np.float64)[usable] if seen else np.zeros(len(usable))
-    used_cert = cert[usable]
-    seen_od = -np.log10(lamp * ((1.0 - f) * 10.0 ** -used_cert + spread))
-    x = np.log10(signal[usable])[::-1]
-    od = seen_od[::-1]
-    predicted_seen = _held_out_predictions(x, od)[::-1]  # back to step order
-    with np.errstate(divide="ignore", invalid="ignore"):
-        transmitted = (10.0 ** -predicted_seen / lamp - spread) / (1.0 - f)
-        predicted = np.where(transmitted > 0, -np.log10(np.where(transmitted > 0, transmitted, 1.0)), np.inf)
-    residuals: list[float | None] = [
-        None if np.isnan(p) else float(predicted[k] - used_cert[k]) for k, p in enumerate(predicted_seen)
-    ]
-    # The tablet's own reading noise, carried through the map's slope (and
-    # through the spread-light correction, which magnifies it by
-    # seen / (seen - spread)), must also leave room for the goal at k = 2:
-    # where the scanner's response flattens, a tiny signal error becomes a
-    # large density error.
-    slopes = np.abs(pchip(x, od).slope(x))[::-1]
-    share = spread / ((1.0 - f) * 10.0 ** -used_cert + spread)
-    noise_od = slopes * sem[usable] / (signal[usable] * math.log(10.0)) / (1.0 - share)
-    # Valid range: from the lightest step up to the last step before the
-    # held-out error or the noise first exceeds the goal.
-    valid_hi_index = len(usable) - 1
-    for k, res in enumerate(residuals):
-        if (res is not None and not abs(res) <= accuracy) or 2.0 * noise_od[k] > accuracy:
-            valid_hi_index = max(0, k - 1)
-            break
-    valid = (float(used_cert[0]), float(used_cert[valid_hi_index]))
-    # The RMS goes into every reading's uncertainty, so it covers the valid
-    # range only: residuals past its end are why the range ends there, not
-    # the map's error inside it.
-    interior = [r for r in residuals[: valid_hi_index + 1] if r is not None]
-    rms = float(np.sqrt(np.mean(np.square(interior)))) if interior else None
-    return Calibration(
-        log_signal=tuple(float(v) for v in x),
-        od=tuple(float(v) for v in od),
-        valid_od=valid,
-        covered_od=(float(used_cert[0]), float(used_cert[-1])),
-        residuals=tuple(residuals),
-        excluded_steps=tuple(excluded),
-        rms_residual=rms,
-        certificate=certificate,
-        readings=tuple(
-            {"step": r.step, "signal": clean_float(r.signal), "signal_sd": clean_float(r.signal_sd), "pixels": r.pixels}
-            for r in readings
-        ),
-        scan_sha256=scan_sha256,
-        scan_path=scan_path,
-        created=created or _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat(),
-        bits=bits,
-        channel=channel,
-        decoding=decoding,
-        dpi=dpi,
-        tablet_center_rc=tablet_center_rc,
-        lateral=lateral,
-        flat_field_sha256=flat_field_sha256,
-        note=note,
-        stray_light=stray_light,
-        tablet_spread=(
-            tuple((float(d), float(sp), float(seen[k][2])) for d, sp, k in zip(used_cert, spread, usable))
-            if seen is not None else None
-        ),
-    )
 
 
 @dataclass(frozen=True)

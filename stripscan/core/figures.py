@@ -116,12 +116,16 @@ def _net(name: str) -> Callable[[Mapping[str, Any]], str]:
 _LOW, _HIGH, _SPEED = _net("gradient_low"), _net("gradient_high"), _net("speed_net_density")
 
 # Display order.  Detail rows sit beside the figure they belong to; the CSV
-# puts them after the printed figures (see FIGURE_COLUMNS).  Decimals follow
-# what physicists read (common practice): densities as a densitometer
-# reads them, gradients and gamma to 0.01, log E to 0.001 for the speed
-# point (a speed shift of 0.01 log E is 2 %) and 0.01 for spans.  A printed definition fits
-# one line of the report's definition column (two at most), so the page
-# keeps its room for the curve and the warnings.
+# puts them after the printed figures (see FIGURE_COLUMNS).  Decimals are
+# those the strip report has always printed, which users know: mid-density
+# and density difference to 0.01 OD as a densitometer reads them (common
+# practice), base+fog and Dmax to 0.001 OD (base+fog is judged on rises of a
+# few hundredths), gradients and gamma to 0.01, the speed point to 0.001
+# log E (0.01 log E is 2 % in speed) and spans to 0.01 log E.  Processor QC
+# prints its three quantities to 0.001 OD on purpose: its verdicts turn on
+# limits such as ±0.15, and a deviation of 0.152 must not read as 0.15.
+# A printed definition fits one line of the report's definition column (two
+# at most), so the page keeps its room for the curve and the warnings.
 _FIGURES: tuple[_Figure, ...] = (
     _Figure("base_fog", "base+fog", "density", 3,
             lambda s, f: "Density of processed but unexposed film beside the steps: base plus fog."),
@@ -371,7 +375,7 @@ NOISE_ONLY_NOTE = (
 
 def read_in_direct_mode(strip: StripResult | None) -> bool:
     """Whether the strip was read without a calibration (its warnings carry the UNCALIBRATED one)."""
-    from stripscan.core.pipeline import UNCALIBRATED
+    from stripscan.core.reading import UNCALIBRATED
 
     return strip is not None and UNCALIBRATED in strip.warnings
 

@@ -28,7 +28,7 @@ from PySide6.QtWidgets import (
 
 from stripscan import CAUTION, __version__
 from stripscan._shared.atomic import write_text
-from stripscan.core.calibration import load_calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.render import qtguard
 from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
 from stripscan.gui.dialogs.calibration_dialog import CalibrationDialog

@@ -52,7 +52,7 @@ def make_samples(folder: Path, *, work: Path) -> list[Path]:
     """Build the demo data in ``work`` and save the sample pages into ``folder``."""
     from stripscan.archive import Archive
     from stripscan.services.demo_archive import build_demo_archive
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
     from stripscan.core.compare.comparison import compare_sets
     from stripscan.core.compare.sets import StripSet
     from stripscan.core.pipeline import analyze_scan

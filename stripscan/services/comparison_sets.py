@@ -193,9 +193,10 @@ class SetLoader:
             raise SetError(f"set {spec.text!r}: {exc}") from None
 
     def _scan(self, spec: SetSpec) -> StripSet:
-        from stripscan.core.calibration import load_calibration
+        from stripscan.core.calibration_files import load_calibration
         from stripscan.core.compare.sets import StripSet
-        from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+        from stripscan.core.pipeline import analyze_scan
+        from stripscan.core.reading import AnalysisOptions
 
         if self.calibration_path is not None and self._calibration is None:
             self._calibration = load_calibration(self.calibration_path)

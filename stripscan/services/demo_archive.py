@@ -32,10 +32,13 @@ from pathlib import Path
 
 import numpy as np
 
-from stripscan.core.calibration import Calibration, load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_loaded, analyze_scan
+from stripscan.core.calibration import Calibration
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_loaded, analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.core.scan import load_scan
-from stripscan.sim.simulate import StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import LOT_FILMS, SCENARIO, DemoFiles, demo_files, scanner_for
 
 from stripscan.archive.errors import ArchiveError

@@ -2,7 +2,7 @@
 
 Everything is invented (see :mod:`stripscan.sim.demo_data`).  The month is
 stored through the same calls a person's commands use
-(:func:`stripscan.services.qc_log.add_day`, :func:`~stripscan.services.qc_log.add_event`), so
+(:func:`stripscan.services.qc_recording.add_day`, :func:`~stripscan.services.qc_recording.add_event`), so
 the demo shows the program's own arithmetic, not a picture of it.
 
 Where the numbers come from
@@ -46,9 +46,11 @@ import numpy as np
 
 from stripscan.archive import Archive, Processor
 from stripscan.core.qc.records import QCSteps, QCValues
-from stripscan.sim.simulate import FilmModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import DPI, SCENARIO, DemoFiles, daily_film, scanner_for
-from stripscan.services.qc_log import ProcessorLog, add_day, add_event, load_processor_log
+from stripscan.services.qc_log import ProcessorLog, load_processor_log
+from stripscan.services.qc_recording import add_day, add_event
 
 __all__ = ["DEMO_PROCESSOR", "DemoDay", "DemoQcSummary", "demo_plan", "build_demo_qc"]
 
@@ -186,7 +188,7 @@ def build_demo_qc(archive: Archive, files: DemoFiles, *, processor: str = DEMO_P
     ValueError
         When the processor already has QC entries or events.
     """
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
     from stripscan.core.pipeline import analyze_scan
 
     known = {p.name for p in archive.list_processors()}

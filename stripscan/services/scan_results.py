@@ -110,7 +110,8 @@ def analyse_into_folder(scan: str | os.PathLike[str], *, folder: str | os.PathLi
     -------
     WrittenResult
     """
-    from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+    from stripscan.core.pipeline import analyze_scan
+    from stripscan.core.reading import AnalysisOptions
 
     analysis = analyze_scan(scan, calibration=calibration, options=options or AnalysisOptions(), dpi=dpi,
                             channel=channel, flat_field_scan=flat_field_scan, tablet_certificate=tablet_certificate)

@@ -29,15 +29,8 @@ from pathlib import Path
 
 import numpy as np
 
-from stripscan.sim.simulate import (
-    FilmModel,
-    ScannerModel,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 __all__ = ["DemoFiles", "SCENARIO", "LOT_FILMS", "daily_film", "demo_files", "generate", "scanner_for"]
 
@@ -143,8 +136,9 @@ def _lot_strips(lot: str, seed: int) -> list[StripSpec]:
 
 def generate(folder: str | os.PathLike[str]) -> DemoFiles:
     """Write every demo file into ``folder`` (deterministic)."""
-    from stripscan.core.calibration import read_certificate, save_calibration
-    from stripscan.core.pipeline import calibrate_tablet
+    from stripscan.core.calibration_files import save_calibration
+    from stripscan.core.certificate import read_certificate
+    from stripscan.core.tablet import calibrate_tablet
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)

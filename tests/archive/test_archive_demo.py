@@ -19,8 +19,9 @@ from stripscan.services.demo_archive import (
     build_demo_archive,
     demo_schedule,
 )
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.sim.demo_data import LOT_FILMS, SCENARIO, demo_files
 
 

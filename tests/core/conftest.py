@@ -8,9 +8,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from stripscan.core.calibration import Certificate, Calibration
-from stripscan.core.pipeline import calibrate_tablet
-from stripscan.sim.simulate import ScannerModel, SimulatedScan, TabletSpec, simulate_scan, write_tiff
+from stripscan.core.calibration import Calibration
+from stripscan.core.certificate import Certificate
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import ScannerModel, SimulatedScan, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 #: Certified densities of the simulated tablet: 21 steps 0.05..3.05 (common practice).
 TABLET_OD = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))

@@ -11,7 +11,8 @@ import pytest
 import tifffile
 
 from stripscan.cli.main import main
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 
 def run(argv, capsys):

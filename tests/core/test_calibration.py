@@ -7,18 +7,10 @@ import math
 import numpy as np
 import pytest
 
-from stripscan.core.calibration import (
-    ACCURACY_GOAL,
-    CalibrationError,
-    DirectMode,
-    fit_calibration,
-    fit_lateral,
-    flat_field,
-    load_calibration,
-    parse_certificate,
-    read_certificate,
-    save_calibration,
-)
+from stripscan.core.calibration import ACCURACY_GOAL, DirectMode, fit_lateral, flat_field
+from stripscan.core.calibration_fit import fit_calibration
+from stripscan.core.calibration_files import load_calibration, save_calibration
+from stripscan.core.certificate import CalibrationError, parse_certificate, read_certificate
 from stripscan.core.records import StepReading
 
 NOMINAL = tuple(round(0.05 + 0.15 * k, 3) for k in range(21))  # common practice: 21 steps 0.05..3.05

@@ -15,8 +15,9 @@ from stripscan.core.compare.sets import CompareError, StripSet
 from stripscan.core.compare.statistics import judge, welch_interval
 from stripscan.core.compare.table import DEFAULT_TOLERANCES, Tolerance
 from stripscan.core.curve import relative_speed_percent
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
 
 DPI = 120.0
 SCANNER = ScannerModel(bits=16, encoding="linear", channels=1, noise_sd=0.0008, seed=21)

@@ -16,7 +16,7 @@ from stripscan.core.curve import (
     relative_speed_percent,
     step_log_exposures,
 )
-from stripscan.sim.simulate import FilmModel
+from stripscan.sim.objects import FilmModel
 
 
 def figures(log_e, od, **kwargs):

@@ -18,7 +18,7 @@ import tifffile
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from stripscan.core.calibration import CalibrationError, read_certificate
+from stripscan.core.certificate import CalibrationError, read_certificate
 from stripscan.core.scan import ScanError, load_scan
 
 _RNG = np.random.default_rng(7)

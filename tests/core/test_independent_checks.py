@@ -24,25 +24,15 @@ from scipy import stats
 from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq
 
-from stripscan.core.calibration import (
-    Calibration,
-    Certificate,
-    DirectMode,
-    LateralCorrection,
-    fit_calibration,
-    fit_lateral,
-)
+from stripscan.core.calibration import Calibration, DirectMode, LateralCorrection, fit_lateral
+from stripscan.core.calibration_fit import fit_calibration
+from stripscan.core.certificate import Certificate
 from stripscan.core.compare.comparison import compare_sets
 from stripscan.core.compare.sets import StripSet
 from stripscan.core.compare.statistics import judge, welch_interval
-from stripscan.core.curve import (
-    CharacteristicCurve,
-    FigureSettings,
-    compute_figures,
-    relative_speed_percent,
-    step_log_exposures,
-)
-from stripscan.core.pipeline import AnalysisOptions, strip_result
+from stripscan.core.curve import CharacteristicCurve, compute_figures, relative_speed_percent, step_log_exposures
+from stripscan.core.figure_settings import FigureSettings
+from stripscan.core.reading import AnalysisOptions, strip_result
 from stripscan.core.qc.crossover import crossover
 from stripscan.core.qc.levels import choose_qc_steps, establish_levels
 from stripscan.core.qc.records import OperatingLevels, QCEntry, QCLimits, QCValues, TrendRules
@@ -556,7 +546,7 @@ def test_base_fog_outside_the_range_is_not_used():
 
 
 def test_qc_reading_refuses_a_strip_without_base_fog():
-    from stripscan.services import qc_log
+    from stripscan.services import qc_recording
 
     cert = tablet_certificate(21, 0.15)
     cal = fit(cert, flare_signal(cert.densities))
@@ -567,7 +557,7 @@ def test_qc_reading_refuses_a_strip_without_base_fog():
     info = ScanInfo("qc.tif", "0" * 64, 400, 300, 600.0, 16, 1, "grey", "linear")
     analysis = Analysis(scan=info, calibration=cal.summary(), strips=(strip,))
     with pytest.raises(ValueError, match="base\\+fog"):
-        qc_log.read_strip(analysis, None)  # qc_log.read_strip's own contract: "no base+fog" raises
+        qc_recording.read_strip(analysis, None)  # read_strip's own contract: "no base+fog" raises
 
 
 # --------------------------------------------------------------------------

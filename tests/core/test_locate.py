@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from stripscan.core.locate import LocateError, LocateOptions, geometry_from_outline, locate_strips, with_step_count
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan
 
 SCANNER = ScannerModel(seed=5)
 

@@ -19,8 +19,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from stripscan.core.pipeline import AnalysisError, analyze_scan
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.scan_checks import AnalysisError
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
 
 
 LINEAR16 = ScannerModel(bits=16, encoding="linear", channels=1, seed=21)
@@ -202,8 +203,10 @@ def test_json_output_round_trips(bench, match_strips):
 def test_every_direct_mode_strip_says_it_is_uncalibrated(tmp_path):
     # DESIGN §1: a flatbed scanner is not a densitometer; a strip read without a tablet
     # calibration carries the warning itself, wherever it goes alone (window, snapshot).
-    from stripscan.core.pipeline import UNCALIBRATED, analyze_scan
-    from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+    from stripscan.core.pipeline import analyze_scan
+    from stripscan.core.reading import UNCALIBRATED
+    from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+    from stripscan.sim.simulate import simulate_scan, write_tiff
 
     strips = [StripSpec(film=FilmModel(), center_mm=(20.0 + 35.0 * k, 100.0), angle_deg=90.0) for k in range(2)]
     path = tmp_path / "two.tif"

@@ -20,7 +20,8 @@ from stripscan.core.sample import (
     robust_mean_of_counts,
 )
 from stripscan.core.scan import load_scan
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 
 def brute_force_mask(corners, shape):

@@ -25,9 +25,12 @@ from pathlib import Path
 
 import pytest
 
-from stripscan.core.calibration import load_calibration, read_certificate
-from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.certificate import read_certificate
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.sim.demo_data import demo_files
 
 FIXTURE = Path(__file__).with_name("data") / "sample_readings.json"

@@ -11,12 +11,8 @@ import pytest
 from scipy import integrate, optimize, special
 
 from stripscan.core.records import StripGeometry
+from stripscan.sim.objects import FLARE_KERNELS, FilmModel, ScannerModel, StripSpec, TabletSpec
 from stripscan.sim.simulate import (
-    FLARE_KERNELS,
-    FilmModel,
-    ScannerModel,
-    StripSpec,
-    TabletSpec,
     expected_signal,
     render_transmittance,
     simulate_scan,

@@ -15,9 +15,13 @@ import numpy as np
 import pytest
 from scipy import ndimage
 
-from stripscan.core.calibration import Calibration, Certificate, load_calibration, save_calibration
-from stripscan.core.pipeline import analyze_scan, calibrate_tablet
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, TabletSpec, simulate_scan, write_tiff
+from stripscan.core.calibration import Calibration
+from stripscan.core.calibration_files import load_calibration, save_calibration
+from stripscan.core.certificate import Certificate
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.core.straylight import (
     ReducedScan,
     StrayLight,

@@ -18,17 +18,11 @@ import pytest  # noqa: E402
 if str(Path(__file__).parent) not in sys.path:
     sys.path.insert(0, str(Path(__file__).parent))
 
-from stripscan.core.calibration import read_certificate, save_calibration  # noqa: E402
-from stripscan.core.pipeline import calibrate_tablet  # noqa: E402
-from stripscan.sim.simulate import (  # noqa: E402
-    FilmModel,
-    ScannerModel,
-    StripSpec,
-    TabletSpec,
-    simulate_scan,
-    write_certificate,
-    write_tiff,
-)
+from stripscan.core.calibration_files import save_calibration
+from stripscan.core.certificate import read_certificate
+from stripscan.core.tablet import calibrate_tablet
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec, TabletSpec
+from stripscan.sim.simulate import simulate_scan, write_certificate, write_tiff
 
 DPI = 150.0
 FILMS = (

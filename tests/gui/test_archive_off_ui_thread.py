@@ -23,12 +23,13 @@ from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import QDialogButtonBox
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCValues
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
-from stripscan.services.qc_log import add_day
+from stripscan.services.qc_recording import add_day
 
 from gui_helpers import settle
 

@@ -13,8 +13,9 @@ from PySide6.QtWidgets import QDialogButtonBox, QMessageBox
 from stripscan import CAUTION
 from stripscan.archive import FIGURES, Archive, calibration_hash
 from stripscan.services.demo_archive import REVISED, build_demo_archive
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.sim.demo_data import demo_files
 from stripscan.gui.panels.archive_panel import ArchivePanel
 from stripscan.gui.panels.figures_panel import VALUE_ROLE

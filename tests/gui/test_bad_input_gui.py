@@ -7,7 +7,8 @@ import pytest
 import tifffile
 from PySide6.QtWidgets import QMessageBox
 
-from stripscan.sim.simulate import FilmModel, ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import FilmModel, ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 
 
 def _grey(path, image):
@@ -69,7 +70,7 @@ def test_strip_cut_at_its_dense_end_is_shown_but_not_numbered(qtbot, open_scan, 
 def test_the_options_dialog_and_stored_settings_never_give_impossible_options(qtbot, settings):
     # bad-input issue item 9: a step count of 1 or an infinite increment would stop the window
     # (AnalysisOptions refuses them); the dialog's lowest value means "count them"
-    from stripscan.core.pipeline import AnalysisOptions
+    from stripscan.core.reading import AnalysisOptions
     from stripscan.gui.dialogs.options_dialog import OptionsDialog
 
     dialog = OptionsDialog(AnalysisOptions(), 30.0)

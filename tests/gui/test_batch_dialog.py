@@ -9,7 +9,8 @@ from pathlib import Path
 import pytest
 
 from stripscan import CAUTION
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.gui.dialogs import batch_dialog
 from stripscan.gui.dialogs.batch_dialog import BatchDialog, start_batch
 from stripscan.gui.tasks import TaskRunner
@@ -121,7 +122,7 @@ def test_progress_state_drawn(qtbot, files, tmp_path):
 def test_the_window_analyses_several_scans_with_its_calibration(qtbot, window, files, scans, tmp_path, monkeypatch):
     from PySide6.QtWidgets import QFileDialog
 
-    from stripscan.core.calibration import load_calibration
+    from stripscan.core.calibration_files import load_calibration
 
     window.session.set_calibration(load_calibration(files.calibration), str(files.calibration))
     out = tmp_path / "results"

@@ -6,8 +6,9 @@ import numpy as np
 import pytest
 from PySide6.QtWidgets import QMessageBox
 
-from stripscan.core.calibration import load_calibration, read_certificate
-from stripscan.core.pipeline import calibrate_tablet
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.certificate import read_certificate
+from stripscan.core.tablet import calibrate_tablet
 
 
 def visible_messages(widget) -> list[QMessageBox]:

@@ -11,7 +11,7 @@ import pyqtgraph as pg  # noqa: E402
 import pytest  # noqa: E402
 
 from stripscan import CAUTION  # noqa: E402
-from stripscan.core.calibration import load_calibration  # noqa: E402
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.compare.comparison import compare_sets  # noqa: E402
 from stripscan.core.compare.sets import StripSet  # noqa: E402
 from stripscan.core.compare.table import FIGURES  # noqa: E402

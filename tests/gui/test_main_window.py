@@ -11,9 +11,10 @@ from PySide6.QtGui import QDropEvent, QGuiApplication
 from PySide6.QtWidgets import QMessageBox
 
 from stripscan import CAUTION
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import read_density
-from stripscan.core.curve import FigureSettings, compute_figures
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.reading import read_density
+from stripscan.core.curve import compute_figures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import locate_strips
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan

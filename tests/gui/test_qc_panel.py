@@ -102,7 +102,7 @@ def test_the_window_and_the_monthly_report_explain_the_same_marks_in_the_same_wo
 def test_status_on_the_day_of_the_action_names_the_rule_and_the_advice(qtbot, tmp_path):
     path = tmp_path / "short.sqlite3"
     from stripscan.core.qc.records import QCValues
-    from stripscan.services.qc_log import add_day
+    from stripscan.services.qc_recording import add_day
 
     with Archive.open(path) as archive:
         for k in range(5):
@@ -257,7 +257,7 @@ def test_the_report_month_is_chosen_among_the_months_with_entries(qtbot, tmp_pat
 
     from stripscan.core.qc.records import QCValues
     from stripscan.gui import jobs
-    from stripscan.services.qc_log import add_day
+    from stripscan.services.qc_recording import add_day
 
     path = tmp_path / "two-months.sqlite3"
     with Archive.open(path) as archive:

@@ -8,10 +8,12 @@ import datetime as dt
 import numpy as np
 import pytest
 
-from stripscan.core.calibration import load_calibration
-from stripscan.core.curve import FigureSettings, compute_figures
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.curve import compute_figures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.locate import geometry_from_outline
-from stripscan.core.pipeline import AnalysisOptions, analyze_loaded, read_density, strip_result
+from stripscan.core.pipeline import analyze_loaded
+from stripscan.core.reading import AnalysisOptions, read_density, strip_result
 from stripscan.core.records import StripGeometry
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import load_scan

@@ -18,10 +18,10 @@ from stripscan import CAUTION
 from stripscan.archive import Archive
 from stripscan.core.compare.comparison import compare_sets
 from stripscan.core.qc.names import QUANTITIES
-from stripscan.sim.simulate import FilmModel
+from stripscan.sim.objects import FilmModel
 from stripscan.services.comparison_sets import SetLoader, parse_set
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
-from stripscan.services.qc_log import read_strip
+from stripscan.services.qc_recording import read_strip
 
 from gui_helpers import settle
 

@@ -8,8 +8,9 @@ import re
 import pytest
 
 from stripscan.archive import Archive
-from stripscan.core.calibration import load_calibration
-from stripscan.core.pipeline import AnalysisOptions, analyze_scan
+from stripscan.core.calibration_files import load_calibration
+from stripscan.core.pipeline import analyze_scan
+from stripscan.core.reading import AnalysisOptions
 from stripscan.gui.views.trend_view import TrendView
 
 from gui_helpers import settle

@@ -20,7 +20,8 @@ if str(Path(__file__).parent) not in sys.path:
 from report_support import LOT_A, PROCESSOR, SCENARIO  # noqa: E402
 
 from stripscan.archive import Archive, EmulsionLot, FilmType, Processor, Sensitometer  # noqa: E402
-from stripscan.core.calibration import Calibration, load_calibration  # noqa: E402
+from stripscan.core.calibration import Calibration
+from stripscan.core.calibration_files import load_calibration
 from stripscan.core.pipeline import analyze_scan  # noqa: E402
 from stripscan.core.records import Analysis  # noqa: E402
 from stripscan.sim.demo_data import demo_files  # noqa: E402

@@ -22,7 +22,8 @@ from typing import Any  # noqa: E402
 import pytest  # noqa: E402
 
 from stripscan.core.calibration import Calibration  # noqa: E402
-from stripscan.core.curve import FigureSettings, compute_figures  # noqa: E402
+from stripscan.core.curve import compute_figures
+from stripscan.core.figure_settings import FigureSettings
 from stripscan.core.records import Analysis, ScanInfo, StepDensity, StripGeometry, StripResult  # noqa: E402
 from stripscan.sim.demo_data import SCENARIO  # noqa: E402
 
@@ -127,7 +128,7 @@ def fill_qc_month(archive: Any, *, scan_day: Any = None, calibration: Calibratio
     import datetime as dt
 
     from stripscan.core.qc.records import QCValues
-    from stripscan.services.qc_log import add_day, add_event
+    from stripscan.services.qc_recording import add_day, add_event
 
     days = dict(QC_DAYS)
     if scan_day is not None:

@@ -137,7 +137,7 @@ def test_repeated_and_corrected_entries_are_shown_apart_and_not_used(qc_archive,
 
     from stripscan.core.qc.records import QCValues
     from stripscan.render.qc_chart import SET_ASIDE
-    from stripscan.services.qc_log import add_day, correct_entry
+    from stripscan.services.qc_recording import add_day, correct_entry
 
     typo = next(e for e in qc_archive.list_qc_entries(PROCESSOR) if e.date == "2026-11-24")
     fixed = correct_entry(qc_archive, typo.id, mid_density=1.03, reason="1.00 typed, 1.03 read").entry

@@ -14,7 +14,8 @@ from pathlib import Path
 import pytest
 
 from stripscan.core.pipeline import analyze_scan
-from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.services.batch import (
     BatchItem,
     BatchProgress,

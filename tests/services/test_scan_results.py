@@ -9,7 +9,8 @@ import pytest
 
 from stripscan import CAUTION
 from stripscan.core.pipeline import analyze_scan
-from stripscan.sim.simulate import ScannerModel, StripSpec, simulate_scan, write_tiff
+from stripscan.sim.objects import ScannerModel, StripSpec
+from stripscan.sim.simulate import simulate_scan, write_tiff
 from stripscan.services.scan_results import (
     analyse_into_folder,
     check_result_names,

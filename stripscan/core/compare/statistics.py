@@ -26,7 +26,7 @@ from scipy import stats
 
 from stripscan.core.compare.table import Tolerance
 from stripscan.core.curve import relative_speed_percent
-from stripscan.core.figures import figure_digits, figure_name, figure_unit
+from stripscan.core.figures import figure_digits, figure_name, figure_unit, format_value
 from stripscan.core.records import clean_float
 
 __all__ = ["VERDICTS", "FigureSummary", "WelchInterval", "welch_interval", "judge", "FigureRow"]
@@ -190,9 +190,8 @@ def judge(difference: float | None, interval: tuple[float, float] | None, bounds
 
 
 def _num(value: float | None, digits: int, *, sign: bool = False) -> str:
-    if value is None or not math.isfinite(value):
-        return "-"
-    return f"{value:+.{digits}f}" if sign else f"{value:.{digits}f}"
+    # The figure table's formatting; a missing number is a dash in the comparison's cells.
+    return format_value(value, digits, missing="-", signed=sign)
 
 
 def _summary_text(summary: FigureSummary, digits: int) -> str:

@@ -6,7 +6,7 @@ import dataclasses
 
 from PySide6.QtWidgets import QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout, QLabel, QSpinBox, QWidget
 
-from stripscan.core.pipeline import AnalysisOptions
+from stripscan.core.reading import AnalysisOptions
 
 __all__ = ["OptionsDialog"]
 

@@ -1,7 +1,7 @@
 """The lot comparison page without Qt: the comparison shown, the pair in the table, what can be compared.
 
 :class:`ComparePage` holds the comparison the page shows (set k against
-the first set, from :func:`stripscan.core.compare.statistics.compare_sets`),
+the first set, from :func:`stripscan.core.compare.comparison.compare_sets`),
 which pair the table shows and the words around it, and decides whether
 the archive's lots allow a comparison; :func:`read_compared_lots` is the
 one look at the archive it needs, run by a worker thread.  The panel

@@ -29,16 +29,9 @@ from stripscan.gui.models.events import Event
 from stripscan.gui.models.location import ArchiveLocation, as_location, connection_lost
 from stripscan.gui.models.work import Run, run_now
 from stripscan.services.qc_chart import ChartData, chart_data
-from stripscan.services.qc_log import (
-    LABELS,
-    AddedDay,
-    DuplicateDayError,
-    ProcessorLog,
-    QcSetup,
-    add_day,
-    correct_entry,
-    load_processor_log,
-)
+from stripscan.core.qc.names import LABELS
+from stripscan.services.qc_log import DuplicateDayError, ProcessorLog, QcSetup, load_processor_log
+from stripscan.services.qc_recording import AddedDay, add_day, correct_entry
 
 __all__ = ["QcPage", "QcPageEvents", "QcRead", "FILM_TYPE_KEY", "create_processor", "read_qc", "store_day",
            "store_correction", "typed_values", "correction_changes", "form_date", "entry_words", "join_words"]
@@ -101,7 +94,7 @@ def read_qc(path: str | os.PathLike[str], wanted: str | None, *, progress: Any =
 
 def store_day(path: str | os.PathLike[str], processor: str, day: datetime.date, *, progress: Any = None,
               **details: Any) -> tuple[AddedDay, ChartData | None]:
-    """Store one day's entry (:func:`stripscan.services.qc_log.add_day`); the log afterwards and its chart data."""
+    """Store one day's entry (:func:`stripscan.services.qc_recording.add_day`); the log afterwards and its chart data."""
     with Archive.open(path, create=False) as archive:
         added = add_day(archive, processor, day, **details)
     return added, _with_chart(added.plog)
@@ -109,7 +102,7 @@ def store_day(path: str | os.PathLike[str], processor: str, day: datetime.date, 
 
 def store_correction(path: str | os.PathLike[str], entry_id: int, *, reason: str, changes: Mapping[str, float],
                      progress: Any = None) -> tuple[AddedDay, ChartData | None]:
-    """Store the correction of entry ``entry_id`` (:func:`stripscan.services.qc_log.correct_entry`)."""
+    """Store the correction of entry ``entry_id`` (:func:`stripscan.services.qc_recording.correct_entry`)."""
     with Archive.open(path, create=False) as archive:
         added = correct_entry(archive, entry_id, reason=reason, **changes)
     return added, _with_chart(added.plog)
@@ -298,7 +291,7 @@ class QcPage:
         self.events.stored.emit(where, processor, added)
 
     def store_day(self, where: str, processor: str, day: datetime.date, **details: Any) -> None:
-        """Store a day's entry (``details`` as :func:`stripscan.services.qc_log.add_day` takes them)."""
+        """Store a day's entry (``details`` as :func:`stripscan.services.qc_recording.add_day` takes them)."""
         self.run(store_day, self.path, processor, day, key="qc-store",
                  on_done=lambda result: self._after_store(where, processor, result),
                  on_error=lambda exc: self.events.message.emit(where, refusal_words(exc), False), **details)

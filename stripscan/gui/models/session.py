@@ -2,7 +2,7 @@
 
 Plain Python, no Qt: widgets subscribe to :attr:`Session.events` and write
 back through the setters.  Every density and figure comes from the core
-(:func:`stripscan.core.pipeline.strip_result`), from signal readings kept
+(:func:`stripscan.core.reading.strip_result`), from signal readings kept
 per strip, so editing an outline re-reads one strip and moving a density
 level only recomputes figures.
 
@@ -30,14 +30,8 @@ import numpy as np
 from stripscan import __version__
 from stripscan.core.calibration import Calibration, DirectMode
 from stripscan.core.locate import LocateError, LocateOptions, locate_in_scan, with_step_count
-from stripscan.core.pipeline import (
-    AnalysisOptions,
-    CorrectedMap,
-    check_exposure,
-    density_map_for,
-    read_found_strip,
-    strip_result,
-)
+from stripscan.core.reading import AnalysisOptions, CorrectedMap, density_map_for, read_found_strip, strip_result
+from stripscan.core.scan_checks import check_exposure
 from stripscan.core.records import Analysis, StepReading, StripGeometry, StripResult
 from stripscan.core.sample import read_strip
 from stripscan.core.scan import Scan, load_scan

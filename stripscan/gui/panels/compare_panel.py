@@ -1,7 +1,7 @@
 """Emulsion lots side by side: mean curves ± 1 sd, ΔD and Δlog E, and the table of figures.
 
 A standalone widget over comparisons already made by the core
-(:func:`stripscan.core.compare.statistics.compare_sets`: every set against the first).
+(:func:`stripscan.core.compare.comparison.compare_sets`: every set against the first).
 It draws, at a glance:
 
 * every set's mean characteristic curve with a ±1 sd band over its strips;
@@ -96,7 +96,7 @@ class ComparePanel(QWidget):
     Parameters
     ----------
     comparisons : sequence of Comparison
-        From :func:`stripscan.core.compare.statistics.compare_sets`: set k against set 0.
+        From :func:`stripscan.core.compare.comparison.compare_sets`: set k against set 0.
     parent : QWidget, optional
 
     Attributes

@@ -71,7 +71,9 @@ from stripscan.gui.tasks import TaskRunner
 from stripscan.gui.views.qc_plots import GLYPHS, DayAxis, QcPlots, legend_html
 from stripscan.render.qc_chart import MARKS
 from stripscan.services.qc_chart import ChartData
-from stripscan.services.qc_log import LABELS, VERDICT_WORDS, ProcessorLog, latest_words, status_text
+from stripscan.core.qc.names import LABELS, VERDICT_WORDS
+from stripscan.services.qc_log import ProcessorLog
+from stripscan.services.qc_status import latest_words, status_text
 
 __all__ = ["QcPanel", "DayAxis", "DensityEdit", "NewProcessorDialog", "ScanSource", "create_processor",
            "FILM_TYPE_KEY"]

@@ -37,7 +37,7 @@ from stripscan.render.qc_chart import (
     y_span,
 )
 from stripscan.services.qc_chart import ChartData, ChartPoint, ChartSeries, describe_rule
-from stripscan.services.qc_log import LABELS, VERDICT_WORDS
+from stripscan.core.qc.names import LABELS, VERDICT_WORDS
 
 __all__ = ["QcPlots", "DayAxis", "GLYPHS", "legend_html"]
 
