@@ -37,6 +37,9 @@ class TaskProgress(QProgressBar):
             self.setRange(0, 0)
 
     def _progress(self, fraction: float, text: str) -> None:
+        self.setToolTip(text)
+        if fraction <= 0.0:
+            return  # started, no share done yet: the bar keeps moving
         self.setRange(0, 100)
         self.setValue(int(round(100 * fraction)))
         self.setFormat(f"{text} %p%")

@@ -142,6 +142,10 @@ def open_through_the_form(qtbot, ws, server) -> None:
     dialog.user.setText("postgres")
     dialog.sslmode.setCurrentText("disable")
     dialog.buttons.button(QDialogButtonBox.StandardButton.Ok).click()
+    # Opened in a worker thread, a moving bar meanwhile (the window is not held).
+    assert ws.runner.busy and ws.progress.isVisible() and ws.progress.maximum() == 0
+    qtbot.wait(50)
+    assert ws.progress.maximum() == 0 or not ws.runner.busy
     wait_pages(qtbot, ws)
 
 
@@ -264,21 +268,20 @@ def test_a_server_that_cannot_be_reached_is_named_and_changes_nothing(qtbot, win
     assert ws.archive_path == before and window.settings.recent_servers() == []
 
 
-def test_a_server_named_by_stripscan_archive_is_the_windows_archive(qtbot, settings, monkeypatch, tmp_path):
+@pytest.fixture
+def server_in_env(settings, monkeypatch, tmp_path) -> str:
+    """$STRIPSCAN_ARCHIVE names a server (set before the window fixture makes the window)."""
     pytest.importorskip("psycopg")
-    from conftest import close_window
-    from stripscan.gui.main_window import MainWindow
-
-    # No server listens in this folder: the window starts on it all the same, and says it cannot reach it.
+    # No server listens in this folder.
     url = f"postgresql://postgres@/physics?host={tmp_path}"
     monkeypatch.setenv("STRIPSCAN_ARCHIVE", url)
-    window = MainWindow(settings=settings)
-    window.show()
-    try:
-        ws = window.workspace
-        assert ws.archive_path == url  # before: a Path, "postgresql:/postgres@/physics…"
-        settle(qtbot, ws, ws.archive_panel, ws.qc_panel, timeout=60_000)
-        assert ws.notice.isVisible() and ws.notice.warning
-        assert not messages(window), [box.text() for box in messages(window)]
-    finally:
-        close_window(qtbot, window)
+    return url
+
+
+def test_a_server_named_by_stripscan_archive_is_the_windows_archive(qtbot, server_in_env, window):
+    # The window starts on it all the same, and says that it cannot reach it.
+    ws = window.workspace
+    assert ws.archive_path == server_in_env  # before: a Path, "postgresql:/postgres@/physics…"
+    settle(qtbot, ws, ws.archive_panel, ws.qc_panel, timeout=60_000)
+    assert ws.notice.isVisible() and ws.notice.warning
+    assert not messages(window), [box.text() for box in messages(window)]
