@@ -35,6 +35,13 @@ noisy: the seconds vary, the ratios less):
 8. a folder of 50 scans through ``stripscan analyze FOLDER -o OUTDIR``:
    throughput on every core ÷ throughput on one core, the whole command
    each time, best of 3 runs each (target ≥ 1.7 on 2 cores).
+9. a shared archive on a PostgreSQL server over a Unix socket
+   (``bench_server.py``, issue 17): the window's listing and trend queries
+   over 10,000 snapshots ÷ the same on SQLite (target ≤ 2) and against
+   100 ms (target ≤ 1); a lot's listing and trend among 1,000,000
+   snapshots generated on the server against 200 ms; copying the 10,000
+   snapshots from a file to the server against 30 s.  Left out, with a
+   line saying why, where PostgreSQL's server tools are not installed.
 
 The table gives each figure's measured value, target, ratio and whether it
 meets the target.  ``--quick`` takes fewer repeats and only 600 dpi, for a
@@ -71,6 +78,7 @@ import bench_archive  # noqa: E402
 import bench_floor  # noqa: E402
 import bench_batch  # noqa: E402
 import bench_large  # noqa: E402
+import bench_server  # noqa: E402
 from bench_analyze import COMPRESSIONS  # noqa: E402
 
 ANALYSE_PER_READ = 2.0
@@ -229,6 +237,28 @@ def batch_figures(scans: int = BATCH_SCANS, runs: int = 3, dpi: float = 600.0) -
                    BATCH_SPEEDUP if t.cores >= 2 else None, note=note, at_least=True)]
 
 
+def server_figures(snapshots: int = ARCHIVE_SNAPSHOTS, repeat: int = 7, big: int = 1_000_000) -> list[Figure]:
+    """Figure 9: the archive's queries on a server against the same on SQLite and 100 ms; a million; the copy."""
+    t = bench_server.measure(snapshots, repeat, big)
+    figures = [Figure(f"copy of {t.snapshots} snapshots, file → server", t.copy_s, "s", bench_server.COPY_S, "",
+                      1.0, note=t.copy_how)]
+    for c in t.compared:
+        judged = not c.name.startswith("open")  # opening (once a read, with the chain check) is shown only
+        rows = "" if c.rows is None else f"{c.rows} row{'' if c.rows == 1 else 's'}; "
+        figures.append(Figure(f"server archive of {t.snapshots} snapshots ÷ SQLite: {c.name}", 1000 * c.server_s,
+                              "ms", 1000 * c.sqlite_s, "SQLite", bench_server.PER_SQLITE if judged else None,
+                              note=f"{rows}Unix socket"))
+        figures.append(Figure(f"server archive of {t.snapshots} snapshots: {c.name}", 1000 * c.server_s, "ms",
+                              1000 * bench_server.LIST_S, "", 1.0 if judged else None, note=rows.rstrip("; ")))
+    for q in t.big_queries:
+        # The brief's figure is a lot's listing and trend; all the lots at once is shown beside them.
+        figures.append(Figure(f"server archive of {t.big_snapshots} snapshots (generated): {q.name}",
+                              1000 * q.best_s, "ms", 1000 * bench_server.BIG_S, "",
+                              None if q.name.startswith("list_lots") else 1.0,
+                              note=f"{q.rows} rows; {bench_server.BIG_LOTS} lots"))
+    return figures
+
+
 def format_table(figures: Sequence[Figure]) -> str:
     """Figure, measured value, target, ratio, meets/misses, note: one aligned row each."""
     rows = [("figure", "measured", "target", "ratio", "verdict", "note")]
@@ -264,6 +294,12 @@ def main(argv: list[str] | None = None) -> int:
         ("page floor", lambda: floor_figures(3 if args.quick else FLOOR_RUNS, args.quick, progress=progress)),
         ("batch", lambda: batch_figures(BATCH_SCANS, 1 if args.quick else 3)),
     ]
+    no_server = bench_server.unavailable_reason()
+    if no_server is None:
+        pieces.append(("shared archive", lambda: server_figures(ARCHIVE_SNAPSHOTS, 3 if args.quick else 7,
+                                                                 100_000 if args.quick else 1_000_000)))
+    else:
+        progress(f"shared archive left out: {no_server}")
     if not args.skip_gui:
         # Last: the Qt application it starts stays alive to the end of the process.
         pieces.append(("gui drag", lambda: drag_figures(50 if args.quick else 200)))

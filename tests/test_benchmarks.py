@@ -97,3 +97,28 @@ def test_batch_piece_times_the_folder_on_one_core_and_on_all(run_all: ModuleType
     if record["limit"] is not None:  # judged on a machine of two cores or more
         assert record["at_least"] and record["target"].startswith("≥ 1.7")
         assert record["meets"] is (record["ratio"] >= 1.7)
+
+
+@pytest.mark.postgres
+def test_server_piece_compares_the_server_with_sqlite_and_times_the_copy(run_all: ModuleType) -> None:
+    # Figure 9 (issue 17): the shared archive's rows, on a tiny archive and a small generated one.
+    reason = run_all.bench_server.unavailable_reason()
+    if reason is not None:
+        pytest.skip(f"no PostgreSQL server for this test: {reason}")
+    figures = run_all.server_figures(snapshots=30, repeat=1, big=2000)
+    names = [f.figure for f in figures]
+    assert names[0].startswith("copy of 30 snapshots") and figures[0].unit == "s" and figures[0].limit == 1.0
+    assert any("÷ SQLite: list_snapshots(lot)" in n for n in names)
+    assert any("÷ SQLite: trend('speed_log_exposure', lot)" in n for n in names)
+    assert any(n.startswith("server archive of 2000 snapshots (generated): list_snapshots(lot)") for n in names)
+    for figure in figures:
+        record = json.loads(json.dumps(figure.to_dict(), allow_nan=False))  # as --json writes it
+        assert set(record) == RECORD_KEYS
+        for key in ("value", "reference", "ratio"):
+            assert math.isfinite(record[key]) and record[key] > 0, (key, record)
+        if record["limit"] is not None:
+            assert record["meets"] is (record["ratio"] <= record["limit"])
+    # The generated lot holds 2000 / 1000 lots = 2 strips: the listing read them all.
+    big = [f for f in figures if "(generated): list_snapshots(lot)" in f.figure]
+    assert big and big[0].note.startswith("2 rows")
+    assert "\n" in run_all.format_table(figures)

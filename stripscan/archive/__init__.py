@@ -19,6 +19,7 @@ import os
 from stripscan.archive.errors import (
     ArchiveBusyError,
     ArchiveConflictError,
+    ArchiveConnectionError,
     ArchiveError,
     ArchiveIntegrityError,
     ArchiveLookupError,
@@ -44,20 +45,23 @@ from stripscan.archive.records import (
 )
 from stripscan.archive.values import calibration_hash
 from stripscan.archive.qc_records import Crossover, QcEntry, QcEvent, QcSettings
-from stripscan.archive.location import Location, parse_location
+from stripscan.archive.location import Location, parse_location, without_password
 from stripscan.archive.service import DEFAULT_BUSY_TIMEOUT_MS, Archive, default_archive_path, user_data_folder
 
 __all__ = [
     "open_archive",
     "discard_if_empty",
     "parse_location",
+    "without_password",
     "Location",
+    "FILE_SUFFIXES",
     "Archive",
     "default_archive_path",
     "user_data_folder",
     "ArchiveError",
     "ArchiveBusyError",
     "ArchiveConflictError",
+    "ArchiveConnectionError",
     "ArchiveLookupError",
     "ArchiveReadOnlyError",
     "ArchiveIntegrityError",
@@ -83,6 +87,16 @@ __all__ = [
     "calibration_hash",
     "snapshots_from_analysis",
 ]
+
+
+def __getattr__(name: str) -> object:
+    # FILE_SUFFIXES (the endings an archive file usually has, for file dialogs) is the file backend's;
+    # read on first use, so importing the archive package does not load sqlite3.
+    if name == "FILE_SUFFIXES":
+        from stripscan.archive.sqlite.backend import FILE_SUFFIXES
+
+        return FILE_SUFFIXES
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 #: What to install for a server archive (the driver is an optional extra).

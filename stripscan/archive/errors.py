@@ -10,6 +10,7 @@ from __future__ import annotations
 __all__ = [
     "ArchiveError",
     "ArchiveBusyError",
+    "ArchiveConnectionError",
     "ArchiveReadOnlyError",
     "ArchiveConflictError",
     "ArchiveLookupError",
@@ -25,6 +26,14 @@ class ArchiveError(Exception):
 
 class ArchiveBusyError(ArchiveError):
     """Another program held the archive's write lock for longer than the busy timeout."""
+
+
+class ArchiveConnectionError(ArchiveError):
+    """The archive's server could not be reached, or the connection to it was lost (a server archive only).
+
+    Nothing half-written is kept (the server rolls back what it had not
+    committed); the same work may be tried again once the server is back.
+    """
 
 
 class ArchiveReadOnlyError(ArchiveError):

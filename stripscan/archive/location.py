@@ -14,7 +14,7 @@ import os
 import re
 from dataclasses import dataclass
 from pathlib import Path
-from urllib.parse import urlsplit, urlunsplit
+from urllib.parse import urlsplit
 
 __all__ = ["Location", "parse_location", "SERVER_SCHEMES"]
 
@@ -64,7 +64,10 @@ def without_password(conninfo: str) -> str:
             user, _, host = netloc.rpartition("@")
             netloc = f"{user.partition(':')[0]}@{host}"
         query = "&".join(p for p in parts.query.split("&") if p and not p.lower().startswith("password="))
-        return urlunsplit((parts.scheme, netloc, parts.path, query, parts.fragment))
+        # Put together by hand: urlunsplit drops the "//" of an empty host (postgresql:///?service=NAME),
+        # which libpq then no longer reads as a URI.
+        return f"{parts.scheme}://{netloc}{parts.path}" + (f"?{query}" if query else "") \
+            + (f"#{parts.fragment}" if parts.fragment else "")
     return " ".join(_PASSWORD_WORD.sub("", conninfo).split())
 
 

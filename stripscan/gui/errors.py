@@ -15,6 +15,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QApplication, QMessageBox, QWidget
 
 from stripscan.archive import user_data_folder
+from stripscan.gui.models.location import connection_lost
 
 __all__ = ["LOG_FILE_NAME", "default_log_dir", "setup_logging", "log_file", "show_message", "report_error",
            "install_excepthook", "excepthook_guard"]
@@ -83,9 +84,17 @@ def show_message(
     return box
 
 
-def report_error(parent: QWidget | None, title: str, error: BaseException) -> QMessageBox:
-    """Log ``error`` and show its message (ours already name the file and the problem)."""
+def report_error(parent: QWidget | None, title: str, error: BaseException) -> QMessageBox | None:
+    """Log ``error`` and show its message (ours already name the file and the problem).
+
+    A lost connection to a server archive is said once by the window's line
+    over the pages (see ``MainWindow.shows_lost_connection``), not in a box
+    per page that failed: then None is returned.
+    """
     log.error("%s: %s", title, error)
+    window = parent.window() if parent is not None else None
+    if connection_lost(error) and getattr(window, "shows_lost_connection", False):
+        return None
     return show_message(parent, title, str(error) or type(error).__name__)
 
 

@@ -91,6 +91,9 @@ class MainWindow(QMainWindow):
         Where settings persist (default: the user's settings file).
     """
 
+    #: A lost connection to a shared archive is said by the line over the pages, not in a box per page.
+    shows_lost_connection = True
+
     def __init__(self, session: Session | None = None, settings: AppSettings | None = None) -> None:
         super().__init__()
         self.settings = settings or AppSettings()

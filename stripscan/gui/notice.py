@@ -26,13 +26,15 @@ class NoticeBar(QFrame):
     label : QLabel
     buttons : list of QPushButton
         The buttons of the notice shown.
+    warning : bool
+        Whether the notice shown says something went wrong (amber, not green).
     """
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
+        self.warning = False
         self.setObjectName("notice")
-        self.setStyleSheet("QFrame#notice { background: #e3f1e4; border: 1px solid #6aa56d; }"
-                           " QLabel { color: #1b3d1d; }")
+        self._style(warning=False)
         self.label = QLabel()
         self.label.setWordWrap(True)
         self.label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
@@ -49,8 +51,16 @@ class NoticeBar(QFrame):
         self._row.addWidget(close)
         self.hide()
 
-    def show_notice(self, text: str, actions: list[tuple[str, Callable[[], object]]] = ()) -> None:
-        """Show ``text`` with a button per ``(title, callback)``."""
+    def _style(self, *, warning: bool) -> None:
+        self.warning = warning
+        background, border, ink = ("#fff3cd", "#e0a800", "#3b2a00") if warning else ("#e3f1e4", "#6aa56d", "#1b3d1d")
+        self.setStyleSheet(f"QFrame#notice {{ background: {background}; border: 1px solid {border}; }}"
+                           f" QLabel {{ color: {ink}; }}")
+
+    def show_notice(self, text: str, actions: list[tuple[str, Callable[[], object]]] = (), *,
+                    warning: bool = False) -> None:
+        """Show ``text`` with a button per ``(title, callback)``; ``warning``: in amber, for what went wrong."""
+        self._style(warning=warning)
         for button in self.buttons:
             self._row.removeWidget(button)
             button.deleteLater()

@@ -33,8 +33,13 @@ class TaskProgress(QProgressBar):
     def _busy(self, busy: bool) -> None:
         self.setVisible(busy)
         if busy:
-            self.setValue(0)
+            # A moving bar until the work says how far it is (opening a server archive says nothing for a while).
+            self.setRange(0, 0)
 
     def _progress(self, fraction: float, text: str) -> None:
+        self.setToolTip(text)
+        if fraction <= 0.0:
+            return  # started, no share done yet: the bar keeps moving
+        self.setRange(0, 100)
         self.setValue(int(round(100 * fraction)))
         self.setFormat(f"{text} %p%")

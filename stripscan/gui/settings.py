@@ -11,6 +11,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QByteArray, QSettings
 
+from stripscan.archive import without_password
 from stripscan.gui.models.session import DEFAULT_MAX_AGE_DAYS
 
 __all__ = ["AppSettings", "MAX_RECENT"]
@@ -59,11 +60,14 @@ class AppSettings:
 
     def add_recent(self, path: str | os.PathLike[str]) -> list[str]:
         """Put ``path`` first in the recent list; returns the list."""
-        path = str(Path(path).resolve())
-        recent = [p for p in self.recent_files() if p != path]
-        recent.insert(0, path)
+        return self._put_first("files/recent", str(Path(path).resolve()))
+
+    def _put_first(self, key: str, value: str) -> list[str]:
+        # A most-recent-first list of at most MAX_RECENT, without repeats.
+        recent = [v for v in _as_list(self.qsettings.value(key)) if v != value]
+        recent.insert(0, value)
         recent = recent[:MAX_RECENT]
-        self.qsettings.setValue("files/recent", recent)
+        self.qsettings.setValue(key, recent)
         return recent
 
     def remove_recent(self, path: str) -> None:
@@ -71,6 +75,18 @@ class AppSettings:
 
     def clear_recent(self) -> None:
         self.qsettings.setValue("files/recent", [])
+
+    # -- recent shared archives (servers) ------------------------------------
+    def recent_servers(self) -> list[str]:
+        """Connection strings of the shared archives opened last, newest first (never with a password)."""
+        return _as_list(self.qsettings.value("archive/recent_servers"))
+
+    def add_recent_server(self, conninfo: str) -> list[str]:
+        """Put a shared archive first in the recent list, its password (if one was written) left out."""
+        return self._put_first("archive/recent_servers", without_password(conninfo))
+
+    def remove_recent_server(self, conninfo: str) -> None:
+        self.qsettings.setValue("archive/recent_servers", [c for c in self.recent_servers() if c != conninfo])
 
     def last_folder(self) -> str:
         return str(self.qsettings.value("files/last_folder", "") or "")

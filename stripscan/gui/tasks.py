@@ -53,10 +53,15 @@ class TaskRunner(QObject):
     busy_changed(bool)
     progress(float, str)
         Fraction done and what is being done, of the latest task.
+    failed(str, object)
+        A task started under this key raised this exception (also one whose
+        result was dropped); the window watches for a lost connection to a
+        server archive.
     """
 
     busy_changed = Signal(bool)
     progress = Signal(float, str)
+    failed = Signal(str, object)
 
     def __init__(self, parent: QObject | None = None) -> None:
         super().__init__(parent)
@@ -114,7 +119,9 @@ class TaskRunner(QObject):
 
     @Slot(int, object)
     def _failed(self, task_id: int, error: object) -> None:
+        key = self._pending.get(task_id, ("",))[0]
         callbacks = self._finish(task_id)
+        self.failed.emit(key, error)
         if callbacks:
             callbacks[1](error)  # type: ignore[arg-type]
 

@@ -42,7 +42,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from stripscan.archive import default_archive_path
+from stripscan.archive import FILE_SUFFIXES
 from stripscan.gui import jobs
 from stripscan.gui.models.archive_page import check_archive
 from stripscan.gui.models.compare_page import ComparePage, read_compared_lots
@@ -51,6 +51,16 @@ from stripscan.gui.panels.compare_panel import ComparePanel
 from stripscan.gui.errors import report_error, show_message
 from stripscan.gui.exports import Exports
 from stripscan.gui.dialogs.lot_choice import LotChoiceDialog
+from stripscan.gui.dialogs.shared_archive import SharedArchiveDialog
+from stripscan.gui.models.location import (
+    ArchiveLocation,
+    as_location,
+    connection_lost,
+    default_location,
+    is_server,
+    location_exists,
+    location_words,
+)
 from stripscan.gui.notice import NoticeBar
 from stripscan.gui.progress import TaskProgress
 from stripscan.gui.panels.qc_panel import QcPanel
@@ -74,7 +84,7 @@ PAGES: tuple[tuple[str, str, str], ...] = (
 )
 _ARCHIVE_KEY = "archive/path"
 _OPERATOR_KEY = "archive/operator"
-_ARCHIVE_FILTER = "Lot archives (*.sqlite3 *.sqlite *.db);;All files (*)"
+_ARCHIVE_FILTER = f"Lot archives ({' '.join('*' + s for s in FILE_SUFFIXES)});;All files (*)"
 _NO_PROCESSOR = ("{where} Choose “New processor…” above to start a processor's QC log, then add each day's "
                  "strip: values read on a densitometer, or a strip of the scan open on the first page.")
 
@@ -83,15 +93,14 @@ _NO_COMPARISON = ("No comparison yet. Choose “Compare two lots…” above (or
                   "emulsion lots of the archive side by side, or compare a lot with the strips on the open scan.")
 
 
-def archive_setting(settings: AppSettings) -> Path | None:
-    """The archive file chosen last (None: never chosen)."""
-    value = settings.qsettings.value(_ARCHIVE_KEY, "")
-    return Path(str(value)) if value else None
+def archive_setting(settings: AppSettings) -> ArchiveLocation | None:
+    """The archive chosen last, a file or a server (None: never chosen)."""
+    return as_location(str(settings.qsettings.value(_ARCHIVE_KEY, "") or ""))
 
 
-def set_archive_setting(settings: AppSettings, path: str | os.PathLike[str] | None) -> None:
-    """Remember the archive file for the next start."""
-    settings.qsettings.setValue(_ARCHIVE_KEY, str(path) if path else "")
+def set_archive_setting(settings: AppSettings, location: str | os.PathLike[str] | None) -> None:
+    """Remember the archive for the next start (a server's without any password)."""
+    settings.qsettings.setValue(_ARCHIVE_KEY, location_words(as_location(location)))
 
 
 class Workspace(QObject):
@@ -111,7 +120,7 @@ class Workspace(QObject):
     Signals
     -------
     archive_changed(str)
-        The pages now show this archive file ("" for none).
+        The pages now show this archive, a file or a server without its password ("" for none).
     demo_ready(str)
         The demo archive is built and shown.
     comparison_shown()
@@ -143,11 +152,12 @@ class Workspace(QObject):
         super().__init__(window)
         self.window, self.session, self.settings = window, session, settings
         self.runner = TaskRunner(self)
-        self.archive_path: Path | None = None
+        #: The archive the pages show: a file (Path) or a server's connection string (str).
+        self.archive_path: ArchiveLocation | None = None
         self.building = False
         self.dialog: QDialog | None = None
         # The open scan's strips as last stored, the archive and the snapshot ids (see stored_snapshots).
-        self._last_stored: tuple[Any, Path | None, list[int]] | None = None
+        self._last_stored: tuple[Any, ArchiveLocation | None, list[int]] | None = None
         # Set on closing: the demo build stops between two scans rather than outlive the window.
         self._cancel = threading.Event()
 
@@ -196,11 +206,14 @@ class Workspace(QObject):
         centre.addWidget(self.notice)
 
         self.progress = TaskProgress(self.runner, 340)
+        # A lost connection to a server archive, whichever page's work met it, is said once, over the pages.
+        for runner in self.runners:
+            runner.failed.connect(self._work_failed)
         self.exports = Exports(self)
         self._make_actions()
         self.update_scan_actions()
         self._corner()
-        self.set_archive(archive_setting(settings) or default_archive_path(), persist=False)
+        self.set_archive(archive_setting(settings) or default_location(), persist=False)
 
     # -- actions and menus ----------------------------------------------------------------
     def _act(self, text: str, slot: Callable[[], Any], tip: str = "", shortcut: str | None = None) -> QAction:
@@ -217,6 +230,8 @@ class Workspace(QObject):
         self.save_action = act("Save strips to the archive…", self.save_to_archive,
                                "Store every strip of the open scan in the lot archive, one snapshot each")
         self.open_archive_action = act("Open archive…", self.ask_open_archive, "Show another lot archive file")
+        self.open_shared_action = act("Open shared archive…", self.ask_open_shared_archive,
+                                      "Show a lot archive kept on a PostgreSQL server, shared by the group")
         self.new_archive_action = act("New archive…", self.ask_new_archive, "Make an empty lot archive file")
         self.snapshot_report_action = act("Report of the open snapshot (PDF)…", self.exports.ask_snapshot_report,
                                           "One page on the snapshot open in the lot archive")
@@ -244,6 +259,7 @@ class Workspace(QObject):
         # keep their names at 1024 px.
         for action, short in ((self.save_action, "Store in archive…"), (self.scan_report_action, "Report (PDF)…"),
                               (self.open_archive_action, "Open…"), (self.new_archive_action, "New…"),
+                              (self.open_shared_action, "Shared…"),
                               (self.snapshot_report_action, "Snapshot report (PDF)…"),
                               (self.compare_lots_action, "Two lots…"),
                               (self.compare_scan_action, "A lot and this scan…"),
@@ -258,6 +274,7 @@ class Workspace(QObject):
             self.export_menu.addAction(action)
         # Greyed out while the demo archive is being built into the file they would use.
         self._archive_actions = (self.save_action, self.open_archive_action, self.new_archive_action,
+                                 self.open_shared_action,
                                  self.snapshot_report_action, self.qc_report_action, self.compare_lots_action,
                                  self.compare_scan_action)
 
@@ -273,14 +290,17 @@ class Workspace(QObject):
             action.setEnabled(has_strips and not (self.building and action in self._archive_actions))
 
     def fill_file_menu(self, menu: QMenu) -> None:
-        """Add the exports of the scan page to the File menu."""
+        """Add opening a shared archive and the exports of the scan page to the File menu."""
+        menu.addAction(self.open_shared_action)
+        menu.addSeparator()
         menu.addMenu(self.export_menu)
         menu.addAction(self.scan_report_action)
 
     def add_menus(self, bar: QMenuBar) -> None:
         """Add the Archive and Compare menus."""
         archive = bar.addMenu("&Archive")
-        for action in (self.save_action, None, self.open_archive_action, self.new_archive_action, None,
+        for action in (self.save_action, None, self.open_archive_action, self.open_shared_action,
+                       self.new_archive_action, None,
                        self.snapshot_report_action, self.qc_report_action):
             archive.addSeparator() if action is None else archive.addAction(action)
         compare = bar.addMenu("C&ompare")
@@ -302,7 +322,8 @@ class Workspace(QObject):
             self.files_menu.addAction(action)
         rows: dict[str, Sequence[QAction | QMenu]] = {
             "scan": (self.save_action, self.files_menu),
-            "archive": (self.open_archive_action, self.new_archive_action, self.snapshot_report_action),
+            "archive": (self.open_archive_action, self.open_shared_action, self.new_archive_action,
+                        self.snapshot_report_action),
             "comparison": (self.compare_lots_action, self.compare_scan_action, self.comparison_report_action),
             "qc": (self.qc_report_action,),
         }
@@ -336,15 +357,33 @@ class Workspace(QObject):
 
     # -- the archive ---------------------------------------------------------------------------------
     def set_archive(self, path: str | os.PathLike[str] | None, *, persist: bool = True) -> None:
-        """Point the archive, trend, comparison and QC pages at the archive file ``path``."""
-        self.archive_path = Path(path) if path is not None else None
+        """Point the archive, trend, comparison and QC pages at the archive ``path`` (a file or a server)."""
+        self.archive_path = as_location(path)
+        self.notice.hide()  # a line about the archive shown before
         self.archive_panel.set_archive(self.archive_path)
         self._point_qc()
         self.compare_panel.set_comparisons(())
         self.compare_panel.title.setText(_NO_COMPARISON)
         if persist:
             set_archive_setting(self.settings, self.archive_path)
-        self.archive_changed.emit(str(self.archive_path or ""))
+        self.archive_changed.emit(location_words(self.archive_path))
+
+    def _work_failed(self, key: str, error: BaseException) -> None:
+        # Opening another archive says its own failure, and the pages still show the archive they showed.
+        if key == "open-archive" or not connection_lost(error) or not is_server(self.archive_path):
+            return
+        self.status("The connection to the shared archive was lost", 0)
+        self.notice.show_notice(
+            f"The connection to the shared archive was lost: {error}. "
+            "The pages keep what they showed and the forms what was typed; nothing half-written was stored. "
+            "Try again once the server is back.", [("Try again", self.refresh_pages)], warning=True)
+
+    def refresh_pages(self) -> None:
+        """Read the archive again for the archive, trend and QC pages (worker threads)."""
+        if self.notice.warning:
+            self.notice.hide()
+        self.archive_panel.refresh()
+        self.qc_panel.refresh()
 
     @property
     def comparison(self) -> jobs.ComparisonResult | None:
@@ -353,8 +392,9 @@ class Workspace(QObject):
 
     def _point_qc(self) -> None:
         path = self.archive_path
-        if path is not None and path.is_file():
-            self.qc_panel.empty_words = _NO_PROCESSOR.format(where=f"{path.name} has no processor yet.")
+        if location_exists(path):
+            name = "The shared archive" if is_server(path) else Path(path).name  # type: ignore[arg-type]
+            self.qc_panel.empty_words = _NO_PROCESSOR.format(where=f"{name} has no processor yet.")
             if self.qc_panel.archive_path == path:
                 self.qc_panel.refresh()
             else:
@@ -378,46 +418,71 @@ class Workspace(QObject):
     def _processor_created(self, name: str) -> None:
         if self.archive_path is not None and self.qc_panel.archive_path == self.archive_path:
             self.archive_panel.set_archive(self.archive_path)  # the file may have just been made
-        self.status(f"Processor {name} is in {self.qc_panel.archive_path}: add its days on the processor QC page")
+        self.status(f"Processor {name} is in {location_words(self.qc_panel.archive_path)}: add its days on the "
+                    "processor QC page")
 
     def _archive_ready(self) -> bool:
         if self.building:
             self.tell("The demo archive is not ready yet",
                        "The demo archive is still being built; the progress is in the status bar.")
             return False
-        if self.archive_path is None or not self.archive_path.is_file():
+        if not location_exists(self.archive_path):
             self.tell("No archive", "There is no lot archive to read yet. Open one or make a new one "
                                      "(Archive menu), or store the strips of a scan first.")
             return False
         return True
 
     def ask_open_archive(self) -> None:
-        start = str(self.archive_path.parent) if self.archive_path else ""
+        start = str(self.archive_path.parent) if isinstance(self.archive_path, Path) else ""
         path, _ = QFileDialog.getOpenFileName(self.window, "Open a lot archive", start, _ARCHIVE_FILTER)
         if path:
             self.open_archive(path)
 
     def open_archive(self, path: str | os.PathLike[str]) -> bool:
-        """Show the archive at ``path`` (checked first, in a worker thread) and remember it.
+        """Show the archive at ``path``, a file or a server (checked first, in a worker thread), and remember it.
 
-        An unusable file is said in a message and changes nothing.
+        An unusable file or a server that cannot be reached is said in a
+        message and changes nothing.
         """
-        return self._use_archive(Path(path), create=False)
+        location = as_location(path)
+        if location is None:
+            return False
+        return self._use_archive(location, create=False)
 
-    def _use_archive(self, path: Path, *, create: bool) -> bool:
+    def ask_open_shared_archive(self) -> SharedArchiveDialog:
+        """The form naming a shared archive on a server (the form is :attr:`dialog` then); opened when chosen."""
+        dialog = SharedArchiveDialog(self.settings.recent_servers(), parent=self.window)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        dialog.chosen.connect(self.open_archive)
+        self.dialog = dialog
+        dialog.open()
+        return dialog
+
+    def _use_archive(self, path: ArchiveLocation, *, create: bool) -> bool:
         # Opened once first (worker thread) so a bad file is named now, not by each panel in turn.
-        def usable(_path: Path) -> None:
-            self.set_archive(path)
-            self.status(f"{'New lot' if create else 'Lot'} archive: {path}")
+        words = location_words(path)
 
-        self.status(f"{'Making' if create else 'Opening'} {path}…", 0)
-        self.runner.start(check_archive, path, create=create, key="open-archive", on_done=usable,
-                          on_error=lambda exc: report_error(
-                              self.window, f"The archive could not be {'made' if create else 'opened'}", exc))
+        def usable(_path: ArchiveLocation) -> None:
+            self.set_archive(path)
+            if is_server(path):
+                self.settings.add_recent_server(str(path))
+            self.status(f"{'New lot' if create else 'Lot'} archive: {words}")
+
+        self.status(f"{'Making' if create else 'Opening'} {words}…", 0)
+        def unusable(error: BaseException) -> None:
+            # Said in a box even for a server that cannot be reached: the pages still show the archive they
+            # showed, so the line about a lost connection would not fit.
+            title = f"The archive could not be {'made' if create else 'opened'}"
+            log.error("%s: %s", title, error)
+            self.status(f"{words} was not {'made' if create else 'opened'}")
+            show_message(self.window, title, str(error) or type(error).__name__)
+
+        self.runner.start(check_archive, path, create=create, key="open-archive", on_done=usable, on_error=unusable)
         return True
 
     def ask_new_archive(self) -> None:
-        start = str(self.archive_path.parent / "archive.sqlite3") if self.archive_path else "archive.sqlite3"
+        start = str(self.archive_path.parent / "archive.sqlite3") if isinstance(self.archive_path, Path) \
+            else "archive.sqlite3"
         path, _ = QFileDialog.getSaveFileName(self.window, "Make a new lot archive", start, _ARCHIVE_FILTER,
                                               options=QFileDialog.Option.DontConfirmOverwrite)
         if path:
@@ -460,7 +525,7 @@ class Workspace(QObject):
         self._last_stored = (analysis.strips, self.archive_path, list(ids))
         n = len(ids)
         which = f"snapshot {ids[0]}" if n == 1 else f"snapshots {min(ids)}–{max(ids)}"
-        text = f"Stored {n} snapshot{'s' if n != 1 else ''} of lot {lot} ({which}) in {self.archive_path}"
+        text = f"Stored {n} snapshot{'s' if n != 1 else ''} of lot {lot} ({which}) in {location_words(self.archive_path)}"
         self.status(text)
         self.notice.show_notice(text, [("Report of these strips (PDF)…", lambda: self.exports.ask_export("pdf")),
                                        ("Show in the lot archive", lambda: self.show_page("archive"))])

@@ -20,7 +20,7 @@ import re
 from functools import lru_cache
 from typing import Any
 
-from ..errors import ArchiveBusyError, ArchiveError, ArchiveReadOnlyError
+from ..errors import ArchiveBusyError, ArchiveConnectionError, ArchiveError, ArchiveReadOnlyError
 from . import driver
 
 __all__ = ["placeholders", "configure", "archive_error", "retryable", "RIGHTS"]
@@ -199,7 +199,7 @@ def archive_error(exc: BaseException, where: str, action: str, *, statement: str
     if state in _FULL:
         return ArchiveError(f"{where}: cannot {action}: the server's disk is full")
     if state.startswith(_GONE) or (not state and type(exc).__name__ == "OperationalError"):
-        return ArchiveError(f"{where}: cannot {action}: the connection to the server failed{tried} "
+        return ArchiveConnectionError(f"{where}: cannot {action}: the connection to the server failed{tried} "
                             f"({_first_line(exc)})")
     # A constraint or a history trigger (class 23) reads as SQLite's refusal does: a plain ArchiveError.
     return ArchiveError(f"{where}: cannot {action}: {_first_line(exc)}")

@@ -42,6 +42,7 @@ from stripscan.archive.entry_checks import already_stored, describe_stored
 from stripscan.core.calibration import Calibration
 from stripscan.core.records import Analysis
 from stripscan.gui.errors import report_error, show_message
+from stripscan.gui.models.location import as_location, location_exists, location_words
 from stripscan.gui.tasks import TaskRunner
 
 __all__ = ["SaveSnapshotDialog", "SaveForm", "ArchiveChoices", "check_form", "read_choices", "store_strips",
@@ -103,8 +104,8 @@ class ArchiveChoices:
 
 
 def read_choices(path: str | os.PathLike[str] | None, *, progress: Any = None) -> ArchiveChoices:
-    """The pickers' contents from an archive file (empty when there is no file yet)."""
-    if path is None or not Path(path).is_file():
+    """The pickers' contents from an archive (empty when there is no file yet)."""
+    if not location_exists(as_location(path)):
         return ArchiveChoices()
     with Archive.open(path, read_only=True) as archive:
         operators = sorted({s.operator for s in archive.list_snapshots(include_retired=True,
@@ -201,8 +202,8 @@ class SaveSnapshotDialog(QDialog):
         The open scan's results (e.g. ``Session.analysis()``).
     calibration : Calibration, dict or None
         The full calibration the analysis used (None in direct mode).
-    archive_path : path-like or None
-        The archive file; made when it does not exist yet.
+    archive_path : path-like, str or None
+        The archive file (made when it does not exist yet), or a server's connection string.
     parent : QWidget, optional
     runner : TaskRunner, optional
         Reads and writes the archive off the UI thread (default: the form's
@@ -228,7 +229,7 @@ class SaveSnapshotDialog(QDialog):
         self.setWindowTitle("Save to the lot archive")
         self.analysis = analysis
         self.calibration = calibration
-        self.archive_path = Path(archive_path) if archive_path is not None else None
+        self.archive_path = as_location(archive_path)
         self.stored: list[Snapshot] = []
         self.runner = runner if runner is not None else TaskRunner(self)
         #: Filled once the archive has been read (worker thread); until then the form cannot store.
@@ -397,7 +398,7 @@ class SaveSnapshotDialog(QDialog):
         else:
             lines.append(f"Calibration sha256 {str(used.get('sha256', ''))[:12]}…, made {used.get('created', '?')}"
                          + ("." if self.calibration is not None else "; only its summary is at hand and stored."))
-        lines.append(f"Archive: {self.archive_path if self.archive_path is not None else 'none chosen'}")
+        lines.append(f"Archive: {location_words(self.archive_path) or 'none chosen'}")
         return "<br>".join(lines)
 
     # -- reading and checking the form ----------------------------------------------------------

@@ -14,12 +14,12 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Any
 
 from stripscan.archive import Archive, LotSummary, QcEvent, Snapshot, SnapshotNote, SnapshotSummary, StepReadings, TrendPoint
 from stripscan.archive.records import snapshot_status
 from stripscan.gui.models.events import Event
+from stripscan.gui.models.location import ArchiveLocation, as_location, connection_lost, location_exists, location_words
 from stripscan.gui.models.work import Run, run_now
 
 __all__ = ["ArchivePage", "ArchivePageEvents", "SnapshotRecord", "SnapshotListing", "SnapshotRow", "TrendData",
@@ -90,15 +90,12 @@ class TrendData:
     events: tuple[QcEvent, ...] = ()
 
 
-def _readable(path: Path | None) -> bool:
-    return path is not None and path.is_file()
-
-
 # -- reading (run in a worker thread) ------------------------------------------------------
 
 
-def check_archive(path: Path, *, create: bool, progress: Any = None) -> Path:
-    """Open (or make, ``create``) the archive at ``path`` once, so that a bad file is named before any page shows it."""
+def check_archive(path: str | os.PathLike[str], *, create: bool, progress: Any = None) -> str | os.PathLike[str]:
+    """Open (or make, ``create``) the archive at ``path`` (a file or a server) once, so that a bad file or an
+    unreachable server is named before any page shows it."""
     Archive.open(path, read_only=not create, create=create).close()
     return path
 
@@ -244,9 +241,10 @@ class ArchivePage:
 
     Parameters
     ----------
-    path : path-like, optional
-        The archive file; a missing file is an empty page (the first stored
-        snapshot makes it).
+    path : path-like or str, optional
+        The archive: a file (a missing file is an empty page; the first
+        stored snapshot makes it) or a server's connection string
+        (:mod:`stripscan.gui.models.location`).
     run : Run
         Runs the reading (the page's worker threads; default: at once).
 
@@ -266,7 +264,7 @@ class ArchivePage:
     def __init__(self, path: str | os.PathLike[str] | None = None, *, run: Run = run_now) -> None:
         self.run = run
         self.events = ArchivePageEvents()
-        self.path = Path(path) if path is not None else None
+        self.path: ArchiveLocation | None = as_location(path)
         self.lots: list[LotSummary] = []
         self.lot: str | None = None
         self.show_all = False
@@ -276,8 +274,8 @@ class ArchivePage:
 
     @property
     def readable(self) -> bool:
-        """Whether there is an archive file to read."""
-        return _readable(self.path)
+        """Whether there is an archive to read (a file that exists, or a server)."""
+        return location_exists(self.path)
 
     @property
     def snapshots(self) -> tuple[SnapshotSummary, ...]:
@@ -287,13 +285,13 @@ class ArchivePage:
         """Which archive the page shows, in words."""
         if self.path is None:
             return "No archive chosen."
-        if not self.path.is_file():
+        if not self.readable:
             return f"No archive yet at {self.path}; it is made when the first snapshot is saved."
-        return f"Archive: {self.path}"
+        return f"Archive: {location_words(self.path)}"
 
     def set_archive(self, path: str | os.PathLike[str] | None) -> None:
-        """Show another archive file (no snapshot open)."""
-        self.path = Path(path) if path is not None else None
+        """Show another archive (no snapshot open)."""
+        self.path = as_location(path)
         self.record = None
         self.events.record_changed.emit(True)
         self.refresh()
@@ -307,7 +305,9 @@ class ArchivePage:
                  on_error=lambda exc: self._lots_failed(exc))
 
     def _lots_failed(self, error: BaseException) -> None:
-        self._lots_read([])
+        # A lost connection keeps what the page shows (the window says so and offers to try again).
+        if not connection_lost(error):
+            self._lots_read([])
         self.events.failed.emit("The archive could not be read", error)
 
     def _lots_read(self, lots: list[LotSummary]) -> None:
@@ -339,7 +339,8 @@ class ArchivePage:
             return
 
         def failed(exc: BaseException) -> None:
-            self._listing_read(SnapshotListing())
+            if not connection_lost(exc):
+                self._listing_read(SnapshotListing())
             self.events.failed.emit(f"The snapshots of lot {lot} could not be read", exc)
 
         self.run(read_listing, self.path, lot, every=self.show_all, own_steps=self.own_steps, key="archive-snapshots",
@@ -366,6 +367,9 @@ class ArchivePage:
             return False
 
         def failed(exc: BaseException) -> None:
+            if connection_lost(exc):
+                self.events.failed.emit(f"Snapshot {snapshot_id} could not be opened", exc)
+                return
             self.record = None
             self.events.record_changed.emit(True)
             if not quiet:

@@ -19,7 +19,6 @@ import datetime
 import os
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Any
 
 from stripscan.archive import Archive, Processor
@@ -27,6 +26,7 @@ from stripscan.archive import QcEntry as StoredEntry
 from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCLimits, QCValues
 from stripscan.gui.models.events import Event
+from stripscan.gui.models.location import ArchiveLocation, as_location, connection_lost
 from stripscan.gui.models.work import Run, run_now
 from stripscan.services.qc_chart import ChartData, chart_data
 from stripscan.core.qc.names import LABELS
@@ -233,7 +233,8 @@ class QcPage:
 
     Attributes
     ----------
-    path, new_archive_path : Path or None
+    path, new_archive_path : Path, str or None
+        A file, or a server's connection string (:mod:`stripscan.gui.models.location`).
     processors : tuple of str
     processor : str or None
         The processor shown.
@@ -244,8 +245,8 @@ class QcPage:
     def __init__(self, path: str | os.PathLike[str] | None = None, *, run: Run = run_now) -> None:
         self.run = run
         self.events = QcPageEvents()
-        self.path = Path(path) if path is not None else None
-        self.new_archive_path: Path | None = None
+        self.path: ArchiveLocation | None = as_location(path)
+        self.new_archive_path: ArchiveLocation | None = None
         self.processors: tuple[str, ...] = ()
         self.processor: str | None = None
         self.plog: ProcessorLog | None = None
@@ -267,7 +268,8 @@ class QcPage:
                  on_error=lambda exc: self._read_failed(exc))
 
     def _read_failed(self, error: BaseException) -> None:
-        self._shown(QcRead(self.processors))
+        if not connection_lost(error):  # a lost connection keeps the log, its charts and the forms as they are
+            self._shown(QcRead(self.processors))
         self.events.message.emit("page", f"Cannot read the archive: {error}", False)
 
     def _shown(self, read: QcRead) -> None:
@@ -309,7 +311,7 @@ class QcPage:
         name = name.strip()
 
         def made(_setup: QcSetup) -> None:
-            self.path = Path(path)
+            self.path = as_location(path)
             self.read(name, then=lambda: self.events.stored.emit("processor", name, None))
 
         self.run(create_processor, path, name, film_type=film_type, limits=limits, key="qc-store", on_done=made,

@@ -35,6 +35,7 @@ from PySide6.QtWidgets import (
 
 from stripscan import CAUTION
 from stripscan.archive import LotSummary, Snapshot, SnapshotSummary
+from stripscan.gui.models.location import ArchiveLocation
 from stripscan.gui.models.archive_page import (
     SNAPSHOT_COLUMNS,
     ArchivePage,
@@ -287,9 +288,10 @@ class ArchivePanel(QWidget):
 
     Parameters
     ----------
-    archive_path : path-like or None
-        The archive file.  It is only read here; a missing file shows an
-        empty panel that says so (saving the first snapshot makes it).
+    archive_path : path-like, str or None
+        The archive file, or a server's connection string.  It is only read
+        here; a missing file shows an empty panel that says so (saving the
+        first snapshot makes it).
     parent : QWidget, optional
     runner : TaskRunner, optional
         Runs the page's reading and storing off the UI thread (default: the
@@ -393,8 +395,8 @@ class ArchivePanel(QWidget):
 
     # -- the archive -------------------------------------------------------------------------
     @property
-    def archive_path(self) -> Path | None:
-        """The archive file shown."""
+    def archive_path(self) -> ArchiveLocation | None:
+        """The archive shown: a file, or a server's connection string."""
         return self.model.path
 
     @property
@@ -411,7 +413,7 @@ class ArchivePanel(QWidget):
         return self.runner.busy
 
     def set_archive(self, path: str | os.PathLike[str] | None) -> None:
-        """Show another archive file."""
+        """Show another archive (a file, or a server's connection string)."""
         self.trend.set_archive(path)
         self.model.set_archive(path)
         self.where.setText(self.model.where_text())

@@ -58,6 +58,7 @@ from stripscan.core.qc.names import QUANTITIES
 from stripscan.core.qc.records import QCLimits
 from stripscan.core.records import Analysis
 from stripscan.gui.dialogs.new_processor import DensityEdit, NewProcessorDialog, show_result
+from stripscan.gui.models.location import ArchiveLocation, as_location
 from stripscan.gui.models.qc_page import (
     FILM_TYPE_KEY,
     QcPage,
@@ -204,22 +205,22 @@ class QcPanel(QWidget):
     # -- the model's state, as the panel's --------------------------------------------------
 
     @property
-    def archive_path(self) -> Path | None:
-        """The archive shown (None: none, or no file yet)."""
+    def archive_path(self) -> ArchiveLocation | None:
+        """The archive shown, a file or a server (None: none, or no file yet)."""
         return self.model.path
 
     @archive_path.setter
     def archive_path(self, path: str | os.PathLike[str] | None) -> None:
-        self.model.path = Path(path) if path is not None else None
+        self.model.path = as_location(path)
 
     @property
-    def new_archive_path(self) -> Path | None:
+    def new_archive_path(self) -> ArchiveLocation | None:
         """Where a new processor makes the archive when :attr:`archive_path` is None (no file yet)."""
         return self.model.new_archive_path
 
     @new_archive_path.setter
     def new_archive_path(self, path: str | os.PathLike[str] | None) -> None:
-        self.model.new_archive_path = Path(path) if path is not None else None
+        self.model.new_archive_path = as_location(path)
 
     @property
     def plog(self) -> ProcessorLog | None:
@@ -420,7 +421,8 @@ class QcPanel(QWidget):
         dialog = NewProcessorDialog(self)
         dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
         self.dialog = dialog
-        dialog.destroyed.connect(lambda: setattr(self, "dialog", None))
+        # Only this form's end clears it: the form before, deleted late, must not clear this one.
+        dialog.destroyed.connect(lambda: self.dialog is dialog and setattr(self, "dialog", None))
         dialog.open()
         return dialog
 
@@ -505,7 +507,7 @@ class QcPanel(QWidget):
 
     def set_archive(self, path: str | os.PathLike[str]) -> None:
         """Show the processors of the archive at ``path``."""
-        self.archive_path = Path(path)
+        self.archive_path = path
         self.refresh()
 
     def refresh(self) -> None:

@@ -13,7 +13,6 @@ import datetime as dt
 import math
 import os
 import time
-from pathlib import Path
 
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
@@ -31,6 +30,7 @@ from stripscan.archive import FIGURES, LotSummary, TrendPoint
 from stripscan.archive.records import FIGURE_UNITS
 from stripscan.core.figure_settings import FigureSettings
 from stripscan.gui.errors import report_error
+from stripscan.gui.models.location import ArchiveLocation, as_location, connection_lost, location_exists
 from stripscan.gui.models.archive_page import TrendData, read_lots, read_trend
 from stripscan.gui.style import strip_colour
 from stripscan.gui.tasks import TaskRunner
@@ -117,8 +117,8 @@ class TrendView(QWidget):
 
     Parameters
     ----------
-    archive_path : path-like or None
-        The archive to read (opened read-only for each refresh, in a worker thread).
+    archive_path : path-like, str or None
+        The archive to read, a file or a server's connection string (opened read-only for each refresh, in a worker thread).
     parent : QWidget, optional
     runner : TaskRunner, optional
         Runs the reading (default: the view's own).
@@ -135,7 +135,7 @@ class TrendView(QWidget):
                  runner: TaskRunner | None = None) -> None:
         super().__init__(parent)
         self.runner = runner if runner is not None else TaskRunner(self)
-        self.archive_path = Path(archive_path) if archive_path is not None else None
+        self.archive_path: ArchiveLocation | None = as_location(archive_path)
         self.points: list[TrendPoint] = []
         self.series: dict[str, pg.ScatterPlotItem] = {}
         self.figure = QComboBox()
@@ -215,8 +215,8 @@ class TrendView(QWidget):
 
     # -- reading -----------------------------------------------------------------------------
     def set_archive(self, path: str | os.PathLike[str] | None) -> None:
-        """Show another archive file."""
-        self.archive_path = Path(path) if path is not None else None
+        """Show another archive (a file, or a server's connection string)."""
+        self.archive_path = as_location(path)
         self.lots.clear()
         self.refresh()
 
@@ -229,7 +229,8 @@ class TrendView(QWidget):
                           on_error=self._lots_failed)
 
     def _lots_failed(self, error: BaseException) -> None:
-        self._lots_read([])
+        if not connection_lost(error):  # a lost connection keeps the trend drawn
+            self._lots_read([])
         report_error(self, "The archive's lots could not be read", error)
 
     def _lots_read(self, summaries: list[LotSummary]) -> None:
@@ -249,7 +250,7 @@ class TrendView(QWidget):
         self.redraw()
 
     def _readable(self) -> bool:
-        return self.archive_path is not None and self.archive_path.is_file()
+        return location_exists(self.archive_path)
 
     def redraw(self, *_: object) -> None:
         """Read the trend of the chosen figure and lots (worker thread) and draw it."""
@@ -259,7 +260,8 @@ class TrendView(QWidget):
             return
 
         def failed(exc: BaseException) -> None:
-            self._show(figure, lots, TrendData())
+            if not connection_lost(exc):
+                self._show(figure, lots, TrendData())
             report_error(self, "The trend could not be read", exc)
 
         self.runner.start(read_trend, self.archive_path, figure, lots, key="trend",
