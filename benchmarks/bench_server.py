@@ -6,7 +6,7 @@ as a real one: fsync on), then:
 1. fills a SQLite archive with 10,000 snapshots as ``bench_archive.py``
    does (two lots, two processors, revisions, retirements), copies it to a
    database on the server through the JSON export and import
-   (``Archive.export_json`` then ``Archive.import_json``; timed whole) and
+   (``stripscan archive copy``, :func:`stripscan.archive.copying.copy_location`; timed whole) and
    times the window's listing and trend queries on both, each on an open
    archive, best of ``--repeat``;
 2. generates 1,000,000 snapshots on the server in one statement
@@ -45,6 +45,7 @@ from archive_factory import LOTS, PROCESSORS, make_draft, populate  # noqa: E402
 from pg_server import PgServer, unavailable_reason  # noqa: E402
 
 from stripscan.archive import Archive  # noqa: E402
+from stripscan.archive.copying import copy_location  # noqa: E402
 
 #: A query on the server: at most this many times the same on SQLite, and at most LIST_S.
 PER_SQLITE = 2.0
@@ -105,10 +106,7 @@ def compare(server: PgServer, snapshots: int, repeat: int, folder: Path) -> tupl
         filled = time.perf_counter() - started
     url = server.url(server.create_database("bench"))
     started = time.perf_counter()
-    with Archive.open(path, read_only=True) as source:
-        source.export_json(folder / "all.json")
-    with Archive.open(url) as target:
-        target.import_json(folder / "all.json")
+    copy_location(path, url)  # what 'stripscan archive copy FILE URL' runs
     copied = time.perf_counter() - started
     lot = LOTS[1].lot_id
     times: dict[str, list[float]] = {}
@@ -183,7 +181,7 @@ def measure(snapshots: int = 10_000, repeat: int = 7, big: int = 1_000_000) -> S
                                    ("list_lots()", archive.list_lots)):
                     best, median, result = bench_archive._timed(call, repeat)
                     big_queries.append(bench_archive.QueryTiming(name, best, median, len(result)))
-        return ServerTiming(snapshots, filled, copied, "export_json + import_json (no 'archive copy' on main yet)",
+        return ServerTiming(snapshots, filled, copied, "'archive copy' (copy_location)",
                             compared, big, big_fill, tuple(big_queries))
 
 
