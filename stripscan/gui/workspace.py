@@ -14,6 +14,11 @@ one on a server, say) never freezes the window.
 
 Every number on the pages comes from the archive API, the core and
 :mod:`stripscan.render`; nothing is recomputed here.
+
+Length (about 670 lines, over the project's ~600): every action that joins two pages lands
+here (store, compare, QC from the scan, the demo, opening a file or a server); the pages
+themselves, their models and their views live in their own modules.  The next thing to move
+out is the lot-comparison flow (``ask_compare_*``, ``_compare``), with its own tests.
 """
 
 from __future__ import annotations
