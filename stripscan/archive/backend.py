@@ -76,10 +76,15 @@ class Backend(abc.ABC):
     busy_timeout_ms: int
     Error: type[BaseException] = Exception
 
+    #: The driver's open connection (what :attr:`connection` gives); None once closed.
+    _conn: Any = None
+
     @property
-    @abc.abstractmethod
     def connection(self) -> Connection:
         """The open connection; raises :class:`ArchiveError` once closed."""
+        if self._conn is None:
+            raise ArchiveError(f"{self.location}: the archive is closed")
+        return self._conn
 
     @abc.abstractmethod
     def translate(self, exc: BaseException, action: str) -> ArchiveError:
@@ -111,13 +116,19 @@ class Backend(abc.ABC):
         """Copy the whole archive, in one consistent state, to the file ``dest``; checked before it is named."""
 
     @abc.abstractmethod
+    def _close_connection(self, conn: Any) -> None:
+        """Close the driver's connection ``conn`` (called once, by :meth:`close`)."""
+
     def close(self) -> None:
         """Close the location; calling it again does nothing."""
+        if self._conn is not None:
+            conn, self._conn = self._conn, None
+            self._close_connection(conn)
 
     @property
-    @abc.abstractmethod
     def closed(self) -> bool:
         """Whether :meth:`close` was called."""
+        return self._conn is None
 
     def query(self, sql: str, params: Sequence[Any] = ()) -> list[Any]:
         """All rows of one read, outside any write; errors translated."""

@@ -199,18 +199,10 @@ class PostgresBackend(Backend):
 
     @property
     def connection(self) -> ServerConnection:
-        if self._conn is None:
-            raise ArchiveError(f"{self.location}: the archive is closed")
-        return self._conn
+        return super().connection  # type: ignore[return-value]
 
-    @property
-    def closed(self) -> bool:
-        return self._conn is None
-
-    def close(self) -> None:
-        if self._conn is not None:
-            conn, self._conn = self._conn, None
-            conn.raw.close()
+    def _close_connection(self, conn: ServerConnection) -> None:
+        conn.raw.close()
 
     @property
     def has_chain(self) -> bool:

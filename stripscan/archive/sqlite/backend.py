@@ -172,18 +172,10 @@ class SqliteBackend(Backend):
 
     @property
     def connection(self) -> sqlite3.Connection:
-        if self._conn is None:
-            raise ArchiveError(f"{self.path}: the archive is closed")
-        return self._conn
+        return super().connection  # type: ignore[return-value]
 
-    @property
-    def closed(self) -> bool:
-        return self._conn is None
-
-    def close(self) -> None:
-        if self._conn is not None:
-            conn, self._conn = self._conn, None
-            conn.close()
+    def _close_connection(self, conn: sqlite3.Connection) -> None:
+        conn.close()
 
     @property
     def has_chain(self) -> bool:
